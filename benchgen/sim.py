@@ -1,0 +1,289 @@
+"""Build a generated project with the cocotb Python runner and run its bench.
+
+The runner builds in ``DIR/build/<simulator>``; the bench writes one JSON line per test, which is
+pooled here into the run's report.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import json
+import os
+import sys
+import time
+from collections.abc import Iterator
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from benchgen.errors import BenchgenError
+from benchgen.project import design_from_manifest, load_manifest
+from benchgen.simulators import SIMULATORS, SimulatorMissing, find_simulator, simulator_env
+
+__all__ = ["SimError", "SimReport", "run_sim"]
+
+
+class SimError(BenchgenError):
+    """The simulation could not run (as opposed to: it ran and found mismatches)."""
+
+    exit_status = 3
+
+
+@dataclass
+class SimReport:
+    """Outcome of one simulation run.
+
+    Attributes:
+        simulator: ``icarus`` or ``verilator``.
+        simulator_version: Its version.
+        toplevel: Core module name.
+        seed: Seed of the run (reproduces it with ``--seed``).
+        passed: Whether every test passed.
+        tests: Tests run; failed: tests failed.
+        samples: Output samples compared with the model, over all tests.
+        mismatches: Samples that differed from the model in any bit.
+        max_error_lsb / rms_error_lsb: Error against the ideal, pooled.
+        error_budget_lsb: The budget from the manifest.
+        latency_cycles: Latency measured at full rate (None if not measured).
+        expected_latency_cycles: From the manifest.
+        cycles_per_sample: Measured input spacing at full rate.
+        expected_cycles_per_sample: From the manifest.
+        sim_seconds: Wall time of the test run (build excluded).
+        build_seconds: Wall time of the build.
+        problems: What failed, with the first mismatches.
+        log_file: The simulator's log.
+    """
+
+    simulator: str
+    simulator_version: str
+    toplevel: str
+    seed: int
+    passed: bool = False
+    tests: int = 0
+    failed: int = 0
+    samples: int = 0
+    mismatches: int = 0
+    max_error_lsb: float = 0.0
+    rms_error_lsb: float = 0.0
+    error_budget_lsb: float = 0.0
+    latency_cycles: int | None = None
+    expected_latency_cycles: int = 0
+    cycles_per_sample: float | None = None
+    expected_cycles_per_sample: int = 0
+    sim_seconds: float = 0.0
+    build_seconds: float = 0.0
+    problems: list[str] = field(default_factory=list)
+    per_test: list[dict[str, Any]] = field(default_factory=list)
+    log_file: str = ""
+
+    def as_dict(self) -> dict[str, Any]:
+        """JSON form (the keys of ``--json``)."""
+        return {
+            "simulator": self.simulator,
+            "simulator_version": self.simulator_version,
+            "toplevel": self.toplevel,
+            "seed": self.seed,
+            "passed": self.passed,
+            "tests": self.tests,
+            "failed": self.failed,
+            "samples": self.samples,
+            "mismatches": self.mismatches,
+            "max_error_lsb": round(self.max_error_lsb, 6),
+            "rms_error_lsb": round(self.rms_error_lsb, 6),
+            "error_budget_lsb": self.error_budget_lsb,
+            "latency_cycles": self.latency_cycles,
+            "expected_latency_cycles": self.expected_latency_cycles,
+            "cycles_per_sample": self.cycles_per_sample,
+            "expected_cycles_per_sample": self.expected_cycles_per_sample,
+            "sim_seconds": round(self.sim_seconds, 3),
+            "build_seconds": round(self.build_seconds, 3),
+            "problems": self.problems,
+            "per_test": self.per_test,
+        }
+
+    def table(self) -> str:
+        """A short human-readable summary."""
+        verdict = "PASS" if self.passed else "FAIL"
+        lat = "-" if self.latency_cycles is None else str(self.latency_cycles)
+        cps = "-" if self.cycles_per_sample is None else f"{self.cycles_per_sample:g}"
+        rows = [
+            ("core", self.toplevel),
+            ("simulator", f"{self.simulator} {self.simulator_version}"),
+            ("seed", str(self.seed)),
+            ("tests passed", f"{self.tests - self.failed} of {self.tests}"),
+            ("samples checked", str(self.samples)),
+            ("mismatches vs model", str(self.mismatches)),
+            ("worst error vs ideal", f"{self.max_error_lsb:.4f} LSB (budget {self.error_budget_lsb} LSB)"),
+            ("RMS error vs ideal", f"{self.rms_error_lsb:.4f} LSB"),
+            ("latency", f"{lat} clocks (manifest {self.expected_latency_cycles})"),
+            ("cycles per sample", f"{cps} (manifest {self.expected_cycles_per_sample})"),
+            ("build / sim time", f"{self.build_seconds:.1f} s / {self.sim_seconds:.1f} s"),
+        ]
+        width = max(len(k) for k, _ in rows)
+        lines = [f"  {k:<{width}}  {v}" for k, v in rows]
+        out = "\n".join(lines) + f"\n  result: {verdict}"
+        if self.problems:
+            out += "\n\nProblems:\n" + "\n".join(f"- {p}" for p in self.problems)
+        return out
+
+
+@contextlib.contextmanager
+def _env(values: dict[str, str]) -> Iterator[None]:
+    saved = {k: os.environ.get(k) for k in values}
+    os.environ.update(values)
+    try:
+        yield
+    finally:
+        for k, v in saved.items():
+            if v is None:
+                os.environ.pop(k, None)
+            else:
+                os.environ[k] = v
+
+
+@contextlib.contextmanager
+def _sys_path(folder: Path) -> Iterator[None]:
+    sys.path.insert(0, str(folder))
+    try:
+        yield
+    finally:
+        with contextlib.suppress(ValueError):
+            sys.path.remove(str(folder))
+
+
+def run_sim(
+    project_dir: str | Path,
+    *,
+    simulator: str,
+    samples: int = 20_000,
+    seed: int | None = None,
+    waves: bool = False,
+    csv_path: str | Path | None = None,
+    build_dir: str | Path | None = None,
+) -> SimReport:
+    """Build and simulate a project; return what the bench measured.
+
+    Raises:
+        SimError: if the simulator is missing or the run could not start.
+        ProjectError: if the folder is not a (current) benchgen project.
+    """
+    if simulator not in SIMULATORS:
+        raise SimError(f"unknown simulator '{simulator}': use one of {', '.join(SIMULATORS)}")
+    if samples < 1:
+        raise SimError(f"--samples {samples}: give a positive number of samples")
+    project = Path(project_dir).resolve()
+    manifest = load_manifest(project)
+    design = design_from_manifest(manifest)
+    try:
+        info = find_simulator(simulator)
+    except SimulatorMissing as exc:
+        raise SimError(str(exc)) from None
+
+    from cocotb_tools.check_results import get_results
+    from cocotb_tools.runner import get_runner
+
+    top = manifest["toplevel"]
+    build = Path(build_dir).resolve() if build_dir else project / "build" / simulator
+    build.mkdir(parents=True, exist_ok=True)
+    results_jsonl = build / "bench_results.jsonl"
+    results_xml = build / "results.xml"
+    log_file = build / "sim.log"
+    csv_tmp = build / "samples.csv"
+    for stale in (results_jsonl, results_xml, csv_tmp):
+        stale.unlink(missing_ok=True)
+    if seed is None:
+        seed = int(time.time()) % 1_000_000
+    report = SimReport(
+        simulator=simulator,
+        simulator_version=info.version,
+        toplevel=top,
+        seed=seed,
+        error_budget_lsb=design.spec.max_error_lsb,
+        expected_latency_cycles=design.timing.latency_cycles,
+        expected_cycles_per_sample=design.timing.cycles_per_sample,
+        log_file=str(log_file),
+    )
+    sources = [project / rel for rel in manifest["files"]["rtl"]]
+    bench_env = {
+        "BENCHGEN_SAMPLES": str(samples),
+        "BENCHGEN_RESULTS": str(results_jsonl),
+    }
+    if csv_path:
+        bench_env["BENCHGEN_CSV"] = str(csv_tmp)
+    with simulator_env(info), _env(bench_env), _sys_path(project / "bench"):
+        runner = get_runner(simulator)
+        t0 = time.perf_counter()
+        try:
+            runner.build(
+                sources=sources,
+                hdl_toplevel=top,
+                build_dir=build,
+                always=True,
+                timescale=("1ns", "1ps"),
+                waves=waves,
+                log_file=build / "build.log",
+            )
+        except (SystemExit, Exception) as exc:  # the runner exits on a failed build
+            raise SimError(
+                f"{simulator} could not build {top} ({exc}); see {build / 'build.log'}"
+            ) from None
+        t1 = time.perf_counter()
+        try:
+            runner.test(
+                test_module=manifest["files"]["test_module"],
+                hdl_toplevel=top,
+                build_dir=build,
+                test_dir=build,
+                seed=seed,
+                waves=waves,
+                results_xml=str(results_xml),
+                timescale=("1ns", "1ps"),
+                log_file=log_file,
+            )
+        except SystemExit:
+            pass  # under pytest the runner exits on a failing test; results.xml still tells
+        t2 = time.perf_counter()
+    report.build_seconds = t1 - t0
+    report.sim_seconds = t2 - t1
+    if not results_xml.is_file():
+        raise SimError(f"the simulation wrote no results; see {log_file}")
+    tests, failed = get_results(results_xml)
+    report.tests, report.failed = tests, failed
+    per_test = []
+    if results_jsonl.is_file():
+        per_test = [json.loads(line) for line in results_jsonl.read_text().splitlines() if line.strip()]
+    report.per_test = per_test
+    _pool(report, per_test)
+    if tests == 0:
+        report.problems.append("no test ran")
+    if len(per_test) < tests:
+        report.problems.append(
+            f"{tests - len(per_test)} test(s) ended before reporting (an exception or timeout); see {log_file}"
+        )
+    report.passed = tests > 0 and failed == 0 and report.mismatches == 0 and not report.problems
+    if csv_path and csv_tmp.is_file():
+        Path(csv_path).write_text(csv_tmp.read_text())
+    return report
+
+
+def _pool(report: SimReport, per_test: list[dict[str, Any]]) -> None:
+    sum_sq = 0.0
+    count = 0
+    for t in per_test:
+        report.samples += t["samples"]
+        report.mismatches += t["mismatches"]
+        report.max_error_lsb = max(report.max_error_lsb, t["max_error_lsb"])
+        sum_sq += t["sum_sq_error"]
+        count += t["error_count"]
+        report.problems.extend(f"{t['test']}: {p}" for p in t["problems"])
+        if t["test"] == "random_full_rate":
+            if t["latency_cycles"]:
+                lo, hi = t["latency_cycles"]
+                report.latency_cycles = lo if lo == hi else None
+                if lo != hi:
+                    report.problems.append(f"latency varied from {lo} to {hi} clocks at full rate")
+                else:
+                    report.latency_cycles = lo
+            report.cycles_per_sample = t["cycles_per_sample"]
+    if count:
+        report.rms_error_lsb = (sum_sq / count) ** 0.5
