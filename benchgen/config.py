@@ -33,7 +33,7 @@ MIN_ANGLE_WIDTH = 3
 MIN_DATA_WIDTH = 3
 MAX_WIDTH = 64
 MAX_TAG_WIDTH = 64
-MAX_ITERATIONS = 64
+MAX_ITERATIONS = 96
 
 # IEEE 1364-2005 reserved words, plus the IEEE 1800-2017 ones, because Verilator parses
 # Verilog files as SystemVerilog by default and a module called `logic` would break there.

@@ -17,7 +17,7 @@ import numpy as np
 import numpy.typing as npt
 
 from benchgen.algorithm import Datapath, Timing, make_datapath, make_timing
-from benchgen.config import CoreSpec
+from benchgen.config import MAX_ITERATIONS, CoreSpec
 from benchgen.errors import ConfigError
 from benchgen.model import sincos
 from benchgen.reference import ErrorStats, error_stats, ideal_sincos
@@ -38,6 +38,7 @@ WIDE_SIZING_SAMPLES = 4096
 MAX_AUTO_GUARD_BITS = 16
 _SIZING_SEED = 20261202
 _PREFILTER = 4096
+_PREFILTER_WIDE = 256
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -79,7 +80,10 @@ def sizing_angles(angle_width: int, data_width: int) -> tuple[npt.NDArray[np.int
     if angle_width <= EXHAUSTIVE_LIMIT_BITS:
         return np.arange(1 << angle_width, dtype=np.int64), True
     rng = np.random.default_rng(_SIZING_SEED)
-    count = RANDOM_SIZING_SAMPLES if data_width <= 40 else WIDE_SIZING_SAMPLES
+    # Beyond these widths the model runs on Python integers (exact but about 100x slower), so
+    # the random set shrinks; the manifest says how many angles the accuracy was measured on.
+    fast = data_width <= 40 and angle_width <= 56
+    count = RANDOM_SIZING_SAMPLES if fast else WIDE_SIZING_SAMPLES
     corners = corner_angles(angle_width)
     if angle_width <= 62:
         rand = rng.integers(0, 1 << angle_width, size=count, dtype=np.int64)
@@ -89,53 +93,105 @@ def sizing_angles(angle_width: int, data_width: int) -> tuple[npt.NDArray[np.int
     return np.array(list(corners) + rand_obj, dtype=object), False
 
 
-def evaluate(dp: Datapath, angles: npt.ArrayLike) -> ErrorStats:
-    """Error of the bit-true model of ``dp`` against the ideal over ``angles``."""
+def evaluate(dp: Datapath, angles: npt.ArrayLike, ideal: tuple[np.ndarray, np.ndarray] | None = None) -> ErrorStats:
+    """Error of the bit-true model of ``dp`` against the ideal over ``angles``.
+
+    Args:
+        dp: The data path to measure.
+        angles: Input angle codes.
+        ideal: The ideal (cos, sin) for these angles and this amplitude, if already computed.
+    """
     out = sincos(dp, angles)
-    ideal_cos, ideal_sin = ideal_sincos(dp, angles)
+    ideal_cos, ideal_sin = ideal if ideal is not None else ideal_sincos(dp, angles)
     return error_stats([out.cos, out.sin], [ideal_cos, ideal_sin])
 
 
+@dataclass(frozen=True)
+class _SizingSet:
+    angles: np.ndarray
+    ideal: tuple[np.ndarray, np.ndarray]
+    subset: np.ndarray
+    subset_ideal: tuple[np.ndarray, np.ndarray]
+    exhaustive: bool
+
+
+def _sizing_set(spec: CoreSpec) -> _SizingSet:
+    return _sizing_set_for(spec.angle_width, spec.data_width)
+
+
 @cache
-def _sizing_set(angle_width: int, data_width: int) -> tuple[np.ndarray, np.ndarray, bool]:
+def _sizing_set_for(angle_width: int, data_width: int) -> _SizingSet:
     angles, exhaustive = sizing_angles(angle_width, data_width)
-    step = max(1, len(angles) // _PREFILTER)
-    return angles, angles[::step], exhaustive
+    limit = _PREFILTER if data_width <= 40 and angle_width <= 56 else _PREFILTER_WIDE
+    step = max(1, len(angles) // limit)
+    subset = angles[::step]
+    # The ideal depends only on the angles and the amplitude: compute it once per sizing.
+    probe = make_datapath(CoreSpec(name="probe", angle_width=angle_width, data_width=data_width), 1, 0)
+    return _SizingSet(
+        angles=angles,
+        ideal=ideal_sincos(probe, angles),
+        subset=subset,
+        subset_ideal=ideal_sincos(probe, subset),
+        exhaustive=exhaustive,
+    )
 
 
-def _meets(spec: CoreSpec, n: int, g: int) -> tuple[bool, Datapath | None, ErrorStats | None]:
+def _meets(spec: CoreSpec, n: int, g: int) -> tuple[bool, ErrorStats | None]:
     if n > spec.data_width + g + 1:
-        return False, None, None
+        return False, None
     dp = make_datapath(spec, n, g)
-    angles, subset, _ = _sizing_set(spec.angle_width, spec.data_width)
+    sset = _sizing_set(spec)
     # The subset's worst error is a lower bound of the full set's: a failing subset rejects
     # the candidate cheaply; a passing one is confirmed on the full set.
-    if evaluate(dp, subset).max_error_lsb > spec.max_error_lsb:
-        return False, dp, None
-    stats = evaluate(dp, angles)
-    return stats.max_error_lsb <= spec.max_error_lsb, dp, stats
+    if evaluate(dp, sset.subset, sset.subset_ideal).max_error_lsb > spec.max_error_lsb:
+        return False, None
+    stats = evaluate(dp, sset.angles, sset.ideal)
+    return stats.max_error_lsb <= spec.max_error_lsb, stats
+
+
+def _best_guard(spec: CoreSpec, n: int) -> tuple[int, ErrorStats] | None:
+    g_range = [spec.guard_bits] if spec.guard_bits is not None else range(0, MAX_AUTO_GUARD_BITS + 1)
+    for g in g_range:
+        ok, stats = _meets(spec, n, g)
+        if ok and stats is not None:
+            return g, stats
+    return None
 
 
 @cache
 def _size(spec: CoreSpec) -> tuple[int, int, ErrorStats]:
     """Smallest iterations, then smallest guard bits, meeting the target (fields fixed by the spec stay)."""
-    from benchgen.config import MAX_ITERATIONS
-
-    n_range = [spec.iterations] if spec.iterations is not None else range(1, MAX_ITERATIONS + 1)
-    g_range = [spec.guard_bits] if spec.guard_bits is not None else range(0, MAX_AUTO_GUARD_BITS + 1)
-    for n in n_range:
-        for g in g_range:
-            ok, _dp, stats = _meets(spec, n, g)
-            if ok and stats is not None:
-                return n, g, stats
+    if spec.iterations is not None:
+        # Refuse iterations that no allowed guard-bit count can hold, with the width message.
+        make_datapath(spec, spec.iterations, spec.guard_bits if spec.guard_bits is not None else MAX_AUTO_GUARD_BITS)
+    if spec.iterations is not None:
+        found = _best_guard(spec, spec.iterations)
+        if found is not None:
+            return spec.iterations, found[0], found[1]
+    else:
+        # Start near the answer (about data_width iterations) and walk: down while the target is
+        # still met, else up until it is. Every count below the answer is thus shown to fail.
+        n = max(1, spec.data_width - 2)
+        found = _best_guard(spec, n)
+        if found is not None:
+            while n > 1:
+                lower = _best_guard(spec, n - 1)
+                if lower is None:
+                    break
+                n, found = n - 1, lower
+            return n, found[0], found[1]
+        for n in range(n + 1, MAX_ITERATIONS + 1):
+            found = _best_guard(spec, n)
+            if found is not None:
+                return n, found[0], found[1]
     # Nothing met the target: say which field to change.
     best_n = spec.iterations if spec.iterations is not None else MAX_ITERATIONS
     best_g = spec.guard_bits if spec.guard_bits is not None else MAX_AUTO_GUARD_BITS
     best_g = max(best_g, 0)
     if best_n > spec.data_width + best_g + 1:
         best_n = spec.data_width + best_g + 1
-    angles, _, _ = _sizing_set(spec.angle_width, spec.data_width)
-    achieved = evaluate(make_datapath(spec, best_n, best_g), angles).max_error_lsb
+    sset = _sizing_set(spec)
+    achieved = evaluate(make_datapath(spec, best_n, best_g), sset.angles, sset.ideal).max_error_lsb
     if spec.iterations is not None and spec.guard_bits is not None:
         field, value = "iterations", spec.iterations
         fix = (
@@ -170,7 +226,7 @@ def build_design(spec: CoreSpec) -> Design:
     n, g, stats = _size(spec)
     dp = make_datapath(spec, n, g)
     timing: Timing = make_timing(spec, n)
-    _, _, exhaustive = _sizing_set(spec.angle_width, spec.data_width)
+    exhaustive = _sizing_set(spec).exhaustive
     auto = tuple(f for f, v in (("iterations", spec.iterations), ("guard_bits", spec.guard_bits)) if v is None)
     return Design(
         spec=spec,

@@ -62,7 +62,10 @@ def round_drop(values: IntArray, drop: int, rounding: str, out_width: int) -> In
 
 
 def _saturate(values: IntArray, limit: int) -> IntArray:
-    return np.where(values > limit, limit, np.where(values < -limit, -limit, values))
+    out = values.copy()
+    out[values > limit] = limit
+    out[values < -limit] = -limit
+    return out
 
 
 class SinCos:
@@ -108,13 +111,14 @@ def sincos(dp: Datapath, angles: npt.ArrayLike) -> SinCos:
     fold = (top ^ nxt).astype(bool)
     folded = codes ^ (fold.astype(codes.dtype) << (n_bits - 1))
     z = to_signed(folded, n_bits) << (dp.z_width - n_bits)
-    x = np.where(fold, -dp.x_start, dp.x_start).astype(dtype)
+    x = np.full(codes.shape, dp.x_start, dtype=dtype)
+    x[fold] = -dp.x_start
     y = np.zeros_like(x)
 
     last = dp.iterations - 1
     for i, step in enumerate(dp.atan_table):
         # z >= 0: turn counter-clockwise (x - y/2^i, y + x/2^i, z - atan 2^-i), else clockwise.
-        sign = np.where(z >= 0, 1, -1).astype(dtype)
+        sign = (z >= 0).astype(dtype) * 2 - 1
         xs = x >> i
         ys = y >> i
         x, y = wrap(x - sign * ys, dp.xy_width), wrap(y + sign * xs, dp.xy_width)

@@ -19,7 +19,7 @@ import numpy.typing as npt
 from benchgen.algorithm import Datapath
 from benchgen.model import to_signed
 
-__all__ = ["ErrorStats", "FLOAT64_MAX_DATA_WIDTH", "error_stats", "ideal_sincos"]
+__all__ = ["ErrorStats", "FLOAT64_MAX_DATA_WIDTH", "error_stats", "errors_lsb", "ideal_sincos"]
 
 FLOAT64_MAX_DATA_WIDTH = 40
 
@@ -39,16 +39,16 @@ def ideal_sincos(
     n_bits = dp.angle_width
     if use_mpmath or dp.data_width > FLOAT64_MAX_DATA_WIDTH:
         codes = [int(a) % (1 << n_bits) for a in raw.ravel()]
-        cos = np.empty(len(codes))
-        sin = np.empty(len(codes))
+        cos = np.empty(len(codes), dtype=object)
+        sin = np.empty(len(codes), dtype=object)
         with mpmath.workdps(dps):
             scale = 2 * mpmath.pi / mpmath.mpf(2) ** n_bits
             amp = mpmath.mpf(dp.amplitude)
             for k, code in enumerate(codes):
                 signed = code - (1 << n_bits) if code >> (n_bits - 1) else code
                 t = signed * scale
-                cos[k] = float(amp * mpmath.cos(t))
-                sin[k] = float(amp * mpmath.sin(t))
+                cos[k] = amp * mpmath.cos(t)
+                sin[k] = amp * mpmath.sin(t)
         return cos.reshape(raw.shape), sin.reshape(raw.shape)
     if raw.dtype == object:
         raw = np.array([int(a) % (1 << n_bits) for a in raw.ravel()], dtype=np.uint64).reshape(raw.shape)
@@ -84,14 +84,27 @@ class ErrorStats:
         }
 
 
+def errors_lsb(outputs: npt.ArrayLike, ideal: npt.ArrayLike) -> npt.NDArray[np.float64]:
+    """outputs - ideal as float64, exact to float64 precision even for wide outputs.
+
+    With mpmath ideals the difference is formed in mpmath before it is rounded to float64;
+    forming it in float64 would lose the low bits of outputs wider than 53 bits.
+    """
+    ideal_arr = np.asarray(ideal)
+    out_arr = np.asarray(outputs)
+    if ideal_arr.dtype == object:
+        with mpmath.workdps(40):
+            diff = [float(mpmath.mpf(int(o)) - i) for o, i in zip(out_arr.ravel(), ideal_arr.ravel(), strict=True)]
+        return np.array(diff, dtype=np.float64).reshape(out_arr.shape)
+    return out_arr.astype(np.float64) - ideal_arr.astype(np.float64)
+
+
 def error_stats(
     outputs: list[npt.ArrayLike] | tuple[npt.ArrayLike, ...],
     ideals: list[npt.ArrayLike] | tuple[npt.ArrayLike, ...],
 ) -> ErrorStats:
     """Pool the errors of several output channels (e.g. cos and sin) against their ideals."""
-    errs = np.concatenate(
-        [np.asarray(o, dtype=np.float64).ravel() - np.asarray(i, dtype=np.float64).ravel() for o, i in zip(outputs, ideals, strict=True)]
-    )
+    errs = np.concatenate([errors_lsb(o, i).ravel() for o, i in zip(outputs, ideals, strict=True)])
     samples = int(np.asarray(outputs[0]).size)
     if errs.size == 0:
         return ErrorStats(0, 0.0, 0.0, 0.0)

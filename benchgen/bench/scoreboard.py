@@ -16,6 +16,8 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
+from benchgen.reference import errors_lsb
+
 __all__ = ["CheckResult", "compare", "record", "write_csv_rows"]
 
 RESULTS_ENV = "BENCHGEN_RESULTS"
@@ -115,7 +117,7 @@ def compare(
             f"{count} of {n} samples differ from the bit-true model (seed {seed}); first ones:\n{lines}"
         )
     for port, ref in ideal.items():
-        err = np.asarray(got[port][:n], dtype=np.float64) - ref[:n]
+        err = errors_lsb(got[port][:n], ref[:n])
         if err.size:
             worst = float(np.max(np.abs(err)))
             result.max_error_lsb = max(result.max_error_lsb, worst)

@@ -1,0 +1,47 @@
+"""Shared test helpers: simulator availability (skip locally, fail in CI) and config files."""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+from typing import Any
+
+import pytest
+
+from benchgen.simulators import SimulatorMissing, find_simulator
+
+IN_CI = os.environ.get("CI", "").lower() in ("1", "true", "yes")
+
+
+def require_simulator(name: str) -> None:
+    """Skip the calling test when ``name`` is missing, with the reason; fail instead under CI=true."""
+    try:
+        find_simulator(name)
+    except SimulatorMissing as exc:
+        if IN_CI:
+            pytest.fail(f"CI needs {name}: {exc}")
+        pytest.skip(f"{name} not available: {exc}")
+
+
+def write_config(path: Path, values: dict[str, Any]) -> Path:
+    """Write a TOML config from simple values (strings, numbers, booleans)."""
+    lines = []
+    for key, value in values.items():
+        if isinstance(value, str):
+            lines.append(f'{key} = "{value}"')
+        elif isinstance(value, bool):
+            lines.append(f"{key} = {'true' if value else 'false'}")
+        else:
+            lines.append(f"{key} = {value}")
+    path.write_text("\n".join(lines) + "\n")
+    return path
+
+
+@pytest.fixture
+def config_file(tmp_path: Path):  # type: ignore[no-untyped-def]
+    """Factory: config_file(**values) writes a config file and returns its path."""
+
+    def make(filename: str = "core.toml", /, **values: Any) -> Path:
+        return write_config(tmp_path / filename, values)
+
+    return make
