@@ -1,0 +1,570 @@
+"""Reports of a sweep (or a single run, a sweep of one point): table, JSON, CSV, Markdown, HTML, JUnit.
+
+Everything is rebuilt from a sweep folder (``sweep.json`` and ``results/``), so a report can be
+written again, or for merged shards, without running anything. The tables, CSV, Markdown and
+plots hold only results, never wall times, so the same sweep run anywhere (a local pool, a Dask
+cluster, shards merged) gives the same files; the wall times live in ``report.json``'s
+``timing`` section and in the terminal table.
+"""
+
+from __future__ import annotations
+
+import base64
+import csv
+import html
+import io
+import json
+import xml.etree.ElementTree as ET
+from collections.abc import Iterable
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from benchgen.errors import BenchgenError
+
+__all__ = [
+    "ESTIMATE_NOTE",
+    "ReportData",
+    "ReportError",
+    "collect",
+    "pareto_front",
+    "to_csv",
+    "to_html",
+    "to_junit",
+    "to_markdown",
+    "to_table",
+    "write_reports",
+]
+
+ESTIMATE_NOTE = (
+    "Resource and Fmax figures are estimates from the open toolchains Yosys and nextpnr (via the "
+    "yowasp wheels) for an iCE40 HX8K and an ECP5-25F. They compare design points with each other; "
+    "they are not what a vendor's synthesis and timing flow will report."
+)
+COLUMNS = (
+    "point", "status", "simulator", "function", "architecture", "pipeline_depth", "iterations_per_cycle",
+    "angle_width", "data_width", "iterations", "guard_bits", "rounding", "samples", "mismatches",
+    "max_error_lsb", "rms_error_lsb", "budget_lsb", "model_max_error_lsb", "latency_cycles",
+    "expected_latency_cycles", "cycles_per_sample",
+)
+RESOURCE_KEYS = ("luts", "ffs", "carry", "bram", "dsp", "logic_cells", "fmax_mhz")
+
+
+class ReportError(BenchgenError):
+    """A folder that holds no sweep results."""
+
+    exit_status = 2
+
+
+@dataclass
+class ReportData:
+    """Everything a report shows.
+
+    Attributes:
+        name: Sweep name.
+        digest: Sweep content hash.
+        targets: Estimate targets.
+        rows: One per point, in sweep order (deterministic values only).
+        timing: Per task wall times and cache hits (not in the deterministic outputs).
+        axes: Fields the sweep varies.
+        missing: Task ids with no result.
+        shard: ``(i, N)`` or ``None``.
+    """
+
+    name: str
+    digest: str
+    targets: list[str]
+    rows: list[dict[str, Any]]
+    timing: dict[str, Any]
+    axes: list[str]
+    missing: list[str] = field(default_factory=list)
+    shard: list[int] | None = None
+
+    @property
+    def passed(self) -> int:
+        """Points whose verification passed."""
+        return sum(r["status"] == "passed" for r in self.rows)
+
+
+def _read(path: Path) -> Any:
+    try:
+        return json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None
+
+
+def collect(out_dir: str | Path) -> ReportData:
+    """Gather a sweep folder's results into rows.
+
+    Raises:
+        ReportError: if the folder holds no sweep.
+    """
+    out = Path(out_dir)
+    sweep = _read(out / "sweep.json")
+    if sweep is None:
+        raise ReportError(f"'{out}' holds no sweep.json: give a folder written by 'benchgen sweep -o'")
+    spec = sweep["spec"]
+    targets = list(spec["synth"]["targets"])
+    task_ids = {t["task_id"] for t in sweep["tasks"]}
+    results = {}
+    for kind in ("sim", "synth"):
+        for tid in task_ids:
+            data = _read(out / "results" / kind / f"{tid}.json")
+            if data is not None and data.get("kind") == kind:
+                results[tid] = data
+    rows = []
+    timing: dict[str, Any] = {}
+    for p in sweep["points"]:
+        if p["point_id"] not in task_ids:
+            continue
+        res = results.get(p["point_id"])
+        rows.append(_row(p, res, targets, results))
+        if res:
+            timing[p["point_id"]] = {
+                "seconds": res.get("seconds"),
+                "cached": res.get("cached", False),
+                "build_seconds": res.get("sim", {}).get("build_seconds"),
+                "sim_seconds": res.get("sim", {}).get("sim_seconds"),
+            }
+    for tid in sorted(task_ids):
+        if tid in results and results[tid]["kind"] == "synth":
+            timing[tid] = {"seconds": results[tid].get("seconds"), "cached": results[tid].get("cached", False)}
+    _mark_pareto(rows, targets)
+    return ReportData(
+        name=spec["name"],
+        digest=sweep["digest"],
+        targets=targets,
+        rows=rows,
+        timing=timing,
+        axes=list(spec["matrix"]),
+        missing=sorted(t for t in task_ids if t not in results),
+        shard=sweep.get("shard"),
+    )
+
+
+def _row(point: dict[str, Any], res: dict[str, Any] | None, targets: list[str],
+         results: dict[str, dict[str, Any]]) -> dict[str, Any]:
+    core = point["core"]
+    row: dict[str, Any] = {c: None for c in COLUMNS}
+    row.update(point=point["label"], point_id=point["point_id"], core_id=point["core_id"],
+               simulator=point["simulator"], axes=point["axes"], status="not run", problems=[],
+               first_mismatches=[])
+    design = (res or {}).get("design")
+    if design is None:
+        for t in targets:
+            design = results.get(f"{point['core_id']}__{t}", {}).get("design") or design
+    cfg = design["config"] if design else core
+    derived = design["derived"] if design else {}
+    row.update(
+        function=cfg.get("function"),
+        architecture=derived.get("architecture", cfg.get("architecture", "pipelined")),
+        pipeline_depth=derived.get("pipeline_depth", cfg.get("pipeline_depth")),
+        iterations_per_cycle=derived.get("iterations_per_cycle", cfg.get("iterations_per_cycle")),
+        angle_width=cfg.get("angle_width"),
+        data_width=cfg.get("data_width"),
+        iterations=derived.get("iterations", cfg.get("iterations")),
+        guard_bits=derived.get("guard_bits", cfg.get("guard_bits")),
+        rounding=cfg.get("rounding", "half_even"),
+        expected_latency_cycles=derived.get("latency_cycles"),
+        budget_lsb=design["error_budget"]["max_error_lsb"] if design else cfg.get("max_error_lsb"),
+        model_max_error_lsb=design["error_budget"]["model_max_error_lsb"] if design else None,
+    )
+    if res:
+        row["status"] = res["status"]
+        if res["status"] == "error":
+            row["problems"] = [res.get("error", "could not run")]
+        sim = res.get("sim")
+        if sim:
+            row.update(
+                samples=sim["samples"], mismatches=sim["mismatches"], max_error_lsb=sim["max_error_lsb"],
+                rms_error_lsb=sim["rms_error_lsb"], latency_cycles=sim["latency_cycles"],
+                cycles_per_sample=sim["cycles_per_sample"], simulator_version=sim["simulator_version"],
+            )
+            row["problems"] = list(sim.get("problems", []))
+            row["first_mismatches"] = res.get("first_mismatches", [])
+    row["estimates"] = {}
+    for t in targets:
+        s = results.get(f"{point['core_id']}__{t}")
+        if s and s.get("status") == "ok":
+            e = s["estimate"]
+            row["estimates"][t] = {k: e.get(k) for k in RESOURCE_KEYS}
+            for k in RESOURCE_KEYS:
+                row[f"{t}_{k}"] = e.get(k)
+        else:
+            for k in RESOURCE_KEYS:
+                row[f"{t}_{k}"] = None
+            row["estimates"][t] = {"error": (s or {}).get("error", "not run")}
+    _derive(row, targets)
+    return row
+
+
+def _derive(row: dict[str, Any], targets: list[str]) -> None:
+    """Latency in ns and throughput in samples per second, at the first target's estimated Fmax."""
+    row["latency_ns"] = row["throughput_msps"] = None
+    for t in targets:
+        fmax = row.get(f"{t}_fmax_mhz")
+        if fmax:
+            lat = row["latency_cycles"] or row["expected_latency_cycles"]
+            cps = row["cycles_per_sample"] or 1
+            row["latency_ns"] = round(lat * 1000.0 / fmax, 2) if lat else None
+            row["throughput_msps"] = round(fmax / cps, 2)
+            row["fmax_target"] = t
+            break
+
+
+def _area(row: dict[str, Any], targets: list[str]) -> float | None:
+    if not targets:
+        return None
+    t = targets[0]
+    if row.get(f"{t}_logic_cells"):
+        return float(row[f"{t}_logic_cells"])
+    luts, ffs = row.get(f"{t}_luts"), row.get(f"{t}_ffs")
+    if luts is None:
+        return None
+    # A logic cell of either family holds one LUT and one FF: the larger count bounds the cells.
+    return float(max(luts, ffs or 0))
+
+
+def pareto_front(items: list[tuple[float, ...]]) -> list[bool]:
+    """For each item (all objectives to minimise), whether no other item dominates it."""
+    flags = []
+    for a in items:
+        dominated = any(
+            all(b_i <= a_i for a_i, b_i in zip(a, b, strict=True)) and any(b_i < a_i for a_i, b_i in zip(a, b, strict=True))
+            for b in items
+        )
+        flags.append(not dominated)
+    return flags
+
+
+def _mark_pareto(rows: list[dict[str, Any]], targets: list[str]) -> None:
+    """Mark each core on the front of area x latency x worst error (over its simulators)."""
+    cores: dict[str, list[dict[str, Any]]] = {}
+    for r in rows:
+        r["pareto"] = False
+        r["area"] = _area(r, targets)
+        if r["status"] == "passed":
+            cores.setdefault(r["core_id"], []).append(r)
+    keys, objs = [], []
+    for core_id, rs in cores.items():
+        r0 = rs[0]
+        latency = r0["latency_ns"] if r0["latency_ns"] is not None else r0["latency_cycles"]
+        err = max(r["max_error_lsb"] for r in rs)
+        obj = [float(latency or 0), float(err)]
+        if r0["area"] is not None:
+            obj.insert(0, r0["area"])
+        keys.append(core_id)
+        objs.append(tuple(obj))
+    if len({len(o) for o in objs}) > 1:
+        return  # some cores lack an area: a mixed front would mislead
+    for core_id, flag in zip(keys, pareto_front(objs), strict=True):
+        for r in cores[core_id]:
+            r["pareto"] = flag
+
+
+# ----------------------------------------------------------------------------- text formats
+
+
+def _fmt(v: Any, digits: int = 3) -> str:
+    if v is None:
+        return "-"
+    if isinstance(v, float):
+        return f"{v:.{digits}f}"
+    return str(v)
+
+
+def _summary_columns(data: ReportData) -> list[tuple[str, str]]:
+    cols = [("point", "point"), ("status", "status"), ("max_error_lsb", "worst err LSB"),
+            ("rms_error_lsb", "RMS err LSB"), ("latency_cycles", "latency clk"), ("cycles_per_sample", "clk/sample")]
+    for t in data.targets:
+        cols += [(f"{t}_luts", f"{t} LUT"), (f"{t}_ffs", f"{t} FF"), (f"{t}_carry", f"{t} carry"),
+                 (f"{t}_bram", f"{t} BRAM"), (f"{t}_dsp", f"{t} DSP"), (f"{t}_fmax_mhz", f"{t} Fmax MHz")]
+    cols += [("pareto", "Pareto")]
+    return cols
+
+
+def _cell(row: dict[str, Any], key: str) -> str:
+    v = row.get(key)
+    if key == "pareto":
+        return "yes" if v else ""
+    if key == "cycles_per_sample" and isinstance(v, float):
+        return f"{v:g}"
+    if key.endswith("fmax_mhz"):
+        return _fmt(v, 1)
+    return _fmt(v)
+
+
+def to_table(data: ReportData, *, wall_seconds: float | None = None, ran: int | None = None) -> str:
+    """A terminal table: one line per point, then the counts and failures."""
+    cols = _summary_columns(data)
+    cells = [[h for _, h in cols]] + [[_cell(r, k) for k, _ in cols] for r in data.rows]
+    widths = [max(len(c[i]) for c in cells) for i in range(len(cols))]
+    lines = ["  ".join(c.ljust(w) for c, w in zip(line, widths, strict=True)).rstrip() for line in cells]
+    lines.insert(1, "  ".join("-" * w for w in widths))
+    lines.append("")
+    lines.append(_counts(data))
+    if wall_seconds is not None:
+        cached = sum(1 for t in data.timing.values() if t.get("cached"))
+        lines.append(f"wall time {wall_seconds:.1f} s; tasks run now: {ran}, of which from cache: {cached}")
+    for r in data.rows:
+        if r["status"] != "passed":
+            lines.append(f"FAILED {r['point']}: " + "; ".join(r["problems"][:3] or [r["status"]]))
+    return "\n".join(lines)
+
+
+def _counts(data: ReportData) -> str:
+    failed = sum(r["status"] in ("failed", "error") for r in data.rows)
+    notrun = sum(r["status"] == "not run" for r in data.rows)
+    text = f"{data.passed} of {len(data.rows)} points passed, {failed} failed"
+    if notrun:
+        text += f", {notrun} not run"
+    if data.missing:
+        text += f"; {len(data.missing)} task(s) without a result"
+    return text
+
+
+def _csv_columns(data: ReportData) -> list[str]:
+    cols = list(COLUMNS)
+    for t in data.targets:
+        cols += [f"{t}_{k}" for k in RESOURCE_KEYS]
+    return cols + ["latency_ns", "throughput_msps", "area", "pareto", "problems"]
+
+
+def to_csv(data: ReportData) -> str:
+    """One row per point, every column."""
+    buf = io.StringIO()
+    cols = _csv_columns(data)
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(cols)
+    for r in data.rows:
+        w.writerow(["; ".join(r[c]) if c == "problems" else ("" if r.get(c) is None else r.get(c)) for c in cols])
+    return buf.getvalue()
+
+
+def to_json(data: ReportData, *, wall_seconds: float | None = None, ran: int | None = None,
+            spectra: list[dict[str, Any]] | None = None) -> str:
+    """The rows, the counts, the sine quality and (separately) the wall times."""
+    doc = {
+        "sweep": data.name,
+        "digest": data.digest,
+        "shard": data.shard,
+        "targets": data.targets,
+        "estimate_note": ESTIMATE_NOTE if data.targets else None,
+        "points": len(data.rows),
+        "passed": data.passed,
+        "missing_tasks": data.missing,
+        "rows": data.rows,
+        "sine_quality": [{k: v for k, v in s.items() if not k.startswith("_")} for s in spectra or []],
+        "timing": {"wall_seconds": wall_seconds, "tasks_run": ran, "tasks": data.timing},
+    }
+    return json.dumps(doc, indent=1, sort_keys=True) + "\n"
+
+
+def _md_table(header: list[str], rows: list[list[str]]) -> str:
+    out = ["| " + " | ".join(header) + " |", "|" + "---|" * len(header)]
+    out += ["| " + " | ".join(c.replace("|", "\\|") for c in r) + " |" for r in rows]
+    return "\n".join(out)
+
+
+def to_markdown(data: ReportData, plots: dict[str, str] | None = None,
+                spectra: list[dict[str, Any]] | None = None) -> str:
+    """A Markdown report; ``plots`` maps a plot title to a relative image path."""
+    parts = [f"# Sweep report: {data.name}", "", _counts(data) + f" (sweep digest `{data.digest}`).", ""]
+    if data.shard:
+        parts += [f"Shard {data.shard[0]} of {data.shard[1]}: merge the shards with `benchgen report merge`.", ""]
+    if data.targets:
+        parts += [f"> {ESTIMATE_NOTE}", ""]
+    cols = _summary_columns(data)
+    parts += ["## Points", "", _md_table([h for _, h in cols], [[_cell(r, k) for k, _ in cols] for r in data.rows]), ""]
+    front = [r for r in data.rows if r["pareto"]]
+    if front:
+        seen: set[str] = set()
+        parts += ["## Pareto front (area, latency, worst error)", ""]
+        for r in front:
+            if r["core_id"] in seen:
+                continue
+            seen.add(r["core_id"])
+            lat = f"{r['latency_ns']} ns" if r["latency_ns"] is not None else f"{r['latency_cycles']} clocks"
+            area = f"{r['area']:.0f} cells" if r["area"] is not None else "area not estimated"
+            parts.append(f"- {r['point'].rsplit(' ', 1)[0]}: {area}, latency {lat}, worst error {r['max_error_lsb']} LSB")
+        parts.append("")
+    if spectra:
+        parts += ["## Sine quality (coherent tone, bit-true model)", "",
+                  "SNR and SFDR per IEEE Std 1241 (coherent sampling, rectangular window); ideal SNR "
+                  "6.02 N + 1.76 dB (Kester, MT-001).", ""]
+        parts.append(_md_table(
+            ["core", "N (bits)", "SNR dB", "ideal SNR dB", "SFDR dBc"],
+            [[s["label"], str(s["bits"]), f"{s['snr_db']:.2f}", f"{s['ideal_snr_db']:.2f}", f"{s['sfdr_db']:.2f}"]
+             for s in spectra],
+        ))
+        parts.append("")
+    if plots:
+        parts += ["## Plots", ""]
+        for title, path in plots.items():
+            parts += [f"### {title}", "", f"![{title}]({path})", ""]
+    bad = [r for r in data.rows if r["status"] != "passed"]
+    if bad:
+        parts += ["## Failures", ""]
+        for r in bad:
+            parts.append(f"### {r['point']} ({r['status']})")
+            parts.append("")
+            parts += [f"- {p}" for p in r["problems"]] or ["- no result"]
+            if r["first_mismatches"]:
+                keys = list(r["first_mismatches"][0])
+                parts += ["", "First mismatches:", "",
+                          _md_table(keys, [[str(m.get(k)) for k in keys] for m in r["first_mismatches"]])]
+            parts.append("")
+    return "\n".join(parts).rstrip() + "\n"
+
+
+def to_junit(data: ReportData) -> str:
+    """JUnit XML, one test case per point; a point fails on a mismatch or a missing estimate."""
+    suite = ET.Element("testsuite", name=f"benchgen.sweep.{data.name}")
+    failures = errors = 0
+    for r in data.rows:
+        case = ET.SubElement(suite, "testcase", classname=f"benchgen.sweep.{data.name}", name=r["point"])
+        if r["status"] == "failed":
+            failures += 1
+            msg = "; ".join(r["problems"][:3]) or "verification failed"
+            text = "\n".join(r["problems"]) + "\n" + "\n".join(json.dumps(m) for m in r["first_mismatches"])
+            ET.SubElement(case, "failure", message=msg).text = text
+        elif r["status"] in ("error", "not run"):
+            errors += 1
+            ET.SubElement(case, "error", message="; ".join(r["problems"][:1]) or r["status"]).text = "\n".join(r["problems"])
+        else:
+            bad = {t: e["error"] for t, e in r["estimates"].items() if "error" in e}
+            if bad:
+                errors += 1
+                ET.SubElement(case, "error", message="estimate not made: " + "; ".join(f"{t}: {m}" for t, m in bad.items()))
+        out = [f"worst error {r['max_error_lsb']} LSB, RMS {r['rms_error_lsb']} LSB, latency {r['latency_cycles']}"]
+        out += [f"{t}: {json.dumps(e, sort_keys=True)}" for t, e in r["estimates"].items()]
+        ET.SubElement(case, "system-out").text = "\n".join(out)
+    suite.set("tests", str(len(data.rows)))
+    suite.set("failures", str(failures))
+    suite.set("errors", str(errors))
+    ET.indent(suite)
+    return '<?xml version="1.0" encoding="utf-8"?>\n' + ET.tostring(suite, encoding="unicode") + "\n"
+
+
+# ----------------------------------------------------------------------------- HTML
+
+_CSS = """
+body{font-family:system-ui,-apple-system,'Segoe UI',sans-serif;margin:2em auto;max-width:1200px;color:#222;padding:0 1em}
+h1{font-size:1.6em}h2{margin-top:1.6em;border-bottom:1px solid #ccc}
+table{border-collapse:collapse;font-size:.85em;margin:.5em 0}
+th,td{border:1px solid #ccc;padding:.25em .5em;text-align:right}th{background:#f0f0f0}
+td:first-child,th:first-child{text-align:left}
+tr.failed td,tr.error td{background:#fde2e2}tr.pareto td{font-weight:600}
+.note{background:#fff8e0;border-left:4px solid #e0b000;padding:.5em 1em}
+img{max-width:100%;height:auto;display:block;margin:.5em 0 1.5em}
+code{background:#f4f4f4;padding:0 .2em}
+"""
+
+
+def _html_table(header: list[str], rows: list[list[str]], classes: list[str] | None = None) -> str:
+    head = "".join(f"<th>{html.escape(h)}</th>" for h in header)
+    body = []
+    for k, r in enumerate(rows):
+        cls = f' class="{classes[k]}"' if classes and classes[k] else ""
+        body.append(f"<tr{cls}>" + "".join(f"<td>{html.escape(c)}</td>" for c in r) + "</tr>")
+    return f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
+
+
+def to_html(data: ReportData, plots: dict[str, bytes], spectra: list[dict[str, Any]] | None = None) -> str:
+    """One self-contained HTML file: tables, and every plot embedded as a PNG data URI."""
+    cols = _summary_columns(data)
+    classes = [" ".join(c for c in (r["status"], "pareto" if r["pareto"] else "") if c) for r in data.rows]
+    parts = [
+        "<!DOCTYPE html>", '<html lang="en"><head><meta charset="utf-8">',
+        f"<title>Sweep report: {html.escape(data.name)}</title><style>{_CSS}</style></head><body>",
+        f"<h1>Sweep report: {html.escape(data.name)}</h1>",
+        f"<p>{html.escape(_counts(data))} (sweep digest <code>{data.digest}</code>). "
+        "Every point's outputs were compared bit for bit with the bit-true model; errors are against the ideal.</p>",
+    ]
+    if data.targets:
+        parts.append(f'<p class="note">{html.escape(ESTIMATE_NOTE)}</p>')
+    parts += ["<h2>Points</h2>", "<p>Bold rows are on the Pareto front of area, latency and worst error.</p>",
+              _html_table([h for _, h in cols], [[_cell(r, k) for k, _ in cols] for r in data.rows], classes)]
+    if spectra:
+        parts += ["<h2>Sine quality</h2>",
+                  "<p>Coherent tone through the bit-true model (verified bit for bit against the RTL by the "
+                  "simulations above). SNR and SFDR per IEEE Std 1241; ideal SNR 6.02&nbsp;N&nbsp;+&nbsp;1.76&nbsp;dB "
+                  "(Kester, MT-001).</p>",
+                  _html_table(["core", "N (bits)", "SNR dB", "ideal SNR dB", "SFDR dBc"],
+                              [[s["label"], str(s["bits"]), f"{s['snr_db']:.2f}", f"{s['ideal_snr_db']:.2f}",
+                                f"{s['sfdr_db']:.2f}"] for s in spectra])]
+    if plots:
+        parts.append("<h2>Plots</h2>")
+        for title, png in plots.items():
+            uri = "data:image/png;base64," + base64.b64encode(png).decode("ascii")
+            parts += [f"<h3>{html.escape(title)}</h3>", f'<img alt="{html.escape(title)}" src="{uri}">']
+    bad = [r for r in data.rows if r["status"] != "passed"]
+    if bad:
+        parts.append("<h2>Failures</h2>")
+        for r in bad:
+            parts.append(f"<h3>{html.escape(r['point'])} ({html.escape(r['status'])})</h3><ul>")
+            parts += [f"<li>{html.escape(p)}</li>" for p in r["problems"]]
+            parts.append("</ul>")
+            if r["first_mismatches"]:
+                keys = list(r["first_mismatches"][0])
+                parts += ["<p>First mismatches:</p>",
+                          _html_table(keys, [[str(m.get(k)) for k in keys] for m in r["first_mismatches"]])]
+    parts.append("</body></html>")
+    return "\n".join(parts) + "\n"
+
+
+# ----------------------------------------------------------------------------- writing
+
+
+def write_reports(
+    out_dir: str | Path,
+    *,
+    formats: Iterable[str] = ("table", "json", "csv", "md", "html", "junit"),
+    wall_seconds: float | None = None,
+    ran: int | None = None,
+    stream: Any = None,
+) -> list[Path]:
+    """Write the chosen report formats into ``out_dir`` (``table`` prints to ``stream``)."""
+    out = Path(out_dir)
+    data = collect(out)
+    formats = set(formats)
+    written: list[Path] = []
+
+    def put(name: str, text: str | bytes) -> None:
+        path = out / name
+        path.parent.mkdir(parents=True, exist_ok=True)
+        if isinstance(text, bytes):
+            path.write_bytes(text)
+        else:
+            path.write_text(text, encoding="utf-8", newline="\n")
+        written.append(path)
+
+    spectra: list[dict[str, Any]] = []
+    if formats & {"json", "md", "html"}:
+        from benchgen.report_plots import sine_quality
+
+        spectra = sine_quality(data)
+    if "json" in formats:
+        put("report.json", to_json(data, wall_seconds=wall_seconds, ran=ran, spectra=spectra))
+    if "csv" in formats:
+        put("report.csv", to_csv(data))
+    if "junit" in formats:
+        put("junit.xml", to_junit(data))
+    if "md" in formats or "html" in formats:
+        from benchgen.report_plots import make_plots
+
+        plots = make_plots(data, spectra)
+        names = {title: f"plots/{_file_name(title)}.png" for title in plots}
+        if "md" in formats:
+            for title, png in plots.items():
+                put(names[title], png)
+            put("report.md", to_markdown(data, names, spectra))
+        if "html" in formats:
+            put("report.html", to_html(data, plots, spectra))
+    if "table" in formats and stream is not None:
+        stream.write(to_table(data, wall_seconds=wall_seconds, ran=ran) + "\n")
+    return written
+
+
+def _file_name(title: str) -> str:
+    return "".join(c if c.isalnum() else "_" for c in title.lower()).strip("_")[:60]

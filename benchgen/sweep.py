@@ -1,0 +1,643 @@
+"""Run a sweep: every point simulated (and estimated) in parallel, cached, resumable, shardable.
+
+Work is split into tasks: one *sim* task per point (a core on a simulator) and, when estimates
+are asked for, one *synth* task per distinct core and device family. Each task generates its own
+project in its own folder, so tasks never share a build directory.
+
+Two stores make re-runs cheap, for different reasons:
+
+* **Resume** (``OUT/results/``): each finished task's result is written the moment it arrives. A
+  task whose result is there, with the same task key (its config, simulator, bench settings and a
+  fingerprint of benchgen's code), is not run again. An interrupted sweep restarted with the same
+  command picks up where it stopped. Tasks that could not run (``error``) are retried.
+* **Cache** (``--cache DIR``, default ``$BENCHGEN_CACHE_DIR`` or ``~/.cache/benchgen``): keyed by a
+  hash of the *generated sources* plus the simulator and its version, the samples and seed, and
+  the bench code (or, for estimates, the tool versions and device). A new output folder, another
+  sweep that contains the same core, or a benchgen change that leaves the Verilog alone all hit it.
+
+Engines: a local process pool (``--jobs``, default the CPU count; ``--jobs 1`` runs in this
+process), or a Dask ``distributed`` cluster (``--cluster ADDRESS``, or ``--cluster local`` to start
+a ``LocalCluster`` with ``--jobs`` workers). Workers need benchgen and the simulators installed; the
+results travel back to this process, which alone writes ``OUT``.
+"""
+
+from __future__ import annotations
+
+import concurrent.futures as cf
+import hashlib
+import json
+import multiprocessing
+import os
+import shutil
+import time
+from collections.abc import Callable, Iterable, Iterator
+from dataclasses import asdict, dataclass, field
+from importlib import resources
+from pathlib import Path
+from typing import Any, TextIO
+
+from benchgen import __version__
+from benchgen.errors import BenchgenError
+from benchgen.sweep_config import (
+    Point,
+    SweepError,
+    SweepSpec,
+    SynthSettings,
+    expand,
+    load_sweep,
+    parse_sweep,
+)
+
+__all__ = [
+    "SweepOutcome",
+    "Task",
+    "default_cache_dir",
+    "execute_task",
+    "make_tasks",
+    "merge_shards",
+    "parse_shard",
+    "run_sweep",
+    "run_sweep_file",
+]
+
+CACHE_ENV = "BENCHGEN_CACHE_DIR"
+SWEEP_FILE = "sweep.json"
+RESULTS_DIR = "results"
+WORK_DIR = "work"
+FIRST_MISMATCHES = 8
+
+
+def default_cache_dir() -> Path:
+    """``$BENCHGEN_CACHE_DIR``, else ``$XDG_CACHE_HOME/benchgen``, else ``~/.cache/benchgen``."""
+    if os.environ.get(CACHE_ENV):
+        return Path(os.environ[CACHE_ENV])
+    base = os.environ.get("XDG_CACHE_HOME") or str(Path.home() / ".cache")
+    return Path(base) / "benchgen"
+
+
+def _sha(data: bytes | str) -> str:
+    return hashlib.sha256(data.encode() if isinstance(data, str) else data).hexdigest()
+
+
+def _files_digest(paths: Iterable[Path]) -> str:
+    h = hashlib.sha256()
+    for p in sorted(paths):
+        h.update(p.name.encode())
+        h.update(p.read_bytes())
+    return h.hexdigest()
+
+
+_FINGERPRINTS: dict[str, str] = {}
+
+
+def code_fingerprint(kind: str) -> str:
+    """Hash of the benchgen code a task's result depends on.
+
+    ``all``: every module and template except the report, sweep and CLI fronts (they do not
+    change a result), for the resume key. ``bench``: the bench, runner, model and reference, for
+    the simulation cache key (the generated sources cover the rest).
+    """
+    if kind not in _FINGERPRINTS:
+        pkg = Path(str(resources.files("benchgen")))
+        if kind == "bench":
+            files = [*pkg.glob("bench/*.py"), *(pkg / n for n in ("sim.py", "model.py", "reference.py"))]
+        else:
+            skip = ("report", "sweep", "cli", "spectrum")
+            files = [p for p in pkg.rglob("*.py") if not p.name.startswith(skip)]
+            from benchgen.rtl import template_dir
+
+            files += list(template_dir().glob("*.j2"))
+        _FINGERPRINTS[kind] = _files_digest(p for p in files if p.is_file())[:16]
+    return _FINGERPRINTS[kind]
+
+
+@dataclass(frozen=True)
+class Task:
+    """One unit of work: simulate a point, or estimate a core on one device family.
+
+    Attributes:
+        kind: ``sim`` or ``synth``.
+        task_id: File-safe unique name (point id, or core id and target).
+        core: The core config.
+        label: Readable name for progress lines and reports.
+        simulator: For ``sim`` tasks.
+        target: For ``synth`` tasks.
+        samples: Random samples (``sim``).
+        seed: Seed (``sim``).
+        synth: Estimate settings (``synth``).
+    """
+
+    kind: str
+    task_id: str
+    core: dict[str, Any]
+    label: str
+    simulator: str = ""
+    target: str = ""
+    samples: int = 0
+    seed: int = 0
+    synth: SynthSettings = field(default_factory=SynthSettings)
+
+    @property
+    def key(self) -> str:
+        """Resume key: what the task is, and the benchgen code that would run it."""
+        data = asdict(self)
+        data.pop("label")
+        data["benchgen"] = [__version__, code_fingerprint("all")]
+        return _sha(json.dumps(data, sort_keys=True))[:24]
+
+
+def make_tasks(spec: SweepSpec, points: list[Point]) -> list[Task]:
+    """Sim tasks for every point, then synth tasks for every distinct core and target."""
+    tasks = [
+        Task(kind="sim", task_id=p.point_id, core=dict(p.core), label=p.label, simulator=p.simulator,
+             samples=spec.samples, seed=spec.seed)
+        for p in points
+    ]
+    cores: dict[str, Point] = {}
+    for p in points:
+        cores.setdefault(p.core_id, p)
+    for core_id, p in cores.items():
+        core_label = " ".join(f"{k}={v}" for k, v in p.axes.items()) or core_id
+        for target in spec.synth.targets:
+            tasks.append(Task(kind="synth", task_id=f"{core_id}__{target}", core=dict(p.core),
+                              label=f"{core_label} {target}", target=target, synth=spec.synth))
+    return tasks
+
+
+def parse_shard(text: str | None) -> tuple[int, int] | None:
+    """``"i/N"`` (1 <= i <= N) to ``(i, N)``.
+
+    Raises:
+        SweepError: for anything else.
+    """
+    if text is None:
+        return None
+    try:
+        i_text, n_text = text.split("/")
+        i, n = int(i_text), int(n_text)
+    except ValueError:
+        i = n = 0
+    if not 1 <= i <= n:
+        raise SweepError("", [f"--shard {text!r} is not valid: give i/N with 1 <= i <= N. Fix: e.g. --shard 2/4"])
+    return i, n
+
+
+def select_shard(tasks: list[Task], shard: tuple[int, int] | None) -> list[Task]:
+    """The tasks of shard ``i`` of ``N``: round robin within each kind, so shards balance."""
+    if shard is None:
+        return tasks
+    i, n = shard
+    out = []
+    counters: dict[str, int] = {}
+    for t in tasks:
+        k = counters.get(t.kind, 0)
+        counters[t.kind] = k + 1
+        if k % n == i - 1:
+            out.append(t)
+    return out
+
+
+# ----------------------------------------------------------------------------- task execution
+
+
+def _toml_value(value: Any) -> str:
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, str):
+        return json.dumps(value)  # a JSON string is a valid TOML basic string
+    return repr(value)
+
+
+def _write_json(path: Path, data: Any) -> None:
+    path.parent.mkdir(parents=True, exist_ok=True)
+    tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
+    tmp.write_text(json.dumps(data, indent=1, sort_keys=True) + "\n", encoding="utf-8")
+    os.replace(tmp, path)  # readers never see half a file, and an interrupt leaves none
+
+
+def _read_json(path: Path) -> Any:
+    try:
+        return json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None
+
+
+def _generate_point_project(core: dict[str, Any], folder: Path) -> Path:
+    """Write the core's config and generate its project; return the project folder."""
+    from benchgen.project import generate_project
+
+    folder.mkdir(parents=True, exist_ok=True)
+    config = folder / "config.toml"
+    config.write_text("".join(f"{k} = {_toml_value(v)}\n" for k, v in core.items()), encoding="utf-8")
+    project = folder / "project"
+    generate_project(config, project)
+    return project
+
+
+def _source_digest(project: Path, parts: Iterable[str]) -> str:
+    files: list[Path] = []
+    for part in parts:
+        p = project / part
+        files.extend(sorted(q for q in p.rglob("*") if q.is_file()) if p.is_dir() else [p])
+    h = hashlib.sha256()
+    for f in files:
+        h.update(str(f.relative_to(project)).encode())
+        h.update(f.read_bytes())
+    return h.hexdigest()
+
+
+def _design_summary(project: Path) -> dict[str, Any]:
+    manifest = json.loads((project / "manifest.json").read_text())
+    return {
+        "toplevel": manifest["toplevel"],
+        "function": manifest["function"],
+        "config": manifest["config"],
+        "derived": manifest["derived"],
+        "error_budget": manifest["error_budget"],
+        "rtl": manifest["files"]["rtl"],
+    }
+
+
+def _first_mismatches(report: dict[str, Any]) -> list[dict[str, Any]]:
+    rows: list[dict[str, Any]] = []
+    for test in report.get("per_test", []):
+        for row in test.get("first_mismatches", []):
+            rows.append({"test": test["test"], **row})
+    return rows[:FIRST_MISMATCHES]
+
+
+def _run_sim_task(task: Task, folder: Path, cache: Path | None) -> dict[str, Any]:
+    from benchgen.sim import run_sim
+    from benchgen.simulators import SimulatorMissing, find_simulator
+
+    project = _generate_point_project(task.core, folder)
+    design = _design_summary(project)
+    try:
+        version = find_simulator(task.simulator).version
+    except SimulatorMissing as exc:
+        return {"status": "error", "error": str(exc), "design": design}
+    source = _source_digest(project, ["rtl", "bench", "manifest.json"])
+    cache_key = _sha(json.dumps([source, task.simulator, version, task.samples, task.seed,
+                                 code_fingerprint("bench")]))
+    cache_file = cache / "sim" / f"{cache_key[:32]}.json" if cache else None
+    if cache_file and (hit := _read_json(cache_file)) is not None:
+        return {**hit, "design": design, "cached": True}
+    report = run_sim(project, simulator=task.simulator, samples=task.samples, seed=task.seed,
+                     build_dir=folder / "build").as_dict()
+    mismatches = _first_mismatches(report)
+    report.pop("per_test", None)
+    result = {
+        "status": "passed" if report["passed"] else "failed",
+        "source_hash": source[:16],
+        "sim": report,
+        "first_mismatches": mismatches,
+    }
+    if cache_file:
+        _write_json(cache_file, result)
+    return {**result, "design": design, "cached": False}
+
+
+def _run_synth_task(task: Task, folder: Path, cache: Path | None) -> dict[str, Any]:
+    from benchgen.synth import estimate, tool_versions
+
+    project = _generate_point_project(task.core, folder)
+    design = _design_summary(project)
+    source = _source_digest(project, design["rtl"])
+    settings = task.synth
+    tools = tool_versions(task.target, settings.place_and_route)
+    cache_key = _sha(json.dumps([source, design["toplevel"], task.target, settings.place_and_route,
+                                 settings.clock_mhz, tools]))
+    cache_file = cache / "synth" / f"{cache_key[:32]}.json" if cache else None
+    if cache_file and (hit := _read_json(cache_file)) is not None:
+        return {**hit, "design": design, "cached": True}
+    est = estimate([project / r for r in design["rtl"]], design["toplevel"], task.target, folder / "synth",
+                   place_and_route=settings.place_and_route, clock_mhz=settings.clock_mhz)
+    result = {"status": "ok", "source_hash": source[:16], "estimate": est.as_dict()}
+    if cache_file:
+        _write_json(cache_file, result)
+    return {**result, "design": design, "cached": False}
+
+
+def execute_task(task: Task, work_root: str, cache_dir: str | None) -> dict[str, Any]:
+    """Run one task in ``work_root/<task_id>`` and return its result (never raises).
+
+    A task that cannot run returns ``status = "error"`` with the reason, so one bad point never
+    stops the others.
+    """
+    t0 = time.perf_counter()
+    folder = Path(work_root) / task.task_id
+    cache = Path(cache_dir) if cache_dir else None
+    try:
+        if task.kind == "sim":
+            result = _run_sim_task(task, folder, cache)
+        else:
+            result = _run_synth_task(task, folder, cache)
+    except BenchgenError as exc:
+        result = {"status": "error", "error": str(exc)}
+    except Exception as exc:  # noqa: BLE001 - a worker must report, not die, so the sweep goes on
+        result = {"status": "error", "error": f"{type(exc).__name__}: {exc}"}
+    result.update(kind=task.kind, task_id=task.task_id, key=task.key, label=task.label,
+                  seconds=round(time.perf_counter() - t0, 3))
+    return result
+
+
+# ----------------------------------------------------------------------------- engines
+
+
+Runner = Callable[[Task, str, "str | None"], dict[str, Any]]
+
+
+def _serial(tasks: list[Task], fn: Runner, work: str, cache: str | None) -> Iterator[dict[str, Any]]:
+    for t in tasks:
+        yield fn(t, work, cache)
+
+
+def _pool(tasks: list[Task], fn: Runner, work: str, cache: str | None, jobs: int) -> Iterator[dict[str, Any]]:
+    # spawn, not fork: the parent may hold threads (progress output, Dask), and a forked child
+    # of a threaded parent can deadlock.
+    ctx = multiprocessing.get_context("spawn")
+    pool = cf.ProcessPoolExecutor(max_workers=jobs, mp_context=ctx)
+    try:
+        futures = [pool.submit(fn, t, work, cache) for t in tasks]
+        for fut in cf.as_completed(futures):
+            yield fut.result()
+    finally:
+        pool.shutdown(wait=False, cancel_futures=True)
+
+
+def _dask(tasks: list[Task], fn: Runner, work: str, cache: str | None, address: str,
+          jobs: int) -> Iterator[dict[str, Any]]:
+    try:
+        from distributed import Client, LocalCluster, as_completed
+    except ImportError:
+        raise SweepError("", ["--cluster needs Dask's 'distributed' package: pip install distributed"]) from None
+    cluster = None
+    if address == "local":
+        cluster = LocalCluster(n_workers=jobs, threads_per_worker=1, processes=True, dashboard_address=None)
+        client = Client(cluster)
+    else:
+        try:
+            client = Client(address, timeout="30s")
+        except OSError as exc:
+            raise SweepError("", [f"--cluster {address!r}: cannot reach the scheduler ({exc}). "
+                                  "Fix: give the scheduler's tcp://host:port, or --cluster local"]) from None
+    try:
+        # pure=False: two identical tasks in two sweeps must both run (the cache dedups them).
+        futures = [client.submit(fn, t, work, cache, pure=False, key=f"benchgen-{t.task_id}-{os.getpid()}")
+                   for t in tasks]
+        for fut in as_completed(futures):
+            yield fut.result()
+    finally:
+        client.close()
+        if cluster is not None:
+            cluster.close()
+
+
+# ----------------------------------------------------------------------------- progress
+
+
+class Progress:
+    """Points done, failed and left, with an estimate of the time left.
+
+    On a terminal one line is redrawn; elsewhere (CI logs) one line is printed per finished task.
+    """
+
+    def __init__(self, total: int, resumed: int, stream: TextIO | None) -> None:
+        self.total = total
+        self.done = resumed
+        self.failed = 0
+        self.resumed = resumed
+        self.stream = stream
+        self.start = time.perf_counter()
+        self.tty = bool(stream and stream.isatty())
+
+    def eta(self) -> str:
+        ran = self.done - self.resumed
+        left = self.total - self.done
+        if ran == 0 or left == 0:
+            return "--"
+        seconds = (time.perf_counter() - self.start) / ran * left
+        return f"{int(seconds // 60)}m{int(seconds % 60):02d}s"
+
+    def line(self) -> str:
+        width = 24
+        filled = int(width * self.done / max(self.total, 1))
+        bar = "#" * filled + "." * (width - filled)
+        return (f"[{bar}] {self.done}/{self.total} done, {self.failed} failed, "
+                f"{self.total - self.done} left, ETA {self.eta()}")
+
+    def update(self, result: dict[str, Any]) -> None:
+        self.done += 1
+        if result["status"] in ("failed", "error"):
+            self.failed += 1
+        if not self.stream:
+            return
+        if self.tty:
+            self.stream.write("\r" + self.line() + "\x1b[K")
+        else:
+            tag = "cached" if result.get("cached") else f"{result['seconds']:.1f} s"
+            self.stream.write(f"{self.line()}  {result['status']}: {result['label']} ({tag})\n")
+        self.stream.flush()
+
+    def close(self) -> None:
+        if self.stream and self.tty:
+            self.stream.write("\n")
+            self.stream.flush()
+
+
+# ----------------------------------------------------------------------------- the sweep
+
+
+@dataclass
+class SweepOutcome:
+    """What a sweep run did.
+
+    Attributes:
+        out_dir: Output folder.
+        tasks: Tasks of this run (after sharding).
+        results: Result of each task, by task id.
+        ran: Tasks executed in this run (the rest came from earlier runs: resumed).
+        wall_seconds: Wall time of the run.
+        report_files: Files written by the report step.
+    """
+
+    out_dir: Path
+    tasks: list[Task]
+    results: dict[str, dict[str, Any]]
+    ran: int
+    wall_seconds: float
+    report_files: list[Path] = field(default_factory=list)
+
+    @property
+    def failed(self) -> list[str]:
+        """Task ids that failed verification, could not run, or have no result."""
+        return [t.task_id for t in self.tasks
+                if self.results.get(t.task_id, {}).get("status") not in ("passed", "ok")]
+
+    @property
+    def exit_status(self) -> int:
+        """0 when every point passed and every estimate was made; 1 otherwise."""
+        return 1 if self.failed else 0
+
+
+def load_results(out_dir: Path, tasks: list[Task]) -> dict[str, dict[str, Any]]:
+    """Results already in ``out_dir`` that are still valid for these tasks (resume)."""
+    found: dict[str, dict[str, Any]] = {}
+    for t in tasks:
+        data = _read_json(out_dir / RESULTS_DIR / t.kind / f"{t.task_id}.json")
+        if data and data.get("key") == t.key and data.get("status") != "error":
+            found[t.task_id] = data
+    return found
+
+
+def write_sweep_file(out_dir: Path, spec: SweepSpec, points: list[Point], tasks: list[Task],
+                     shard: tuple[int, int] | None) -> None:
+    """Record what the folder holds, so a report (or a merge of shards) can be rebuilt from it."""
+    _write_json(out_dir / SWEEP_FILE, {
+        "benchgen_version": __version__,
+        "spec": spec.as_dict(),
+        "digest": spec.digest(),
+        "shard": list(shard) if shard else None,
+        "points": [{"point_id": p.point_id, "core_id": p.core_id, "label": p.label, "simulator": p.simulator,
+                    "axes": dict(p.axes), "core": dict(p.core)} for p in points],
+        "tasks": [{"kind": t.kind, "task_id": t.task_id, "label": t.label} for t in tasks],
+    })
+
+
+def run_sweep(
+    spec: SweepSpec,
+    out_dir: str | Path,
+    *,
+    jobs: int | None = None,
+    cluster: str | None = None,
+    shard: tuple[int, int] | None = None,
+    cache_dir: str | Path | None = None,
+    use_cache: bool = True,
+    progress: TextIO | None = None,
+    formats: Iterable[str] = ("table", "json", "csv", "md", "html", "junit"),
+    on_result: Callable[[dict[str, Any]], None] | None = None,
+    runner: Runner | None = None,
+) -> SweepOutcome:
+    """Validate, run and report a sweep.
+
+    Args:
+        spec: The sweep.
+        out_dir: Output folder (created; earlier results in it are resumed).
+        jobs: Parallel workers (default: CPU count).
+        cluster: Dask scheduler address, or ``"local"`` for a ``LocalCluster``; ``None`` for the pool.
+        shard: ``(i, N)`` to run only shard i of N.
+        cache_dir: Build/estimate cache (default :func:`default_cache_dir`).
+        use_cache: ``False`` to neither read nor write the cache.
+        progress: Stream for the progress bar (``None``: silent).
+        formats: Report outputs to write.
+        on_result: Called with each new result after it is saved.
+        runner: Replaces :func:`execute_task` (tests run without simulators this way).
+
+    Raises:
+        SweepError: if any point is invalid (nothing runs then).
+        KeyboardInterrupt: if interrupted; the results so far are saved and resume on the next run.
+    """
+    from benchgen.report import write_reports
+
+    t0 = time.perf_counter()
+    points = expand(spec)
+    tasks = select_shard(make_tasks(spec, points), shard)
+    out = Path(out_dir).resolve()
+    if out.exists() and not out.is_dir():
+        raise SweepError("", [f"output '{out}' is a file: give a folder with -o"])
+    if out.is_dir() and any(out.iterdir()) and not (out / SWEEP_FILE).is_file():
+        raise SweepError("", [f"output folder '{out}' is not empty and holds no sweep; choose a new folder with -o"])
+    out.mkdir(parents=True, exist_ok=True)
+    write_sweep_file(out, spec, points, tasks, shard)
+    results = load_results(out, tasks)
+    todo = [t for t in tasks if t.task_id not in results]
+    # Longest first, so the last task to finish is a short one and the workers stay busy.
+    cost = {"synth": 0, "sim": 1}
+    todo.sort(key=lambda t: (cost[t.kind], t.simulator != "verilator"))
+    cache = None if not use_cache else str(Path(cache_dir) if cache_dir else default_cache_dir())
+    work = str(out / WORK_DIR)
+    fn = runner or execute_task
+    n_jobs = jobs or os.cpu_count() or 1
+    bar = Progress(len(tasks), len(results), progress)
+    if cluster:
+        stream = _dask(todo, fn, work, cache, cluster, n_jobs)
+    elif n_jobs == 1 or len(todo) <= 1:
+        stream = _serial(todo, fn, work, cache)
+    else:
+        stream = _pool(todo, fn, work, cache, min(n_jobs, len(todo)))
+    ran = 0
+    try:
+        for result in stream:
+            _write_json(out / RESULTS_DIR / result["kind"] / f"{result['task_id']}.json", result)
+            results[result["task_id"]] = result
+            ran += 1
+            bar.update(result)
+            if on_result:
+                on_result(result)
+    except KeyboardInterrupt:
+        bar.close()
+        if progress:
+            progress.write(f"interrupted: {len(results)} of {len(tasks)} tasks saved in {out}; "
+                           "run the same command again to resume\n")
+        raise
+    finally:
+        close = getattr(stream, "close", None)
+        if close:
+            close()
+    bar.close()
+    outcome = SweepOutcome(out_dir=out, tasks=tasks, results=results, ran=ran,
+                           wall_seconds=time.perf_counter() - t0)
+    outcome.report_files = write_reports(out, formats=formats, wall_seconds=outcome.wall_seconds, ran=ran)
+    return outcome
+
+
+def run_sweep_file(path: str | Path, out_dir: str | Path, **kwargs: Any) -> SweepOutcome:
+    """:func:`run_sweep` on a sweep file."""
+    return run_sweep(load_sweep(path), out_dir, **kwargs)
+
+
+def merge_shards(shard_dirs: list[Path], out_dir: Path) -> list[Path]:
+    """Join the results of a sweep's shards into one folder (its report is then written there).
+
+    Raises:
+        SweepError: if the folders are not shards of one sweep.
+    """
+    digests = set()
+    base: dict[str, Any] | None = None
+    for d in shard_dirs:
+        data = _read_json(d / SWEEP_FILE)
+        if data is None:
+            raise SweepError("", [f"'{d}' holds no {SWEEP_FILE}: give folders written by 'benchgen sweep -o'"])
+        digests.add(data["digest"])
+        base = base or data
+    if len(digests) > 1 or base is None:
+        raise SweepError("", ["the folders come from different sweeps (their sweep digests differ); "
+                              "merge only shards of one sweep file"])
+    out_dir.mkdir(parents=True, exist_ok=True)
+    for d in shard_dirs:
+        for kind in ("sim", "synth"):
+            for f in sorted((d / RESULTS_DIR / kind).glob("*.json")):
+                target = out_dir / RESULTS_DIR / kind / f.name
+                target.parent.mkdir(parents=True, exist_ok=True)
+                if f.resolve() != target.resolve():
+                    shutil.copyfile(f, target)
+    # The full task list is rebuilt from the spec, so a shard that never ran shows as missing.
+    spec = parse_sweep(_spec_to_raw(base["spec"]))
+    points = expand(spec, validate=False)
+    tasks = make_tasks(spec, points)
+    write_sweep_file(out_dir, spec, points, tasks, None)
+    return [out_dir / SWEEP_FILE]
+
+
+def _spec_to_raw(d: dict[str, Any]) -> dict[str, Any]:
+    raw: dict[str, Any] = {
+        "sweep": {"name": d["name"], "simulators": d["simulators"], "samples": d["samples"], "seed": d["seed"]},
+        "synth": d["synth"],
+        "base": d["base"],
+        "matrix": d["matrix"],
+    }
+    if d["exclude"]:
+        raw["exclude"] = d["exclude"]
+    if d["include"]:
+        raw["include"] = d["include"]
+    return raw
