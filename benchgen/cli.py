@@ -1,4 +1,4 @@
-"""Command line: ``benchgen generate``, ``benchgen sim``, ``benchgen demo``."""
+"""Command line: ``benchgen generate``, ``sim``, ``demo``, ``sweep`` and ``report``."""
 
 from __future__ import annotations
 
@@ -61,6 +61,18 @@ def _demo(args: argparse.Namespace) -> int:
     return _simulate(args, out)
 
 
+def _sweep(args: argparse.Namespace) -> int:
+    from benchgen.sweep_cli import run_sweep_command
+
+    return run_sweep_command(args)
+
+
+def _report(args: argparse.Namespace) -> int:
+    from benchgen.sweep_cli import run_report_command
+
+    return run_report_command(args)
+
+
 def _add_sim_options(p: argparse.ArgumentParser, default_sim: str | None) -> None:
     p.add_argument(
         "--simulator",
@@ -99,6 +111,11 @@ def build_parser() -> argparse.ArgumentParser:
     demo.add_argument("-o", "--output", default="benchgen_demo", help="project folder (default ./benchgen_demo)")
     _add_sim_options(demo, "verilator")
     demo.set_defaults(func=_demo)
+
+    from benchgen.sweep_cli import add_report_parser, add_sweep_parser
+
+    add_sweep_parser(sub, _sweep)
+    add_report_parser(sub, _report)
     return parser
 
 
