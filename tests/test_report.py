@@ -1,0 +1,149 @@
+"""Reports from a sweep folder: HTML works offline (every plot embedded and decodable), tables hold every point."""
+
+from __future__ import annotations
+
+import base64
+import csv
+import io
+import json
+from html.parser import HTMLParser
+from pathlib import Path
+
+import pytest
+
+from benchgen.report import collect, pareto_front, to_table
+from benchgen.sweep import run_sweep
+from benchgen.sweep_config import parse_sweep
+from tests.test_sweep import fake_runner, sweep_raw
+
+PNG_MAGIC = b"\x89PNG\r\n\x1a\n"
+
+
+class _Page(HTMLParser):
+    def __init__(self) -> None:
+        super().__init__()
+        self.images: list[str] = []
+        self.external: list[str] = []
+        self.cells: list[str] = []
+        self._in_td = False
+
+    def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
+        a = dict(attrs)
+        if tag == "img":
+            self.images.append(a.get("src") or "")
+        if tag in ("script", "link") and (a.get("src") or a.get("href")):
+            self.external.append(a.get("src") or a.get("href") or "")
+        self._in_td = tag == "td"
+
+    def handle_data(self, data: str) -> None:
+        if self._in_td:
+            self.cells.append(data)
+
+    def handle_endtag(self, tag: str) -> None:
+        if tag == "td":
+            self._in_td = False
+
+
+@pytest.fixture(scope="module")
+def sweep_dir(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    out = tmp_path_factory.mktemp("report") / "out"
+    spec = parse_sweep(sweep_raw(synth={"targets": ["ice40"]}))
+    run_sweep(spec, out, jobs=1, runner=fake_runner, use_cache=False)
+    return out
+
+
+def test_html_is_one_offline_file_with_every_plot_embedded(sweep_dir: Path) -> None:
+    from matplotlib.image import imread
+
+    page = _Page()
+    page.feed((sweep_dir / "report.html").read_text())
+    assert not page.external
+    assert len(page.images) >= 5  # error, latency, resources, Pareto, spectrum
+    for src in page.images:
+        assert src.startswith("data:image/png;base64,")
+        png = base64.b64decode(src.split(",", 1)[1], validate=True)
+        assert png.startswith(PNG_MAGIC)
+        pixels = imread(io.BytesIO(png), format="png")
+        assert pixels.shape[0] > 100 and pixels.shape[1] > 100
+        assert pixels.std() > 0.01  # not a blank canvas
+
+
+def test_tables_hold_every_point(sweep_dir: Path) -> None:
+    sweep = json.loads((sweep_dir / "sweep.json").read_text())
+    labels = [p["label"] for p in sweep["points"]]
+    page = _Page()
+    page.feed((sweep_dir / "report.html").read_text())
+    for label in labels:
+        assert label in page.cells
+    rows = list(csv.DictReader(io.StringIO((sweep_dir / "report.csv").read_text())))
+    assert [r["point"] for r in rows] == labels
+    assert all(r["ice40_luts"] for r in rows)
+    md = (sweep_dir / "report.md").read_text()
+    assert all(f"| {label} |" in md for label in labels)
+    for img in (sweep_dir / "plots").glob("*.png"):
+        assert f"plots/{img.name}" in md
+    table = to_table(collect(sweep_dir))
+    assert all(label in table for label in labels)
+
+
+def test_report_states_estimates_are_open_flow_estimates(sweep_dir: Path) -> None:
+    html = (sweep_dir / "report.html").read_text()
+    assert "Yosys" in html and "nextpnr" in html and "not what a vendor" in html
+
+
+def test_sine_quality_is_beside_the_ideal(sweep_dir: Path) -> None:
+    doc = json.loads((sweep_dir / "report.json").read_text())
+    sq = doc["sine_quality"]
+    assert sq
+    for s in sq:
+        assert s["ideal_snr_db"] == pytest.approx(6.02 * s["bits"] + 1.76)  # Kester MT-001
+        # A core cannot beat ideal quantisation of its output width by more than chance allows.
+        assert s["snr_db"] < s["ideal_snr_db"] + 1.0
+        assert s["snr_db"] > s["ideal_snr_db"] - 6.0
+
+
+def test_pareto_front_marks_non_dominated_points() -> None:
+    pts = [(1.0, 5.0, 1.0), (2.0, 4.0, 1.0), (2.0, 5.0, 1.0), (3.0, 3.0, 0.5), (3.0, 3.0, 0.6)]
+    assert pareto_front(pts) == [True, True, False, True, False]
+
+
+def test_pareto_rows_agree_with_the_front(sweep_dir: Path) -> None:
+    data = collect(sweep_dir)
+    cores = {r["core_id"]: r for r in data.rows if r["status"] == "passed"}
+    flagged = {c for c, r in cores.items() if r["pareto"]}
+    assert flagged
+    for c in flagged:
+        a = cores[c]
+        for b in cores.values():
+            better = (b["area"] <= a["area"] and b["latency_ns"] <= a["latency_ns"]
+                      and b["max_error_lsb"] <= a["max_error_lsb"])
+            strictly = (b["area"], b["latency_ns"], b["max_error_lsb"]) != (a["area"], a["latency_ns"], a["max_error_lsb"])
+            assert not (better and strictly)
+
+
+def test_report_render_rebuilds_the_same_tables(sweep_dir: Path, tmp_path: Path) -> None:
+    from benchgen.cli import main
+
+    before = (sweep_dir / "report.csv").read_bytes()
+    status = main(["report", "render", str(sweep_dir), "--formats", "csv"])
+    assert status == 0
+    assert (sweep_dir / "report.csv").read_bytes() == before
+
+
+def test_merge_of_shards_equals_the_whole(tmp_path: Path) -> None:
+    from benchgen.cli import main
+
+    spec = parse_sweep(sweep_raw())
+    whole = tmp_path / "whole"
+    run_sweep(spec, whole, jobs=1, runner=fake_runner, use_cache=False, formats=("csv", "junit"))
+    for i in (1, 2):
+        run_sweep(spec, tmp_path / f"s{i}", jobs=1, runner=fake_runner, use_cache=False, shard=(i, 2),
+                  formats=("csv",))
+    part = (tmp_path / "s1" / "report.csv").read_text().splitlines()
+    assert 1 < len(part) < len((whole / "report.csv").read_text().splitlines())
+    assert main(["report", "merge", str(tmp_path / "s1"), "-o", str(tmp_path / "m1"), "--formats", "csv"]) == 1
+    status = main(["report", "merge", str(tmp_path / "s1"), str(tmp_path / "s2"), "-o", str(tmp_path / "m"),
+                   "--formats", "csv,junit"])
+    assert status == 0
+    assert (tmp_path / "m" / "report.csv").read_bytes() == (whole / "report.csv").read_bytes()
+    assert (tmp_path / "m" / "junit.xml").read_bytes() == (whole / "junit.xml").read_bytes()
