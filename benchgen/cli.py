@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import sys
 from importlib import resources
 from pathlib import Path
@@ -127,6 +128,10 @@ def main(argv: list[str] | None = None) -> int:
     except BenchgenError as exc:
         print(f"benchgen: error: {exc}", file=sys.stderr)
         return exc.exit_status
+    except BrokenPipeError:
+        # The reader of our output (e.g. `| head`) went away: stop quietly, without a verdict.
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 1
     except KeyboardInterrupt:
         print("benchgen: interrupted", file=sys.stderr)
         return 130

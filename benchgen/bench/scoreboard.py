@@ -114,7 +114,8 @@ def compare(
         result.first_mismatches.extend(rows)
         lines = "\n".join("  " + ", ".join(f"{a}={b}" for a, b in r.items()) for r in rows)
         result.problems.append(
-            f"{count} of {n} samples differ from the bit-true model (seed {seed}); first ones:\n{lines}"
+            f"{count} of {n} samples differ from the bit-true model (seed {seed}, rerun with --seed {seed}); "
+            f"first ones:\n{lines}"
         )
     for port, ref in ideal.items():
         err = errors_lsb(got[port][:n], ref[:n])

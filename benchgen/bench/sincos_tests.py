@@ -61,7 +61,8 @@ class SinCosBench:
         inputs = ("in_angle", "in_tag") if self.tag_width else ("in_angle",)
         outputs = ("out_cos", "out_sin", "out_tag") if self.tag_width else ("out_cos", "out_sin")
         self.stream = StreamBench(dut, inputs=inputs, outputs=outputs, signed=("out_cos", "out_sin"))
-        self.seed = int(cocotb.RANDOM_SEED)
+        # The run's seed as given to the runner (cocotb re-derives RANDOM_SEED per test).
+        self.seed = int(os.environ.get("COCOTB_RANDOM_SEED", cocotb.RANDOM_SEED))
         self.samples = int(os.environ.get(SAMPLES_ENV, DEFAULT_SAMPLES))
         self.angle_width = self.design.datapath.angle_width
 

@@ -1,0 +1,131 @@
+"""Simulation layer: the generated core against its model on Icarus and Verilator.
+
+Each case generates its own project in its own folder, so cases run in parallel (pytest-xdist).
+"""
+
+from __future__ import annotations
+
+import json
+import re
+from pathlib import Path
+
+import pytest
+from conftest import require_simulator, write_config
+
+from benchgen.cli import main
+from benchgen.project import generate_project
+from benchgen.sim import run_sim
+from benchgen.simulators import SimulatorMissing
+
+ISSUE_CORE = {
+    "function": "sincos",
+    "data_width": 16,
+    "angle_width": 16,
+    "iterations": "auto",
+    "guard_bits": "auto",
+    "rounding": "half_even",
+}
+ARCHITECTURES = {
+    "full_depth": {"architecture": "pipelined"},
+    "depth1": {"architecture": "pipelined", "pipeline_depth": 1},
+    "depth3": {"architecture": "pipelined", "pipeline_depth": 3},
+    "depth5": {"architecture": "pipelined", "pipeline_depth": 5},
+    "iter1": {"architecture": "iterative", "iterations_per_cycle": 1},
+    "iter4": {"architecture": "iterative", "iterations_per_cycle": 4},
+}
+SIMULATORS = ("icarus", "verilator")
+SAMPLES = 20_000
+
+
+def make_project(tmp_path: Path, name: str, values: dict[str, object]) -> Path:
+    config = write_config(tmp_path / f"{name}.toml", {"name": name, **values})
+    out = tmp_path / name
+    generate_project(config, out)
+    return out
+
+
+@pytest.mark.sim
+@pytest.mark.parametrize("simulator", SIMULATORS)
+@pytest.mark.parametrize("arch", list(ARCHITECTURES))
+def test_issue_core_on_both_simulators(arch: str, simulator: str, tmp_path: Path) -> None:
+    require_simulator(simulator)
+    project = make_project(tmp_path, f"nco_{arch}", {**ISSUE_CORE, **ARCHITECTURES[arch]})
+    manifest = json.loads((project / "manifest.json").read_text())
+    report = run_sim(project, simulator=simulator, samples=SAMPLES, seed=1234)
+    assert report.passed, report.table()
+    assert report.tests == 4 and report.failed == 0
+    assert report.mismatches == 0
+    assert report.samples >= SAMPLES + 20  # random stream plus corners and the other tests
+    assert report.max_error_lsb < 1.0  # against the ideal (float64 path, < 1e-3 LSB off mpmath)
+    assert report.latency_cycles == manifest["derived"]["latency_cycles"]
+    assert report.cycles_per_sample == manifest["derived"]["cycles_per_sample"]
+    if arch == "full_depth" or arch.startswith("depth"):
+        assert report.cycles_per_sample == 1  # one sample per clock with out_ready high
+        assert report.latency_cycles == manifest["derived"]["pipeline_depth"]
+
+
+EDGE_CASES = {
+    # tags, truncation (the carry-only last iteration), one guard bit (tie logic), no guard bits
+    "tag_truncate": {"function": "sincos", "data_width": 12, "angle_width": 12, "rounding": "truncate", "max_error_lsb": 1.5, "tag_width": 5, "pipeline_depth": 4},
+    "one_guard_bit": {"function": "sincos", "data_width": 10, "angle_width": 12, "iterations": 11, "guard_bits": 1, "max_error_lsb": 8.0, "tag_width": 2},
+    "no_guard_bits": {"function": "sincos", "data_width": 10, "angle_width": 9, "iterations": 10, "guard_bits": 0, "rounding": "half_up", "max_error_lsb": 8.0, "architecture": "iterative", "iterations_per_cycle": 3},
+    "iter_truncate_tag": {"function": "sincos", "data_width": 12, "angle_width": 14, "rounding": "truncate", "max_error_lsb": 1.5, "tag_width": 7, "architecture": "iterative", "iterations_per_cycle": 13},
+}
+
+
+@pytest.mark.sim
+@pytest.mark.parametrize("case", list(EDGE_CASES))
+def test_edge_configurations(case: str, tmp_path: Path) -> None:
+    simulator = "verilator" if case in ("tag_truncate", "no_guard_bits") else "icarus"
+    require_simulator(simulator)
+    project = make_project(tmp_path, case, EDGE_CASES[case])
+    report = run_sim(project, simulator=simulator, samples=3000, seed=99)
+    assert report.passed, report.table()
+    assert report.mismatches == 0 and report.samples >= 3000
+
+
+@pytest.mark.sim
+def test_a_wrong_core_is_caught_with_its_samples_and_seed(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    """One angle constant off by one LSB: the bench must notice, name samples and the seed."""
+    require_simulator("icarus")
+    project = make_project(tmp_path, "broken", {"function": "sincos", "data_width": 12, "angle_width": 12, "tag_width": 3})
+    rtl = project / "rtl" / "broken.v"
+    text = rtl.read_text()
+    match = re.search(r"localparam \[(\d+):0\] ATAN_3 = \d+'h([0-9a-f]+);", text)
+    assert match
+    width = int(match.group(1)) + 1
+    wrong = int(match.group(2), 16) + 64
+    rtl.write_text(text.replace(match.group(0), f"localparam [{width - 1}:0] ATAN_3 = {width}'h{wrong:x};"))
+    status = main(["sim", str(project), "--simulator", "icarus", "--samples", "2000", "--seed", "4242", "--json", str(tmp_path / "r.json")])
+    out = capsys.readouterr().out
+    assert status == 1
+    report = json.loads((tmp_path / "r.json").read_text())
+    assert report["passed"] is False and report["mismatches"] > 0
+    assert "seed 4242" in out and "expected_out_cos" in out and "got_out_cos" in out and "in_angle=" in out
+
+
+def test_missing_simulator_is_a_clear_message(tmp_path: Path, capsys: pytest.CaptureFixture[str], monkeypatch: pytest.MonkeyPatch) -> None:
+    project = make_project(tmp_path, "nosim", {"function": "sincos", "data_width": 10, "angle_width": 10})
+
+    def missing(name: str) -> None:
+        raise SimulatorMissing(name, "iverilog not found on PATH", "Install it with `sudo apt-get install iverilog`")
+
+    monkeypatch.setattr("benchgen.sim.find_simulator", missing)
+    status = main(["sim", str(project), "--simulator", "icarus"])
+    err = capsys.readouterr().err
+    assert status == 3
+    assert "apt-get install iverilog" in err and "Traceback" not in err
+
+
+@pytest.mark.sim
+def test_csv_has_one_row_per_sample(tmp_path: Path) -> None:
+    require_simulator("icarus")
+    project = make_project(tmp_path, "csvcore", {"function": "sincos", "data_width": 10, "angle_width": 10})
+    csv = tmp_path / "samples.csv"
+    report = run_sim(project, simulator="icarus", samples=500, seed=3, csv_path=csv)
+    lines = csv.read_text().splitlines()
+    assert lines[0] == "test,in_angle,out_cos,out_sin,model_cos,model_sin,ideal_cos,ideal_sin"
+    assert len(lines) - 1 == report.samples
+    for row in lines[1:50]:
+        fields = row.split(",")
+        assert fields[2] == fields[4] and fields[3] == fields[5]  # outputs equal the model

@@ -1,0 +1,72 @@
+"""Sizing to a target: the chosen size meets it and one iteration or guard bit fewer does not."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from benchgen.algorithm import make_datapath
+from benchgen.config import parse_config
+from benchgen.design import MAX_AUTO_GUARD_BITS, build_design, evaluate, sizing_angles
+
+
+def best_over_guard(spec, n: int) -> float:  # type: ignore[no-untyped-def]
+    angles, _ = sizing_angles(spec.angle_width, spec.data_width)
+    worst = math.inf
+    for g in range(MAX_AUTO_GUARD_BITS + 1):
+        if n <= spec.data_width + g + 1:
+            worst = min(worst, evaluate(make_datapath(spec, n, g), angles).max_error_lsb)
+    return worst
+
+
+@pytest.mark.parametrize("width", [12, 16])
+@pytest.mark.parametrize("rounding", ["half_even", "truncate"])
+def test_sincos_sizing_is_minimal(width: int, rounding: str) -> None:
+    target = 1.0 if rounding == "half_even" else 1.5
+    spec = parse_config(
+        {"name": "c", "function": "sincos", "data_width": width, "angle_width": width, "rounding": rounding, "max_error_lsb": target}
+    )
+    design = build_design(spec)
+    n, g = design.datapath.iterations, design.datapath.guard_bits
+    angles, exhaustive = sizing_angles(width, width)
+    assert exhaustive  # a 2^12 or 2^16 space is checked whole
+    assert evaluate(make_datapath(spec, n, g), angles).max_error_lsb <= target
+    # One guard bit fewer misses the target at this iteration count ...
+    if g > 0:
+        assert evaluate(make_datapath(spec, n, g - 1), angles).max_error_lsb > target
+    # ... and one iteration fewer misses it whatever the guard bits.
+    assert best_over_guard(spec, n - 1) > target
+
+
+def test_rule_of_thumb_from_facts_holds_on_this_model() -> None:
+    """FACTS.md [mp]: n = B + 4 iterations with ceil(log2 n) + 1 guard bits stay under 1 LSB."""
+    for width in (12, 16):
+        spec = parse_config({"name": "c", "function": "sincos", "data_width": width, "angle_width": width})
+        n = width + 4
+        g = math.ceil(math.log2(n)) + 1
+        angles, _ = sizing_angles(width, width)
+        assert evaluate(make_datapath(spec, n, g), angles).max_error_lsb < 1.0
+
+
+def test_n_equal_b_leaves_an_error_floor() -> None:
+    """FACTS.md [mp]: with n = B iterations the worst error stays well above 1 LSB."""
+    spec = parse_config({"name": "c", "function": "sincos", "data_width": 16, "angle_width": 16})
+    assert best_over_guard(spec, 14) > 1.5
+
+
+def test_explicit_sizes_are_measured_and_kept() -> None:
+    spec = parse_config(
+        {"name": "c", "function": "sincos", "data_width": 12, "angle_width": 12, "iterations": 16, "guard_bits": 5}
+    )
+    design = build_design(spec)
+    assert (design.datapath.iterations, design.datapath.guard_bits) == (16, 5)
+    assert design.auto_fields == ()
+    assert design.accuracy.max_error_lsb < 1.0
+
+
+def test_large_angle_space_is_sampled_not_exhaustive() -> None:
+    angles, exhaustive = sizing_angles(24, 16)
+    assert not exhaustive and len(angles) > 1_000_000
+    assert len(np.unique(angles)) > 900_000
