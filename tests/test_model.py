@@ -118,3 +118,28 @@ def test_auto_sized_cores_meet_the_budget_everywhere(data_width: int, angle_widt
     stats = evaluate(design.datapath, angles)
     assert stats.max_error_lsb <= 1.0
     assert stats.max_error_lsb == pytest.approx(design.accuracy.max_error_lsb)
+
+
+@settings(max_examples=40, deadline=None)
+@given(
+    data_width=st.integers(3, 30),
+    angle_width=st.integers(3, 30),
+    guard_bits=st.integers(0, 10),
+    extra_iterations=st.integers(-2, 6),
+    seed=st.integers(0, 2**32 - 1),
+)
+def test_fast_path_equals_the_wrapping_path(
+    data_width: int, angle_width: int, guard_bits: int, extra_iterations: int, seed: int
+) -> None:
+    """The int64 path leaves out the per-register wrap; it must agree with the path that wraps."""
+    from benchgen.algorithm import make_datapath
+    from benchgen.model import _rotate, _rotate_int64
+
+    spec = parse_config({"name": "c", "function": "sincos", "data_width": data_width, "angle_width": angle_width})
+    n = max(1, min(data_width + extra_iterations, data_width + guard_bits + 1))
+    dp = make_datapath(spec, n, guard_bits)
+    rng = np.random.default_rng(seed)
+    codes = np.concatenate([rng.integers(0, 1 << angle_width, size=2000), np.arange(min(1 << angle_width, 4096))]).astype(np.int64)
+    x_slow, y_slow = _rotate(dp, codes, np.int64)
+    x_fast, y_fast = _rotate_int64(dp, codes)
+    assert np.array_equal(x_slow, x_fast) and np.array_equal(y_slow, y_fast)
