@@ -390,8 +390,8 @@ def to_markdown(data: ReportData, plots: dict[str, str] | None = None,
         parts.append("")
     if spectra:
         parts += ["## Sine quality (coherent tone, bit-true model)", "",
-                  "SNR and SFDR per IEEE Std 1241 (coherent sampling, rectangular window); ideal SNR "
-                  "6.02 N + 1.76 dB (Kester, MT-001).", ""]
+                  ("SNR and SFDR per IEEE Std 1241 (coherent sampling, rectangular window); ideal SNR "
+                   "6.02 N + 1.76 dB (Kester, MT-001)."), ""]
         parts.append(_md_table(
             ["core", "N (bits)", "SNR dB", "ideal SNR dB", "SFDR dBc"],
             [[s["label"], str(s["bits"]), f"{s['snr_db']:.2f}", f"{s['ideal_snr_db']:.2f}", f"{s['sfdr_db']:.2f}"]
@@ -478,8 +478,8 @@ def to_html(data: ReportData, plots: dict[str, bytes], spectra: list[dict[str, A
         "<!DOCTYPE html>", '<html lang="en"><head><meta charset="utf-8">',
         f"<title>Sweep report: {html.escape(data.name)}</title><style>{_CSS}</style></head><body>",
         f"<h1>Sweep report: {html.escape(data.name)}</h1>",
-        f"<p>{html.escape(_counts(data))} (sweep digest <code>{data.digest}</code>). "
-        "Every point's outputs were compared bit for bit with the bit-true model; errors are against the ideal.</p>",
+        (f"<p>{html.escape(_counts(data))} (sweep digest <code>{data.digest}</code>). "
+         "Every point's outputs were compared bit for bit with the bit-true model; errors are against the ideal.</p>"),
     ]
     if data.targets:
         parts.append(f'<p class="note">{html.escape(ESTIMATE_NOTE)}</p>')
@@ -487,9 +487,9 @@ def to_html(data: ReportData, plots: dict[str, bytes], spectra: list[dict[str, A
               _html_table([h for _, h in cols], [[_cell(r, k) for k, _ in cols] for r in data.rows], classes)]
     if spectra:
         parts += ["<h2>Sine quality</h2>",
-                  "<p>Coherent tone through the bit-true model (verified bit for bit against the RTL by the "
+                  ("<p>Coherent tone through the bit-true model (verified bit for bit against the RTL by the "
                   "simulations above). SNR and SFDR per IEEE Std 1241; ideal SNR 6.02&nbsp;N&nbsp;+&nbsp;1.76&nbsp;dB "
-                  "(Kester, MT-001).</p>",
+                  "(Kester, MT-001).</p>"),
                   _html_table(["core", "N (bits)", "SNR dB", "ideal SNR dB", "SFDR dBc"],
                               [[s["label"], str(s["bits"]), f"{s['snr_db']:.2f}", f"{s['ideal_snr_db']:.2f}",
                                 f"{s['sfdr_db']:.2f}"] for s in spectra])]

@@ -212,7 +212,12 @@ def _resource_plot(data: ReportData) -> bytes | None:
     drew = False
     for i, t in enumerate(data.targets):
         for j, (key, name) in enumerate(panels):
-            ok = _line_panel(axes[i][j], rows, lambda r, k=f"{t}_{key}": r.get(k), name, from_zero=True)
+            column = f"{t}_{key}"
+
+            def value(r: dict[str, Any], k: str = column) -> Any:
+                return r.get(k)
+
+            ok = _line_panel(axes[i][j], rows, value, name, from_zero=True)
             if ok:
                 axes[i][j].set_title(f"{t}: {name} (estimate)")
                 drew = True

@@ -379,8 +379,8 @@ def _dask(tasks: list[Task], fn: Runner, work: str, cache: str | None, address: 
         try:
             client = Client(address, timeout="30s")
         except OSError as exc:
-            raise SweepError("", [f"--cluster {address!r}: cannot reach the scheduler ({exc}). "
-                                  "Fix: give the scheduler's tcp://host:port, or --cluster local"]) from None
+            raise SweepError("", [(f"--cluster {address!r}: cannot reach the scheduler ({exc}). "
+                                   "Fix: give the scheduler's tcp://host:port, or --cluster local")]) from None
     try:
         # pure=False: two identical tasks in two sweeps must both run (the cache dedups them).
         futures = [client.submit(fn, t, work, cache, pure=False, key=f"benchgen-{t.task_id}-{os.getpid()}")
@@ -611,8 +611,8 @@ def merge_shards(shard_dirs: list[Path], out_dir: Path) -> list[Path]:
         digests.add(data["digest"])
         base = base or data
     if len(digests) > 1 or base is None:
-        raise SweepError("", ["the folders come from different sweeps (their sweep digests differ); "
-                              "merge only shards of one sweep file"])
+        raise SweepError("", [("the folders come from different sweeps (their sweep digests differ); "
+                               "merge only shards of one sweep file")])
     out_dir.mkdir(parents=True, exist_ok=True)
     for d in shard_dirs:
         for kind in ("sim", "synth"):

@@ -30,8 +30,8 @@ __all__ = [
     "DEVICES",
     "Estimate",
     "SynthError",
-    "tool_versions",
     "estimate",
+    "tool_versions",
 ]
 
 TOOL_TIMEOUT_S = 1800

@@ -60,7 +60,7 @@ def main() -> int:
     first, out1 = _timed("first run (empty cache)", spec=spec, out_dir=root / "first", jobs=args.jobs,
                          cache_dir=cache, progress=sys.stderr)
     print(to_table(collect(out1.out_dir)))  # type: ignore[attr-defined]
-    rerun, out2 = _timed("re-run (nothing changed, new folder, same cache)", spec=spec, out_dir=root / "rerun",
+    rerun, _ = _timed("re-run (nothing changed, new folder, same cache)", spec=spec, out_dir=root / "rerun",
                          jobs=args.jobs, cache_dir=cache, progress=None)
     print(f"re-run / first run = {rerun:.1f} s / {first:.1f} s = {rerun / first:.3f} (target < 0.20)")
     same = all((root / "first" / f).read_bytes() == (root / "rerun" / f).read_bytes() for f in STABLE_FILES)
@@ -76,7 +76,7 @@ def main() -> int:
         print(f"report copied to {dest}", flush=True)
 
     if args.cluster_check:
-        _, out3 = _timed("Dask LocalCluster, 2 workers, its own empty cache", spec=spec, out_dir=root / "cluster",
+        _ = _timed("Dask LocalCluster, 2 workers, its own empty cache", spec=spec, out_dir=root / "cluster",
                          cluster="local", jobs=2, cache_dir=root / "cache_cluster", progress=sys.stderr)
         for f in STABLE_FILES:
             equal = (root / "first" / f).read_bytes() == (root / "cluster" / f).read_bytes()
