@@ -256,9 +256,10 @@ def _pareto_plot(data: ReportData) -> bytes | None:
     fy = [yv for yv, f in zip(y, front, strict=True) if f]
     ax.scatter(fx, fy, s=220, facecolors="none", edgecolors="red", linewidths=2, zorder=4, label="on the Pareto front")
     for r, xv, yv, f in zip(rows, x, y, front, strict=True):
-        if f:
-            label = ", ".join(f"{k}={v}" for k, v in r["axes"].items())
-            ax.annotate(label, (xv, yv), textcoords="offset points", xytext=(6, 6), fontsize=7)
+        label = ", ".join(f"{v}" for v in r["axes"].values())
+        ax.annotate(label, (xv, yv), textcoords="offset points", xytext=(6, 6), fontsize=7 if f else 6,
+                    color="black" if f else "grey", fontweight="bold" if f else "normal")
+    ax.text(0.01, 0.01, "labels: " + ", ".join(data.axes), transform=ax.transAxes, fontsize=7, color="grey")
     ax.set_ylabel(("latency (ns)" if use_ns else "latency (clocks)") if with_area else "worst error (LSB)")
     ax.set_title("Pareto front: area x latency x worst error (all minimised)" if with_area
                  else "Pareto front: latency x worst error")
@@ -327,8 +328,10 @@ def _spectrum_plot(spectra: list[dict[str, Any]]) -> bytes | None:
         ax.set_xlim(0, 0.5)
         ax.set_xlabel("frequency (fraction of the sample rate)")
         ax.set_ylabel("dBc")
-        ax.set_title(f"{s['label']}: SNR {s['snr_db']:.2f} dB (ideal 6.02N+1.76 = {s['ideal_snr_db']:.2f} dB, "
-                     f"Kester MT-001), {s['cycles']} cycles in {s['n_fft']} samples")
+        ax.set_title(f"{s['label']}: {s['cycles']} cycles in {s['n_fft']} samples")
+        ax.text(0.99, 0.95, f"SNR {s['snr_db']:.2f} dB; ideal 6.02 N + 1.76 = {s['ideal_snr_db']:.2f} dB "
+                f"(Kester MT-001)\nSFDR {s['sfdr_db']:.1f} dBc", transform=ax.transAxes, ha="right", va="top",
+                fontsize=8, bbox={"facecolor": "white", "alpha": 0.85, "edgecolor": "#ccc"})
         ax.grid(True, alpha=0.3)
         ax.legend(fontsize=8, loc="lower right")
     return _png(fig)
