@@ -29,8 +29,12 @@ def _generate(args: argparse.Namespace) -> int:
 
 
 def _simulate(args: argparse.Namespace, project: Path) -> int:
+    from benchgen.bench.bulk_plan import BULK_FROM_SAMPLES, bulk_plan
     from benchgen.sim import run_sim
 
+    if args.mode == "auto" and bulk_plan("auto", args.samples, args.exhaustive):
+        why = "--exhaustive" if args.exhaustive else f"{args.samples} samples (>= {BULK_FROM_SAMPLES})"
+        print(f"{why}: using the bulk bench (HDL streams whole blocks, Python checks whole arrays)")
     report = run_sim(
         project,
         simulator=args.simulator,
@@ -38,6 +42,8 @@ def _simulate(args: argparse.Namespace, project: Path) -> int:
         seed=args.seed,
         waves=args.waves,
         csv_path=args.csv,
+        mode=args.mode,
+        exhaustive=args.exhaustive,
     )
     print(report.table())
     print(f"  log: {report.log_file}")
@@ -87,6 +93,18 @@ def _add_sim_options(p: argparse.ArgumentParser, default_sim: str | None) -> Non
     p.add_argument("--waves", action="store_true", help="record waveforms (FST on Icarus, VCD on Verilator)")
     p.add_argument("--json", metavar="PATH", help="write the report as JSON")
     p.add_argument("--csv", metavar="PATH", help="write one row per sample: input, outputs, model, ideal")
+    p.add_argument(
+        "--mode",
+        choices=("auto", "per-clock", "bulk"),
+        default="auto",
+        help="bench: per-clock cocotb loop, or bulk (HDL streams whole blocks); auto picks bulk "
+        "from 100000 samples on",
+    )
+    p.add_argument(
+        "--exhaustive",
+        action="store_true",
+        help="check every input code once (bulk bench; input spaces up to 2^24 codes)",
+    )
 
 
 def build_parser() -> argparse.ArgumentParser:

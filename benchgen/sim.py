@@ -16,6 +16,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from benchgen.bench.bulk_plan import BULK_FROM_SAMPLES, FULL_RATE_TESTS, bulk_plan, bulk_run_args
 from benchgen.errors import BenchgenError
 from benchgen.project import design_from_manifest, load_manifest
 from benchgen.simulators import SIMULATORS, SimulatorMissing, find_simulator, simulator_env
@@ -75,12 +76,14 @@ class SimReport:
     problems: list[str] = field(default_factory=list)
     per_test: list[dict[str, Any]] = field(default_factory=list)
     log_file: str = ""
+    mode: str = "per-clock"
 
     def as_dict(self) -> dict[str, Any]:
         """JSON form (the keys of ``--json``)."""
         return {
             "simulator": self.simulator,
             "simulator_version": self.simulator_version,
+            "mode": self.mode,
             "toplevel": self.toplevel,
             "seed": self.seed,
             "passed": self.passed,
@@ -108,6 +111,7 @@ class SimReport:
         cps = "-" if self.cycles_per_sample is None else f"{self.cycles_per_sample:g}"
         rows = [
             ("core", self.toplevel),
+            ("bench mode", self.mode),
             ("simulator", f"{self.simulator} {self.simulator_version}"),
             ("seed", str(self.seed)),
             ("tests passed", f"{self.tests - self.failed} of {self.tests}"),
@@ -160,8 +164,14 @@ def run_sim(
     waves: bool = False,
     csv_path: str | Path | None = None,
     build_dir: str | Path | None = None,
+    mode: str = "auto",
+    exhaustive: bool = False,
 ) -> SimReport:
     """Build and simulate a project; return what the bench measured.
+
+    ``mode`` is ``per-clock`` (the cocotb stream bench), ``bulk`` (the HDL harness streams whole
+    blocks; see :mod:`benchgen.bench.bulk`) or ``auto`` (bulk from :data:`BULK_FROM_SAMPLES`
+    samples on, and for ``exhaustive``, which checks every input code).
 
     Raises:
         SimError: if the simulator is missing or the run could not start.
@@ -171,6 +181,7 @@ def run_sim(
         raise SimError(f"unknown simulator '{simulator}': use one of {', '.join(SIMULATORS)}")
     if samples < 1:
         raise SimError(f"--samples {samples}: give a positive number of samples")
+    bulk = bulk_plan(mode, samples, exhaustive)
     project = Path(project_dir).resolve()
     manifest = load_manifest(project)
     design = design_from_manifest(manifest)
@@ -183,7 +194,7 @@ def run_sim(
     from cocotb_tools.runner import get_runner
 
     top = manifest["toplevel"]
-    build = Path(build_dir).resolve() if build_dir else project / "build" / simulator
+    build = Path(build_dir).resolve() if build_dir else project / "build" / (simulator + ("_bulk" if bulk else ""))
     build.mkdir(parents=True, exist_ok=True)
     results_jsonl = build / "bench_results.jsonl"
     results_xml = build / "results.xml"
@@ -204,6 +215,10 @@ def run_sim(
         log_file=str(log_file),
     )
     sources = [project / rel for rel in manifest["files"]["rtl"]]
+    test_module, hdl_top, build_args, testcase = manifest["files"]["test_module"], top, [], None
+    if bulk:
+        sources, test_module, hdl_top, build_args, testcase = bulk_run_args(project, manifest, info.name, exhaustive)
+        report.mode = "bulk, exhaustive" if exhaustive else "bulk"
     bench_env = {
         "BENCHGEN_SAMPLES": str(samples),
         "BENCHGEN_RESULTS": str(results_jsonl),
@@ -216,7 +231,8 @@ def run_sim(
         try:
             runner.build(
                 sources=sources,
-                hdl_toplevel=top,
+                hdl_toplevel=hdl_top,
+                build_args=build_args,
                 build_dir=build,
                 always=True,
                 timescale=("1ns", "1ps"),
@@ -230,8 +246,9 @@ def run_sim(
         t1 = time.perf_counter()
         try:
             runner.test(
-                test_module=manifest["files"]["test_module"],
-                hdl_toplevel=top,
+                test_module=test_module,
+                testcase=testcase,
+                hdl_toplevel=hdl_top,
                 build_dir=build,
                 test_dir=build,
                 seed=seed,
@@ -276,7 +293,7 @@ def _pool(report: SimReport, per_test: list[dict[str, Any]]) -> None:
         sum_sq += t["sum_sq_error"]
         count += t["error_count"]
         report.problems.extend(f"{t['test']}: {p}" for p in t["problems"])
-        if t["test"] == "random_full_rate":
+        if t["test"] in FULL_RATE_TESTS:
             if t["latency_cycles"]:
                 lo, hi = t["latency_cycles"]
                 report.latency_cycles = lo if lo == hi else None

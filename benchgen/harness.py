@@ -1,0 +1,260 @@
+"""Generated HDL harnesses around an unchanged core, for volume verification.
+
+Two harnesses share one layout of the core's data ports:
+
+* the bulk harness (Verilog, simulation only): a top level with its own clock that streams a block
+  of stimulus words from a file into the core at full clock rate, applies seeded idle gaps and
+  output stalls, captures every output word and writes the block back to a file. cocotb only
+  starts blocks and reads a few counters, so Python never runs once per clock.
+* the raw harness (C++, Verilator only): a ``main`` that clocks the core directly, one new input per
+  clock; the ceiling of simulation speed on a machine, used by ``benchmarks/bulk_speed.py``.
+
+Python decides every name, width, byte offset and expression; the templates only format.
+
+Word layout: each data port gets its own byte-aligned slot of 1, 2, 4 or 8 bytes (every port is at
+most 64 bits wide), slots follow one another from the least significant byte, and a word is padded
+to whole 32-bit units. Stimulus files hold one word per sample, most significant byte first (the
+order ``$fread`` fills a memory element in, IEEE 1364-2005 17.2.9); result files hold one word per
+sample written with ``%u``, least significant byte first (checked on Icarus 11 and Verilator 5.048).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import jinja2
+
+from benchgen import __version__
+from benchgen.rtl import template_dir
+
+__all__ = [
+    "DEFAULT_BLOCK",
+    "BulkFiles",
+    "BulkLayout",
+    "Slot",
+    "bulk_files",
+    "bulk_layout",
+    "bulk_project_files",
+    "render_bulk_harness",
+    "render_raw_harness",
+]
+
+DEFAULT_BLOCK = 16384
+"""Samples per block: large enough that the per-block Python work is small against the clocks."""
+
+WATCHDOG_CLOCKS = 1 << 22
+"""Clocks the harness waits for a block request before it ends the simulation: Python never lets
+simulated time pass between blocks, so a long wait means the Python side is gone."""
+
+_HANDSHAKE = frozenset({"clk", "rst", "in_valid", "in_ready", "out_valid", "out_ready"})
+
+
+@dataclass(frozen=True)
+class Slot:
+    """One data port's place in a packed word.
+
+    Attributes:
+        port: Core port name (``in_angle``, ``out_cos``, ...).
+        width: Port width in bits.
+        byte_offset: First byte of the slot, counted from the word's least significant byte.
+        nbytes: Slot size in bytes (1, 2, 4 or 8).
+    """
+
+    port: str
+    width: int
+    byte_offset: int
+    nbytes: int
+
+    @property
+    def lsb(self) -> int:
+        """Bit position of the port's least significant bit in the word."""
+        return 8 * self.byte_offset
+
+
+@dataclass(frozen=True)
+class BulkLayout:
+    """Where each data port sits in the stimulus and result words of the bulk harness.
+
+    Attributes:
+        core: Core module name.
+        module: Harness module name.
+        block: Samples per block (a power of two).
+        inputs: Input data ports, function inputs first, tag last.
+        outputs: Output data ports, function outputs first, tag last.
+        in_bytes: Bytes per stimulus word (a multiple of 4).
+        out_bytes: Bytes per result word (a multiple of 4).
+    """
+
+    core: str
+    module: str
+    block: int
+    inputs: tuple[Slot, ...]
+    outputs: tuple[Slot, ...]
+    in_bytes: int
+    out_bytes: int
+
+    @property
+    def index_width(self) -> int:
+        """Bits of a sample index that can also hold ``block`` itself."""
+        return self.block.bit_length()
+
+
+def _slot_bytes(width: int) -> int:
+    for size in (1, 2, 4, 8):
+        if width <= 8 * size:
+            return size
+    raise ValueError(f"port of {width} bits is wider than the 64 bits a slot holds")
+
+
+def _slots(ports: list[tuple[str, int]]) -> tuple[tuple[Slot, ...], int]:
+    slots = []
+    offset = 0
+    for name, width in ports:
+        size = _slot_bytes(width)
+        slots.append(Slot(port=name, width=width, byte_offset=offset, nbytes=size))
+        offset += size
+    return tuple(slots), -(-offset // 4) * 4
+
+
+def _ordered(ports: dict[str, int], prefix: str) -> list[tuple[str, int]]:
+    # Data ports in name order, the tag last: a stable order that does not depend on how the
+    # manifest happens to be sorted.
+    names = sorted(p for p in ports if p.startswith(prefix) and p not in _HANDSHAKE)
+    tag = f"{prefix}tag"
+    if tag in names:
+        names.remove(tag)
+        names.append(tag)
+    return [(n, int(ports[n])) for n in names]
+
+
+def bulk_layout(manifest: dict[str, Any], *, block: int = DEFAULT_BLOCK) -> BulkLayout:
+    """The word layout of a project's bulk harness, from its manifest's port list.
+
+    Args:
+        manifest: The project manifest (``toplevel`` and ``ports`` are used).
+        block: Samples per block; a power of two from 16 to 2**20.
+
+    Raises:
+        ValueError: for a block size out of range or a port wider than 64 bits.
+    """
+    if block < 16 or block > 1 << 20 or block & (block - 1):
+        raise ValueError(f"block size {block}: use a power of two from 16 to 1048576")
+    ports: dict[str, int] = manifest["ports"]
+    inputs, in_bytes = _slots(_ordered(ports, "in_"))
+    outputs, out_bytes = _slots(_ordered(ports, "out_"))
+    core = str(manifest["toplevel"])
+    return BulkLayout(
+        core=core,
+        module=f"{core}_bulk",
+        block=block,
+        inputs=inputs,
+        outputs=outputs,
+        in_bytes=in_bytes,
+        out_bytes=out_bytes,
+    )
+
+
+def _environment() -> jinja2.Environment:
+    return jinja2.Environment(
+        loader=jinja2.FileSystemLoader(str(template_dir())),
+        undefined=jinja2.StrictUndefined,
+        keep_trailing_newline=True,
+        trim_blocks=True,
+        lstrip_blocks=True,
+        autoescape=False,
+    )
+
+
+def _result_word(layout: BulkLayout) -> str:
+    """The concatenation that packs the core's outputs into a result word, MSB first."""
+    parts: list[str] = []
+    top = 8 * layout.out_bytes
+    for slot in reversed(layout.outputs):
+        end = slot.lsb + 8 * slot.nbytes
+        if top > end:
+            parts.append(f"{top - end}'d0")
+        if 8 * slot.nbytes > slot.width:
+            parts.append(f"{8 * slot.nbytes - slot.width}'d0")
+        parts.append(f"core_{slot.port}")
+        top = slot.lsb
+    return "{" + ", ".join(parts) + "}"
+
+
+def _clean(text: str) -> str:
+    lines = [line.rstrip() for line in text.splitlines()]
+    while lines and not lines[-1]:
+        lines.pop()
+    return "\n".join(lines) + "\n"
+
+
+def render_bulk_harness(layout: BulkLayout) -> str:
+    """Verilog of the bulk harness module (simulation only; Icarus, and Verilator with --timing)."""
+    iw = layout.index_width
+    ctx = {
+        "version": __version__,
+        "L": layout,
+        "IN_W": 8 * layout.in_bytes,
+        "in_used": max(slot.lsb + slot.width for slot in layout.inputs),
+        "OUT_W": 8 * layout.out_bytes,
+        "IW": iw,
+        "AW": iw - 1,
+        "result_word": _result_word(layout),
+        "index_one": f"{iw}'d1",
+        "index_zero": f"{iw}'d0",
+        "watchdog": f"32'd{WATCHDOG_CLOCKS}",
+        "count_pad": 32 - iw,
+    }
+    return _clean(_environment().get_template("bulk_harness.v.j2").render(ctx))
+
+
+def render_raw_harness(layout: BulkLayout, *, angle_port: str = "in_angle") -> str:
+    """C++ ``main`` that clocks the core alone in Verilator, one new input per clock.
+
+    It takes the clock count as its first argument and prints clocks per second and a checksum of
+    the outputs (so the compiler cannot drop the model's work).
+    """
+    ctx = {"L": layout, "angle_port": angle_port}
+    return _clean(_environment().get_template("bulk_raw_main.cpp.j2").render(ctx))
+
+
+@dataclass(frozen=True)
+class BulkFiles:
+    """Where a project keeps its bulk harness and bulk test module.
+
+    Attributes:
+        rtl: Harness source, relative to the project folder.
+        toplevel: Harness module name (the simulation's top level in bulk mode).
+        test_module: cocotb test module name (in the project's ``bench/`` folder).
+    """
+
+    rtl: str
+    toplevel: str
+    test_module: str
+
+
+def bulk_files(manifest: dict[str, Any]) -> BulkFiles:
+    """Names of a project's bulk files, derived from its top level name."""
+    core = str(manifest["toplevel"])
+    return BulkFiles(rtl=f"rtl/{core}_bulk.v", toplevel=f"{core}_bulk", test_module=f"test_{core}_bulk")
+
+
+_BULK_TEST_MODULE = '''"""Bulk cocotb tests for {core}: the checks live in benchgen.bench.bulk (generated file)."""
+
+from pathlib import Path
+
+from benchgen.bench.bulk import bind
+
+MANIFEST = Path(__file__).resolve().parent.parent / "manifest.json"
+
+test_bulk_full_rate, test_bulk_gaps_and_stalls, test_bulk_exhaustive = bind(MANIFEST)
+'''
+
+
+def bulk_project_files(manifest: dict[str, Any]) -> dict[str, str]:
+    """The bulk harness and its thin test module, by path relative to the project folder."""
+    names = bulk_files(manifest)
+    return {
+        names.rtl: render_bulk_harness(bulk_layout(manifest)),
+        f"bench/{names.test_module}.py": _BULK_TEST_MODULE.format(core=manifest["toplevel"]),
+    }
