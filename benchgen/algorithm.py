@@ -57,40 +57,83 @@ def _atan_turns(i: int, frac_bits: int) -> int:
         return int(mpmath.nint(value))
 
 
+@cache
+def _atan_radians(i: int, frac_bits: int) -> int:
+    """atan(2**-i) in radians, rounded to nearest at ``frac_bits`` fraction bits."""
+    with mpmath.workdps(_MP_DIGITS):
+        return int(mpmath.nint(mpmath.atan(mpmath.mpf(2) ** -i) * mpmath.mpf(2) ** frac_bits))
+
+
+def _pi_at(frac_bits: int, fraction: int = 1) -> int:
+    with mpmath.workdps(_MP_DIGITS):
+        return int(mpmath.nint(mpmath.pi / fraction * mpmath.mpf(2) ** frac_bits))
+
+
+# A radian angle port is signed with 3 integer bits (sign included): [-4, 4) rad covers a turn.
+RADIAN_INT_BITS = 3
+
+
 @dataclass(frozen=True, kw_only=True)
 class Datapath:
     """Numbers of the rotation data path, shared by the model and the RTL.
 
     Attributes:
-        angle_width: Input angle bits (binary angle).
-        data_width: Output bits.
-        iterations: Number of rotation iterations; iteration i shifts by i.
-        guard_bits: Fraction bits kept below the output LSB inside the data path.
+        function: ``sincos``, ``rotate`` or ``atan2``.
+        mode: ``rotation`` (drive z to 0) or ``vectoring`` (drive y to 0).
+        angle_unit: ``turns`` (binary angle) or ``radians`` (fixed point) at the angle port.
+        gain_mode: ``compensated`` (the core removes the gain) or ``raw`` (left in).
+        angle_width: Bits of the angle port (input for sincos/rotate, output for atan2).
+        angle_frac: Fraction bits of the angle port: of a turn, or of a radian.
+        data_width: Bits of the data ports (inputs of rotate/atan2, outputs of sincos).
+        iterations: Number of iterations; iteration i shifts by i.
+        guard_bits: Fraction bits kept below the data LSB inside the data path.
         rounding: How the guard bits are dropped (``truncate``, ``half_up``, ``half_even``).
-        xy_width: Width of the internal x and y registers.
-        z_width: Width of the internal angle (fraction bits of a turn; covers [-1/2, 1/2)).
-        amplitude: Output value of cos(0), in output LSBs.
-        x_start: Start value of x, amplitude times the gain inverse, at internal scale.
-        atan_table: atan(2**-i) in turns at ``z_width`` fraction bits, for each iteration.
+        xy_width: Width of the internal x and y.
+        z_width: Width of the internal angle.
+        z_frac: Fraction bits of the internal angle, in the port's unit.
+        amplitude: Full-scale data value, 2**(data_width-1) - 1.
+        x_start: sincos: start value of x, amplitude times K_n at internal scale.
+        k_const: rotate/atan2 compensated: K_n at ``k_frac`` fraction bits (0 when raw).
+        k_frac: Fraction bits of ``k_const``.
+        pi_const: radians: pi at ``z_frac`` fraction bits (0 for turns).
+        atan_table: atan(2**-i) at ``z_frac`` fraction bits of the unit, for each iteration.
         gain: K_n as a decimal string (60 digits computed, 20 printed).
+        out_width: Bits of each data output.
+        out_max: Data outputs saturate to +-out_max.
     """
 
+    function: str = "sincos"
+    mode: str = "rotation"
+    angle_unit: str = "turns"
+    gain_mode: str = "compensated"
     angle_width: int
+    angle_frac: int
     data_width: int
     iterations: int
     guard_bits: int
     rounding: str
     xy_width: int
     z_width: int
+    z_frac: int
     amplitude: int
-    x_start: int
+    x_start: int = 0
+    k_const: int = 0
+    k_frac: int = 0
+    pi_const: int = 0
     atan_table: tuple[int, ...]
     gain: str
+    out_width: int
+    out_max: int
 
     @property
     def output_max(self) -> int:
-        """Largest output magnitude; outputs saturate symmetrically to +-output_max."""
-        return self.amplitude
+        """Largest data output magnitude; outputs saturate symmetrically to +-output_max."""
+        return self.out_max
+
+    @property
+    def radians(self) -> bool:
+        """Whether angles are in radians (else turns)."""
+        return self.angle_unit == "radians"
 
 
 def make_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Datapath:
@@ -100,34 +143,80 @@ def make_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Datapath:
         ConfigError: if the iterations do not fit the internal width.
     """
     b = spec.data_width
-    xy_width = b + guard_bits + 1
-    # One output LSB is 1/amplitude rad, about 2**-(b + 1.65) turn: b + 2 fraction bits of a
-    # turn match the output LSB, and the same guard bits keep the angle as fine as x and y.
-    z_width = max(spec.angle_width, b + 2 + guard_bits)
+    a = spec.angle_width
+    g = guard_bits
+    radians = spec.angle_unit == "radians"
+    angle_frac = a - RADIAN_INT_BITS if radians else a
+    amplitude = (1 << (b - 1)) - 1
+    if spec.function == "sincos":
+        # Outputs of amplitude 2^(b-1)-1 and one bit of headroom.
+        xy_width = b + g + 1
+        out_width, out_max = b, amplitude
+    elif spec.function == "rotate":
+        # A full-scale corner input has magnitude sqrt(2) 2^(b-1); a raw rotation grows it by
+        # 1.6468 more (Andraka 1998): 2.33 2^(b-1) < 2^(b+1), so two integer bits on top.
+        out_width = b + 1 if spec.gain == "compensated" else b + 2
+        # The rounded value carries one bit above the output for the saturation to read.
+        xy_width = out_width + 1 + g
+        out_max = (1 << (out_width - 1)) - 1
+    else:  # atan2
+        xy_width = b + g + 2
+        out_width = b + 1  # the magnitude: up to sqrt(2) 2^(b-1), or 2.33 2^(b-1) raw
+        out_max = (1 << out_width) - 1
+    if spec.function == "atan2":
+        # The angle is an output: resolve it to its port's LSB plus the guard bits.
+        z_frac = angle_frac + g
+    elif radians:
+        # One output LSB is 1/amplitude rad, about 2^-(b-1): b fraction bits plus guard bits.
+        z_frac = max(angle_frac, b + g)
+    else:
+        # One output LSB is 1/amplitude rad, about 2^-(b + 1.65) turn: b + 2 fraction bits.
+        z_frac = max(a, b + 2 + g)
+    z_width = z_frac + RADIAN_INT_BITS if radians else z_frac
     if iterations > xy_width:
         raise ConfigError(
             "iterations",
             iterations,
-            f"at most the internal width, {xy_width} bits (data_width + guard_bits + 1): "
+            f"at most the internal width, {xy_width} bits (data width + guard_bits + headroom): "
             "a longer shift only adds copies of the sign",
             f"set iterations to {xy_width} or fewer, or raise data_width or guard_bits",
         )
-    amplitude = (1 << (b - 1)) - 1
     gain = circular_gain(iterations)
+    x_start = 0
+    k_const = 0
+    k_frac = 0
     with mpmath.workdps(_MP_DIGITS):
-        x_start = int(mpmath.nint(gain * amplitude * mpmath.mpf(2) ** guard_bits))
+        if spec.function == "sincos":
+            x_start = int(mpmath.nint(gain * amplitude * mpmath.mpf(2) ** g))
+        elif spec.gain == "compensated":
+            k_frac = b + g + 2
+            k_const = int(mpmath.nint(gain * mpmath.mpf(2) ** k_frac))
+    table = tuple(
+        _atan_radians(i, z_frac) if radians else _atan_turns(i, z_frac) for i in range(iterations)
+    )
     return Datapath(
-        angle_width=spec.angle_width,
+        function=spec.function,
+        mode="vectoring" if spec.function == "atan2" else "rotation",
+        angle_unit=spec.angle_unit,
+        gain_mode=spec.gain,
+        angle_width=a,
+        angle_frac=angle_frac,
         data_width=b,
         iterations=iterations,
-        guard_bits=guard_bits,
+        guard_bits=g,
         rounding=spec.rounding,
         xy_width=xy_width,
         z_width=z_width,
+        z_frac=z_frac,
         amplitude=amplitude,
         x_start=x_start,
-        atan_table=tuple(_atan_turns(i, z_width) for i in range(iterations)),
+        k_const=k_const,
+        k_frac=k_frac,
+        pi_const=_pi_at(z_frac) if radians else 0,
+        atan_table=table,
         gain=mpmath.nstr(gain, 20),
+        out_width=out_width,
+        out_max=out_max,
     )
 
 

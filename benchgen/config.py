@@ -17,8 +17,10 @@ from typing import Any
 from benchgen.errors import ConfigError
 
 __all__ = [
+    "ANGLE_UNITS",
     "ARCHITECTURES",
     "FUNCTIONS",
+    "GAIN_MODES",
     "MAX_WIDTH",
     "ROUNDING_MODES",
     "CoreSpec",
@@ -26,7 +28,10 @@ __all__ = [
     "parse_config",
 ]
 
-FUNCTIONS = ("sincos",)
+FUNCTIONS = ("sincos", "rotate", "atan2")
+GAIN_MODES = ("compensated", "raw")
+ANGLE_UNITS = ("turns", "radians")
+MIN_RADIAN_ANGLE_WIDTH = 6
 ARCHITECTURES = ("pipelined", "iterative")
 ROUNDING_MODES = ("truncate", "half_up", "half_even")
 MIN_ANGLE_WIDTH = 3
@@ -73,7 +78,7 @@ class CoreSpec:
 
     Attributes:
         name: Verilog module name.
-        function: Which function the core computes (``sincos``).
+        function: Which function the core computes (``sincos``, ``rotate``, ``atan2``).
         architecture: ``pipelined`` or ``iterative``.
         pipeline_depth: Register stages of a pipelined core; ``None`` means one per iteration.
         iterations_per_cycle: Iterations an iterative core performs per clock.
@@ -84,6 +89,9 @@ class CoreSpec:
         rounding: How the guard bits are dropped at the output.
         tag_width: Width of the user tag carried with each sample; 0 means no tag ports.
         max_error_lsb: Worst error the core may have against the ideal, in output LSBs.
+        gain: ``compensated`` (the core removes the rotation gain) or ``raw`` (left in, stated
+            in the manifest).
+        angle_unit: ``turns`` (binary angle) or ``radians`` (signed fixed point, 3 integer bits).
     """
 
     name: str
@@ -98,6 +106,8 @@ class CoreSpec:
     rounding: str = "half_even"
     tag_width: int = 0
     max_error_lsb: float = 1.0
+    gain: str = "compensated"
+    angle_unit: str = "turns"
 
     def to_dict(self) -> dict[str, Any]:
         """The spec as config-file values (``auto`` for sized fields, absent fields dropped)."""
@@ -124,6 +134,8 @@ _FIELDS: tuple[str, ...] = (
     "rounding",
     "tag_width",
     "max_error_lsb",
+    "gain",
+    "angle_unit",
 )
 
 
@@ -197,7 +209,9 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
     if "name" not in raw:
         raise ConfigError("name", "(missing)", "required", 'add a line such as name = "nco_core"')
     if "function" not in raw:
-        raise ConfigError("function", "(missing)", "required", 'add function = "sincos"')
+        raise ConfigError(
+            "function", "(missing)", "required", 'add function = "sincos" (or "rotate", "atan2")'
+        )
     name = _check_name(raw["name"])
     function = _choice_field(raw, "function", FUNCTIONS)
     arch = _choice_field(raw, "architecture", ARCHITECTURES) if "architecture" in raw else "pipelined"
@@ -209,6 +223,23 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
     guard_bits = _int_field(raw, "guard_bits", 0, 16, auto=True) if "guard_bits" in raw else None
     rounding = _choice_field(raw, "rounding", ROUNDING_MODES) if "rounding" in raw else "half_even"
     tag_width = _int_field(raw, "tag_width", 0, MAX_TAG_WIDTH) if "tag_width" in raw else 0
+    gain = _choice_field(raw, "gain", GAIN_MODES) if "gain" in raw else "compensated"
+    angle_unit = _choice_field(raw, "angle_unit", ANGLE_UNITS) if "angle_unit" in raw else "turns"
+    if function == "sincos" and gain == "raw":
+        raise ConfigError(
+            "gain",
+            gain,
+            '"compensated" for sincos: its start value removes the gain at no cost',
+            'remove gain or set gain = "compensated"',
+        )
+    if angle_unit == "radians" and angle_width < MIN_RADIAN_ANGLE_WIDTH:
+        raise ConfigError(
+            "angle_width",
+            angle_width,
+            f"at least {MIN_RADIAN_ANGLE_WIDTH} with angle_unit = \"radians\" (3 integer bits and "
+            "3 fraction bits at the least)",
+            f"set angle_width = {MIN_RADIAN_ANGLE_WIDTH} or more",
+        )
     assert angle_width is not None and data_width is not None and tag_width is not None
 
     max_error = raw.get("max_error_lsb", 1.0)
@@ -277,6 +308,8 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
         rounding=rounding,
         tag_width=tag_width,
         max_error_lsb=float(max_error),
+        gain=gain,
+        angle_unit=angle_unit,
     )
 
 

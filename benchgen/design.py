@@ -20,6 +20,7 @@ from benchgen.algorithm import Datapath, Timing, make_datapath, make_timing
 from benchgen.config import MAX_ITERATIONS, CoreSpec
 from benchgen.errors import ConfigError
 from benchgen.model import sincos
+from benchgen.functions import ideal_outputs, measure, sizing_inputs
 from benchgen.reference import ErrorStats, error_stats, ideal_sincos
 
 __all__ = [
@@ -37,7 +38,7 @@ RANDOM_SIZING_SAMPLES = 1_000_000
 WIDE_SIZING_SAMPLES = 4096
 MAX_AUTO_GUARD_BITS = 16
 _SIZING_SEED = 20261202
-_PREFILTER = 4096
+_PREFILTER = 32768
 _PREFILTER_WIDE = 256
 
 
@@ -108,45 +109,52 @@ def evaluate(dp: Datapath, angles: npt.ArrayLike, ideal: tuple[np.ndarray, np.nd
 
 @dataclass(frozen=True)
 class _SizingSet:
-    angles: np.ndarray
-    ideal: tuple[np.ndarray, np.ndarray]
-    subset: np.ndarray
-    subset_ideal: tuple[np.ndarray, np.ndarray]
+    inputs: dict[str, np.ndarray]
+    ideal: dict[str, np.ndarray] | None
+    subset: dict[str, np.ndarray]
+    subset_ideal: dict[str, np.ndarray] | None
     exhaustive: bool
 
 
 def _sizing_set(spec: CoreSpec) -> _SizingSet:
-    return _sizing_set_for(spec.angle_width, spec.data_width)
+    # Only the fields that shape the ports and the ideal matter; the rest share one set.
+    return _sizing_set_for(spec.function, spec.angle_width, spec.data_width, spec.angle_unit, spec.gain)
 
 
 @cache
-def _sizing_set_for(angle_width: int, data_width: int) -> _SizingSet:
-    angles, exhaustive = sizing_angles(angle_width, data_width)
-    limit = _PREFILTER if data_width <= 40 and angle_width <= 56 else _PREFILTER_WIDE
-    step = max(1, len(angles) // limit)
-    subset = angles[::step]
-    # The ideal depends only on the angles and the amplitude: compute it once per sizing.
-    probe = make_datapath(CoreSpec(name="probe", angle_width=angle_width, data_width=data_width), 1, 0)
+def _sizing_set_for(function: str, angle_width: int, data_width: int, angle_unit: str, gain: str) -> _SizingSet:
+    probe_spec = CoreSpec(
+        name="probe", function=function, angle_width=angle_width, data_width=data_width, angle_unit=angle_unit, gain=gain
+    )
+    probe = make_datapath(probe_spec, 1, MAX_AUTO_GUARD_BITS)
+    inputs, exhaustive = sizing_inputs(probe)
+    count = len(next(iter(inputs.values())))
+    limit = min(_PREFILTER, count // 8) if data_width <= 40 and angle_width <= 56 else _PREFILTER_WIDE
+    step = max(1, count // limit)
+    subset = {k: v[::step] for k, v in inputs.items()}
+    # The gain-free ideal depends on the inputs only, not on the size being tried; a raw
+    # core's growth 1/K_n is applied per candidate.
     return _SizingSet(
-        angles=angles,
-        ideal=ideal_sincos(probe, angles),
+        inputs=inputs,
+        ideal=ideal_outputs(probe, inputs, with_gain=False),
         subset=subset,
-        subset_ideal=ideal_sincos(probe, subset),
+        subset_ideal=ideal_outputs(probe, subset, with_gain=False),
         exhaustive=exhaustive,
     )
 
 
 def _meets(spec: CoreSpec, n: int, g: int) -> tuple[bool, ErrorStats | None]:
-    if n > spec.data_width + g + 1:
-        return False, None
-    dp = make_datapath(spec, n, g)
+    try:
+        dp = make_datapath(spec, n, g)
+    except ConfigError:
+        return False, None  # more iterations than this width holds
     sset = _sizing_set(spec)
     # The subset's worst error is a lower bound of the full set's: a failing subset rejects
     # the candidate cheaply; a passing one is confirmed on the full set.
-    if evaluate(dp, sset.subset, sset.subset_ideal).max_error_lsb > spec.max_error_lsb:
+    if measure(dp, sset.subset, sset.subset_ideal).max_error_lsb >= spec.max_error_lsb:
         return False, None
-    stats = evaluate(dp, sset.angles, sset.ideal)
-    return stats.max_error_lsb <= spec.max_error_lsb, stats
+    stats = measure(dp, sset.inputs, sset.ideal)
+    return stats.max_error_lsb < spec.max_error_lsb, stats
 
 
 def _best_guard(spec: CoreSpec, n: int) -> tuple[int, ErrorStats] | None:
@@ -188,10 +196,12 @@ def _size(spec: CoreSpec) -> tuple[int, int, ErrorStats]:
     best_n = spec.iterations if spec.iterations is not None else MAX_ITERATIONS
     best_g = spec.guard_bits if spec.guard_bits is not None else MAX_AUTO_GUARD_BITS
     best_g = max(best_g, 0)
-    if best_n > spec.data_width + best_g + 1:
-        best_n = spec.data_width + best_g + 1
+    best_n = min(best_n, make_datapath(spec, 1, best_g).xy_width)
     sset = _sizing_set(spec)
-    achieved = evaluate(make_datapath(spec, best_n, best_g), sset.angles, sset.ideal).max_error_lsb
+    try:
+        achieved = measure(make_datapath(spec, best_n, best_g), sset.inputs, sset.ideal).max_error_lsb
+    except ConfigError:
+        achieved = float("inf")
     if spec.iterations is not None and spec.guard_bits is not None:
         field, value = "iterations", spec.iterations
         fix = (

@@ -15,7 +15,7 @@ import numpy.typing as npt
 
 from benchgen.algorithm import Datapath
 
-__all__ = ["SinCos", "round_drop", "sincos", "to_signed", "wrap"]
+__all__ = ["SinCos", "atan2", "evaluate_function", "prescale", "rotate", "round_drop", "sincos", "to_signed", "wrap"]
 
 IntArray = npt.NDArray[Any]
 
@@ -119,13 +119,21 @@ _BLOCK = 1 << 14
 
 
 def _fold(dp: Datapath, codes: IntArray) -> tuple[IntArray, IntArray]:
-    """Quadrant fold: (z in internal turns, True where x starts negated).
+    """Quadrant fold of an angle port value: (z at internal scale, True where the vector turns by pi).
 
-    Angles in the left half-plane (top two bits 01 or 10) are turned by half a turn (flip the
-    MSB) and start from -x instead; what is left is within +-1/4 turn, inside the +-99.88 degree
-    convergence range (Walther 1971).
+    Turns: angles in the left half-plane (top two bits 01 or 10) are turned by half a turn (flip
+    the MSB). Radians: angles beyond +-pi/2 move by -+pi (the port spans [-4, 4) rad, so what is
+    left is within +-pi/2). Either way the rest is inside the +-99.88 degree convergence range
+    (Walther 1971), and the vector starts negated instead.
     """
     n_bits = dp.angle_width
+    if dp.radians:
+        theta = to_signed(codes, n_bits) << (dp.z_frac - dp.angle_frac)
+        half_pi = dp.pi_const >> 1
+        over = theta > half_pi
+        under = theta < -half_pi
+        z = np.where(over, theta - dp.pi_const, np.where(under, theta + dp.pi_const, theta))
+        return z, over | under
     fold = (((codes >> (n_bits - 1)) ^ (codes >> (n_bits - 2))) & 1).astype(bool)
     folded = codes ^ (fold.astype(codes.dtype) << (n_bits - 1))
     z = to_signed(folded, n_bits) << (dp.z_width - n_bits)
@@ -133,21 +141,170 @@ def _fold(dp: Datapath, codes: IntArray) -> tuple[IntArray, IntArray]:
 
 
 def _rotate(dp: Datapath, codes: IntArray, dtype: Any) -> tuple[IntArray, IntArray]:
-    """The rotation iterations, wrapping at every register as the RTL does (any width)."""
+    """sincos: the rotation iterations, wrapping at every register as the RTL does (any width)."""
     z, fold = _fold(dp, codes)
     x = np.full(codes.shape, dp.x_start, dtype=dtype)
     x[fold] = -dp.x_start
     y = np.zeros_like(x)
+    x, y, _ = iterate(dp, x, y, z, dtype)
+    return x, y
+
+
+def iterate(dp: Datapath, x: IntArray, y: IntArray, z: IntArray, dtype: Any) -> tuple[IntArray, IntArray, IntArray]:
+    """Circular iterations in the data path's mode; int64 arrays take the fast path."""
+    if dtype == object or x.dtype == object:
+        return iterate_wrapping(dp, x, y, z, dtype)
+    x = np.ascontiguousarray(x, dtype=np.int64).copy()
+    y = np.ascontiguousarray(y, dtype=np.int64).copy()
+    z = np.ascontiguousarray(z, dtype=np.int64).copy()
+    for lo in range(0, x.size, _BLOCK):
+        sl = slice(lo, lo + _BLOCK)
+        _iterate_block(dp, x[sl], y[sl], z[sl])
+    return wrap(x, dp.xy_width), wrap(y, dp.xy_width), wrap(z, dp.z_width)
+
+
+def _iterate_block(dp: Datapath, x: IntArray, y: IntArray, z: IntArray) -> None:
+    """In-place iterations on int64 without the per-register wrap.
+
+    Leaving the wrap to the end changes no bit here. x and y never reach their register
+    limits: the inputs start within sqrt(2) full scale (times K_n when compensated), each
+    iteration grows the vector by sqrt(1 + 2^-2i), to at most 2.33 full scale raw, and the
+    widths hold 4 full scales (rotate, atan2) or 2 amplitudes (sincos). In rotation z stays
+    within +-1/4 turn (or pi/2) after the fold. In vectoring z only accumulates, no decision
+    reads it, so wrapping it once at the end equals wrapping it at every step. A property test
+    holds this path equal to :func:`iterate_wrapping`.
+    """
+    s = np.empty_like(x)
+    tx = np.empty_like(x)
+    ty = np.empty_like(x)
     last = dp.iterations - 1
+    vectoring = dp.mode == "vectoring"
     for i, step in enumerate(dp.atan_table):
-        # z >= 0: turn counter-clockwise (x - y/2^i, y + x/2^i, z - atan 2^-i), else clockwise.
-        sign = (z >= 0).astype(dtype) * 2 - 1
+        # s = -1 where the turn is clockwise, else 0; (v ^ s) - s negates v where s = -1.
+        if vectoring:
+            np.right_shift(y, 63, out=s)
+            np.invert(s, out=s)
+        else:
+            np.right_shift(z, 63, out=s)
+        np.right_shift(y, i, out=ty)
+        np.bitwise_xor(ty, s, out=ty)
+        np.subtract(ty, s, out=ty)
+        np.right_shift(x, i, out=tx)
+        np.bitwise_xor(tx, s, out=tx)
+        np.subtract(tx, s, out=tx)
+        np.subtract(x, ty, out=x)
+        if not (vectoring and i == last):
+            np.add(y, tx, out=y)
+        if vectoring or i != last:
+            np.bitwise_xor(s, np.int64(step), out=ty)
+            np.subtract(ty, s, out=ty)
+            np.subtract(z, ty, out=z)
+
+
+def iterate_wrapping(dp: Datapath, x: IntArray, y: IntArray, z: IntArray, dtype: Any) -> tuple[IntArray, IntArray, IntArray]:
+    """Circular iterations in the data path's mode, wrapping at every register width.
+
+    Rotation mode turns counter-clockwise where z >= 0; vectoring mode where y < 0 (driving y
+    to 0 with x > 0). Either way: x - d y/2^i, y + d x/2^i, z - d atan 2^-i (Walther 1971).
+    The values the last iteration does not need (z in rotation, y in vectoring) are left as
+    they were, as the RTL does not form them.
+    """
+    last = dp.iterations - 1
+    vectoring = dp.mode == "vectoring"
+    for i, step in enumerate(dp.atan_table):
+        turn = (y < 0) if vectoring else (z >= 0)
+        sign = turn.astype(dtype) * 2 - 1
         xs = x >> i
         ys = y >> i
-        x, y = wrap(x - sign * ys, dp.xy_width), wrap(y + sign * xs, dp.xy_width)
-        if i != last:
+        new_x = wrap(x - sign * ys, dp.xy_width)
+        if not (vectoring and i == last):
+            y = wrap(y + sign * xs, dp.xy_width)
+        if vectoring or i != last:
             z = wrap(z - sign * step, dp.z_width)
-    return x, y
+        x = new_x
+    return x, y, z
+
+
+def prescale(dp: Datapath, values: IntArray) -> IntArray:
+    """Input data at internal scale: times K_n with the guard bits (compensated), or shifted (raw).
+
+    The product's dropped bits round half up, read from all of them, as the RTL does.
+    """
+    if dp.gain_mode == "raw":
+        return values << dp.guard_bits
+    drop = dp.k_frac - dp.guard_bits
+    product = values * dp.k_const
+    return (product >> drop) + ((product & ((1 << drop) - 1)) >= (1 << (drop - 1))).astype(product.dtype)
+
+
+def _widest(dp: Datapath) -> int:
+    """Bits the widest intermediate needs: the prescale product, or a register, plus margin."""
+    product = dp.data_width + 1 + dp.k_frac + 1 if dp.k_frac else 0
+    return max(product, dp.xy_width, dp.z_width, dp.angle_width) + 2
+
+
+def _as_ints(values: npt.ArrayLike, width: int, dtype: Any) -> IntArray:
+    raw = np.asarray(values)
+    if dtype == object or raw.dtype == object:
+        return np.array([int(v) for v in raw.ravel()], dtype=object).reshape(raw.shape)
+    return raw.astype(np.int64)
+
+
+def rotate(dp: Datapath, x_in: npt.ArrayLike, y_in: npt.ArrayLike, angles: npt.ArrayLike) -> dict[str, IntArray]:
+    """Predict the rotate core: (x, y) turned by the angle, outputs ``out_x`` and ``out_y``."""
+    dtype = _dtype_for(_widest(dp))
+    b = dp.data_width
+    x = to_signed(_as_ints(x_in, b, dtype), b)
+    y = to_signed(_as_ints(y_in, b, dtype), b)
+    codes = _as_ints(angles, dp.angle_width, dtype) & ((1 << dp.angle_width) - 1)
+    z, fold = _fold(dp, codes)
+    x = np.where(fold, -x, x)
+    y = np.where(fold, -y, y)
+    if dtype == object:
+        x, y, z = x.astype(object), y.astype(object), z.astype(object)
+    x, y, _ = iterate(dp, prescale(dp, x), prescale(dp, y), z, dtype)
+    q_w = dp.out_width + 1
+    return {
+        "out_x": _saturate(round_drop(x, dp.guard_bits, dp.rounding, q_w), dp.out_max),
+        "out_y": _saturate(round_drop(y, dp.guard_bits, dp.rounding, q_w), dp.out_max),
+    }
+
+
+def atan2(dp: Datapath, x_in: npt.ArrayLike, y_in: npt.ArrayLike) -> dict[str, IntArray]:
+    """Predict the atan2 core: ``out_angle`` of the vector (x, y) and ``out_magnitude``.
+
+    A vector with x < 0 is turned by half a turn first (Walther 1971's pre-rotation by pi) and
+    z starts at that half turn. The zero vector gives angle 0 and magnitude 0.
+    """
+    dtype = _dtype_for(_widest(dp))
+    b = dp.data_width
+    x = to_signed(_as_ints(x_in, b, dtype), b)
+    y = to_signed(_as_ints(y_in, b, dtype), b)
+    neg = x < 0
+    zero = (x == 0) & (y == 0)
+    if dp.radians:
+        turn = np.where(y >= 0, dp.pi_const, -dp.pi_const)
+    else:
+        turn = np.full(x.shape, -(1 << (dp.z_width - 1)))  # half a turn; z wraps at a whole turn
+    z = np.where(neg, turn, 0).astype(dtype)
+    xv = np.where(neg, -x, x)
+    yv = np.where(neg, -y, y)
+    x_n, _, z_n = iterate(dp, prescale(dp, xv), prescale(dp, yv), z, dtype)
+    angle = round_drop(z_n, dp.z_frac - dp.angle_frac, dp.rounding, dp.angle_width)
+    angle = np.where(zero, 0, angle)
+    mag = round_drop(x_n, dp.guard_bits, dp.rounding, dp.out_width + 1)
+    mag = np.where(mag < 0, 0, mag)
+    return {"out_angle": angle, "out_magnitude": mag}
+
+
+def evaluate_function(dp: Datapath, inputs: dict[str, npt.ArrayLike]) -> dict[str, IntArray]:
+    """The model's outputs for the data path's function, by output port name."""
+    if dp.function == "sincos":
+        out = sincos(dp, inputs["in_angle"])
+        return {"out_cos": out.cos, "out_sin": out.sin}
+    if dp.function == "rotate":
+        return rotate(dp, inputs["in_x"], inputs["in_y"], inputs["in_angle"])
+    return atan2(dp, inputs["in_x"], inputs["in_y"])
 
 
 def _rotate_int64(dp: Datapath, codes: IntArray) -> tuple[IntArray, IntArray]:

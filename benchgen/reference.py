@@ -42,7 +42,9 @@ def ideal_sincos(
         cos = np.empty(len(codes), dtype=object)
         sin = np.empty(len(codes), dtype=object)
         with mpmath.workdps(dps):
-            scale = 2 * mpmath.pi / mpmath.mpf(2) ** n_bits
+            scale = (
+                1 / mpmath.mpf(2) ** dp.angle_frac if dp.radians else 2 * mpmath.pi / mpmath.mpf(2) ** n_bits
+            )
             amp = mpmath.mpf(dp.amplitude)
             for k, code in enumerate(codes):
                 signed = code - (1 << n_bits) if code >> (n_bits - 1) else code
@@ -54,7 +56,8 @@ def ideal_sincos(
         raw = np.array([int(a) % (1 << n_bits) for a in raw.ravel()], dtype=np.uint64).reshape(raw.shape)
     codes = raw.astype(np.int64) & np.int64((1 << n_bits) - 1) if n_bits < 64 else raw.astype(np.uint64)
     signed = to_signed(codes.astype(np.int64), n_bits) if n_bits < 64 else codes.astype(np.int64)
-    t = signed.astype(np.float64) * (2.0 * np.pi / 2.0**n_bits)
+    scale = 1.0 / 2.0**dp.angle_frac if dp.radians else 2.0 * np.pi / 2.0**n_bits
+    t = signed.astype(np.float64) * scale
     return dp.amplitude * np.cos(t), dp.amplitude * np.sin(t)
 
 

@@ -16,14 +16,15 @@ import jinja2
 
 from benchgen import __version__
 from benchgen.design import Design
+from benchgen.functions import input_ports, output_ports
 
-__all__ = ["Iteration", "render_core", "template_dir", "verilog_literal"]
+__all__ = ["Iteration", "build_context", "render_core", "template_dir", "verilog_literal"]
 
 
 def template_dir() -> Path:
     """Folder of the Jinja2 templates: ``rtl_templates/`` of a source checkout, else the package."""
     here = Path(__file__).resolve().parent.parent / "rtl_templates"
-    if (here / "sincos_pipelined.v.j2").is_file():
+    if (here / "core_pipelined.v.j2").is_file():
         return here
     return Path(str(resources.files("benchgen.rtl_templates")))
 
@@ -46,21 +47,22 @@ def _sign_shift(name: str, shift: int, width: int) -> str:
 
 @dataclass(frozen=True)
 class Iteration:
-    """One rotation iteration as the template writes it.
+    """One iteration as the template writes it.
 
     Attributes:
-        index: Iteration number i (shift by i).
+        index: Iteration number i (shift by i) or sub-iteration j of an iterative core.
         x_in, y_in, z_in: Names of the values entering the iteration.
-        x_out, y_out, z_out: Names of the values leaving it (``z_out`` empty when no later
-            iteration needs the angle).
+        x_out, y_out, z_out: Names of the values leaving it; empty when nothing needs them.
         dir: Name of the direction wire (1: turn counter-clockwise).
+        dir_expr: What sets it: z >= 0 (rotation) or y < 0 (vectoring), as a comparison that
+            reads every bit.
         x_shift, y_shift: Expressions of x and y shifted right by i, sign-extended.
         atan: Angle constant expression.
         active: Expression that enables the iteration (iterative cores whose last clock has
             fewer iterations than the others), or empty.
-        kept_only: Only the kept bits of x and y are needed (the last iteration of a pipelined
-            core that truncates): the template writes the carry of the dropped bits instead of
-            the dropped bits themselves.
+        kept_x, kept_y, kept_z: Bits dropped by truncation after this iteration (the last one of
+            a pipelined core): only the kept bits are formed, plus the carry of the dropped
+            bits, so no formed bit goes unused. 0 when the full value is formed.
     """
 
     index: int
@@ -71,11 +73,27 @@ class Iteration:
     y_out: str
     z_out: str
     dir: str
+    dir_expr: str
     x_shift: str
     y_shift: str
     atan: str
     active: str = ""
-    kept_only: bool = False
+    kept_x: int = 0
+    kept_y: int = 0
+    kept_z: int = 0
+
+
+def _drops(design: Design) -> dict[str, int]:
+    """Bits each coordinate's final value loses to output rounding, by coordinate."""
+    dp = design.datapath
+    if dp.mode == "vectoring":
+        return {"x": dp.guard_bits, "y": 0, "z": dp.z_frac - dp.angle_frac}
+    return {"x": dp.guard_bits, "y": dp.guard_bits, "z": 0}
+
+
+def _final_outputs(design: Design) -> tuple[bool, bool, bool]:
+    """Which of x, y, z the last iteration must form."""
+    return (True, False, True) if design.datapath.mode == "vectoring" else (True, True, False)
 
 
 def _iteration(
@@ -88,63 +106,67 @@ def _iteration(
     shift: int | None,
     atan: str,
     active: str = "",
-    kept_only: bool = False,
+    final: bool = False,
+    truncate_final: bool = False,
 ) -> Iteration:
-    w = design.datapath.xy_width
+    dp = design.datapath
+    w = dp.xy_width
     x_in, y_in, z_in = src
-    if shift is None:
-        x_shift = f"xs_{label}"
-        y_shift = f"ys_{label}"
-    else:
-        x_shift = _sign_shift(x_in, shift, w)
-        y_shift = _sign_shift(y_in, shift, w)
+    x_out, y_out, z_out = dst
+    if final:
+        need = _final_outputs(design)
+        x_out, y_out, z_out = (n if keep else "" for n, keep in zip(dst, need, strict=True))
+    kept = {"x": 0, "y": 0, "z": 0}
+    if final and truncate_final:
+        kept = {k: v for k, v in _drops(design).items()}
+        kept = {k: (v if (k != "y" or y_out) and (k != "z" or z_out) else 0) for k, v in kept.items()}
+    dir_expr = f"({y_in} >= Y_HALF)" if dp.mode == "vectoring" else f"({z_in} < Z_HALF)"
     return Iteration(
         index=i,
         x_in=x_in,
         y_in=y_in,
         z_in=z_in,
-        x_out=dst[0],
-        y_out=dst[1],
-        z_out=dst[2],
+        x_out=x_out,
+        y_out=y_out,
+        z_out=z_out,
         dir=f"dir_{label}",
-        x_shift=x_shift,
-        y_shift=y_shift,
+        dir_expr=dir_expr,
+        x_shift=f"xs_{label}" if shift is None else _sign_shift(x_in, shift, w),
+        y_shift=f"ys_{label}" if shift is None else _sign_shift(y_in, shift, w),
         atan=atan,
         active=active,
-        kept_only=kept_only,
+        kept_x=kept["x"],
+        kept_y=kept["y"],
+        kept_z=kept["z"],
     )
 
 
 def _pipelined_context(design: Design) -> dict[str, Any]:
     dp = design.datapath
     n = dp.iterations
+    truncating = dp.rounding == "truncate"
     stages = []
     src = ("x_start", "y_start", "z_start")
     for k, (first, end) in enumerate(design.timing.stages):
-        last_stage = k == len(design.timing.stages) - 1
         iters = []
         for i in range(first, end):
             final = i == n - 1
             if i == end - 1:
-                dst = (f"s{k}_x", f"s{k}_y", "" if final else f"s{k}_z")
+                dst = (f"s{k}_x", f"s{k}_y", f"s{k}_z")
             else:
                 dst = (f"x_{i + 1}", f"y_{i + 1}", f"z_{i + 1}")
             iters.append(
                 _iteration(
-                    f"{i}",
-                    i,
-                    src,
-                    dst,
-                    design=design,
-                    shift=i,
-                    atan=f"ATAN_{i}",
-                    kept_only=final and dp.rounding == "truncate" and dp.guard_bits > 0,
+                    f"{i}", i, src, dst, design=design, shift=i, atan=f"ATAN_{i}", final=final, truncate_final=truncating
                 )
             )
             src = dst
-        stages.append({"index": k, "first": first, "end": end, "iterations": iters, "last": last_stage})
+        stages.append(
+            {"index": k, "first": first, "end": end, "iterations": iters, "last": k == len(design.timing.stages) - 1}
+        )
         src = (f"s{k}_x_reg", f"s{k}_y_reg", f"s{k}_z_reg")
-    return {"stages": stages}
+    last = stages[-1]["iterations"][-1]
+    return {"stages": stages, "final": last}
 
 
 def _iterative_context(design: Design) -> dict[str, Any]:
@@ -155,6 +177,7 @@ def _iterative_context(design: Design) -> dict[str, Any]:
     n = dp.iterations
     count_width = max(1, (cycles - 1).bit_length())
     shift_width = max(1, (n - 1).bit_length())
+    truncating = dp.rounding == "truncate"
     iters = []
     tables = []
     src = ("x_reg", "y_reg", "z_reg")
@@ -163,12 +186,19 @@ def _iterative_context(design: Design) -> dict[str, Any]:
         rows = []
         for c, (first, end) in enumerate(groups):
             i = first + j
-            rows.append({"count": c, "shift": i if i < end else 0, "atan": dp.atan_table[i] if i < end else 0, "active": i < end})
+            rows.append(
+                {
+                    "count": c,
+                    "shift": i if i < end else 0,
+                    "atan": dp.atan_table[i] if i < end else 0,
+                    "active": i < end,
+                }
+            )
         fixed = cycles == 1
         needs_active = not all(r["active"] for r in rows)
+        # With one clock per sample the group output feeds only the rounding, like a pipeline's
+        # last stage; with more it also feeds the registers, which need every value.
         final = fixed and j == per_cycle - 1
-        if final:
-            dst = (dst[0], dst[1], "")
         iters.append(
             _iteration(
                 f"j{j}",
@@ -179,7 +209,8 @@ def _iterative_context(design: Design) -> dict[str, Any]:
                 shift=j if fixed else None,
                 atan=f"ATAN_{j}" if fixed else f"atan_j{j}",
                 active=f"active_j{j}" if needs_active else "",
-                kept_only=final and dp.rounding == "truncate" and dp.guard_bits > 0,
+                final=final,
+                truncate_final=truncating,
             )
         )
         if not fixed:
@@ -201,6 +232,7 @@ def _iterative_context(design: Design) -> dict[str, Any]:
         src = dst
     return {
         "group": iters,
+        "final": iters[-1],
         "tables": tables,
         "cycles": cycles,
         "per_cycle": per_cycle,
@@ -213,14 +245,20 @@ def _iterative_context(design: Design) -> dict[str, Any]:
     }
 
 
+def _side_signals(design: Design) -> list[dict[str, Any]]:
+    """Per-sample values that travel beside x, y, z from the input logic to the output logic."""
+    if design.datapath.function == "atan2":
+        return [{"name": "zero", "width": 1, "src": "in_zero"}]
+    return []
+
+
 def build_context(design: Design, *, config_text: str = "") -> dict[str, Any]:
     """Everything the templates print, decided here."""
     dp = design.datapath
     spec = design.spec
-    pad = dp.z_width - dp.angle_width
-    angle_low = f"in_angle[{dp.angle_width - 2}:0]"
-    z_start = f"{{in_angle[{dp.angle_width - 2}], {angle_low}"
-    z_start += f", {{{pad}{{1'b0}}}}}}" if pad else "}"
+    b = dp.data_width
+    g = dp.guard_bits
+    w = dp.xy_width
     ctx: dict[str, Any] = {
         "version": __version__,
         "name": spec.name,
@@ -231,35 +269,58 @@ def build_context(design: Design, *, config_text: str = "") -> dict[str, Any]:
         "config_lines": [line.rstrip() for line in config_text.strip().splitlines()],
         "tag": spec.tag_width > 0,
         "tag_width": spec.tag_width,
-        "W": dp.xy_width,
+        "inputs": input_ports(dp),
+        "outputs": output_ports(dp),
+        "side": _side_signals(design),
+        "W": w,
         "ZW": dp.z_width,
-        "B": dp.data_width,
+        "B": b,
         "A": dp.angle_width,
-        "G": dp.guard_bits,
-        "x_start_pos": verilog_literal(dp.x_start, dp.xy_width),
-        "x_start_neg": verilog_literal(-dp.x_start, dp.xy_width),
+        "G": g,
+        "lit": verilog_literal,
         "z_half": verilog_literal(1 << (dp.z_width - 1), dp.z_width),
-        "z_start": z_start,
+        "y_half": verilog_literal(1 << (w - 1), w),
         "atan": [verilog_literal(a, dp.z_width) for a in dp.atan_table],
-        "out_max": verilog_literal(dp.output_max, dp.data_width),
-        "out_min": verilog_literal(-dp.output_max, dp.data_width),
-        "min_code": verilog_literal(1 << (dp.data_width - 1), dp.data_width),
-        "round_half": verilog_literal(1 << (dp.guard_bits - 1), dp.guard_bits) if dp.guard_bits else "",
-        "one_b": verilog_literal(0, dp.data_width),  # zero-extension prefix for a 1-bit increment
-        "zero_w1": verilog_literal(0, dp.xy_width - 1),
-        "zero_z1": verilog_literal(0, dp.z_width - 1),
-        "zero_g": verilog_literal(0, dp.guard_bits) if dp.guard_bits else "",
-        "ones_g": verilog_literal((1 << dp.guard_bits) - 1, dp.guard_bits) if dp.guard_bits else "",
+        "drops": _drops(design),
     }
-    if design.timing.architecture == "pipelined":
-        ctx.update(_pipelined_context(design))
+    # Input logic constants.
+    if dp.function == "sincos":
+        ctx["x_start_pos"] = verilog_literal(dp.x_start, w)
+        ctx["x_start_neg"] = verilog_literal(-dp.x_start, w)
+    if dp.radians:
+        pad = dp.z_frac - dp.angle_frac
+        ctx["theta"] = f"{{in_angle, {verilog_literal(0, pad)}}}" if pad else "in_angle"
+        ctx["pi"] = verilog_literal(dp.pi_const, dp.z_width)
+        ctx["neg_pi"] = verilog_literal(-dp.pi_const, dp.z_width)
+        ctx["half_pi"] = verilog_literal(dp.pi_const >> 1, dp.z_width)
+        ctx["neg_half_pi"] = verilog_literal(-(dp.pi_const >> 1), dp.z_width)
     else:
-        ctx.update(_iterative_context(design))
-    return ctx
+        pad = dp.z_width - dp.angle_width
+        low = f"in_angle[{dp.angle_width - 2}:0]"
+        ctx["z_fold"] = f"{{in_angle[{dp.angle_width - 2}], {low}" + (f", {verilog_literal(0, pad)}}}" if pad else "}")
+    if dp.function in ("rotate", "atan2"):
+        if dp.gain_mode == "compensated":
+            kw = dp.k_frac + 1
+            pw = (b + 1) + kw
+            drop = dp.k_frac - g
+            ctx["scale"] = {
+                "k": verilog_literal(dp.k_const, kw),
+                "kw": kw,
+                "pw": pw,
+                "drop": drop,
+                "half": verilog_literal(1 << (drop - 1), drop),
+                "k_pad": verilog_literal(0, pw - kw),
+                "inc_pad": verilog_literal(0, pw - drop - 1),
+            }
+            assert pw - drop == w, "the prescaled value must fill the internal width"
+        else:
+            ctx["scale"] = None
+            ctx["raw_ext"] = w - g - (b + 1)  # sign bits above the (b+1)-bit input, below x_start's top
+    return ctx | (_pipelined_context(design) if design.timing.architecture == "pipelined" else _iterative_context(design))
 
 
 def _environment() -> jinja2.Environment:
-    env = jinja2.Environment(
+    return jinja2.Environment(
         loader=jinja2.FileSystemLoader(str(template_dir())),
         undefined=jinja2.StrictUndefined,
         keep_trailing_newline=True,
@@ -267,15 +328,18 @@ def _environment() -> jinja2.Environment:
         lstrip_blocks=True,
         autoescape=False,
     )
-    return env
 
 
 def render_core(design: Design, *, config_text: str = "") -> str:
     """The core's Verilog source."""
-    name = f"{design.spec.function}_{design.timing.architecture}.v.j2"
+    name = f"core_{design.timing.architecture}.v.j2"
     text = _environment().get_template(name).render(build_context(design, config_text=config_text))
-    # One trailing newline, no trailing blanks: byte-stable output whatever the template spacing.
-    lines = [line.rstrip() for line in text.splitlines()]
+    # One trailing newline, no trailing blanks, no runs of blank lines: byte-stable output
+    # whatever the template spacing.
+    lines: list[str] = []
+    for line in (raw.rstrip() for raw in text.splitlines()):
+        if line or (lines and lines[-1]):
+            lines.append(line)
     while lines and not lines[-1]:
         lines.pop()
     return "\n".join(lines) + "\n"

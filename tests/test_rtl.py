@@ -31,8 +31,28 @@ SIZES = [
 ]
 
 
-def cases() -> list[dict[str, object]]:
+FUNCTION_CASES = [
+    {"function": "rotate", "data_width": 10, "angle_width": 11},
+    {"function": "rotate", "data_width": 10, "angle_width": 11, "gain": "raw", "angle_unit": "radians"},
+    {"function": "atan2", "data_width": 10, "angle_width": 12},
+    {"function": "atan2", "data_width": 9, "angle_width": 10, "gain": "raw", "angle_unit": "radians"},
+    {"function": "sincos", "data_width": 10, "angle_width": 12, "angle_unit": "radians"},
+]
+
+
+def function_cases() -> list[dict[str, object]]:
     out = []
+    for k, (fn, arch, rounding) in enumerate(
+        itertools.product(FUNCTION_CASES, VARIANTS[:5], ("half_even", "half_up", "truncate"))
+    ):
+        cfg = {"name": f"fn_{k}", "rounding": rounding, "tag_width": k % 3, **arch, **fn}
+        cfg["max_error_lsb"] = 1.5 if rounding == "truncate" else 1.0
+        out.append(cfg)
+    return out
+
+
+def cases() -> list[dict[str, object]]:
+    out = function_cases()
     for k, (arch, size, rounding, tag) in enumerate(
         itertools.product(VARIANTS, SIZES, ("half_even", "half_up", "truncate"), (0, 5))
     ):

@@ -2,7 +2,7 @@
 
 from pathlib import Path
 
-from benchgen.bench.sincos_tests import bind
+from benchgen.bench.core_tests import bind
 
 MANIFEST = Path(__file__).resolve().parent.parent / "manifest.json"
 

@@ -1,4 +1,4 @@
-"""cocotb tests for a generated sine/cosine core.
+"""cocotb tests for a generated core (any function).
 
 A generated project's test module calls :func:`bind` with its manifest and exposes the returned
 tests; everything else lives here, so all projects share one bench.
@@ -21,10 +21,10 @@ from cocotb.clock import Clock
 
 from benchgen.bench.scoreboard import CheckResult, compare, record, write_csv_rows
 from benchgen.bench.stream import Capture, StreamBench
-from benchgen.design import Design, corner_angles
-from benchgen.model import sincos
+from benchgen.design import Design
+from benchgen.functions import corner_inputs, function_errors, ideal_outputs, input_ports, output_ports, random_inputs
+from benchgen.model import evaluate_function
 from benchgen.project import design_from_manifest, load_manifest
-from benchgen.reference import ideal_sincos
 
 __all__ = [
     "bind",
@@ -48,23 +48,30 @@ def bind(manifest: Path) -> tuple[Any, Any, Any, Any]:
     return test_corners, test_random_full_rate, test_gaps_and_stalls, test_reset_mid_stream
 
 
-class SinCosBench:
-    """The bench of one sine/cosine core: stream driver/monitor, model and checks."""
+class CoreBench:
+    """The bench of one generated core: stream driver/monitor, model, ideal and checks."""
 
     def __init__(self, dut: Any) -> None:
         if _manifest_path is None:
-            raise RuntimeError("benchgen.bench.sincos_tests.bind(manifest) was not called")
+            raise RuntimeError("benchgen.bench.core_tests.bind(manifest) was not called")
         self.manifest = load_manifest(_manifest_path.parent)
         self.design: Design = design_from_manifest(self.manifest)
+        self.dp = self.design.datapath
         self.dut = dut
         self.tag_width = self.design.spec.tag_width
-        inputs = ("in_angle", "in_tag") if self.tag_width else ("in_angle",)
-        outputs = ("out_cos", "out_sin", "out_tag") if self.tag_width else ("out_cos", "out_sin")
-        self.stream = StreamBench(dut, inputs=inputs, outputs=outputs, signed=("out_cos", "out_sin"))
+        self.in_ports = [p.name for p in input_ports(self.dp)]
+        self.out_ports = [p.name for p in output_ports(self.dp)]
+        tag_in = ["in_tag"] if self.tag_width else []
+        tag_out = ["out_tag"] if self.tag_width else []
+        self.stream = StreamBench(
+            dut,
+            inputs=tuple(self.in_ports + tag_in),
+            outputs=tuple(self.out_ports + tag_out),
+            signed=tuple(p.name for p in output_ports(self.dp) if p.signed),
+        )
         # The run's seed as given to the runner (cocotb re-derives RANDOM_SEED per test).
         self.seed = int(os.environ.get("COCOTB_RANDOM_SEED", cocotb.RANDOM_SEED))
         self.samples = int(os.environ.get(SAMPLES_ENV, DEFAULT_SAMPLES))
-        self.angle_width = self.design.datapath.angle_width
 
     async def start(self) -> None:
         """Start the clock and reset the core."""
@@ -75,57 +82,58 @@ class SinCosBench:
         """A generator per test, derived from the run's seed."""
         return np.random.default_rng([self.seed, salt])
 
-    def random_angles(self, rng: np.random.Generator, count: int) -> npt.NDArray[Any]:
-        """Uniform random angle codes over the whole turn."""
-        if self.angle_width <= 62:
-            return rng.integers(0, 1 << self.angle_width, size=count, dtype=np.int64)
-        hi = rng.integers(0, 1 << 62, size=count, dtype=np.int64)
-        lo = rng.integers(0, 1 << (self.angle_width - 62), size=count, dtype=np.int64)
-        return np.array([(int(h) << (self.angle_width - 62)) | int(lo_) for h, lo_ in zip(hi, lo, strict=True)], dtype=object)
+    def random(self, rng: np.random.Generator, count: int) -> dict[str, npt.NDArray[Any]]:
+        """Uniform random codes on every input port, tags counting up."""
+        return self.with_tags(random_inputs(self.dp, rng, count))
 
-    def stimulus(self, angles: npt.NDArray[Any]) -> dict[str, npt.NDArray[Any]]:
-        """Input port values for the angles; tags count up and wrap."""
-        stim = {"in_angle": angles}
+    def corners(self) -> dict[str, npt.NDArray[Any]]:
+        """The function's corner inputs, tags counting up."""
+        return self.with_tags(corner_inputs(self.dp))
+
+    def with_tags(self, stim: dict[str, npt.NDArray[Any]]) -> dict[str, npt.NDArray[Any]]:
+        """Add counting tags (they wrap) when the core has a tag."""
         if self.tag_width:
-            stim["in_tag"] = np.arange(len(angles), dtype=np.int64) % (1 << min(self.tag_width, 62))
+            count = len(next(iter(stim.values())))
+            stim = {**stim, "in_tag": np.arange(count, dtype=np.int64) % (1 << min(self.tag_width, 62))}
         return stim
+
+    def _inputs_of(self, cap: Capture, count: int | None = None) -> dict[str, npt.NDArray[Any]]:
+        out = {}
+        for name in self.in_ports:
+            vals = cap.in_values[name][:count] if count is not None else cap.in_values[name]
+            wide = vals and max(abs(int(v)) for v in vals) >= 1 << 62
+            out[name] = np.array(vals, dtype=object if wide else np.int64)
+        return out
 
     def check(self, name: str, cap: Capture, result: CheckResult | None = None) -> CheckResult:
         """Compare a capture with the model and the ideal; check order and tags."""
         result = result or CheckResult(test=name)
-        dp = self.design.datapath
-        angles = np.array(cap.in_values["in_angle"], dtype=np.int64 if self.angle_width <= 62 else object)
-        n = min(len(angles), len(cap.out_cycles))
-        model = sincos(dp, angles)
-        ideal_cos, ideal_sin = ideal_sincos(dp, angles)
-        got = {"out_cos": cap.outputs("out_cos"), "out_sin": cap.outputs("out_sin")}
-        expected = {"out_cos": model.cos, "out_sin": model.sin}
-        inputs = {"in_angle": angles}
+        inputs = self._inputs_of(cap)
+        n = min(len(cap.in_cycles), len(cap.out_cycles))
+        expected = evaluate_function(self.dp, inputs)
+        got = {p: cap.outputs(p) for p in self.out_ports}
+        shown = dict(inputs)
         if self.tag_width:
             got["out_tag"] = cap.outputs("out_tag")
             expected["out_tag"] = np.array(cap.in_values["in_tag"], dtype=got["out_tag"].dtype)
-            inputs["in_tag"] = expected["out_tag"]
+            shown["in_tag"] = expected["out_tag"]
+        short = {k: v[:n] for k, v in inputs.items()}
+        ideal = ideal_outputs(self.dp, short)
+        errors = function_errors(self.dp, short, {p: got[p][:n] for p in self.out_ports}, ideal)
         compare(
             result,
-            inputs=inputs,
+            inputs=shown,
             got=got,
             expected=expected,
-            ideal={"out_cos": ideal_cos, "out_sin": ideal_sin},
+            errors=errors,
             budget_lsb=self.design.spec.max_error_lsb,
             seed=self.seed,
         )
-        write_csv_rows(
-            name,
-            {
-                "in_angle": angles[:n],
-                "out_cos": got["out_cos"][:n],
-                "out_sin": got["out_sin"][:n],
-                "model_cos": model.cos[:n],
-                "model_sin": model.sin[:n],
-                "ideal_cos": ideal_cos[:n],
-                "ideal_sin": ideal_sin[:n],
-            },
-        )
+        columns: dict[str, npt.NDArray[Any]] = {k: v[:n] for k, v in inputs.items()}
+        columns.update({p: got[p][:n] for p in self.out_ports})
+        columns.update({f"model_{p}": expected[p][:n] for p in self.out_ports})
+        columns.update({f"ideal_{p}": np.asarray(ideal[p][:n], dtype=np.float64) for p in ideal})
+        write_csv_rows(name, columns)
         return result
 
     def latencies(self, cap: Capture) -> npt.NDArray[np.int64]:
@@ -142,23 +150,23 @@ class SinCosBench:
 @cocotb.test()
 async def test_corners(dut: Any) -> None:
     """0, every quadrant and octant boundary and one code either side, the most negative code."""
-    tb = SinCosBench(dut)
+    tb = CoreBench(dut)
     await tb.start()
-    corners = corner_angles(tb.angle_width)
-    cap = await tb.stream.run(tb.stimulus(corners))
+    corners = tb.corners()
+    count = len(next(iter(corners.values())))
+    cap = await tb.stream.run(corners)
     result = tb.check("corners", cap)
     if not cap.complete:
-        result.problems.append(f"corner run did not finish: {len(cap.out_cycles)} of {len(corners)} out")
+        result.problems.append(f"corner run did not finish: {len(cap.out_cycles)} of {count} out")
     tb.finish(result)
 
 
 @cocotb.test()
 async def test_random_full_rate(dut: Any) -> None:
     """Random angles offered every clock with out_ready high: checks, latency and throughput."""
-    tb = SinCosBench(dut)
+    tb = CoreBench(dut)
     await tb.start()
-    angles = tb.random_angles(tb.rng(1), tb.samples)
-    cap = await tb.stream.run(tb.stimulus(angles))
+    cap = await tb.stream.run(tb.random(tb.rng(1), tb.samples))
     result = tb.check("random_full_rate", cap)
     timing = tb.design.timing
     lat = tb.latencies(cap)
@@ -177,29 +185,26 @@ async def test_random_full_rate(dut: Any) -> None:
                 f"one sample every {spacing:.3f} clocks at full rate, manifest says {timing.cycles_per_sample}"
             )
     if not cap.complete:
-        result.problems.append(f"stream did not finish: {len(cap.out_cycles)} of {len(angles)} out")
+        result.problems.append(f"stream did not finish: {len(cap.out_cycles)} of {tb.samples} out")
     tb.finish(result)
 
 
 @cocotb.test()
 async def test_gaps_and_stalls(dut: Any) -> None:
     """Random idle gaps at the input crossed with random output stalls: order, count, tags."""
-    tb = SinCosBench(dut)
+    tb = CoreBench(dut)
     await tb.start()
     rng = tb.rng(2)
     result = CheckResult(test="gaps_and_stalls")
     count = max(1000, tb.samples // 4)
     # Four pause patterns: none/none, idle only, stall only, both, at varied densities.
     for k, (p_idle, p_stall) in enumerate(((0.0, 0.0), (0.5, 0.0), (0.0, 0.5), (0.3, 0.7))):
-        angles = tb.random_angles(rng, count // 4)
         idle = rng.random(4099) < p_idle
         stall = rng.random(4093) < p_stall
-        cap = await tb.stream.run(tb.stimulus(angles), idle=idle, stall=stall)
+        cap = await tb.stream.run(tb.random(rng, count // 4), idle=idle, stall=stall)
         tb.check("gaps_and_stalls", cap, result)
         if not cap.complete:
-            result.problems.append(
-                f"pattern {k}: {len(cap.out_cycles)} of {len(angles)} samples came out"
-            )
+            result.problems.append(f"pattern {k}: {len(cap.out_cycles)} of {count // 4} samples came out")
         lat = tb.latencies(cap)
         if lat.size and int(lat.min()) < tb.design.timing.latency_cycles:
             result.problems.append(f"pattern {k}: a sample came out after {int(lat.min())} clocks")
@@ -209,15 +214,14 @@ async def test_gaps_and_stalls(dut: Any) -> None:
 @cocotb.test()
 async def test_reset_mid_stream(dut: Any) -> None:
     """A reset with samples in flight drops them; nothing stale comes out; the next stream is exact."""
-    tb = SinCosBench(dut)
+    tb = CoreBench(dut)
     await tb.start()
     rng = tb.rng(3)
     result = CheckResult(test="reset_mid_stream")
     latency = tb.design.timing.latency_cycles
-    angles = tb.random_angles(rng, 200)
     # Stop while samples are in flight, with output stalls so the buffer is busy too.
     stop = max(3, latency // 2 + 20)
-    cap = await tb.stream.run(tb.stimulus(angles), stall=rng.random(97) < 0.3, stop_after=stop)
+    cap = await tb.stream.run(tb.random(rng, 200), stall=rng.random(97) < 0.3, stop_after=stop)
     # What came out before the reset must still be right.
     done = len(cap.out_cycles)
     if done:
@@ -234,9 +238,8 @@ async def test_reset_mid_stream(dut: Any) -> None:
     stale = await tb.stream.idle_clocks(latency + 4)
     if any(stale):
         result.problems.append(f"out_valid rose after the reset with no input: {stale}")
-    angles = tb.random_angles(rng, 500)
-    cap = await tb.stream.run(tb.stimulus(angles), idle=rng.random(31) < 0.2, stall=rng.random(37) < 0.2)
+    cap = await tb.stream.run(tb.random(rng, 500), idle=rng.random(31) < 0.2, stall=rng.random(37) < 0.2)
     tb.check("reset_mid_stream", cap, result)
     if not cap.complete:
-        result.problems.append(f"after the reset: {len(cap.out_cycles)} of {len(angles)} samples came out")
+        result.problems.append(f"after the reset: {len(cap.out_cycles)} of 500 samples came out")
     tb.finish(result)

@@ -1,0 +1,258 @@
+"""What each function's core looks like from outside: ports, stimulus, ideal values, errors.
+
+The arithmetic lives in :mod:`benchgen.algorithm` and :mod:`benchgen.model`; this module says
+which ports a function has, which inputs exercise it (corners, random, the sizing set), what
+the exact answer is (mpmath/numpy) and how far an output may be from it.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import mpmath
+import numpy as np
+import numpy.typing as npt
+
+from benchgen.algorithm import Datapath
+from benchgen.model import evaluate_function, to_signed
+from benchgen.reference import ErrorStats, error_stats, errors_lsb, ideal_sincos
+
+__all__ = [
+    "EXHAUSTIVE_LIMIT_BITS",
+    "Port",
+    "corner_inputs",
+    "function_errors",
+    "ideal_outputs",
+    "input_ports",
+    "output_ports",
+    "random_inputs",
+    "sizing_inputs",
+    "small_vector_limit",
+]
+
+EXHAUSTIVE_LIMIT_BITS = 20
+RANDOM_SIZING_SAMPLES = 1_000_000
+WIDE_SIZING_SAMPLES = 4096
+_SIZING_SEED = 20261202
+
+Inputs = dict[str, npt.NDArray[Any]]
+
+
+@dataclass(frozen=True)
+class Port:
+    """A data port of a core (the handshake, clock, reset and tag ports are implied).
+
+    Attributes:
+        name: Port name.
+        width: Bits.
+        signed: Read as two's complement.
+        doc: Its format, for headers and manifests.
+    """
+
+    name: str
+    width: int
+    signed: bool
+    doc: str
+
+
+def _angle_doc(dp: Datapath) -> str:
+    if dp.radians:
+        return f"radians, signed fixed point, {dp.angle_width} bits with {dp.angle_frac} fraction bits, [-4, 4) rad"
+    return f"binary angle, {dp.angle_width} bits, 2^{dp.angle_width} codes per turn"
+
+
+def input_ports(dp: Datapath) -> tuple[Port, ...]:
+    """Data inputs, in port order."""
+    b = dp.data_width
+    data = f"two's complement, {b} bits"
+    if dp.function == "sincos":
+        return (Port("in_angle", dp.angle_width, dp.radians, _angle_doc(dp)),)
+    if dp.function == "rotate":
+        return (
+            Port("in_x", b, True, data),
+            Port("in_y", b, True, data),
+            Port("in_angle", dp.angle_width, dp.radians, _angle_doc(dp)),
+        )
+    return (Port("in_x", b, True, data), Port("in_y", b, True, data))
+
+
+def output_ports(dp: Datapath) -> tuple[Port, ...]:
+    """Data outputs, in port order."""
+    if dp.function == "sincos":
+        doc = f"two's complement, {dp.out_width} bits, amplitude {dp.amplitude}"
+        return (Port("out_cos", dp.out_width, True, doc), Port("out_sin", dp.out_width, True, doc))
+    if dp.function == "rotate":
+        scale = "input scale" if dp.gain_mode == "compensated" else f"input scale times 1/K = 1/{dp.gain[:10]}"
+        doc = f"two's complement, {dp.out_width} bits, {scale}"
+        return (Port("out_x", dp.out_width, True, doc), Port("out_y", dp.out_width, True, doc))
+    scale = "input scale" if dp.gain_mode == "compensated" else f"input scale times 1/K = 1/{dp.gain[:10]}"
+    return (
+        Port("out_angle", dp.angle_width, True, _angle_doc(dp) + (" (wraps)" if not dp.radians else "")),
+        Port("out_magnitude", dp.out_width, False, f"unsigned, {dp.out_width} bits, {scale}"),
+    )
+
+
+def small_vector_limit(dp: Datapath) -> int:
+    """atan2: the angle budget holds for vectors at least this long (1/16 of full scale).
+
+    Shorter vectors carry too few significant bits for a fine angle; see docs/error_analysis.md.
+    """
+    return 1 << max(0, dp.data_width - 5)
+
+
+def _uniform(rng: np.random.Generator, width: int, count: int, signed: bool) -> npt.NDArray[Any]:
+    if width <= 62:
+        vals = rng.integers(0, 1 << width, size=count, dtype=np.int64)
+        return to_signed(vals, width) if signed else vals
+    hi = rng.integers(0, 1 << 62, size=count, dtype=np.int64)
+    lo = rng.integers(0, 1 << (width - 62), size=count, dtype=np.int64)
+    vals = np.array([(int(h) << (width - 62)) | int(v) for h, v in zip(hi, lo, strict=True)], dtype=object)
+    return to_signed(vals, width) if signed else vals
+
+
+def _angle_corners(width: int, radians: bool, frac: int) -> list[int]:
+    full = 1 << width
+    codes: set[int] = set()
+    if radians:
+        for num, den in ((0, 1), (1, 2), (-1, 2), (1, 1), (-1, 1), (1, 4), (-1, 4)):
+            v = int(mpmath.nint(mpmath.pi * num / den * 2**frac))
+            codes.update({v - 1, v, v + 1})
+        codes.update({-(full // 2), full // 2 - 1})  # the ends of [-4, 4)
+        return sorted(c for c in codes if -(full // 2) <= c < full // 2)
+    for k in range(8):
+        edge = k * full // 8
+        codes.update({(edge - 1) % full, edge % full, (edge + 1) % full})
+    codes.add(full // 2)  # the most negative code, read as signed: -1/2 turn
+    codes.add(full - 1)
+    return sorted(to_signed(np.array([c], dtype=object), width)[0] if width > 62 else c for c in codes)
+
+
+def corner_inputs(dp: Datapath) -> Inputs:
+    """Boundary inputs: angle quadrant and octant edges and one code either side, the most
+    negative codes, full-scale and zero vectors, axes and diagonals."""
+    dtype: Any = np.int64 if max(dp.angle_width, dp.data_width) <= 62 else object
+    angles = _angle_corners(dp.angle_width, dp.radians, dp.angle_frac)
+    if dp.function == "sincos":
+        return {"in_angle": np.array(angles, dtype=dtype)}
+    m = (1 << (dp.data_width - 1)) - 1
+    lo = -(1 << (dp.data_width - 1))
+    vectors = [(m, 0), (0, m), (-m, 0), (0, -m), (m, m), (-m, m), (m, -m), (-m, -m), (lo, lo), (lo, 0), (0, lo),
+               (lo, m), (m, lo), (1, 0), (0, 1), (-1, 0), (0, -1), (1, 1), (-1, -1), (-1, 1), (1, -1),
+               (lo, -1), (lo, 1), (0, 0), (m, 1), (m, -1)]
+    if dp.function == "atan2":
+        xs, ys = zip(*vectors, strict=True)
+        return {"in_x": np.array(xs, dtype=dtype), "in_y": np.array(ys, dtype=dtype)}
+    xs, ys, zs = [], [], []
+    for k, a in enumerate(angles):
+        for vx, vy in (vectors[k % len(vectors)], (m, m), (lo, lo)):
+            xs.append(vx)
+            ys.append(vy)
+            zs.append(a)
+    return {"in_x": np.array(xs, dtype=dtype), "in_y": np.array(ys, dtype=dtype), "in_angle": np.array(zs, dtype=dtype)}
+
+
+def random_inputs(dp: Datapath, rng: np.random.Generator, count: int) -> Inputs:
+    """Uniform random codes on every input port."""
+    return {p.name: _uniform(rng, p.width, count, p.signed) for p in input_ports(dp)}
+
+
+def sizing_inputs(dp: Datapath) -> tuple[Inputs, bool]:
+    """The inputs a design's accuracy is measured on, and whether they are the whole space.
+
+    The whole input space when it has at most 2**20 points; otherwise 10**6 seeded random
+    inputs plus the corners (4096 where the model runs on Python integers).
+    """
+    ports = input_ports(dp)
+    total_bits = sum(p.width for p in ports)
+    if total_bits <= EXHAUSTIVE_LIMIT_BITS:
+        grids = np.meshgrid(*[np.arange(1 << p.width, dtype=np.int64) for p in ports], indexing="ij")
+        out = {}
+        for p, g in zip(ports, grids, strict=True):
+            flat = g.ravel()
+            out[p.name] = to_signed(flat, p.width) if p.signed else flat
+        return out, True
+    product = dp.data_width + 2 + dp.k_frac if dp.k_frac else 0
+    fast = dp.data_width <= 40 and dp.angle_width <= 56 and product <= 58
+    count = RANDOM_SIZING_SAMPLES if fast else WIDE_SIZING_SAMPLES
+    rng = np.random.default_rng(_SIZING_SEED)
+    corners = corner_inputs(dp)
+    rand = random_inputs(dp, rng, count)
+    return {k: np.concatenate([corners[k], rand[k]]) for k in rand}, False
+
+
+def ideal_outputs(dp: Datapath, inputs: Inputs, *, with_gain: bool = True) -> dict[str, npt.NDArray[Any]]:
+    """The exact answer for each numeric output (float64 or mpmath values; see reference.py).
+
+    Args:
+        dp: The data path.
+        inputs: Input values by port.
+        with_gain: Include a raw core's growth 1/K_n (False gives the gain-free answer, which
+            does not depend on the iteration count).
+    """
+    if dp.function == "sincos":
+        cos, sin = ideal_sincos(dp, inputs["in_angle"])
+        return {"out_cos": cos, "out_sin": sin}
+    x = np.asarray(inputs["in_x"], dtype=np.float64)
+    y = np.asarray(inputs["in_y"], dtype=np.float64)
+    growth = 1.0 if dp.gain_mode == "compensated" or not with_gain else 1.0 / float(dp.gain)
+    if dp.function == "rotate":
+        t = _angle_radians(dp, inputs["in_angle"])
+        c, s = np.cos(t), np.sin(t)
+        return {"out_x": growth * (x * c - y * s), "out_y": growth * (x * s + y * c)}
+    theta = np.arctan2(y, x)
+    angle = theta * 2.0**dp.angle_frac if dp.radians else theta / (2 * np.pi) * 2.0**dp.angle_width
+    return {"out_angle": angle, "out_magnitude": growth * np.hypot(x, y)}
+
+
+def _angle_radians(dp: Datapath, codes: npt.ArrayLike) -> npt.NDArray[np.float64]:
+    signed = to_signed(np.asarray(codes).astype(np.int64), dp.angle_width).astype(np.float64)
+    if dp.radians:
+        return signed / 2.0**dp.angle_frac
+    return signed * (2.0 * np.pi / 2.0**dp.angle_width)
+
+
+def function_errors(
+    dp: Datapath, inputs: Inputs, outputs: dict[str, npt.NDArray[Any]], ideal: dict[str, npt.NDArray[Any]] | None = None
+) -> dict[str, npt.NDArray[np.float64]]:
+    """Per output, the error against the ideal in that output's LSBs; NaN where not judged.
+
+    atan2 angles wrap (turns) and are judged only for vectors at least
+    :func:`small_vector_limit` long; the zero vector's angle is defined as 0 and not judged.
+    """
+    ideal = ideal if ideal is not None else ideal_outputs(dp, inputs)
+    errs = {name: errors_lsb(outputs[name], ideal[name]) for name in ideal}
+    if dp.function == "atan2":
+        e = errs["out_angle"]
+        if not dp.radians:
+            full = 2.0**dp.angle_width
+            e = (e + full / 2) % full - full / 2
+        x = np.asarray(inputs["in_x"], dtype=np.float64)
+        y = np.asarray(inputs["in_y"], dtype=np.float64)
+        errs["out_angle"] = np.where(np.hypot(x, y) >= small_vector_limit(dp), e, np.nan)
+    return errs
+
+
+def apply_gain(dp: Datapath, ideal: dict[str, npt.NDArray[Any]]) -> dict[str, npt.NDArray[Any]]:
+    """Scale a gain-free ideal by a raw core's growth 1/K_n (the data outputs only)."""
+    if dp.gain_mode == "compensated" or dp.function == "sincos":
+        return ideal
+    growth = 1.0 / float(dp.gain)
+    keep = {"out_angle"}
+    return {k: (v if k in keep else v * growth) for k, v in ideal.items()}
+
+
+def measure(dp: Datapath, inputs: Inputs, ideal_unit: dict[str, npt.NDArray[Any]] | None = None) -> ErrorStats:
+    """Pooled error of the bit-true model against the ideal over the inputs.
+
+    Args:
+        dp: The data path.
+        inputs: Input values by port.
+        ideal_unit: The gain-free ideal (``ideal_outputs(..., with_gain=False)``), if computed.
+    """
+    ideal = apply_gain(dp, ideal_unit) if ideal_unit is not None else None
+    outputs = evaluate_function(dp, inputs)
+    errs = [e[~np.isnan(e)] for e in function_errors(dp, inputs, outputs, ideal).values()]
+    stats = error_stats(errs, [np.zeros_like(e) for e in errs])
+    n = len(next(iter(inputs.values())))
+    return ErrorStats(n, stats.max_error_lsb, stats.rms_error_lsb, stats.bias_lsb)
