@@ -298,15 +298,16 @@ def _run_sim_task(task: Task, folder: Path, cache: Path | None) -> dict[str, Any
 
 
 def _run_synth_task(task: Task, folder: Path, cache: Path | None) -> dict[str, Any]:
-    from benchgen.synth import estimate, tool_versions
+    from benchgen.synth import DEVICES, estimate, tool_versions
 
     project = _generate_point_project(task.core, folder)
     design = _design_summary(project)
     source = _source_digest(project, design["rtl"])
     settings = task.synth
     tools = tool_versions(task.target, settings.place_and_route)
-    cache_key = _sha(json.dumps([source, design["toplevel"], task.target, settings.place_and_route,
-                                 settings.clock_mhz, tools]))
+    device = DEVICES[task.target]
+    cache_key = _sha(json.dumps([source, design["toplevel"], task.target, device.synth_command, device.pnr_args,
+                                 settings.place_and_route, settings.clock_mhz, tools]))
     cache_file = cache / "synth" / f"{cache_key[:32]}.json" if cache else None
     if cache_file and (hit := _read_json(cache_file)) is not None:
         return {**hit, "design": design, "cached": True}
