@@ -195,7 +195,6 @@ def render_bulk_harness(layout: BulkLayout) -> str:
         "version": __version__,
         "L": layout,
         "IN_W": 8 * layout.in_bytes,
-        "in_used": max(slot.lsb + slot.width for slot in layout.inputs),
         "OUT_W": 8 * layout.out_bytes,
         "IW": iw,
         "AW": iw - 1,
