@@ -265,7 +265,9 @@ class BulkBench:
             raise RuntimeError(f"the bulk bench does not know function '{function}' yet")
         self.function = _FUNCTIONS[function](self.design)
         self.dut = dut
-        self.seed = int(cocotb.RANDOM_SEED)
+        # The run's seed as given to `benchgen sim --seed` (cocotb 2 derives RANDOM_SEED from it
+        # per test, which would not reproduce the run when fed back).
+        self.seed = int(os.environ.get("COCOTB_RANDOM_SEED", cocotb.RANDOM_SEED))
         self.samples = int(os.environ.get(SAMPLES_ENV, DEFAULT_SAMPLES))
         self.tag_width = self.design.spec.tag_width
         self.fault = self._parse_fault(os.environ.get(FAULT_ENV, ""))
