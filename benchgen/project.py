@@ -14,7 +14,9 @@ from typing import Any
 
 from benchgen import __version__
 from benchgen.config import CoreSpec, load_config, parse_config
+from benchgen.algorithm import make_datapath, make_timing
 from benchgen.design import Design, build_design
+from benchgen.reference import ErrorStats
 from benchgen.errors import BenchgenError, ConfigError
 from benchgen.functions import input_ports, output_ports, small_vector_limit
 from benchgen.harness import bulk_project_files
@@ -86,6 +88,8 @@ def manifest_for(design: Design) -> dict[str, Any]:
             "model_max_error_lsb": round(design.accuracy.max_error_lsb, 6),
             "model_rms_error_lsb": round(design.accuracy.rms_error_lsb, 6),
             "model_bias_lsb": round(design.accuracy.bias_lsb, 6),
+            "model_samples": design.accuracy.samples,
+            "model_exhaustive": design.accuracy_exhaustive,
             "atan2_angle_budget_min_magnitude": small_vector_limit(dp) if dp.function == "atan2" else None,
             "measured_on": (
                 f"all {design.accuracy.samples} inputs"
@@ -265,7 +269,25 @@ def design_from_manifest(manifest: dict[str, Any]) -> Design:
         ProjectError: if this benchgen derives different numbers (the project is stale).
     """
     spec: CoreSpec = parse_config(manifest["config"])
-    design = build_design(spec)
+    derived = manifest["derived"]
+    budget = manifest["error_budget"]
+    # The size was proven when the project was generated; a bench only rebuilds the data path
+    # at that size (sizing again would cost every simulation start-up a search). The check
+    # below still catches any arithmetic that this benchgen derives differently.
+    n, g = derived["iterations"], derived["guard_bits"]
+    design = Design(
+        spec=spec,
+        datapath=make_datapath(spec, n, g),
+        timing=make_timing(spec, n),
+        accuracy=ErrorStats(
+            samples=budget["model_samples"],
+            max_error_lsb=budget["model_max_error_lsb"],
+            rms_error_lsb=budget["model_rms_error_lsb"],
+            bias_lsb=budget["model_bias_lsb"],
+        ),
+        accuracy_exhaustive=budget["model_exhaustive"],
+        auto_fields=tuple(derived["auto_fields"]),
+    )
     fresh = manifest_for(design)["derived"]
     if fresh != manifest["derived"]:
         raise ProjectError(

@@ -64,6 +64,39 @@ def test_issue_core_on_both_simulators(arch: str, simulator: str, tmp_path: Path
         assert report.latency_cycles == manifest["derived"]["pipeline_depth"]
 
 
+FUNCTION_CORES = {
+    "rotate": {"function": "rotate", "data_width": 12, "angle_width": 12, "tag_width": 3},
+    "rotate_raw_radians": {"function": "rotate", "data_width": 12, "angle_width": 13, "gain": "raw", "angle_unit": "radians"},
+    "atan2": {"function": "atan2", "data_width": 12, "angle_width": 12, "tag_width": 2},
+    "atan2_raw_radians": {"function": "atan2", "data_width": 12, "angle_width": 14, "gain": "raw", "angle_unit": "radians", "rounding": "truncate", "max_error_lsb": 1.5},
+}
+FUNCTION_ARCHITECTURES = {
+    "full_depth": {"architecture": "pipelined"},
+    "depth3": {"architecture": "pipelined", "pipeline_depth": 3},
+    "iter3": {"architecture": "iterative", "iterations_per_cycle": 3},
+}
+
+
+@pytest.mark.sim
+@pytest.mark.parametrize("simulator", SIMULATORS)
+@pytest.mark.parametrize("arch", list(FUNCTION_ARCHITECTURES))
+@pytest.mark.parametrize("core", list(FUNCTION_CORES))
+def test_functions_on_both_simulators(core: str, arch: str, simulator: str, tmp_path: Path) -> None:
+    # Each function core runs every architecture on one simulator and the plain variants on
+    # both, which keeps the matrix within the suite's time budget.
+    if core.endswith("radians") and simulator == "icarus" and arch != "depth3":
+        pytest.skip("radian/raw variants: every architecture on Verilator, one on Icarus")
+    require_simulator(simulator)
+    project = make_project(tmp_path, f"{core}_{arch}", {**FUNCTION_CORES[core], **FUNCTION_ARCHITECTURES[arch]})
+    manifest = json.loads((project / "manifest.json").read_text())
+    report = run_sim(project, simulator=simulator, samples=SAMPLES, seed=77)
+    assert report.passed, report.table()
+    assert report.mismatches == 0 and report.samples >= SAMPLES + 20
+    assert report.max_error_lsb < FUNCTION_CORES[core].get("max_error_lsb", 1.0)
+    assert report.latency_cycles == manifest["derived"]["latency_cycles"]
+    assert report.cycles_per_sample == manifest["derived"]["cycles_per_sample"]
+
+
 EDGE_CASES = {
     # tags, truncation (the carry-only last iteration), one guard bit (tie logic), no guard bits
     "tag_truncate": {"function": "sincos", "data_width": 12, "angle_width": 12, "rounding": "truncate", "max_error_lsb": 1.5, "tag_width": 5, "pipeline_depth": 4},

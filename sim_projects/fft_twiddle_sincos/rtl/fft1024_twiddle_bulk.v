@@ -136,7 +136,8 @@ module fft1024_twiddle_bulk;
     wire take_out = out_ready_reg & core_out_valid;
     wire [14:0] next_sent = take_in ? sent + 15'd1 : sent;
     wire [13:0] next_addr = next_sent[13:0];
-    wire [24:0] next_word = stim_mem[next_addr][24:0];
+    wire [9:0] next_in_angle = stim_mem[next_addr][9:0];
+    wire [8:0] next_in_tag = stim_mem[next_addr][24:16];
     wire [31:0] latency = cycle - in_stamp[received[13:0]];
     wire finished = (received == block_len) | (cycle == max_cycles);
     wire start = ~running & (block_req != block_ack);
@@ -206,8 +207,8 @@ module fft1024_twiddle_bulk;
                 end
                 if (next_sent != block_len && ~idle_now) begin
                     in_valid_reg <= 1'b1;
-                    in_angle_reg <= next_word[9:0];
-                    in_tag_reg <= next_word[24:16];
+                    in_angle_reg <= next_in_angle;
+                    in_tag_reg <= next_in_tag;
                 end else begin
                     in_valid_reg <= 1'b0;
                 end

@@ -131,7 +131,7 @@ module park_angle_sincos_bulk;
     wire take_out = out_ready_reg & core_out_valid;
     wire [14:0] next_sent = take_in ? sent + 15'd1 : sent;
     wire [13:0] next_addr = next_sent[13:0];
-    wire [11:0] next_word = stim_mem[next_addr][11:0];
+    wire [11:0] next_in_angle = stim_mem[next_addr][11:0];
     wire [31:0] latency = cycle - in_stamp[received[13:0]];
     wire finished = (received == block_len) | (cycle == max_cycles);
     wire start = ~running & (block_req != block_ack);
@@ -201,7 +201,7 @@ module park_angle_sincos_bulk;
                 end
                 if (next_sent != block_len && ~idle_now) begin
                     in_valid_reg <= 1'b1;
-                    in_angle_reg <= next_word[11:0];
+                    in_angle_reg <= next_in_angle;
                 end else begin
                     in_valid_reg <= 1'b0;
                 end

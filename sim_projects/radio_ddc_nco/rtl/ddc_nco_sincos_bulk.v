@@ -136,7 +136,8 @@ module ddc_nco_sincos_bulk;
     wire take_out = out_ready_reg & core_out_valid;
     wire [14:0] next_sent = take_in ? sent + 15'd1 : sent;
     wire [13:0] next_addr = next_sent[13:0];
-    wire [19:0] next_word = stim_mem[next_addr][19:0];
+    wire [15:0] next_in_angle = stim_mem[next_addr][15:0];
+    wire [3:0] next_in_tag = stim_mem[next_addr][19:16];
     wire [31:0] latency = cycle - in_stamp[received[13:0]];
     wire finished = (received == block_len) | (cycle == max_cycles);
     wire start = ~running & (block_req != block_ack);
@@ -206,8 +207,8 @@ module ddc_nco_sincos_bulk;
                 end
                 if (next_sent != block_len && ~idle_now) begin
                     in_valid_reg <= 1'b1;
-                    in_angle_reg <= next_word[15:0];
-                    in_tag_reg <= next_word[19:16];
+                    in_angle_reg <= next_in_angle;
+                    in_tag_reg <= next_in_tag;
                 end else begin
                     in_valid_reg <= 1'b0;
                 end
