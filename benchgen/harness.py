@@ -6,6 +6,10 @@ Two harnesses share one layout of the core's data ports:
   of stimulus words from a file into the core at full clock rate, applies seeded idle gaps and
   output stalls, captures every output word and writes the block back to a file. cocotb only
   starts blocks and reads a few counters, so Python never runs once per clock.
+* the native harness (Verilator only): a variant of the bulk harness with the same stream rules,
+  whose clock, controls and stimulus/result words are ports, and a generated C++ ``main`` that
+  clocks it, reading stimulus blocks from a command stream and writing results to a reply stream
+  (:mod:`benchgen.bench.bulk_native`). Neither cocotb nor timing coroutines run per clock.
 * the raw harness (C++, Verilator only): a ``main`` that clocks the core directly, one new input per
   clock; the ceiling of simulation speed on a machine, used by ``benchmarks/bulk_speed.py``.
 
@@ -36,7 +40,10 @@ __all__ = [
     "bulk_files",
     "bulk_layout",
     "bulk_project_files",
+    "native_names",
     "render_bulk_harness",
+    "render_native_harness",
+    "render_native_main",
     "render_raw_harness",
 ]
 
@@ -205,6 +212,43 @@ def render_bulk_harness(layout: BulkLayout) -> str:
         "count_pad": 32 - iw,
     }
     return _clean(_environment().get_template("bulk_harness.v.j2").render(ctx))
+
+
+def native_names(layout: BulkLayout) -> tuple[str, str]:
+    """Module name of the native harness and file name of its runner binary."""
+    return f"{layout.core}_bulk_native", f"{layout.core}_bulk_run"
+
+
+def render_native_harness(layout: BulkLayout) -> str:
+    """Verilog of the native harness: the bulk harness's stream rules, driven by a C++ main."""
+    iw = layout.index_width
+    ctx = {
+        "version": __version__,
+        "L": layout,
+        "module": native_names(layout)[0],
+        "OUT_W": 8 * layout.out_bytes,
+        "IW": iw,
+        "AW": iw - 1,
+        "result_word": _result_word(layout),
+        "index_one": f"{iw}'d1",
+        "index_zero": f"{iw}'d0",
+    }
+    return _clean(_environment().get_template("bulk_native.v.j2").render(ctx))
+
+
+def render_native_main(layout: BulkLayout) -> str:
+    """C++ ``main`` that clocks the native harness and serves blocks over a command stream."""
+    module, binary = native_names(layout)
+    ctx = {
+        "version": __version__,
+        "L": layout,
+        "module": module,
+        "binary": binary,
+        # A slot holds whole bytes; the port takes only its own bits (Verilator expects clean
+        # inputs, with nothing above a port's width).
+        "masks": {s.port: f"0x{(1 << s.width) - 1:x}ULL" for s in layout.inputs},
+    }
+    return _clean(_environment().get_template("bulk_main.cpp.j2").render(ctx))
 
 
 def render_raw_harness(layout: BulkLayout, *, angle_port: str = "in_angle") -> str:

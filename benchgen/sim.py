@@ -21,7 +21,9 @@ from benchgen.errors import BenchgenError
 from benchgen.project import design_from_manifest, load_manifest
 from benchgen.simulators import SIMULATORS, SimulatorMissing, find_simulator, simulator_env
 
-__all__ = ["SimError", "SimReport", "run_sim"]
+__all__ = ["BULK_ENGINES", "SimError", "SimReport", "run_sim"]
+
+BULK_ENGINES = ("auto", "native", "cocotb")
 
 
 class SimError(BenchgenError):
@@ -166,12 +168,17 @@ def run_sim(
     build_dir: str | Path | None = None,
     mode: str = "auto",
     exhaustive: bool = False,
+    bulk_engine: str = "auto",
 ) -> SimReport:
     """Build and simulate a project; return what the bench measured.
 
     ``mode`` is ``per-clock`` (the cocotb stream bench), ``bulk`` (the HDL harness streams whole
     blocks; see :mod:`benchgen.bench.bulk`) or ``auto`` (bulk from :data:`BULK_FROM_SAMPLES`
     samples on, and for ``exhaustive``, which checks every input code).
+
+    ``bulk_engine`` picks how a bulk run is driven: ``auto`` (a generated C++ runner on Verilator,
+    see :mod:`benchgen.bench.bulk_native`, unless waves are asked for; cocotb on Icarus),
+    ``native`` or ``cocotb``.
 
     Raises:
         SimError: if the simulator is missing or the run could not start.
@@ -182,6 +189,13 @@ def run_sim(
     if samples < 1:
         raise SimError(f"--samples {samples}: give a positive number of samples")
     bulk = bulk_plan(mode, samples, exhaustive)
+    if bulk_engine not in BULK_ENGINES:
+        raise SimError(f"bulk engine '{bulk_engine}': use one of {', '.join(BULK_ENGINES)}")
+    native = bulk and simulator == "verilator" and (bulk_engine == "native" or (bulk_engine == "auto" and not waves))
+    if native and waves:
+        raise SimError("the native bulk runner records no waves; drop --waves or use the cocotb bulk engine")
+    if bulk_engine == "native" and bulk and simulator != "verilator":
+        raise SimError("the native bulk runner needs Verilator; use --simulator verilator")
     project = Path(project_dir).resolve()
     manifest = load_manifest(project)
     design = design_from_manifest(manifest)
@@ -194,7 +208,8 @@ def run_sim(
     from cocotb_tools.runner import get_runner
 
     top = manifest["toplevel"]
-    build = Path(build_dir).resolve() if build_dir else project / "build" / (simulator + ("_bulk" if bulk else ""))
+    folder = simulator + ("_native" if native else "_bulk" if bulk else "")
+    build = Path(build_dir).resolve() if build_dir else project / "build" / folder
     build.mkdir(parents=True, exist_ok=True)
     results_jsonl = build / "bench_results.jsonl"
     results_xml = build / "results.xml"
@@ -214,6 +229,10 @@ def run_sim(
         expected_cycles_per_sample=design.timing.cycles_per_sample,
         log_file=str(log_file),
     )
+    if native:
+        report.mode = "bulk, exhaustive" if exhaustive else "bulk"
+        _run_native(report, project, manifest, design, info, build, samples, exhaustive, results_jsonl)
+        return report
     sources = [project / rel for rel in manifest["files"]["rtl"]]
     test_module, hdl_top, build_args, testcase = manifest["files"]["test_module"], top, [], None
     if bulk:
@@ -281,6 +300,34 @@ def run_sim(
     if csv_path and csv_tmp.is_file():
         Path(csv_path).write_text(csv_tmp.read_text())
     return report
+
+
+def _run_native(
+    report: SimReport,
+    project: Path,
+    manifest: dict[str, Any],
+    design: Any,
+    info: Any,
+    build: Path,
+    samples: int,
+    exhaustive: bool,
+    results_jsonl: Path,
+) -> None:
+    from benchgen.bench.bulk_native import run_native
+
+    run = run_native(
+        project, manifest, design, info, build,
+        samples=samples, seed=report.seed, exhaustive=exhaustive, results=results_jsonl,
+        log_file=Path(report.log_file),
+    )  # fmt: skip
+    report.build_seconds = run.build.seconds
+    report.sim_seconds = run.seconds
+    report.tests, report.failed = run.tests, run.failed
+    report.per_test = run.per_test
+    _pool(report, run.per_test)
+    if run.tests == 0:
+        report.problems.append("no test ran")
+    report.passed = run.tests > 0 and run.failed == 0 and report.mismatches == 0 and not report.problems
 
 
 def _pool(report: SimReport, per_test: list[dict[str, Any]]) -> None:

@@ -1,0 +1,456 @@
+"""What both bulk benches share: stimulus plans, word packing, the function's model, the checks.
+
+Two engines run the bulk tests: cocotb driving the HDL harness (:mod:`benchgen.bench.bulk`, used
+with Icarus) and a generated C++ main clocking a Verilator build of a harness variant
+(:mod:`benchgen.bench.bulk_native`). Everything that decides *what* is checked lives here, with no
+cocotb import, so both engines run the same tests with the same seeds and report the same
+records.
+
+Ports, stimulus, ideal values and which errors are judged come from :mod:`benchgen.functions`;
+bit-true outputs from :func:`benchgen.model.evaluate_function`. No function is special-cased.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Iterator
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+import numpy.typing as npt
+
+from benchgen.bench.scoreboard import FIRST_MISMATCHES, CheckResult
+from benchgen.design import Design
+from benchgen.functions import (
+    corner_inputs,
+    function_errors,
+    ideal_outputs,
+    input_ports,
+    output_ports,
+    random_inputs,
+)
+from benchgen.harness import BulkLayout, Slot
+from benchgen.model import evaluate_function, to_signed
+
+__all__ = [
+    "DEFAULT_SAMPLES",
+    "EXHAUSTIVE_MAX_BITS",
+    "FAULT_ENV",
+    "GAP_PATTERNS",
+    "SAMPLES_ENV",
+    "TABLE_MAX_BITS",
+    "Block",
+    "BulkFunction",
+    "FaultError",
+    "Segment",
+    "Tally",
+    "check_block",
+    "check_full_rate",
+    "check_patterns",
+    "exhaustive_plan",
+    "full_rate_plan",
+    "gaps_count",
+    "gaps_plan",
+    "level",
+    "pack",
+    "parse_fault",
+    "slot_of",
+    "unpack",
+    "with_tags",
+]
+
+SAMPLES_ENV = "BENCHGEN_SAMPLES"
+FAULT_ENV = "BENCHGEN_BULK_FAULT"
+DEFAULT_SAMPLES = 1_000_000
+EXHAUSTIVE_MAX_BITS = 24
+TABLE_MAX_BITS = 20
+"""Input spaces up to this many bits get the model and the ideal tabulated once per run: a lookup
+per sample then replaces the model's per-sample arithmetic, with the same bit-true answers."""
+
+GAP_PATTERNS = ((0.0, 0.0), (0.5, 0.0), (0.0, 0.5), (0.3, 0.7))
+"""(idle probability, stall probability) of the four segments of the gaps-and-stalls test."""
+
+LEVEL_ONE = 1 << 16
+"""A probability p is handed to the harness as the 16-bit level p * 65536."""
+
+Inputs = dict[str, npt.NDArray[Any]]
+
+
+class FaultError(ValueError):
+    """A malformed ``BENCHGEN_BULK_FAULT`` value."""
+
+
+class BulkFunction:
+    """The core's function as the bulk bench sees it: ports, stimulus, model and ideal.
+
+    The input space is the concatenation of the data inputs in port order, the first port in the
+    most significant bits (the order :func:`benchgen.functions.sizing_inputs` enumerates in).
+    """
+
+    def __init__(self, design: Design) -> None:
+        self.dp = design.datapath
+        self._in = input_ports(self.dp)
+        out = output_ports(self.dp)
+        self.inputs = tuple(p.name for p in self._in)
+        self.outputs = tuple(p.name for p in out)
+        self.signed_outputs = tuple(p.name for p in out if p.signed)
+        self.space_bits = sum(p.width for p in self._in)
+        self._table: tuple[Inputs, Inputs] | None = None
+
+    @property
+    def tabulated(self) -> bool:
+        """Whether :meth:`predict` looks answers up instead of running the model."""
+        return self._table is not None
+
+    def corners(self) -> Inputs:
+        """The function's boundary inputs."""
+        return corner_inputs(self.dp)
+
+    def random(self, rng: np.random.Generator, count: int) -> Inputs:
+        """Uniform random codes on every input port."""
+        return random_inputs(self.dp, rng, count)
+
+    def enumerate(self, start: int, count: int) -> Inputs:
+        """Input codes ``start .. start + count - 1`` of the input space, split into ports."""
+        return self._split(np.arange(start, start + count, dtype=np.int64))
+
+    def _split(self, codes: npt.NDArray[np.int64]) -> Inputs:
+        out: Inputs = {}
+        shift = self.space_bits
+        for p in self._in:
+            shift -= p.width
+            v = (codes >> np.int64(shift)) & np.int64((1 << p.width) - 1)
+            out[p.name] = to_signed(v, p.width) if p.signed else v
+        return out
+
+    def _code(self, inputs: Inputs) -> npt.NDArray[np.int64]:
+        code = np.zeros(len(inputs[self.inputs[0]]), dtype=np.int64)
+        for p in self._in:
+            code <<= np.int64(p.width)
+            code |= np.asarray(inputs[p.name], dtype=np.int64) & np.int64((1 << p.width) - 1)
+        return code
+
+    def tabulate(self) -> None:
+        """Model and ideal over the whole input space, once (only for spaces of at most 2**20)."""
+        if self.space_bits > TABLE_MAX_BITS:
+            return
+        every = self.enumerate(0, 1 << self.space_bits)
+        self._table = (evaluate_function(self.dp, every), ideal_outputs(self.dp, every))
+
+    def predict(self, inputs: Inputs) -> tuple[Inputs, Inputs]:
+        """Bit-true outputs and ideal values for a block of inputs."""
+        if self._table is not None:
+            idx = self._code(inputs)
+            model, ideal = self._table
+            return {k: v[idx] for k, v in model.items()}, {k: v[idx] for k, v in ideal.items()}
+        ins = {p: inputs[p] for p in self.inputs}
+        return evaluate_function(self.dp, ins), ideal_outputs(self.dp, ins)
+
+    def errors(self, inputs: Inputs, got: Inputs, ideal: Inputs) -> dict[str, npt.NDArray[np.float64]]:
+        """Per output, the observed error in LSBs, NaN where the budget does not judge it."""
+        ins = {p: inputs[p] for p in self.inputs}
+        return function_errors(self.dp, ins, {p: got[p] for p in self.outputs}, ideal)
+
+
+def with_tags(stim: Inputs, tag_width: int, rng: np.random.Generator) -> Inputs:
+    """Add random tags, so a swapped, lost or repeated sample shows in the tag too."""
+    if not tag_width:
+        return stim
+    n = len(next(iter(stim.values())))
+    return {**stim, "in_tag": rng.integers(0, 1 << min(tag_width, 62), size=n, dtype=np.int64)}
+
+
+@dataclass
+class Block:
+    """What the harness reported for one block.
+
+    Attributes:
+        outputs: Per output port, the values taken (signed ports as signed numbers).
+        sent / received: Input and output handshakes in the block.
+        cycles: Clocks the block ran.
+        lat_min / lat_max: Latency range over the block's samples, clocks.
+        first_in / last_in: Clocks of the first and last input handshake.
+        idle_count / stall_count: Clocks the source held back / the consumer stalled.
+        loaded_bytes: Stimulus bytes the harness read.
+        extra_count: Outputs no input asked for, since the last reset.
+    """
+
+    outputs: Inputs
+    sent: int
+    received: int
+    cycles: int
+    lat_min: int
+    lat_max: int
+    first_in: int
+    last_in: int
+    idle_count: int
+    stall_count: int
+    loaded_bytes: int
+    extra_count: int = 0
+
+
+@dataclass
+class Segment:
+    """Blocks run under one idle/stall pattern.
+
+    Attributes:
+        label: Prefix of this segment's problems ("" for plain random blocks).
+        blocks: Makes the stimulus blocks (tags not yet added), on demand.
+        idle / stall: Probabilities of an idle source clock / a stalled consumer clock.
+        pattern_check: Whether the test checks that the pattern was applied.
+    """
+
+    label: str
+    blocks: Callable[[], Iterator[Inputs]]
+    idle: float = 0.0
+    stall: float = 0.0
+    pattern_check: bool = False
+
+
+def _blocks(make: Callable[[int, int], Inputs], total: int, block: int) -> Callable[[], Iterator[Inputs]]:
+    def gen() -> Iterator[Inputs]:
+        start = 0
+        while start < total:
+            count = min(block, total - start)
+            yield make(start, count)
+            start += count
+
+    return gen
+
+
+def full_rate_plan(fn: BulkFunction, rng: np.random.Generator, samples: int, block: int) -> list[Segment]:
+    """``bulk_full_rate``: the corners, then ``samples`` random inputs offered every clock."""
+    corners = fn.corners()
+    return [
+        Segment("corners: ", lambda: iter([corners])),
+        Segment("", _blocks(lambda _s, c: fn.random(rng, c), samples, block)),
+    ]
+
+
+def gaps_count(samples: int) -> int:
+    """Samples of the gaps-and-stalls test for a run of ``samples``: a quarter, at least 4000."""
+    return max(4000, samples // 4)
+
+
+def gaps_plan(fn: BulkFunction, rng: np.random.Generator, samples: int, block: int) -> list[Segment]:
+    """``bulk_gaps_and_stalls``: a quarter of the samples under each of :data:`GAP_PATTERNS`."""
+    per = gaps_count(samples) // len(GAP_PATTERNS)
+    return [
+        Segment(
+            f"pattern {k} (idle {idle}, stall {stall}): ",
+            _blocks(lambda _s, c: fn.random(rng, c), per, block),
+            idle=idle,
+            stall=stall,
+            pattern_check=True,
+        )
+        for k, (idle, stall) in enumerate(GAP_PATTERNS)
+    ]
+
+
+def exhaustive_plan(fn: BulkFunction, block: int) -> list[Segment]:
+    """``bulk_exhaustive``: every input code once, in order, at full rate."""
+    return [Segment("", _blocks(fn.enumerate, 1 << fn.space_bits, block))]
+
+
+@dataclass
+class Tally:
+    """Comparisons of one test, accumulated over blocks with global sample numbers."""
+
+    result: CheckResult
+    seed: int
+    budget: float
+    worst: dict[str, tuple[float, int, dict[str, int]]] = field(default_factory=dict)
+    lat: tuple[int, int] | None = None
+    span: int = 0
+    gaps: int = 0
+    offered: int = 0
+    """Samples offered so far: the global number of the next block's first sample."""
+
+    def add(self, offset: int, inputs: Inputs, got: Inputs, expected: Inputs, errors: dict[str, Any]) -> None:
+        """Compare one block bit for bit, and its errors (NaN: not judged) against the budget."""
+        res = self.result
+        n = len(next(iter(got.values())))
+        res.samples += n
+        bad = np.zeros(n, dtype=bool)
+        for port, exp in expected.items():
+            bad |= np.asarray(got[port] != exp[:n], dtype=bool)
+        count = int(np.count_nonzero(bad))
+        if count:
+            res.mismatches += count
+            room = FIRST_MISMATCHES - len(res.first_mismatches)
+            for k in np.flatnonzero(bad)[: max(room, 0)]:
+                row: dict[str, Any] = {"index": offset + int(k)}
+                row.update({p: int(v[k]) for p, v in inputs.items()})
+                row.update({f"expected_{p}": int(v[k]) for p, v in expected.items()})
+                row.update({f"got_{p}": int(v[k]) for p, v in got.items()})
+                res.first_mismatches.append(row)
+        for port, all_err in errors.items():
+            err = np.asarray(all_err[:n], dtype=np.float64)
+            judged = ~np.isnan(err)
+            if not judged.any():
+                continue
+            mag = np.where(judged, np.abs(err), -1.0)
+            k = int(np.argmax(mag))
+            worst = float(mag[k])
+            res.sum_sq_error += float(np.sum(err[judged] ** 2))
+            res.error_count += int(np.count_nonzero(judged))
+            res.max_error_lsb = max(res.max_error_lsb, worst)
+            if worst > self.worst.get(port, (-1.0, 0, {}))[0]:
+                self.worst[port] = (worst, offset + k, {p: int(v[k]) for p, v in inputs.items()})
+
+    def timing(self, block: Block) -> None:
+        """Fold one block's latency range and input spacing in."""
+        if block.received:
+            lo, hi = block.lat_min, block.lat_max
+            self.lat = (lo, hi) if self.lat is None else (min(self.lat[0], lo), max(self.lat[1], hi))
+        if block.sent > 1:
+            self.span += block.last_in - block.first_in
+            self.gaps += block.sent - 1
+
+    def finish(self) -> CheckResult:
+        """Turn the tally into the test's record, with problems for people to read."""
+        res = self.result
+        if res.mismatches:
+            lines = "\n".join("  " + ", ".join(f"{a}={b}" for a, b in r.items()) for r in res.first_mismatches)
+            res.problems.insert(
+                0,
+                f"{res.mismatches} of {res.samples} samples differ from the bit-true model "
+                f"(seed {self.seed}, rerun with --seed {self.seed}); first ones:\n{lines}",
+            )
+        for port, (worst, k, inp) in sorted(self.worst.items()):
+            # Same rule as the per-clock bench: the error must stay strictly below the budget.
+            if worst >= self.budget:
+                res.problems.append(
+                    f"{port}: error {worst:.4f} LSB against the ideal is not below the budget {self.budget} LSB "
+                    f"at sample {k} (input " + ", ".join(f"{p}={v}" for p, v in inp.items()) + f"; seed {self.seed})"
+                )
+        if res.error_count:
+            res.rms_error_lsb = float(np.sqrt(res.sum_sq_error / res.error_count))
+        res.latency_cycles = self.lat
+        res.cycles_per_sample = self.span / self.gaps if self.gaps else None
+        return res
+
+
+def check_block(tally: Tally, fn: BulkFunction, stim: Inputs, block: Block, where: str, in_bytes: int) -> None:
+    """Counts of one block, then its samples against the model and the ideal."""
+    n = len(next(iter(stim.values())))
+    res = tally.result
+    if block.loaded_bytes != n * in_bytes:
+        res.problems.append(f"{where}: the harness read {block.loaded_bytes} stimulus bytes, expected {n * in_bytes}")
+    if block.sent != n or block.received != n:
+        res.problems.append(
+            f"{where}: {block.sent} of {n} samples went in and {block.received} came out "
+            f"in {block.cycles} clocks (seed {tally.seed})"
+        )
+    got = block.outputs
+    m = min(n, len(next(iter(got.values()))))
+    inputs = {p: v[:m] for p, v in stim.items()}
+    expected, ideal = fn.predict(inputs)
+    got = {p: v[:m] for p, v in got.items()}
+    if "in_tag" in stim:
+        expected["out_tag"] = inputs["in_tag"]
+    tally.add(tally.offered, inputs, got, expected, fn.errors(inputs, got, ideal))
+    tally.timing(block)
+    tally.offered += n
+
+
+def check_patterns(tally: Tally, segment: Segment, blocks: list[Block], latency: int) -> None:
+    """The idle/stall pattern was applied as asked, and no sample came out early."""
+    if not segment.pattern_check:
+        return
+    idles = sum(b.idle_count for b in blocks)
+    stalls = sum(b.stall_count for b in blocks)
+    if (idles > 0) != (segment.idle > 0) or (stalls > 0) != (segment.stall > 0):
+        tally.result.problems.append(f"{segment.label}the harness applied {idles} idle and {stalls} stall clocks")
+    lo = min((b.lat_min for b in blocks if b.received), default=latency)
+    if lo < latency:
+        tally.result.problems.append(f"{segment.label}a sample came out after {lo} clocks")
+
+
+def check_full_rate(res: CheckResult, design: Design) -> None:
+    """Latency and input spacing at full rate must match the manifest."""
+    timing = design.timing
+    if res.latency_cycles and res.latency_cycles != (timing.latency_cycles, timing.latency_cycles):
+        res.problems.append(
+            f"latency {res.latency_cycles[0]}..{res.latency_cycles[1]} clocks, manifest says {timing.latency_cycles}"
+        )
+    if res.cycles_per_sample is not None and res.cycles_per_sample != timing.cycles_per_sample:
+        res.problems.append(
+            f"one sample every {res.cycles_per_sample:.3f} clocks at full rate, "
+            f"manifest says {timing.cycles_per_sample}"
+        )
+
+
+def level(probability: float) -> int:
+    """A probability as the harness's 16-bit level."""
+    return min(LEVEL_ONE - 1, round(probability * LEVEL_ONE))
+
+
+def parse_fault(text: str, layout: BulkLayout) -> tuple[int, int] | None:
+    """``SAMPLE:PORT:BIT`` as (sample, mask over the result word); None for an empty value.
+
+    Raises:
+        FaultError: naming the part that is wrong and the form expected.
+    """
+    if not text:
+        return None
+    parts = text.split(":")
+    form = f"{FAULT_ENV}={text!r}: use SAMPLE:PORT:BIT, e.g. 1234:out_sin:0"
+    if len(parts) != 3 or not parts[0].isdigit() or not parts[2].isdigit():
+        raise FaultError(form)
+    slot = next((s for s in layout.outputs if s.port == parts[1]), None)
+    if slot is None:
+        raise FaultError(f"{form}; PORT must be one of {', '.join(s.port for s in layout.outputs)}")
+    bit = int(parts[2])
+    if bit >= slot.width:
+        raise FaultError(f"{form}; {slot.port} has bits 0..{slot.width - 1}")
+    return int(parts[0]), 1 << (slot.lsb + bit)
+
+
+def _as_u64(values: npt.NDArray[Any], width: int) -> npt.NDArray[np.uint64]:
+    arr = np.asarray(values)
+    mask = (1 << width) - 1
+    if arr.dtype == object:
+        return np.array([int(v) & mask for v in arr], dtype=np.uint64)
+    v = np.ascontiguousarray(arr, dtype=np.int64).astype(np.uint64)
+    if width < 64:
+        v &= np.uint64(mask)
+    return v
+
+
+def pack(layout: BulkLayout, values: Inputs, n: int, *, big_endian: bool) -> bytes:
+    """Stimulus words, each port in its slot.
+
+    Args:
+        layout: The word layout.
+        values: Per input port (tag included), ``n`` values.
+        n: Samples.
+        big_endian: Most significant byte first (what ``$fread`` fills a memory word in), else
+            least significant byte first (what the native C++ main copies into its ports).
+    """
+    buf = np.zeros((n, layout.in_bytes), dtype=np.uint8)
+    for slot in layout.inputs:
+        raw = _as_u64(values[slot.port], slot.width).astype("<u8").view(np.uint8).reshape(n, 8)
+        buf[:, slot.byte_offset : slot.byte_offset + slot.nbytes] = raw[:, : slot.nbytes]
+    return (buf[:, ::-1] if big_endian else buf).tobytes()
+
+
+def unpack(layout: BulkLayout, raw: npt.NDArray[np.uint8], signed: tuple[str, ...]) -> Inputs:
+    """Result words (least significant byte first) split into ports."""
+    words = raw.reshape(-1, layout.out_bytes)
+    out: Inputs = {}
+    for slot in layout.outputs:
+        part = np.ascontiguousarray(words[:, slot.byte_offset : slot.byte_offset + slot.nbytes])
+        v = part.view(f"<u{slot.nbytes}").ravel().astype(np.uint64)
+        if slot.width < 64:
+            v &= np.uint64((1 << slot.width) - 1)
+        if slot.port in signed:
+            out[slot.port] = to_signed(v.view(np.int64), slot.width) if slot.width < 64 else v.view(np.int64)
+        else:
+            out[slot.port] = v.astype(np.int64) if slot.width < 63 else v
+    return out
+
+
+def slot_of(layout: BulkLayout, port: str) -> Slot:
+    """The slot of one port (input or output)."""
+    return next(s for s in (*layout.inputs, *layout.outputs) if s.port == port)
