@@ -44,6 +44,7 @@ def _simulate(args: argparse.Namespace, project: Path) -> int:
         csv_path=args.csv,
         mode=args.mode,
         exhaustive=args.exhaustive,
+        bulk_engine=args.bulk_engine,
     )
     print(report.table())
     print(f"  log: {report.log_file}")
@@ -104,6 +105,13 @@ def _add_sim_options(p: argparse.ArgumentParser, default_sim: str | None) -> Non
         "--exhaustive",
         action="store_true",
         help="check every input code once (bulk bench; input spaces up to 2^24 codes)",
+    )
+    p.add_argument(
+        "--bulk-engine",
+        choices=("auto", "native", "cocotb"),
+        default="auto",
+        help="what drives a bulk run: native (a generated C++ runner, Verilator only) or cocotb; "
+        "auto picks native on Verilator unless --waves is given",
     )
 
 

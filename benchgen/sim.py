@@ -55,6 +55,8 @@ class SimReport:
         build_seconds: Wall time of the build.
         problems: What failed, with the first mismatches.
         log_file: The simulator's log.
+        mode: ``per-clock``, ``bulk`` or ``bulk, exhaustive``.
+        engine: What drove the bench: ``cocotb`` or ``C++ runner`` (Verilator bulk runs).
     """
 
     simulator: str
@@ -79,6 +81,7 @@ class SimReport:
     per_test: list[dict[str, Any]] = field(default_factory=list)
     log_file: str = ""
     mode: str = "per-clock"
+    engine: str = "cocotb"
 
     def as_dict(self) -> dict[str, Any]:
         """JSON form (the keys of ``--json``)."""
@@ -86,6 +89,7 @@ class SimReport:
             "simulator": self.simulator,
             "simulator_version": self.simulator_version,
             "mode": self.mode,
+            "engine": self.engine,
             "toplevel": self.toplevel,
             "seed": self.seed,
             "passed": self.passed,
@@ -113,7 +117,7 @@ class SimReport:
         cps = "-" if self.cycles_per_sample is None else f"{self.cycles_per_sample:g}"
         rows = [
             ("core", self.toplevel),
-            ("bench mode", self.mode),
+            ("bench mode", f"{self.mode} ({self.engine})"),
             ("simulator", f"{self.simulator} {self.simulator_version}"),
             ("seed", str(self.seed)),
             ("tests passed", f"{self.tests - self.failed} of {self.tests}"),
@@ -231,10 +235,12 @@ def run_sim(
     )
     if native:
         report.mode = "bulk, exhaustive" if exhaustive else "bulk"
+        report.engine = "C++ runner"
         _run_native(report, project, manifest, design, info, build, samples, exhaustive, results_jsonl)
         return report
     sources = [project / rel for rel in manifest["files"]["rtl"]]
-    test_module, hdl_top, build_args, testcase = manifest["files"]["test_module"], top, [], None
+    build_args: list[str] = []
+    test_module, hdl_top, testcase = manifest["files"]["test_module"], top, None
     if bulk:
         sources, test_module, hdl_top, build_args, testcase = bulk_run_args(project, manifest, info.name, exhaustive)
         report.mode = "bulk, exhaustive" if exhaustive else "bulk"

@@ -3,21 +3,27 @@
 Builds one 16-iteration, 16-bit pipelined sine/cosine core and measures, on this machine:
 
 * the per-clock cocotb bench (one Python await per clock), Verilator;
-* the bulk bench (HDL streams blocks, numpy checks arrays), Verilator and Icarus;
+* the bulk bench on Verilator with its generated C++ runner (no cocotb in the loop), and, for
+  reference, the same tests driven by cocotb on a --timing build;
+* the bulk bench on Icarus (cocotb drives the HDL harness, numpy checks arrays);
 * Icarus with file stimulus and file output and no Python at all;
 * a raw Verilator C++ harness clocking the core alone (the ceiling);
 * an exhaustive check of all 65,536 angles on Verilator, build included and excluded;
 * the bit-true model, 10**6 samples, 16 iterations and a 24-bit core with 28 iterations.
 
-Rates of cocotb tests come from the per-test wall time cocotb records in results.xml, so
-simulator start-up is left out of them (it is in the exhaustive wall times).
+Rates of cocotb tests come from the per-test wall time cocotb records in results.xml, rates of
+the native runner from the wall time it records per test (``wall_seconds``), so simulator
+start-up is left out of both (it is in the exhaustive wall times). The machine may be shared:
+the load average is printed before and after, and every ratio is taken within this one run.
 
     python benchmarks/bulk_speed.py [--samples 1000000] [--naive-samples 20000] [--icarus-samples 50000]
+                                   [--cocotb-samples 200000] [--raw-clocks 10000000] [--keep]
 """
 
 from __future__ import annotations
 
 import argparse
+import os
 import shutil
 import subprocess
 import sys
@@ -64,6 +70,11 @@ def _test_seconds(results_xml: Path, test: str) -> float:
 def _cocotb_rate(report_dir: Path, per_test: list[dict], test: str, record: str) -> float:
     samples = next(t["samples"] for t in per_test if t["test"] == record)
     return samples / _test_seconds(report_dir / "results.xml", test)
+
+
+def _native_rate(per_test: list[dict], record: str) -> float:
+    test = next(t for t in per_test if t["test"] == record)
+    return test["samples"] / test["wall_seconds"]
 
 
 def _icarus_no_python(project: Path, work: Path, samples: int) -> float:
@@ -148,8 +159,11 @@ def main() -> int:
     ap.add_argument("--samples", type=int, default=1_000_000, help="bulk samples on Verilator")
     ap.add_argument("--naive-samples", type=int, default=20_000, help="per-clock samples on Verilator")
     ap.add_argument("--icarus-samples", type=int, default=50_000, help="samples on Icarus (both ways)")
+    ap.add_argument("--keep", action="store_true", help="keep the work folder")
     ap.add_argument("--raw-clocks", type=int, default=10_000_000, help="clocks of the raw harness")
+    ap.add_argument("--cocotb-samples", type=int, default=200_000, help="cocotb-driven bulk samples on Verilator")
     args = ap.parse_args()
+    load0 = os.getloadavg()
     work = Path(tempfile.mkdtemp(prefix="bulk_speed_"))
     try:
         project = work / "proj"
@@ -159,27 +173,39 @@ def main() -> int:
         naive = run_sim(project, simulator="verilator", samples=args.naive_samples, seed=1, mode="per-clock")
         naive_rate = _cocotb_rate(Path(naive.log_file).parent, naive.per_test, "test_random_full_rate", "random_full_rate")
         bulk_v = run_sim(project, simulator="verilator", samples=args.samples, seed=1, mode="bulk")
-        bulk_v_rate = _cocotb_rate(Path(bulk_v.log_file).parent, bulk_v.per_test, "test_bulk_full_rate", "bulk_full_rate")
+        bulk_v_rate = _native_rate(bulk_v.per_test, "bulk_full_rate")
+        bulk_c = run_sim(
+            project, simulator="verilator", samples=args.cocotb_samples, seed=1, mode="bulk", bulk_engine="cocotb"
+        )
+        bulk_c_rate = _cocotb_rate(Path(bulk_c.log_file).parent, bulk_c.per_test, "test_bulk_full_rate", "bulk_full_rate")
         raw_rate, raw_build = _raw_verilator(project, work, args.raw_clocks)
         bulk_i = run_sim(project, simulator="icarus", samples=args.icarus_samples, seed=1, mode="bulk")
         bulk_i_rate = _cocotb_rate(Path(bulk_i.log_file).parent, bulk_i.per_test, "test_bulk_full_rate", "bulk_full_rate")
         icarus_rate = _icarus_no_python(project, work, args.icarus_samples)
-        for rep in (naive, bulk_v, bulk_i):
+        for rep in (naive, bulk_v, bulk_c, bulk_i):
             assert rep.passed, rep.problems
 
-        shutil.rmtree(project / "build" / "verilator_bulk", ignore_errors=True)
+        # Exhaustive: once from a clean build folder, then again on the cached build.
+        shutil.rmtree(project / "build" / "verilator_native", ignore_errors=True)
         t0 = time.perf_counter()
         exh = run_sim(project, simulator="verilator", exhaustive=True, seed=1)
         exh_wall = time.perf_counter() - t0
-        assert exh.passed and exh.samples == 1 << 16, exh.problems
+        t0 = time.perf_counter()
+        exh2 = run_sim(project, simulator="verilator", exhaustive=True, seed=2)
+        exh2_wall = time.perf_counter() - t0
+        for rep in (exh, exh2):
+            assert rep.passed and rep.samples == 1 << 16, rep.problems
+        assert exh2.build_seconds == 0.0, "the second exhaustive run rebuilt the runner"
 
         m16 = _model_rate({**CORE})
         m24 = _model_rate({**CORE, "angle_width": 24, "data_width": 24, "iterations": 28, "guard_bits": 6})
 
         rows = [
             ("cocotb per-clock loop, Verilator", naive_rate, "1.00x naive"),
-            ("bulk bench, Verilator", bulk_v_rate,
+            ("bulk bench, Verilator, C++ runner", bulk_v_rate,
              f"{bulk_v_rate / naive_rate:.1f}x naive (need >= 20); {100 * bulk_v_rate / raw_rate:.1f}% of raw (need >= 25)"),
+            ("bulk bench, Verilator, cocotb-driven (old)", bulk_c_rate,
+             f"{bulk_c_rate / naive_rate:.1f}x naive; {100 * bulk_c_rate / raw_rate:.1f}% of raw"),
             ("raw Verilator C++ harness (clocks/s)", raw_rate, f"{raw_rate / naive_rate:.1f}x naive; build {raw_build:.1f} s"),
             ("bulk bench, Icarus", bulk_i_rate,
              f"{100 * bulk_i_rate / icarus_rate:.1f}% of Icarus without Python (need >= 85)"),
@@ -192,11 +218,17 @@ def main() -> int:
         print(f"{'path':<46} {'samples/s':>12}  ratio")
         for name, rate, note in rows:
             print(f"{name:<46} {rate:>12,.0f}  {note}")
-        print(f"\nexhaustive 16-bit sincos on Verilator: {exh_wall:.1f} s wall with build, "
-              f"{exh.sim_seconds:.2f} s after the build (need < 3 s), build {exh.build_seconds:.1f} s; "
-              f"test alone {_test_seconds(Path(exh.log_file).parent / 'results.xml', 'test_bulk_exhaustive'):.2f} s")
+        test_alone = next(t["wall_seconds"] for t in exh2.per_test if t["test"] == "bulk_exhaustive")
+        print("\nexhaustive 16-bit sincos on Verilator (65,536 angles):")
+        print(f"  clean build folder: {exh_wall:.1f} s wall, of which build {exh.build_seconds:.1f} s "
+              f"and run {exh.sim_seconds:.2f} s")
+        print(f"  cached build:       {exh2_wall:.2f} s wall for the whole `benchgen sim` call "
+              f"(need < 3 s after the build); runner {exh2.sim_seconds:.2f} s, test alone {test_alone:.2f} s")
+        load1 = os.getloadavg()
+        print(f"\nload average (1, 5, 15 min) before: {', '.join(f'{v:.2f}' for v in load0)}; "
+              f"after: {', '.join(f'{v:.2f}' for v in load1)}; {os.cpu_count()} CPUs")
     finally:
-        if "--keep" not in sys.argv:
+        if not args.keep:
             shutil.rmtree(work, ignore_errors=True)
     return 0
 

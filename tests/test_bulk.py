@@ -1,4 +1,9 @@
-"""Bulk bench: word layout, mode choice, harness lint, and simulation runs on both simulators."""
+"""Bulk bench: word layout, mode choice, harness lint, and simulation runs on both simulators.
+
+Verilator runs go through the generated C++ runner (benchgen.bench.bulk_native); Icarus through
+cocotb. The Verilator tests share one project per module, so the runner is built once and the
+later tests reuse the cached build.
+"""
 
 from __future__ import annotations
 
@@ -9,10 +14,17 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from benchgen.bench.bulk import _pack, _unpack
+from benchgen.bench.bulk_check import BulkFunction, FaultError, pack, parse_fault, unpack
 from benchgen.bench.bulk_plan import BULK_FROM_SAMPLES, BulkError, bulk_plan, bulk_run_args
-from benchgen.harness import bulk_files, bulk_layout, render_bulk_harness
-from benchgen.project import generate_project, load_manifest
+from benchgen.harness import (
+    bulk_files,
+    bulk_layout,
+    native_names,
+    render_bulk_harness,
+    render_native_harness,
+    render_native_main,
+)
+from benchgen.project import design_from_manifest, generate_project, load_manifest
 from benchgen.simulators import find_simulator, simulator_env
 from tests.conftest import require_simulator, write_config
 
@@ -28,6 +40,12 @@ def _project(tmp_path: Path, **values: object) -> Path:
     out = tmp_path / "proj"
     generate_project(write_config(tmp_path / "core.toml", config), out)
     return out
+
+
+@pytest.fixture(scope="module")
+def sincos12(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """One 12-bit sine/cosine project with 8-bit tags, shared so Verilator builds its runner once."""
+    return _project(tmp_path_factory.mktemp("sincos12"), tag_width=8)
 
 
 def test_layout_slots_are_byte_aligned_and_words_whole_32_bit_units() -> None:
@@ -48,7 +66,7 @@ def test_stimulus_words_are_big_endian_with_each_port_in_its_slot() -> None:
     rng = np.random.default_rng(4)
     angle = rng.integers(0, 1 << 13, size=50)
     tag = rng.integers(0, 1 << 5, size=50)
-    raw = _pack(layout, layout.inputs, {"in_angle": angle, "in_tag": tag}, 50)
+    raw = pack(layout, {"in_angle": angle, "in_tag": tag}, 50, big_endian=True)
     words = [int.from_bytes(raw[k * layout.in_bytes : (k + 1) * layout.in_bytes], "big") for k in range(50)]
     a, t = layout.inputs
     assert [(w >> a.lsb) & ((1 << a.width) - 1) for w in words] == angle.tolist()
@@ -68,7 +86,7 @@ def test_result_words_unpack_to_signed_outputs_and_unsigned_tags() -> None:
         ).to_bytes(layout.out_bytes, "little")
         for x, y, z in zip(cos, sin, tag, strict=True)
     )
-    out = _unpack(layout, np.frombuffer(blob, dtype=np.uint8), ("out_cos", "out_sin"))
+    out = unpack(layout, np.frombuffer(blob, dtype=np.uint8), ("out_cos", "out_sin"))
     assert out["out_cos"].tolist() == cos.tolist()
     assert out["out_sin"].tolist() == sin.tolist()
     assert out["out_tag"].tolist() == tag.tolist()
@@ -115,33 +133,127 @@ def test_harness_is_lint_clean(tmp_path: Path) -> None:
     assert proc.returncode == 0, proc.stderr
 
 
+def test_stimulus_words_for_the_runner_are_little_endian() -> None:
+    layout = bulk_layout({"toplevel": "c", "ports": PORTS})
+    raw = pack(layout, {"in_angle": np.array([0x1234]), "in_tag": np.array([0x1F])}, 1, big_endian=False)
+    a, t = layout.inputs
+    word = int.from_bytes(raw, "little")
+    assert (word >> a.lsb) & 0x1FFF == 0x1234 and (word >> t.lsb) & 0x1F == 0x1F
+
+
+@pytest.mark.parametrize(
+    ("function", "ports"),
+    [("sincos", ["in_angle"]), ("rotate", ["in_x", "in_y", "in_angle"]), ("atan2", ["in_x", "in_y"])],
+)
+def test_the_input_space_is_every_port_concatenated_in_port_order(
+    tmp_path: Path, function: str, ports: list[str]
+) -> None:
+    project = _project(tmp_path, function=function, angle_width=6, data_width=6)
+    fn = BulkFunction(design_from_manifest(load_manifest(project)))
+    assert fn.inputs == tuple(ports)
+    assert fn.space_bits == 6 * len(ports)
+    every = fn.enumerate(0, 1 << fn.space_bits)
+    # Every combination once: the codes read back are 0 .. 2^bits - 1 in order.
+    assert fn._code(every).tolist() == list(range(1 << fn.space_bits))
+    # A table lookup gives the model's own answers.
+    rng = np.random.default_rng(8)
+    sample = fn.random(rng, 500)
+    direct, ideal_direct = fn.predict(sample)
+    fn.tabulate()
+    assert fn.tabulated
+    looked_up, ideal_looked_up = fn.predict(sample)
+    for port in direct:
+        assert looked_up[port].tolist() == direct[port].tolist()
+        np.testing.assert_allclose(np.asarray(ideal_looked_up[port], float), np.asarray(ideal_direct[port], float))
+
+
+def test_atan2_angle_errors_of_short_vectors_are_not_judged(tmp_path: Path) -> None:
+    project = _project(tmp_path, function="atan2", angle_width=10, data_width=10)
+    design = design_from_manifest(load_manifest(project))
+    fn = BulkFunction(design)
+    inputs = {"in_x": np.array([1, 400, 0]), "in_y": np.array([1, 300, 0])}
+    expected, ideal = fn.predict(inputs)
+    errors = fn.errors(inputs, expected, ideal)
+    assert np.isnan(errors["out_angle"][0]) and np.isnan(errors["out_angle"][2])
+    assert not np.isnan(errors["out_angle"][1])
+    assert not np.isnan(errors["out_magnitude"]).any()
+
+
+@pytest.mark.parametrize(
+    ("text", "message"),
+    [
+        ("12:out_sin", "SAMPLE:PORT:BIT"),
+        ("x:out_sin:0", "SAMPLE:PORT:BIT"),
+        ("12:out_tan:0", "one of out_cos, out_sin, out_tag"),
+        ("12:out_sin:12", "bits 0..11"),
+    ],
+)
+def test_a_malformed_fault_names_the_value_and_the_form(text: str, message: str) -> None:
+    layout = bulk_layout({"toplevel": "c", "ports": PORTS})
+    with pytest.raises(FaultError, match=message):
+        parse_fault(text, layout)
+    assert parse_fault("7:out_sin:3", layout) == (7, 1 << (layout.outputs[1].lsb + 3))
+
+
+def test_runner_main_copies_each_slot_into_its_port_and_masks_the_padding() -> None:
+    layout = bulk_layout({"toplevel": "c", "ports": PORTS})
+    module, binary = native_names(layout)
+    main = render_native_main(layout)
+    assert f'#include "V{module}.h"' in main and binary in main
+    assert "top_.stim_in_angle = load_bits(word + 0, 2) & 0x1fffULL;" in main
+    assert "top_.stim_in_tag = load_bits(word + 2, 1) & 0x1fULL;" in main
+    harness = render_native_harness(layout)
+    assert f"module {module} (" in harness and "c core (" in harness
+    assert "$fopen" not in harness and "#" not in harness.split("module", 1)[1].split("endmodule")[0]
+    assert render_native_main(layout) == main and render_native_harness(layout) == harness
+
+
+@pytest.mark.sim
+def test_runner_harness_is_lint_clean(tmp_path: Path) -> None:
+    require_simulator("verilator")
+    info = find_simulator("verilator")
+    project = _project(tmp_path, function="rotate", angle_width=10, data_width=10)
+    layout = bulk_layout(load_manifest(project))
+    module, _ = native_names(layout)
+    harness = tmp_path / f"{module}.v"  # named after its module, as the runner build names it
+    harness.write_text(render_native_harness(layout))
+    with simulator_env(info):
+        proc = subprocess.run(
+            [str(info.executable), "--lint-only", "-Wall", "--top-module", module,
+             str(project / f"rtl/{layout.core}.v"), str(harness)],
+            capture_output=True, text=True, check=False,
+        )  # fmt: skip
+    assert proc.returncode == 0, proc.stderr
+
+
 @pytest.mark.sim
 @pytest.mark.parametrize("simulator", ["icarus", "verilator"])
-def test_exhaustive_12_bit_check(tmp_path: Path, simulator: str) -> None:
+def test_exhaustive_12_bit_check(sincos12: Path, simulator: str) -> None:
     require_simulator(simulator)
     from benchgen.sim import run_sim
 
-    project = _project(tmp_path)
-    report = run_sim(project, simulator=simulator, exhaustive=True, seed=11)
+    report = run_sim(sincos12, simulator=simulator, exhaustive=True, seed=11)
     assert report.mode == "bulk, exhaustive"
     assert report.passed, report.problems
     assert report.samples == 1 << 12 and report.mismatches == 0
     assert report.latency_cycles == report.expected_latency_cycles
     assert report.cycles_per_sample == 1
+    (record,) = [json.loads(line) for line in (Path(report.log_file).parent / "bench_results.jsonl").open()]
+    assert record["test"] == "bulk_exhaustive" and record["samples"] == 1 << 12
 
 
 @pytest.mark.sim
 def test_one_flipped_bit_in_a_million_samples_is_found_and_reported(
-    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+    sincos12: Path, monkeypatch: pytest.MonkeyPatch
 ) -> None:
     require_simulator("verilator")
     from benchgen.sim import run_sim
 
-    project = _project(tmp_path)
     # Beyond the gaps-and-stalls test's samples, so only the full-rate run carries the fault.
     sample = int(np.random.default_rng().integers(400_000, 1_000_000))
     monkeypatch.setenv("BENCHGEN_BULK_FAULT", f"{sample}:out_sin:0")
-    report = run_sim(project, simulator="verilator", samples=1_000_000, seed=29)
+    report = run_sim(sincos12, simulator="verilator", samples=1_000_000, seed=29)
+    assert report.mode == "bulk" and Path(report.log_file).parent.name == "verilator_native"
     assert not report.passed
     assert report.mismatches == 1
     full = next(t for t in report.per_test if t["test"] == "bulk_full_rate")
@@ -149,23 +261,72 @@ def test_one_flipped_bit_in_a_million_samples_is_found_and_reported(
     assert row["index"] == sample
     assert abs(row["got_out_sin"] - row["expected_out_sin"]) == 1
     assert row["got_out_cos"] == row["expected_out_cos"]
+    assert row["got_out_tag"] == row["expected_out_tag"] == row["in_tag"]
     assert "in_angle" in row and "seed 29" in full["problems"][0]
     gaps = next(t for t in report.per_test if t["test"] == "bulk_gaps_and_stalls")
     assert gaps["mismatches"] == 0 and not gaps["problems"]
 
 
 @pytest.mark.sim
-def test_idle_gaps_and_stalls_lose_and_duplicate_nothing(tmp_path: Path) -> None:
-    require_simulator("verilator")
+@pytest.mark.parametrize("simulator", ["icarus", "verilator"])
+def test_idle_gaps_and_stalls_lose_and_duplicate_nothing(sincos12: Path, simulator: str) -> None:
+    require_simulator(simulator)
     from benchgen.sim import run_sim
 
-    project = _project(tmp_path, tag_width=8)
-    report = run_sim(project, simulator="verilator", samples=200_000, seed=3, mode="bulk")
+    samples = 200_000 if simulator == "verilator" else 16_000
+    report = run_sim(sincos12, simulator=simulator, samples=samples, seed=3, mode="bulk")
     assert report.passed, report.problems
     gaps = next(t for t in report.per_test if t["test"] == "bulk_gaps_and_stalls")
-    assert gaps["samples"] == 200_000 // 4 and gaps["mismatches"] == 0
+    assert gaps["samples"] == max(4000, samples // 4) and gaps["mismatches"] == 0
     assert gaps["latency_cycles"][0] == report.expected_latency_cycles
     assert gaps["latency_cycles"][1] > report.expected_latency_cycles  # stalls did hold samples back
+    assert gaps["cycles_per_sample"] > 1  # and idle clocks spread the inputs out
     results = Path(report.log_file).parent / "bench_results.jsonl"
     records = [json.loads(line) for line in results.read_text().splitlines()]
     assert {r["test"] for r in records} == {"bulk_full_rate", "bulk_gaps_and_stalls"}
+
+
+@pytest.mark.sim
+def test_the_runner_build_is_reused_while_the_sources_stay_the_same(sincos12: Path) -> None:
+    require_simulator("verilator")
+    from benchgen.sim import run_sim
+
+    first = run_sim(sincos12, simulator="verilator", samples=100_000, seed=4)
+    again = run_sim(sincos12, simulator="verilator", samples=100_000, seed=4)
+    assert first.passed and again.passed, first.problems + again.problems
+    assert again.build_seconds == 0.0
+    assert again.per_test[0]["samples"] == first.per_test[0]["samples"]
+
+
+@pytest.mark.sim
+def test_atan2_exhaustive_on_the_runner(tmp_path: Path) -> None:
+    require_simulator("verilator")
+    from benchgen.sim import run_sim
+
+    # 8-bit x and y: all 65,536 vectors, the short ones' angles exempt from the budget.
+    project = _project(tmp_path, function="atan2", angle_width=10, data_width=8, tag_width=2)
+    report = run_sim(project, simulator="verilator", exhaustive=True, seed=5)
+    assert report.passed, report.problems
+    assert report.samples == 1 << 16 and report.mismatches == 0
+    assert report.latency_cycles == report.expected_latency_cycles
+
+
+@pytest.mark.sim
+def test_rotate_bulk_run_on_icarus(tmp_path: Path) -> None:
+    require_simulator("icarus")
+    from benchgen.sim import run_sim
+
+    project = _project(tmp_path, function="rotate", angle_width=8, data_width=8, tag_width=2, angle_unit="radians")
+    report = run_sim(project, simulator="icarus", samples=6000, seed=6, mode="bulk")
+    assert report.passed, report.problems
+    assert report.samples == 6000 + 4000 + len(BulkFunction(design_from_manifest(load_manifest(project))).corners()["in_x"])
+
+
+@pytest.mark.sim
+def test_a_malformed_fault_stops_the_run_with_a_message(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    require_simulator("verilator")
+    from benchgen.sim import run_sim
+
+    monkeypatch.setenv("BENCHGEN_BULK_FAULT", "5:out_sine:0")
+    with pytest.raises(BulkError, match="out_sine"):
+        run_sim(_project(tmp_path), simulator="verilator", samples=100_000, seed=1)

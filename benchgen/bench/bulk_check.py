@@ -135,7 +135,8 @@ class BulkFunction:
         if self.space_bits > TABLE_MAX_BITS:
             return
         every = self.enumerate(0, 1 << self.space_bits)
-        self._table = (evaluate_function(self.dp, every), ideal_outputs(self.dp, every))
+        model_in: dict[str, npt.ArrayLike] = dict(every)
+        self._table = (evaluate_function(self.dp, model_in), ideal_outputs(self.dp, every))
 
     def predict(self, inputs: Inputs) -> tuple[Inputs, Inputs]:
         """Bit-true outputs and ideal values for a block of inputs."""
@@ -144,7 +145,8 @@ class BulkFunction:
             model, ideal = self._table
             return {k: v[idx] for k, v in model.items()}, {k: v[idx] for k, v in ideal.items()}
         ins = {p: inputs[p] for p in self.inputs}
-        return evaluate_function(self.dp, ins), ideal_outputs(self.dp, ins)
+        model_in: dict[str, npt.ArrayLike] = dict(ins)
+        return evaluate_function(self.dp, model_in), ideal_outputs(self.dp, ins)
 
     def errors(self, inputs: Inputs, got: Inputs, ideal: Inputs) -> dict[str, npt.NDArray[np.float64]]:
         """Per output, the observed error in LSBs, NaN where the budget does not judge it."""

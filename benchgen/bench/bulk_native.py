@@ -60,7 +60,13 @@ from benchgen.bench.bulk_check import (
 from benchgen.bench.bulk_plan import BulkError
 from benchgen.bench.scoreboard import CheckResult
 from benchgen.design import Design
-from benchgen.harness import BulkLayout, bulk_layout, native_names, render_native_harness, render_native_main
+from benchgen.harness import (
+    BulkLayout,
+    bulk_layout,
+    native_names,
+    render_native_harness,
+    render_native_main,
+)
 from benchgen.simulators import SimulatorInfo, simulator_env
 
 __all__ = ["NATIVE_FLAGS", "NativeBuild", "NativeRun", "build_native", "run_native"]
@@ -264,7 +270,7 @@ class _NativeBench:
                     session.block(stim, idle=segment.idle, stall=segment.stall, fault=fault)
                     done += n
             out.put(None)
-        except BaseException as exc:  # handed to the checking thread, which reports it
+        except BaseException as exc:  # noqa: BLE001 -- handed to the checking thread, which reports it
             out.put(exc)
 
     def run_test(self, session: _Session, test: _Test) -> CheckResult:
