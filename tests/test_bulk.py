@@ -330,3 +330,20 @@ def test_a_malformed_fault_stops_the_run_with_a_message(tmp_path: Path, monkeypa
     monkeypatch.setenv("BENCHGEN_BULK_FAULT", "5:out_sine:0")
     with pytest.raises(BulkError, match="out_sine"):
         run_sim(_project(tmp_path), simulator="verilator", samples=100_000, seed=1)
+
+
+def test_a_runner_that_dies_is_reported_not_waited_for(tmp_path: Path) -> None:
+    from benchgen.bench.bulk_check import full_rate_plan
+    from benchgen.bench.bulk_native import _NativeBench, _Session, _Test
+
+    project = _project(tmp_path)
+    design = design_from_manifest(load_manifest(project))
+    layout = bulk_layout(load_manifest(project))
+    log_path = tmp_path / "sim.log"
+    bench = _NativeBench(design, layout, 7, None, log_path)
+    plan = full_rate_plan(bench.function, bench.rng(1), 50_000, layout.block)
+    with log_path.open("wb") as log:
+        session = _Session(Path("/bin/true"), log, layout)  # ends at once, answers nothing
+        result = bench.run_test(session, _Test("bulk_full_rate", 1, plan, True, 50_000))
+        session.close()
+    assert result.problems and "seed 7" in result.problems[0] and str(log_path) in result.problems[0]

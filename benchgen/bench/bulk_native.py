@@ -175,6 +175,8 @@ class _Session:
         assert self.proc.stdin is not None and self.proc.stdout is not None
         self.stdin = self.proc.stdin
         self.stdout = self.proc.stdout
+        self.broken = False
+        """Set when the command and reply streams are out of step; the runner is then killed."""
 
     def send(self, data: bytes) -> None:
         self.stdin.write(data)
@@ -217,12 +219,21 @@ class _Session:
             extra_count=int(w[11]),
         )
 
-    def close(self) -> int:
-        try:
-            self.send(np.array([_COMMAND_END], dtype="<u4").tobytes())
-            self.stdin.close()
-        except (BrokenPipeError, OSError, ValueError):
-            pass
+    def close(self, *, kill: bool = False) -> int:
+        """End the runner: politely after a clean run, at once when it is out of step."""
+        self.broken = self.broken or kill
+        if self.broken:
+            self.proc.kill()
+        else:
+            try:
+                self.send(np.array([_COMMAND_END], dtype="<u4").tobytes())
+            except (BrokenPipeError, OSError, ValueError):
+                pass
+        for pipe in (self.stdin, self.stdout):
+            try:
+                pipe.close()
+            except (BrokenPipeError, OSError, ValueError):
+                pass
         try:
             return self.proc.wait(timeout=30)
         except subprocess.TimeoutExpired:
@@ -240,7 +251,10 @@ class _Test:
 
 
 class _NativeBench:
-    def __init__(self, design: Design, layout: BulkLayout, seed: int, fault: tuple[int, int] | None) -> None:
+    def __init__(
+        self, design: Design, layout: BulkLayout, seed: int, fault: tuple[int, int] | None, log: Path
+    ) -> None:
+        self.log = log
         self.design = design
         self.layout = layout
         self.seed = seed
@@ -252,8 +266,18 @@ class _NativeBench:
         # The same derivation as the cocotb bulk bench, so a seed means the same stimulus there.
         return np.random.default_rng([self.seed, salt])
 
-    def _feed(self, session: _Session, test: _Test, out: queue.Queue[Any]) -> None:
+    def _feed(self, session: _Session, test: _Test, out: queue.Queue[Any], stop: threading.Event) -> None:
         """Send the reset and every block of a test; queue each block's stimulus for the checks."""
+
+        def hand_over(item: Any) -> bool:
+            while not stop.is_set():
+                try:
+                    out.put(item, timeout=0.1)
+                    return True
+                except queue.Full:
+                    continue
+            return False
+
         try:
             seeds = self.rng(1000 + test.salt).integers(1, 1 << 32, size=2, dtype=np.uint64)
             session.reset((int(seeds[0]), int(seeds[1])))
@@ -266,19 +290,21 @@ class _NativeBench:
                     fault = None
                     if self.fault is not None and done <= self.fault[0] < done + n:
                         fault = (self.fault[0] - done, self.fault[1])
-                    out.put((k, stim))
+                    if not hand_over((k, stim)):
+                        return
                     session.block(stim, idle=segment.idle, stall=segment.stall, fault=fault)
                     done += n
-            out.put(None)
+            hand_over(None)
         except BaseException as exc:  # noqa: BLE001 -- handed to the checking thread, which reports it
-            out.put(exc)
+            hand_over(exc)
 
     def run_test(self, session: _Session, test: _Test) -> CheckResult:
         tally = Tally(CheckResult(test=test.name), self.seed, self.design.spec.max_error_lsb)
         if (1 << self.function.space_bits) <= 4 * test.prepare_total:
             self.function.tabulate()
         pending: queue.Queue[Any] = queue.Queue(maxsize=_QUEUE_BLOCKS)
-        feeder = threading.Thread(target=self._feed, args=(session, test, pending), daemon=True)
+        stop = threading.Event()
+        feeder = threading.Thread(target=self._feed, args=(session, test, pending, stop), daemon=True)
         feeder.start()
         seen: list[list[Block]] = [[] for _ in test.plan]
         signed = self.function.signed_outputs
@@ -293,9 +319,17 @@ class _NativeBench:
                 where = f"{test.plan[k].label}samples {tally.offered}..{tally.offered + n - 1}"
                 check_block(tally, self.function, stim, block, where, self.layout.in_bytes)
         except _RunnerGone as exc:
-            tally.result.problems.append(f"{exc} (seed {self.seed})")
+            session.broken = True
+            tally.result.problems.append(f"{exc} (seed {self.seed}); see {self.log}")
             return tally.finish()
+        except BaseException:
+            session.broken = True
+            raise
         finally:
+            stop.set()
+            if session.broken:
+                # A feeder stuck writing to a runner nobody reads from is freed by ending it.
+                session.close(kill=True)
             feeder.join(timeout=5)
         extra_before = 0
         for segment, blocks in zip(test.plan, seen, strict=True):
@@ -339,7 +373,7 @@ def run_native(
         fault = parse_fault(os.environ.get(FAULT_ENV, ""), layout)
     except FaultError as exc:
         raise BulkError(str(exc)) from None
-    bench = _NativeBench(design, layout, seed, fault)
+    bench = _NativeBench(design, layout, seed, fault, log_file)
     fn = bench.function
     if exhaustive and fn.space_bits > EXHAUSTIVE_MAX_BITS:
         raise BulkError(
@@ -367,6 +401,8 @@ def run_native(
         gc.disable()
         try:
             for test in tests:
+                if session.broken:
+                    break
                 t0 = time.perf_counter()
                 result = bench.run_test(session, test)
                 line = {**result.as_dict(), "wall_seconds": round(time.perf_counter() - t0, 6)}
