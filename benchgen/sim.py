@@ -16,7 +16,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from benchgen.bench.bulk_plan import BULK_FROM_SAMPLES, FULL_RATE_TESTS, bulk_plan, bulk_run_args
+from benchgen.bench.bulk_plan import FULL_RATE_TESTS, bulk_plan, bulk_run_args
 from benchgen.errors import BenchgenError
 from benchgen.project import design_from_manifest, load_manifest
 from benchgen.simulators import SIMULATORS, SimulatorMissing, find_simulator, simulator_env
