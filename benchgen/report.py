@@ -47,7 +47,7 @@ COLUMNS = (
     "max_error_lsb", "rms_error_lsb", "budget_lsb", "model_max_error_lsb", "latency_cycles",
     "expected_latency_cycles", "cycles_per_sample",
 )
-RESOURCE_KEYS = ("luts", "ffs", "carry", "bram", "dsp", "logic_cells", "fmax_mhz")
+RESOURCE_KEYS = ("luts", "ffs", "carry", "bram", "dsp", "logic_cells", "fmax_mhz", "note")
 
 
 class ReportError(BenchgenError):
@@ -402,6 +402,10 @@ def to_markdown(data: ReportData, plots: dict[str, str] | None = None,
         parts += ["## Plots", ""]
         for title, path in plots.items():
             parts += [f"### {title}", "", f"![{title}]({path})", ""]
+    notes = sorted({f"{r['point'].rsplit(' ', 1)[0]} ({t}): {e['note']}" for r in data.rows
+                    for t, e in r["estimates"].items() if e.get("note")})
+    if notes:
+        parts += ["## Estimate notes", ""] + [f"- {n}" for n in notes] + [""]
     bad = [r for r in data.rows if r["status"] != "passed"]
     if bad:
         parts += ["## Failures", ""]
@@ -498,6 +502,10 @@ def to_html(data: ReportData, plots: dict[str, bytes], spectra: list[dict[str, A
         for title, png in plots.items():
             uri = "data:image/png;base64," + base64.b64encode(png).decode("ascii")
             parts += [f"<h3>{html.escape(title)}</h3>", f'<img alt="{html.escape(title)}" src="{uri}">']
+    notes = sorted({f"{r['point'].rsplit(' ', 1)[0]} ({t}): {e['note']}" for r in data.rows
+                    for t, e in r["estimates"].items() if e.get("note")})
+    if notes:
+        parts += ["<h2>Estimate notes</h2><ul>", *(f"<li>{html.escape(n)}</li>" for n in notes), "</ul>"]
     bad = [r for r in data.rows if r["status"] != "passed"]
     if bad:
         parts.append("<h2>Failures</h2>")

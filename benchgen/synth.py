@@ -35,6 +35,10 @@ __all__ = [
 ]
 
 TOOL_TIMEOUT_S = 1800
+# nextpnr-ice40's default router can circle for ever on one congested net (seen here on a 16-bit,
+# 8-stage core: still one overused wire after 30 minutes). Past this limit the point is routed
+# again with router2, which converged in under a minute, and the estimate says so.
+ROUTER1_LIMIT_S = 300
 
 
 @dataclass(frozen=True)
@@ -109,6 +113,7 @@ class Estimate:
         fmax_mhz: Achieved clock frequency from nextpnr, or ``None`` without place and route.
         clock_mhz: The frequency the placer aimed at.
         logic_cells: Cells the placer used (iCE40 logic cells / ECP5 slices' combinational halves).
+        note: Anything that makes this estimate less comparable with the others (e.g. another router).
         tools: Tool versions.
         seconds: Wall time.
     """
@@ -126,6 +131,7 @@ class Estimate:
     logic_cells: int | None
     tools: dict[str, str]
     seconds: float
+    note: str | None = None
 
     def as_dict(self) -> dict[str, Any]:
         """JSON form."""
@@ -167,12 +173,16 @@ def tool_versions(target: str, place_and_route: bool) -> dict[str, str]:
     return {n: version(n) for n in names}
 
 
-def _run(cmd: list[str], log: Path, cwd: Path) -> None:
+class _Timeout(SynthError):
+    pass
+
+
+def _run(cmd: list[str], log: Path, cwd: Path, timeout: float = TOOL_TIMEOUT_S) -> None:
     with log.open("w") as fh:
         try:
-            proc = subprocess.run(cmd, cwd=cwd, stdout=fh, stderr=subprocess.STDOUT, timeout=TOOL_TIMEOUT_S, check=False)
+            proc = subprocess.run(cmd, cwd=cwd, stdout=fh, stderr=subprocess.STDOUT, timeout=timeout, check=False)
         except subprocess.TimeoutExpired:
-            raise SynthError(f"{Path(cmd[0]).name} took longer than {TOOL_TIMEOUT_S} s; see {log}") from None
+            raise _Timeout(f"{Path(cmd[0]).name} took longer than {timeout:g} s; see {log}") from None
     if proc.returncode != 0:
         tail = log.read_text(errors="replace").strip().splitlines()[-5:]
         raise SynthError(f"{Path(cmd[0]).name} failed (exit {proc.returncode}); see {log}: " + " | ".join(tail))
@@ -208,12 +218,17 @@ def estimate(
     stat = json.loads((work_dir / "stat.json").read_text())
     cells: dict[str, int] = dict(sorted(stat["design"].get("num_cells_by_type", {}).items()))
     fmax = logic = None
+    note = None
     if place_and_route:
         cmd = [
             *_tool(device.pnr_tool), *device.pnr_args, "--json", "netlist.json",
             "--freq", f"{clock_mhz:g}", "--timing-allow-fail", "--report", "pnr.json", "--seed", "1",
         ]
-        _run(cmd, work_dir / "nextpnr.log", work_dir)
+        try:
+            _run(cmd, work_dir / "nextpnr.log", work_dir, timeout=ROUTER1_LIMIT_S)
+        except _Timeout:
+            _run([*cmd, "--router", "router2"], work_dir / "nextpnr_router2.log", work_dir)
+            note = f"routed with router2: the default router did not converge in {ROUTER1_LIMIT_S} s"
         rep = json.loads((work_dir / "pnr.json").read_text())
         clocks = rep.get("fmax", {})
         if clocks:
@@ -236,4 +251,5 @@ def estimate(
         logic_cells=logic,
         tools=tool_versions(target, place_and_route),
         seconds=round(time.perf_counter() - t0, 2),
+        note=note,
     )
