@@ -78,12 +78,14 @@ class Datapath:
     """Numbers of the rotation data path, shared by the model and the RTL.
 
     Attributes:
-        function: ``sincos``, ``rotate`` or ``atan2``.
+        function: ``sincos``, ``rotate``, ``atan2``, ``mul`` or ``div``.
+        coordinates: ``circular`` or ``linear`` (Walther 1971).
         mode: ``rotation`` (drive z to 0) or ``vectoring`` (drive y to 0).
         angle_unit: ``turns`` (binary angle) or ``radians`` (fixed point) at the angle port.
         gain_mode: ``compensated`` (the core removes the gain) or ``raw`` (left in).
         angle_width: Bits of the angle port (input for sincos/rotate, output for atan2).
-        angle_frac: Fraction bits of the angle port: of a turn, or of a radian.
+        angle_frac: Fraction bits of the z port: of a turn or a radian; for div, of the
+            quotient; for mul, of the multiplier.
         data_width: Bits of the data ports (inputs of rotate/atan2, outputs of sincos).
         iterations: Number of iterations; iteration i shifts by i.
         guard_bits: Fraction bits kept below the data LSB inside the data path.
@@ -96,13 +98,15 @@ class Datapath:
         k_const: rotate/atan2 compensated: K_n at ``k_frac`` fraction bits (0 when raw).
         k_frac: Fraction bits of ``k_const``.
         pi_const: radians: pi at ``z_frac`` fraction bits (0 for turns).
-        atan_table: atan(2**-i) at ``z_frac`` fraction bits of the unit, for each iteration.
+        atan_table: The z step of each iteration at ``z_frac`` fraction bits: atan(2**-i)
+            (circular) or 2**-i (linear).
         gain: K_n as a decimal string (60 digits computed, 20 printed).
         out_width: Bits of each data output.
         out_max: Data outputs saturate to +-out_max.
     """
 
     function: str = "sincos"
+    coordinates: str = "circular"
     mode: str = "rotation"
     angle_unit: str = "turns"
     gain_mode: str = "compensated"
@@ -145,6 +149,8 @@ def make_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Datapath:
     b = spec.data_width
     a = spec.angle_width
     g = guard_bits
+    if spec.function in ("mul", "div"):
+        return _linear_datapath(spec, iterations, guard_bits)
     radians = spec.angle_unit == "radians"
     angle_frac = a - RADIAN_INT_BITS if radians else a
     amplitude = (1 << (b - 1)) - 1
@@ -173,14 +179,7 @@ def make_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Datapath:
         # One output LSB is 1/amplitude rad, about 2^-(b + 1.65) turn: b + 2 fraction bits.
         z_frac = max(a, b + 2 + g)
     z_width = z_frac + RADIAN_INT_BITS if radians else z_frac
-    if iterations > xy_width:
-        raise ConfigError(
-            "iterations",
-            iterations,
-            f"at most the internal width, {xy_width} bits (data width + guard_bits + headroom): "
-            "a longer shift only adds copies of the sign",
-            f"set iterations to {xy_width} or fewer, or raise data_width or guard_bits",
-        )
+    _check_width(iterations, xy_width)
     gain = circular_gain(iterations)
     x_start = 0
     k_const = 0
@@ -217,6 +216,66 @@ def make_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Datapath:
         gain=mpmath.nstr(gain, 20),
         out_width=out_width,
         out_max=out_max,
+    )
+
+
+def _check_width(iterations: int, xy_width: int) -> None:
+    if iterations > xy_width:
+        raise ConfigError(
+            "iterations",
+            iterations,
+            f"at most the internal width, {xy_width} bits (data width + guard_bits + headroom): "
+            "a longer shift only adds copies of the sign",
+            f"set iterations to {xy_width} or fewer, or raise data_width or guard_bits",
+        )
+
+
+def _linear_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Datapath:
+    """mul and div: linear coordinates (Walther 1971), x held, z stepping by 2^-i.
+
+    Both take fractions of data_width bits (b - 1 fraction bits, [-1, 1)). mul: y = a * b in
+    rotation mode, z starting at b; |b| < 1 is inside the linear range of 2 (i from 0).
+    div: z = num / den in vectoring mode, in range while |num / den| < 2; the quotient has
+    b - 2 fraction bits, [-2, 2).
+    """
+    b = spec.data_width
+    g = guard_bits
+    mul = spec.function == "mul"
+    # x and y hold a fraction of b - 1 fraction bits plus g guard bits, with two integer bits:
+    # y reaches |a b| < 1 (mul) or stays within |x| < 1 after the first step (div).
+    xy_width = b + g + 2
+    out_frac = b - 1 if mul else b - 2
+    z_frac = out_frac + g
+    z_width = z_frac + (2 if mul else 3)  # mul: |z| < 2; div: the quotient, |z| < 4
+    _check_width(iterations, xy_width)
+    if iterations > z_frac + 1:
+        raise ConfigError(
+            "iterations",
+            iterations,
+            f"at most {z_frac + 1} here: the step 2^-i must stay within the {z_frac} fraction bits of z",
+            f"set iterations to {z_frac + 1} or fewer, or raise guard_bits",
+        )
+    out_width = b + 1 if mul else b
+    return Datapath(
+        function=spec.function,
+        coordinates="linear",
+        mode="rotation" if mul else "vectoring",
+        angle_unit="turns",
+        gain_mode="compensated",
+        angle_width=b,
+        angle_frac=out_frac,
+        data_width=b,
+        iterations=iterations,
+        guard_bits=g,
+        rounding=spec.rounding,
+        xy_width=xy_width,
+        z_width=z_width,
+        z_frac=z_frac,
+        amplitude=(1 << (b - 1)) - 1,
+        atan_table=tuple(1 << (z_frac - i) for i in range(iterations)),
+        gain="1",
+        out_width=out_width,
+        out_max=(1 << (out_width - 1)) - 1,
     )
 
 

@@ -28,7 +28,8 @@ __all__ = [
     "parse_config",
 ]
 
-FUNCTIONS = ("sincos", "rotate", "atan2")
+FUNCTIONS = ("sincos", "rotate", "atan2", "mul", "div")
+LINEAR_FUNCTIONS = ("mul", "div")
 GAIN_MODES = ("compensated", "raw")
 ANGLE_UNITS = ("turns", "radians")
 MIN_RADIAN_ANGLE_WIDTH = 6
@@ -78,7 +79,8 @@ class CoreSpec:
 
     Attributes:
         name: Verilog module name.
-        function: Which function the core computes (``sincos``, ``rotate``, ``atan2``).
+        function: Which function the core computes (``sincos``, ``rotate``, ``atan2``, ``mul``,
+            ``div``).
         architecture: ``pipelined`` or ``iterative``.
         pipeline_depth: Register stages of a pipelined core; ``None`` means one per iteration.
         iterations_per_cycle: Iterations an iterative core performs per clock.
@@ -112,7 +114,10 @@ class CoreSpec:
     def to_dict(self) -> dict[str, Any]:
         """The spec as config-file values (``auto`` for sized fields, absent fields dropped)."""
         out: dict[str, Any] = {}
+        unused = ("angle_width", "angle_unit", "gain") if self.function in LINEAR_FUNCTIONS else ()
         for key, value in asdict(self).items():
+            if key in unused:
+                continue
             if value is None:
                 if key in ("iterations", "guard_bits"):
                     out[key] = "auto"
@@ -225,6 +230,17 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
     tag_width = _int_field(raw, "tag_width", 0, MAX_TAG_WIDTH) if "tag_width" in raw else 0
     gain = _choice_field(raw, "gain", GAIN_MODES) if "gain" in raw else "compensated"
     angle_unit = _choice_field(raw, "angle_unit", ANGLE_UNITS) if "angle_unit" in raw else "turns"
+    if function in LINEAR_FUNCTIONS:
+        # Linear coordinates have no angle and no gain (K = 1): a value set here would mislead.
+        for key in ("angle_width", "angle_unit", "gain"):
+            if key in raw:
+                raise ConfigError(
+                    key,
+                    raw[key],
+                    f'not used by function = "{function}" (linear coordinates have no angle and no gain)',
+                    f"remove {key}",
+                )
+        angle_width = data_width
     if function == "sincos" and gain == "raw":
         raise ConfigError(
             "gain",

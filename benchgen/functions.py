@@ -15,7 +15,7 @@ import numpy as np
 import numpy.typing as npt
 
 from benchgen.algorithm import Datapath
-from benchgen.model import evaluate_function, to_signed
+from benchgen.model import div_domain, evaluate_function, to_signed
 from benchgen.reference import ErrorStats, error_stats, errors_lsb, ideal_sincos
 
 __all__ = [
@@ -66,6 +66,11 @@ def input_ports(dp: Datapath) -> tuple[Port, ...]:
     """Data inputs, in port order."""
     b = dp.data_width
     data = f"two's complement, {b} bits"
+    frac = f"two's complement fraction, {b} bits with {b - 1} fraction bits, [-1, 1)"
+    if dp.function == "mul":
+        return (Port("in_a", b, True, frac), Port("in_b", b, True, frac))
+    if dp.function == "div":
+        return (Port("in_num", b, True, frac), Port("in_den", b, True, frac))
     if dp.function == "sincos":
         return (Port("in_angle", dp.angle_width, dp.radians, _angle_doc(dp)),)
     if dp.function == "rotate":
@@ -79,6 +84,14 @@ def input_ports(dp: Datapath) -> tuple[Port, ...]:
 
 def output_ports(dp: Datapath) -> tuple[Port, ...]:
     """Data outputs, in port order."""
+    b = dp.data_width
+    if dp.function == "mul":
+        return (Port("out_product", dp.out_width, True, f"two's complement, {dp.out_width} bits with {b - 1} fraction bits"),)
+    if dp.function == "div":
+        return (
+            Port("out_quotient", b, True, f"two's complement, {b} bits with {b - 2} fraction bits, [-2, 2); 0 when flagged"),
+            Port("out_domain_error", 1, False, "1 when den = 0 or |num / den| >= 2 (outside the linear range)"),
+        )
     if dp.function == "sincos":
         doc = f"two's complement, {dp.out_width} bits, amplitude {dp.amplitude}"
         return (Port("out_cos", dp.out_width, True, doc), Port("out_sin", dp.out_width, True, doc))
@@ -136,6 +149,14 @@ def corner_inputs(dp: Datapath) -> Inputs:
     if dp.function == "sincos":
         return {"in_angle": np.array(angles, dtype=dtype)}
     m = (1 << (dp.data_width - 1)) - 1
+    if dp.function in ("mul", "div"):
+        lo_ = -(1 << (dp.data_width - 1))
+        h = 1 << (dp.data_width - 2)
+        values = [0, 1, -1, m, lo_, h, -h, h + 1, h - 1, 2, -2]
+        pairs = [(p, q) for p in values for q in values]
+        first, second = zip(*pairs, strict=True)
+        names = [p.name for p in input_ports(dp)]
+        return {names[0]: np.array(first, dtype=dtype), names[1]: np.array(second, dtype=dtype)}
     lo = -(1 << (dp.data_width - 1))
     vectors = [(m, 0), (0, m), (-m, 0), (0, -m), (m, m), (-m, m), (m, -m), (-m, -m), (lo, lo), (lo, 0), (0, lo),
                (lo, m), (m, lo), (1, 0), (0, 1), (-1, 0), (0, -1), (1, 1), (-1, -1), (-1, 1), (1, -1),
@@ -181,6 +202,18 @@ def sizing_inputs(dp: Datapath) -> tuple[Inputs, bool]:
     return {k: np.concatenate([corners[k], rand[k]]) for k in rand}, False
 
 
+def _ideal_linear(dp: Datapath, inputs: Inputs) -> dict[str, npt.NDArray[Any]]:
+    b = dp.data_width
+    if dp.function == "mul":
+        a = np.asarray(inputs["in_a"], dtype=np.float64)
+        m = np.asarray(inputs["in_b"], dtype=np.float64)
+        return {"out_product": a * m / 2.0 ** (b - 1)}
+    num = np.asarray(inputs["in_num"], dtype=np.float64)
+    den = np.asarray(inputs["in_den"], dtype=np.float64)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return {"out_quotient": np.where(den != 0, num / np.where(den != 0, den, 1.0), 0.0) * 2.0 ** (b - 2)}
+
+
 def ideal_outputs(dp: Datapath, inputs: Inputs, *, with_gain: bool = True) -> dict[str, npt.NDArray[Any]]:
     """The exact answer for each numeric output (float64 or mpmath values; see reference.py).
 
@@ -190,6 +223,8 @@ def ideal_outputs(dp: Datapath, inputs: Inputs, *, with_gain: bool = True) -> di
         with_gain: Include a raw core's growth 1/K_n (False gives the gain-free answer, which
             does not depend on the iteration count).
     """
+    if dp.function in ("mul", "div"):
+        return _ideal_linear(dp, inputs)
     if dp.function == "sincos":
         cos, sin = ideal_sincos(dp, inputs["in_angle"])
         return {"out_cos": cos, "out_sin": sin}
@@ -222,6 +257,13 @@ def function_errors(
     """
     ideal = ideal if ideal is not None else ideal_outputs(dp, inputs)
     errs = {name: errors_lsb(outputs[name], ideal[name]) for name in ideal}
+    if dp.function == "div":
+        # Judged inside the domain, and below the format's largest value (2 - 2^-(b-2)), where
+        # the quotient saturates by design.
+        num = np.asarray(inputs["in_num"]).astype(np.int64)
+        den = np.asarray(inputs["in_den"]).astype(np.int64)
+        inside = div_domain(dp, num, den) & (np.abs(ideal["out_quotient"]) <= dp.out_max)
+        errs["out_quotient"] = np.where(inside, errs["out_quotient"], np.nan)
     if dp.function == "atan2":
         e = errs["out_angle"]
         if not dp.radians:

@@ -15,7 +15,7 @@ import numpy.typing as npt
 
 from benchgen.algorithm import Datapath
 
-__all__ = ["SinCos", "atan2", "evaluate_function", "prescale", "rotate", "round_drop", "sincos", "to_signed", "wrap"]
+__all__ = ["SinCos", "atan2", "div", "div_domain", "evaluate_function", "mul", "prescale", "rotate", "round_drop", "sincos", "to_signed", "wrap"]
 
 IntArray = npt.NDArray[Any]
 
@@ -179,6 +179,7 @@ def _iterate_block(dp: Datapath, x: IntArray, y: IntArray, z: IntArray) -> None:
     ty = np.empty_like(x)
     last = dp.iterations - 1
     vectoring = dp.mode == "vectoring"
+    linear = dp.coordinates == "linear"
     for i, step in enumerate(dp.atan_table):
         # s = -1 where the turn is clockwise, else 0; (v ^ s) - s negates v where s = -1.
         if vectoring:
@@ -192,7 +193,8 @@ def _iterate_block(dp: Datapath, x: IntArray, y: IntArray, z: IntArray) -> None:
         np.right_shift(x, i, out=tx)
         np.bitwise_xor(tx, s, out=tx)
         np.subtract(tx, s, out=tx)
-        np.subtract(x, ty, out=x)
+        if not linear:
+            np.subtract(x, ty, out=x)
         if not (vectoring and i == last):
             np.add(y, tx, out=y)
         if vectoring or i != last:
@@ -205,7 +207,8 @@ def iterate_wrapping(dp: Datapath, x: IntArray, y: IntArray, z: IntArray, dtype:
     """Circular iterations in the data path's mode, wrapping at every register width.
 
     Rotation mode turns counter-clockwise where z >= 0; vectoring mode where y < 0 (driving y
-    to 0 with x > 0). Either way: x - d y/2^i, y + d x/2^i, z - d atan 2^-i (Walther 1971).
+    to 0 with x > 0). Either way: x - d y/2^i, y + d x/2^i, z - d atan 2^-i (Walther 1971);
+    in linear coordinates x stays and z steps by 2^-i.
     The values the last iteration does not need (z in rotation, y in vectoring) are left as
     they were, as the RTL does not form them.
     """
@@ -216,7 +219,7 @@ def iterate_wrapping(dp: Datapath, x: IntArray, y: IntArray, z: IntArray, dtype:
         sign = turn.astype(dtype) * 2 - 1
         xs = x >> i
         ys = y >> i
-        new_x = wrap(x - sign * ys, dp.xy_width)
+        new_x = x if dp.coordinates == "linear" else wrap(x - sign * ys, dp.xy_width)
         if not (vectoring and i == last):
             y = wrap(y + sign * xs, dp.xy_width)
         if vectoring or i != last:
@@ -297,8 +300,58 @@ def atan2(dp: Datapath, x_in: npt.ArrayLike, y_in: npt.ArrayLike) -> dict[str, I
     return {"out_angle": angle, "out_magnitude": mag}
 
 
+def mul(dp: Datapath, a_in: npt.ArrayLike, b_in: npt.ArrayLike) -> dict[str, IntArray]:
+    """Predict the mul core: ``out_product`` = a * b, all fractions with data_width - 1 bits.
+
+    Linear rotation (Walther 1971): x = a, y from 0, z from b; each step adds +-a 2^-i to y and
+    takes +-2^-i from z, so y ends at a b within a 2^-(n-1).
+    """
+    dtype = _dtype_for(_widest(dp))
+    b = dp.data_width
+    g = dp.guard_bits
+    a = to_signed(_as_ints(a_in, b, dtype), b)
+    m = to_signed(_as_ints(b_in, b, dtype), b)
+    x = a << g
+    y = np.zeros_like(x)
+    z = m << g
+    _, y, _ = iterate(dp, x, y, z, dtype)
+    q = round_drop(y, g, dp.rounding, dp.out_width + 1)
+    return {"out_product": _saturate(q, dp.out_max)}
+
+
+def div_domain(dp: Datapath, num: IntArray, den: IntArray) -> IntArray:
+    """True where num / den is inside the linear vectoring range: den != 0 and |num| < 2 |den|."""
+    return (den != 0) & (np.abs(num) < 2 * np.abs(den))
+
+
+def div(dp: Datapath, num_in: npt.ArrayLike, den_in: npt.ArrayLike) -> dict[str, IntArray]:
+    """Predict the div core: ``out_quotient`` = num / den (data_width - 2 fraction bits) and
+    ``out_domain_error``, set (with a zero quotient) where the quotient is out of range.
+
+    Linear vectoring (Walther 1971): x = |den|, y from num (negated with den), z from 0; y is
+    driven to 0 and z collects num / den.
+    """
+    dtype = _dtype_for(_widest(dp))
+    b = dp.data_width
+    g = dp.guard_bits
+    num = to_signed(_as_ints(num_in, b, dtype), b)
+    den = to_signed(_as_ints(den_in, b, dtype), b)
+    ok = div_domain(dp, num, den)
+    neg = den < 0
+    x = np.where(neg, -den, den) << g
+    y = np.where(neg, -num, num) << g
+    z = np.zeros_like(x)
+    _, _, z = iterate(dp, x, y, z, dtype)
+    q = _saturate(round_drop(z, g, dp.rounding, dp.data_width + 1), dp.out_max)
+    return {"out_quotient": np.where(ok, q, 0), "out_domain_error": (~ok).astype(q.dtype)}
+
+
 def evaluate_function(dp: Datapath, inputs: dict[str, npt.ArrayLike]) -> dict[str, IntArray]:
     """The model's outputs for the data path's function, by output port name."""
+    if dp.function == "mul":
+        return mul(dp, inputs["in_a"], inputs["in_b"])
+    if dp.function == "div":
+        return div(dp, inputs["in_num"], inputs["in_den"])
     if dp.function == "sincos":
         out = sincos(dp, inputs["in_angle"])
         return {"out_cos": out.cos, "out_sin": out.sin}

@@ -116,6 +116,8 @@ def _readme(design: Design, manifest: dict[str, Any]) -> str:
         "sincos": f"Sine and cosine of a {dp.angle_width}-bit angle ({dp.angle_unit}), {dp.data_width}-bit outputs",
         "rotate": f"Rotation of a {dp.data_width}-bit vector by a {dp.angle_width}-bit angle ({dp.angle_unit}), gain {dp.gain_mode}",
         "atan2": f"Angle ({dp.angle_unit}, {dp.angle_width} bits) and magnitude of a {dp.data_width}-bit vector, gain {dp.gain_mode}",
+        "mul": f"Product of two {dp.data_width}-bit fractions by linear rotation",
+        "div": f"Quotient of two {dp.data_width}-bit fractions by linear vectoring, with a domain flag",
     }[spec.function]
     ports = "\n".join(f"| `{p.name}` | {p.doc} |" for p in input_ports(dp) + output_ports(dp))
     return f"""# {spec.name}

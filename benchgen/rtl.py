@@ -93,7 +93,19 @@ def _drops(design: Design) -> dict[str, int]:
 
 def _final_outputs(design: Design) -> tuple[bool, bool, bool]:
     """Which of x, y, z the last iteration must form."""
-    return (True, False, True) if design.datapath.mode == "vectoring" else (True, True, False)
+    return {
+        "mul": (False, True, False),
+        "div": (False, False, True),
+        "atan2": (True, False, True),
+    }.get(design.datapath.function, (True, True, False))
+
+
+def _sign_shift_part(name: str, shift: int, width: int, low: int) -> str:
+    """x >>> shift, where ``name`` holds only bits [width-1:low] of x (low <= shift)."""
+    if low == 0:
+        return _sign_shift(name, shift, width)
+    top = width - 1 - low
+    return f"{{{{{shift}{{{name}[{top}]}}}}, {name}[{top}:{shift - low}]}}"
 
 
 def _iteration(
@@ -108,6 +120,7 @@ def _iteration(
     active: str = "",
     final: bool = False,
     truncate_final: bool = False,
+    x_low: int = 0,
 ) -> Iteration:
     dp = design.datapath
     w = dp.xy_width
@@ -121,6 +134,8 @@ def _iteration(
         kept = {k: v for k, v in _drops(design).items()}
         kept = {k: (v if (k != "y" or y_out) and (k != "z" or z_out) else 0) for k, v in kept.items()}
     dir_expr = f"({y_in} >= Y_HALF)" if dp.mode == "vectoring" else f"({z_in} < Z_HALF)"
+    if dp.coordinates == "linear":
+        x_out = ""  # x is held: every iteration reads the same value
     return Iteration(
         index=i,
         x_in=x_in,
@@ -131,7 +146,7 @@ def _iteration(
         z_out=z_out,
         dir=f"dir_{label}",
         dir_expr=dir_expr,
-        x_shift=f"xs_{label}" if shift is None else _sign_shift(x_in, shift, w),
+        x_shift=f"xs_{label}" if shift is None else _sign_shift_part(x_in, shift, w, x_low),
         y_shift=f"ys_{label}" if shift is None else _sign_shift(y_in, shift, w),
         atan=atan,
         active=active,
@@ -144,10 +159,14 @@ def _iteration(
 def _pipelined_context(design: Design) -> dict[str, Any]:
     dp = design.datapath
     n = dp.iterations
+    w = dp.xy_width
     truncating = dp.rounding == "truncate"
+    linear = dp.coordinates == "linear"
     stages = []
     src = ("x_start", "y_start", "z_start")
-    for k, (first, end) in enumerate(design.timing.stages):
+    x_low = 0  # bits of x below this are not held (linear coordinates only)
+    bounds = design.timing.stages
+    for k, (first, end) in enumerate(bounds):
         iters = []
         for i in range(first, end):
             final = i == n - 1
@@ -155,15 +174,29 @@ def _pipelined_context(design: Design) -> dict[str, Any]:
                 dst = (f"s{k}_x", f"s{k}_y", f"s{k}_z")
             else:
                 dst = (f"x_{i + 1}", f"y_{i + 1}", f"z_{i + 1}")
-            iters.append(
-                _iteration(
-                    f"{i}", i, src, dst, design=design, shift=i, atan=f"ATAN_{i}", final=final, truncate_final=truncating
-                )
+            it = _iteration(
+                f"{i}", i, src, dst, design=design, shift=i, atan=f"ATAN_{i}", final=final,
+                truncate_final=truncating, x_low=x_low,
             )
-            src = dst
-        stages.append(
-            {"index": k, "first": first, "end": end, "iterations": iters, "last": k == len(design.timing.stages) - 1}
-        )
+            iters.append(it)
+            src = (src[0] if linear else dst[0], dst[1], dst[2])
+        stage: dict[str, Any] = {
+            "index": k, "first": first, "end": end, "iterations": iters, "last": k == len(bounds) - 1,
+            "x_reg_width": w, "x_reg_src": f"s{k}_x",
+        }
+        if linear and k + 1 < len(bounds):
+            # x is held: the next stages shift it by at least their first index, so only the
+            # bits from there up travel on; and a last stage that holds only the final
+            # vectoring iteration (which forms z alone) needs no x at all.
+            next_low = bounds[k + 1][0]
+            if dp.mode == "vectoring" and next_low == n - 1:
+                stage["x_reg_width"] = 0
+            else:
+                stage["x_reg_width"] = w - next_low
+            top = w - 1 - x_low
+            stage["x_reg_src"] = src[0] if next_low == x_low else f"{src[0]}[{top}:{next_low - x_low}]"
+            x_low = next_low
+        stages.append(stage)
         src = (f"s{k}_x_reg", f"s{k}_y_reg", f"s{k}_z_reg")
     last = stages[-1]["iterations"][-1]
     return {"stages": stages, "final": last}
@@ -229,7 +262,7 @@ def _iterative_context(design: Design) -> dict[str, Any]:
                     "needs_active": needs_active,
                 }
             )
-        src = dst
+        src = (src[0] if dp.coordinates == "linear" else dst[0], dst[1], dst[2])
     return {
         "group": iters,
         "final": iters[-1],
@@ -249,6 +282,8 @@ def _side_signals(design: Design) -> list[dict[str, Any]]:
     """Per-sample values that travel beside x, y, z from the input logic to the output logic."""
     if design.datapath.function == "atan2":
         return [{"name": "zero", "width": 1, "src": "in_zero"}]
+    if design.datapath.function == "div":
+        return [{"name": "bad", "width": 1, "src": "in_bad"}]
     return []
 
 

@@ -19,14 +19,17 @@ from benchgen.model import atan2
 def sized_table() -> None:
     print("| function | width (data/angle) | gain | iterations | guard bits | worst / RMS error (LSB) | measured on |")
     print("|---|---|---|---|---|---|---|")
-    for fn in ("sincos", "rotate", "atan2"):
+    for fn in ("sincos", "rotate", "atan2", "mul", "div"):
         for width in (12, 16):
-            for gain in (("compensated", "raw") if fn != "sincos" else ("compensated",)):
-                d = build_design(parse_config({"name": "c", "function": fn, "data_width": width, "angle_width": width, "gain": gain}))
+            for gain in (("compensated", "raw") if fn in ("rotate", "atan2") else ("compensated",)):
+                values = {"name": "c", "function": fn, "data_width": width}
+                if fn not in ("mul", "div"):
+                    values.update({"angle_width": width, "gain": gain})
+                d = build_design(parse_config(values))
                 a = d.accuracy
                 on = f"all {a.samples}" if d.accuracy_exhaustive else f"{a.samples} random + corners"
                 print(
-                    f"| {fn} | {width}/{width} | {gain} | {d.datapath.iterations} | {d.datapath.guard_bits} | "
+                    f"| {fn} | {width}/{width if fn not in ('mul', 'div') else '-'} | {gain if fn not in ('mul', 'div') else '-'} | {d.datapath.iterations} | {d.datapath.guard_bits} | "
                     f"{a.max_error_lsb:.3f} / {a.rms_error_lsb:.3f} | {on} |"
                 )
 

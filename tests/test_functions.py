@@ -155,3 +155,65 @@ def test_function_errors_skip_only_short_vectors() -> None:
     errs = function_errors(dp, {"in_x": x, "in_y": y}, out)
     assert np.isnan(errs["out_angle"][:2]).all() and not np.isnan(errs["out_angle"][2:]).any()
     assert not np.isnan(errs["out_magnitude"]).any()
+
+
+def test_mul_worked_example() -> None:
+    # 10-bit fractions with 9 fraction bits: a = 256/512 = 0.5, b = -384/512 = -0.75;
+    # a b = -0.375 = -192/512, so out_product = -192 (exact: the core should hit it within 1 LSB,
+    # and a product with few bits set comes out exactly).
+    dp = design(function="mul", data_width=10).datapath
+    from benchgen.model import mul
+
+    assert int(mul(dp, [256], [-384])["out_product"][0]) == -192
+
+
+def test_div_worked_examples_and_domain() -> None:
+    # 10-bit fractions; the quotient has 8 fraction bits. 100 / 400 = 0.25 -> 64 codes.
+    # -300 / 200 = -1.5 -> -384 codes. 300 / 100 = 3 is outside |q| < 2: flagged, quotient 0.
+    # 5 / 0: flagged. -511 / -256 = 1.996 -> 511 codes (the format's largest value).
+    from benchgen.model import div
+
+    dp = design(function="div", data_width=10).datapath
+    out = div(dp, [100, -300, 300, 5, -511], [400, 200, 100, 0, -256])
+    assert out["out_domain_error"].tolist() == [0, 0, 1, 1, 0]
+    assert out["out_quotient"].tolist()[:4] == [64, -384, 0, 0]
+    assert abs(int(out["out_quotient"][4]) - 511) <= 1
+
+
+def test_mul_and_div_against_exact_fractions() -> None:
+    """Exact rational references (Python's fractions): no rounding in the reference at all."""
+    from fractions import Fraction
+
+    from benchgen.model import div, mul
+
+    rng = np.random.default_rng(12)
+    for fn in ("mul", "div"):
+        dp = design(function=fn, data_width=12).datapath
+        a = rng.integers(-2048, 2048, 3000)
+        b = rng.integers(-2048, 2048, 3000)
+        out = mul(dp, a, b)["out_product"] if fn == "mul" else div(dp, a, b)["out_quotient"]
+        worst = Fraction(0)
+        for p, q, o in zip(a.tolist(), b.tolist(), out.tolist(), strict=True):
+            if fn == "mul":
+                exact = Fraction(p * q, 2**11)
+            else:
+                if q == 0 or abs(p) >= 2 * abs(q):
+                    continue
+                exact = Fraction(p, q) * 2**10
+                if abs(exact) > dp.out_max:
+                    continue
+            worst = max(worst, abs(o - exact))
+        assert worst < 1
+
+
+@pytest.mark.parametrize("width", [12, 16])
+def test_div_sizing_is_minimal(width: int) -> None:
+    spec = parse_config({"name": "c", "function": "div", "data_width": width})
+    d = build_design(spec)
+    n, g = d.datapath.iterations, d.datapath.guard_bits
+    inputs, _ = sizing_inputs(d.datapath)
+    ideal = ideal_outputs(d.datapath, inputs, with_gain=False)
+    assert measure(make_datapath(spec, n, g), inputs, ideal).max_error_lsb < 1.0
+    if g > 0:
+        assert measure(make_datapath(spec, n, g - 1), inputs, ideal).max_error_lsb >= 1.0
+    assert best_over_guard(spec, n - 1, inputs, ideal) >= 1.0

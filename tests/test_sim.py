@@ -69,6 +69,8 @@ FUNCTION_CORES = {
     "rotate_raw_radians": {"function": "rotate", "data_width": 12, "angle_width": 13, "gain": "raw", "angle_unit": "radians"},
     "atan2": {"function": "atan2", "data_width": 12, "angle_width": 12, "tag_width": 2},
     "atan2_raw_radians": {"function": "atan2", "data_width": 12, "angle_width": 14, "gain": "raw", "angle_unit": "radians", "rounding": "truncate", "max_error_lsb": 1.5},
+    "mul": {"function": "mul", "data_width": 12, "tag_width": 2},
+    "div": {"function": "div", "data_width": 12, "rounding": "half_up", "tag_width": 1},
 }
 FUNCTION_ARCHITECTURES = {
     "full_depth": {"architecture": "pipelined"},
@@ -157,7 +159,7 @@ def test_csv_has_one_row_per_sample(tmp_path: Path) -> None:
     csv = tmp_path / "samples.csv"
     report = run_sim(project, simulator="icarus", samples=500, seed=3, csv_path=csv)
     lines = csv.read_text().splitlines()
-    assert lines[0] == "test,in_angle,out_cos,out_sin,model_cos,model_sin,ideal_cos,ideal_sin"
+    assert lines[0] == "test,in_angle,out_cos,out_sin,model_out_cos,model_out_sin,ideal_out_cos,ideal_out_sin"
     assert len(lines) - 1 == report.samples
     for row in lines[1:50]:
         fields = row.split(",")

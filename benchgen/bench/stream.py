@@ -151,7 +151,8 @@ class StreamBench:
                 cap.out_cycles.append(self.cycle)
                 for h, is_signed, lst in zip(handles_out, signed_out, out_lists, strict=True):
                     v = h.value
-                    lst.append(v.to_signed() if is_signed else v.to_unsigned())
+                    # One-bit ports read as a scalar Logic on some simulators: int() reads both.
+                    lst.append(v.to_signed() if is_signed else int(v))
                 got += 1
             if clocks >= limit or (stop_after is not None and clocks >= stop_after):
                 break
