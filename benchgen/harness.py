@@ -27,10 +27,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any
 
-import jinja2
-
 from benchgen import __version__
-from benchgen.rtl import template_dir
+from benchgen.rtl import template_environment
 
 __all__ = [
     "DEFAULT_BLOCK",
@@ -162,17 +160,6 @@ def bulk_layout(manifest: dict[str, Any], *, block: int = DEFAULT_BLOCK) -> Bulk
     )
 
 
-def _environment() -> jinja2.Environment:
-    return jinja2.Environment(
-        loader=jinja2.FileSystemLoader(str(template_dir())),
-        undefined=jinja2.StrictUndefined,
-        keep_trailing_newline=True,
-        trim_blocks=True,
-        lstrip_blocks=True,
-        autoescape=False,
-    )
-
-
 def _result_word(layout: BulkLayout) -> str:
     """The concatenation that packs the core's outputs into a result word, MSB first."""
     parts: list[str] = []
@@ -211,7 +198,7 @@ def render_bulk_harness(layout: BulkLayout) -> str:
         "watchdog": f"32'd{WATCHDOG_CLOCKS}",
         "count_pad": 32 - iw,
     }
-    return _clean(_environment().get_template("bulk_harness.v.j2").render(ctx))
+    return _clean(template_environment().get_template("bulk_harness.v.j2").render(ctx))
 
 
 def native_names(layout: BulkLayout) -> tuple[str, str]:
@@ -233,7 +220,7 @@ def render_native_harness(layout: BulkLayout) -> str:
         "index_one": f"{iw}'d1",
         "index_zero": f"{iw}'d0",
     }
-    return _clean(_environment().get_template("bulk_native.v.j2").render(ctx))
+    return _clean(template_environment().get_template("bulk_native.v.j2").render(ctx))
 
 
 def render_native_main(layout: BulkLayout) -> str:
@@ -248,7 +235,7 @@ def render_native_main(layout: BulkLayout) -> str:
         # inputs, with nothing above a port's width).
         "masks": {s.port: f"0x{(1 << s.width) - 1:x}ULL" for s in layout.inputs},
     }
-    return _clean(_environment().get_template("bulk_main.cpp.j2").render(ctx))
+    return _clean(template_environment().get_template("bulk_main.cpp.j2").render(ctx))
 
 
 def render_raw_harness(layout: BulkLayout, *, angle_port: str = "in_angle") -> str:
@@ -258,7 +245,7 @@ def render_raw_harness(layout: BulkLayout, *, angle_port: str = "in_angle") -> s
     the outputs (so the compiler cannot drop the model's work).
     """
     ctx = {"L": layout, "angle_port": angle_port}
-    return _clean(_environment().get_template("bulk_raw_main.cpp.j2").render(ctx))
+    return _clean(template_environment().get_template("bulk_raw_main.cpp.j2").render(ctx))
 
 
 @dataclass(frozen=True)

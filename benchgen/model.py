@@ -361,35 +361,9 @@ def evaluate_function(dp: Datapath, inputs: dict[str, npt.ArrayLike]) -> dict[st
 
 
 def _rotate_int64(dp: Datapath, codes: IntArray) -> tuple[IntArray, IntArray]:
-    """The same iterations on int64, without the per-register wrap.
-
-    The wrap never acts for this data path, so leaving it out changes no bit: x and y start at
-    K_n A 2^G and each iteration scales the vector by sqrt(1 + 2^-2i), so they end near A 2^G
-    plus at most 2 per iteration of floor error, far inside the +-2^(B+G) of their
-    B + G + 1 bits; z starts within +-1/4 turn and each step moves it toward zero by at most
-    the larger of its value and atan 1 = 1/8 turn, inside +-1/2 turn. tests/test_model.py
-    checks this path against :func:`_rotate` on randomised data paths.
-    """
+    """sincos on int64: the fold, then the in-place iterations of :func:`_iterate_block`."""
     z, fold = _fold(dp, codes)
     x = np.where(fold, np.int64(-dp.x_start), np.int64(dp.x_start))
     y = np.zeros_like(x)
-    s = np.empty_like(x)
-    ty = np.empty_like(x)
-    tx = np.empty_like(x)
-    last = dp.iterations - 1
-    for i, step in enumerate(dp.atan_table):
-        # s = -1 where z < 0, else 0; (v ^ s) - s negates v where s = -1, without a branch.
-        np.right_shift(z, 63, out=s)
-        np.right_shift(y, i, out=ty)
-        np.bitwise_xor(ty, s, out=ty)
-        np.subtract(ty, s, out=ty)
-        np.right_shift(x, i, out=tx)
-        np.bitwise_xor(tx, s, out=tx)
-        np.subtract(tx, s, out=tx)
-        np.subtract(x, ty, out=x)
-        np.add(y, tx, out=y)
-        if i != last:
-            np.bitwise_xor(s, np.int64(step), out=ty)
-            np.subtract(ty, s, out=ty)
-            np.subtract(z, ty, out=z)
+    _iterate_block(dp, x, y, z)
     return x, y

@@ -18,7 +18,7 @@ from benchgen import __version__
 from benchgen.design import Design
 from benchgen.functions import input_ports, output_ports
 
-__all__ = ["Iteration", "build_context", "render_core", "template_dir", "verilog_literal"]
+__all__ = ["Iteration", "build_context", "render_core", "template_dir", "template_environment", "verilog_literal"]
 
 
 def template_dir() -> Path:
@@ -354,7 +354,8 @@ def build_context(design: Design, *, config_text: str = "") -> dict[str, Any]:
     return ctx | (_pipelined_context(design) if design.timing.architecture == "pipelined" else _iterative_context(design))
 
 
-def _environment() -> jinja2.Environment:
+def template_environment() -> jinja2.Environment:
+    """The one Jinja2 environment of every generated file: strict, no autoescape, stable spacing."""
     return jinja2.Environment(
         loader=jinja2.FileSystemLoader(str(template_dir())),
         undefined=jinja2.StrictUndefined,
@@ -368,7 +369,7 @@ def _environment() -> jinja2.Environment:
 def render_core(design: Design, *, config_text: str = "") -> str:
     """The core's Verilog source."""
     name = f"core_{design.timing.architecture}.v.j2"
-    text = _environment().get_template(name).render(build_context(design, config_text=config_text))
+    text = template_environment().get_template(name).render(build_context(design, config_text=config_text))
     # One trailing newline, no trailing blanks, no runs of blank lines: byte-stable output
     # whatever the template spacing.
     lines: list[str] = []
