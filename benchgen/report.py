@@ -39,7 +39,9 @@ __all__ = [
 ESTIMATE_NOTE = (
     "Resource and Fmax figures are estimates from the open toolchains Yosys and nextpnr (via the "
     "yowasp wheels) for an iCE40 HX8K and an ECP5-25F. They compare design points with each other; "
-    "they are not what a vendor's synthesis and timing flow will report."
+    "they are not what a vendor's synthesis and timing flow will report. Fmax covers register-to-register "
+    "paths only: the logic between the input ports and the first register is not timed, so the Fmax of a "
+    "single-stage (pipeline_depth = 1) core is not meaningful; register its inputs in your design."
 )
 COLUMNS = (
     "point", "status", "simulator", "function", "architecture", "pipeline_depth", "iterations_per_cycle",
