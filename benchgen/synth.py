@@ -8,14 +8,25 @@ cost?), not for promising a number on another toolchain.
 The tools come from the ``yowasp-*`` wheels (WebAssembly builds that need no system install). Set
 ``BENCHGEN_YOSYS``, ``BENCHGEN_NEXTPNR_ICE40`` or ``BENCHGEN_NEXTPNR_ECP5`` to use a native
 build instead. Devices: iCE40 HX8K in the CT256 package and ECP5 LFE5U-25F in CABGA256, both large
-enough in I/O for an unwrapped core (the 48-pin UP5K package is not).
+enough in I/O for the core's ports (the 48-pin UP5K package is not).
+
+nextpnr times paths from one flip-flop to another only. A core's first stage starts at its input
+ports and its outputs may leave through logic, so a core synthesised on its own has untimed paths:
+a single-stage core (pipeline_depth = 1) came out at 237-367 MHz on iCE40 although all its
+iterations sit in one clock. Each core is therefore synthesised inside a generated wrapper
+(:func:`io_wrapper`, template ``synth_wrapper.v.j2``) that puts a plain flip-flop on every input and
+output port, so every path of the core is timed. The resource counts are the core's own: the
+wrapper's flip-flops are found in the netlist by their source file and subtracted (they are the
+port widths, clk aside). The placer's logic-cell count is of the wrapped design.
 """
 
 from __future__ import annotations
 
+import hashlib
 import importlib.metadata
 import json
 import os
+import re
 import shutil
 import subprocess
 import sys
@@ -29,8 +40,11 @@ from benchgen.errors import BenchgenError
 __all__ = [
     "DEVICES",
     "Estimate",
+    "Port",
     "SynthError",
+    "core_ports",
     "estimate",
+    "io_wrapper",
     "tool_versions",
 ]
 
@@ -114,8 +128,10 @@ class Estimate:
         clock_mhz: The frequency the placer aimed at.
         logic_cells: Cells the placer used (iCE40 logic cells / ECP5 slices' combinational halves).
         note: Anything that makes this estimate less comparable with the others (e.g. another router).
-        tools: Tool versions.
+        tools: Tool versions, and the digest of the port-register wrapper the core was timed in.
         seconds: Wall time.
+        wrapper_ffs: Flip-flops of the port-register wrapper, already taken out of ``ffs`` and
+            ``cells`` (still inside ``logic_cells``, which the placer counts for the whole design).
     """
 
     target: str
@@ -132,6 +148,7 @@ class Estimate:
     tools: dict[str, str]
     seconds: float
     note: str | None = None
+    wrapper_ffs: int = 0
 
     def as_dict(self) -> dict[str, Any]:
         """JSON form."""
@@ -156,8 +173,21 @@ def _tool(name: str) -> list[str]:
     )
 
 
+WRAPPER_TEMPLATE = "synth_wrapper.v.j2"
+
+
+def _wrapper_digest() -> str:
+    from benchgen.rtl import template_dir
+
+    return hashlib.sha256((template_dir() / WRAPPER_TEMPLATE).read_bytes()).hexdigest()[:16]
+
+
 def tool_versions(target: str, place_and_route: bool) -> dict[str, str]:
-    """Versions of the tools an estimate uses (part of the cache key)."""
+    """Versions of the tools an estimate uses, and the wrapper's digest (part of the cache key).
+
+    The wrapper is listed with the tools because the sweep's estimate cache is keyed on this
+    dict: an estimate made without the wrapper, or with another version of it, is not reused.
+    """
 
     def version(name: str) -> str:
         env_key = "BENCHGEN_" + name.upper().replace("-", "_")
@@ -170,7 +200,89 @@ def tool_versions(target: str, place_and_route: bool) -> dict[str, str]:
             return "missing"
 
     names = ["yosys"] + ([DEVICES[target].pnr_tool] if place_and_route else [])
-    return {n: version(n) for n in names}
+    return {**{n: version(n) for n in names}, "io_wrapper": f"{WRAPPER_TEMPLATE} {_wrapper_digest()}"}
+
+
+@dataclass(frozen=True)
+class Port:
+    """One port of a core, as the wrapper declares it.
+
+    Attributes:
+        name: Port name.
+        direction: ``input`` or ``output``.
+        width: Bits.
+    """
+
+    name: str
+    direction: str
+    width: int
+
+    @property
+    def range(self) -> str:
+        """Verilog range with a trailing space, or nothing for one bit."""
+        return f"[{self.width - 1}:0] " if self.width > 1 else ""
+
+
+_PORT_RE = re.compile(r"^\s*(input|output)\s+(?:wire\s+)?(?:\[\s*(\d+)\s*:\s*(\d+)\s*\]\s*)?(\w+)\s*,?\s*$")
+
+
+def core_ports(verilog: str, top: str) -> list[Port]:
+    """The ports of module ``top`` in generated Verilog (ANSI header, one port a line).
+
+    The generated cores declare every port as ``input wire [N:0] name,`` on its own line, so a
+    line parser is enough; anything else in the header is refused rather than guessed at.
+
+    Raises:
+        SynthError: if the module or a port line cannot be read.
+    """
+    m = re.search(rf"^module\s+{re.escape(top)}\s*\((.*?)^\s*\);", verilog, re.DOTALL | re.MULTILINE)
+    if not m:
+        raise SynthError(f"module {top} not found in its source: cannot build the estimate wrapper")
+    ports = []
+    for line in m.group(1).splitlines():
+        line = line.split("//", 1)[0]
+        if not line.strip():
+            continue
+        pm = _PORT_RE.match(line)
+        if not pm or (pm.group(2) and int(pm.group(3)) != 0):
+            raise SynthError(f"port line of {top} not understood by the estimate wrapper: {line.strip()!r}")
+        width = int(pm.group(2)) + 1 if pm.group(2) else 1
+        ports.append(Port(pm.group(4), pm.group(1), width))
+    if not any(p.name == "clk" and p.direction == "input" and p.width == 1 for p in ports):
+        raise SynthError(f"{top} has no one-bit clk input: the estimate wrapper needs one")
+    return ports
+
+
+def io_wrapper(verilog: str, top: str) -> tuple[str, str, int]:
+    """Verilog of a module that registers every port of ``top`` except clk.
+
+    Returns:
+        The wrapper's module name, its Verilog text and its flip-flop count (the port widths).
+    """
+    from benchgen import __version__
+    from benchgen.rtl import template_environment
+
+    ports = [p for p in core_ports(verilog, top) if p.name != "clk"]
+    wrapper = f"{top}_synth_wrap"
+    ffs = sum(p.width for p in ports)
+    text = template_environment().get_template(WRAPPER_TEMPLATE).render(
+        wrapper=wrapper, core=top, ports=ports, wrapper_ffs=ffs, version=__version__)
+    return wrapper, text, ffs
+
+
+def _wrapper_ff_cells(netlist: Path, wrapper_file: str) -> dict[str, int]:
+    """Flip-flop cells of the wrapper by type, told apart by their ``src`` attribute.
+
+    Counting them in the netlist instead of assuming the port widths stays right when Yosys
+    removes a wrapper register whose bit the core never reads.
+    """
+    counts: dict[str, int] = {}
+    for module in json.loads(netlist.read_text())["modules"].values():
+        for cell in module.get("cells", {}).values():
+            src = str(cell.get("attributes", {}).get("src", ""))
+            if _is_ff(cell["type"]) and src.split(":", 1)[0] == wrapper_file:
+                counts[cell["type"]] = counts.get(cell["type"], 0) + 1
+    return counts
 
 
 class _Timeout(SynthError):
@@ -197,7 +309,10 @@ def estimate(
     place_and_route: bool = False,
     clock_mhz: float = 100.0,
 ) -> Estimate:
-    """Synthesise ``top`` for ``target`` and count resources; optionally place and route.
+    """Synthesise ``top`` inside its port-register wrapper for ``target``; optionally place and route.
+
+    The counts in the result are of ``top`` alone (the wrapper's flip-flops are taken out); Fmax
+    covers every path of ``top``, port to register and register to port included.
 
     Raises:
         SynthError: if a tool is missing or fails.
@@ -212,11 +327,23 @@ def estimate(
     for src in sources:
         shutil.copyfile(src, work_dir / Path(src).name)
         names.append(Path(src).name)
+    core_text = next((Path(src).read_text() for src in sources
+                      if re.search(rf"^module\s+{re.escape(top)}\b", Path(src).read_text(), re.MULTILINE)), None)
+    if core_text is None:
+        raise SynthError(f"module {top} not found in {', '.join(names) or 'no sources'}")
+    wrapper, wrapper_text, _ = io_wrapper(core_text, top)
+    wrapper_file = f"{wrapper}.v"
+    (work_dir / wrapper_file).write_text(wrapper_text)
+    names.append(wrapper_file)
     reads = "; ".join(f"read_verilog {n}" for n in names)
-    script = f"{reads}; {device.synth_command.format(top=top)}; tee -q -o stat.json stat -json"
+    script = f"{reads}; {device.synth_command.format(top=wrapper)}; tee -q -o stat.json stat -json"
     _run([*_tool("yosys"), "-q", "-p", script], work_dir / "yosys.log", work_dir)
     stat = json.loads((work_dir / "stat.json").read_text())
-    cells: dict[str, int] = dict(sorted(stat["design"].get("num_cells_by_type", {}).items()))
+    # $scopeinfo cells only record the flattened hierarchy (the wrapper around the core): no hardware.
+    cells: dict[str, int] = dict(sorted((c, n) for c, n in stat["design"].get("num_cells_by_type", {}).items()
+                                        if c != "$scopeinfo"))
+    wrapper_cells = _wrapper_ff_cells(work_dir / "netlist.json", wrapper_file)
+    cells = {c: n - wrapper_cells.get(c, 0) for c, n in cells.items() if n - wrapper_cells.get(c, 0) > 0}
     fmax = logic = None
     note = None
     if place_and_route:
@@ -252,4 +379,5 @@ def estimate(
         tools=tool_versions(target, place_and_route),
         seconds=round(time.perf_counter() - t0, 2),
         note=note,
+        wrapper_ffs=sum(wrapper_cells.values()),
     )
