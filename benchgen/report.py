@@ -39,9 +39,9 @@ __all__ = [
 ESTIMATE_NOTE = (
     "Resource and Fmax figures are estimates from the open toolchains Yosys and nextpnr (via the "
     "yowasp wheels) for an iCE40 HX8K and an ECP5-25F. They compare design points with each other; "
-    "they are not what a vendor's synthesis and timing flow will report. Fmax covers register-to-register "
-    "paths only: the logic between the input ports and the first register is not timed, so the Fmax of a "
-    "single-stage (pipeline_depth = 1) core is not meaningful; register its inputs in your design."
+    "they are not what a vendor's synthesis and timing flow will report. Each core is estimated inside a "
+    "wrapper that registers every port, so every path is timed; the wrapper's flip-flops are taken out "
+    "of the flip-flop counts but remain in the placed-cell counts."
 )
 COLUMNS = (
     "point", "status", "simulator", "function", "architecture", "pipeline_depth", "iterations_per_cycle",
