@@ -28,7 +28,10 @@ from benchgen.errors import ConfigError
 __all__ = [
     "Datapath",
     "Timing",
+    "HYPERBOLIC_FUNCTIONS",
     "circular_gain",
+    "hyperbolic_gain",
+    "hyperbolic_shifts",
     "make_datapath",
     "make_timing",
 ]
@@ -69,6 +72,63 @@ def _pi_at(frac_bits: int, fraction: int = 1) -> int:
         return int(mpmath.nint(mpmath.pi / fraction * mpmath.mpf(2) ** frac_bits))
 
 
+HYPERBOLIC_FUNCTIONS = ("sinhcosh", "exp", "atanh", "ln", "sqrt")
+
+# Convergence range of hyperbolic rotation with the repeated iterations: the sum of every
+# atanh(2^-i) step, 1.1181730155 (mpmath; about 1.13 in Walther 1971).
+HYPERBOLIC_RANGE = "1.1181730155265038036"
+
+
+def hyperbolic_shifts(iterations: int) -> tuple[int, ...]:
+    """The shift of each hyperbolic iteration: 1, 2, 3, 4, 4, 5, ..., 13, 13, 14, ...
+
+    Shifts 4, 13, 40, 121, ... (k -> 3k + 1) are done twice, without which the steps atanh(2^-i)
+    cannot add up to every angle in range (Walther 1971).
+    """
+    shifts: list[int] = []
+    s = 1
+    repeat = 4
+    while len(shifts) < iterations:
+        shifts.append(s)
+        if s == repeat and len(shifts) < iterations:
+            shifts.append(s)
+            repeat = 3 * repeat + 1
+        s += 1
+    return tuple(shifts)
+
+
+@cache
+def hyperbolic_gain(iterations: int) -> mpmath.mpf:
+    """A_n = prod sqrt(1 - 2^-2s) over the shifts of n hyperbolic iterations (repeats counted).
+
+    The hyperbolic iterations shrink the vector by A_n: 0.82815936 for n -> infinity, and
+    0.82978162 if the repeats were left out (mpmath; ../shared/FACTS.md).
+    """
+    with mpmath.workdps(_MP_DIGITS):
+        a = mpmath.mpf(1)
+        for s in hyperbolic_shifts(iterations):
+            a *= mpmath.sqrt(1 - mpmath.mpf(2) ** (-2 * s))
+        return +a
+
+
+@cache
+def _atanh_at(shift: int, frac_bits: int) -> int:
+    """atanh(2**-shift), rounded to nearest at ``frac_bits`` fraction bits."""
+    with mpmath.workdps(_MP_DIGITS):
+        return int(mpmath.nint(mpmath.atanh(mpmath.mpf(2) ** -shift) * mpmath.mpf(2) ** frac_bits))
+
+
+def log_int_bits(data_width: int) -> int:
+    """Integer bits (sign not counted) of the ln output and the exp input: the smallest L with
+    2^L >= data_width ln 2, so ln of the smallest nonzero input, -data_width ln 2, fits."""
+    with mpmath.workdps(_MP_DIGITS):
+        need = data_width * mpmath.log(2)
+    bits = 0
+    while mpmath.mpf(2) ** bits < need:
+        bits += 1
+    return bits
+
+
 # A radian angle port is signed with 3 integer bits (sign included): [-4, 4) rad covers a turn.
 RADIAN_INT_BITS = 3
 
@@ -78,8 +138,9 @@ class Datapath:
     """Numbers of the rotation data path, shared by the model and the RTL.
 
     Attributes:
-        function: ``sincos``, ``rotate``, ``atan2``, ``mul`` or ``div``.
-        coordinates: ``circular`` or ``linear`` (Walther 1971).
+        function: ``sincos``, ``rotate``, ``atan2``, ``mul``, ``div``, ``sinhcosh``, ``exp``,
+            ``atanh``, ``ln`` or ``sqrt``.
+        coordinates: ``circular``, ``linear`` or ``hyperbolic`` (Walther 1971).
         mode: ``rotation`` (drive z to 0) or ``vectoring`` (drive y to 0).
         angle_unit: ``turns`` (binary angle) or ``radians`` (fixed point) at the angle port.
         gain_mode: ``compensated`` (the core removes the gain) or ``raw`` (left in).
@@ -100,9 +161,26 @@ class Datapath:
         pi_const: radians: pi at ``z_frac`` fraction bits (0 for turns).
         atan_table: The z step of each iteration at ``z_frac`` fraction bits: atan(2**-i)
             (circular) or 2**-i (linear).
-        gain: K_n as a decimal string (60 digits computed, 20 printed).
+        gain: The constant a compensated core multiplies by, as a decimal string (60 digits
+            computed, 20 printed): K_n (circular), 1/A_n (hyperbolic), 1 (linear). A raw core's
+            outputs are the exact result divided by it.
         out_width: Bits of each data output.
-        out_max: Data outputs saturate to +-out_max.
+        out_max: Data outputs saturate to +-out_max (unsigned outputs: to out_max).
+        shifts: The right shift of each iteration: i (circular, linear) or the hyperbolic
+            schedule with its repeats (:func:`hyperbolic_shifts`).
+        in_frac: Hyperbolic: fraction bits of the data input.
+        out_frac: Hyperbolic: fraction bits of the main data output.
+        int_bits: ln/exp: integer bits L of the ln output and the exp input.
+        quarter: sqrt: the start offset 1/4 (times 1/A_n when compensated) at internal scale.
+        domain_limit: atanh: largest |u| code inside the domain.
+        ln2_table: ln: e ln 2 at ``z_frac`` fraction bits for each normalising shift e.
+        inv_ln2: exp: 1/ln 2 at ``inv_ln2_shift - in_frac`` fraction bits (first guess of q).
+        inv_ln2_shift: exp: fraction bits of the product t inv_ln2.
+        ln2_wide: exp: ln 2 at ``z_frac + ln2_extra`` fraction bits (the reduction).
+        ln2_extra: exp: fraction bits of the reduction below z's.
+        exp_width: exp: bits of the exponent output.
+        lz_width: ln/sqrt: bits of the normalising shift.
+        norm_max: sqrt: the largest output shift (half the largest even normalising shift).
     """
 
     function: str = "sincos"
@@ -128,6 +206,20 @@ class Datapath:
     gain: str
     out_width: int
     out_max: int
+    shifts: tuple[int, ...] = ()
+    in_frac: int = 0
+    out_frac: int = 0
+    int_bits: int = 0
+    quarter: int = 0
+    domain_limit: int = 0
+    ln2_table: tuple[int, ...] = ()
+    inv_ln2: int = 0
+    inv_ln2_shift: int = 0
+    ln2_wide: int = 0
+    ln2_extra: int = 0
+    exp_width: int = 0
+    lz_width: int = 0
+    norm_max: int = 0
 
     @property
     def output_max(self) -> int:
@@ -151,6 +243,8 @@ def make_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Datapath:
     g = guard_bits
     if spec.function in ("mul", "div"):
         return _linear_datapath(spec, iterations, guard_bits)
+    if spec.function in HYPERBOLIC_FUNCTIONS:
+        return _hyperbolic_datapath(spec, iterations, guard_bits)
     radians = spec.angle_unit == "radians"
     angle_frac = a - RADIAN_INT_BITS if radians else a
     amplitude = (1 << (b - 1)) - 1
@@ -216,6 +310,7 @@ def make_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Datapath:
         gain=mpmath.nstr(gain, 20),
         out_width=out_width,
         out_max=out_max,
+        shifts=tuple(range(iterations)),
     )
 
 
@@ -276,6 +371,139 @@ def _linear_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Datapa
         gain="1",
         out_width=out_width,
         out_max=(1 << (out_width - 1)) - 1,
+        shifts=tuple(range(iterations)),
+    )
+
+
+def _hyperbolic_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Datapath:
+    """sinhcosh, exp, atanh, ln, sqrt: hyperbolic coordinates (Walther 1971).
+
+    Each iteration does x + d y 2^-s, y + d x 2^-s, z - d atanh(2^-s) with the shifts of
+    :func:`hyperbolic_shifts`. Formats (docs/number_formats.md), b = data_width, g = guard bits:
+
+    * sinhcosh: t in [-1, 1) (b - 1 fraction bits); cosh t, sinh t in [-2, 2) (b - 2).
+    * exp: t with L integer bits (b - 1 - L fraction bits); e^t = mantissa 2^exponent, the
+      mantissa in [1, 2) (unsigned, b - 1 fraction bits), after t = q ln 2 + r, 0 <= r < ln 2.
+    * atanh: u in [-1, 1) (b - 1); atanh u in [-2, 2) (b - 2); |u| beyond tanh(1.1182) flagged.
+    * ln: w = W 2^-b in [0, 1) normalised to m = w 2^e in [1/2, 1); ln w = 2 atanh((m-1)/(m+1))
+      - e ln 2 with L integer bits (b - 1 - L fraction bits); w = 0 flagged.
+    * sqrt: w in [0, 1) normalised by an even shift to m in [1/4, 1); sqrt w = sqrt(m) 2^(-e/2)
+      from the vector (m + 1/4, m - 1/4), in [0, 1) (b fraction bits).
+    """
+    b = spec.data_width
+    g = guard_bits
+    f = spec.function
+    shifts = hyperbolic_shifts(iterations)
+    a_n = hyperbolic_gain(iterations)
+    compensated = spec.gain == "compensated"
+    fields: dict[str, object] = {}
+    with mpmath.workdps(_MP_DIGITS):
+        inv_a = 1 / a_n
+        ln2 = mpmath.log(2)
+        if f == "sinhcosh":
+            in_frac, out_frac = b - 1, b - 2
+            xy_frac = out_frac + g
+            xy_width = xy_frac + 3  # |x| < 1.21 cosh 1.12 = 2.05 on the way: [-4, 4)
+            z_frac = b + g
+            z_width = z_frac + 2
+            out_width, out_max = b, (1 << (b - 1)) - 1
+            start = inv_a if compensated else mpmath.mpf(1)
+            fields["x_start"] = int(mpmath.nint(start * mpmath.mpf(2) ** xy_frac))
+            mode = "rotation"
+        elif f == "exp":
+            L = log_int_bits(b)
+            in_frac, out_frac = b - 1 - L, b - 1
+            xy_frac = out_frac + g
+            xy_width = xy_frac + 4  # up to 1.21 e^1.24 = 4.2 on the way: [-8, 8)
+            z_frac = b + g
+            z_width = z_frac + 2
+            out_width, out_max = b, (1 << b) - 1
+            start = inv_a if compensated else mpmath.mpf(1)
+            fields["x_start"] = int(mpmath.nint(start * mpmath.mpf(2) ** xy_frac))
+            # q's first guess: t (in_frac fraction bits) times 1/ln 2 at L + 2 fraction bits,
+            # within 2^L 2^-(L+3) = 1/8 of t / ln 2, so one correction step makes it exact.
+            shift = in_frac + L + 2
+            extra = L + 2
+            q_lo = int(mpmath.floor(-(mpmath.mpf(2) ** L) / ln2))
+            q_hi = int(mpmath.floor((mpmath.mpf(2) ** L - mpmath.mpf(2) ** -in_frac) / ln2))
+            fields.update(
+                int_bits=L,
+                inv_ln2=int(mpmath.nint(mpmath.mpf(2) ** (shift - in_frac) / ln2)),
+                inv_ln2_shift=shift,
+                ln2_wide=int(mpmath.nint(ln2 * mpmath.mpf(2) ** (z_frac + extra))),
+                ln2_extra=extra,
+                exp_width=max(q_hi.bit_length(), (-q_lo - 1).bit_length()) + 1,
+            )
+            mode = "rotation"
+        elif f == "atanh":
+            in_frac, out_frac = b - 1, b - 2
+            xy_frac = in_frac + g
+            xy_width = xy_frac + 3
+            z_frac = out_frac + g
+            z_width = z_frac + 3
+            out_width, out_max = b, (1 << (b - 1)) - 1
+            fields["x_start"] = 1 << xy_frac
+            limit = mpmath.tanh(mpmath.mpf(HYPERBOLIC_RANGE))
+            fields["domain_limit"] = int(mpmath.floor(limit * mpmath.mpf(2) ** in_frac))
+            mode = "vectoring"
+        elif f == "ln":
+            L = log_int_bits(b)
+            in_frac, out_frac = b, b - 1 - L
+            xy_frac = in_frac + g
+            xy_width = xy_frac + 3  # x starts at m + 1 < 2
+            z_frac = out_frac + g + 1  # ln m is 2 z: one more bit
+            z_width = z_frac + 2
+            out_width, out_max = b, (1 << (b - 1)) - 1
+            fields.update(
+                int_bits=L,
+                lz_width=max(1, (b - 1).bit_length()),
+                ln2_table=tuple(int(mpmath.nint(e * ln2 * mpmath.mpf(2) ** z_frac)) for e in range(b)),
+            )
+            mode = "vectoring"
+        else:  # sqrt
+            in_frac, out_frac = b, b
+            xy_frac = in_frac + g
+            xy_width = xy_frac + 3  # x starts at (m + 1/4) / A_n < 1.51
+            z_frac = xy_frac
+            z_width = z_frac + 2
+            out_width, out_max = b, (1 << b) - 1
+            if compensated:
+                k_frac = b + g + 2
+                fields.update(k_const=int(mpmath.nint(inv_a * mpmath.mpf(2) ** k_frac)), k_frac=k_frac)
+            quarter = (inv_a if compensated else mpmath.mpf(1)) / 4
+            fields.update(
+                quarter=int(mpmath.nint(quarter * mpmath.mpf(2) ** xy_frac)),
+                lz_width=max(1, (b - 1).bit_length()),
+                norm_max=(b - 1) // 2,
+            )
+            mode = "vectoring"
+        table = tuple(_atanh_at(s, z_frac) for s in shifts)
+    _check_width(iterations, xy_width)
+    uses_gain = f in ("sinhcosh", "exp", "sqrt")
+    return Datapath(
+        function=f,
+        coordinates="hyperbolic",
+        mode=mode,
+        angle_unit="turns",
+        gain_mode=spec.gain if uses_gain else "compensated",
+        angle_width=b,
+        angle_frac=out_frac,
+        data_width=b,
+        iterations=iterations,
+        guard_bits=g,
+        rounding=spec.rounding,
+        xy_width=xy_width,
+        z_width=z_width,
+        z_frac=z_frac,
+        amplitude=(1 << (b - 1)) - 1,
+        atan_table=table,
+        gain=mpmath.nstr(inv_a, 20) if uses_gain else "1",
+        out_width=out_width,
+        out_max=out_max,
+        shifts=shifts,
+        in_frac=in_frac,
+        out_frac=out_frac,
+        **fields,  # type: ignore[arg-type]
     )
 
 

@@ -28,8 +28,13 @@ __all__ = [
     "parse_config",
 ]
 
-FUNCTIONS = ("sincos", "rotate", "atan2", "mul", "div")
+FUNCTIONS = ("sincos", "rotate", "atan2", "mul", "div", "sinhcosh", "exp", "atanh", "ln", "sqrt")
 LINEAR_FUNCTIONS = ("mul", "div")
+HYPERBOLIC_FUNCTIONS = ("sinhcosh", "exp", "atanh", "ln", "sqrt")
+# Functions whose ports carry no angle (angle_width and angle_unit do not apply).
+ANGLE_FREE_FUNCTIONS = LINEAR_FUNCTIONS + HYPERBOLIC_FUNCTIONS
+# Functions whose result carries no gain (gain does not apply).
+GAIN_FREE_FUNCTIONS = LINEAR_FUNCTIONS + ("atanh", "ln")
 GAIN_MODES = ("compensated", "raw")
 ANGLE_UNITS = ("turns", "radians")
 MIN_RADIAN_ANGLE_WIDTH = 6
@@ -80,7 +85,7 @@ class CoreSpec:
     Attributes:
         name: Verilog module name.
         function: Which function the core computes (``sincos``, ``rotate``, ``atan2``, ``mul``,
-            ``div``).
+            ``div``, ``sinhcosh``, ``exp``, ``atanh``, ``ln``, ``sqrt``).
         architecture: ``pipelined`` or ``iterative``.
         pipeline_depth: Register stages of a pipelined core; ``None`` means one per iteration.
         iterations_per_cycle: Iterations an iterative core performs per clock.
@@ -114,7 +119,11 @@ class CoreSpec:
     def to_dict(self) -> dict[str, Any]:
         """The spec as config-file values (``auto`` for sized fields, absent fields dropped)."""
         out: dict[str, Any] = {}
-        unused = ("angle_width", "angle_unit", "gain") if self.function in LINEAR_FUNCTIONS else ()
+        unused: tuple[str, ...] = ()
+        if self.function in ANGLE_FREE_FUNCTIONS:
+            unused += ("angle_width", "angle_unit")
+        if self.function in GAIN_FREE_FUNCTIONS:
+            unused += ("gain",)
         for key, value in asdict(self).items():
             if key in unused:
                 continue
@@ -215,7 +224,7 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
         raise ConfigError("name", "(missing)", "required", 'add a line such as name = "nco_core"')
     if "function" not in raw:
         raise ConfigError(
-            "function", "(missing)", "required", 'add function = "sincos" (or "rotate", "atan2")'
+            "function", "(missing)", "required", 'add function = "sincos" (or one of rotate, atan2, mul, div, sinhcosh, exp, atanh, ln, sqrt)'
         )
     name = _check_name(raw["name"])
     function = _choice_field(raw, "function", FUNCTIONS)
@@ -230,16 +239,19 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
     tag_width = _int_field(raw, "tag_width", 0, MAX_TAG_WIDTH) if "tag_width" in raw else 0
     gain = _choice_field(raw, "gain", GAIN_MODES) if "gain" in raw else "compensated"
     angle_unit = _choice_field(raw, "angle_unit", ANGLE_UNITS) if "angle_unit" in raw else "turns"
-    if function in LINEAR_FUNCTIONS:
-        # Linear coordinates have no angle and no gain (K = 1): a value set here would mislead.
+    if function in ANGLE_FREE_FUNCTIONS:
+        # No angle port (and, for some, no gain): a value set here would mislead.
         for key in ("angle_width", "angle_unit", "gain"):
+            if key == "gain" and function not in GAIN_FREE_FUNCTIONS:
+                continue
             if key in raw:
-                raise ConfigError(
-                    key,
-                    raw[key],
-                    f'not used by function = "{function}" (linear coordinates have no angle and no gain)',
-                    f"remove {key}",
+                why = (
+                    "linear coordinates have no angle and no gain"
+                    if function in LINEAR_FUNCTIONS
+                    else "its ports carry no angle" if key != "gain"
+                    else "its result is the angle z, which the gain does not scale"
                 )
+                raise ConfigError(key, raw[key], f'not used by function = "{function}" ({why})', f"remove {key}")
         angle_width = data_width
     if function == "sincos" and gain == "raw":
         raise ConfigError(

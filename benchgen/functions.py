@@ -15,8 +15,8 @@ import numpy as np
 import numpy.typing as npt
 
 from benchgen.algorithm import Datapath
-from benchgen.model import div_domain, evaluate_function, to_signed
-from benchgen.reference import ErrorStats, error_stats, errors_lsb, ideal_sincos
+from benchgen.model import atanh_domain, div_domain, evaluate_function, to_signed
+from benchgen.reference import FLOAT64_MAX_DATA_WIDTH, ErrorStats, error_stats, errors_lsb, ideal_sincos
 
 __all__ = [
     "EXHAUSTIVE_LIMIT_BITS",
@@ -62,8 +62,51 @@ def _angle_doc(dp: Datapath) -> str:
     return f"binary angle, {dp.angle_width} bits, 2^{dp.angle_width} codes per turn"
 
 
+def _fixed_doc(width: int, frac: int, signed: bool) -> str:
+    kind = "two's complement" if signed else "unsigned"
+    lo = -(2.0 ** (width - 1 - frac)) if signed else 0.0
+    hi = 2.0 ** (width - 1 - frac) if signed else 2.0 ** (width - frac)
+    return f"{kind} fixed point, {width} bits with {frac} fraction bits, [{lo:g}, {hi:g})"
+
+
+def _hyperbolic_inputs(dp: Datapath) -> tuple[Port, ...]:
+    b = dp.data_width
+    if dp.function in ("sinhcosh", "exp"):
+        return (Port("in_t", b, True, _fixed_doc(b, dp.in_frac, True)),)
+    if dp.function == "atanh":
+        return (Port("in_u", b, True, _fixed_doc(b, dp.in_frac, True)),)
+    return (Port("in_w", b, False, _fixed_doc(b, dp.in_frac, False)),)
+
+
+def _hyperbolic_outputs(dp: Datapath) -> tuple[Port, ...]:
+    b = dp.data_width
+    raw = dp.gain_mode == "raw"
+    scaled = f"; raw gain: times A_n = 1/{dp.gain[:10]}" if raw else ""
+    if dp.function == "sinhcosh":
+        doc = _fixed_doc(b, dp.out_frac, True) + scaled
+        return (Port("out_cosh", b, True, doc), Port("out_sinh", b, True, doc))
+    if dp.function == "exp":
+        return (
+            Port("out_mantissa", b, False, _fixed_doc(b, dp.out_frac, False) + ", in [1, 2)" + scaled),
+            Port("out_exponent", dp.exp_width, True, f"two's complement integer, {dp.exp_width} bits: e^t = mantissa 2^exponent"),
+        )
+    if dp.function == "atanh":
+        return (
+            Port("out_atanh", b, True, _fixed_doc(b, dp.out_frac, True) + "; 0 when flagged"),
+            Port("out_domain_error", 1, False, f"1 when |u| > {dp.domain_limit} / 2^{dp.in_frac} (beyond tanh 1.1182, the hyperbolic range)"),
+        )
+    if dp.function == "ln":
+        return (
+            Port("out_ln", b, True, _fixed_doc(b, dp.out_frac, True) + "; 0 when flagged"),
+            Port("out_domain_error", 1, False, "1 when w = 0"),
+        )
+    return (Port("out_sqrt", b, False, _fixed_doc(b, dp.out_frac, False) + scaled),)
+
+
 def input_ports(dp: Datapath) -> tuple[Port, ...]:
     """Data inputs, in port order."""
+    if dp.coordinates == "hyperbolic":
+        return _hyperbolic_inputs(dp)
     b = dp.data_width
     data = f"two's complement, {b} bits"
     frac = f"two's complement fraction, {b} bits with {b - 1} fraction bits, [-1, 1)"
@@ -84,6 +127,8 @@ def input_ports(dp: Datapath) -> tuple[Port, ...]:
 
 def output_ports(dp: Datapath) -> tuple[Port, ...]:
     """Data outputs, in port order."""
+    if dp.coordinates == "hyperbolic":
+        return _hyperbolic_outputs(dp)
     b = dp.data_width
     if dp.function == "mul":
         return (Port("out_product", dp.out_width, True, f"two's complement, {dp.out_width} bits with {b - 1} fraction bits"),)
@@ -141,10 +186,41 @@ def _angle_corners(width: int, radians: bool, frac: int) -> list[int]:
     return sorted(to_signed(np.array([c], dtype=object), width)[0] if width > 62 else c for c in codes)
 
 
+def _hyperbolic_corners(dp: Datapath) -> list[int]:
+    b = dp.data_width
+    top = (1 << (b - 1)) - 1
+    lo = -(1 << (b - 1))
+    codes: set[int] = set()
+    if dp.function == "ln" or dp.function == "sqrt":
+        # Zero, every power of two and one code either side (each normalising shift), the top.
+        for k in range(b):
+            codes.update({(1 << k) - 1, 1 << k, (1 << k) + 1})
+        codes.update({0, (1 << b) - 1, (1 << b) - 2})
+        return sorted(c for c in codes if 0 <= c < (1 << b))
+    codes.update({0, 1, -1, top, lo, top - 1, lo + 1, 1 << (b - 2), -(1 << (b - 2))})
+    if dp.function == "atanh":
+        for v in (dp.domain_limit, -dp.domain_limit):
+            codes.update({v - 1, v, v + 1})
+    if dp.function == "exp":
+        # Multiples of ln 2 (where the exponent steps) and a code either side.
+        scale = mpmath.mpf(2) ** dp.in_frac
+        q = 0
+        while True:
+            v = int(mpmath.nint(q * mpmath.log(2) * scale))
+            if v > top:
+                break
+            codes.update({v - 1, v, v + 1, -v - 1, -v, -v + 1})
+            q += 1
+    return sorted(c for c in codes if lo <= c <= top)
+
+
 def corner_inputs(dp: Datapath) -> Inputs:
     """Boundary inputs: angle quadrant and octant edges and one code either side, the most
-    negative codes, full-scale and zero vectors, axes and diagonals."""
+    negative codes, full-scale and zero vectors, axes and diagonals; for the hyperbolic
+    functions the format ends, the domain edges, the normalising shifts and the ln 2 steps."""
     dtype: Any = np.int64 if max(dp.angle_width, dp.data_width) <= 62 else object
+    if dp.coordinates == "hyperbolic":
+        return {input_ports(dp)[0].name: np.array(_hyperbolic_corners(dp), dtype=dtype)}
     angles = _angle_corners(dp.angle_width, dp.radians, dp.angle_frac)
     if dp.function == "sincos":
         return {"in_angle": np.array(angles, dtype=dtype)}
@@ -214,6 +290,72 @@ def _ideal_linear(dp: Datapath, inputs: Inputs) -> dict[str, npt.NDArray[Any]]:
         return {"out_quotient": np.where(den != 0, num / np.where(den != 0, den, 1.0), 0.0) * 2.0 ** (b - 2)}
 
 
+def _hyperbolic_values(dp: Datapath, inputs: Inputs) -> tuple[list[Any] | npt.NDArray[np.float64], bool]:
+    """The input port's real values: float64, or mpmath numbers past float64's precision."""
+    port = input_ports(dp)[0]
+    raw = np.asarray(inputs[port.name])
+    wide = dp.data_width > FLOAT64_MAX_DATA_WIDTH
+    if wide:
+        scale = mpmath.mpf(2) ** -dp.in_frac
+        codes = [int(v) for v in raw.ravel()]
+        if port.signed:
+            codes = [c - (1 << port.width) if c >> (port.width - 1) & 1 else c for c in codes]
+        else:
+            codes = [c & ((1 << port.width) - 1) for c in codes]
+        return [c * scale for c in codes], True
+    vals = raw.astype(np.int64)
+    vals = to_signed(vals, port.width) if port.signed else vals & np.int64((1 << port.width) - 1)
+    return vals.astype(np.float64) / 2.0**dp.in_frac, False
+
+
+def _exp_exponent(dp: Datapath, inputs: Inputs) -> npt.NDArray[np.int64]:
+    """floor(t / ln 2): the exponent of e^t with its mantissa in [1, 2)."""
+    values, wide = _hyperbolic_values(dp, inputs)
+    if wide:
+        with mpmath.workdps(_IDEAL_DPS):
+            return np.array([int(mpmath.floor(v / mpmath.log(2))) for v in values], dtype=np.int64)
+    return np.floor(np.asarray(values) / np.log(2.0)).astype(np.int64)
+
+
+_IDEAL_DPS = 40
+
+
+def _ideal_hyperbolic(dp: Datapath, inputs: Inputs) -> dict[str, npt.NDArray[Any]]:
+    """Gain-free exact results in output LSBs (numpy float64, or mpmath for wide formats)."""
+    values, wide = _hyperbolic_values(dp, inputs)
+    f = dp.function
+    if wide:
+        with mpmath.workdps(_IDEAL_DPS):
+            out_scale = mpmath.mpf(2) ** dp.out_frac
+
+            def each(fn: Any) -> npt.NDArray[Any]:
+                return np.array([fn(v) * out_scale for v in values], dtype=object)
+
+            if f == "sinhcosh":
+                return {"out_cosh": each(mpmath.cosh), "out_sinh": each(mpmath.sinh)}
+            if f == "exp":
+                ln2 = mpmath.log(2)
+                return {"out_mantissa": each(lambda v: mpmath.exp(v - mpmath.floor(v / ln2) * ln2))}
+            if f == "atanh":
+                return {"out_atanh": each(lambda v: mpmath.atanh(v) if abs(v) < 1 else mpmath.mpf(0))}
+            if f == "ln":
+                return {"out_ln": each(lambda v: mpmath.log(v) if v > 0 else mpmath.mpf(0))}
+            return {"out_sqrt": each(mpmath.sqrt)}
+    v = np.asarray(values)
+    out_scale = 2.0**dp.out_frac
+    with np.errstate(divide="ignore", invalid="ignore"):
+        if f == "sinhcosh":
+            return {"out_cosh": np.cosh(v) * out_scale, "out_sinh": np.sinh(v) * out_scale}
+        if f == "exp":
+            q = np.floor(v / np.log(2.0))
+            return {"out_mantissa": np.exp(v - q * np.log(2.0)) * out_scale}
+        if f == "atanh":
+            return {"out_atanh": np.where(np.abs(v) < 1, np.arctanh(np.where(np.abs(v) < 1, v, 0.0)), 0.0) * out_scale}
+        if f == "ln":
+            return {"out_ln": np.where(v > 0, np.log(np.where(v > 0, v, 1.0)), 0.0) * out_scale}
+        return {"out_sqrt": np.sqrt(v) * out_scale}
+
+
 def ideal_outputs(dp: Datapath, inputs: Inputs, *, with_gain: bool = True) -> dict[str, npt.NDArray[Any]]:
     """The exact answer for each numeric output (float64 or mpmath values; see reference.py).
 
@@ -225,6 +367,9 @@ def ideal_outputs(dp: Datapath, inputs: Inputs, *, with_gain: bool = True) -> di
     """
     if dp.function in ("mul", "div"):
         return _ideal_linear(dp, inputs)
+    if dp.coordinates == "hyperbolic":
+        ideal = _ideal_hyperbolic(dp, inputs)
+        return apply_gain(dp, ideal) if with_gain else ideal
     if dp.function == "sincos":
         cos, sin = ideal_sincos(dp, inputs["in_angle"])
         return {"out_cos": cos, "out_sin": sin}
@@ -256,7 +401,25 @@ def function_errors(
     :func:`small_vector_limit` long; the zero vector's angle is defined as 0 and not judged.
     """
     ideal = ideal if ideal is not None else ideal_outputs(dp, inputs)
+    if dp.function == "exp":
+        # Judged at the core's own exponent: where it differs from floor(t / ln 2) (possible
+        # only at a power-of-two boundary) the ideal mantissa is rescaled to it.
+        step = _exp_exponent(dp, inputs) - np.asarray(outputs["out_exponent"]).astype(np.int64)
+        mant = ideal["out_mantissa"]
+        if np.any(step):
+            if mant.dtype == object:
+                mant = np.array([m * mpmath.mpf(2) ** int(k) for m, k in zip(mant, step, strict=True)], dtype=object)
+            else:
+                mant = mant * np.exp2(step.astype(np.float64))
+        ideal = {"out_mantissa": mant}
     errs = {name: errors_lsb(outputs[name], ideal[name]) for name in ideal}
+    if dp.function == "atanh":
+        u = to_signed(np.asarray(inputs["in_u"]).astype(np.int64), dp.data_width) if dp.data_width <= 62 else None
+        inside = atanh_domain(dp, u) if u is not None else np.asarray(outputs["out_domain_error"]) == 0
+        errs["out_atanh"] = np.where(inside, errs["out_atanh"], np.nan)
+    if dp.function == "ln":
+        w = np.asarray(inputs["in_w"])
+        errs["out_ln"] = np.where(w != 0, errs["out_ln"], np.nan)
     if dp.function == "div":
         # Judged inside the domain, and below the format's largest value (2 - 2^-(b-2)), where
         # the quotient saturates by design.
@@ -281,6 +444,10 @@ def apply_gain(dp: Datapath, ideal: dict[str, npt.NDArray[Any]]) -> dict[str, np
         return ideal
     growth = 1.0 / float(dp.gain)
     keep = {"out_angle"}
+    if any(np.asarray(v).dtype == object for v in ideal.values()):
+        with mpmath.workdps(_IDEAL_DPS):
+            big = 1 / mpmath.mpf(dp.gain)
+            return {k: (v if k in keep else np.array([e * big for e in v], dtype=object)) for k, v in ideal.items()}
     return {k: (v if k in keep else v * growth) for k, v in ideal.items()}
 
 

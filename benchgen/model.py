@@ -15,7 +15,11 @@ import numpy.typing as npt
 
 from benchgen.algorithm import Datapath
 
-__all__ = ["SinCos", "atan2", "div", "div_domain", "evaluate_function", "mul", "prescale", "rotate", "round_drop", "sincos", "to_signed", "wrap"]
+__all__ = [
+    "SinCos", "atan2", "atanh", "atanh_domain", "div", "div_domain", "evaluate_function", "exp", "exp_reduce",
+    "leading_zeros", "ln", "mul", "prescale", "rotate", "round_drop", "sincos", "sinhcosh", "sqrt", "to_signed",
+    "wrap",
+]
 
 IntArray = npt.NDArray[Any]
 
@@ -164,15 +168,17 @@ def iterate(dp: Datapath, x: IntArray, y: IntArray, z: IntArray, dtype: Any) -> 
 
 
 def _iterate_block(dp: Datapath, x: IntArray, y: IntArray, z: IntArray) -> None:
-    """In-place iterations on int64 without the per-register wrap.
+    """In-place iterations on int64 without the per-register wrap (any coordinates).
 
     Leaving the wrap to the end changes no bit here. x and y never reach their register
     limits: the inputs start within sqrt(2) full scale (times K_n when compensated), each
     iteration grows the vector by sqrt(1 + 2^-2i), to at most 2.33 full scale raw, and the
     widths hold 4 full scales (rotate, atan2) or 2 amplitudes (sincos). In rotation z stays
     within +-1/4 turn (or pi/2) after the fold. In vectoring z only accumulates, no decision
-    reads it, so wrapping it once at the end equals wrapping it at every step. A property test
-    holds this path equal to :func:`iterate_wrapping`.
+    reads it, so wrapping it once at the end equals wrapping it at every step. Hyperbolic
+    iterations shrink the vector (by A_n = 0.828) and their widths hold at least twice the
+    largest value on the way (see algorithm._hyperbolic_datapath). A property test holds this
+    path equal to :func:`iterate_wrapping`.
     """
     s = np.empty_like(x)
     tx = np.empty_like(x)
@@ -180,20 +186,23 @@ def _iterate_block(dp: Datapath, x: IntArray, y: IntArray, z: IntArray) -> None:
     last = dp.iterations - 1
     vectoring = dp.mode == "vectoring"
     linear = dp.coordinates == "linear"
-    for i, step in enumerate(dp.atan_table):
+    hyperbolic = dp.coordinates == "hyperbolic"
+    for i, (shift, step) in enumerate(zip(dp.shifts, dp.atan_table, strict=True)):
         # s = -1 where the turn is clockwise, else 0; (v ^ s) - s negates v where s = -1.
         if vectoring:
             np.right_shift(y, 63, out=s)
             np.invert(s, out=s)
         else:
             np.right_shift(z, 63, out=s)
-        np.right_shift(y, i, out=ty)
+        np.right_shift(y, shift, out=ty)
         np.bitwise_xor(ty, s, out=ty)
         np.subtract(ty, s, out=ty)
-        np.right_shift(x, i, out=tx)
+        np.right_shift(x, shift, out=tx)
         np.bitwise_xor(tx, s, out=tx)
         np.subtract(tx, s, out=tx)
-        if not linear:
+        if hyperbolic:
+            np.add(x, ty, out=x)
+        elif not linear:
             np.subtract(x, ty, out=x)
         if not (vectoring and i == last):
             np.add(y, tx, out=y)
@@ -208,18 +217,24 @@ def iterate_wrapping(dp: Datapath, x: IntArray, y: IntArray, z: IntArray, dtype:
 
     Rotation mode turns counter-clockwise where z >= 0; vectoring mode where y < 0 (driving y
     to 0 with x > 0). Either way: x - d y/2^i, y + d x/2^i, z - d atan 2^-i (Walther 1971);
-    in linear coordinates x stays and z steps by 2^-i.
+    in linear coordinates x stays and z steps by 2^-i; in hyperbolic coordinates x + d y/2^s,
+    z - d atanh 2^-s, with the shift s of each iteration from ``dp.shifts``.
     The values the last iteration does not need (z in rotation, y in vectoring) are left as
     they were, as the RTL does not form them.
     """
     last = dp.iterations - 1
     vectoring = dp.mode == "vectoring"
-    for i, step in enumerate(dp.atan_table):
+    for i, (shift, step) in enumerate(zip(dp.shifts, dp.atan_table, strict=True)):
         turn = (y < 0) if vectoring else (z >= 0)
         sign = turn.astype(dtype) * 2 - 1
-        xs = x >> i
-        ys = y >> i
-        new_x = x if dp.coordinates == "linear" else wrap(x - sign * ys, dp.xy_width)
+        xs = x >> shift
+        ys = y >> shift
+        if dp.coordinates == "linear":
+            new_x = x
+        elif dp.coordinates == "hyperbolic":
+            new_x = wrap(x + sign * ys, dp.xy_width)
+        else:
+            new_x = wrap(x - sign * ys, dp.xy_width)
         if not (vectoring and i == last):
             y = wrap(y + sign * xs, dp.xy_width)
         if vectoring or i != last:
@@ -346,8 +361,160 @@ def div(dp: Datapath, num_in: npt.ArrayLike, den_in: npt.ArrayLike) -> dict[str,
     return {"out_quotient": np.where(ok, q, 0), "out_domain_error": (~ok).astype(q.dtype)}
 
 
+def _unsigned(values: npt.ArrayLike, width: int, dtype: Any) -> IntArray:
+    return _as_ints(values, width, dtype) & ((1 << width) - 1)
+
+
+def sinhcosh(dp: Datapath, t_in: npt.ArrayLike) -> dict[str, IntArray]:
+    """Predict the sinhcosh core: ``out_cosh``, ``out_sinh`` of t (hyperbolic rotation from
+    (1/A_n, 0, t), Walther 1971; from (1, 0, t) with the gain left in when raw)."""
+    dtype = _dtype_for(max(dp.xy_width, dp.z_width) + 2)
+    b = dp.data_width
+    t = to_signed(_as_ints(t_in, b, dtype), b)
+    z = t << (dp.z_frac - dp.in_frac)
+    x = np.full(t.shape, dp.x_start, dtype=z.dtype)
+    y = np.zeros_like(x)
+    x, y, _ = iterate(dp, x, y, z, dtype)
+    q_w = dp.out_width + 1
+    return {
+        "out_cosh": _saturate(round_drop(x, dp.guard_bits, dp.rounding, q_w), dp.out_max),
+        "out_sinh": _saturate(round_drop(y, dp.guard_bits, dp.rounding, q_w), dp.out_max),
+    }
+
+
+def exp_reduce(dp: Datapath, t: IntArray) -> tuple[IntArray, IntArray]:
+    """t = q ln 2 + r with 0 <= r < ln 2: (q, r at ``z_frac`` fraction bits), as the RTL does.
+
+    q starts as floor(t 1/ln2) from a constant multiply, which can miss by one; the remainder
+    against ln 2 (at ``ln2_extra`` more fraction bits) corrects it, then drops those bits.
+    """
+    q = (t * dp.inv_ln2) >> dp.inv_ln2_shift
+    rem = (t << (dp.z_frac + dp.ln2_extra - dp.in_frac)) - q * dp.ln2_wide
+    neg = rem < 0
+    over = rem >= dp.ln2_wide
+    q = q - neg.astype(q.dtype) + over.astype(q.dtype)
+    rem = rem + np.where(neg, dp.ln2_wide, 0) - np.where(over, dp.ln2_wide, 0)
+    return q, rem >> dp.ln2_extra
+
+
+def exp(dp: Datapath, t_in: npt.ArrayLike) -> dict[str, IntArray]:
+    """Predict the exp core: e^t = ``out_mantissa`` 2^``out_exponent``, the mantissa in [1, 2).
+
+    Range extension (Walther 1971): t = q ln 2 + r; e^r from hyperbolic rotation of
+    (1/A_n, 1/A_n, r) (x = y all the way); the exponent is q.
+    """
+    b = dp.data_width
+    widest = max(2 * b + 4, dp.z_frac + dp.ln2_extra + dp.int_bits + 4, dp.xy_width + 2)
+    dtype = _dtype_for(widest)
+    t = to_signed(_as_ints(t_in, b, dtype), b)
+    q, r = exp_reduce(dp, t)
+    x = np.full(t.shape, dp.x_start, dtype=r.dtype)
+    y = x.copy()
+    x, _, _ = iterate(dp, x, y, r, dtype)
+    m = round_drop(x, dp.guard_bits, dp.rounding, dp.out_width + 2)
+    m = np.where(m < 0, 0, np.where(m > dp.out_max, dp.out_max, m))
+    return {"out_mantissa": m, "out_exponent": q}
+
+
+def atanh_domain(dp: Datapath, u: IntArray) -> IntArray:
+    """True where |u| <= tanh(1.1182) (the hyperbolic vectoring range), as the core decides it."""
+    return np.abs(u) <= dp.domain_limit
+
+
+def atanh(dp: Datapath, u_in: npt.ArrayLike) -> dict[str, IntArray]:
+    """Predict the atanh core: ``out_atanh`` from hyperbolic vectoring of (1, u, 0) and
+    ``out_domain_error`` (with a zero result) where |u| is beyond the range."""
+    dtype = _dtype_for(max(dp.xy_width, dp.z_width) + 2)
+    b = dp.data_width
+    u = to_signed(_as_ints(u_in, b, dtype), b)
+    ok = atanh_domain(dp, u)
+    x = np.full(u.shape, dp.x_start, dtype=u.dtype)
+    y = u << dp.guard_bits
+    z = np.zeros_like(x)
+    _, _, z = iterate(dp, x, y, z, dtype)
+    q = _saturate(round_drop(z, dp.z_frac - dp.out_frac, dp.rounding, dp.out_width + 1), dp.out_max)
+    return {"out_atanh": np.where(ok, q, 0), "out_domain_error": (~ok).astype(q.dtype)}
+
+
+def leading_zeros(codes: IntArray, width: int) -> IntArray:
+    """Leading zeros of unsigned ``width``-bit codes; ``width - 1`` for 0 (as the RTL's encoder)."""
+    lz = np.full(codes.shape, width - 1, dtype=np.int64)
+    found = np.zeros(codes.shape, dtype=bool)
+    for k in range(width):
+        bit = ((codes >> (width - 1 - k)) & 1).astype(bool)
+        hit = bit & ~found
+        lz[hit] = k
+        found |= bit
+    return lz
+
+
+def ln(dp: Datapath, w_in: npt.ArrayLike) -> dict[str, IntArray]:
+    """Predict the ln core: ``out_ln`` and ``out_domain_error`` (w = 0, with a zero result).
+
+    w = m 2^-e with m in [1/2, 1); ln w = 2 atanh((m - 1)/(m + 1)) - e ln 2, the atanh from
+    hyperbolic vectoring of (m + 1, m - 1, 0) (Walther 1971).
+    """
+    b = dp.data_width
+    dtype = _dtype_for(max(dp.xy_width, dp.z_width + dp.int_bits) + 3)
+    w = _unsigned(w_in, b, dtype)
+    e = leading_zeros(w, b)
+    m = (w << e.astype(w.dtype)) & ((1 << b) - 1)
+    one = 1 << b
+    x = (m + one) << dp.guard_bits
+    y = (m - one) << dp.guard_bits
+    z = np.zeros_like(x)
+    _, _, z = iterate(dp, x, y, z, dtype)
+    table = np.array(dp.ln2_table, dtype=z.dtype)
+    res = (z << 1) - table[e]
+    q = _saturate(round_drop(res, dp.z_frac - dp.out_frac, dp.rounding, dp.out_width + 1), dp.out_max)
+    bad = w == 0
+    return {"out_ln": np.where(bad, 0, q), "out_domain_error": bad.astype(q.dtype)}
+
+
+def sqrt(dp: Datapath, w_in: npt.ArrayLike) -> dict[str, IntArray]:
+    """Predict the sqrt core: ``out_sqrt`` of w in [0, 1).
+
+    w = m 2^-2k with m in [1/4, 1); sqrt w = sqrt(m) 2^-k, sqrt(m) from hyperbolic vectoring of
+    (m + 1/4, m - 1/4) (Walther 1971), scaled by 1/A_n on the way in when compensated.
+    """
+    b = dp.data_width
+    g = dp.guard_bits
+    product = b + dp.k_frac + 2 if dp.k_frac else 0
+    dtype = _dtype_for(max(product, dp.xy_width + dp.norm_max, dp.z_width) + 2)
+    w = _unsigned(w_in, b, dtype)
+    e = leading_zeros(w, b)
+    half = e >> 1
+    m = w << (half << 1).astype(w.dtype)
+    if dp.k_frac:
+        drop = dp.k_frac - g
+        prod = m * dp.k_const
+        p = (prod >> drop) + ((prod & ((1 << drop) - 1)) >= (1 << (drop - 1))).astype(prod.dtype)
+    else:
+        p = m << g
+    x = p + dp.quarter
+    y = p - dp.quarter
+    z = np.zeros_like(x)
+    x, _, _ = iterate(dp, x, y, z, dtype)
+    wide = (x << dp.norm_max) >> half.astype(x.dtype)
+    q = round_drop(wide, g + dp.norm_max, dp.rounding, dp.out_width + 2)
+    q = np.where(q < 0, 0, np.where(q > dp.out_max, dp.out_max, q))
+    return {"out_sqrt": np.where(w == 0, 0, q)}
+
+
+_HYPERBOLIC_MODELS = {
+    "sinhcosh": ("in_t", sinhcosh),
+    "exp": ("in_t", exp),
+    "atanh": ("in_u", atanh),
+    "ln": ("in_w", ln),
+    "sqrt": ("in_w", sqrt),
+}
+
+
 def evaluate_function(dp: Datapath, inputs: dict[str, npt.ArrayLike]) -> dict[str, IntArray]:
     """The model's outputs for the data path's function, by output port name."""
+    if dp.function in _HYPERBOLIC_MODELS:
+        port, model = _HYPERBOLIC_MODELS[dp.function]
+        return model(dp, inputs[port])
     if dp.function == "mul":
         return mul(dp, inputs["in_a"], inputs["in_b"])
     if dp.function == "div":
