@@ -415,23 +415,25 @@ def _hyperbolic_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Da
             in_frac, out_frac = b - 1 - L, b - 1
             xy_frac = out_frac + g
             xy_width = xy_frac + 4  # up to 1.21 e^1.24 = 4.2 on the way: [-8, 8)
-            z_frac = b + g
+            # z carries L + 2 more fraction bits than the output needs, so the reduction's
+            # q ln 2 (|q| < 2^(L+1)) stays within a quarter of an LSB of z's first b + g bits.
+            z_frac = b + g + L + 2
             z_width = z_frac + 2
             out_width, out_max = b, (1 << b) - 1
             start = inv_a if compensated else mpmath.mpf(1)
             fields["x_start"] = int(mpmath.nint(start * mpmath.mpf(2) ** xy_frac))
             # q's first guess: t (in_frac fraction bits) times 1/ln 2 at L + 2 fraction bits,
-            # within 2^L 2^-(L+3) = 1/8 of t / ln 2, so one correction step makes it exact.
+            # rounded: within 1/2 + 2^L 2^-(L+3) of t / ln 2, so floor(t / ln 2) or one above;
+            # the remainder's sign then corrects it.
             shift = in_frac + L + 2
-            extra = L + 2
             q_lo = int(mpmath.floor(-(mpmath.mpf(2) ** L) / ln2))
             q_hi = int(mpmath.floor((mpmath.mpf(2) ** L - mpmath.mpf(2) ** -in_frac) / ln2))
             fields.update(
                 int_bits=L,
                 inv_ln2=int(mpmath.nint(mpmath.mpf(2) ** (shift - in_frac) / ln2)),
                 inv_ln2_shift=shift,
-                ln2_wide=int(mpmath.nint(ln2 * mpmath.mpf(2) ** (z_frac + extra))),
-                ln2_extra=extra,
+                ln2_wide=int(mpmath.nint(ln2 * mpmath.mpf(2) ** z_frac)),
+                ln2_extra=0,
                 exp_width=max(q_hi.bit_length(), (-q_lo - 1).bit_length()) + 1,
             )
             mode = "rotation"

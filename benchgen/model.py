@@ -385,10 +385,12 @@ def sinhcosh(dp: Datapath, t_in: npt.ArrayLike) -> dict[str, IntArray]:
 def exp_reduce(dp: Datapath, t: IntArray) -> tuple[IntArray, IntArray]:
     """t = q ln 2 + r with 0 <= r < ln 2: (q, r at ``z_frac`` fraction bits), as the RTL does.
 
-    q starts as floor(t 1/ln2) from a constant multiply, which can miss by one; the remainder
-    against ln 2 (at ``ln2_extra`` more fraction bits) corrects it, then drops those bits.
+    q starts as t 1/ln2 from a constant multiply, rounded half up, which is floor(t / ln 2) or
+    one above; the sign of the remainder against ln 2 corrects it.
     """
-    q = (t * dp.inv_ln2) >> dp.inv_ln2_shift
+    prod = t * dp.inv_ln2
+    drop = dp.inv_ln2_shift
+    q = (prod >> drop) + ((prod & ((1 << drop) - 1)) >= (1 << (drop - 1))).astype(prod.dtype)
     rem = (t << (dp.z_frac + dp.ln2_extra - dp.in_frac)) - q * dp.ln2_wide
     neg = rem < 0
     over = rem >= dp.ln2_wide
@@ -411,7 +413,7 @@ def exp(dp: Datapath, t_in: npt.ArrayLike) -> dict[str, IntArray]:
     x = np.full(t.shape, dp.x_start, dtype=r.dtype)
     y = x.copy()
     x, _, _ = iterate(dp, x, y, r, dtype)
-    m = round_drop(x, dp.guard_bits, dp.rounding, dp.out_width + 2)
+    m = round_drop(x, dp.guard_bits, dp.rounding, dp.xy_width - dp.guard_bits)
     m = np.where(m < 0, 0, np.where(m > dp.out_max, dp.out_max, m))
     return {"out_mantissa": m, "out_exponent": q}
 
@@ -496,7 +498,7 @@ def sqrt(dp: Datapath, w_in: npt.ArrayLike) -> dict[str, IntArray]:
     z = np.zeros_like(x)
     x, _, _ = iterate(dp, x, y, z, dtype)
     wide = (x << dp.norm_max) >> half.astype(x.dtype)
-    q = round_drop(wide, g + dp.norm_max, dp.rounding, dp.out_width + 2)
+    q = round_drop(wide, g + dp.norm_max, dp.rounding, dp.xy_width - g)
     q = np.where(q < 0, 0, np.where(q > dp.out_max, dp.out_max, q))
     return {"out_sqrt": np.where(w == 0, 0, q)}
 

@@ -84,8 +84,19 @@ class Iteration:
 
 
 def _drops(design: Design) -> dict[str, int]:
-    """Bits each coordinate's final value loses to output rounding, by coordinate."""
+    """Bits each coordinate's final value loses to output rounding, by coordinate.
+
+    ln and sqrt round a value derived from z or x (2z - e ln 2; x shifted back by the
+    normalisation), so their final z or x is formed whole.
+    """
     dp = design.datapath
+    if dp.function == "ln":
+        return {"x": 0, "y": 0, "z": 0}
+    if dp.function == "sqrt":
+        # Truncation: floor(x 2^-k 2^-g) = floor(x 2^-g) 2^-k, so the final x drops g bits first.
+        return {"x": dp.guard_bits, "y": 0, "z": 0}
+    if dp.function == "atanh":
+        return {"x": 0, "y": 0, "z": dp.z_frac - dp.out_frac}
     if dp.mode == "vectoring":
         return {"x": dp.guard_bits, "y": 0, "z": dp.z_frac - dp.angle_frac}
     return {"x": dp.guard_bits, "y": dp.guard_bits, "z": 0}
@@ -97,7 +108,24 @@ def _final_outputs(design: Design) -> tuple[bool, bool, bool]:
         "mul": (False, True, False),
         "div": (False, False, True),
         "atan2": (True, False, True),
+        "exp": (True, False, False),
+        "atanh": (False, False, True),
+        "ln": (False, False, True),
+        "sqrt": (True, False, False),
     }.get(design.datapath.function, (True, True, False))
+
+
+def _z_only_vectoring(design: Design) -> bool:
+    """Vectoring whose result is z alone: the last iteration reads y's sign and z, so the x
+    formed just before it has no reader."""
+    dp = design.datapath
+    return dp.mode == "vectoring" and not _final_outputs(design)[0]
+
+
+def _carries(function: str) -> tuple[bool, bool]:
+    """Whether the core carries y and z at all: exp keeps only x (y equals x all the way, as
+    both start at 1/A_n), sqrt never reads z."""
+    return function != "exp", function != "sqrt"
 
 
 def _sign_shift_part(name: str, shift: int, width: int, low: int) -> str:
@@ -121,6 +149,8 @@ def _iteration(
     final: bool = False,
     truncate_final: bool = False,
     x_low: int = 0,
+    skip_x: bool = False,
+    x_keep_low: int = 0,
 ) -> Iteration:
     dp = design.datapath
     w = dp.xy_width
@@ -129,13 +159,24 @@ def _iteration(
     if final:
         need = _final_outputs(design)
         x_out, y_out, z_out = (n if keep else "" for n, keep in zip(dst, need, strict=True))
-    kept = {"x": 0, "y": 0, "z": 0}
+    has_y, has_z = _carries(dp.function)
+    if skip_x:
+        x_out = ""
+    if not has_y:
+        y_out = ""
+    if not has_z:
+        z_out = ""
+    kept = {"x": x_keep_low, "y": 0, "z": 0}
     if final and truncate_final:
         kept = {k: v for k, v in _drops(design).items()}
-        kept = {k: (v if (k != "y" or y_out) and (k != "z" or z_out) else 0) for k, v in kept.items()}
+        kept = {k: (v if (k != "y" or y_out) and (k != "z" or z_out) and (k != "x" or x_out) else 0) for k, v in kept.items()}
     dir_expr = f"({y_in} >= Y_HALF)" if dp.mode == "vectoring" else f"({z_in} < Z_HALF)"
     if dp.coordinates == "linear":
         x_out = ""  # x is held: every iteration reads the same value
+    x_shift = f"xs_{label}" if shift is None else _sign_shift_part(x_in, shift, w, x_low)
+    y_shift = f"ys_{label}" if shift is None else _sign_shift(y_in, shift, w)
+    if not has_y:
+        y_shift = x_shift  # exp: y is x
     return Iteration(
         index=i,
         x_in=x_in,
@@ -146,8 +187,8 @@ def _iteration(
         z_out=z_out,
         dir=f"dir_{label}",
         dir_expr=dir_expr,
-        x_shift=f"xs_{label}" if shift is None else _sign_shift_part(x_in, shift, w, x_low),
-        y_shift=f"ys_{label}" if shift is None else _sign_shift(y_in, shift, w),
+        x_shift=x_shift,
+        y_shift=y_shift,
         atan=atan,
         active=active,
         kept_x=kept["x"],
@@ -165,6 +206,7 @@ def _pipelined_context(design: Design) -> dict[str, Any]:
     stages = []
     src = ("x_start", "y_start", "z_start")
     x_low = 0  # bits of x below this are not held (linear coordinates only)
+    z_only = _z_only_vectoring(design)
     bounds = design.timing.stages
     for k, (first, end) in enumerate(bounds):
         iters = []
@@ -174,12 +216,19 @@ def _pipelined_context(design: Design) -> dict[str, Any]:
                 dst = (f"s{k}_x", f"s{k}_y", f"s{k}_z")
             else:
                 dst = (f"x_{i + 1}", f"y_{i + 1}", f"z_{i + 1}")
+            # z-only vectoring: iteration n-2 reads x only shifted by s_{n-2}, so iteration n-3
+            # forms just those bits of x (plus the carry of the rest).
+            keep_low = dp.shifts[n - 2] if z_only and not linear and i == n - 3 else 0
             it = _iteration(
-                f"{i}", i, src, dst, design=design, shift=i, atan=f"ATAN_{i}", final=final,
-                truncate_final=truncating, x_low=x_low,
+                f"{i}", i, src, dst, design=design, shift=dp.shifts[i], atan=f"ATAN_{i}", final=final,
+                truncate_final=truncating, x_low=x_low, skip_x=z_only and i == n - 2, x_keep_low=keep_low,
             )
             iters.append(it)
-            src = (src[0] if linear else dst[0], dst[1], dst[2])
+            if keep_low:
+                src = (f"{dst[0]}_kept", dst[1], dst[2])
+                x_low = keep_low
+            else:
+                src = (src[0] if linear else dst[0], dst[1], dst[2])
         stage: dict[str, Any] = {
             "index": k, "first": first, "end": end, "iterations": iters, "last": k == len(bounds) - 1,
             "x_reg_width": w, "x_reg_src": f"s{k}_x",
@@ -196,6 +245,11 @@ def _pipelined_context(design: Design) -> dict[str, Any]:
             top = w - 1 - x_low
             stage["x_reg_src"] = src[0] if next_low == x_low else f"{src[0]}[{top}:{next_low - x_low}]"
             x_low = next_low
+        elif z_only and k + 1 < len(bounds) and bounds[k + 1][0] == n - 1:
+            stage["x_reg_width"] = 0  # the last stage holds only the final iteration: no x read
+        elif x_low and k + 1 < len(bounds):
+            stage["x_reg_width"] = w - x_low  # the kept bits of x (z-only vectoring)
+            stage["x_reg_src"] = src[0]
         stages.append(stage)
         src = (f"s{k}_x_reg", f"s{k}_y_reg", f"s{k}_z_reg")
     last = stages[-1]["iterations"][-1]
@@ -209,10 +263,11 @@ def _iterative_context(design: Design) -> dict[str, Any]:
     per_cycle = groups[0][1] - groups[0][0]
     n = dp.iterations
     count_width = max(1, (cycles - 1).bit_length())
-    shift_width = max(1, (n - 1).bit_length())
+    shift_width = max(1, max(dp.shifts).bit_length())
     truncating = dp.rounding == "truncate"
     iters = []
     tables = []
+    x_low = 0  # bits of x below this are not formed (z-only vectoring, one clock per sample)
     src = ("x_reg", "y_reg", "z_reg")
     for j in range(per_cycle):
         dst = (f"x_{j + 1}", f"y_{j + 1}", f"z_{j + 1}")
@@ -222,13 +277,15 @@ def _iterative_context(design: Design) -> dict[str, Any]:
             rows.append(
                 {
                     "count": c,
-                    "shift": i if i < end else 0,
+                    "shift": dp.shifts[i] if i < end else 0,
                     "atan": dp.atan_table[i] if i < end else 0,
                     "active": i < end,
                 }
             )
         fixed = cycles == 1
         needs_active = not all(r["active"] for r in rows)
+        z_only = fixed and _z_only_vectoring(design) and dp.coordinates != "linear"
+        keep_low = dp.shifts[n - 2] if z_only and j == n - 3 else 0
         # With one clock per sample the group output feeds only the rounding, like a pipeline's
         # last stage; with more it also feeds the registers, which need every value.
         final = fixed and j == per_cycle - 1
@@ -239,11 +296,14 @@ def _iterative_context(design: Design) -> dict[str, Any]:
                 src,
                 dst,
                 design=design,
-                shift=j if fixed else None,
+                shift=dp.shifts[j] if fixed else None,
                 atan=f"ATAN_{j}" if fixed else f"atan_j{j}",
                 active=f"active_j{j}" if needs_active else "",
                 final=final,
                 truncate_final=truncating,
+                skip_x=fixed and _z_only_vectoring(design) and j == n - 2,
+                x_keep_low=keep_low,
+                x_low=x_low,
             )
         )
         if not fixed:
@@ -262,7 +322,11 @@ def _iterative_context(design: Design) -> dict[str, Any]:
                     "needs_active": needs_active,
                 }
             )
-        src = (src[0] if dp.coordinates == "linear" else dst[0], dst[1], dst[2])
+        if keep_low:
+            src = (f"{dst[0]}_kept", dst[1], dst[2])
+            x_low = keep_low
+        else:
+            src = (src[0] if dp.coordinates == "linear" else dst[0], dst[1], dst[2])
     return {
         "group": iters,
         "final": iters[-1],
@@ -280,11 +344,97 @@ def _iterative_context(design: Design) -> dict[str, Any]:
 
 def _side_signals(design: Design) -> list[dict[str, Any]]:
     """Per-sample values that travel beside x, y, z from the input logic to the output logic."""
-    if design.datapath.function == "atan2":
+    dp = design.datapath
+    if dp.function == "atan2":
         return [{"name": "zero", "width": 1, "src": "in_zero"}]
-    if design.datapath.function == "div":
+    if dp.function in ("div", "atanh"):
         return [{"name": "bad", "width": 1, "src": "in_bad"}]
+    if dp.function == "ln":
+        return [{"name": "bad", "width": 1, "src": "in_bad"}, {"name": "lz", "width": dp.lz_width, "src": "in_lz"}]
+    if dp.function == "sqrt":
+        return [
+            {"name": "zero", "width": 1, "src": "in_zero"},
+            {"name": "half", "width": dp.norm_max.bit_length(), "src": "in_half"},
+        ]
+    if dp.function == "exp":
+        return [{"name": "q", "width": dp.exp_width, "src": "in_q"}]
     return []
+
+
+def _hyperbolic_context(dp: Any) -> dict[str, Any]:
+    """Constants of the hyperbolic functions' input and output logic."""
+    b = dp.data_width
+    w = dp.xy_width
+    g = dp.guard_bits
+    lit = verilog_literal
+    ctx: dict[str, Any] = {}
+    if dp.function in ("sinhcosh", "exp", "atanh"):
+        ctx["x_start"] = lit(dp.x_start, w)
+    if dp.function == "sinhcosh":
+        pad = dp.z_frac - dp.in_frac
+        ctx["t_z"] = {"ext": dp.z_width - b - pad, "pad": lit(0, pad)}
+    if dp.function == "exp":
+        s = dp.inv_ln2_shift
+        qw = dp.exp_width + 1  # the first guess may be one above the largest exponent
+        pw = s + qw
+        inv_w = dp.inv_ln2.bit_length()
+        rw = dp.z_frac + 3  # the remainder before correction: [-ln 2, 2 ln 2)
+        t_bits = rw - (dp.z_frac - dp.in_frac)
+        assert t_bits <= b and pw > b and pw > inv_w
+        ctx["exp"] = {
+            "qw": qw, "pw": pw, "s": s, "rw": rw,
+            "inv": lit(dp.inv_ln2, pw),
+            "half": lit(1 << (s - 1), s),
+            "t_ext": pw - b,
+            "t_low": t_bits,
+            "t_pad": lit(0, dp.z_frac - dp.in_frac),
+            "ln2_r": lit(dp.ln2_wide, rw),
+            "ln2_z": lit(dp.ln2_wide, dp.z_width),
+            "neg_ln2_z": lit(-dp.ln2_wide, dp.z_width),
+            "q_ext": rw - qw,
+            "ew": dp.exp_width,
+        }
+    if dp.function == "atanh":
+        ctx["limit"] = lit(dp.domain_limit, b + 1)
+    if dp.function in ("ln", "sqrt"):
+        lzw = dp.lz_width
+        if dp.function == "ln":
+            # Leading zeros: the index of the first 1 from the top (b - 1 when none).
+            terms = [(f"in_w[{b - 1 - k}]", lit(k, lzw)) for k in range(b - 1)]
+            ctx["lz_expr"] = " : ".join(f"{c} ? {v}" for c, v in terms) + (" : " if terms else "") + lit(b - 1, lzw)
+            rw = dp.z_frac + dp.int_bits + 2
+            ctx["ln"] = {
+                "rw": rw,
+                "lzw": lzw,
+                "rows": [(lit(e, lzw), lit(v, rw), e) for e, v in enumerate(dp.ln2_table)],
+                "full": len(dp.ln2_table) == 1 << lzw,
+                "z_ext": rw - dp.z_width - 1,
+            }
+        else:
+            # Half the even normalising shift: the first pair of bits from the top with a 1.
+            hw = dp.norm_max.bit_length()
+            terms = []
+            for k in range(dp.norm_max):
+                hi, lo = b - 1 - 2 * k, b - 2 - 2 * k
+                cond = f"(in_w[{hi}] | in_w[{lo}])" if lo >= 0 else f"in_w[{hi}]"
+                terms.append((cond, lit(k, hw)))
+            ctx["half_expr"] = " : ".join(f"{c} ? {v}" for c, v in terms) + (" : " if terms else "") + lit(dp.norm_max, hw)
+            nm = dp.norm_max
+            sq: dict[str, Any] = {"hw": hw, "nm": nm, "quarter": lit(dp.quarter, w), "pad_nm": lit(0, nm)}
+            if dp.k_frac:
+                kw = dp.k_frac + 1
+                pw = b + kw
+                drop = dp.k_frac - g
+                sq["scale"] = {
+                    "k": lit(dp.k_const, pw), "pw": pw, "drop": drop, "half": lit(1 << (drop - 1), drop),
+                    "p_w": pw - drop, "inc_pad": lit(0, pw - drop - 1), "ext": w - (pw - drop),
+                }
+                assert w > pw - drop
+            else:
+                sq["scale"] = None
+                sq["ext"] = w - b - g
+            ctx["sq"] = sq
+    return ctx
 
 
 def build_context(design: Design, *, config_text: str = "") -> dict[str, Any]:
@@ -318,11 +468,18 @@ def build_context(design: Design, *, config_text: str = "") -> dict[str, Any]:
         "atan": [verilog_literal(a, dp.z_width) for a in dp.atan_table],
         "drops": _drops(design),
     }
+    has_y, has_z = _carries(dp.function)
+    ctx["has_y"] = has_y
+    ctx["has_z"] = has_z
+    if dp.coordinates == "hyperbolic":
+        ctx |= _hyperbolic_context(dp)
     # Input logic constants.
     if dp.function == "sincos":
         ctx["x_start_pos"] = verilog_literal(dp.x_start, w)
         ctx["x_start_neg"] = verilog_literal(-dp.x_start, w)
-    if dp.radians:
+    if dp.coordinates == "hyperbolic":
+        pass
+    elif dp.radians:
         pad = dp.z_frac - dp.angle_frac
         ctx["theta"] = f"{{in_angle, {verilog_literal(0, pad)}}}" if pad else "in_angle"
         ctx["pi"] = verilog_literal(dp.pi_const, dp.z_width)

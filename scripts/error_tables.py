@@ -1,35 +1,59 @@
 """Print the measured error tables of docs/error_analysis.md (bit-true model against the ideal).
 
-Run: python scripts/error_tables.py   (about a minute; numbers depend only on the code)
+Run: python scripts/error_tables.py   (a few minutes; numbers depend only on the code)
 """
 
 from __future__ import annotations
 
 import math
+from typing import Any
 
 import numpy as np
+import numpy.typing as npt
 
-from benchgen.algorithm import make_datapath
+from benchgen.algorithm import Datapath, make_datapath
 from benchgen.config import parse_config
 from benchgen.design import build_design
-from benchgen.functions import measure, sizing_inputs
-from benchgen.model import atan2
+from benchgen.functions import function_errors, measure, sizing_inputs
+from benchgen.model import atan2, evaluate_function
+
+GAIN_FUNCTIONS = ("rotate", "atan2", "sinhcosh", "exp", "sqrt")
+ANGLE_FUNCTIONS = ("sincos", "rotate", "atan2")
+HYPERBOLIC = ("sinhcosh", "exp", "atanh", "ln", "sqrt")
+
+
+def _outputs(dp: Datapath, inputs: dict[str, npt.NDArray[Any]]) -> dict[str, npt.NDArray[Any]]:
+    """The bit-true model's outputs (evaluate_function takes any array-likes)."""
+    arrays: dict[str, npt.ArrayLike] = {k: v for k, v in inputs.items()}
+    return evaluate_function(dp, arrays)
+
+
+def _spec_values(fn: str, width: int, gain: str) -> dict[str, object]:
+    values: dict[str, object] = {"name": "c", "function": fn, "data_width": width}
+    if fn in ANGLE_FUNCTIONS:
+        values.update({"angle_width": width, "gain": gain})
+    elif fn in GAIN_FUNCTIONS:
+        values["gain"] = gain
+    return values
 
 
 def sized_table() -> None:
-    print("| function | width (data/angle) | gain | iterations | guard bits | worst / RMS error (LSB) | measured on |")
+    print(
+        "| function | width (data/angle) | gain | iterations | guard bits | worst / RMS error (LSB) | measured on |"
+    )
     print("|---|---|---|---|---|---|---|")
-    for fn in ("sincos", "rotate", "atan2", "mul", "div"):
+    for fn in ("sincos", "rotate", "atan2", "mul", "div", *HYPERBOLIC):
         for width in (12, 16):
-            for gain in (("compensated", "raw") if fn in ("rotate", "atan2") else ("compensated",)):
-                values = {"name": "c", "function": fn, "data_width": width}
-                if fn not in ("mul", "div"):
-                    values.update({"angle_width": width, "gain": gain})
-                d = build_design(parse_config(values))
+            for gain in ("compensated", "raw") if fn in GAIN_FUNCTIONS else ("compensated",):
+                d = build_design(parse_config(_spec_values(fn, width, gain)))
                 a = d.accuracy
-                on = f"all {a.samples}" if d.accuracy_exhaustive else f"{a.samples} random + corners"
+                on = (
+                    f"all {a.samples}" if d.accuracy_exhaustive else f"{a.samples} random + corners"
+                )
+                angle = width if fn in ANGLE_FUNCTIONS else "-"
+                shown_gain = gain if fn in ANGLE_FUNCTIONS or fn in GAIN_FUNCTIONS else "-"
                 print(
-                    f"| {fn} | {width}/{width if fn not in ('mul', 'div') else '-'} | {gain if fn not in ('mul', 'div') else '-'} | {d.datapath.iterations} | {d.datapath.guard_bits} | "
+                    f"| {fn} | {width}/{angle} | {shown_gain} | {d.datapath.iterations} | {d.datapath.guard_bits} | "
                     f"{a.max_error_lsb:.3f} / {a.rms_error_lsb:.3f} | {on} |"
                 )
 
@@ -54,7 +78,9 @@ def sources_table() -> None:
 
 def small_vector_table() -> None:
     """atan2 angle error against vector length (16-bit, sized core)."""
-    d = build_design(parse_config({"name": "c", "function": "atan2", "data_width": 16, "angle_width": 16}))
+    d = build_design(
+        parse_config({"name": "c", "function": "atan2", "data_width": 16, "angle_width": 16})
+    )
     dp = d.datapath
     rng = np.random.default_rng(1)
     print("| vector length (LSB) | worst / RMS angle error (angle LSB) |")
@@ -72,6 +98,198 @@ def small_vector_table() -> None:
     print(f"\n(the angle budget applies from length {1 << (dp.data_width - 5)})")
 
 
+def _worst_rms(e: np.ndarray) -> str:
+    e = np.abs(e[~np.isnan(e)])
+    if e.size == 0:
+        return "-"
+    return f"{np.max(e):.3f} / {np.sqrt(np.mean(e * e)):.3f}"
+
+
+def hyperbolic_sources_table() -> None:
+    """Where the error of 16-bit exp and ln comes from: vary one source at a time."""
+    print("| function | iterations | guard bits | worst / RMS error (LSB) | what dominates |")
+    print("|---|---|---|---|---|")
+    rows = {
+        "exp": (
+            (12, 16, "angle residue after 12 iterations (last shift 11)"),
+            (16, 16, "angle residue after 16 iterations (last shift 14)"),
+            (24, 16, "final rounding, and the mantissa clamp of one input (see the exp table)"),
+            (19, 0, "rounding of the 19 intermediate x, y and of r with no guard bits"),
+            (19, 3, "intermediate rounding with 3 guard bits"),
+        ),
+        "ln": (
+            (10, 16, "angle residue after 10 iterations, doubled by ln m = 2 z"),
+            (14, 16, "angle residue after 14 iterations, doubled"),
+            (24, 16, "final rounding only"),
+            (
+                15,
+                0,
+                "rounding of the 15 intermediate x, y, z and of the e ln 2 table with no guard bits",
+            ),
+            (15, 3, "intermediate rounding with 3 guard bits"),
+        ),
+    }
+    for fn, cases in rows.items():
+        spec = parse_config({"name": "c", "function": fn, "data_width": 16})
+        sized = build_design(spec).datapath
+        inputs, _ = sizing_inputs(sized)
+        for n, g, note in (*cases, (sized.iterations, sized.guard_bits, "the auto-sized core")):
+            s = measure(make_datapath(spec, n, g), inputs)
+            print(f"| {fn} | {n} | {g} | {s.max_error_lsb:.3f} / {s.rms_error_lsb:.3f} | {note} |")
+
+
+ATANH_BANDS = ((0.0, 0.5), (0.5, 0.75), (0.75, 0.8), (0.8, None))
+
+
+def atanh_edge_table() -> None:
+    """atanh error in bands of |u| up to the domain limit: sized cores and a few others."""
+    head = ["[0, 0.5)", "[0.5, 0.75)", "[0.75, 0.8)", "[0.8, limit]"]
+    print("| data width | iterations | guard bits | " + " | ".join(head) + " | measured on |")
+    print("|---|---|---|" + "---|" * len(head) + "---|")
+    for width in (16, 24):
+        spec = parse_config({"name": "c", "function": "atanh", "data_width": width})
+        d = build_design(spec)
+        sized = d.datapath
+        inputs, exhaustive = sizing_inputs(sized)
+        u = np.abs(inputs["in_u"].astype(np.float64)) / 2.0**sized.in_frac
+        on = f"all {u.size}" if exhaustive else f"{u.size} random + corners"
+        others = ((17, 3), (18, 6), (20, 8)) if width == 16 else ((25, 8), (26, 6), (27, 6))
+        for n, g in ((sized.iterations, sized.guard_bits), *others):
+            dp = make_datapath(spec, n, g)
+            e = function_errors(dp, inputs, _outputs(dp, inputs))["out_atanh"]
+            cells = []
+            for lo, hi in ATANH_BANDS:
+                band = (u >= lo) & ((u < hi) if hi is not None else np.ones_like(u, dtype=bool))
+                cells.append(_worst_rms(e[band]))
+            mark = " (sized)" if (n, g) == (sized.iterations, sized.guard_bits) else ""
+            print(f"| {width} | {n}{mark} | {g} | " + " | ".join(cells) + f" | {on} |")
+    lim = make_datapath(parse_config({"name": "c", "function": "atanh", "data_width": 16}), 17, 6)
+    limit = lim.domain_limit / 2.0**lim.in_frac
+    slopes = [1 / (1 - v * v) / 2 for v in (0.5, 0.75, 0.8, limit)]
+    print(
+        "| slope at the band's top: output LSBs per input LSB | | | "
+        + " | ".join(f"{s:.2f}" for s in slopes)
+        + " | d atanh u / du = 1/(1-u^2); the output LSB is two input LSBs |"
+    )
+    print(
+        f"\n(16-bit limit: |u| <= {lim.domain_limit} / 2^{lim.in_frac} = {limit:.6f}; beyond it out_domain_error = 1)"
+    )
+
+
+def octave_table() -> None:
+    """ln and sqrt error per normalising octave w in [2^-(e+1), 2^-e), 16-bit sized cores."""
+    width = 16
+    dps = {
+        fn: build_design(parse_config({"name": "c", "function": fn, "data_width": width})).datapath
+        for fn in ("ln", "sqrt")
+    }
+    inputs = {"in_w": np.arange(1, 1 << width, dtype=np.int64)}
+    errs = {}
+    for fn, dp in dps.items():
+        errs[fn] = function_errors(dp, inputs, _outputs(dp, inputs))[f"out_{fn}"]
+    for fn, dp in dps.items():
+        print(f"{fn}: {dp.iterations} iterations, {dp.guard_bits} guard bits")
+    print()
+    w = inputs["in_w"]
+    e_of = width - 1 - np.floor(np.log2(w)).astype(np.int64)
+    lnf = dps["ln"].out_frac
+    print(
+        "| e | w in | codes | ln worst / RMS (LSB) | ln slope at the octave's bottom (output LSBs per input LSB) | sqrt worst / RMS (LSB) | sqrt slope at the octave's bottom |"
+    )
+    print("|---|---|---|---|---|---|---|")
+    for e in range(width):
+        sel = e_of == e
+        w_lo = 2.0 ** -(e + 1)
+        ln_slope = 2.0**lnf * 2.0**-width / w_lo
+        sqrt_slope = 1 / (2 * math.sqrt(w_lo))
+        print(
+            f"| {e} | [2^-{e + 1}, 2^-{e}) | {int(np.sum(sel))} | {_worst_rms(errs['ln'][sel])} | {ln_slope:.4g} | "
+            f"{_worst_rms(errs['sqrt'][sel])} | {sqrt_slope:.4g} |"
+        )
+    print("\n(w = 0: ln flagged with out_domain_error = 1; sqrt gives 0 exactly)")
+
+
+def exp_table() -> None:
+    """exp: formats, exponent agreement, mantissa error and the relative error of mantissa 2^q."""
+    print(
+        "| data width | gain | L | t range | exponent range (port bits) | mantissa range | "
+        "inputs where exponent != floor(t / ln 2) | mantissa worst / RMS (LSB) | "
+        "inputs whose ideal mantissa rounds to 2 (worst error there, LSB) | "
+        "worst relative error of mantissa 2^exponent | measured on |"
+    )
+    print("|---|---|---|---|---|---|---|---|---|---|---|")
+    for width in (12, 16):
+        for gain in ("compensated", "raw"):
+            spec = parse_config({"name": "c", "function": "exp", "data_width": width, "gain": gain})
+            dp = build_design(spec).datapath
+            inputs, _ = sizing_inputs(dp)
+            out = _outputs(dp, inputs)
+            t = inputs["in_t"].astype(np.float64) / 2.0**dp.in_frac
+            q = out["out_exponent"].astype(np.int64)
+            m = out["out_mantissa"].astype(np.float64) / 2.0**dp.out_frac
+            floor_q = np.floor(t / math.log(2.0)).astype(np.int64)
+            e = function_errors(dp, inputs, out)["out_mantissa"]
+            scale = float(dp.gain) if gain == "raw" else 1.0  # a raw mantissa is A_n times e^r
+            ideal_m = np.exp(t - floor_q * math.log(2.0)) * 2.0**dp.out_frac / scale
+            top = ideal_m >= dp.out_max + 0.5
+            top_cell = f"{int(np.sum(top))} ({np.max(np.abs(e[top])):.3f})" if np.any(top) else "0"
+            rel = np.abs(m * scale * np.exp2(q.astype(np.float64)) / np.exp(t) - 1)
+            lo_t, hi_t = -(2.0**dp.int_bits), 2.0**dp.int_bits - 2.0**-dp.in_frac
+            print(
+                f"| {width} | {gain} | {dp.int_bits} | [{lo_t:g}, {hi_t:.6g}] | [{q.min()}, {q.max()}] ({dp.exp_width}) | "
+                f"[{m.min():.6f}, {m.max():.6f}] | {int(np.sum(q != floor_q))} | {_worst_rms(e)} | {top_cell} | "
+                f"{np.max(rel):.3g} (2^{math.log2(np.max(rel)):.2f}) | all {t.size} |"
+            )
+    print(
+        "\n(raw: the mantissa is A_n e^r, and mantissa 2^exponent is multiplied by 1/A_n before comparing)"
+    )
+
+
+def round_trip_table() -> None:
+    """exp(ln w) through the two 16-bit sized cores: out_ln fed to in_t unchanged."""
+    width = 16
+    dl = build_design(parse_config({"name": "c", "function": "ln", "data_width": width})).datapath
+    de = build_design(parse_config({"name": "c", "function": "exp", "data_width": width})).datapath
+    w = np.arange(1, 1 << width, dtype=np.int64)
+    ln_out = _outputs(dl, {"in_w": w})["out_ln"]
+    back = _outputs(de, {"in_t": ln_out})
+    value = (
+        back["out_mantissa"].astype(np.float64)
+        / 2.0**de.out_frac
+        * np.exp2(back["out_exponent"].astype(np.float64))
+    )
+    wv = w.astype(np.float64) / 2.0**width
+    rel = np.abs(value / wv - 1)
+    lsb = np.abs(value - wv) * 2.0**width
+    print("| w in | worst relative error of exp(ln w) | worst absolute error (input LSBs) |")
+    print("|---|---|---|")
+    for lo, hi in ((1, 16), (16, 256), (256, 4096), (4096, 1 << width)):
+        sel = (w >= lo) & (w < hi)
+        print(f"| [{lo}, {hi}) / 2^{width} | {np.max(rel[sel]):.3g} | {np.max(lsb[sel]):.3g} |")
+    print(
+        f"\n(the ln output LSB is 2^-{dl.out_frac} = {2.0**-dl.out_frac:.3g}: a relative step of e^t)"
+    )
+
+
+def isqrt_check() -> None:
+    """sqrt read as an integer square root: 16-bit sized core, every W."""
+    width = 16
+    dp = build_design(parse_config({"name": "c", "function": "sqrt", "data_width": width})).datapath
+    w = np.arange(1 << width, dtype=np.int64)
+    out = _outputs(dp, {"in_w": w})["out_sqrt"]
+    half = width // 2
+    exact = np.array([math.isqrt(int(v)) for v in w])
+    floor_off = int(np.sum((out >> half) != exact))
+    nearest = np.round(np.sqrt(w.astype(np.float64)))
+    round_off = int(np.sum(np.round(out / 2.0**half) != nearest))
+    first = w[(out >> half) != exact][:3].tolist()
+    print(f"out_sqrt = sqrt(W) with {half} fraction bits; of {w.size} codes W:")
+    print(
+        f"- floor(out_sqrt / 2^{half}) != isqrt(W) for {floor_off} (W just below a square, e.g. {first})"
+    )
+    print(f"- round(out_sqrt / 2^{half}) != round(sqrt(W)) for {round_off}")
+
+
 def main() -> None:
     print("## Sized cores (max_error_lsb = 1.0, half_even)\n")
     sized_table()
@@ -79,6 +297,18 @@ def main() -> None:
     sources_table()
     print("\n## atan2 angle error against vector length, 16-bit core\n")
     small_vector_table()
+    print("\n## Error sources, 16-bit exp and ln\n")
+    hyperbolic_sources_table()
+    print("\n## atanh error near the domain edge (worst / RMS, LSB)\n")
+    atanh_edge_table()
+    print("\n## ln and sqrt error per normalising octave, 16-bit sized cores\n")
+    octave_table()
+    print("\n## exp: exponent and mantissa\n")
+    exp_table()
+    print("\n## exp(ln w) round trip, 16-bit sized cores\n")
+    round_trip_table()
+    print("\n## sqrt as an integer square root, 16-bit sized core\n")
+    isqrt_check()
 
 
 if __name__ == "__main__":

@@ -39,6 +39,15 @@ FUNCTION_CASES = [
     {"function": "sincos", "data_width": 10, "angle_width": 12, "angle_unit": "radians"},
     {"function": "mul", "data_width": 10},
     {"function": "div", "data_width": 9},
+    {"function": "sinhcosh", "data_width": 10},
+    {"function": "sinhcosh", "data_width": 9, "gain": "raw"},
+    {"function": "exp", "data_width": 10},
+    {"function": "exp", "data_width": 9, "gain": "raw"},
+    {"function": "atanh", "data_width": 10},
+    {"function": "ln", "data_width": 10},
+    {"function": "ln", "data_width": 8},
+    {"function": "sqrt", "data_width": 10},
+    {"function": "sqrt", "data_width": 9, "gain": "raw"},
 ]
 
 
