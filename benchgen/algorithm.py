@@ -434,7 +434,8 @@ def _hyperbolic_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Da
                 inv_ln2_shift=shift,
                 ln2_wide=int(mpmath.nint(ln2 * mpmath.mpf(2) ** z_frac)),
                 ln2_extra=0,
-                exp_width=max(q_hi.bit_length(), (-q_lo - 1).bit_length()) + 1,
+                # q + 1 where the mantissa rounds up to 2.0
+                exp_width=max((q_hi + 1).bit_length(), (-q_lo - 1).bit_length()) + 1,
             )
             mode = "rotation"
         elif f == "atanh":

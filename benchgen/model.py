@@ -8,6 +8,7 @@ arrays of Python integers (exact, slower).
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from typing import Any
 
 import numpy as np
@@ -385,17 +386,17 @@ def sinhcosh(dp: Datapath, t_in: npt.ArrayLike) -> dict[str, IntArray]:
 def exp_reduce(dp: Datapath, t: IntArray) -> tuple[IntArray, IntArray]:
     """t = q ln 2 + r with 0 <= r < ln 2: (q, r at ``z_frac`` fraction bits), as the RTL does.
 
-    q starts as t 1/ln2 from a constant multiply, rounded half up, which is floor(t / ln 2) or
-    one above; the sign of the remainder against ln 2 corrects it.
+    q starts as t 1/ln2 from a constant multiply (1/ln 2 at L + 2 fraction bits, within 1/8 of
+    t / ln 2 over the whole input format), rounded half up: floor(t / ln 2) or one above, never
+    below. Where the remainder t - q ln 2 is negative, q was one above: q - 1, remainder + ln 2.
     """
     prod = t * dp.inv_ln2
     drop = dp.inv_ln2_shift
     q = (prod >> drop) + ((prod & ((1 << drop) - 1)) >= (1 << (drop - 1))).astype(prod.dtype)
     rem = (t << (dp.z_frac + dp.ln2_extra - dp.in_frac)) - q * dp.ln2_wide
     neg = rem < 0
-    over = rem >= dp.ln2_wide
-    q = q - neg.astype(q.dtype) + over.astype(q.dtype)
-    rem = rem + np.where(neg, dp.ln2_wide, 0) - np.where(over, dp.ln2_wide, 0)
+    q = q - neg.astype(q.dtype)
+    rem = rem + np.where(neg, dp.ln2_wide, 0)
     return q, rem >> dp.ln2_extra
 
 
@@ -403,7 +404,8 @@ def exp(dp: Datapath, t_in: npt.ArrayLike) -> dict[str, IntArray]:
     """Predict the exp core: e^t = ``out_mantissa`` 2^``out_exponent``, the mantissa in [1, 2).
 
     Range extension (Walther 1971): t = q ln 2 + r; e^r from hyperbolic rotation of
-    (1/A_n, 1/A_n, r) (x = y all the way); the exponent is q.
+    (1/A_n, 1/A_n, r) (x = y all the way); the exponent is q, or q + 1 where e^r rounds up
+    to 2.0 (the mantissa is then 1.0).
     """
     b = dp.data_width
     widest = max(2 * b + 4, dp.z_frac + dp.ln2_extra + dp.int_bits + 4, dp.xy_width + 2)
@@ -414,8 +416,10 @@ def exp(dp: Datapath, t_in: npt.ArrayLike) -> dict[str, IntArray]:
     y = x.copy()
     x, _, _ = iterate(dp, x, y, r, dtype)
     m = round_drop(x, dp.guard_bits, dp.rounding, dp.xy_width - dp.guard_bits)
-    m = np.where(m < 0, 0, np.where(m > dp.out_max, dp.out_max, m))
-    return {"out_mantissa": m, "out_exponent": q}
+    # e^r just below 2 can round up to 2.0: that is mantissa 1.0 at the next exponent.
+    carry = m > dp.out_max
+    m = np.where(m < 0, 0, np.where(carry, 1 << (b - 1), m))
+    return {"out_mantissa": m, "out_exponent": q + carry.astype(q.dtype)}
 
 
 def atanh_domain(dp: Datapath, u: IntArray) -> IntArray:
@@ -512,7 +516,7 @@ _HYPERBOLIC_MODELS = {
 }
 
 
-def evaluate_function(dp: Datapath, inputs: dict[str, npt.ArrayLike]) -> dict[str, IntArray]:
+def evaluate_function(dp: Datapath, inputs: Mapping[str, npt.ArrayLike]) -> dict[str, IntArray]:
     """The model's outputs for the data path's function, by output port name."""
     if dp.function in _HYPERBOLIC_MODELS:
         port, model = _HYPERBOLIC_MODELS[dp.function]

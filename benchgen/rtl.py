@@ -378,19 +378,18 @@ def _hyperbolic_context(dp: Any) -> dict[str, Any]:
         qw = dp.exp_width + 1  # the first guess may be one above the largest exponent
         pw = s + qw
         inv_w = dp.inv_ln2.bit_length()
-        rw = dp.z_frac + 3  # the remainder before correction: [-ln 2, 2 ln 2)
+        # The remainder before correction lies in [-ln 2, ln 2): z's width holds it.
+        rw = dp.z_width
         t_bits = rw - (dp.z_frac - dp.in_frac)
-        assert t_bits <= b and pw > b and pw > inv_w
+        assert t_bits <= b and pw > b and pw > inv_w and dp.ln2_extra == 0
         ctx["exp"] = {
-            "qw": qw, "pw": pw, "s": s, "rw": rw,
+            "qw": qw, "pw": pw, "s": s,
             "inv": lit(dp.inv_ln2, pw),
             "half": lit(1 << (s - 1), s),
             "t_ext": pw - b,
             "t_low": t_bits,
             "t_pad": lit(0, dp.z_frac - dp.in_frac),
-            "ln2_r": lit(dp.ln2_wide, rw),
             "ln2_z": lit(dp.ln2_wide, dp.z_width),
-            "neg_ln2_z": lit(-dp.ln2_wide, dp.z_width),
             "q_ext": rw - qw,
             "ew": dp.exp_width,
         }
