@@ -15,7 +15,7 @@ import numpy as np
 import numpy.typing as npt
 
 from benchgen.algorithm import Datapath
-from benchgen.model import atanh_domain, div_domain, evaluate_function, to_signed
+from benchgen.model import INT64_MODEL_BITS, atanh_domain, div_domain, evaluate_function, model_width, to_signed
 from benchgen.reference import FLOAT64_MAX_DATA_WIDTH, ErrorStats, error_stats, errors_lsb, ideal_sincos
 
 __all__ = [
@@ -271,6 +271,8 @@ def sizing_inputs(dp: Datapath) -> tuple[Inputs, bool]:
         return out, True
     product = dp.data_width + 2 + dp.k_frac if dp.k_frac else 0
     fast = dp.data_width <= 40 and dp.angle_width <= 56 and product <= 58
+    if dp.coordinates == "hyperbolic":
+        fast = model_width(dp) <= INT64_MODEL_BITS
     count = RANDOM_SIZING_SAMPLES if fast else WIDE_SIZING_SAMPLES
     rng = np.random.default_rng(_SIZING_SEED)
     corners = corner_inputs(dp)
@@ -297,11 +299,10 @@ def _hyperbolic_values(dp: Datapath, inputs: Inputs) -> tuple[list[Any] | npt.ND
     wide = dp.data_width > FLOAT64_MAX_DATA_WIDTH
     if wide:
         scale = mpmath.mpf(2) ** -dp.in_frac
-        codes = [int(v) for v in raw.ravel()]
-        if port.signed:
-            codes = [c - (1 << port.width) if c >> (port.width - 1) & 1 else c for c in codes]
-        else:
-            codes = [c & ((1 << port.width) - 1) for c in codes]
+        half = 1 << (port.width - 1)
+        mask = (1 << port.width) - 1
+        # Codes or signed values alike: wrap to the port's width (as model.to_signed does).
+        codes = [((int(v) + half) & mask) - half if port.signed else int(v) & mask for v in raw.ravel()]
         return [c * scale for c in codes], True
     vals = raw.astype(np.int64)
     vals = to_signed(vals, port.width) if port.signed else vals & np.int64((1 << port.width) - 1)

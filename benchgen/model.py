@@ -17,6 +17,7 @@ import numpy.typing as npt
 from benchgen.algorithm import Datapath
 
 __all__ = [
+    "INT64_MODEL_BITS", "model_width",
     "SinCos", "atan2", "atanh", "atanh_domain", "div", "div_domain", "evaluate_function", "exp", "exp_reduce",
     "leading_zeros", "ln", "mul", "prescale", "rotate", "round_drop", "sincos", "sinhcosh", "sqrt", "to_signed",
     "wrap",
@@ -25,9 +26,29 @@ __all__ = [
 IntArray = npt.NDArray[Any]
 
 
+INT64_MODEL_BITS = 60
+"""Widest intermediate (bits) the model computes on int64; wider ones run on Python integers."""
+
+
 def _dtype_for(width: int) -> type | np.dtype[Any]:
     # int64 is exact while every intermediate stays below 2**62 in magnitude.
-    return np.dtype(np.int64) if width <= 60 else object
+    return np.dtype(np.int64) if width <= INT64_MODEL_BITS else object
+
+
+def model_width(dp: Datapath) -> int:
+    """Bits of the widest intermediate of a hyperbolic function's model (sets its dtype)."""
+    b = dp.data_width
+    f = dp.function
+    if f == "exp":
+        # t 1/ln2 (|t| < 2^(b-1), the constant < 2^(L+3)); the remainder and q ln 2 (< 2^(L+1)
+        # times ln 2 at z's fraction bits); the iterations.
+        return max(b + dp.int_bits + 4, dp.z_frac + dp.int_bits + 4, dp.xy_width + 2)
+    if f == "ln":
+        return max(dp.xy_width, dp.z_width + dp.int_bits) + 3
+    if f == "sqrt":
+        product = b + dp.k_frac + 2 if dp.k_frac else 0
+        return max(product, dp.xy_width + dp.norm_max, dp.z_width) + 2
+    return max(dp.xy_width, dp.z_width) + 2
 
 
 def wrap(values: IntArray, width: int) -> IntArray:
@@ -369,7 +390,7 @@ def _unsigned(values: npt.ArrayLike, width: int, dtype: Any) -> IntArray:
 def sinhcosh(dp: Datapath, t_in: npt.ArrayLike) -> dict[str, IntArray]:
     """Predict the sinhcosh core: ``out_cosh``, ``out_sinh`` of t (hyperbolic rotation from
     (1/A_n, 0, t), Walther 1971; from (1, 0, t) with the gain left in when raw)."""
-    dtype = _dtype_for(max(dp.xy_width, dp.z_width) + 2)
+    dtype = _dtype_for(model_width(dp))
     b = dp.data_width
     t = to_signed(_as_ints(t_in, b, dtype), b)
     z = t << (dp.z_frac - dp.in_frac)
@@ -396,7 +417,7 @@ def exp_reduce(dp: Datapath, t: IntArray) -> tuple[IntArray, IntArray]:
     rem = (t << (dp.z_frac + dp.ln2_extra - dp.in_frac)) - q * dp.ln2_wide
     neg = rem < 0
     q = q - neg.astype(q.dtype)
-    rem = rem + np.where(neg, dp.ln2_wide, 0)
+    rem = rem + neg.astype(rem.dtype) * dp.ln2_wide  # Python-int constant: exact on object arrays
     return q, rem >> dp.ln2_extra
 
 
@@ -408,8 +429,7 @@ def exp(dp: Datapath, t_in: npt.ArrayLike) -> dict[str, IntArray]:
     to 2.0 (the mantissa is then 1.0).
     """
     b = dp.data_width
-    widest = max(2 * b + 4, dp.z_frac + dp.ln2_extra + dp.int_bits + 4, dp.xy_width + 2)
-    dtype = _dtype_for(widest)
+    dtype = _dtype_for(model_width(dp))
     t = to_signed(_as_ints(t_in, b, dtype), b)
     q, r = exp_reduce(dp, t)
     x = np.full(t.shape, dp.x_start, dtype=r.dtype)
@@ -430,7 +450,7 @@ def atanh_domain(dp: Datapath, u: IntArray) -> IntArray:
 def atanh(dp: Datapath, u_in: npt.ArrayLike) -> dict[str, IntArray]:
     """Predict the atanh core: ``out_atanh`` from hyperbolic vectoring of (1, u, 0) and
     ``out_domain_error`` (with a zero result) where |u| is beyond the range."""
-    dtype = _dtype_for(max(dp.xy_width, dp.z_width) + 2)
+    dtype = _dtype_for(model_width(dp))
     b = dp.data_width
     u = to_signed(_as_ints(u_in, b, dtype), b)
     ok = atanh_domain(dp, u)
@@ -461,7 +481,7 @@ def ln(dp: Datapath, w_in: npt.ArrayLike) -> dict[str, IntArray]:
     hyperbolic vectoring of (m + 1, m - 1, 0) (Walther 1971).
     """
     b = dp.data_width
-    dtype = _dtype_for(max(dp.xy_width, dp.z_width + dp.int_bits) + 3)
+    dtype = _dtype_for(model_width(dp))
     w = _unsigned(w_in, b, dtype)
     e = leading_zeros(w, b)
     m = (w << e.astype(w.dtype)) & ((1 << b) - 1)
@@ -485,8 +505,7 @@ def sqrt(dp: Datapath, w_in: npt.ArrayLike) -> dict[str, IntArray]:
     """
     b = dp.data_width
     g = dp.guard_bits
-    product = b + dp.k_frac + 2 if dp.k_frac else 0
-    dtype = _dtype_for(max(product, dp.xy_width + dp.norm_max, dp.z_width) + 2)
+    dtype = _dtype_for(model_width(dp))
     w = _unsigned(w_in, b, dtype)
     e = leading_zeros(w, b)
     half = e >> 1

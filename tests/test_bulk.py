@@ -37,6 +37,8 @@ PORTS = {
 def _project(tmp_path: Path, **values: object) -> Path:
     config = {"name": "bulk_core", "function": "sincos", "angle_width": 12, "data_width": 12, "tag_width": 3}
     config.update(values)
+    if config["function"] not in ("sincos", "rotate", "atan2"):
+        del config["angle_width"]  # no angle port
     out = tmp_path / "proj"
     generate_project(write_config(tmp_path / "core.toml", config), out)
     return out
@@ -309,6 +311,22 @@ def test_atan2_exhaustive_on_the_runner(tmp_path: Path) -> None:
     assert report.passed, report.problems
     assert report.samples == 1 << 16 and report.mismatches == 0
     assert report.latency_cycles == report.expected_latency_cycles
+
+
+@pytest.mark.sim
+@pytest.mark.parametrize(("function", "simulator"), [("ln", "icarus"), ("exp", "verilator"), ("atanh", "icarus"), ("sqrt", "verilator")])
+def test_hyperbolic_exhaustive_with_flags_and_side_values(function: str, simulator: str, tmp_path: Path) -> None:
+    """Every 12-bit input once: flags (ln at w = 0, atanh beyond the range), exp's exponent and
+    the normalising shifts of ln and sqrt travel with their samples, bit for bit."""
+    require_simulator(simulator)
+    from benchgen.sim import run_sim
+
+    project = _project(tmp_path, function=function, data_width=12, tag_width=3, pipeline_depth=4)
+    report = run_sim(project, simulator=simulator, exhaustive=True, seed=12)
+    assert report.passed, report.problems
+    assert report.samples == 1 << 12 and report.mismatches == 0
+    assert report.max_error_lsb < 1.0
+    assert report.latency_cycles == report.expected_latency_cycles == 4
 
 
 @pytest.mark.sim
