@@ -303,7 +303,8 @@ def _hyperbolic_values(dp: Datapath, inputs: Inputs) -> tuple[list[Any] | npt.ND
         mask = (1 << port.width) - 1
         # Codes or signed values alike: wrap to the port's width (as model.to_signed does).
         codes = [((int(v) + half) & mask) - half if port.signed else int(v) & mask for v in raw.ravel()]
-        return [c * scale for c in codes], True
+        with mpmath.workdps(_IDEAL_DPS):
+            return [c * scale for c in codes], True
     vals = raw.astype(np.int64)
     vals = to_signed(vals, port.width) if port.signed else vals & np.int64((1 << port.width) - 1)
     return vals.astype(np.float64) / 2.0**dp.in_frac, False

@@ -712,3 +712,15 @@ def test_wide_exp_reduction() -> None:
     out = exp(dp, np.array([1 << 40]))
     assert int(out["out_exponent"][0]) == 0
     assert abs(int(out["out_mantissa"][0]) / 2**47 - 1.6487213) < 1e-6
+
+
+def test_64_bit_ideal_keeps_every_bit() -> None:
+    # 64 bits: t = (2^62 + 1) / 2^63 = 0.5 + 2^-63; the ideal cosh has 62 fraction bits, so it
+    # must resolve 2^-62: cosh(0.5 + d) = cosh 0.5 + d sinh 0.5 (mpmath at 40 digits), which a
+    # 53-bit computation would round away.
+    dp = make_datapath(parse_config({"name": "c", "function": "sinhcosh", "data_width": 64}), 67, 6)
+    code = (1 << 62) + 1
+    ideal = ideal_outputs(dp, {"in_t": np.array([code], dtype=object)})["out_cosh"][0]
+    with mpmath.workdps(40):
+        exact = mpmath.cosh(mpmath.mpf(code) / mpmath.mpf(2) ** 63) * mpmath.mpf(2) ** 62
+        assert abs(ideal - exact) < mpmath.mpf(2) ** -8
