@@ -216,7 +216,8 @@ def _size(spec: CoreSpec) -> tuple[int, int, ErrorStats]:
         fix = f'set guard_bits = "auto" or a larger number, or max_error_lsb >= {np.ceil(achieved * 100) / 100:.2f}'
     else:
         field, value = "max_error_lsb", spec.max_error_lsb
-        fix = f"raise max_error_lsb to {np.ceil(achieved * 100) / 100:.2f} or more, or widen angle_width"
+        wider = "angle_width" if spec.function in ("sincos", "rotate", "atan2") else "data_width"
+        fix = f"raise max_error_lsb to {np.ceil(achieved * 100) / 100:.2f} or more, or widen {wider}"
     raise ConfigError(
         field,
         value,
