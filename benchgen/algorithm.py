@@ -314,6 +314,21 @@ def make_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Datapath:
     )
 
 
+MIN_Z_ONLY_ITERATIONS = 3
+
+
+def _check_z_only(function: str, iterations: int) -> None:
+    """div, atanh and ln read only z at the end: the RTL forms x for the iterations before the
+    last two alone, so a core needs at least three (fewer could never meet a budget anyway)."""
+    if iterations < MIN_Z_ONLY_ITERATIONS:
+        raise ConfigError(
+            "iterations",
+            iterations,
+            f'at least {MIN_Z_ONLY_ITERATIONS} for function = "{function}"',
+            f'set iterations = {MIN_Z_ONLY_ITERATIONS} or more, or "auto"',
+        )
+
+
 def _check_width(iterations: int, xy_width: int) -> None:
     if iterations > xy_width:
         raise ConfigError(
@@ -343,6 +358,8 @@ def _linear_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Datapa
     z_frac = out_frac + g
     z_width = z_frac + (2 if mul else 3)  # mul: |z| < 2; div: the quotient, |z| < 4
     _check_width(iterations, xy_width)
+    if not mul:
+        _check_z_only(spec.function, iterations)
     if iterations > z_frac + 1:
         raise ConfigError(
             "iterations",
@@ -393,6 +410,8 @@ def _hyperbolic_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Da
     b = spec.data_width
     g = guard_bits
     f = spec.function
+    if f in ("atanh", "ln"):
+        _check_z_only(f, iterations)
     shifts = hyperbolic_shifts(iterations)
     a_n = hyperbolic_gain(iterations)
     compensated = spec.gain == "compensated"

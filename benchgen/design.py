@@ -16,7 +16,7 @@ from functools import cache
 import numpy as np
 import numpy.typing as npt
 
-from benchgen.algorithm import Datapath, Timing, make_datapath, make_timing
+from benchgen.algorithm import MIN_Z_ONLY_ITERATIONS, Datapath, Timing, make_datapath, make_timing
 from benchgen.config import MAX_ITERATIONS, CoreSpec
 from benchgen.errors import ConfigError
 from benchgen.model import sincos
@@ -126,7 +126,7 @@ def _sizing_set_for(function: str, angle_width: int, data_width: int, angle_unit
     probe_spec = CoreSpec(
         name="probe", function=function, angle_width=angle_width, data_width=data_width, angle_unit=angle_unit, gain=gain
     )
-    probe = make_datapath(probe_spec, 1, MAX_AUTO_GUARD_BITS)
+    probe = make_datapath(probe_spec, MIN_Z_ONLY_ITERATIONS, MAX_AUTO_GUARD_BITS)
     inputs, exhaustive = sizing_inputs(probe)
     count = len(next(iter(inputs.values())))
     limit = min(_PREFILTER, count // 8) if data_width <= 40 and angle_width <= 56 else _PREFILTER_WIDE
@@ -196,7 +196,7 @@ def _size(spec: CoreSpec) -> tuple[int, int, ErrorStats]:
     best_n = spec.iterations if spec.iterations is not None else MAX_ITERATIONS
     best_g = spec.guard_bits if spec.guard_bits is not None else MAX_AUTO_GUARD_BITS
     best_g = max(best_g, 0)
-    best_n = min(best_n, make_datapath(spec, 1, best_g).xy_width)
+    best_n = min(best_n, make_datapath(spec, MIN_Z_ONLY_ITERATIONS, best_g).xy_width)
     sset = _sizing_set(spec)
     try:
         achieved = measure(make_datapath(spec, best_n, best_g), sset.inputs, sset.ideal).max_error_lsb

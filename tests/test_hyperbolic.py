@@ -580,8 +580,8 @@ def test_fast_path_equals_the_wrapping_path(
     if function in GAIN_FUNCTIONS:
         values["gain"] = gain
     spec = parse_config(values)
-    probe = make_datapath(spec, 1, guard_bits)
-    n = max(1, min(data_width + extra_iterations, probe.xy_width))
+    probe = make_datapath(spec, 3, guard_bits)
+    n = max(3, min(data_width + extra_iterations, probe.xy_width))
     dp = make_datapath(spec, n, guard_bits)
     rng = np.random.default_rng(seed)
     port = next(iter(corner_inputs(dp)))
@@ -724,3 +724,13 @@ def test_64_bit_ideal_keeps_every_bit() -> None:
     with mpmath.workdps(40):
         exact = mpmath.cosh(mpmath.mpf(code) / mpmath.mpf(2) ** 63) * mpmath.mpf(2) ** 62
         assert abs(ideal - exact) < mpmath.mpf(2) ** -8
+
+
+@pytest.mark.parametrize("function", ["ln", "atanh", "div"])
+def test_z_only_functions_refuse_fewer_than_three_iterations(function: str) -> None:
+    # Their last iteration reads only y's sign and z; with fewer than three the core would build
+    # an x nobody reads (verilator -Wall flags it), and no such core meets a budget anyway.
+    with pytest.raises(ConfigError) as info:
+        build_design(parse_config({"name": "c", "function": function, "data_width": 8, "iterations": 2, "max_error_lsb": 1e6}))
+    assert info.value.field == "iterations" and "at least 3" in str(info.value)
+    assert build_design(parse_config({"name": "c", "function": function, "data_width": 8, "iterations": 3, "max_error_lsb": 1e6})).datapath.iterations == 3
