@@ -248,7 +248,13 @@ def make_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Datapath:
     radians = spec.angle_unit == "radians"
     angle_frac = a - RADIAN_INT_BITS if radians else a
     amplitude = (1 << (b - 1)) - 1
-    if spec.function == "sincos":
+    if spec.function == "sincos" and spec.gain == "raw":
+        # Raw: x starts at the amplitude, and the outputs carry 1/K = 1.6468 (Andraka 1998) on
+        # top of it, up to 1.65 2^(b-1): one more output bit, and one bit of headroom.
+        out_width = b + 1
+        xy_width = out_width + g + 1
+        out_max = (1 << (out_width - 1)) - 1
+    elif spec.function == "sincos":
         # Outputs of amplitude 2^(b-1)-1 and one bit of headroom.
         xy_width = b + g + 1
         out_width, out_max = b, amplitude
@@ -280,7 +286,8 @@ def make_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Datapath:
     k_frac = 0
     with mpmath.workdps(_MP_DIGITS):
         if spec.function == "sincos":
-            x_start = int(mpmath.nint(gain * amplitude * mpmath.mpf(2) ** g))
+            start = gain if spec.gain == "compensated" else mpmath.mpf(1)
+            x_start = int(mpmath.nint(start * amplitude * mpmath.mpf(2) ** g))
         elif spec.gain == "compensated":
             k_frac = b + g + 2
             k_const = int(mpmath.nint(gain * mpmath.mpf(2) ** k_frac))

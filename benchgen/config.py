@@ -253,13 +253,6 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
                 )
                 raise ConfigError(key, raw[key], f'not used by function = "{function}" ({why})', f"remove {key}")
         angle_width = data_width
-    if function == "sincos" and gain == "raw":
-        raise ConfigError(
-            "gain",
-            gain,
-            '"compensated" for sincos: its start value removes the gain at no cost',
-            'remove gain or set gain = "compensated"',
-        )
     if angle_unit == "radians" and angle_width < MIN_RADIAN_ANGLE_WIDTH:
         raise ConfigError(
             "angle_width",

@@ -139,6 +139,8 @@ def output_ports(dp: Datapath) -> tuple[Port, ...]:
         )
     if dp.function == "sincos":
         doc = f"two's complement, {dp.out_width} bits, amplitude {dp.amplitude}"
+        if dp.gain_mode == "raw":
+            doc += f" times 1/K = 1/{dp.gain[:10]} (raw gain)"
         return (Port("out_cos", dp.out_width, True, doc), Port("out_sin", dp.out_width, True, doc))
     if dp.function == "rotate":
         scale = "input scale" if dp.gain_mode == "compensated" else f"input scale times 1/K = 1/{dp.gain[:10]}"
@@ -374,7 +376,8 @@ def ideal_outputs(dp: Datapath, inputs: Inputs, *, with_gain: bool = True) -> di
         return apply_gain(dp, ideal) if with_gain else ideal
     if dp.function == "sincos":
         cos, sin = ideal_sincos(dp, inputs["in_angle"])
-        return {"out_cos": cos, "out_sin": sin}
+        ideal = {"out_cos": cos, "out_sin": sin}
+        return apply_gain(dp, ideal) if with_gain else ideal
     x = np.asarray(inputs["in_x"], dtype=np.float64)
     y = np.asarray(inputs["in_y"], dtype=np.float64)
     growth = 1.0 if dp.gain_mode == "compensated" or not with_gain else 1.0 / float(dp.gain)
@@ -442,7 +445,7 @@ def function_errors(
 
 def apply_gain(dp: Datapath, ideal: dict[str, npt.NDArray[Any]]) -> dict[str, npt.NDArray[Any]]:
     """Scale a gain-free ideal by a raw core's growth 1/K_n (the data outputs only)."""
-    if dp.gain_mode == "compensated" or dp.function == "sincos":
+    if dp.gain_mode == "compensated":
         return ideal
     growth = 1.0 / float(dp.gain)
     keep = {"out_angle"}

@@ -135,7 +135,7 @@ def sincos(dp: Datapath, angles: npt.ArrayLike) -> SinCos:
             x[lo : lo + _BLOCK], y[lo : lo + _BLOCK] = _rotate_int64(dp, flat[lo : lo + _BLOCK])
         x = x.reshape(codes.shape)
         y = y.reshape(codes.shape)
-    out_w = dp.data_width + 1
+    out_w = dp.out_width + 1
     cos = _saturate(round_drop(x, dp.guard_bits, dp.rounding, out_w), dp.output_max)
     sin = _saturate(round_drop(y, dp.guard_bits, dp.rounding, out_w), dp.output_max)
     return SinCos(cos, sin)

@@ -111,7 +111,7 @@ def _gain_label(dp: Any) -> str:
         return f"compensation 1/A_n (iterations {dp.iterations}; raw outputs are A_n times the exact)"
     if dp.coordinates == "linear":
         return "gain (linear coordinates: none)"
-    if dp.function == "sincos":
+    if dp.function == "sincos" and dp.gain_mode == "compensated":
         return f"gain K (iterations {dp.iterations}; removed by the start value)"
     return f"gain K (iterations {dp.iterations}; raw outputs are 1/K times the exact)"
 

@@ -43,7 +43,6 @@ BAD_CASES = [
     ({"iterations_per_cycle": 2}, "iterations_per_cycle", ['"iterative"']),
     ({"max_error_lsb": 0.1}, "max_error_lsb", ["0.1", "0.5"]),
     ({"function": "div", "angle_width": 12}, "angle_width", ['"div"', "no angle", "remove angle_width"]),
-    ({"function": "sincos", "gain": "raw"}, "gain", ['"compensated"', "no cost"]),
     ({"angle_unit": "degrees"}, "angle_unit", ["'degrees'", '"turns"', '"radians"']),
     ({"angle_unit": "radians", "angle_width": 5}, "angle_width", ["5", "at least 6"]),
     ({"iterations": 6}, "iterations", ["6", "max_error_lsb", "LSB"]),

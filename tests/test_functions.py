@@ -53,6 +53,19 @@ def test_atan2_worked_examples() -> None:
     assert out["out_magnitude"].tolist() == [500, 1000, 0]
 
 
+def test_sincos_raw_gain_widens_the_outputs_by_the_published_growth() -> None:
+    # Raw: x starts at the amplitude 2047 (12 bits), so the outputs carry 1/K = 1.64676
+    # (Andraka 1998): cos 0 -> 2047 * 1.64676 = 3370.9 -> 3371, which needs a 13-bit output.
+    # At 1/8 turn (code 512 of 4096): 3370.9 * cos 45 = 2383.6 for both.
+    dp = design(function="sincos", data_width=12, angle_width=12, gain="raw").datapath
+    from benchgen.model import sincos
+
+    out = sincos(dp, [0, 512])
+    assert dp.out_width == 13
+    assert int(out.cos[0]) in (3370, 3371) and abs(int(out.sin[0])) <= 1
+    assert int(out.cos[1]) in (2383, 2384) and int(out.sin[1]) in (2383, 2384)
+
+
 def test_atan2_raw_gain_is_the_published_growth() -> None:
     # Raw: the magnitude carries 1/K = 1.64676 (Andraka 1998). (1000, 0) -> 1646.76 -> 1647.
     dp = design(function="atan2", data_width=12, angle_width=12, gain="raw").datapath

@@ -37,6 +37,7 @@ FUNCTION_CASES = [
     {"function": "atan2", "data_width": 10, "angle_width": 12},
     {"function": "atan2", "data_width": 9, "angle_width": 10, "gain": "raw", "angle_unit": "radians"},
     {"function": "sincos", "data_width": 10, "angle_width": 12, "angle_unit": "radians"},
+    {"function": "sincos", "data_width": 10, "angle_width": 11, "gain": "raw"},
     {"function": "mul", "data_width": 10},
     {"function": "div", "data_width": 9},
     {"function": "sinhcosh", "data_width": 10},

@@ -79,6 +79,7 @@ FUNCTION_CORES = {
     "sqrt": {"function": "sqrt", "data_width": 12},
     "sqrt_raw_truncate": {"function": "sqrt", "data_width": 12, "gain": "raw", "rounding": "truncate", "max_error_lsb": 1.5, "tag_width": 2},
     "exp_raw_truncate": {"function": "exp", "data_width": 11, "gain": "raw", "rounding": "truncate", "max_error_lsb": 1.5},
+    "sincos_raw": {"function": "sincos", "data_width": 12, "angle_width": 12, "gain": "raw", "tag_width": 1},
 }
 # Uniform random codes fall outside div's domain (|num| >= 2 |den|) a quarter of the time and
 # outside atanh's (|u| > 0.8069) a fifth of it, and ln's (w = 0) once in 4096: more samples
@@ -95,7 +96,11 @@ FUNCTION_ARCHITECTURES = {
 # variants: those run every architecture on Verilator and one on Icarus (rotate, atan2), or one
 # architecture on one simulator (the hyperbolic raw/truncate ones): that keeps the matrix within
 # the suite's time budget.
-VARIANT_CASES = {"sqrt_raw_truncate": ("depth3", "verilator"), "exp_raw_truncate": ("iter3", "icarus")}
+VARIANT_CASES = {
+    "sqrt_raw_truncate": ("depth3", "verilator"),
+    "exp_raw_truncate": ("iter3", "icarus"),
+    "sincos_raw": ("depth3", "icarus"),
+}
 FUNCTION_CASES = [
     (core, arch, sim)
     for core in FUNCTION_CORES
