@@ -10,7 +10,7 @@ target, so no config yields a core silently worse than it asked for.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from functools import cache
 
 import numpy as np
@@ -234,7 +234,10 @@ def build_design(spec: CoreSpec) -> Design:
         ConfigError: if the sizes cannot meet the error target, or the architecture does not fit
             the iteration count.
     """
-    n, g, stats = _size(spec)
+    # The size depends on the arithmetic alone: cores that differ only in name, architecture
+    # or tag share one sizing run.
+    arithmetic = replace(spec, name="core", architecture="pipelined", pipeline_depth=None, iterations_per_cycle=None, tag_width=0)
+    n, g, stats = _size(arithmetic)
     dp = make_datapath(spec, n, g)
     timing: Timing = make_timing(spec, n)
     exhaustive = _sizing_set(spec).exhaustive
