@@ -26,9 +26,9 @@ from benchgen.config import CoreSpec
 from benchgen.errors import ConfigError
 
 __all__ = [
+    "HYPERBOLIC_FUNCTIONS",
     "Datapath",
     "Timing",
-    "HYPERBOLIC_FUNCTIONS",
     "circular_gain",
     "hyperbolic_gain",
     "hyperbolic_shifts",

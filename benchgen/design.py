@@ -19,8 +19,8 @@ import numpy.typing as npt
 from benchgen.algorithm import MIN_Z_ONLY_ITERATIONS, Datapath, Timing, make_datapath, make_timing
 from benchgen.config import MAX_ITERATIONS, CoreSpec
 from benchgen.errors import ConfigError
-from benchgen.model import sincos
 from benchgen.functions import ideal_outputs, measure, sizing_inputs
+from benchgen.model import sincos
 from benchgen.reference import ErrorStats, error_stats, ideal_sincos
 
 __all__ = [
@@ -158,7 +158,7 @@ def _meets(spec: CoreSpec, n: int, g: int) -> tuple[bool, ErrorStats | None]:
 
 
 def _best_guard(spec: CoreSpec, n: int) -> tuple[int, ErrorStats] | None:
-    g_range = [spec.guard_bits] if spec.guard_bits is not None else range(0, MAX_AUTO_GUARD_BITS + 1)
+    g_range = [spec.guard_bits] if spec.guard_bits is not None else range(MAX_AUTO_GUARD_BITS + 1)
     for g in g_range:
         ok, stats = _meets(spec, n, g)
         if ok and stats is not None:

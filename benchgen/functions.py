@@ -15,8 +15,21 @@ import numpy as np
 import numpy.typing as npt
 
 from benchgen.algorithm import Datapath
-from benchgen.model import INT64_MODEL_BITS, atanh_domain, div_domain, evaluate_function, model_width, to_signed
-from benchgen.reference import FLOAT64_MAX_DATA_WIDTH, ErrorStats, error_stats, errors_lsb, ideal_sincos
+from benchgen.model import (
+    INT64_MODEL_BITS,
+    atanh_domain,
+    div_domain,
+    evaluate_function,
+    model_width,
+    to_signed,
+)
+from benchgen.reference import (
+    FLOAT64_MAX_DATA_WIDTH,
+    ErrorStats,
+    error_stats,
+    errors_lsb,
+    ideal_sincos,
+)
 
 __all__ = [
     "EXHAUSTIVE_LIMIT_BITS",

@@ -17,9 +17,27 @@ import numpy.typing as npt
 from benchgen.algorithm import Datapath
 
 __all__ = [
-    "INT64_MODEL_BITS", "model_width",
-    "SinCos", "atan2", "atanh", "atanh_domain", "div", "div_domain", "evaluate_function", "exp", "exp_reduce",
-    "leading_zeros", "ln", "mul", "prescale", "rotate", "round_drop", "sincos", "sinhcosh", "sqrt", "to_signed",
+    "INT64_MODEL_BITS",
+    "SinCos",
+    "atan2",
+    "atanh",
+    "atanh_domain",
+    "div",
+    "div_domain",
+    "evaluate_function",
+    "exp",
+    "exp_reduce",
+    "leading_zeros",
+    "ln",
+    "model_width",
+    "mul",
+    "prescale",
+    "rotate",
+    "round_drop",
+    "sincos",
+    "sinhcosh",
+    "sqrt",
+    "to_signed",
     "wrap",
 ]
 

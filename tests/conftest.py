@@ -45,3 +45,23 @@ def config_file(tmp_path: Path):  # type: ignore[no-untyped-def]
         return write_config(tmp_path / filename, values)
 
     return make
+
+
+def best_over_guard(spec: Any, n: int, inputs: Any, ideal: Any) -> float:
+    """The best worst-case error any guard-bit count (0 to the sizer's maximum) gives at ``n``
+    iterations: the sizing proofs show a smaller ``n`` fails whatever the guard bits."""
+    import math
+
+    from benchgen.algorithm import make_datapath
+    from benchgen.design import MAX_AUTO_GUARD_BITS
+    from benchgen.errors import ConfigError
+    from benchgen.functions import measure
+
+    best = math.inf
+    for g in range(MAX_AUTO_GUARD_BITS + 1):
+        try:
+            dp = make_datapath(spec, n, g)
+        except ConfigError:
+            continue  # more iterations than this width holds
+        best = min(best, measure(dp, inputs, ideal).max_error_lsb)
+    return best

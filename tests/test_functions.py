@@ -10,12 +10,19 @@ import math
 import mpmath
 import numpy as np
 import pytest
+from conftest import best_over_guard
 
 from benchgen.algorithm import circular_gain, make_datapath
 from benchgen.config import parse_config
-from benchgen.design import MAX_AUTO_GUARD_BITS, build_design
-from benchgen.functions import function_errors, ideal_outputs, measure, random_inputs, small_vector_limit
-from benchgen.functions import sizing_inputs
+from benchgen.design import build_design
+from benchgen.functions import (
+    function_errors,
+    ideal_outputs,
+    measure,
+    random_inputs,
+    sizing_inputs,
+    small_vector_limit,
+)
 from benchgen.model import atan2, rotate
 
 
@@ -135,15 +142,6 @@ def test_atan2_small_vectors_lose_angle_accuracy() -> None:
     assert worst[2000] < 1.0
 
 
-def best_over_guard(spec, n: int, inputs, ideal) -> float:  # type: ignore[no-untyped-def]
-    best = math.inf
-    for g in range(MAX_AUTO_GUARD_BITS + 1):
-        try:
-            dp = make_datapath(spec, n, g)
-        except Exception:
-            continue
-        best = min(best, measure(dp, inputs, ideal).max_error_lsb)
-    return best
 
 
 @pytest.mark.parametrize("width", [12, 16])

@@ -24,6 +24,7 @@ from typing import Any
 import mpmath
 import numpy as np
 import pytest
+from conftest import best_over_guard
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
@@ -38,7 +39,7 @@ from benchgen.algorithm import (
 )
 from benchgen.cli import main
 from benchgen.config import parse_config
-from benchgen.design import MAX_AUTO_GUARD_BITS, build_design
+from benchgen.design import build_design
 from benchgen.errors import ConfigError
 from benchgen.functions import (
     corner_inputs,
@@ -499,15 +500,6 @@ def test_exp_exponent_is_floor_t_over_ln2_everywhere(width: int) -> None:
 # --- 5. Sizing proofs -------------------------------------------------------------------
 
 
-def best_over_guard(spec, n: int, inputs, ideal) -> float:  # type: ignore[no-untyped-def]
-    best = math.inf
-    for g in range(MAX_AUTO_GUARD_BITS + 1):
-        try:
-            dp = make_datapath(spec, n, g)
-        except ConfigError:
-            continue
-        best = min(best, measure(dp, inputs, ideal).max_error_lsb)
-    return best
 
 
 @pytest.mark.parametrize("function", ["sqrt", "ln"])
