@@ -127,7 +127,11 @@ def _sizing_set_for(function: str, angle_width: int, data_width: int, angle_unit
         name="probe", function=function, angle_width=angle_width, data_width=data_width, angle_unit=angle_unit, gain=gain
     )
     probe = make_datapath(probe_spec, MIN_Z_ONLY_ITERATIONS, MAX_AUTO_GUARD_BITS)
-    inputs, exhaustive = sizing_inputs(probe)
+    try:
+        cheapest = make_datapath(probe_spec, MIN_Z_ONLY_ITERATIONS, 0)
+    except ConfigError:
+        cheapest = None  # too narrow for three iterations without guard bits
+    inputs, exhaustive = sizing_inputs(probe, cheapest=cheapest)
     count = len(next(iter(inputs.values())))
     limit = min(_PREFILTER, count // 8) if data_width <= 40 and angle_width <= 56 else _PREFILTER_WIDE
     step = max(1, count // limit)

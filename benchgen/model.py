@@ -64,8 +64,8 @@ def model_width(dp: Datapath) -> int:
     if f == "ln":
         return max(dp.xy_width, dp.z_width + dp.int_bits) + 3
     if f == "sqrt":
-        product = b + dp.k_frac + 2 if dp.k_frac else 0
-        return max(product, dp.xy_width + dp.norm_max, dp.z_width) + 2
+        # The 1/A_n product is formed on Python integers where it is wider (see sqrt()).
+        return max(dp.xy_width + dp.norm_max, dp.z_width) + 2
     return max(dp.xy_width, dp.z_width) + 2
 
 
@@ -530,8 +530,12 @@ def sqrt(dp: Datapath, w_in: npt.ArrayLike) -> dict[str, IntArray]:
     m = w << (half << 1).astype(w.dtype)
     if dp.k_frac:
         drop = dp.k_frac - g
-        prod = m * dp.k_const
+        # The product m 1/A_n needs b + k_frac + 1 bits: past int64 it is formed on Python
+        # integers, and the rounded value (x's width) comes back to the iterations' dtype.
+        wide = b + dp.k_frac + 2 > INT64_MODEL_BITS and m.dtype != object
+        prod = (m.astype(object) if wide else m) * dp.k_const
         p = (prod >> drop) + ((prod & ((1 << drop) - 1)) >= (1 << (drop - 1))).astype(prod.dtype)
+        p = p.astype(m.dtype)
     else:
         p = m << g
     x = p + dp.quarter
