@@ -176,8 +176,7 @@ class Datapath:
         ln2_table: ln: e ln 2 at ``z_frac`` fraction bits for each normalising shift e.
         inv_ln2: exp: 1/ln 2 at ``inv_ln2_shift - in_frac`` fraction bits (first guess of q).
         inv_ln2_shift: exp: fraction bits of the product t inv_ln2.
-        ln2_wide: exp: ln 2 at ``z_frac + ln2_extra`` fraction bits (the reduction).
-        ln2_extra: exp: fraction bits of the reduction below z's.
+        ln2_const: exp: ln 2 at ``z_frac`` fraction bits (the reduction t - q ln 2).
         exp_width: exp: bits of the exponent output.
         lz_width: ln/sqrt: bits of the normalising shift.
         norm_max: sqrt: the largest output shift (half the largest even normalising shift).
@@ -215,8 +214,7 @@ class Datapath:
     ln2_table: tuple[int, ...] = ()
     inv_ln2: int = 0
     inv_ln2_shift: int = 0
-    ln2_wide: int = 0
-    ln2_extra: int = 0
+    ln2_const: int = 0
     exp_width: int = 0
     lz_width: int = 0
     norm_max: int = 0
@@ -458,8 +456,7 @@ def _hyperbolic_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Da
                 int_bits=L,
                 inv_ln2=int(mpmath.nint(mpmath.mpf(2) ** (shift - in_frac) / ln2)),
                 inv_ln2_shift=shift,
-                ln2_wide=int(mpmath.nint(ln2 * mpmath.mpf(2) ** z_frac)),
-                ln2_extra=0,
+                ln2_const=int(mpmath.nint(ln2 * mpmath.mpf(2) ** z_frac)),
                 # q + 1 where the mantissa rounds up to 2.0
                 exp_width=max((q_hi + 1).bit_length(), (-q_lo - 1).bit_length()) + 1,
             )

@@ -432,11 +432,11 @@ def exp_reduce(dp: Datapath, t: IntArray) -> tuple[IntArray, IntArray]:
     prod = t * dp.inv_ln2
     drop = dp.inv_ln2_shift
     q = (prod >> drop) + ((prod & ((1 << drop) - 1)) >= (1 << (drop - 1))).astype(prod.dtype)
-    rem = (t << (dp.z_frac + dp.ln2_extra - dp.in_frac)) - q * dp.ln2_wide
+    rem = (t << (dp.z_frac - dp.in_frac)) - q * dp.ln2_const
     neg = rem < 0
     q = q - neg.astype(q.dtype)
-    rem = rem + neg.astype(rem.dtype) * dp.ln2_wide  # Python-int constant: exact on object arrays
-    return q, rem >> dp.ln2_extra
+    rem = rem + neg.astype(rem.dtype) * dp.ln2_const  # Python-int constant: exact on object arrays
+    return q, rem
 
 
 def exp(dp: Datapath, t_in: npt.ArrayLike) -> dict[str, IntArray]:

@@ -63,6 +63,8 @@ class Iteration:
         kept_x, kept_y, kept_z: Bits dropped by truncation after this iteration (the last one of
             a pipelined core): only the kept bits are formed, plus the carry of the dropped
             bits, so no formed bit goes unused. 0 when the full value is formed.
+        shift: The iteration's right shift, or None where it comes from a table (iterative
+            cores with more than one clock per sample).
     """
 
     index: int
@@ -81,6 +83,7 @@ class Iteration:
     kept_x: int = 0
     kept_y: int = 0
     kept_z: int = 0
+    shift: int | None = None
 
 
 def _drops(design: Design) -> dict[str, int]:
@@ -194,6 +197,7 @@ def _iteration(
         kept_x=kept["x"],
         kept_y=kept["y"],
         kept_z=kept["z"],
+        shift=shift,
     )
 
 
@@ -381,7 +385,7 @@ def _hyperbolic_context(dp: Any) -> dict[str, Any]:
         # The remainder before correction lies in [-ln 2, ln 2): z's width holds it.
         rw = dp.z_width
         t_bits = rw - (dp.z_frac - dp.in_frac)
-        assert t_bits <= b and pw > b and pw > inv_w and dp.ln2_extra == 0
+        assert t_bits <= b and pw > b and pw > inv_w
         ctx["exp"] = {
             "qw": qw, "pw": pw, "s": s,
             "inv": lit(dp.inv_ln2, pw),
@@ -389,7 +393,7 @@ def _hyperbolic_context(dp: Any) -> dict[str, Any]:
             "t_ext": pw - b,
             "t_low": t_bits,
             "t_pad": lit(0, dp.z_frac - dp.in_frac),
-            "ln2_z": lit(dp.ln2_wide, dp.z_width),
+            "ln2_z": lit(dp.ln2_const, dp.z_width),
             "q_ext": rw - qw,
             "ew": dp.exp_width,
         }
