@@ -9,13 +9,14 @@ from __future__ import annotations
 import json
 import shutil
 import tempfile
+from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
 from benchgen import __version__
 from benchgen.config import CoreSpec, load_config, parse_config
 from benchgen.algorithm import make_datapath, make_timing
-from benchgen.design import Design, build_design
+from benchgen.design import Design, Proof, build_design
 from benchgen.reference import ErrorStats
 from benchgen.errors import BenchgenError, ConfigError
 from benchgen.functions import input_ports, output_ports, small_vector_limit
@@ -92,12 +93,9 @@ def manifest_for(design: Design) -> dict[str, Any]:
             "model_bias_lsb": round(design.accuracy.bias_lsb, 6),
             "model_samples": design.accuracy.samples,
             "model_exhaustive": design.accuracy_exhaustive,
+            "proof": design.proof.as_dict(),
             "atan2_angle_budget_min_magnitude": small_vector_limit(dp) if dp.function == "atan2" else None,
-            "measured_on": (
-                f"all {design.accuracy.samples} inputs"
-                if design.accuracy_exhaustive
-                else f"{design.accuracy.samples} seeded random inputs and corners"
-            ),
+            "measured_on": design.proof.describe(),
         },
         "files": {
             "rtl": [f"rtl/{spec.name}.v"],
@@ -215,7 +213,9 @@ def render_project(design: Design, config_text: str) -> dict[str, str]:
     }
 
 
-def generate_project(config_path: str | Path, out_dir: str | Path) -> Design:
+def generate_project(
+    config_path: str | Path, out_dir: str | Path, *, progress: Callable[[str], None] | None = None
+) -> Design:
     """Validate a config and write its project folder (replacing an earlier benchgen project).
 
     Raises:
@@ -225,7 +225,7 @@ def generate_project(config_path: str | Path, out_dir: str | Path) -> Design:
     config_path = Path(config_path)
     spec = load_config(config_path)
     try:
-        design = build_design(spec)
+        design = build_design(spec, progress=progress)
     except ConfigError as exc:
         raise exc.with_source(str(config_path)) from None
     config_text = config_path.read_text(encoding="utf-8")
@@ -281,6 +281,15 @@ def load_manifest(project_dir: str | Path) -> dict[str, Any]:
     return data
 
 
+def _proof_from(budget: dict[str, Any]) -> Proof:
+    """The proof a manifest records (older manifests only say whether it was exhaustive)."""
+    proof = budget.get("proof")
+    if isinstance(proof, dict):
+        return Proof(str(proof["method"]), int(proof["inputs"]), int(proof["random"]), int(proof["directed"]))
+    samples = int(budget["model_samples"])
+    return Proof("exhaustive", samples) if budget["model_exhaustive"] else Proof("sampled", samples, samples, 0)
+
+
 def design_from_manifest(manifest: dict[str, Any]) -> Design:
     """Rebuild the design a manifest was written from, and check it still matches.
 
@@ -304,7 +313,7 @@ def design_from_manifest(manifest: dict[str, Any]) -> Design:
             rms_error_lsb=budget["model_rms_error_lsb"],
             bias_lsb=budget["model_bias_lsb"],
         ),
-        accuracy_exhaustive=budget["model_exhaustive"],
+        proof=_proof_from(budget),
         auto_fields=tuple(derived["auto_fields"]),
     )
     fresh = manifest_for(design)["derived"]
