@@ -281,8 +281,8 @@ def generate_project(config_path: str | Path, out_dir: str | Path) -> Design:
     config_text = config_path.read_text(encoding="utf-8")
     files = render_project(design, config_text)
     out = Path(out_dir)
-    _check_target(out)
     try:
+        _check_target(out)
         out.parent.mkdir(parents=True, exist_ok=True)
         with _folder_lock(out) as created:
             try:
@@ -446,7 +446,7 @@ def _os_error(exc: OSError, out: Path, state: str, *, reading: bool = False) -> 
         fix = "free space on that disk, or choose a folder on another disk with -o"
     elif exc.errno in (errno.EACCES, errno.EPERM, errno.EROFS):
         access = "readable" if reading else "writable"
-        fix = f"make '{_show(folder)}' {access}, or choose another folder with -o"
+        fix = f"make '{_show(shown or out if reading else folder)}' {access}, or choose another folder with -o"
     else:
         fix = "check that path, or choose another folder with -o"
     verb = "read" if reading else "write"
