@@ -51,6 +51,7 @@ __all__ = [
     "corner_angles",
     "evaluate",
     "sizing_angles",
+    "sizing_evidence",
 ]
 
 MAX_AUTO_GUARD_BITS = 16
@@ -436,6 +437,21 @@ def _refuse(spec: CoreSpec, prover: _Prover) -> None:
     )
 
 
+def _arithmetic(spec: CoreSpec) -> CoreSpec:
+    """The spec with every field that does not change the arithmetic set to one value: cores
+    that differ only in name, architecture or tag share one sizing run."""
+    return replace(spec, name="core", architecture="pipelined", pipeline_depth=None, iterations_per_cycle=None, tag_width=0)
+
+
+def sizing_evidence(spec: CoreSpec) -> Inputs:
+    """The inputs the sizer tried smaller sizes on (corners, directed worst cases, a slice of
+    the checked inputs, and the worst inputs of every failed full check): each size it
+    rejected exceeds the budget on some of them. For tests and reports of the sizing proof."""
+    arithmetic = _arithmetic(spec)
+    _size(arithmetic)
+    return dict(_prover(arithmetic, None).search)
+
+
 def build_design(spec: CoreSpec, *, progress: Progress | None = None) -> Design:
     """Size (where ``auto``) and derive everything about a core.
 
@@ -447,10 +463,7 @@ def build_design(spec: CoreSpec, *, progress: Progress | None = None) -> Design:
         ConfigError: if the sizes cannot meet the error target, or the architecture does not fit
             the iteration count.
     """
-    # The size depends on the arithmetic alone: cores that differ only in name, architecture
-    # or tag share one sizing run.
-    arithmetic = replace(spec, name="core", architecture="pipelined", pipeline_depth=None, iterations_per_cycle=None, tag_width=0)
-    n, g, stats, proof = _size(arithmetic, progress)
+    n, g, stats, proof = _size(_arithmetic(spec), progress)
     dp = make_datapath(spec, n, g)
     timing: Timing = make_timing(spec, n)
     auto = tuple(f for f, v in (("iterations", spec.iterations), ("guard_bits", spec.guard_bits)) if v is None)

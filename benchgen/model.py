@@ -345,19 +345,28 @@ def iterate_wrapping(dp: Datapath, x: IntArray, y: IntArray, z: IntArray, dtype:
 def prescale(dp: Datapath, values: IntArray) -> IntArray:
     """Input data at internal scale: times K_n with the guard bits (compensated), or shifted (raw).
 
-    The product's dropped bits round half up, read from all of them, as the RTL does.
+    The product's dropped bits round half up, read from all of them, as the RTL does. A product
+    too wide for int64 is formed on Python integers and the rounded value (x's width) comes
+    back to int64.
     """
     if dp.gain_mode == "raw":
         return values << dp.guard_bits
     drop = dp.k_frac - dp.guard_bits
-    product = values * dp.k_const
-    return (product >> drop) + ((product & ((1 << drop) - 1)) >= (1 << (drop - 1))).astype(product.dtype)
+    wide = values.dtype != object and _product_bits(dp) > INT64_MODEL_BITS
+    product = (values.astype(object) if wide else values) * dp.k_const
+    scaled = (product >> drop) + ((product & ((1 << drop) - 1)) >= (1 << (drop - 1))).astype(product.dtype)
+    return scaled.astype(np.int64) if wide else scaled
+
+
+def _product_bits(dp: Datapath) -> int:
+    """Bits of the prescale product (a data_width + 1 bit value times K_n at k_frac bits)."""
+    return dp.data_width + 1 + dp.k_frac + 1 if dp.k_frac else 0
 
 
 def _widest(dp: Datapath) -> int:
-    """Bits the widest intermediate needs: the prescale product, or a register, plus margin."""
-    product = dp.data_width + 1 + dp.k_frac + 1 if dp.k_frac else 0
-    return max(product, dp.xy_width, dp.z_width, dp.angle_width) + 2
+    """Bits the widest intermediate of the iterations needs: a register plus margin (the
+    prescale product is formed on Python integers where it is wider)."""
+    return max(dp.xy_width, dp.z_width, dp.angle_width) + 2
 
 
 def _as_ints(values: npt.ArrayLike, width: int, dtype: Any) -> IntArray:
