@@ -24,11 +24,13 @@ results travel back to this process, which alone writes ``OUT``.
 from __future__ import annotations
 
 import concurrent.futures as cf
+import contextlib
 import hashlib
 import json
 import multiprocessing
 import os
 import shutil
+import tempfile
 import time
 from collections.abc import Callable, Iterable, Iterator
 from dataclasses import asdict, dataclass, field
@@ -209,10 +211,23 @@ def _toml_value(value: Any) -> str:
 
 
 def _write_json(path: Path, data: Any) -> None:
+    """Write ``data`` so that a reader sees the old file or the whole new one, never a part.
+
+    The text goes to a temporary file of its own in the same folder (a unique name, so two
+    processes or threads writing one key never share it), then ``os.replace`` swaps it in. Two
+    writers of the same cache key both write a whole entry; the last one stays.
+    """
     path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
-    tmp.write_text(json.dumps(data, indent=1, sort_keys=True) + "\n", encoding="utf-8")
-    os.replace(tmp, path)  # readers never see half a file, and an interrupt leaves none
+    text = json.dumps(data, indent=1, sort_keys=True) + "\n"
+    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            fh.write(text)
+        os.replace(tmp, path)
+    except BaseException:
+        with contextlib.suppress(OSError):
+            os.unlink(tmp)  # an interrupt or a full disk leaves no stray temporary file
+        raise
 
 
 def _read_json(path: Path) -> Any:
