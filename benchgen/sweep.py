@@ -23,6 +23,7 @@ results travel back to this process, which alone writes ``OUT``.
 
 from __future__ import annotations
 
+import ast
 import concurrent.futures as cf
 import contextlib
 import hashlib
@@ -55,6 +56,7 @@ __all__ = [
     "Task",
     "default_cache_dir",
     "execute_task",
+    "import_closure",
     "make_tasks",
     "merge_shards",
     "parse_shard",
@@ -81,12 +83,81 @@ def _sha(data: bytes | str) -> str:
     return hashlib.sha256(data.encode() if isinstance(data, str) else data).hexdigest()
 
 
-def _files_digest(paths: Iterable[Path]) -> str:
+def _files_digest(root: Path, paths: Iterable[Path]) -> str:
     h = hashlib.sha256()
     for p in sorted(paths):
-        h.update(p.name.encode())
+        # The path inside the tree, not the bare name: bench/__init__.py is not __init__.py.
+        h.update(p.relative_to(root).as_posix().encode() if p.is_relative_to(root) else p.name.encode())
+        h.update(b"\0")
         h.update(p.read_bytes())
     return h.hexdigest()
+
+
+#: Where the code that decides a simulation's verdict starts: the runner, and every bench module
+#: (the generated bench imports them inside the simulator).
+BENCH_ROOTS = ("benchgen.sim", "benchgen.bench.*")
+#: A task's result also depends on project generation and the estimate flow.
+TASK_ROOTS = (*BENCH_ROOTS, "benchgen.project", "benchgen.synth")
+
+
+def _module_file(pkg: Path, name: str) -> Path | None:
+    """The file of module ``name`` (``benchgen.x.y``) in the package folder ``pkg``, if it is there."""
+    parts = name.split(".")
+    if parts[0] != pkg.name:
+        return None
+    base = pkg.joinpath(*parts[1:])
+    for candidate in (base.with_suffix(".py"), base / "__init__.py"):
+        if candidate.is_file():
+            return candidate
+    return None
+
+
+def _module_name(pkg: Path, path: Path) -> str:
+    rel = path.relative_to(pkg.parent).with_suffix("")
+    parts = list(rel.parts)
+    if parts[-1] == "__init__":
+        parts.pop()
+    return ".".join(parts)
+
+
+def import_closure(pkg: Path, roots: Iterable[str]) -> set[Path]:
+    """Every module file of the package ``pkg`` that the ``roots`` import, directly or not.
+
+    Imports are read from the source (``import`` and ``from ... import`` anywhere, function
+    bodies included, since benchgen imports lazily), so the set is exact for a static import
+    graph; benchgen has no dynamic imports. A root ending in ``.*`` stands for every module of
+    that subpackage. The packages that hold a module (their ``__init__.py``) run on import, so
+    they count too.
+    """
+    todo: list[str] = []
+    for root in roots:
+        if root.endswith(".*"):
+            sub = pkg.joinpath(*root[:-2].split(".")[1:])
+            todo += [_module_name(pkg, p) for p in sorted(sub.glob("*.py"))]
+        else:
+            todo.append(root)
+    seen: set[Path] = set()
+    while todo:
+        name = todo.pop()
+        parts = name.split(".")
+        for k in range(1, len(parts) + 1):
+            path = _module_file(pkg, ".".join(parts[:k]))
+            if path is None or path in seen:
+                continue
+            seen.add(path)
+            tree = ast.parse(path.read_bytes(), filename=str(path))
+            here = _module_name(pkg, path).split(".")
+            package = here if path.name == "__init__.py" else here[:-1]
+            for node in ast.walk(tree):
+                if isinstance(node, ast.Import):
+                    todo += [a.name for a in node.names]
+                elif isinstance(node, ast.ImportFrom):
+                    mod = node.module or ""
+                    if node.level:  # relative: counted from this module's package
+                        mod = ".".join([*package[: len(package) - node.level + 1], *([mod] if mod else [])])
+                    todo.append(mod)
+                    todo += [f"{mod}.{a.name}" for a in node.names]  # from pkg import submodule
+    return seen
 
 
 _FINGERPRINTS: dict[str, str] = {}
@@ -95,21 +166,21 @@ _FINGERPRINTS: dict[str, str] = {}
 def code_fingerprint(kind: str) -> str:
     """Hash of the benchgen code a task's result depends on.
 
-    ``all``: every module and template except the report, sweep and CLI fronts (they do not
-    change a result), for the resume key. ``bench``: the bench, runner, model and reference, for
-    the simulation cache key (the generated sources cover the rest).
+    ``bench``: every benchgen module the simulation runner and the bench import (the judging in
+    functions.py, the model, the reference, ...), found by :func:`import_closure` so that no
+    module can be left out of a hand-kept list; part of the simulation cache key. ``all``: the
+    same closure from the task's other steps too (project generation, estimates), for the resume
+    key. Both add the templates (the bulk harness and the native runner are rendered at run
+    time). The report, sweep and CLI fronts are not in either closure: they do not change a result.
     """
     if kind not in _FINGERPRINTS:
-        pkg = Path(str(resources.files("benchgen")))
-        if kind == "bench":
-            files = [*pkg.glob("bench/*.py"), *(pkg / n for n in ("sim.py", "model.py", "reference.py"))]
-        else:
-            skip = ("report", "sweep", "cli", "spectrum")
-            files = [p for p in pkg.rglob("*.py") if not p.name.startswith(skip)]
-            from benchgen.rtl import template_dir
+        from benchgen.rtl import template_dir
 
-            files += list(template_dir().glob("*.j2"))
-        _FINGERPRINTS[kind] = _files_digest(p for p in files if p.is_file())[:16]
+        pkg = Path(str(resources.files("benchgen")))
+        files = import_closure(pkg, BENCH_ROOTS if kind == "bench" else TASK_ROOTS)
+        templates = template_dir()
+        digest = _sha(_files_digest(pkg, files) + _files_digest(templates, templates.glob("*.j2")))
+        _FINGERPRINTS[kind] = digest[:16]
     return _FINGERPRINTS[kind]
 
 
