@@ -15,6 +15,11 @@ Two stores make re-runs cheap, for different reasons:
   the bench code (or, for estimates, the tool versions and device). A new output folder, another
   sweep that contains the same core, or a benchgen change that leaves the Verilog alone all hit it.
 
+One sweep at a time writes an output folder (:func:`lock_folder`); a second is refused at once.
+Everything read back (cache entries, ``OUT/results``) must fit the schemas of
+:mod:`benchgen.sweep_records`: a bad cache entry is a miss and is rewritten, a bad result file is
+run again. Files are written whole or not at all (a private temporary file, then ``os.replace``).
+
 Engines: a local process pool (``--jobs``, default the CPU count; ``--jobs 1`` runs in this
 process), or a Dask ``distributed`` cluster (``--cluster ADDRESS``, or ``--cluster local`` to start
 a ``LocalCluster`` with ``--jobs`` workers). Workers need benchgen and the simulators installed; the
@@ -41,6 +46,16 @@ from typing import Any, TextIO
 
 from benchgen import __version__
 from benchgen.errors import BenchgenError
+from benchgen.sweep_records import (
+    RESULTS_DIR,
+    SWEEP_FILE,
+    RecordError,
+    check_cache_entry,
+    check_result,
+    read_json_record,
+    read_result,
+    read_sweep_file,
+)
 from benchgen.sweep_config import (
     Point,
     SweepError,
@@ -52,11 +67,13 @@ from benchgen.sweep_config import (
 )
 
 __all__ = [
+    "SweepBusy",
     "SweepOutcome",
     "Task",
     "default_cache_dir",
     "execute_task",
     "import_closure",
+    "lock_folder",
     "make_tasks",
     "merge_shards",
     "parse_shard",
@@ -65,9 +82,8 @@ __all__ = [
 ]
 
 CACHE_ENV = "BENCHGEN_CACHE_DIR"
-SWEEP_FILE = "sweep.json"
-RESULTS_DIR = "results"
 WORK_DIR = "work"
+LOCK_FILE = ".benchgen.lock"
 FIRST_MISMATCHES = 8
 
 
@@ -301,10 +317,13 @@ def _write_json(path: Path, data: Any) -> None:
         raise
 
 
-def _read_json(path: Path) -> Any:
+def _read_cache(path: Path | None, kind: str) -> dict[str, Any] | None:
+    """A cache entry that fits its schema, else ``None``: a bad entry is a miss, and is rewritten."""
+    if path is None:
+        return None
     try:
-        return json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, ValueError):
+        return check_cache_entry(read_json_record(path), kind)
+    except (FileNotFoundError, RecordError):
         return None
 
 
@@ -366,7 +385,8 @@ def _run_sim_task(task: Task, folder: Path, cache: Path | None) -> dict[str, Any
     cache_key = _sha(json.dumps([source, task.simulator, version, task.samples, task.seed,
                                  code_fingerprint("bench")]))
     cache_file = cache / "sim" / f"{cache_key[:32]}.json" if cache else None
-    if cache_file and (hit := _read_json(cache_file)) is not None:
+    hit = _read_cache(cache_file, "sim")
+    if hit is not None and hit["source_hash"] == source[:16] and hit["sim"]["simulator"] == task.simulator:
         return {**hit, "design": design, "cached": True}
     report = run_sim(project, simulator=task.simulator, samples=task.samples, seed=task.seed,
                      build_dir=folder / "build").as_dict()
@@ -378,9 +398,19 @@ def _run_sim_task(task: Task, folder: Path, cache: Path | None) -> dict[str, Any
         "sim": report,
         "first_mismatches": mismatches,
     }
-    if cache_file:
-        _write_json(cache_file, result)
+    _write_cache(cache_file, "sim", result)
     return {**result, "design": design, "cached": False}
+
+
+def _write_cache(path: Path | None, kind: str, entry: dict[str, Any]) -> None:
+    """Store an entry only if it fits the schema a later read will hold it to."""
+    if path is None:
+        return
+    try:
+        check_cache_entry(entry, kind)
+    except RecordError:
+        return  # never cache what would be refused; the sweep reports the bad result itself
+    _write_json(path, entry)
 
 
 def _run_synth_task(task: Task, folder: Path, cache: Path | None) -> dict[str, Any]:
@@ -395,13 +425,13 @@ def _run_synth_task(task: Task, folder: Path, cache: Path | None) -> dict[str, A
     cache_key = _sha(json.dumps([source, design["toplevel"], task.target, device.synth_command, device.pnr_args,
                                  settings.place_and_route, settings.clock_mhz, tools]))
     cache_file = cache / "synth" / f"{cache_key[:32]}.json" if cache else None
-    if cache_file and (hit := _read_json(cache_file)) is not None:
+    hit = _read_cache(cache_file, "synth")
+    if hit is not None and hit["source_hash"] == source[:16] and hit["estimate"]["target"] == task.target:
         return {**hit, "design": design, "cached": True}
     est = estimate([project / r for r in design["rtl"]], design["toplevel"], task.target, folder / "synth",
                    place_and_route=settings.place_and_route, clock_mhz=settings.clock_mhz)
     result = {"status": "ok", "source_hash": source[:16], "estimate": est.as_dict()}
-    if cache_file:
-        _write_json(cache_file, result)
+    _write_cache(cache_file, "synth", result)
     return {**result, "design": design, "cached": False}
 
 
@@ -432,28 +462,29 @@ def execute_task(task: Task, work_root: str, cache_dir: str | None) -> dict[str,
 
 
 Runner = Callable[[Task, str, "str | None"], dict[str, Any]]
+Done = Iterator[tuple[Task, Any]]  # each task with what its runner returned, as they finish
 
 
-def _serial(tasks: list[Task], fn: Runner, work: str, cache: str | None) -> Iterator[dict[str, Any]]:
+def _serial(tasks: list[Task], fn: Runner, work: str, cache: str | None) -> Done:
     for t in tasks:
-        yield fn(t, work, cache)
+        yield t, fn(t, work, cache)
 
 
-def _pool(tasks: list[Task], fn: Runner, work: str, cache: str | None, jobs: int) -> Iterator[dict[str, Any]]:
+def _pool(tasks: list[Task], fn: Runner, work: str, cache: str | None, jobs: int) -> Done:
     # spawn, not fork: the parent may hold threads (progress output, Dask), and a forked child
     # of a threaded parent can deadlock.
     ctx = multiprocessing.get_context("spawn")
     pool = cf.ProcessPoolExecutor(max_workers=jobs, mp_context=ctx)
     try:
-        futures = [pool.submit(fn, t, work, cache) for t in tasks]
+        futures = {pool.submit(fn, t, work, cache): t for t in tasks}
         for fut in cf.as_completed(futures):
-            yield fut.result()
+            yield futures[fut], fut.result()
     finally:
         pool.shutdown(wait=False, cancel_futures=True)
 
 
 def _dask(tasks: list[Task], fn: Runner, work: str, cache: str | None, address: str,
-          jobs: int) -> Iterator[dict[str, Any]]:
+          jobs: int) -> Done:
     try:
         from distributed import Client, LocalCluster, as_completed
     except ImportError:
@@ -470,10 +501,10 @@ def _dask(tasks: list[Task], fn: Runner, work: str, cache: str | None, address: 
                                    "Fix: give the scheduler's tcp://host:port, or --cluster local")]) from None
     try:
         # pure=False: two identical tasks in two sweeps must both run (the cache dedups them).
-        futures = [client.submit(fn, t, work, cache, pure=False, key=f"benchgen-{t.task_id}-{os.getpid()}")
-                   for t in tasks]
-        for fut in as_completed(futures):
-            yield fut.result()
+        futures = {client.submit(fn, t, work, cache, pure=False, key=f"benchgen-{t.task_id}-{os.getpid()}"): t
+                   for t in tasks}
+        for fut in as_completed(list(futures)):
+            yield futures[fut], fut.result()
     finally:
         client.close()
         if cluster is not None:
@@ -567,14 +598,87 @@ class SweepOutcome:
         return 1 if self.failed else 0
 
 
-def load_results(out_dir: Path, tasks: list[Task]) -> dict[str, dict[str, Any]]:
-    """Results already in ``out_dir`` that are still valid for these tasks (resume)."""
+class SweepBusy(BenchgenError):
+    """The output folder is held by another running sweep (or cannot be locked at all)."""
+
+    exit_status = 2
+
+
+def _lock_holder(path: Path) -> str:
+    try:
+        text = path.read_text(encoding="utf-8", errors="replace").strip()
+    except OSError:
+        text = ""
+    return text if text.isdigit() else "unknown"
+
+
+@contextlib.contextmanager
+def lock_folder(folder: Path, *, fix: str = "wait for it or choose another -o") -> Iterator[None]:
+    """Hold ``folder`` for one sweep (or report) for the whole block; refuse at once if it is held.
+
+    The lock is an advisory ``flock`` on ``folder/.benchgen.lock``, which also names the pid of
+    the holder. The kernel drops the lock when its process ends in any way (Ctrl-C, SIGKILL, a
+    crash), so a killed run never leaves a stale lock behind. The file itself is left in place:
+    removing it would let two later runs lock two different files.
+
+    Raises:
+        SweepBusy: if another process holds the folder.
+    """
+    import fcntl  # POSIX only; benchgen's simulators and CI run on Linux and macOS
+
+    path = folder / LOCK_FILE
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+        fd = os.open(path, os.O_RDWR | os.O_CREAT, 0o644)
+    except OSError as exc:
+        raise SweepBusy(f"cannot lock output folder '{folder}' ({exc.strerror or exc}); "
+                        "give a folder you can write to with -o") from None
+    try:
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except BlockingIOError:
+            raise SweepBusy(
+                f"output folder '{folder}' is in use by another sweep (pid {_lock_holder(path)}); {fix}"
+            ) from None
+        os.ftruncate(fd, 0)
+        os.write(fd, f"{os.getpid()}\n".encode())
+        yield
+    finally:
+        os.close(fd)  # closing the descriptor releases the lock
+
+
+def load_results(out_dir: Path, tasks: list[Task],
+                 notes: Callable[[str], None] | None = None) -> dict[str, dict[str, Any]]:
+    """Results already in ``out_dir`` that are still valid for these tasks (resume).
+
+    A result file that does not fit its schema is ignored (its task runs again and the file is
+    rewritten); ``notes`` is told so in one line naming the file and the fault.
+    """
     found: dict[str, dict[str, Any]] = {}
     for t in tasks:
-        data = _read_json(out_dir / RESULTS_DIR / t.kind / f"{t.task_id}.json")
-        if data and data.get("key") == t.key and data.get("status") != "error":
+        try:
+            data = read_result(out_dir, t.kind, t.task_id)
+        except RecordError as exc:
+            if notes:
+                notes(f"ignored {exc}; running {t.label} again")
+            continue
+        if data and data["key"] == t.key and data["status"] != "error":
             found[t.task_id] = data
     return found
+
+
+def _checked_result(task: Task, result: Any) -> dict[str, Any]:
+    """A task's result as it will be saved; one that does not fit the schema becomes an error."""
+    try:
+        data = check_result(result, task.kind)
+        if (data["task_id"], data["key"]) != (task.task_id, task.key):
+            raise RecordError(f"it names task {data['task_id']!r} with key {data['key']!r}")
+        return data
+    except RecordError as exc:
+        seconds = result.get("seconds") if isinstance(result, dict) else None
+        return {"kind": task.kind, "task_id": task.task_id, "key": task.key, "label": task.label,
+                "seconds": seconds if isinstance(seconds, float) and seconds >= 0 else 0.0,
+                "status": "error", "error": f"the task returned an invalid result ({exc})"}
 
 
 def write_sweep_file(out_dir: Path, spec: SweepSpec, points: list[Point], tasks: list[Task],
@@ -604,6 +708,7 @@ def run_sweep(
     formats: Iterable[str] = ("table", "json", "csv", "md", "html", "junit"),
     on_result: Callable[[dict[str, Any]], None] | None = None,
     runner: Runner | None = None,
+    notes: TextIO | None = None,
 ) -> SweepOutcome:
     """Validate, run and report a sweep.
 
@@ -619,9 +724,14 @@ def run_sweep(
         formats: Report outputs to write.
         on_result: Called with each new result after it is saved.
         runner: Replaces :func:`execute_task` (tests run without simulators this way).
+        notes: Stream for one-line notes (a result file ignored as invalid); ``None``: silent.
+
+    A result that does not fit its schema (:mod:`benchgen.sweep_records`) is saved as an
+    ``error`` result naming the fault, so it is retried on the next run.
 
     Raises:
         SweepError: if any point is invalid (nothing runs then).
+        SweepBusy: if another sweep is writing to ``out_dir`` (nothing runs then).
         KeyboardInterrupt: if interrupted; the results so far are saved and resume on the next run.
     """
     from benchgen.report import write_reports
@@ -632,49 +742,58 @@ def run_sweep(
     out = Path(out_dir).resolve()
     if out.exists() and not out.is_dir():
         raise SweepError("", [f"output '{out}' is a file: give a folder with -o"])
-    if out.is_dir() and any(out.iterdir()) and not (out / SWEEP_FILE).is_file():
+    if out.is_dir() and any(p.name != LOCK_FILE for p in out.iterdir()) and not (out / SWEEP_FILE).is_file():
         raise SweepError("", [f"output folder '{out}' is not empty and holds no sweep; choose a new folder with -o"])
-    out.mkdir(parents=True, exist_ok=True)
-    write_sweep_file(out, spec, points, tasks, shard)
-    results = load_results(out, tasks)
-    todo = [t for t in tasks if t.task_id not in results]
-    # Longest first, so the last task to finish is a short one and the workers stay busy.
-    cost = {"synth": 0, "sim": 1}
-    todo.sort(key=lambda t: (cost[t.kind], t.simulator != "verilator"))
-    cache = None if not use_cache else str(Path(cache_dir) if cache_dir else default_cache_dir())
-    work = str(out / WORK_DIR)
-    fn = runner or execute_task
-    n_jobs = jobs or os.cpu_count() or 1
-    bar = Progress(len(tasks), len(results), progress)
-    if cluster:
-        stream = _dask(todo, fn, work, cache, cluster, n_jobs)
-    elif n_jobs == 1 or len(todo) <= 1:
-        stream = _serial(todo, fn, work, cache)
-    else:
-        stream = _pool(todo, fn, work, cache, min(n_jobs, len(todo)))
-    ran = 0
-    try:
-        for result in stream:
-            _write_json(out / RESULTS_DIR / result["kind"] / f"{result['task_id']}.json", result)
-            results[result["task_id"]] = result
-            ran += 1
-            bar.update(result)
-            if on_result:
-                on_result(result)
-    except KeyboardInterrupt:
+
+    def note(line: str) -> None:
+        if notes:
+            notes.write(line + "\n")
+            notes.flush()
+
+    # One run at a time per folder: two runs would share work/<task>/ build folders and each
+    # other's result files.
+    with lock_folder(out):
+        write_sweep_file(out, spec, points, tasks, shard)
+        results = load_results(out, tasks, note)
+        todo = [t for t in tasks if t.task_id not in results]
+        # Longest first, so the last task to finish is a short one and the workers stay busy.
+        cost = {"synth": 0, "sim": 1}
+        todo.sort(key=lambda t: (cost[t.kind], t.simulator != "verilator"))
+        cache = None if not use_cache else str(Path(cache_dir) if cache_dir else default_cache_dir())
+        work = str(out / WORK_DIR)
+        fn = runner or execute_task
+        n_jobs = jobs or os.cpu_count() or 1
+        bar = Progress(len(tasks), len(results), progress)
+        if cluster:
+            stream = _dask(todo, fn, work, cache, cluster, n_jobs)
+        elif n_jobs == 1 or len(todo) <= 1:
+            stream = _serial(todo, fn, work, cache)
+        else:
+            stream = _pool(todo, fn, work, cache, min(n_jobs, len(todo)))
+        ran = 0
+        try:
+            for task, raw in stream:
+                result = _checked_result(task, raw)
+                _write_json(out / RESULTS_DIR / result["kind"] / f"{result['task_id']}.json", result)
+                results[result["task_id"]] = result
+                ran += 1
+                bar.update(result)
+                if on_result:
+                    on_result(result)
+        except KeyboardInterrupt:
+            bar.close()
+            if progress:
+                progress.write(f"interrupted: {len(results)} of {len(tasks)} tasks saved in {out}; "
+                               "run the same command again to resume\n")
+            raise
+        finally:
+            close = getattr(stream, "close", None)
+            if close:
+                close()
         bar.close()
-        if progress:
-            progress.write(f"interrupted: {len(results)} of {len(tasks)} tasks saved in {out}; "
-                           "run the same command again to resume\n")
-        raise
-    finally:
-        close = getattr(stream, "close", None)
-        if close:
-            close()
-    bar.close()
-    outcome = SweepOutcome(out_dir=out, tasks=tasks, results=results, ran=ran,
-                           wall_seconds=time.perf_counter() - t0)
-    outcome.report_files = write_reports(out, formats=formats, wall_seconds=outcome.wall_seconds, ran=ran)
+        outcome = SweepOutcome(out_dir=out, tasks=tasks, results=results, ran=ran,
+                               wall_seconds=time.perf_counter() - t0)
+        outcome.report_files = write_reports(out, formats=formats, wall_seconds=outcome.wall_seconds, ran=ran)
     return outcome
 
 
@@ -683,8 +802,11 @@ def run_sweep_file(path: str | Path, out_dir: str | Path, **kwargs: Any) -> Swee
     return run_sweep(load_sweep(path), out_dir, **kwargs)
 
 
-def merge_shards(shard_dirs: list[Path], out_dir: Path) -> list[Path]:
+def merge_shards(shard_dirs: list[Path], out_dir: Path, notes: TextIO | None = None) -> list[Path]:
     """Join the results of a sweep's shards into one folder (its report is then written there).
+
+    Only result files that fit their schema are copied; each one left out is named in one line
+    on ``notes``, and its task then shows as without a result.
 
     Raises:
         SweepError: if the folders are not shards of one sweep.
@@ -692,9 +814,12 @@ def merge_shards(shard_dirs: list[Path], out_dir: Path) -> list[Path]:
     digests = set()
     base: dict[str, Any] | None = None
     for d in shard_dirs:
-        data = _read_json(d / SWEEP_FILE)
-        if data is None:
-            raise SweepError("", [f"'{d}' holds no {SWEEP_FILE}: give folders written by 'benchgen sweep -o'"])
+        try:
+            data = read_sweep_file(d)
+        except FileNotFoundError:
+            raise SweepError("", [f"'{d}' holds no {SWEEP_FILE}: give folders written by 'benchgen sweep -o'"]) from None
+        except RecordError as exc:
+            raise SweepError("", [f"{exc}: give folders written by 'benchgen sweep -o'"]) from None
         digests.add(data["digest"])
         base = base or data
     if len(digests) > 1 or base is None:
@@ -705,9 +830,17 @@ def merge_shards(shard_dirs: list[Path], out_dir: Path) -> list[Path]:
         for kind in ("sim", "synth"):
             for f in sorted((d / RESULTS_DIR / kind).glob("*.json")):
                 target = out_dir / RESULTS_DIR / kind / f.name
+                if f.resolve() == target.resolve():
+                    continue
+                try:
+                    if read_result(d, kind, f.stem) is None:
+                        continue
+                except RecordError as exc:
+                    if notes:
+                        notes.write(f"ignored {exc} (shard folder {d})\n")
+                    continue
                 target.parent.mkdir(parents=True, exist_ok=True)
-                if f.resolve() != target.resolve():
-                    shutil.copyfile(f, target)
+                shutil.copyfile(f, target)
     # The full task list is rebuilt from the spec, so a shard that never ran shows as missing.
     spec = parse_sweep(_spec_to_raw(base["spec"]))
     points = expand(spec, validate=False)

@@ -12,6 +12,7 @@ concurrent ``benchgen sweep`` processes.
 
 from __future__ import annotations
 
+import io
 import json
 import os
 import shutil
@@ -48,6 +49,117 @@ def small_spec(depths: list[int] | None = None) -> Any:
 @pytest.fixture(autouse=True)
 def _reset_calls() -> None:
     CALLS.clear()
+
+
+# ----------------------------------------------------------------------------- one sweep per folder
+
+
+def test_second_sweep_into_a_busy_folder_is_refused_at_once(tmp_path: Path) -> None:
+    """While one sweep runs, another into the same folder must not run a single task."""
+    spec = small_spec()
+    out = tmp_path / "out"
+    refused: list[BenchgenError] = []
+    inner_calls: list[int] = []
+
+    def runner(task: Any, work: str, cache: str | None) -> dict[str, Any]:
+        if not refused and not inner_calls:
+            before = len(CALLS)
+            try:
+                run_sweep(spec, out, jobs=1, runner=fake_runner, use_cache=False, formats=QUICK)
+            except BenchgenError as exc:
+                refused.append(exc)
+            inner_calls.append(len(CALLS) - before)
+        return fake_runner(task, work, cache)
+
+    outcome = run_sweep(spec, out, jobs=1, runner=runner, use_cache=False, formats=QUICK)
+    assert inner_calls == [0], "the second sweep ran tasks in a folder another sweep was writing"
+    (exc,) = refused
+    assert exc.exit_status == 2
+    assert str(exc) == (f"output folder '{out.resolve()}' is in use by another sweep (pid {os.getpid()}); "
+                        "wait for it or choose another -o")
+    assert outcome.exit_status == 0
+    for r in outcome.results.values():
+        assert r["sim"]["samples"] == 100  # counted once
+    # The lock went with the first sweep: the folder can be used again at once.
+    assert run_sweep(spec, out, jobs=1, runner=fake_runner, use_cache=False, formats=QUICK).exit_status == 0
+
+
+LOCK_HOLDER = """
+import sys, time
+from pathlib import Path
+from benchgen.sweep import lock_folder
+with lock_folder(Path(sys.argv[1])):
+    print("locked", flush=True)
+    time.sleep(120)
+"""
+
+
+def test_a_killed_sweep_leaves_no_stale_lock(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    out = tmp_path / "out"
+    spec = small_spec([1])
+    run_sweep(spec, out, jobs=1, runner=fake_runner, use_cache=False, formats=QUICK)
+    holder = subprocess.Popen([sys.executable, "-c", LOCK_HOLDER, str(out)], stdout=subprocess.PIPE, text=True)
+    try:
+        assert holder.stdout is not None and holder.stdout.readline().strip() == "locked"
+        with pytest.raises(BenchgenError) as info:
+            run_sweep(spec, out, jobs=1, runner=fake_runner, use_cache=False, formats=QUICK)
+        assert f"(pid {holder.pid})" in str(info.value) and info.value.exit_status == 2
+        # report render must not write report files under a running sweep either
+        assert main(["report", "render", str(out), "--formats", "csv"]) == 2
+        err = capsys.readouterr().err
+        assert err.count("\n") == 1 and "in use by another sweep" in err and "Traceback" not in err
+    finally:
+        holder.send_signal(signal.SIGKILL)
+        holder.wait()
+    outcome = run_sweep(spec, out, jobs=1, runner=fake_runner, use_cache=False, formats=QUICK)
+    assert outcome.exit_status == 0
+
+
+TINY_SWEEP = """
+[sweep]
+name = "concurrent"
+simulators = ["icarus"]
+samples = 200
+seed = 3
+[base]
+name = "tiny_nco"
+function = "sincos"
+angle_width = 10
+data_width = 8
+iterations = 10
+guard_bits = 4
+max_error_lsb = 1.5
+[matrix]
+pipeline_depth = [2]
+"""
+
+
+@pytest.mark.sim
+def test_two_real_sweeps_into_one_folder_do_not_double_count(tmp_path: Path) -> None:
+    """The reported failure: two `benchgen sweep -o X` at once both passed with doubled samples."""
+    require_simulator("icarus")
+    sweep_file = tmp_path / "s.toml"
+    sweep_file.write_text(TINY_SWEEP)
+    out = tmp_path / "X"
+    env = {**os.environ, "BENCHGEN_CACHE_DIR": str(tmp_path / "cache"), "PYTHONPATH": str(REPO)}
+    cmd = [sys.executable, "-m", "benchgen.cli", "sweep", str(sweep_file), "-o", str(out), "-j1", "-q",
+           "--formats", "json"]
+    first = subprocess.Popen(cmd, env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    deadline = time.monotonic() + 60
+    while not (out / "sweep.json").is_file() and first.poll() is None and time.monotonic() < deadline:
+        time.sleep(0.05)
+    second = subprocess.run(cmd, env=env, capture_output=True, text=True, timeout=300)
+    first_out, first_err = first.communicate(timeout=300)
+    assert first.returncode == 0, first_err
+    assert second.returncode == 2, second.stdout + second.stderr
+    assert second.stderr.strip().count("\n") == 0
+    assert f"is in use by another sweep (pid {first.pid})" in second.stderr
+    (result_file,) = (out / "results" / "sim").glob("*.json")
+    sim = json.loads(result_file.read_text())["sim"]
+    lines = [json.loads(x) for x in (out / "work" / result_file.stem / "build" / "bench_results.jsonl")
+             .read_text().splitlines()]
+    assert len(lines) == sim["tests"]  # one line per test of one run
+    assert sum(x["samples"] for x in lines) == sim["samples"]
 
 
 # ----------------------------------------------------------------------------- one run's bench results
@@ -124,6 +236,233 @@ def test_cache_writes_from_many_writers_of_one_key_are_whole(tmp_path: Path) -> 
     assert all(s == entry for s in seen)  # a reader never saw half a file
     assert json.loads(target.read_text()) == entry
     assert sorted(p.name for p in target.parent.iterdir()) == ["k.json"]  # no temporary file left
+
+
+# ----------------------------------------------------------------------------- bad cache entries
+
+
+def _fake_sim(monkeypatch: pytest.MonkeyPatch) -> list[str]:
+    """Replace the simulator run with a fixed, plausible pass; return the list of runs made."""
+    runs: list[str] = []
+
+    def run_sim(project: Path, **kw: Any) -> SimReport:
+        runs.append(str(project))
+        return SimReport(simulator=kw["simulator"], simulator_version="9", toplevel="tiny", seed=kw["seed"],
+                         passed=True, tests=4, samples=1935, max_error_lsb=0.75, rms_error_lsb=0.3,
+                         error_budget_lsb=1.5, latency_cycles=2, expected_latency_cycles=2,
+                         cycles_per_sample=1.0, expected_cycles_per_sample=1)
+
+    monkeypatch.setattr(benchgen.sim, "run_sim", run_sim)
+    monkeypatch.setattr(benchgen.simulators, "find_simulator",
+                        lambda name: SimulatorInfo(name=name, executable=Path("/x"), version="9"))
+    return runs
+
+
+def _edit(good: bytes, change: Any) -> bytes:
+    data = json.loads(good)
+    change(data)
+    return json.dumps(data).encode()
+
+
+def _set(path: str, value: Any) -> Any:
+    def change(data: dict[str, Any]) -> None:
+        *head, last = path.split(".")
+        for k in head:
+            data = data[k]
+        data[last] = value
+    return change
+
+
+def _drop(key: str) -> Any:
+    return lambda data: data.pop(key)
+
+
+BAD_CACHE = {
+    "empty object": lambda good: b"{}",
+    "a list": lambda good: b"[1, 2]",
+    "a string": lambda good: b'"passed"',
+    "empty file": lambda good: b"",
+    "truncated JSON": lambda good: good[: len(good) // 2],
+    "not UTF-8": lambda good: b"\xff\xfe" + good,
+    "missing sim": lambda good: _edit(good, _drop("sim")),
+    "samples as text": lambda good: _edit(good, _set("sim.samples", "1935")),
+    "tests as a boolean": lambda good: _edit(good, _set("sim.tests", True)),
+    "unknown status": lambda good: _edit(good, _set("status", "passd")),
+    "unknown key": lambda good: _edit(good, _set("verdict", "ok")),
+    "NaN error": lambda good: good.replace(b'"max_error_lsb": 0.75', b'"max_error_lsb": NaN'),
+    "passed with mismatches": lambda good: _edit(good, _set("sim.mismatches", 5)),
+    "passed with no samples": lambda good: _edit(good, _set("sim.samples", 0)),
+    "passed over the budget": lambda good: _edit(good, _set("sim.max_error_lsb", 9.0)),
+    "passed but sim failed": lambda good: _edit(good, _set("sim.passed", False)),
+}
+
+
+@pytest.mark.parametrize("bad", list(BAD_CACHE))
+def test_a_bad_cache_entry_is_a_miss_and_is_rewritten(bad: str, tmp_path: Path,
+                                                      monkeypatch: pytest.MonkeyPatch) -> None:
+    runs = _fake_sim(monkeypatch)
+    spec = small_spec([2])
+    task = make_tasks(spec, expand(spec))[0]
+    cache = tmp_path / "cache"
+    first = execute_task(task, str(tmp_path / "w1"), str(cache))
+    (entry,) = (cache / "sim").glob("*.json")
+    good = entry.read_bytes()
+    assert first["status"] == "passed" and len(runs) == 1
+    entry.write_bytes(BAD_CACHE[bad](good))
+
+    again = execute_task(task, str(tmp_path / "w2"), str(cache))
+    assert len(runs) == 2, "the bad entry was taken for a hit"
+    assert again["cached"] is False and again["status"] == "passed" and again["sim"]["mismatches"] == 0
+    assert entry.read_bytes() == good  # rewritten whole
+    third = execute_task(task, str(tmp_path / "w3"), str(cache))
+    assert third["cached"] is True and len(runs) == 2
+
+
+def test_a_poisoned_cache_entry_never_reaches_the_output_folder(tmp_path: Path, monkeypatch: pytest.MonkeyPatch,
+                                                                capsys: pytest.CaptureFixture[str]) -> None:
+    """The reported failure: a cache file holding {} was copied into OUT/results and broke the report."""
+    runs = _fake_sim(monkeypatch)
+    spec = small_spec([2])
+    cache = tmp_path / "cache"
+    run_sweep(spec, tmp_path / "o1", jobs=1, cache_dir=cache, formats=QUICK)
+    (entry,) = (cache / "sim").glob("*.json")
+    entry.write_text("{}")
+    outcome = run_sweep(spec, tmp_path / "o2", jobs=1, cache_dir=cache, formats=QUICK)
+    assert len(runs) == 2
+    (result,) = outcome.results.values()
+    assert result["status"] == "passed" and result["cached"] is False and result["sim"]["samples"] == 1935
+    assert main(["report", "render", str(tmp_path / "o2"), "--formats", "csv"]) == 0
+    assert "Traceback" not in capsys.readouterr().err
+
+
+def test_a_result_that_does_not_fit_the_schema_is_saved_as_an_error(tmp_path: Path) -> None:
+    """A worker's result is checked before it is saved: a 'pass' with mismatches is not a pass."""
+    spec = small_spec([1])
+
+    def lying(task: Any, work: str, cache: str | None) -> dict[str, Any]:
+        result = fake_runner(task, work, cache)
+        result["sim"]["mismatches"] = 5
+        return result
+
+    outcome = run_sweep(spec, tmp_path / "o", jobs=1, runner=lying, use_cache=False, formats=QUICK)
+    (saved,) = (tmp_path / "o" / "results" / "sim").glob("*.json")
+    record = json.loads(saved.read_text())
+    assert record["status"] == "error"
+    assert "passed = true, yet mismatches = 5" in record["error"]
+    assert outcome.exit_status == 1
+    # an error is retried on the next run
+    assert run_sweep(spec, tmp_path / "o", jobs=1, runner=fake_runner, use_cache=False, formats=QUICK).exit_status == 0
+
+
+# ----------------------------------------------------------------------------- bad result files
+
+
+BAD_RESULT = {
+    "a list": (lambda good: b"[1, 2]", "not a JSON object"),
+    "a string": (lambda good: b'"passed"', "not a JSON object"),
+    "empty object": (lambda good: b"{}", "status: missing"),
+    "no status": (lambda good: _edit(good, _drop("status")), "status: missing"),
+    "truncated JSON": (lambda good: good[:100], "is not JSON"),
+    "not UTF-8": (lambda good: good.replace(b'"label"', b'"lab\xe9l"'), "is not UTF-8 text"),
+    "samples as text": (lambda good: _edit(good, _set("sim.samples", "100")), "sim.samples"),
+    "passed with mismatches": (lambda good: _edit(good, _set("sim.mismatches", 5)),
+                               "passed = true, yet mismatches = 5"),
+    "passed with no samples": (lambda good: _edit(good, _set("sim.samples", 0)), "passed = true, yet samples = 0"),
+    "another task's record": (lambda good: _edit(good, _set("task_id", "other")), "task_id"),
+    "a synth record": (lambda good: _edit(good, _set("kind", "synth")), "kind"),
+    "no design": (lambda good: _edit(good, _drop("design")), "design: missing"),
+    "design without latency": (lambda good: _edit(good, lambda d: d["design"]["derived"].pop("latency_cycles")),
+                               "design.derived.latency_cycles: missing"),
+}
+
+
+@pytest.fixture(scope="module")
+def finished(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    out = tmp_path_factory.mktemp("finished") / "out"
+    run_sweep(small_spec([1, 2]), out, jobs=1, runner=fake_runner, use_cache=False, formats=QUICK)
+    return out
+
+
+@pytest.mark.parametrize("bad", list(BAD_RESULT))
+def test_report_render_names_a_bad_result_file_and_goes_on(bad: str, finished: Path, tmp_path: Path,
+                                                           capsys: pytest.CaptureFixture[str]) -> None:
+    out = tmp_path / "out"
+    shutil.copytree(finished, out)
+    victim = sorted((out / "results" / "sim").glob("*.json"))[0]
+    make, needle = BAD_RESULT[bad]
+    victim.write_bytes(make(victim.read_bytes()))
+    capsys.readouterr()
+    status = main(["report", "render", str(out), "--formats", "csv,json"])
+    captured = capsys.readouterr()
+    assert status == 1  # a point without a result, as for a task that never ran
+    assert "Traceback" not in captured.err
+    (line,) = captured.err.splitlines()
+    assert line.startswith(f"benchgen: ignored results/sim/{victim.name}: ") and needle in line, line
+    rows = {r["point_id"]: r for r in json.loads((out / "report.json").read_text())["rows"]}
+    assert rows[victim.stem]["status"] == "not run"
+    assert needle in rows[victim.stem]["problems"][0]
+    assert [r["status"] for k, r in rows.items() if k != victim.stem] == ["passed"]
+    assert f"FAILED {rows[victim.stem]['point']}: ignored results/sim/{victim.name}" in captured.out
+
+
+@pytest.mark.parametrize("bad", ["a list", "empty object", "passed with mismatches", "not UTF-8", "a synth record"])
+def test_a_bad_result_file_is_run_again_and_rewritten(bad: str, finished: Path, tmp_path: Path) -> None:
+    """Resume (and --no-cache) must not crash on, or trust, a bad result file."""
+    out = tmp_path / "out"
+    shutil.copytree(finished, out)
+    victim = sorted((out / "results" / "sim").glob("*.json"))[0]
+    good = victim.read_bytes()
+    victim.write_bytes(BAD_RESULT[bad][0](good))
+    notes = io.StringIO()
+    outcome = run_sweep(small_spec([1, 2]), out, jobs=1, runner=fake_runner, use_cache=False, formats=QUICK,
+                        notes=notes)
+    assert CALLS == [victim.stem]
+    (line,) = notes.getvalue().splitlines()
+    assert line.startswith(f"ignored results/sim/{victim.name}: ") and BAD_RESULT[bad][1] in line
+    assert line.endswith(" again")
+    assert victim.read_bytes() == good
+    assert outcome.exit_status == 0
+
+
+def test_a_bad_sweep_file_is_one_line_and_exit_2(finished: Path, tmp_path: Path,
+                                                 capsys: pytest.CaptureFixture[str]) -> None:
+    out = tmp_path / "out"
+    shutil.copytree(finished, out)
+    sweep = json.loads((out / "sweep.json").read_text())
+    del sweep["spec"]["synth"]
+    (out / "sweep.json").write_text(json.dumps(sweep))
+    capsys.readouterr()
+    assert main(["report", "render", str(out)]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "sweep.json: spec.synth: missing" in err and "Traceback" not in err
+    assert main(["report", "merge", str(out), "-o", str(tmp_path / "m")]) == 2
+    assert "spec.synth: missing" in capsys.readouterr().err
+
+
+def test_merge_copies_only_valid_result_files(finished: Path, tmp_path: Path,
+                                              capsys: pytest.CaptureFixture[str]) -> None:
+    shard = tmp_path / "shard"
+    shutil.copytree(finished, shard)
+    victim = sorted((shard / "results" / "sim").glob("*.json"))[0]
+    victim.write_text("[1, 2]")
+    capsys.readouterr()
+    assert main(["report", "merge", str(shard), "-o", str(tmp_path / "m"), "--formats", "csv"]) == 1
+    err = capsys.readouterr().err
+    assert f"ignored results/sim/{victim.name}: not a JSON object" in err and "Traceback" not in err
+    assert not (tmp_path / "m" / "results" / "sim" / victim.name).exists()
+
+
+def test_the_schemas_hold_every_field_the_writers_write() -> None:
+    """If a writer gains a field, its schema must learn it too (else every record becomes a miss)."""
+    import dataclasses
+
+    from benchgen.sweep_records import EstimateRecord, SimRunRecord, SpecRecord
+    from benchgen.synth import Estimate
+
+    sim = SimReport(simulator="icarus", simulator_version="1", toplevel="t", seed=1).as_dict()
+    assert set(SimRunRecord.model_fields) == set(sim) - {"per_test"}
+    assert set(EstimateRecord.model_fields) == {f.name for f in dataclasses.fields(Estimate)}
+    assert set(SpecRecord.model_fields) == set(small_spec().as_dict())
 
 
 # ----------------------------------------------------------------------------- the code fingerprint
