@@ -365,3 +365,77 @@ def test_a_runner_that_dies_is_reported_not_waited_for(tmp_path: Path) -> None:
         result = bench.run_test(session, _Test("bulk_full_rate", 1, plan, True, 50_000))
         session.close()
     assert result.problems and "seed 7" in result.problems[0] and str(log_path) in result.problems[0]
+
+# ---- exhaustive runs under idle gaps and output stalls ----
+
+
+def _codes(fn: BulkFunction, blocks: list[dict[str, np.ndarray]]) -> list[int]:
+    return [int(c) for b in blocks for c in fn._code(b)]
+
+
+@pytest.mark.parametrize("bits", [12, 4])
+def test_exhaustive_plan_puts_every_code_through_full_rate_and_the_stall_patterns(tmp_path: Path, bits: int) -> None:
+    from benchgen.bench.bulk_check import GAP_PATTERNS, exhaustive_plan
+
+    project = _project(tmp_path, angle_width=bits, data_width=max(bits, 4))
+    manifest = load_manifest(project)
+    fn = BulkFunction(design_from_manifest(manifest))
+    total = 1 << fn.space_bits
+    plan = exhaustive_plan(fn, bulk_layout(manifest).block)
+    # One segment per pattern: full rate, idle gaps, output stalls, both; each checked as applied.
+    assert [(s.idle, s.stall) for s in plan] == list(GAP_PATTERNS)
+    assert all(s.pattern_check for s in plan)
+    # Only the full-rate share is timed against the manifest's latency and rate.
+    assert [s.timed for s in plan] == [not (i or st) for i, st in GAP_PATTERNS]
+    shares = [_codes(fn, list(s.blocks())) for s in plan]
+    if bits == 12:
+        # Every code exactly once, and each pattern's share spread over the whole space.
+        assert sorted(c for share in shares for c in share) == list(range(total))
+        for share in shares:
+            assert min(share) < total // 4 and max(share) >= 3 * total // 4
+    else:
+        from benchgen.bench.bulk_check import EXHAUSTIVE_MIN_CHUNK
+
+        # Too small to share out: every code under every pattern, often enough to show it.
+        for share in shares:
+            assert set(share) == set(range(total)) and len(share) >= EXHAUSTIVE_MIN_CHUNK
+
+
+def _drop_when_stalled(project: Path, core: str) -> None:
+    """Mutate the output buffer: an arriving sample overwrites the one held for a stalled consumer
+    (and a stalled output register empties), so samples are lost only when out_ready is low."""
+    rtl = project / "rtl" / f"{core}.v"
+    text = rtl.read_text()
+    good = "wire take_to_out = ready_reg & out_free;"
+    assert text.count(good) == 1
+    rtl.write_text(text.replace(good, "wire take_to_out = ready_reg;"))
+
+
+@pytest.mark.sim
+@pytest.mark.parametrize("simulator", ["verilator", "icarus"])
+def test_exhaustive_run_fails_a_core_that_loses_samples_when_stalled(
+    sincos12: Path, tmp_path: Path, simulator: str
+) -> None:
+    import re
+    import shutil
+
+    from benchgen.cli import main
+
+    require_simulator(simulator)
+    if simulator == "verilator":
+        # The unmutated core passes (its runner build is shared with the module's other tests).
+        assert main(["sim", str(sincos12), "--simulator", simulator, "--exhaustive", "--seed", "5"]) == 0
+    mutated = tmp_path / "mutated"
+    shutil.copytree(sincos12, mutated, ignore=shutil.ignore_patterns("build"))
+    _drop_when_stalled(mutated, "bulk_core")
+    out = tmp_path / "report.json"
+    status = main(["sim", str(mutated), "--simulator", simulator, "--exhaustive", "--seed", "5", "--json", str(out)])
+    assert status == 1
+    report = json.loads(out.read_text())
+    (record,) = report["per_test"]
+    assert record["test"] == "bulk_exhaustive" and record["mismatches"] > 0
+    # The lost samples are named: blocks under stalls that gave back fewer samples than went in.
+    counts = [re.search(r"(\d+) of (\d+) samples went in and (\d+) came out", p) for p in record["problems"]]
+    lost = [m for m in counts if m and int(m.group(3)) < int(m.group(1))]
+    assert lost and all("stall" in p for p in record["problems"] if "came out" in p)
+

@@ -35,6 +35,7 @@ from benchgen.model import evaluate_function, to_signed
 __all__ = [
     "DEFAULT_SAMPLES",
     "EXHAUSTIVE_MAX_BITS",
+    "EXHAUSTIVE_MIN_CHUNK",
     "FAULT_ENV",
     "GAP_PATTERNS",
     "SAMPLES_ENV",
@@ -68,7 +69,16 @@ TABLE_MAX_BITS = 20
 per sample then replaces the model's per-sample arithmetic, with the same bit-true answers."""
 
 GAP_PATTERNS = ((0.0, 0.0), (0.5, 0.0), (0.0, 0.5), (0.3, 0.7))
-"""(idle probability, stall probability) of the four segments of the gaps-and-stalls test."""
+"""(idle probability, stall probability) of the four segments of the gaps-and-stalls test, and of
+the exhaustive test's four shares of the input space (the first one at full rate)."""
+
+EXHAUSTIVE_MIN_CHUNK = 256
+"""Fewest samples in one exhaustive chunk. The input space is cut into chunks dealt to the four
+patterns in turn. A chunk this long gives a pattern hundreds of clocks to apply its idle and
+stall clocks, so the check that it did cannot fail by chance (at 0.3 the odds of no idle clock
+in 256 are below 10^-39). A space of fewer than four chunks runs whole under every pattern,
+repeated up to this many samples."""
+
 
 LEVEL_ONE = 1 << 16
 """A probability p is handed to the harness as the 16-bit level p * 65536."""
@@ -200,6 +210,9 @@ class Segment:
         blocks: Makes the stimulus blocks (tags not yet added), on demand.
         idle / stall: Probabilities of an idle source clock / a stalled consumer clock.
         pattern_check: Whether the test checks that the pattern was applied.
+        timed: Whether the segment's latency and input spacing count in the test's timing
+            figures (the exhaustive test times only its full-rate share, which the manifest's
+            latency and rate are checked against).
     """
 
     label: str
@@ -207,6 +220,7 @@ class Segment:
     idle: float = 0.0
     stall: float = 0.0
     pattern_check: bool = False
+    timed: bool = True
 
 
 def _blocks(make: Callable[[int, int], Inputs], total: int, block: int) -> Callable[[], Iterator[Inputs]]:
@@ -249,9 +263,49 @@ def gaps_plan(fn: BulkFunction, rng: np.random.Generator, samples: int, block: i
     ]
 
 
+def _chunks(make: Callable[[int, int], Inputs], starts: range, chunk: int) -> Callable[[], Iterator[Inputs]]:
+    def gen() -> Iterator[Inputs]:
+        for start in starts:
+            yield make(start, chunk)
+
+    return gen
+
+
 def exhaustive_plan(fn: BulkFunction, block: int) -> list[Segment]:
-    """``bulk_exhaustive``: every input code once, in order, at full rate."""
-    return [Segment("", _blocks(fn.enumerate, 1 << fn.space_bits, block))]
+    """``bulk_exhaustive``: every input code, a share of them under each of :data:`GAP_PATTERNS`.
+
+    A core that loses, repeats or reorders samples only when its consumer stalls (or its source
+    idles) passes a run at full rate, so the space is cut into chunks of at least
+    :data:`EXHAUSTIVE_MIN_CHUNK` codes dealt to the four patterns in turn: every code is checked
+    once, a quarter of them at full rate (the latency and input spacing measured against the
+    manifest) and the rest under idle gaps, output stalls, or both, spread over the whole space.
+    A space too small for four chunks runs whole under every pattern, repeated up to
+    :data:`EXHAUSTIVE_MIN_CHUNK` samples, so each pattern has the clocks to show itself.
+    """
+    total = 1 << fn.space_bits
+    if total < len(GAP_PATTERNS) * EXHAUSTIVE_MIN_CHUNK:
+        count = total * -(-EXHAUSTIVE_MIN_CHUNK // total)
+
+        def cycled(start: int, n: int) -> Inputs:
+            return fn._split(np.arange(start, start + n, dtype=np.int64) % total)
+
+        shares = [_blocks(cycled, count, block) for _ in GAP_PATTERNS]
+    else:
+        # Sixteen chunks or more, so each pattern's share spans the whole space.
+        chunk = max(EXHAUSTIVE_MIN_CHUNK, min(block, total // (4 * len(GAP_PATTERNS))))
+        step = len(GAP_PATTERNS) * chunk
+        shares = [_chunks(fn.enumerate, range(k * chunk, total, step), chunk) for k in range(len(GAP_PATTERNS))]
+    return [
+        Segment(
+            f"pattern {k} (idle {idle}, stall {stall}): ",
+            share,
+            idle=idle,
+            stall=stall,
+            pattern_check=True,
+            timed=not (idle or stall),
+        )
+        for k, ((idle, stall), share) in enumerate(zip(GAP_PATTERNS, shares, strict=True))
+    ]
 
 
 @dataclass
@@ -333,8 +387,13 @@ class Tally:
         return res
 
 
-def check_block(tally: Tally, fn: BulkFunction, stim: Inputs, block: Block, where: str, in_bytes: int) -> None:
-    """Counts of one block, then its samples against the model and the ideal."""
+def check_block(
+    tally: Tally, fn: BulkFunction, stim: Inputs, block: Block, where: str, in_bytes: int, *, timed: bool = True
+) -> None:
+    """Counts of one block, then its samples against the model and the ideal.
+
+    ``timed``: whether the block's latency and input spacing count in the test's timing figures.
+    """
     n = len(next(iter(stim.values())))
     res = tally.result
     if block.loaded_bytes != n * in_bytes:
@@ -352,7 +411,8 @@ def check_block(tally: Tally, fn: BulkFunction, stim: Inputs, block: Block, wher
     if "in_tag" in stim:
         expected["out_tag"] = inputs["in_tag"]
     tally.add(tally.offered, inputs, got, expected, fn.errors(inputs, got, ideal))
-    tally.timing(block)
+    if timed:
+        tally.timing(block)
     tally.offered += n
 
 

@@ -317,7 +317,7 @@ class _NativeBench:
                 block = session.reply(signed)
                 seen[k].append(block)
                 where = f"{test.plan[k].label}samples {tally.offered}..{tally.offered + n - 1}"
-                check_block(tally, self.function, stim, block, where, self.layout.in_bytes)
+                check_block(tally, self.function, stim, block, where, self.layout.in_bytes, timed=test.plan[k].timed)
         except _RunnerGone as exc:
             session.broken = True
             tally.result.problems.append(f"{exc} (seed {self.seed}); see {self.log}")
