@@ -37,6 +37,8 @@ class CheckResult:
         first_mismatches: The first few mismatching samples.
         latency_cycles: (min, max) latency seen, or None.
         cycles_per_sample: Measured input spacing at full rate, or None.
+        extra: Further fields of the record, added after the ones above (the bulk bench puts
+            its per-port error statistics here).
     """
 
     test: str
@@ -50,6 +52,7 @@ class CheckResult:
     first_mismatches: list[dict[str, Any]] = field(default_factory=list)
     latency_cycles: tuple[int, int] | None = None
     cycles_per_sample: float | None = None
+    extra: dict[str, Any] = field(default_factory=dict)
 
     def as_dict(self) -> dict[str, Any]:
         """JSON-friendly form."""
@@ -65,6 +68,7 @@ class CheckResult:
             "first_mismatches": self.first_mismatches,
             "latency_cycles": list(self.latency_cycles) if self.latency_cycles else None,
             "cycles_per_sample": self.cycles_per_sample,
+            **self.extra,
         }
 
 
