@@ -9,6 +9,7 @@ from __future__ import annotations
 import contextlib
 import json
 import os
+import shutil
 import sys
 import time
 from collections.abc import Iterator
@@ -236,7 +237,9 @@ def run_sim(
     if native:
         report.mode = "bulk, exhaustive" if exhaustive else "bulk"
         report.engine = "C++ runner"
-        _run_native(report, project, manifest, design, info, build, samples, exhaustive, results_jsonl)
+        csv_out = csv_tmp if csv_path else None
+        _run_native(report, project, manifest, design, info, build, samples, exhaustive, results_jsonl, csv_out)
+        _copy_csv(csv_tmp, csv_path)
         return report
     sources = [project / rel for rel in manifest["files"]["rtl"]]
     build_args: list[str] = []
@@ -303,9 +306,16 @@ def run_sim(
             f"{tests - len(per_test)} test(s) ended before reporting (an exception or timeout); see {log_file}"
         )
     report.passed = tests > 0 and failed == 0 and report.mismatches == 0 and not report.problems
-    if csv_path and csv_tmp.is_file():
-        Path(csv_path).write_text(csv_tmp.read_text())
+    _copy_csv(csv_tmp, csv_path)
     return report
+
+
+def _copy_csv(written: Path, wanted: str | Path | None) -> None:
+    # Copied in chunks, then the build folder's copy dropped: a bulk run's CSV can be far larger
+    # than memory, and two copies of it needlessly fill a disk.
+    if wanted and written.is_file():
+        shutil.copyfile(written, wanted)
+        written.unlink()
 
 
 def _run_native(
@@ -318,13 +328,14 @@ def _run_native(
     samples: int,
     exhaustive: bool,
     results_jsonl: Path,
+    csv: Path | None,
 ) -> None:
     from benchgen.bench.bulk_native import run_native
 
     run = run_native(
         project, manifest, design, info, build,
         samples=samples, seed=report.seed, exhaustive=exhaustive, results=results_jsonl,
-        log_file=Path(report.log_file),
+        log_file=Path(report.log_file), csv=csv,
     )  # fmt: skip
     report.build_seconds = run.build.seconds
     report.sim_seconds = run.seconds

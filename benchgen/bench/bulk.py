@@ -16,7 +16,8 @@ Results go to the same JSON-lines records as the per-clock bench
 (:func:`benchgen.bench.scoreboard.record`), so ``benchgen sim`` pools them the same way.
 
 Environment (set by ``benchgen sim``): ``BENCHGEN_SAMPLES`` (random samples),
-``BENCHGEN_RESULTS`` (JSON-lines results), ``BENCHGEN_BULK_FAULT`` (bench self-test only:
+``BENCHGEN_RESULTS`` (JSON-lines results), ``BENCHGEN_CSV`` (one row per sample, appended
+block by block), ``BENCHGEN_BULK_FAULT`` (bench self-test only:
 ``SAMPLE:PORT:BIT`` flips one result bit of one sample in the harness). The seed is cocotb's.
 """
 
@@ -55,7 +56,7 @@ from benchgen.bench.bulk_check import (
     unpack,
     with_tags,
 )
-from benchgen.bench.scoreboard import CheckResult, record
+from benchgen.bench.scoreboard import CSV_ENV, CheckResult, record
 from benchgen.design import Design
 from benchgen.harness import bulk_layout
 from benchgen.project import design_from_manifest, load_manifest
@@ -186,7 +187,9 @@ class BulkBench:
             gc.enable()
 
     def tally(self, name: str) -> Tally:
-        return Tally(CheckResult(test=name), self.seed, self.design.spec.max_error_lsb)
+        """An empty tally for one test; every sample also goes to the CSV when one is asked for."""
+        csv = os.environ.get(CSV_ENV)
+        return Tally(CheckResult(test=name), self.seed, self.design.spec.max_error_lsb, csv=Path(csv) if csv else None)
 
     def prepare(self, total: int) -> None:
         """Tabulate the model when the input space is small against the samples to check."""

@@ -14,12 +14,13 @@ from __future__ import annotations
 
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
+from pathlib import Path
 from typing import Any
 
 import numpy as np
 import numpy.typing as npt
 
-from benchgen.bench.scoreboard import FIRST_MISMATCHES, CheckResult
+from benchgen.bench.scoreboard import FIRST_MISMATCHES, CheckResult, write_csv_rows
 from benchgen.design import Design
 from benchgen.functions import (
     corner_inputs,
@@ -420,7 +421,8 @@ class Tally:
     Each block is compared as it arrives and dropped: the tally keeps counts, the error statistics
     of each port (:class:`ErrorStats`), the first :data:`FIRST_MISMATCHES` mismatches and the first
     :data:`FIRST_COUNT_PROBLEMS` blocks whose counts were wrong, so its memory is the same after a
-    thousand samples or a trillion.
+    thousand samples or a trillion. With ``csv`` set, every sample is appended to that file as its
+    block is checked (the only per-sample output, and it goes to disk).
     """
 
     result: CheckResult
@@ -434,6 +436,7 @@ class Tally:
     """Samples offered so far: the global number of the next block's first sample."""
     count_problems: int = 0
     """Blocks whose sample or byte counts were wrong."""
+    csv: Path | None = None
 
     def add(self, offset: int, inputs: Inputs, got: Inputs, expected: Inputs, errors: dict[str, Any]) -> None:
         """Compare one block bit for bit, and its errors (NaN: not judged) against the budget."""
@@ -529,6 +532,12 @@ def check_block(
     if "in_tag" in stim:
         expected["out_tag"] = inputs["in_tag"]
     tally.add(tally.offered, inputs, got, expected, fn.errors(inputs, got, ideal))
+    if tally.csv is not None:
+        columns: dict[str, npt.NDArray[Any]] = {p: inputs[p] for p in fn.inputs}
+        columns.update({p: got[p] for p in fn.outputs})
+        columns.update({f"model_{p}": expected[p] for p in fn.outputs})
+        columns.update({f"ideal_{p}": np.asarray(v, dtype=np.float64) for p, v in ideal.items()})
+        write_csv_rows(tally.result.test, columns, tally.csv)
     if timed:
         tally.timing(block)
     tally.offered += n

@@ -259,8 +259,10 @@ class _NativeBench:
         seed: int,
         fault: tuple[int, int] | None,
         log: Path,
+        csv: Path | None = None,
     ) -> None:
         self.log = log
+        self.csv = csv
         self.design = design
         self.layout = layout
         self.seed = seed
@@ -305,7 +307,7 @@ class _NativeBench:
             hand_over(exc)
 
     def run_test(self, session: _Session, test: _Test) -> CheckResult:
-        tally = Tally(CheckResult(test=test.name), self.seed, self.design.spec.max_error_lsb)
+        tally = Tally(CheckResult(test=test.name), self.seed, self.design.spec.max_error_lsb, csv=self.csv)
         if (1 << self.function.space_bits) <= 4 * test.prepare_total:
             self.function.tabulate()
         pending: queue.Queue[Any] = queue.Queue(maxsize=_QUEUE_BLOCKS)
@@ -366,11 +368,13 @@ def run_native(
     exhaustive: bool,
     results: Path,
     log_file: Path,
+    csv: Path | None = None,
 ) -> NativeRun:
     """Build (or reuse) the runner and run the bulk tests: full rate and gaps/stalls, or exhaustive.
 
     Each test appends one JSON line to ``results`` (the record of
-    :class:`benchgen.bench.scoreboard.CheckResult` plus ``wall_seconds``).
+    :class:`benchgen.bench.scoreboard.CheckResult` plus ``wall_seconds``). With ``csv``, every
+    sample is appended to that file, one row each, as its block is checked.
 
     Raises:
         BulkError: for a bad ``BENCHGEN_BULK_FAULT``, an input space too large for an exhaustive
@@ -381,7 +385,7 @@ def run_native(
         fault = parse_fault(os.environ.get(FAULT_ENV, ""), layout)
     except FaultError as exc:
         raise BulkError(str(exc)) from None
-    bench = _NativeBench(design, layout, seed, fault, log_file)
+    bench = _NativeBench(design, layout, seed, fault, log_file, csv)
     fn = bench.function
     if exhaustive and fn.space_bits > EXHAUSTIVE_MAX_BITS:
         raise BulkError(
