@@ -10,6 +10,7 @@ import contextlib
 import json
 import os
 import secrets
+import shutil
 import sys
 import time
 from collections.abc import Iterator
@@ -237,12 +238,12 @@ def run_sim(
         if native:
             report.mode = "bulk, exhaustive" if exhaustive else "bulk"
             report.engine = "C++ runner"
-            _run_native(report, project, manifest, design, info, build, samples, exhaustive, results_jsonl)
-            return report
-        _run_cocotb(report, project, manifest, info, build, samples, seed, waves, bulk, exhaustive,
-                    results_jsonl, results_xml, csv_tmp if csv_path else None, log_file)
-        if csv_path and csv_tmp.is_file():
-            Path(csv_path).write_text(csv_tmp.read_text())
+            csv_out = csv_tmp if csv_path else None
+            _run_native(report, project, manifest, design, info, build, samples, exhaustive, results_jsonl, csv_out)
+        else:
+            _run_cocotb(report, project, manifest, info, build, samples, seed, waves, bulk, exhaustive,
+                        results_jsonl, results_xml, csv_tmp if csv_path else None, log_file)
+        _copy_csv(csv_tmp, csv_path)
     return report
 
 
@@ -364,6 +365,14 @@ def _run_cocotb(
     report.passed = tests > 0 and failed == 0 and report.mismatches == 0 and not report.problems
 
 
+def _copy_csv(written: Path, wanted: str | Path | None) -> None:
+    # Copied in chunks, then the build folder's copy dropped: a bulk run's CSV can be far larger
+    # than memory, and two copies of it needlessly fill a disk.
+    if wanted and written.is_file():
+        shutil.copyfile(written, wanted)
+        written.unlink()
+
+
 def _run_native(
     report: SimReport,
     project: Path,
@@ -374,13 +383,14 @@ def _run_native(
     samples: int,
     exhaustive: bool,
     results_jsonl: Path,
+    csv: Path | None,
 ) -> None:
     from benchgen.bench.bulk_native import run_native
 
     run = run_native(
         project, manifest, design, info, build,
         samples=samples, seed=report.seed, exhaustive=exhaustive, results=results_jsonl,
-        log_file=Path(report.log_file),
+        log_file=Path(report.log_file), csv=csv,
     )  # fmt: skip
     report.build_seconds = run.build.seconds
     report.sim_seconds = run.seconds
