@@ -123,7 +123,8 @@ def _add_sim_options(p: argparse.ArgumentParser, default_sim: str | None) -> Non
     p.add_argument(
         "--exhaustive",
         action="store_true",
-        help="check every input code once (bulk bench; input spaces up to 2^24 codes)",
+        help="check every input code once, a quarter at full rate and the rest under idle gaps and "
+        "output stalls (bulk bench; input spaces up to 2^24 codes)",
     )
     p.add_argument(
         "--bulk-engine",

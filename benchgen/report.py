@@ -21,6 +21,7 @@ from pathlib import Path
 from typing import Any
 
 from benchgen.errors import BenchgenError
+from benchgen.sweep_records import RecordError, read_result, read_sweep_file
 
 __all__ = [
     "ESTIMATE_NOTE",
@@ -69,8 +70,9 @@ class ReportData:
         rows: One per point, in sweep order (deterministic values only).
         timing: Per task wall times and cache hits (not in the deterministic outputs).
         axes: Fields the sweep varies.
-        missing: Task ids with no result.
+        missing: Task ids with no result (a result file that was ignored counts as none).
         shard: ``(i, N)`` or ``None``.
+        ignored: One line per result file left out as invalid: the file and its fault.
     """
 
     name: str
@@ -81,6 +83,7 @@ class ReportData:
     axes: list[str]
     missing: list[str] = field(default_factory=list)
     shard: list[int] | None = None
+    ignored: list[str] = field(default_factory=list)
 
     @property
     def passed(self) -> int:
@@ -88,39 +91,47 @@ class ReportData:
         return sum(r["status"] == "passed" for r in self.rows)
 
 
-def _read(path: Path) -> Any:
-    try:
-        return json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, ValueError):
-        return None
-
-
 def collect(out_dir: str | Path) -> ReportData:
     """Gather a sweep folder's results into rows.
 
+    Every result file is checked against its schema (:mod:`benchgen.sweep_records`); one that
+    does not fit is left out, so its point shows as ``not run`` with one problem line naming the
+    file and the fault (also in :attr:`ReportData.ignored`), and the rest of the report is made.
+
     Raises:
-        ReportError: if the folder holds no sweep.
+        ReportError: if the folder holds no sweep, or its ``sweep.json`` is not a valid one.
     """
     out = Path(out_dir)
-    sweep = _read(out / "sweep.json")
-    if sweep is None:
-        raise ReportError(f"'{out}' holds no sweep.json: give a folder written by 'benchgen sweep -o'")
+    try:
+        sweep = read_sweep_file(out)
+    except FileNotFoundError:
+        raise ReportError(f"'{out}' holds no sweep.json: give a folder written by 'benchgen sweep -o'") from None
+    except RecordError as exc:
+        raise ReportError(f"{exc}; run the sweep again into a new folder") from None
     spec = sweep["spec"]
     targets = list(spec["synth"]["targets"])
-    task_ids = {t["task_id"] for t in sweep["tasks"]}
-    results = {}
-    for kind in ("sim", "synth"):
-        for tid in task_ids:
-            data = _read(out / "results" / kind / f"{tid}.json")
-            if data is not None and data.get("kind") == kind:
-                results[tid] = data
+    task_kinds = {t["task_id"]: t["kind"] for t in sweep["tasks"]}
+    task_ids = set(task_kinds)
+    results: dict[str, dict[str, Any]] = {}
+    ignored: dict[str, str] = {}
+    for tid in sorted(task_ids):
+        try:
+            data = read_result(out, task_kinds[tid], tid)
+        except RecordError as exc:
+            ignored[tid] = f"ignored {exc}"
+            continue
+        if data is not None:
+            results[tid] = data
     rows = []
     timing: dict[str, Any] = {}
     for p in sweep["points"]:
         if p["point_id"] not in task_ids:
             continue
         res = results.get(p["point_id"])
-        rows.append(_row(p, res, targets, results))
+        row = _row(p, res, targets, results, ignored)
+        if p["point_id"] in ignored:
+            row["problems"] = [ignored[p["point_id"]]]
+        rows.append(row)
         if res:
             timing[p["point_id"]] = {
                 "seconds": res.get("seconds"),
@@ -141,11 +152,12 @@ def collect(out_dir: str | Path) -> ReportData:
         axes=list(spec["matrix"]),
         missing=sorted(t for t in task_ids if t not in results),
         shard=sweep.get("shard"),
+        ignored=[ignored[t] for t in sorted(ignored)],
     )
 
 
 def _row(point: dict[str, Any], res: dict[str, Any] | None, targets: list[str],
-         results: dict[str, dict[str, Any]]) -> dict[str, Any]:
+         results: dict[str, dict[str, Any]], ignored: dict[str, str]) -> dict[str, Any]:
     core = point["core"]
     row: dict[str, Any] = {c: None for c in COLUMNS}
     row.update(point=point["label"], point_id=point["point_id"], core_id=point["core_id"],
@@ -195,7 +207,8 @@ def _row(point: dict[str, Any], res: dict[str, Any] | None, targets: list[str],
         else:
             for k in RESOURCE_KEYS:
                 row[f"{t}_{k}"] = None
-            row["estimates"][t] = {"error": (s or {}).get("error", "not run")}
+            sid = f"{point['core_id']}__{t}"
+            row["estimates"][t] = {"error": ignored[sid] if sid in ignored else (s or {}).get("error", "not run")}
     _derive(row, targets)
     return row
 

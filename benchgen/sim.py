@@ -9,6 +9,8 @@ from __future__ import annotations
 import contextlib
 import json
 import os
+import secrets
+import shutil
 import sys
 import time
 from collections.abc import Iterator
@@ -208,19 +210,18 @@ def run_sim(
     except SimulatorMissing as exc:
         raise SimError(str(exc)) from None
 
-    from cocotb_tools.check_results import get_results
-    from cocotb_tools.runner import get_runner
-
     top = manifest["toplevel"]
     folder = simulator + ("_native" if native else "_bulk" if bulk else "")
     build = Path(build_dir).resolve() if build_dir else project / "build" / folder
     build.mkdir(parents=True, exist_ok=True)
-    results_jsonl = build / "bench_results.jsonl"
-    results_xml = build / "results.xml"
+    # The bench appends one line per test to its results file. Each run gets files of its own
+    # (a fresh name), published under the usual names with os.replace when the run is over: a
+    # second run in the same folder, at once or later, can then never add its lines to this one's.
+    run_files = _RunFiles(build)
+    results_jsonl = run_files.results_jsonl
+    results_xml = run_files.results_xml
+    csv_tmp = run_files.samples_csv
     log_file = build / "sim.log"
-    csv_tmp = build / "samples.csv"
-    for stale in (results_jsonl, results_xml, csv_tmp):
-        stale.unlink(missing_ok=True)
     if seed is None:
         seed = int(time.time()) % 1_000_000
     report = SimReport(
@@ -233,11 +234,70 @@ def run_sim(
         expected_cycles_per_sample=design.timing.cycles_per_sample,
         log_file=str(log_file),
     )
-    if native:
-        report.mode = "bulk, exhaustive" if exhaustive else "bulk"
-        report.engine = "C++ runner"
-        _run_native(report, project, manifest, design, info, build, samples, exhaustive, results_jsonl)
-        return report
+    with run_files:
+        if native:
+            report.mode = "bulk, exhaustive" if exhaustive else "bulk"
+            report.engine = "C++ runner"
+            csv_out = csv_tmp if csv_path else None
+            _run_native(report, project, manifest, design, info, build, samples, exhaustive, results_jsonl, csv_out)
+        else:
+            _run_cocotb(report, project, manifest, info, build, samples, seed, waves, bulk, exhaustive,
+                        results_jsonl, results_xml, csv_tmp if csv_path else None, log_file)
+        _copy_csv(csv_tmp, csv_path)
+    return report
+
+
+class _RunFiles:
+    """The files one run's bench writes, under names no other run uses, published at the end.
+
+    Inside the ``with`` block the bench writes ``.bench_results.<run>.jsonl`` (and the results
+    XML and the sample CSV likewise); on leaving it, each is moved over its usual name
+    (``bench_results.jsonl``, ``results.xml``, ``samples.csv``) by ``os.replace``, so a reader
+    sees one whole run's file. A file the run did not write (or a run that ended in an error)
+    removes the old one of that name, which belongs to an earlier run.
+    """
+
+    NAMES = ("bench_results.jsonl", "results.xml", "samples.csv")
+
+    def __init__(self, build: Path) -> None:
+        token = f"{os.getpid()}-{secrets.token_hex(4)}"
+        self.finals = [build / n for n in self.NAMES]
+        self.tmps = [build / f".{Path(n).stem}.{token}{Path(n).suffix}" for n in self.NAMES]
+        self.results_jsonl, self.results_xml, self.samples_csv = self.tmps
+
+    def __enter__(self) -> _RunFiles:
+        return self
+
+    def __exit__(self, exc_type: object, exc: object, tb: object) -> None:
+        for tmp, final in zip(self.tmps, self.finals, strict=True):
+            if exc_type is None and tmp.is_file():
+                os.replace(tmp, final)
+            else:
+                tmp.unlink(missing_ok=True)
+                final.unlink(missing_ok=True)
+
+
+def _run_cocotb(
+    report: SimReport,
+    project: Path,
+    manifest: dict[str, Any],
+    info: Any,
+    build: Path,
+    samples: int,
+    seed: int,
+    waves: bool,
+    bulk: bool,
+    exhaustive: bool,
+    results_jsonl: Path,
+    results_xml: Path,
+    csv_tmp: Path | None,
+    log_file: Path,
+) -> None:
+    from cocotb_tools.check_results import get_results
+    from cocotb_tools.runner import get_runner
+
+    top = manifest["toplevel"]
+    simulator = report.simulator
     sources = [project / rel for rel in manifest["files"]["rtl"]]
     build_args: list[str] = []
     test_module, hdl_top, testcase = manifest["files"]["test_module"], top, None
@@ -248,7 +308,7 @@ def run_sim(
         "BENCHGEN_SAMPLES": str(samples),
         "BENCHGEN_RESULTS": str(results_jsonl),
     }
-    if csv_path:
+    if csv_tmp:
         bench_env["BENCHGEN_CSV"] = str(csv_tmp)
     with simulator_env(info), _env(bench_env), _sys_path(project / "bench"):
         runner = get_runner(simulator)
@@ -303,9 +363,14 @@ def run_sim(
             f"{tests - len(per_test)} test(s) ended before reporting (an exception or timeout); see {log_file}"
         )
     report.passed = tests > 0 and failed == 0 and report.mismatches == 0 and not report.problems
-    if csv_path and csv_tmp.is_file():
-        Path(csv_path).write_text(csv_tmp.read_text())
-    return report
+
+
+def _copy_csv(written: Path, wanted: str | Path | None) -> None:
+    # Copied in chunks, then the build folder's copy dropped: a bulk run's CSV can be far larger
+    # than memory, and two copies of it needlessly fill a disk.
+    if wanted and written.is_file():
+        shutil.copyfile(written, wanted)
+        written.unlink()
 
 
 def _run_native(
@@ -318,13 +383,14 @@ def _run_native(
     samples: int,
     exhaustive: bool,
     results_jsonl: Path,
+    csv: Path | None,
 ) -> None:
     from benchgen.bench.bulk_native import run_native
 
     run = run_native(
         project, manifest, design, info, build,
         samples=samples, seed=report.seed, exhaustive=exhaustive, results=results_jsonl,
-        log_file=Path(report.log_file),
+        log_file=Path(report.log_file), csv=csv,
     )  # fmt: skip
     report.build_seconds = run.build.seconds
     report.sim_seconds = run.seconds

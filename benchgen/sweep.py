@@ -15,6 +15,11 @@ Two stores make re-runs cheap, for different reasons:
   the bench code (or, for estimates, the tool versions and device). A new output folder, another
   sweep that contains the same core, or a benchgen change that leaves the Verilog alone all hit it.
 
+One sweep at a time writes an output folder (:func:`lock_folder`); a second is refused at once.
+Everything read back (cache entries, ``OUT/results``) must fit the schemas of
+:mod:`benchgen.sweep_records`: a bad cache entry is a miss and is rewritten, a bad result file is
+run again. Files are written whole or not at all (a private temporary file, then ``os.replace``).
+
 Engines: a local process pool (``--jobs``, default the CPU count; ``--jobs 1`` runs in this
 process), or a Dask ``distributed`` cluster (``--cluster ADDRESS``, or ``--cluster local`` to start
 a ``LocalCluster`` with ``--jobs`` workers). Workers need benchgen and the simulators installed; the
@@ -23,12 +28,15 @@ results travel back to this process, which alone writes ``OUT``.
 
 from __future__ import annotations
 
+import ast
 import concurrent.futures as cf
+import contextlib
 import hashlib
 import json
 import multiprocessing
 import os
 import shutil
+import tempfile
 import time
 from collections.abc import Callable, Iterable, Iterator
 from dataclasses import asdict, dataclass, field
@@ -38,6 +46,16 @@ from typing import Any, TextIO
 
 from benchgen import __version__
 from benchgen.errors import BenchgenError
+from benchgen.sweep_records import (
+    RESULTS_DIR,
+    SWEEP_FILE,
+    RecordError,
+    check_cache_entry,
+    check_result,
+    read_json_record,
+    read_result,
+    read_sweep_file,
+)
 from benchgen.sweep_config import (
     Point,
     SweepError,
@@ -49,10 +67,13 @@ from benchgen.sweep_config import (
 )
 
 __all__ = [
+    "SweepBusy",
     "SweepOutcome",
     "Task",
     "default_cache_dir",
     "execute_task",
+    "import_closure",
+    "lock_folder",
     "make_tasks",
     "merge_shards",
     "parse_shard",
@@ -61,9 +82,8 @@ __all__ = [
 ]
 
 CACHE_ENV = "BENCHGEN_CACHE_DIR"
-SWEEP_FILE = "sweep.json"
-RESULTS_DIR = "results"
 WORK_DIR = "work"
+LOCK_FILE = ".benchgen.lock"
 FIRST_MISMATCHES = 8
 
 
@@ -79,12 +99,81 @@ def _sha(data: bytes | str) -> str:
     return hashlib.sha256(data.encode() if isinstance(data, str) else data).hexdigest()
 
 
-def _files_digest(paths: Iterable[Path]) -> str:
+def _files_digest(root: Path, paths: Iterable[Path]) -> str:
     h = hashlib.sha256()
     for p in sorted(paths):
-        h.update(p.name.encode())
+        # The path inside the tree, not the bare name: bench/__init__.py is not __init__.py.
+        h.update(p.relative_to(root).as_posix().encode() if p.is_relative_to(root) else p.name.encode())
+        h.update(b"\0")
         h.update(p.read_bytes())
     return h.hexdigest()
+
+
+#: Where the code that decides a simulation's verdict starts: the runner, and every bench module
+#: (the generated bench imports them inside the simulator).
+BENCH_ROOTS = ("benchgen.sim", "benchgen.bench.*")
+#: A task's result also depends on project generation and the estimate flow.
+TASK_ROOTS = (*BENCH_ROOTS, "benchgen.project", "benchgen.synth")
+
+
+def _module_file(pkg: Path, name: str) -> Path | None:
+    """The file of module ``name`` (``benchgen.x.y``) in the package folder ``pkg``, if it is there."""
+    parts = name.split(".")
+    if parts[0] != pkg.name:
+        return None
+    base = pkg.joinpath(*parts[1:])
+    for candidate in (base.with_suffix(".py"), base / "__init__.py"):
+        if candidate.is_file():
+            return candidate
+    return None
+
+
+def _module_name(pkg: Path, path: Path) -> str:
+    rel = path.relative_to(pkg.parent).with_suffix("")
+    parts = list(rel.parts)
+    if parts[-1] == "__init__":
+        parts.pop()
+    return ".".join(parts)
+
+
+def import_closure(pkg: Path, roots: Iterable[str]) -> set[Path]:
+    """Every module file of the package ``pkg`` that the ``roots`` import, directly or not.
+
+    Imports are read from the source (``import`` and ``from ... import`` anywhere, function
+    bodies included, since benchgen imports lazily), so the set is exact for a static import
+    graph; benchgen has no dynamic imports. A root ending in ``.*`` stands for every module of
+    that subpackage. The packages that hold a module (their ``__init__.py``) run on import, so
+    they count too.
+    """
+    todo: list[str] = []
+    for root in roots:
+        if root.endswith(".*"):
+            sub = pkg.joinpath(*root[:-2].split(".")[1:])
+            todo += [_module_name(pkg, p) for p in sorted(sub.glob("*.py"))]
+        else:
+            todo.append(root)
+    seen: set[Path] = set()
+    while todo:
+        name = todo.pop()
+        parts = name.split(".")
+        for k in range(1, len(parts) + 1):
+            path = _module_file(pkg, ".".join(parts[:k]))
+            if path is None or path in seen:
+                continue
+            seen.add(path)
+            tree = ast.parse(path.read_bytes(), filename=str(path))
+            here = _module_name(pkg, path).split(".")
+            package = here if path.name == "__init__.py" else here[:-1]
+            for node in ast.walk(tree):
+                if isinstance(node, ast.Import):
+                    todo += [a.name for a in node.names]
+                elif isinstance(node, ast.ImportFrom):
+                    mod = node.module or ""
+                    if node.level:  # relative: counted from this module's package
+                        mod = ".".join([*package[: len(package) - node.level + 1], *([mod] if mod else [])])
+                    todo.append(mod)
+                    todo += [f"{mod}.{a.name}" for a in node.names]  # from pkg import submodule
+    return seen
 
 
 _FINGERPRINTS: dict[str, str] = {}
@@ -93,21 +182,21 @@ _FINGERPRINTS: dict[str, str] = {}
 def code_fingerprint(kind: str) -> str:
     """Hash of the benchgen code a task's result depends on.
 
-    ``all``: every module and template except the report, sweep and CLI fronts (they do not
-    change a result), for the resume key. ``bench``: the bench, runner, model and reference, for
-    the simulation cache key (the generated sources cover the rest).
+    ``bench``: every benchgen module the simulation runner and the bench import (the judging in
+    functions.py, the model, the reference, ...), found by :func:`import_closure` so that no
+    module can be left out of a hand-kept list; part of the simulation cache key. ``all``: the
+    same closure from the task's other steps too (project generation, estimates), for the resume
+    key. Both add the templates (the bulk harness and the native runner are rendered at run
+    time). The report, sweep and CLI fronts are not in either closure: they do not change a result.
     """
     if kind not in _FINGERPRINTS:
-        pkg = Path(str(resources.files("benchgen")))
-        if kind == "bench":
-            files = [*pkg.glob("bench/*.py"), *(pkg / n for n in ("sim.py", "model.py", "reference.py"))]
-        else:
-            skip = ("report", "sweep", "cli", "spectrum")
-            files = [p for p in pkg.rglob("*.py") if not p.name.startswith(skip)]
-            from benchgen.rtl import template_dir
+        from benchgen.rtl import template_dir
 
-            files += list(template_dir().glob("*.j2"))
-        _FINGERPRINTS[kind] = _files_digest(p for p in files if p.is_file())[:16]
+        pkg = Path(str(resources.files("benchgen")))
+        files = import_closure(pkg, BENCH_ROOTS if kind == "bench" else TASK_ROOTS)
+        templates = template_dir()
+        digest = _sha(_files_digest(pkg, files) + _files_digest(templates, templates.glob("*.j2")))
+        _FINGERPRINTS[kind] = digest[:16]
     return _FINGERPRINTS[kind]
 
 
@@ -209,16 +298,32 @@ def _toml_value(value: Any) -> str:
 
 
 def _write_json(path: Path, data: Any) -> None:
+    """Write ``data`` so that a reader sees the old file or the whole new one, never a part.
+
+    The text goes to a temporary file of its own in the same folder (a unique name, so two
+    processes or threads writing one key never share it), then ``os.replace`` swaps it in. Two
+    writers of the same cache key both write a whole entry; the last one stays.
+    """
     path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
-    tmp.write_text(json.dumps(data, indent=1, sort_keys=True) + "\n", encoding="utf-8")
-    os.replace(tmp, path)  # readers never see half a file, and an interrupt leaves none
-
-
-def _read_json(path: Path) -> Any:
+    text = json.dumps(data, indent=1, sort_keys=True) + "\n"
+    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
     try:
-        return json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, ValueError):
+        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            fh.write(text)
+        os.replace(tmp, path)
+    except BaseException:
+        with contextlib.suppress(OSError):
+            os.unlink(tmp)  # an interrupt or a full disk leaves no stray temporary file
+        raise
+
+
+def _read_cache(path: Path | None, kind: str) -> dict[str, Any] | None:
+    """A cache entry that fits its schema, else ``None``: a bad entry is a miss, and is rewritten."""
+    if path is None:
+        return None
+    try:
+        return check_cache_entry(read_json_record(path), kind)
+    except (FileNotFoundError, RecordError):
         return None
 
 
@@ -280,7 +385,8 @@ def _run_sim_task(task: Task, folder: Path, cache: Path | None) -> dict[str, Any
     cache_key = _sha(json.dumps([source, task.simulator, version, task.samples, task.seed,
                                  code_fingerprint("bench")]))
     cache_file = cache / "sim" / f"{cache_key[:32]}.json" if cache else None
-    if cache_file and (hit := _read_json(cache_file)) is not None:
+    hit = _read_cache(cache_file, "sim")
+    if hit is not None and hit["source_hash"] == source[:16] and hit["sim"]["simulator"] == task.simulator:
         return {**hit, "design": design, "cached": True}
     report = run_sim(project, simulator=task.simulator, samples=task.samples, seed=task.seed,
                      build_dir=folder / "build").as_dict()
@@ -292,9 +398,19 @@ def _run_sim_task(task: Task, folder: Path, cache: Path | None) -> dict[str, Any
         "sim": report,
         "first_mismatches": mismatches,
     }
-    if cache_file:
-        _write_json(cache_file, result)
+    _write_cache(cache_file, "sim", result)
     return {**result, "design": design, "cached": False}
+
+
+def _write_cache(path: Path | None, kind: str, entry: dict[str, Any]) -> None:
+    """Store an entry only if it fits the schema a later read will hold it to."""
+    if path is None:
+        return
+    try:
+        check_cache_entry(entry, kind)
+    except RecordError:
+        return  # never cache what would be refused; the sweep reports the bad result itself
+    _write_json(path, entry)
 
 
 def _run_synth_task(task: Task, folder: Path, cache: Path | None) -> dict[str, Any]:
@@ -309,13 +425,13 @@ def _run_synth_task(task: Task, folder: Path, cache: Path | None) -> dict[str, A
     cache_key = _sha(json.dumps([source, design["toplevel"], task.target, device.synth_command, device.pnr_args,
                                  settings.place_and_route, settings.clock_mhz, tools]))
     cache_file = cache / "synth" / f"{cache_key[:32]}.json" if cache else None
-    if cache_file and (hit := _read_json(cache_file)) is not None:
+    hit = _read_cache(cache_file, "synth")
+    if hit is not None and hit["source_hash"] == source[:16] and hit["estimate"]["target"] == task.target:
         return {**hit, "design": design, "cached": True}
     est = estimate([project / r for r in design["rtl"]], design["toplevel"], task.target, folder / "synth",
                    place_and_route=settings.place_and_route, clock_mhz=settings.clock_mhz)
     result = {"status": "ok", "source_hash": source[:16], "estimate": est.as_dict()}
-    if cache_file:
-        _write_json(cache_file, result)
+    _write_cache(cache_file, "synth", result)
     return {**result, "design": design, "cached": False}
 
 
@@ -346,28 +462,29 @@ def execute_task(task: Task, work_root: str, cache_dir: str | None) -> dict[str,
 
 
 Runner = Callable[[Task, str, "str | None"], dict[str, Any]]
+Done = Iterator[tuple[Task, Any]]  # each task with what its runner returned, as they finish
 
 
-def _serial(tasks: list[Task], fn: Runner, work: str, cache: str | None) -> Iterator[dict[str, Any]]:
+def _serial(tasks: list[Task], fn: Runner, work: str, cache: str | None) -> Done:
     for t in tasks:
-        yield fn(t, work, cache)
+        yield t, fn(t, work, cache)
 
 
-def _pool(tasks: list[Task], fn: Runner, work: str, cache: str | None, jobs: int) -> Iterator[dict[str, Any]]:
+def _pool(tasks: list[Task], fn: Runner, work: str, cache: str | None, jobs: int) -> Done:
     # spawn, not fork: the parent may hold threads (progress output, Dask), and a forked child
     # of a threaded parent can deadlock.
     ctx = multiprocessing.get_context("spawn")
     pool = cf.ProcessPoolExecutor(max_workers=jobs, mp_context=ctx)
     try:
-        futures = [pool.submit(fn, t, work, cache) for t in tasks]
+        futures = {pool.submit(fn, t, work, cache): t for t in tasks}
         for fut in cf.as_completed(futures):
-            yield fut.result()
+            yield futures[fut], fut.result()
     finally:
         pool.shutdown(wait=False, cancel_futures=True)
 
 
 def _dask(tasks: list[Task], fn: Runner, work: str, cache: str | None, address: str,
-          jobs: int) -> Iterator[dict[str, Any]]:
+          jobs: int) -> Done:
     try:
         from distributed import Client, LocalCluster, as_completed
     except ImportError:
@@ -384,10 +501,10 @@ def _dask(tasks: list[Task], fn: Runner, work: str, cache: str | None, address: 
                                    "Fix: give the scheduler's tcp://host:port, or --cluster local")]) from None
     try:
         # pure=False: two identical tasks in two sweeps must both run (the cache dedups them).
-        futures = [client.submit(fn, t, work, cache, pure=False, key=f"benchgen-{t.task_id}-{os.getpid()}")
-                   for t in tasks]
-        for fut in as_completed(futures):
-            yield fut.result()
+        futures = {client.submit(fn, t, work, cache, pure=False, key=f"benchgen-{t.task_id}-{os.getpid()}"): t
+                   for t in tasks}
+        for fut in as_completed(list(futures)):
+            yield futures[fut], fut.result()
     finally:
         client.close()
         if cluster is not None:
@@ -481,14 +598,87 @@ class SweepOutcome:
         return 1 if self.failed else 0
 
 
-def load_results(out_dir: Path, tasks: list[Task]) -> dict[str, dict[str, Any]]:
-    """Results already in ``out_dir`` that are still valid for these tasks (resume)."""
+class SweepBusy(BenchgenError):
+    """The output folder is held by another running sweep (or cannot be locked at all)."""
+
+    exit_status = 2
+
+
+def _lock_holder(path: Path) -> str:
+    try:
+        text = path.read_text(encoding="utf-8", errors="replace").strip()
+    except OSError:
+        text = ""
+    return text if text.isdigit() else "unknown"
+
+
+@contextlib.contextmanager
+def lock_folder(folder: Path, *, fix: str = "wait for it or choose another -o") -> Iterator[None]:
+    """Hold ``folder`` for one sweep (or report) for the whole block; refuse at once if it is held.
+
+    The lock is an advisory ``flock`` on ``folder/.benchgen.lock``, which also names the pid of
+    the holder. The kernel drops the lock when its process ends in any way (Ctrl-C, SIGKILL, a
+    crash), so a killed run never leaves a stale lock behind. The file itself is left in place:
+    removing it would let two later runs lock two different files.
+
+    Raises:
+        SweepBusy: if another process holds the folder.
+    """
+    import fcntl  # POSIX only; benchgen's simulators and CI run on Linux and macOS
+
+    path = folder / LOCK_FILE
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+        fd = os.open(path, os.O_RDWR | os.O_CREAT, 0o644)
+    except OSError as exc:
+        raise SweepBusy(f"cannot lock output folder '{folder}' ({exc.strerror or exc}); "
+                        "give a folder you can write to with -o") from None
+    try:
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except BlockingIOError:
+            raise SweepBusy(
+                f"output folder '{folder}' is in use by another sweep (pid {_lock_holder(path)}); {fix}"
+            ) from None
+        os.ftruncate(fd, 0)
+        os.write(fd, f"{os.getpid()}\n".encode())
+        yield
+    finally:
+        os.close(fd)  # closing the descriptor releases the lock
+
+
+def load_results(out_dir: Path, tasks: list[Task],
+                 notes: Callable[[str], None] | None = None) -> dict[str, dict[str, Any]]:
+    """Results already in ``out_dir`` that are still valid for these tasks (resume).
+
+    A result file that does not fit its schema is ignored (its task runs again and the file is
+    rewritten); ``notes`` is told so in one line naming the file and the fault.
+    """
     found: dict[str, dict[str, Any]] = {}
     for t in tasks:
-        data = _read_json(out_dir / RESULTS_DIR / t.kind / f"{t.task_id}.json")
-        if data and data.get("key") == t.key and data.get("status") != "error":
+        try:
+            data = read_result(out_dir, t.kind, t.task_id)
+        except RecordError as exc:
+            if notes:
+                notes(f"ignored {exc}; running {t.label} again")
+            continue
+        if data and data["key"] == t.key and data["status"] != "error":
             found[t.task_id] = data
     return found
+
+
+def _checked_result(task: Task, result: Any) -> dict[str, Any]:
+    """A task's result as it will be saved; one that does not fit the schema becomes an error."""
+    try:
+        data = check_result(result, task.kind)
+        if (data["task_id"], data["key"]) != (task.task_id, task.key):
+            raise RecordError(f"it names task {data['task_id']!r} with key {data['key']!r}")
+        return data
+    except RecordError as exc:
+        seconds = result.get("seconds") if isinstance(result, dict) else None
+        return {"kind": task.kind, "task_id": task.task_id, "key": task.key, "label": task.label,
+                "seconds": seconds if isinstance(seconds, float) and seconds >= 0 else 0.0,
+                "status": "error", "error": f"the task returned an invalid result ({exc})"}
 
 
 def write_sweep_file(out_dir: Path, spec: SweepSpec, points: list[Point], tasks: list[Task],
@@ -518,6 +708,7 @@ def run_sweep(
     formats: Iterable[str] = ("table", "json", "csv", "md", "html", "junit"),
     on_result: Callable[[dict[str, Any]], None] | None = None,
     runner: Runner | None = None,
+    notes: TextIO | None = None,
 ) -> SweepOutcome:
     """Validate, run and report a sweep.
 
@@ -533,9 +724,14 @@ def run_sweep(
         formats: Report outputs to write.
         on_result: Called with each new result after it is saved.
         runner: Replaces :func:`execute_task` (tests run without simulators this way).
+        notes: Stream for one-line notes (a result file ignored as invalid); ``None``: silent.
+
+    A result that does not fit its schema (:mod:`benchgen.sweep_records`) is saved as an
+    ``error`` result naming the fault, so it is retried on the next run.
 
     Raises:
         SweepError: if any point is invalid (nothing runs then).
+        SweepBusy: if another sweep is writing to ``out_dir`` (nothing runs then).
         KeyboardInterrupt: if interrupted; the results so far are saved and resume on the next run.
     """
     from benchgen.report import write_reports
@@ -546,49 +742,58 @@ def run_sweep(
     out = Path(out_dir).resolve()
     if out.exists() and not out.is_dir():
         raise SweepError("", [f"output '{out}' is a file: give a folder with -o"])
-    if out.is_dir() and any(out.iterdir()) and not (out / SWEEP_FILE).is_file():
+    if out.is_dir() and any(p.name != LOCK_FILE for p in out.iterdir()) and not (out / SWEEP_FILE).is_file():
         raise SweepError("", [f"output folder '{out}' is not empty and holds no sweep; choose a new folder with -o"])
-    out.mkdir(parents=True, exist_ok=True)
-    write_sweep_file(out, spec, points, tasks, shard)
-    results = load_results(out, tasks)
-    todo = [t for t in tasks if t.task_id not in results]
-    # Longest first, so the last task to finish is a short one and the workers stay busy.
-    cost = {"synth": 0, "sim": 1}
-    todo.sort(key=lambda t: (cost[t.kind], t.simulator != "verilator"))
-    cache = None if not use_cache else str(Path(cache_dir) if cache_dir else default_cache_dir())
-    work = str(out / WORK_DIR)
-    fn = runner or execute_task
-    n_jobs = jobs or os.cpu_count() or 1
-    bar = Progress(len(tasks), len(results), progress)
-    if cluster:
-        stream = _dask(todo, fn, work, cache, cluster, n_jobs)
-    elif n_jobs == 1 or len(todo) <= 1:
-        stream = _serial(todo, fn, work, cache)
-    else:
-        stream = _pool(todo, fn, work, cache, min(n_jobs, len(todo)))
-    ran = 0
-    try:
-        for result in stream:
-            _write_json(out / RESULTS_DIR / result["kind"] / f"{result['task_id']}.json", result)
-            results[result["task_id"]] = result
-            ran += 1
-            bar.update(result)
-            if on_result:
-                on_result(result)
-    except KeyboardInterrupt:
+
+    def note(line: str) -> None:
+        if notes:
+            notes.write(line + "\n")
+            notes.flush()
+
+    # One run at a time per folder: two runs would share work/<task>/ build folders and each
+    # other's result files.
+    with lock_folder(out):
+        write_sweep_file(out, spec, points, tasks, shard)
+        results = load_results(out, tasks, note)
+        todo = [t for t in tasks if t.task_id not in results]
+        # Longest first, so the last task to finish is a short one and the workers stay busy.
+        cost = {"synth": 0, "sim": 1}
+        todo.sort(key=lambda t: (cost[t.kind], t.simulator != "verilator"))
+        cache = None if not use_cache else str(Path(cache_dir) if cache_dir else default_cache_dir())
+        work = str(out / WORK_DIR)
+        fn = runner or execute_task
+        n_jobs = jobs or os.cpu_count() or 1
+        bar = Progress(len(tasks), len(results), progress)
+        if cluster:
+            stream = _dask(todo, fn, work, cache, cluster, n_jobs)
+        elif n_jobs == 1 or len(todo) <= 1:
+            stream = _serial(todo, fn, work, cache)
+        else:
+            stream = _pool(todo, fn, work, cache, min(n_jobs, len(todo)))
+        ran = 0
+        try:
+            for task, raw in stream:
+                result = _checked_result(task, raw)
+                _write_json(out / RESULTS_DIR / result["kind"] / f"{result['task_id']}.json", result)
+                results[result["task_id"]] = result
+                ran += 1
+                bar.update(result)
+                if on_result:
+                    on_result(result)
+        except KeyboardInterrupt:
+            bar.close()
+            if progress:
+                progress.write(f"interrupted: {len(results)} of {len(tasks)} tasks saved in {out}; "
+                               "run the same command again to resume\n")
+            raise
+        finally:
+            close = getattr(stream, "close", None)
+            if close:
+                close()
         bar.close()
-        if progress:
-            progress.write(f"interrupted: {len(results)} of {len(tasks)} tasks saved in {out}; "
-                           "run the same command again to resume\n")
-        raise
-    finally:
-        close = getattr(stream, "close", None)
-        if close:
-            close()
-    bar.close()
-    outcome = SweepOutcome(out_dir=out, tasks=tasks, results=results, ran=ran,
-                           wall_seconds=time.perf_counter() - t0)
-    outcome.report_files = write_reports(out, formats=formats, wall_seconds=outcome.wall_seconds, ran=ran)
+        outcome = SweepOutcome(out_dir=out, tasks=tasks, results=results, ran=ran,
+                               wall_seconds=time.perf_counter() - t0)
+        outcome.report_files = write_reports(out, formats=formats, wall_seconds=outcome.wall_seconds, ran=ran)
     return outcome
 
 
@@ -597,8 +802,11 @@ def run_sweep_file(path: str | Path, out_dir: str | Path, **kwargs: Any) -> Swee
     return run_sweep(load_sweep(path), out_dir, **kwargs)
 
 
-def merge_shards(shard_dirs: list[Path], out_dir: Path) -> list[Path]:
+def merge_shards(shard_dirs: list[Path], out_dir: Path, notes: TextIO | None = None) -> list[Path]:
     """Join the results of a sweep's shards into one folder (its report is then written there).
+
+    Only result files that fit their schema are copied; each one left out is named in one line
+    on ``notes``, and its task then shows as without a result.
 
     Raises:
         SweepError: if the folders are not shards of one sweep.
@@ -606,9 +814,12 @@ def merge_shards(shard_dirs: list[Path], out_dir: Path) -> list[Path]:
     digests = set()
     base: dict[str, Any] | None = None
     for d in shard_dirs:
-        data = _read_json(d / SWEEP_FILE)
-        if data is None:
-            raise SweepError("", [f"'{d}' holds no {SWEEP_FILE}: give folders written by 'benchgen sweep -o'"])
+        try:
+            data = read_sweep_file(d)
+        except FileNotFoundError:
+            raise SweepError("", [f"'{d}' holds no {SWEEP_FILE}: give folders written by 'benchgen sweep -o'"]) from None
+        except RecordError as exc:
+            raise SweepError("", [f"{exc}: give folders written by 'benchgen sweep -o'"]) from None
         digests.add(data["digest"])
         base = base or data
     if len(digests) > 1 or base is None:
@@ -619,9 +830,17 @@ def merge_shards(shard_dirs: list[Path], out_dir: Path) -> list[Path]:
         for kind in ("sim", "synth"):
             for f in sorted((d / RESULTS_DIR / kind).glob("*.json")):
                 target = out_dir / RESULTS_DIR / kind / f.name
+                if f.resolve() == target.resolve():
+                    continue
+                try:
+                    if read_result(d, kind, f.stem) is None:
+                        continue
+                except RecordError as exc:
+                    if notes:
+                        notes.write(f"ignored {exc} (shard folder {d})\n")
+                    continue
                 target.parent.mkdir(parents=True, exist_ok=True)
-                if f.resolve() != target.resolve():
-                    shutil.copyfile(f, target)
+                shutil.copyfile(f, target)
     # The full task list is rebuilt from the spec, so a shard that never ran shows as missing.
     spec = parse_sweep(_spec_to_raw(base["spec"]))
     points = expand(spec, validate=False)

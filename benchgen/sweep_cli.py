@@ -36,7 +36,8 @@ def add_sweep_parser(sub: Any, handler: Callable[[argparse.Namespace], int]) -> 
         help="run every point of a sweep file (or one core config) and write its report",
         description="Expand a sweep file, validate every point, run them in parallel (cached and "
         "resumable) and write report.{json,csv,md,html} and junit.xml into the output folder. "
-        "Exit status: 0 all points passed, 1 a point failed, 2 bad input, 130 interrupted (re-run to resume).",
+        "Exit status: 0 all points passed, 1 a point failed, 2 bad input or an output folder in use by "
+        "another sweep, 130 interrupted (re-run to resume).",
     )
     p.add_argument("file", help="sweep TOML (see docs/sweep.md), or a single core config for a one-point report")
     p.add_argument("-o", "--output", required=True, help="output folder (re-using it resumes an interrupted sweep)")
@@ -93,6 +94,7 @@ def run_sweep_command(args: argparse.Namespace) -> int:
     outcome = run_sweep(
         spec, args.output, jobs=args.jobs, cluster=args.cluster, shard=shard, cache_dir=args.cache,
         use_cache=not args.no_cache, progress=None if args.quiet else sys.stderr, formats=formats,
+        notes=sys.stderr,
     )
     print(to_table(collect(outcome.out_dir), wall_seconds=outcome.wall_seconds, ran=outcome.ran))
     for f in outcome.report_files:
@@ -103,16 +105,23 @@ def run_sweep_command(args: argparse.Namespace) -> int:
 def run_report_command(args: argparse.Namespace) -> int:
     """Handler of ``benchgen report render|merge``."""
     from benchgen.report import collect, to_table, write_reports
-    from benchgen.sweep import merge_shards
+    from benchgen.sweep import lock_folder, merge_shards
 
     formats = _formats(args.formats)
     if args.report_command == "merge":
         out = Path(args.output)
-        merge_shards([Path(f) for f in args.folders], out)
+        with lock_folder(out):
+            merge_shards([Path(f) for f in args.folders], out, notes=sys.stderr)
+            files = write_reports(out, formats=formats)
     else:
         out = Path(args.folder)
-    files = write_reports(out, formats=formats)
+        collect(out)  # a folder that holds no sweep is refused before anything is written into it
+        # A sweep still writing into the folder would race with these report files.
+        with lock_folder(out, fix="wait for it to finish, then render again"):
+            files = write_reports(out, formats=formats)
     data = collect(out)
+    for line in data.ignored:
+        print(f"benchgen: {line}", file=sys.stderr)
     print(to_table(data))
     for f in files:
         print(f"  wrote {f}")

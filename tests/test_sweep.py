@@ -14,6 +14,7 @@ from typing import Any
 import pytest
 
 from benchgen.cli import main
+from benchgen.sim import SimReport
 from benchgen.sweep import (
     _design_summary,
     _generate_point_project,
@@ -53,20 +54,27 @@ def fake_runner(task: Any, work_root: str, cache_dir: str | None) -> dict[str, A
             "seconds": 0.01, "cached": False, "design": design}
     if task.kind == "synth":
         depth = design["derived"]["pipeline_depth"] or 1
-        est = {"luts": 100 + 3 * depth, "ffs": 20 * depth, "carry": 50, "bram": 0, "dsp": 0,
-               "logic_cells": 110 + 20 * depth, "fmax_mhz": 30.0 + 10 * depth}
-        return {**base, "status": "ok", "estimate": est}
+        est = {"target": task.target, "part": "stand-in", "luts": 100 + 3 * depth, "ffs": 20 * depth,
+               "carry": 50, "bram": 0, "dsp": 0, "cells": {"LUT4": 100 + 3 * depth},
+               "fmax_mhz": 30.0 + 10 * depth, "clock_mhz": 100.0, "logic_cells": 110 + 20 * depth,
+               "tools": {"yosys": "stand-in"}, "seconds": 0.1, "note": None, "wrapper_ffs": 0}
+        return {**base, "status": "ok", "source_hash": "0" * 16, "estimate": est}
     budget = design["error_budget"]
     bad = task.core.get("pipeline_depth") == 2 and task.simulator == "verilator" and FAIL_ONE
-    sim = {
-        "simulator": task.simulator, "simulator_version": "stand-in", "passed": not bad, "samples": 100,
-        "mismatches": 3 if bad else 0, "max_error_lsb": budget["model_max_error_lsb"],
-        "rms_error_lsb": budget["model_rms_error_lsb"], "latency_cycles": design["derived"]["latency_cycles"],
-        "cycles_per_sample": 1.0, "problems": ["random_full_rate: 3 of 100 samples differ from the model"] if bad else [],
-        "sim_seconds": 0.1, "build_seconds": 0.1,
-    }
+    report = SimReport(
+        simulator=task.simulator, simulator_version="stand-in", toplevel=design["toplevel"], seed=task.seed,
+        passed=not bad, tests=4, failed=1 if bad else 0, samples=100, mismatches=3 if bad else 0,
+        max_error_lsb=budget["model_max_error_lsb"], rms_error_lsb=budget["model_rms_error_lsb"],
+        error_budget_lsb=budget["max_error_lsb"], latency_cycles=design["derived"]["latency_cycles"],
+        expected_latency_cycles=design["derived"]["latency_cycles"], cycles_per_sample=1.0,
+        expected_cycles_per_sample=design["derived"]["cycles_per_sample"], sim_seconds=0.1, build_seconds=0.1,
+        problems=["random_full_rate: 3 of 100 samples differ from the model"] if bad else [],
+    )
+    sim = report.as_dict()
+    sim.pop("per_test")
     mism = [{"test": "random_full_rate", "index": 7, "in_angle": 12, "out_cos": 5, "expected_out_cos": 4}] if bad else []
-    return {**base, "status": "failed" if bad else "passed", "sim": sim, "first_mismatches": mism}
+    return {**base, "status": "failed" if bad else "passed", "source_hash": "0" * 16, "sim": sim,
+            "first_mismatches": mism}
 
 
 FAIL_ONE = False
@@ -242,18 +250,12 @@ def test_sim_cache_hit_skips_the_simulator(tmp_path: Path, monkeypatch: pytest.M
 
     runs: list[str] = []
 
-    class FakeReport:
-        def __init__(self, passed: bool) -> None:
-            self.passed = passed
-
-        def as_dict(self) -> dict[str, Any]:
-            return {"passed": True, "samples": 1, "mismatches": 0, "max_error_lsb": 0.5, "rms_error_lsb": 0.3,
-                    "latency_cycles": 1, "cycles_per_sample": 1.0, "simulator_version": "9", "problems": [],
-                    "per_test": []}
-
-    def fake_run_sim(project: Path, **kw: Any) -> FakeReport:
+    def fake_run_sim(project: Path, **kw: Any) -> SimReport:
         runs.append(str(project))
-        return FakeReport(True)
+        return SimReport(simulator=kw["simulator"], simulator_version="9", toplevel="tiny", seed=kw["seed"],
+                         passed=True, tests=4, samples=1, max_error_lsb=0.5, rms_error_lsb=0.3,
+                         error_budget_lsb=1.5, latency_cycles=1, expected_latency_cycles=1,
+                         cycles_per_sample=1.0, expected_cycles_per_sample=1)
 
     monkeypatch.setattr(benchgen.sim, "run_sim", fake_run_sim)
     version = {"v": "9"}

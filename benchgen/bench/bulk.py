@@ -16,7 +16,8 @@ Results go to the same JSON-lines records as the per-clock bench
 (:func:`benchgen.bench.scoreboard.record`), so ``benchgen sim`` pools them the same way.
 
 Environment (set by ``benchgen sim``): ``BENCHGEN_SAMPLES`` (random samples),
-``BENCHGEN_RESULTS`` (JSON-lines results), ``BENCHGEN_BULK_FAULT`` (bench self-test only:
+``BENCHGEN_RESULTS`` (JSON-lines results), ``BENCHGEN_CSV`` (one row per sample, appended
+block by block), ``BENCHGEN_BULK_FAULT`` (bench self-test only:
 ``SAMPLE:PORT:BIT`` flips one result bit of one sample in the harness). The seed is cocotb's.
 """
 
@@ -40,6 +41,7 @@ from benchgen.bench.bulk_check import (
     BulkFunction,
     Inputs,
     Segment,
+    SegmentTally,
     Tally,
     check_block,
     check_full_rate,
@@ -54,7 +56,7 @@ from benchgen.bench.bulk_check import (
     unpack,
     with_tags,
 )
-from benchgen.bench.scoreboard import CheckResult, record
+from benchgen.bench.scoreboard import CSV_ENV, CheckResult, record
 from benchgen.design import Design
 from benchgen.harness import bulk_layout
 from benchgen.project import design_from_manifest, load_manifest
@@ -159,7 +161,7 @@ class BulkBench:
         )
 
     async def run(self, tally: Tally, plan: list[Segment]) -> None:
-        """Run every segment's blocks and check them."""
+        """Run every segment's blocks and check each as it arrives; no block is kept."""
         latency = self.design.timing.latency_cycles
         # Large arrays come and go every block; the cyclic collector finds nothing in them.
         gc.disable()
@@ -167,15 +169,15 @@ class BulkBench:
             for segment in plan:
                 self._streams += 1
                 tags = self.rng(100 + self._streams)
-                blocks = []
+                seen = SegmentTally()
                 for raw_stim in segment.blocks():
                     stim = with_tags(raw_stim, self.tag_width, tags)
                     n = len(next(iter(stim.values())))
                     where = f"{segment.label}samples {tally.offered}..{tally.offered + n - 1}"
                     block = await self.run_block(stim, idle=segment.idle, stall=segment.stall)
-                    blocks.append(block)
-                    check_block(tally, self.function, stim, block, where, self.layout.in_bytes)
-                check_patterns(tally, segment, blocks, latency)
+                    seen.add(block)
+                    check_block(tally, self.function, stim, block, where, self.layout.in_bytes, timed=segment.timed)
+                check_patterns(tally, segment, seen, latency)
                 # The harness counts strays since the reset; report each segment's own.
                 extra = int(self.dut.extra_count.value) - self._extra
                 self._extra += extra
@@ -185,7 +187,9 @@ class BulkBench:
             gc.enable()
 
     def tally(self, name: str) -> Tally:
-        return Tally(CheckResult(test=name), self.seed, self.design.spec.max_error_lsb)
+        """An empty tally for one test; every sample also goes to the CSV when one is asked for."""
+        csv = os.environ.get(CSV_ENV)
+        return Tally(CheckResult(test=name), self.seed, self.design.spec.max_error_lsb, csv=Path(csv) if csv else None)
 
     def prepare(self, total: int) -> None:
         """Tabulate the model when the input space is small against the samples to check."""
@@ -225,7 +229,7 @@ async def test_bulk_gaps_and_stalls(dut: Any) -> None:
 
 @cocotb.test()
 async def test_bulk_exhaustive(dut: Any) -> None:
-    """Every input code once, in order, at full rate."""
+    """Every input code once: a quarter at full rate, the rest under idle gaps and output stalls."""
     tb = BulkBench(dut)
     bits = tb.function.space_bits
     assert bits <= EXHAUSTIVE_MAX_BITS, f"{2**bits} inputs are too many for an exhaustive run"

@@ -14,12 +14,13 @@ from __future__ import annotations
 
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
+from pathlib import Path
 from typing import Any
 
 import numpy as np
 import numpy.typing as npt
 
-from benchgen.bench.scoreboard import FIRST_MISMATCHES, CheckResult
+from benchgen.bench.scoreboard import FIRST_MISMATCHES, CheckResult, write_csv_rows
 from benchgen.design import Design
 from benchgen.functions import (
     corner_inputs,
@@ -35,14 +36,19 @@ from benchgen.model import evaluate_function, to_signed
 __all__ = [
     "DEFAULT_SAMPLES",
     "EXHAUSTIVE_MAX_BITS",
+    "EXHAUSTIVE_MIN_CHUNK",
     "FAULT_ENV",
+    "FIRST_COUNT_PROBLEMS",
     "GAP_PATTERNS",
     "SAMPLES_ENV",
     "TABLE_MAX_BITS",
+    "WORST_SAMPLES",
     "Block",
     "BulkFunction",
+    "ErrorStats",
     "FaultError",
     "Segment",
+    "SegmentTally",
     "Tally",
     "check_block",
     "check_full_rate",
@@ -68,7 +74,22 @@ TABLE_MAX_BITS = 20
 per sample then replaces the model's per-sample arithmetic, with the same bit-true answers."""
 
 GAP_PATTERNS = ((0.0, 0.0), (0.5, 0.0), (0.0, 0.5), (0.3, 0.7))
-"""(idle probability, stall probability) of the four segments of the gaps-and-stalls test."""
+"""(idle probability, stall probability) of the four segments of the gaps-and-stalls test, and of
+the exhaustive test's four shares of the input space (the first one at full rate)."""
+
+EXHAUSTIVE_MIN_CHUNK = 256
+"""Fewest samples in one exhaustive chunk. The input space is cut into chunks dealt to the four
+patterns in turn. A chunk this long gives a pattern hundreds of clocks to apply its idle and
+stall clocks, so the check that it did cannot fail by chance (at 0.3 the odds of no idle clock
+in 256 are below 10^-39). A space of fewer than four chunks runs whole under every pattern,
+repeated up to this many samples."""
+
+WORST_SAMPLES = 4
+"""Worst samples kept per output port (largest error against the ideal first)."""
+
+FIRST_COUNT_PROBLEMS = 8
+"""Blocks whose counts are wrong that are reported one by one; later ones are only counted, so a
+core that loses samples in every block of a long run does not grow the report without limit."""
 
 LEVEL_ONE = 1 << 16
 """A probability p is handed to the harness as the 16-bit level p * 65536."""
@@ -200,6 +221,9 @@ class Segment:
         blocks: Makes the stimulus blocks (tags not yet added), on demand.
         idle / stall: Probabilities of an idle source clock / a stalled consumer clock.
         pattern_check: Whether the test checks that the pattern was applied.
+        timed: Whether the segment's latency and input spacing count in the test's timing
+            figures (the exhaustive test times only its full-rate share, which the manifest's
+            latency and rate are checked against).
     """
 
     label: str
@@ -207,6 +231,7 @@ class Segment:
     idle: float = 0.0
     stall: float = 0.0
     pattern_check: bool = False
+    timed: bool = True
 
 
 def _blocks(make: Callable[[int, int], Inputs], total: int, block: int) -> Callable[[], Iterator[Inputs]]:
@@ -249,24 +274,169 @@ def gaps_plan(fn: BulkFunction, rng: np.random.Generator, samples: int, block: i
     ]
 
 
+def _chunks(make: Callable[[int, int], Inputs], starts: range, chunk: int) -> Callable[[], Iterator[Inputs]]:
+    def gen() -> Iterator[Inputs]:
+        for start in starts:
+            yield make(start, chunk)
+
+    return gen
+
+
 def exhaustive_plan(fn: BulkFunction, block: int) -> list[Segment]:
-    """``bulk_exhaustive``: every input code once, in order, at full rate."""
-    return [Segment("", _blocks(fn.enumerate, 1 << fn.space_bits, block))]
+    """``bulk_exhaustive``: every input code, a share of them under each of :data:`GAP_PATTERNS`.
+
+    A core that loses, repeats or reorders samples only when its consumer stalls (or its source
+    idles) passes a run at full rate, so the space is cut into chunks of at least
+    :data:`EXHAUSTIVE_MIN_CHUNK` codes dealt to the four patterns in turn: every code is checked
+    once, a quarter of them at full rate (the latency and input spacing measured against the
+    manifest) and the rest under idle gaps, output stalls, or both, spread over the whole space.
+    A space too small for four chunks runs whole under every pattern, repeated up to
+    :data:`EXHAUSTIVE_MIN_CHUNK` samples, so each pattern has the clocks to show itself.
+    """
+    total = 1 << fn.space_bits
+    if total < len(GAP_PATTERNS) * EXHAUSTIVE_MIN_CHUNK:
+        count = total * -(-EXHAUSTIVE_MIN_CHUNK // total)
+
+        def cycled(start: int, n: int) -> Inputs:
+            return fn._split(np.arange(start, start + n, dtype=np.int64) % total)
+
+        shares = [_blocks(cycled, count, block) for _ in GAP_PATTERNS]
+    else:
+        # Sixteen chunks or more, so each pattern's share spans the whole space.
+        chunk = max(EXHAUSTIVE_MIN_CHUNK, min(block, total // (4 * len(GAP_PATTERNS))))
+        step = len(GAP_PATTERNS) * chunk
+        shares = [_chunks(fn.enumerate, range(k * chunk, total, step), chunk) for k in range(len(GAP_PATTERNS))]
+    return [
+        Segment(
+            f"pattern {k} (idle {idle}, stall {stall}): ",
+            share,
+            idle=idle,
+            stall=stall,
+            pattern_check=True,
+            timed=not (idle or stall),
+        )
+        for k, ((idle, stall), share) in enumerate(zip(GAP_PATTERNS, shares, strict=True))
+    ]
+
+
+class ErrorStats:
+    """Running error statistics of one output port, in memory that does not grow with the samples.
+
+    Keeps the number of judged samples, the sum and the sum of squares of their errors (for the
+    bias and the RMS), the largest magnitude, and the :data:`WORST_SAMPLES` worst samples: largest
+    magnitude first, the earlier sample first among equal ones, each with its global sample
+    number and inputs. Fed block by block, it gives what one pass over all the samples at once
+    would (``tests/test_bulk.py`` checks it against that).
+    """
+
+    def __init__(self, keep: int = WORST_SAMPLES) -> None:
+        self.keep = keep
+        self.count = 0
+        self.total = 0.0
+        self.total_sq = 0.0
+        self.max = 0.0
+        self.worst: list[tuple[float, int, dict[str, int]]] = []
+        """(magnitude, sample number, inputs), worst first; at most ``keep`` entries."""
+
+    def add(self, offset: int, err: npt.NDArray[np.float64], inputs: Inputs) -> None:
+        """Fold in one block's errors (NaN: not judged); ``offset`` numbers its first sample."""
+        judged = ~np.isnan(err)
+        count = int(np.count_nonzero(judged))
+        if not count:
+            return
+        ok = err[judged]
+        self.count += count
+        self.total += float(np.sum(ok))
+        self.total_sq += float(np.sum(ok**2))
+        mag = np.where(judged, np.abs(err), -1.0)
+        top = float(np.max(mag))
+        self.max = max(self.max, top)
+        if len(self.worst) >= self.keep and top <= self.worst[-1][0]:
+            return  # nothing here beats the kept ones (an equal one comes later, so it ranks after)
+        if len(mag) > self.keep:
+            # The block's own top `keep` in linear time: all above the keep-th largest value,
+            # then the earliest of those equal to it.
+            kth = np.partition(mag, len(mag) - self.keep)[len(mag) - self.keep]
+            above = np.flatnonzero(mag > kth)
+            picks = np.concatenate([above, np.flatnonzero(mag == kth)[: self.keep - len(above)]])
+        else:
+            picks = np.arange(len(mag))
+        found = [
+            (float(mag[k]), offset + int(k), {p: int(v[k]) for p, v in inputs.items()}) for k in picks if mag[k] >= 0
+        ]
+        self.worst = sorted(self.worst + found, key=lambda w: (-w[0], w[1]))[: self.keep]
+
+    @property
+    def mean(self) -> float:
+        """Mean signed error (the bias), LSBs."""
+        return self.total / self.count if self.count else 0.0
+
+    @property
+    def rms(self) -> float:
+        """RMS error, LSBs."""
+        return float(np.sqrt(self.total_sq / self.count)) if self.count else 0.0
+
+    def as_dict(self) -> dict[str, Any]:
+        """JSON form for the test's record."""
+        return {
+            "error_count": self.count,
+            "max_error_lsb": self.max,
+            "rms_error_lsb": self.rms,
+            "mean_error_lsb": self.mean,
+            "worst": [{"index": k, "error_lsb": m, **inp} for m, k, inp in self.worst],
+        }
+
+
+@dataclass
+class SegmentTally:
+    """What a segment's blocks add up to: counts only, so no block outlives its own check.
+
+    Attributes:
+        blocks: Blocks seen.
+        idle_count / stall_count: Idle and stalled clocks over the blocks.
+        lat_min: Smallest latency of any sample that came out, or None.
+        extra_count: The harness's stray count after the last block (counted since the reset).
+    """
+
+    blocks: int = 0
+    idle_count: int = 0
+    stall_count: int = 0
+    lat_min: int | None = None
+    extra_count: int = 0
+
+    def add(self, block: Block) -> None:
+        """Fold one block's counters in."""
+        self.blocks += 1
+        self.idle_count += block.idle_count
+        self.stall_count += block.stall_count
+        if block.received:
+            self.lat_min = block.lat_min if self.lat_min is None else min(self.lat_min, block.lat_min)
+        self.extra_count = block.extra_count
 
 
 @dataclass
 class Tally:
-    """Comparisons of one test, accumulated over blocks with global sample numbers."""
+    """Comparisons of one test, accumulated over blocks with global sample numbers.
+
+    Each block is compared as it arrives and dropped: the tally keeps counts, the error statistics
+    of each port (:class:`ErrorStats`), the first :data:`FIRST_MISMATCHES` mismatches and the first
+    :data:`FIRST_COUNT_PROBLEMS` blocks whose counts were wrong, so its memory is the same after a
+    thousand samples or a trillion. With ``csv`` set, every sample is appended to that file as its
+    block is checked (the only per-sample output, and it goes to disk).
+    """
 
     result: CheckResult
     seed: int
     budget: float
-    worst: dict[str, tuple[float, int, dict[str, int]]] = field(default_factory=dict)
+    errors: dict[str, ErrorStats] = field(default_factory=dict)
     lat: tuple[int, int] | None = None
     span: int = 0
     gaps: int = 0
     offered: int = 0
     """Samples offered so far: the global number of the next block's first sample."""
+    count_problems: int = 0
+    """Blocks whose sample or byte counts were wrong."""
+    csv: Path | None = None
 
     def add(self, offset: int, inputs: Inputs, got: Inputs, expected: Inputs, errors: dict[str, Any]) -> None:
         """Compare one block bit for bit, and its errors (NaN: not judged) against the budget."""
@@ -287,18 +457,14 @@ class Tally:
                 row.update({f"got_{p}": int(v[k]) for p, v in got.items()})
                 res.first_mismatches.append(row)
         for port, all_err in errors.items():
-            err = np.asarray(all_err[:n], dtype=np.float64)
-            judged = ~np.isnan(err)
-            if not judged.any():
-                continue
-            mag = np.where(judged, np.abs(err), -1.0)
-            k = int(np.argmax(mag))
-            worst = float(mag[k])
-            res.sum_sq_error += float(np.sum(err[judged] ** 2))
-            res.error_count += int(np.count_nonzero(judged))
-            res.max_error_lsb = max(res.max_error_lsb, worst)
-            if worst > self.worst.get(port, (-1.0, 0, {}))[0]:
-                self.worst[port] = (worst, offset + k, {p: int(v[k]) for p, v in inputs.items()})
+            stats = self.errors.setdefault(port, ErrorStats())
+            stats.add(offset, np.asarray(all_err[:n], dtype=np.float64), inputs)
+
+    def count_problem(self, text: str) -> None:
+        """Report a block whose counts are wrong; after the first few, only count them."""
+        self.count_problems += 1
+        if self.count_problems <= FIRST_COUNT_PROBLEMS:
+            self.result.problems.append(text)
 
     def timing(self, block: Block) -> None:
         """Fold one block's latency range and input spacing in."""
@@ -319,28 +485,42 @@ class Tally:
                 f"{res.mismatches} of {res.samples} samples differ from the bit-true model "
                 f"(seed {self.seed}, rerun with --seed {self.seed}); first ones:\n{lines}",
             )
-        for port, (worst, k, inp) in sorted(self.worst.items()):
+        if self.count_problems > FIRST_COUNT_PROBLEMS:
+            res.problems.append(
+                f"... and {self.count_problems - FIRST_COUNT_PROBLEMS} more block(s) whose sample counts were wrong"
+            )
+        judged = {port: stats for port, stats in sorted(self.errors.items()) if stats.count}
+        for port, stats in judged.items():
+            worst, k, inp = stats.worst[0]
             # Same rule as the per-clock bench: the error must stay strictly below the budget.
             if worst >= self.budget:
                 res.problems.append(
                     f"{port}: error {worst:.4f} LSB against the ideal is not below the budget {self.budget} LSB "
                     f"at sample {k} (input " + ", ".join(f"{p}={v}" for p, v in inp.items()) + f"; seed {self.seed})"
                 )
+        res.sum_sq_error = sum(s.total_sq for s in judged.values())
+        res.error_count = sum(s.count for s in judged.values())
+        res.max_error_lsb = max((s.max for s in judged.values()), default=0.0)
         if res.error_count:
             res.rms_error_lsb = float(np.sqrt(res.sum_sq_error / res.error_count))
+        res.extra["error_by_port"] = {port: stats.as_dict() for port, stats in judged.items()}
         res.latency_cycles = self.lat
         res.cycles_per_sample = self.span / self.gaps if self.gaps else None
         return res
 
 
-def check_block(tally: Tally, fn: BulkFunction, stim: Inputs, block: Block, where: str, in_bytes: int) -> None:
-    """Counts of one block, then its samples against the model and the ideal."""
+def check_block(
+    tally: Tally, fn: BulkFunction, stim: Inputs, block: Block, where: str, in_bytes: int, *, timed: bool = True
+) -> None:
+    """Counts of one block, then its samples against the model and the ideal.
+
+    ``timed``: whether the block's latency and input spacing count in the test's timing figures.
+    """
     n = len(next(iter(stim.values())))
-    res = tally.result
     if block.loaded_bytes != n * in_bytes:
-        res.problems.append(f"{where}: the harness read {block.loaded_bytes} stimulus bytes, expected {n * in_bytes}")
+        tally.count_problem(f"{where}: the harness read {block.loaded_bytes} stimulus bytes, expected {n * in_bytes}")
     if block.sent != n or block.received != n:
-        res.problems.append(
+        tally.count_problem(
             f"{where}: {block.sent} of {n} samples went in and {block.received} came out "
             f"in {block.cycles} clocks (seed {tally.seed})"
         )
@@ -352,19 +532,25 @@ def check_block(tally: Tally, fn: BulkFunction, stim: Inputs, block: Block, wher
     if "in_tag" in stim:
         expected["out_tag"] = inputs["in_tag"]
     tally.add(tally.offered, inputs, got, expected, fn.errors(inputs, got, ideal))
-    tally.timing(block)
+    if tally.csv is not None:
+        columns: dict[str, npt.NDArray[Any]] = {p: inputs[p] for p in fn.inputs}
+        columns.update({p: got[p] for p in fn.outputs})
+        columns.update({f"model_{p}": expected[p] for p in fn.outputs})
+        columns.update({f"ideal_{p}": np.asarray(v, dtype=np.float64) for p, v in ideal.items()})
+        write_csv_rows(tally.result.test, columns, tally.csv)
+    if timed:
+        tally.timing(block)
     tally.offered += n
 
 
-def check_patterns(tally: Tally, segment: Segment, blocks: list[Block], latency: int) -> None:
+def check_patterns(tally: Tally, segment: Segment, seen: SegmentTally, latency: int) -> None:
     """The idle/stall pattern was applied as asked, and no sample came out early."""
     if not segment.pattern_check:
         return
-    idles = sum(b.idle_count for b in blocks)
-    stalls = sum(b.stall_count for b in blocks)
+    idles, stalls = seen.idle_count, seen.stall_count
     if (idles > 0) != (segment.idle > 0) or (stalls > 0) != (segment.stall > 0):
         tally.result.problems.append(f"{segment.label}the harness applied {idles} idle and {stalls} stall clocks")
-    lo = min((b.lat_min for b in blocks if b.received), default=latency)
+    lo = latency if seen.lat_min is None else seen.lat_min
     if lo < latency:
         tally.result.problems.append(f"{segment.label}a sample came out after {lo} clocks")
 

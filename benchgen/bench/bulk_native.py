@@ -43,6 +43,7 @@ from benchgen.bench.bulk_check import (
     FaultError,
     Inputs,
     Segment,
+    SegmentTally,
     Tally,
     check_block,
     check_full_rate,
@@ -252,9 +253,16 @@ class _Test:
 
 class _NativeBench:
     def __init__(
-        self, design: Design, layout: BulkLayout, seed: int, fault: tuple[int, int] | None, log: Path
+        self,
+        design: Design,
+        layout: BulkLayout,
+        seed: int,
+        fault: tuple[int, int] | None,
+        log: Path,
+        csv: Path | None = None,
     ) -> None:
         self.log = log
+        self.csv = csv
         self.design = design
         self.layout = layout
         self.seed = seed
@@ -299,14 +307,16 @@ class _NativeBench:
             hand_over(exc)
 
     def run_test(self, session: _Session, test: _Test) -> CheckResult:
-        tally = Tally(CheckResult(test=test.name), self.seed, self.design.spec.max_error_lsb)
+        tally = Tally(CheckResult(test=test.name), self.seed, self.design.spec.max_error_lsb, csv=self.csv)
         if (1 << self.function.space_bits) <= 4 * test.prepare_total:
             self.function.tabulate()
         pending: queue.Queue[Any] = queue.Queue(maxsize=_QUEUE_BLOCKS)
         stop = threading.Event()
         feeder = threading.Thread(target=self._feed, args=(session, test, pending, stop), daemon=True)
         feeder.start()
-        seen: list[list[Block]] = [[] for _ in test.plan]
+        # Counts per segment only: each block is checked as it arrives and then dropped, so memory
+        # stays flat however many samples the test runs.
+        seen = [SegmentTally() for _ in test.plan]
         signed = self.function.signed_outputs
         try:
             while (item := pending.get()) is not None:
@@ -315,9 +325,9 @@ class _NativeBench:
                 k, stim = item
                 n = len(next(iter(stim.values())))
                 block = session.reply(signed)
-                seen[k].append(block)
+                seen[k].add(block)
                 where = f"{test.plan[k].label}samples {tally.offered}..{tally.offered + n - 1}"
-                check_block(tally, self.function, stim, block, where, self.layout.in_bytes)
+                check_block(tally, self.function, stim, block, where, self.layout.in_bytes, timed=test.plan[k].timed)
         except _RunnerGone as exc:
             session.broken = True
             tally.result.problems.append(f"{exc} (seed {self.seed}); see {self.log}")
@@ -332,12 +342,12 @@ class _NativeBench:
                 session.close(kill=True)
             feeder.join(timeout=5)
         extra_before = 0
-        for segment, blocks in zip(test.plan, seen, strict=True):
-            check_patterns(tally, segment, blocks, self.design.timing.latency_cycles)
-            if blocks:
+        for segment, counts in zip(test.plan, seen, strict=True):
+            check_patterns(tally, segment, counts, self.design.timing.latency_cycles)
+            if counts.blocks:
                 # The harness counts strays since the reset; report each segment's own.
-                extra = blocks[-1].extra_count - extra_before
-                extra_before = blocks[-1].extra_count
+                extra = counts.extra_count - extra_before
+                extra_before = counts.extra_count
                 if extra:
                     tally.result.problems.append(f"{segment.label}{extra} output(s) came out that no input asked for")
         result = tally.finish()
@@ -358,11 +368,13 @@ def run_native(
     exhaustive: bool,
     results: Path,
     log_file: Path,
+    csv: Path | None = None,
 ) -> NativeRun:
     """Build (or reuse) the runner and run the bulk tests: full rate and gaps/stalls, or exhaustive.
 
     Each test appends one JSON line to ``results`` (the record of
-    :class:`benchgen.bench.scoreboard.CheckResult` plus ``wall_seconds``).
+    :class:`benchgen.bench.scoreboard.CheckResult` plus ``wall_seconds``). With ``csv``, every
+    sample is appended to that file, one row each, as its block is checked.
 
     Raises:
         BulkError: for a bad ``BENCHGEN_BULK_FAULT``, an input space too large for an exhaustive
@@ -373,7 +385,7 @@ def run_native(
         fault = parse_fault(os.environ.get(FAULT_ENV, ""), layout)
     except FaultError as exc:
         raise BulkError(str(exc)) from None
-    bench = _NativeBench(design, layout, seed, fault, log_file)
+    bench = _NativeBench(design, layout, seed, fault, log_file, csv)
     fn = bench.function
     if exhaustive and fn.space_bits > EXHAUSTIVE_MAX_BITS:
         raise BulkError(

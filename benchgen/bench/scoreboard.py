@@ -37,6 +37,8 @@ class CheckResult:
         first_mismatches: The first few mismatching samples.
         latency_cycles: (min, max) latency seen, or None.
         cycles_per_sample: Measured input spacing at full rate, or None.
+        extra: Further fields of the record, added after the ones above (the bulk bench puts
+            its per-port error statistics here).
     """
 
     test: str
@@ -50,6 +52,7 @@ class CheckResult:
     first_mismatches: list[dict[str, Any]] = field(default_factory=list)
     latency_cycles: tuple[int, int] | None = None
     cycles_per_sample: float | None = None
+    extra: dict[str, Any] = field(default_factory=dict)
 
     def as_dict(self) -> dict[str, Any]:
         """JSON-friendly form."""
@@ -65,6 +68,7 @@ class CheckResult:
             "first_mismatches": self.first_mismatches,
             "latency_cycles": list(self.latency_cycles) if self.latency_cycles else None,
             "cycles_per_sample": self.cycles_per_sample,
+            **self.extra,
         }
 
 
@@ -146,21 +150,32 @@ def record(result: CheckResult) -> None:
         fh.write(json.dumps(result.as_dict()) + "\n")
 
 
-def write_csv_rows(test: str, columns: dict[str, npt.NDArray[Any]]) -> None:
-    """Append one row per sample to the CSV named by ``BENCHGEN_CSV`` (if set)."""
-    path = os.environ.get(CSV_ENV)
+def write_csv_rows(test: str, columns: dict[str, npt.NDArray[Any]], path: str | Path | None = None) -> None:
+    """Append one row per sample to the CSV at ``path`` (default: ``BENCHGEN_CSV``, if set).
+
+    The header is written when the file is new. Rows are formatted a column at a time and
+    written in one go, so the bulk bench can stream every block of a long run to disk.
+    """
+    path = path if path is not None else os.environ.get(CSV_ENV)
     if not path:
         return
     names = list(columns)
     target = Path(path)
     new = not target.exists()
-    n = len(columns[names[0]])
+    cols = [_column_text(columns[c]) for c in names]
     with target.open("a", encoding="utf-8") as fh:
         if new:
             fh.write("test," + ",".join(names) + "\n")
-        cols = [columns[c] for c in names]
-        for k in range(n):
-            fh.write(test + "," + ",".join(_fmt(c[k]) for c in cols) + "\n")
+        fh.write("".join(f"{test},{','.join(row)}\n" for row in zip(*cols, strict=True)))
+
+
+def _column_text(values: npt.NDArray[Any]) -> list[str]:
+    arr = np.asarray(values)
+    if arr.dtype.kind == "f":
+        return [f"{v:.6f}" for v in arr.tolist()]
+    if arr.dtype.kind in "iub":
+        return [str(int(v)) for v in arr.tolist()]
+    return [_fmt(v) for v in arr]
 
 
 def _fmt(v: Any) -> str:
