@@ -48,6 +48,7 @@ __all__ = [
     "Design",
     "Proof",
     "build_design",
+    "clear_sizing_cache",
     "corner_angles",
     "evaluate",
     "sizing_angles",
@@ -338,14 +339,24 @@ def _prover(spec: CoreSpec, progress: Progress | None) -> _Prover:
     # Only the fields that shape the ports and the judging matter; cores that differ in the
     # rest (budget, rounding, sizes) share one prover, and so the inputs it has learned.
     key = (spec.function, spec.angle_width, spec.data_width, spec.angle_unit, spec.gain, spec.prenormalise)
-    found = _PROVERS.get(key)
+    found = _PROVERS.pop(key, None)
     if found is None:
-        found = _PROVERS[key] = _Prover(spec, progress)
+        found = _Prover(spec, progress)
+    _PROVERS[key] = found  # most recently used last
+    while len(_PROVERS) > _PROVERS_KEPT:
+        del _PROVERS[next(iter(_PROVERS))]  # a sampled prover holds ~50 MB of inputs and ideals
     found.progress = progress
     return found
 
 
 _PROVERS: dict[tuple[Any, ...], _Prover] = {}
+_PROVERS_KEPT = 8
+
+
+def clear_sizing_cache() -> None:
+    """Forget every sizing result and search set (benchmarks time sizing from scratch)."""
+    _PROVERS.clear()
+    _SIZES.clear()
 
 
 def _size(spec: CoreSpec, progress: Progress | None = None) -> tuple[int, int, ErrorStats, Proof]:
