@@ -20,7 +20,7 @@ from benchgen.reference import ErrorStats
 from benchgen.errors import BenchgenError, ConfigError
 from benchgen.functions import input_ports, output_ports, small_vector_limit
 from benchgen.harness import bulk_project_files
-from benchgen.rtl import render_core
+from benchgen.rtl import check_module_name, render_core
 
 __all__ = [
     "MANIFEST_NAME",
@@ -226,6 +226,7 @@ def generate_project(config_path: str | Path, out_dir: str | Path) -> Design:
     spec = load_config(config_path)
     try:
         design = build_design(spec)
+        check_module_name(design)
     except ConfigError as exc:
         raise exc.with_source(str(config_path)) from None
     config_text = config_path.read_text(encoding="utf-8")
