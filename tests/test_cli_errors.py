@@ -180,9 +180,15 @@ def test_longest_name_runs_the_native_bulk_bench(tmp_path: Path, capsys: pytest.
 
 
 @pytest.mark.sim
-def test_verilator_builds_a_project_whose_path_has_a_space(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+def test_verilator_builds_a_project_whose_path_has_a_space(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str], monkeypatch: pytest.MonkeyPatch
+) -> None:
     """Verilator's make files refuse such a folder; the build moves to one without spaces."""
+    import tempfile
+
     require_simulator("verilator")
+    monkeypatch.setattr(tempfile, "tempdir", str(tmp_path / "tmp"))  # the builds land in the test's folder
+    (tmp_path / "tmp").mkdir()
     folder = tmp_path / "my projects"
     folder.mkdir()
     status, err, out = generate(folder, toml_text({**GOOD, "data_width": 8, "angle_width": 8}), capsys)
@@ -192,6 +198,7 @@ def test_verilator_builds_a_project_whose_path_has_a_space(tmp_path: Path, capsy
         captured = capsys.readouterr()
         assert status == 0, captured.err + captured.out
         assert "result: PASS" in captured.out
+        assert f"log: {tmp_path / 'tmp' / 'benchgen-build'}" in captured.out  # built elsewhere
 
 
 # ---------------------------------------------------------------------------------------------
