@@ -821,6 +821,10 @@ def design_from_manifest(manifest: dict[str, Any]) -> Design:
         raise ProjectError(f"{MANIFEST_NAME} does not describe a core ({type(exc).__name__}); {stale}") from None
     mine = {k: v for k, v in manifest.items() if k != "benchgen_version"}
     fresh.pop("benchgen_version", None)
+    # The list of generated files is added when the project is rendered (render_project) and
+    # is checked where it is used: by generate, before it replaces anything (_owned_files).
+    if isinstance(mine.get("files"), dict):
+        mine["files"] = {k: v for k, v in mine["files"].items() if k != "generated"}
     if fresh != mine:
         raise ProjectError(stale)
     return design
