@@ -2,18 +2,88 @@
 
 from __future__ import annotations
 
-import argparse
-import json
-import os
 import sys
 import time
-from importlib import resources
-from pathlib import Path
 
-from benchgen import __version__
-from benchgen.errors import BenchgenError
+try:
+    # Ctrl-C while these load ends as it does later, with one line and exit status 130: the
+    # console script imports this module before main() runs, so main's handler cannot cover it.
+    import argparse
+    import json
+    import os
+    from importlib import resources
+    from collections.abc import Callable
+    from pathlib import Path
+    from typing import NoReturn
 
-__all__ = ["main"]
+    from benchgen import __version__
+    from benchgen.errors import BenchgenError, one_line
+except KeyboardInterrupt:  # pragma: no cover - timing-dependent; tests/test_cli_errors.py injects it
+    print("benchgen: interrupted", file=sys.stderr)
+    raise SystemExit(130) from None
+
+__all__ = ["MAX_SAMPLES", "MAX_SEED", "main"]
+
+MAX_SAMPLES = 10**12
+"""Most samples one run takes: days of simulation at the fastest engine's rate."""
+
+MAX_SEED = 2**31 - 1
+"""Largest seed: the range a sweep's seed has (docs/sweep.md), so one seed works in both."""
+
+
+class UsageError(BenchgenError):
+    """A command-line value that cannot work (exit status 2)."""
+
+    exit_status = 2
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse, with its errors on one line like every other bad input (exit status 2)."""
+
+    def error(self, message: str) -> NoReturn:
+        self.exit(2, f"{self.prog}: error: {one_line(message, 600)} (see {self.prog} --help)\n")
+
+
+def _whole_number(option: str, lo: int, hi: int, example: str) -> Callable[[str], int]:
+    """An argparse type: a whole number from ``lo`` to ``hi``, written 20000, 20_000 or 2e4."""
+
+    def parse(text: str) -> int:
+        value: int | None = None
+        try:
+            value = int(text)
+        except ValueError:
+            try:
+                number = float(text)
+            except ValueError:
+                number = float("nan")
+            if number.is_integer():  # 1e6 and the like; nan and inf are not
+                value = int(number)
+        if value is None:
+            raise argparse.ArgumentTypeError(
+                f"{text!r} is not a whole number; give one from {lo} to {hi:,}, e.g. {option} {example}"
+            )
+        if not lo <= value <= hi:
+            raise argparse.ArgumentTypeError(
+                f"{text} is out of range; give a whole number from {lo} to {hi:,}, e.g. {option} {example}"
+            )
+        return value
+
+    parse.__name__ = "whole number"  # what argparse calls the type in its own messages
+    return parse
+
+
+def _output_file(option: str, path: str | None) -> None:
+    """Refuse an output path that cannot be written, before anything runs."""
+    if path is None:
+        return
+    target = Path(path)
+    folder = target.parent
+    if target.is_dir():
+        raise UsageError(f"{option} {path}: that is a folder; give a file name inside it")
+    if not folder.is_dir():
+        raise UsageError(f"{option} {path}: the folder '{folder}' does not exist; create it or give another path")
+    if not os.access(folder, os.W_OK) or (target.exists() and not os.access(target, os.W_OK)):
+        raise UsageError(f"{option} {path}: cannot write there (permission); give another path")
 
 
 def _generate(args: argparse.Namespace) -> int:
@@ -51,6 +121,10 @@ def _simulate(args: argparse.Namespace, project: Path) -> int:
     from benchgen.bench.bulk_plan import BULK_FROM_SAMPLES, bulk_plan
     from benchgen.sim import run_sim
 
+    # Checked first: a report that cannot be written must not cost a simulation.
+    _output_file("--json", args.json)
+    _output_file("--csv", args.csv)
+
     if args.mode == "auto" and bulk_plan("auto", args.samples, args.exhaustive):
         why = "--exhaustive" if args.exhaustive else f"{args.samples} samples (>= {BULK_FROM_SAMPLES})"
         print(f"{why}: using the bulk bench (HDL streams whole blocks, Python checks whole arrays)")
@@ -68,7 +142,10 @@ def _simulate(args: argparse.Namespace, project: Path) -> int:
     print(report.table())
     print(f"  log: {report.log_file}")
     if args.json:
-        Path(args.json).write_text(json.dumps(report.as_dict(), indent=2) + "\n")
+        try:
+            Path(args.json).write_text(json.dumps(report.as_dict(), indent=2) + "\n")
+        except OSError as exc:
+            raise UsageError(f"--json {args.json}: cannot write it ({exc.strerror or exc})") from None
     return 0 if report.passed else 1
 
 
@@ -108,8 +185,18 @@ def _add_sim_options(p: argparse.ArgumentParser, default_sim: str | None) -> Non
         required=default_sim is None,
         help="simulator to build and run with",
     )
-    p.add_argument("--samples", type=int, default=20_000, help="random samples at full rate (default 20000)")
-    p.add_argument("--seed", type=int, default=None, help="random seed (printed in the report; default: from the clock)")
+    p.add_argument(
+        "--samples",
+        type=_whole_number("--samples", 1, MAX_SAMPLES, "20000"),
+        default=20_000,
+        help="random samples at full rate (default 20000; 1e6 style accepted)",
+    )
+    p.add_argument(
+        "--seed",
+        type=_whole_number("--seed", 0, MAX_SEED, "7"),
+        default=None,
+        help=f"random seed from 0 to {MAX_SEED} (printed in the report; default: from the clock)",
+    )
     p.add_argument("--waves", action="store_true", help="record waveforms (FST on Icarus, VCD on Verilator)")
     p.add_argument("--json", metavar="PATH", help="write the report as JSON")
     p.add_argument("--csv", metavar="PATH", help="write one row per sample: input, outputs, model, ideal")
@@ -137,7 +224,7 @@ def _add_sim_options(p: argparse.ArgumentParser, default_sim: str | None) -> Non
 
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser (exposed for documentation and tests)."""
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="benchgen",
         description="Generate, simulate and verify shift-and-add (CORDIC) function cores.",
     )
@@ -167,9 +254,11 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def main(argv: list[str] | None = None) -> int:
-    """Entry point; returns the exit status (0 pass, 1 verification failed, 2 bad input, 3 cannot run)."""
-    args = build_parser().parse_args(argv)
+    """Entry point; returns the exit status (0 pass, 1 verification failed, 2 bad input, 3 cannot
+    run, 130 interrupted)."""
     try:
+        # Parsing is inside: building the parser imports more modules, and Ctrl-C may come then.
+        args = build_parser().parse_args(argv)
         return int(args.func(args))
     except BenchgenError as exc:
         print(f"benchgen: error: {exc}", file=sys.stderr)

@@ -14,18 +14,22 @@ from dataclasses import asdict, dataclass
 from pathlib import Path
 from typing import Any
 
-from benchgen.errors import ConfigError
+from benchgen.errors import ConfigError, show_value
 
 __all__ = [
     "ANGLE_UNITS",
     "ARCHITECTURES",
     "FUNCTIONS",
     "GAIN_MODES",
+    "MAX_NAME_LENGTH",
     "MAX_WIDTH",
     "ROUNDING_MODES",
     "CoreSpec",
     "load_config",
+    "name_problem",
     "parse_config",
+    "read_toml",
+    "suggest_name",
 ]
 
 FUNCTIONS = ("sincos", "rotate", "atan2", "mul", "div", "sinhcosh", "exp", "atanh", "ln", "sqrt")
@@ -75,7 +79,56 @@ _VERILOG_KEYWORDS = frozenset(
     wildcard with within accept_on reject_on nexttime
     """.split()
 )
-_IDENTIFIER = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
+# IEEE 1076-2008 reserved words (clause 15.10; listed from memory), plus VHDL-2019's `private`
+# and `view`: a VHDL back end is planned, and VHDL compares identifiers without case.
+_VHDL_KEYWORDS = frozenset(
+    """
+    abs access after alias all and architecture array assert assume assume_guarantee attribute
+    begin block body buffer bus case component configuration constant context cover default
+    disconnect downto else elsif end entity exit fairness file for force function generate
+    generic group guarded if impure in inertial inout is label library linkage literal loop map
+    mod nand new next nor not null of on open or others out package parameter port postponed
+    private procedure process property protected pure range record register reject release rem
+    report restrict restrict_guarantee return rol ror select sequence severity shared signal sla
+    sll sra srl strong subtype then to transport type unaffected units until use variable view
+    vmode vprop vunit wait when while with xnor xor
+    """.split()
+)
+# Names that a simulator, or a library it loads, already defines:
+# - std: SystemVerilog's built-in package (IEEE 1800-2017 26.7); Verilator 5.048 ships it as
+#   `package std` (include/verilated_std.sv) and refuses a module of that name as a duplicate.
+# - TOP: Verilator 5.048 refuses it ("conflicts with Verilator top-level internals").
+# - cocotb_iverilog_dump: the module cocotb 2.1's runner adds to an Icarus build for waves.
+# Without case: VHDL's libraries std, ieee and work, which every VHDL design sees; and the
+# Windows device names con, prn, aux, nul, com1-9, lpt1-9, which no file may carry, extension
+# or not (Microsoft, "Naming Files, Paths, and Namespaces"; from memory), since the project's
+# files are named after the core.
+_TOOL_NAMES = frozenset({"std", "TOP", "cocotb_iverilog_dump"})
+# Verilator 5.048 reads a comment that starts with "verilator" or "synopsys" as a directive and
+# stops with BADVLTPRAGMA on "// verilator_core: ..." (checked here; "Verilator" too).
+_DIRECTIVE_PREFIXES = ("verilator", "synopsys")
+_CASELESS_NAMES = frozenset(
+    {"std", "ieee", "work", "con", "prn", "aux", "nul"}
+    | {f"com{k}" for k in range(1, 10)}
+    | {f"lpt{k}" for k in range(1, 10)}
+)
+# A VHDL basic identifier (IEEE 1076-2008 15.4.2): a letter, then letters and digits with single
+# underscores between them (no leading, trailing or double underscore). Every Verilog tool takes
+# it as it is, and Verilator keeps it unchanged in its C++ names (it spells "__" as "___05F").
+_IDENTIFIER = re.compile(r"[A-Za-z](?:_?[A-Za-z0-9])*")
+# Verilator replaces identifiers of 128 characters or more by a hash (VName::maxLength(128) in its
+# V3Options.cpp: "Linux filename limits 256; leave half for prefix"), after which cocotb cannot
+# find the top level by name and the native bulk runner cannot include its model's header. The
+# longest module name benchgen derives from the core's is the native bulk harness's,
+# NAME_bulk_native, 12 characters more, so a name may have 127 - 12 = 115. Measured with
+# Verilator 5.048: a 127-character core passes per-clock, 128 fails; a 115-character one passes
+# both bulk engines, 116 fails the native one (122 passes the cocotb one, 123 fails it). Icarus
+# and VHDL set no limit.
+MAX_NAME_LENGTH = 127 - len("_bulk_native")
+_NAME_RULE = (
+    "letters, digits and single underscores, starting with a letter and not ending with '_' "
+    f"(an identifier in Verilog and VHDL alike), at most {MAX_NAME_LENGTH} characters"
+)
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -166,49 +219,118 @@ def _closest(word: str, choices: tuple[str, ...] | list[str]) -> str:
 
 
 def _int_field(
-    raw: Mapping[str, Any], key: str, lo: int, hi: int, *, auto: bool = False
+    raw: Mapping[str, Any], key: str, lo: int, hi: int, *, auto: bool = False, default: int | None = None
 ) -> int | None:
+    """A whole-number field.
+
+    The fix offered for a bad value is one the later checks accept too: "auto" where the field
+    takes it (a count picked by hand can still miss the error budget), else the number a
+    wrongly typed value plainly means, else ``default`` (``None``: remove the line, for a field
+    whose absence means one stage per iteration or one iteration per clock).
+    """
     value = raw[key]
     if auto and value == "auto":
         return None
     allowed = f"a whole number from {lo} to {hi}" + (' or "auto"' if auto else "")
-    if isinstance(value, bool) or not isinstance(value, int):
-        kind = type(value).__name__
-        fix = f"write {key} = {lo}" + (' or "auto"' if auto else "") + f" (it is a {kind} now)"
-        raise ConfigError(key, value, allowed, fix)
-    if not lo <= value <= hi:
+    wrong_type = isinstance(value, bool) or not isinstance(value, int)
+    if not wrong_type and lo <= value <= hi:
+        return value
+    guess: Any
+    if auto:
+        guess = "auto"
+    elif wrong_type:
+        whole = _whole(value)
+        guess = default if whole is None or default is None else min(max(whole, lo), hi)
+    else:
         nearest = min(max(value, lo), hi)
-        raise ConfigError(key, value, allowed, f"set {key} = {nearest} or another value in range")
-    return value
+        guess = nearest if default is not None or value < lo else None
+    if guess is None:
+        fix = f"remove {key}, or give a whole number from {lo} to {hi}"
+    else:
+        fix = f"set {key} = " + (f'"{guess}"' if isinstance(guess, str) else str(guess))
+    if wrong_type:
+        fix += f" (it is a {type(value).__name__} now)"
+    raise ConfigError(key, value, allowed, fix, suggestion={key: guess})
+
+
+def _whole(value: Any) -> int | None:
+    """The whole number a wrongly typed value plainly means ("16", 16.0), if any."""
+    if isinstance(value, float) and value.is_integer():
+        return int(value)
+    if isinstance(value, str) and re.fullmatch(r"\s*[+-]?[0-9]{1,6}\s*", value):
+        return int(value)
+    return None
 
 
 def _choice_field(raw: Mapping[str, Any], key: str, choices: tuple[str, ...]) -> str:
     value = raw[key]
     allowed = "one of " + ", ".join(f'"{c}"' for c in choices)
     if not isinstance(value, str):
-        raise ConfigError(key, value, allowed, f'write it as a quoted string, e.g. {key} = "{choices[0]}"')
+        raise ConfigError(
+            key,
+            value,
+            allowed,
+            f'write it as a quoted string, e.g. {key} = "{choices[0]}"',
+            suggestion={key: choices[0]},
+        )
     if value not in choices:
         near = difflib.get_close_matches(value, list(choices), n=1, cutoff=0.4)
         hint = near[0] if near else choices[0]
-        raise ConfigError(key, value, allowed, f'use {key} = "{hint}"')
+        raise ConfigError(key, value, allowed, f'use {key} = "{hint}"', suggestion={key: hint})
     return value
 
 
-def _check_name(value: Any) -> str:
-    allowed = "a Verilog identifier (letters, digits, _; not starting with a digit) that is not a keyword"
-    if not isinstance(value, str):
-        raise ConfigError("name", value, allowed, 'write it as a quoted string, e.g. name = "nco_core"')
-    if not _IDENTIFIER.match(value):
-        cleaned = re.sub(r"[^A-Za-z0-9_]", "_", value) or "core"
-        if cleaned[0].isdigit():
-            cleaned = "core_" + cleaned
-        raise ConfigError("name", value, allowed, f'use a plain identifier such as name = "{cleaned}"')
+def name_problem(value: str) -> str | None:
+    """Why ``value`` cannot name a core (a phrase for the message), or ``None`` if it can."""
+    if not _IDENTIFIER.fullmatch(value):
+        return "not such a name"
+    if len(value) > MAX_NAME_LENGTH:
+        return f"{len(value)} characters"
     if value in _VERILOG_KEYWORDS:
+        return f"'{value}' is a reserved word of Verilog or SystemVerilog"
+    if value.lower() in _VHDL_KEYWORDS:
+        return f"'{value}' is a reserved word of VHDL, which ignores case"
+    if value in _TOOL_NAMES or value.lower() in _CASELESS_NAMES:
+        return f"'{value}' is a reserved word of a simulator, library or file system"
+    if value.lower().startswith(_DIRECTIVE_PREFIXES):
+        return "a comment starting with it is a Verilator directive, and every generated file starts with // NAME:"
+    return None
+
+
+def suggest_name(value: object) -> str:
+    """A name close to ``value`` that :func:`name_problem` accepts, for the fix.
+
+    It always contains "core", which no port, signal or constant inside a generated core does
+    (tests/test_cli_errors.py checks this over every function and architecture), so it cannot
+    clash with the core's own names either (see :func:`benchgen.rtl.check_module_name`).
+    """
+    text = value if isinstance(value, str) else ""
+    cleaned = re.sub(r"[^A-Za-z0-9]+", "_", text).strip("_")
+    if not cleaned or not cleaned[0].isalpha():
+        cleaned = f"core_{cleaned}".rstrip("_")
+    if "core" not in cleaned or name_problem(cleaned) is not None:
+        cleaned = f"{cleaned[: MAX_NAME_LENGTH - 5].rstrip('_')}_core"
+    if name_problem(cleaned) is not None:  # a word that may not start a name: put one before it
+        cleaned = f"core_{cleaned[: MAX_NAME_LENGTH - 5]}"
+    return cleaned if name_problem(cleaned) is None else "nco_core"
+
+
+def _check_name(value: Any) -> str:
+    if not isinstance(value, str):
         raise ConfigError(
-            "name", value, allowed + f" ('{value}' is a reserved word)", f'pick another, e.g. name = "{value}_core"'
+            "name",
+            value,
+            _NAME_RULE,
+            'write it as a quoted string, e.g. name = "nco_core"',
+            suggestion={"name": "nco_core"},
         )
-    if len(value) > 128:
-        raise ConfigError("name", value, allowed + " of at most 128 characters", "shorten it")
+    problem = name_problem(value)
+    if problem is not None:
+        better = suggest_name(value)
+        raise ConfigError(
+            "name", value, f"{_NAME_RULE}, not a reserved word ({problem})", f'use name = "{better}"',
+            suggestion={"name": better},
+        )  # fmt: skip
     return value
 
 
@@ -225,25 +347,34 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
             key,
             raw[key],
             "not a known field; known fields are " + ", ".join(_FIELDS),
-            f"remove '{key}' or correct its spelling{_closest(key, _FIELDS)}",
+            f"remove {show_value(key)} or correct its spelling{_closest(key, _FIELDS)}",
+            suggestion={key: None},
         )
     if "name" not in raw:
-        raise ConfigError("name", "(missing)", "required", 'add a line such as name = "nco_core"')
+        raise ConfigError(
+            "name", "(missing)", "required", 'add a line such as name = "nco_core"', suggestion={"name": "nco_core"}
+        )
     if "function" not in raw:
         raise ConfigError(
-            "function", "(missing)", "required", 'add function = "sincos" (or one of rotate, atan2, mul, div, sinhcosh, exp, atanh, ln, sqrt)'
+            "function",
+            "(missing)",
+            "required",
+            'add function = "sincos" (or one of rotate, atan2, mul, div, sinhcosh, exp, atanh, ln, sqrt)',
+            suggestion={"function": "sincos"},
         )
     name = _check_name(raw["name"])
     function = _choice_field(raw, "function", FUNCTIONS)
     arch = _choice_field(raw, "architecture", ARCHITECTURES) if "architecture" in raw else "pipelined"
     angle_width = (
-        _int_field(raw, "angle_width", MIN_ANGLE_WIDTH, MAX_WIDTH) if "angle_width" in raw else 16
+        _int_field(raw, "angle_width", MIN_ANGLE_WIDTH, MAX_WIDTH, default=16) if "angle_width" in raw else 16
     )
-    data_width = _int_field(raw, "data_width", MIN_DATA_WIDTH, MAX_WIDTH) if "data_width" in raw else 16
+    data_width = (
+        _int_field(raw, "data_width", MIN_DATA_WIDTH, MAX_WIDTH, default=16) if "data_width" in raw else 16
+    )
     iterations = _int_field(raw, "iterations", 1, MAX_ITERATIONS, auto=True) if "iterations" in raw else None
     guard_bits = _int_field(raw, "guard_bits", 0, 16, auto=True) if "guard_bits" in raw else None
     rounding = _choice_field(raw, "rounding", ROUNDING_MODES) if "rounding" in raw else "half_even"
-    tag_width = _int_field(raw, "tag_width", 0, MAX_TAG_WIDTH) if "tag_width" in raw else 0
+    tag_width = _int_field(raw, "tag_width", 0, MAX_TAG_WIDTH, default=0) if "tag_width" in raw else 0
     gain = _choice_field(raw, "gain", GAIN_MODES) if "gain" in raw else "compensated"
     angle_unit = _choice_field(raw, "angle_unit", ANGLE_UNITS) if "angle_unit" in raw else "turns"
     if function in ANGLE_FREE_FUNCTIONS:
@@ -258,7 +389,10 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
                     else "its ports carry no angle" if key != "gain"
                     else "its result is the angle z, which the gain does not scale"
                 )
-                raise ConfigError(key, raw[key], f'not used by function = "{function}" ({why})', f"remove {key}")
+                raise ConfigError(
+                    key, raw[key], f'not used by function = "{function}" ({why})', f"remove {key}",
+                    suggestion={key: None},
+                )  # fmt: skip
         angle_width = data_width
     if angle_unit == "radians" and angle_width < MIN_RADIAN_ANGLE_WIDTH:
         raise ConfigError(
@@ -267,6 +401,7 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
             f"at least {MIN_RADIAN_ANGLE_WIDTH} with angle_unit = \"radians\" (3 integer bits and "
             "3 fraction bits at the least)",
             f"set angle_width = {MIN_RADIAN_ANGLE_WIDTH} or more",
+            suggestion={"angle_width": MIN_RADIAN_ANGLE_WIDTH},
         )
     assert angle_width is not None and data_width is not None and tag_width is not None
     prenormalise = True
@@ -288,14 +423,21 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
     max_error = raw.get("max_error_lsb", 1.0)
     if isinstance(max_error, bool) or not isinstance(max_error, int | float):
         raise ConfigError(
-            "max_error_lsb", max_error, "a number of output LSBs from 0.5 to 1e6", "write e.g. max_error_lsb = 1.0"
+            "max_error_lsb",
+            max_error,
+            "a number of output LSBs from 0.5 to 1e6",
+            "write e.g. max_error_lsb = 1.0",
+            suggestion={"max_error_lsb": 1.0},
         )
     if not 0.5 <= float(max_error) <= 1e6:
+        # nan compares false both ways: it lands here and gets the usual budget.
+        nearest = 1e6 if float(max_error) > 1e6 else 1.0
         raise ConfigError(
             "max_error_lsb",
             max_error,
             "a number from 0.5 to 1e6 (below 0.5 LSB no rounded output can be that close)",
-            "set max_error_lsb = 1.0 or larger",
+            f"set max_error_lsb = {nearest:g}" + (" or less" if nearest > 1 else " or larger"),
+            suggestion={"max_error_lsb": nearest},
         )
 
     depth: int | None = None
@@ -306,20 +448,24 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
                 "iterations_per_cycle",
                 raw["iterations_per_cycle"],
                 'only used when architecture = "iterative"',
-                'remove it, or set architecture = "iterative"',
+                'remove iterations_per_cycle, or set architecture = "iterative"',
+                suggestion={"iterations_per_cycle": None},
             )
         if "pipeline_depth" in raw:
-            depth = _int_field(raw, "pipeline_depth", 1, MAX_ITERATIONS)
+            depth = _int_field(raw, "pipeline_depth", 1, MAX_ITERATIONS, default=None)
     else:
         if "pipeline_depth" in raw:
             raise ConfigError(
                 "pipeline_depth",
                 raw["pipeline_depth"],
                 'only used when architecture = "pipelined"',
-                'remove it, or set architecture = "pipelined"',
+                'remove pipeline_depth, or set architecture = "pipelined"',
+                suggestion={"pipeline_depth": None},
             )
         per_cycle = (
-            _int_field(raw, "iterations_per_cycle", 1, MAX_ITERATIONS) if "iterations_per_cycle" in raw else 1
+            _int_field(raw, "iterations_per_cycle", 1, MAX_ITERATIONS)
+            if "iterations_per_cycle" in raw
+            else 1
         )
 
     if iterations is not None:
@@ -329,6 +475,7 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
                 depth,
                 f"from 1 to iterations ({iterations}): one register stage per iteration at most",
                 f"set pipeline_depth to at most {iterations}",
+                suggestion={"pipeline_depth": iterations},
             )
         if per_cycle is not None and per_cycle > iterations:
             raise ConfigError(
@@ -336,6 +483,7 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
                 per_cycle,
                 f"from 1 to iterations ({iterations})",
                 f"set iterations_per_cycle to at most {iterations}",
+                suggestion={"iterations_per_cycle": iterations},
             )
 
     return CoreSpec(
@@ -358,28 +506,63 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
 
 
 def load_config(path: str | Path) -> CoreSpec:
-    """Read and validate a TOML config file.
+    """Read and validate a TOML config file (UTF-8, with or without a byte-order mark).
 
     Raises:
-        ConfigError: if the file is missing, is not TOML, or holds a bad value (the error names
-            the file).
+        ConfigError: if the file is missing, unreadable, not TOML, or holds a bad value (the
+            error names the file).
     """
     path = Path(path)
-    source = str(path)
-    if not path.is_file():
-        what = "is a folder" if path.is_dir() else "does not exist"
-        raise ConfigError(
-            "", f"config file '{path}' {what}", "a TOML file describing one core is needed",
-            "check the path, or start from one of the examples in sim_projects/*/config.toml",
-        )
-    try:
-        raw = tomllib.loads(path.read_text(encoding="utf-8"))
-    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
-        raise ConfigError(
-            "", f"config file is not valid TOML ({exc})", "TOML syntax (key = value, strings in quotes)",
-            "correct the line named above",
-        ).with_source(source) from None
+    raw = read_toml(path, what="config file", example="sim_projects/*/config.toml")
     try:
         return parse_config(raw)
     except ConfigError as exc:
-        raise exc.with_source(source) from None
+        raise exc.with_source(str(path)) from None
+
+
+def read_toml(path: Path, *, what: str, example: str) -> dict[str, Any]:
+    """The tables of a TOML file, or a :class:`ConfigError` saying why there are none.
+
+    A UTF-8 byte-order mark, which some editors write, is dropped (TOML 1.0 has no rule for it
+    and ``tomllib`` refuses it as an invalid statement).
+    """
+    source = str(path)
+    try:
+        is_file, is_dir = path.is_file(), path.is_dir()
+    except (OSError, ValueError):  # e.g. a name too long for the file system
+        is_file = is_dir = False
+    if not is_file:
+        state = "is a folder" if is_dir else "does not exist"
+        raise ConfigError(
+            "", f"{what} '{path}' {state}", "a TOML file is needed",
+            f"check the path, or start from one of the examples in {example}",
+        )  # fmt: skip
+    try:
+        text = path.read_text(encoding="utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise ConfigError(
+            "", f"{what} is not UTF-8 text (byte {exc.start}: {exc.reason})", "a UTF-8 TOML file",
+            "save it as UTF-8 text",
+        ).with_source(source) from None  # fmt: skip
+    except OSError as exc:
+        raise ConfigError(
+            "", f"{what} cannot be read ({exc.strerror or exc})", "a readable file",
+            "check the file's permissions",
+        ).with_source(source) from None  # fmt: skip
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise ConfigError(
+            "", f"{what} is not valid TOML ({exc})", "TOML syntax (key = value, strings in quotes)",
+            "correct the line named above",
+        ).with_source(source) from None  # fmt: skip
+    except RecursionError:
+        raise ConfigError(
+            "", f"{what} nests arrays or tables too deeply to read", "a flat TOML file (key = value lines)",
+            "remove the nested arrays or tables",
+        ).with_source(source) from None  # fmt: skip
+    except ValueError as exc:  # e.g. an integer of more digits than Python converts (4300)
+        raise ConfigError(
+            "", f"{what} holds a value that cannot be read ({exc})", "TOML values of sensible size",
+            "shorten the long number",
+        ).with_source(source) from None  # fmt: skip

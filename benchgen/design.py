@@ -37,6 +37,7 @@ from benchgen.functions import (
     int64_model,
     join_inputs,
     measure,
+    output_ports,
     random_inputs,
 )
 from benchgen.model import evaluate_function, sincos, to_signed
@@ -45,6 +46,7 @@ from benchgen.reference import ErrorStats, error_stats, ideal_sincos
 __all__ = [
     "EXHAUSTIVE_LIMIT_BITS",
     "MAX_AUTO_GUARD_BITS",
+    "MAX_PORT_WIDTH",
     "Design",
     "Proof",
     "build_design",
@@ -55,6 +57,9 @@ __all__ = [
     "sizing_evidence",
 ]
 
+MAX_PORT_WIDTH = 64
+"""Widest data port: the bulk harness packs each port into a slot of at most 8 bytes, and its C++
+runner moves ports as 64-bit integers (benchgen/harness.py)."""
 MAX_AUTO_GUARD_BITS = 16
 _SIZING_SEED = 20261202
 # sincos helpers for plots and tests: whole angle spaces up to 2**20 codes.
@@ -281,6 +286,12 @@ class _Prover:
         self.search = join_inputs(self.search, inputs)
         self.search_ideal = ideal_outputs(self.probe, self.search, with_gain=False)
 
+    def worst(self, dp: Datapath) -> float:
+        """The candidate's worst error over the full check (no early stop)."""
+        stats = self.check(dp, float("inf"))
+        assert stats is not None
+        return stats.max_error_lsb
+
     def check(self, dp: Datapath, budget: float) -> ErrorStats | None:
         """The full check: the candidate's statistics if it meets the budget, else None (and
         its worst inputs are learned)."""
@@ -361,12 +372,18 @@ def clear_sizing_cache() -> None:
 
 def _size(spec: CoreSpec, progress: Progress | None = None) -> tuple[int, int, ErrorStats, Proof]:
     """Smallest iterations, then smallest guard bits, meeting the target over the full check
-    (fields fixed by the spec stay)."""
+    (fields fixed by the spec stay).
+
+    Raises:
+        ConfigError: if no size meets the target, with a fix (``suggestion``) that is accepted:
+            either tried here, or a budget above an error measured inside the search space.
+    """
     cached = _SIZES.get(spec)
     if cached is not None:
         return cached
     prover = _prover(spec, progress)
     budget = spec.max_error_lsb
+    g_top = spec.guard_bits if spec.guard_bits is not None else MAX_AUTO_GUARD_BITS
 
     def candidate(n: int, g: int) -> Datapath | None:
         try:
@@ -380,13 +397,19 @@ def _size(spec: CoreSpec, progress: Progress | None = None) -> tuple[int, int, E
         return any(dp is not None and not prover.rejects(dp, budget) for dp in (candidate(n, g) for g in g_range))
 
     if spec.iterations is not None:
-        # Refuse iterations that no allowed guard-bit count can hold, with the width message.
-        make_datapath(spec, spec.iterations, spec.guard_bits if spec.guard_bits is not None else MAX_AUTO_GUARD_BITS)
+        # Iterations that no allowed guard-bit count can hold are refused with the width
+        # message, and a count the width does hold as the fix.
+        try:
+            make_datapath(spec, spec.iterations, g_top)
+        except ConfigError as exc:
+            raise _fit_iterations(spec, g_top, exc) from None
         n_range = [spec.iterations]
     else:
         # The fewest iterations the search set allows (a lower bound: below it every guard-bit
-        # count fails on real inputs). Start near the answer, about data_width iterations.
-        n = max(1, spec.data_width - 2)
+        # count fails on real inputs). Start near the answer, about data_width iterations, at a
+        # count the data path holds with the most guard bits allowed (a linear z of few
+        # fraction bits holds fewer), and walk down while the search set is met, else up.
+        n = max(1, min(spec.data_width - 2, _largest_n(spec, g_top) or 1))
         if passes_search(n):
             while n > 1 and passes_search(n - 1):
                 n -= 1
@@ -404,47 +427,123 @@ def _size(spec: CoreSpec, progress: Progress | None = None) -> tuple[int, int, E
                 result = (n, g, stats, prover.proof())
                 _SIZES[spec] = result
                 return result
-        if spec.iterations is None and not passes_search(n) and n > n_range[0] + 8:
-            break  # far past the bound with nothing passing: give up with the message below
-    _refuse(spec, prover)
-    raise AssertionError("unreachable")  # pragma: no cover
+    raise _missed_budget(spec, prover)
 
 
 _SIZES: dict[CoreSpec, tuple[int, int, ErrorStats, Proof]] = {}
 
 
-def _refuse(spec: CoreSpec, prover: _Prover) -> None:
-    """Nothing met the target: say which field to change, with a value that the tool accepts."""
-    best_n = spec.iterations if spec.iterations is not None else MAX_ITERATIONS
-    best_g = spec.guard_bits if spec.guard_bits is not None else MAX_AUTO_GUARD_BITS
-    best_g = max(best_g, 0)
-    best_n = min(best_n, make_datapath(spec, MIN_Z_ONLY_ITERATIONS, best_g).xy_width)
+def _feasible(spec: CoreSpec, n: int, g: int) -> bool:
     try:
-        achieved = measure(make_datapath(spec, best_n, best_g), prover.search, prover.search_ideal).max_error_lsb
+        make_datapath(spec, n, g)
     except ConfigError:
-        achieved = float("inf")
-    if spec.iterations is not None and spec.guard_bits is not None:
-        field, value = "iterations", spec.iterations
-        fix = (
-            f'raise iterations/guard_bits (or set both to "auto"), or set max_error_lsb = '
-            f"{np.ceil(achieved * 100) / 100:.2f} to accept this accuracy"
-        )
-    elif spec.iterations is not None:
-        field, value = "iterations", spec.iterations
-        fix = f'set iterations = "auto" or a larger number, or max_error_lsb >= {np.ceil(achieved * 100) / 100:.2f}'
-    elif spec.guard_bits is not None:
-        field, value = "guard_bits", spec.guard_bits
-        fix = f'set guard_bits = "auto" or a larger number, or max_error_lsb >= {np.ceil(achieved * 100) / 100:.2f}'
-    else:
-        field, value = "max_error_lsb", spec.max_error_lsb
-        wider = "angle_width" if spec.function in ("sincos", "rotate", "atan2") else "data_width"
-        fix = f"raise max_error_lsb to {np.ceil(achieved * 100) / 100:.2f} or more, or widen {wider}"
-    raise ConfigError(
+        return False
+    return True
+
+
+def _largest_n(spec: CoreSpec, g: int) -> int | None:
+    """The most iterations a data path with ``g`` guard bits holds (``None``: no count fits)."""
+    return next((n for n in range(MAX_ITERATIONS, 0, -1) if _feasible(spec, n, g)), None)
+
+
+def _budget_above(error: float) -> float | None:
+    """The smallest budget with two decimals that ``error`` stays strictly below, if allowed."""
+    if not np.isfinite(error):
+        return None
+    budget = float(f"{np.floor(error * 100) / 100 + 0.01:.2f}")
+    while budget <= error:  # float rounding can leave it at or below the error
+        budget = float(f"{budget + 0.01:.2f}")
+    budget = max(budget, 0.5)
+    return budget if budget <= 1e6 else None
+
+
+def _as_toml(value: object) -> str:
+    return f'"{value}"' if isinstance(value, str) else f"{value}"
+
+
+def _changed(spec: CoreSpec, change: dict[str, object]) -> CoreSpec:
+    values = {k: (None if v == "auto" else v) for k, v in change.items()}
+    return replace(spec, **values)  # type: ignore[arg-type]
+
+
+def _accepted(spec: CoreSpec, change: dict[str, object]) -> bool:
+    """Whether the sizer accepts ``spec`` with ``change`` applied (tried, not guessed)."""
+    try:
+        _size(_changed(spec, change))
+    except ConfigError:
+        return False
+    return True
+
+
+def _fit_iterations(spec: CoreSpec, g: int, exc: ConfigError) -> ConfigError:
+    """The width refusal of fixed iterations, with a count that fits as the fix (and a budget
+    that this count then meets, where it misses the one set)."""
+    top = _largest_n(spec, g)
+    fits = [n for n in range(1, (top or 0) + 1) if _feasible(spec, n, g)]
+    if not fits:
+        return exc
+    n = min(fits, key=lambda k: abs(k - (spec.iterations or 0)))
+    change: dict[str, object] = {"iterations": n}
+    try:
+        _size(_changed(spec, change))
+    except ConfigError as more:
+        if more.suggestion is None:
+            return exc
+        change |= more.suggestion
+    fix = " and ".join(f"{k} = {_as_toml(v)}" for k, v in change.items())
+    return ConfigError(exc.field, exc.value, exc.allowed, f"set {fix}", suggestion=change)
+
+
+def _missed_budget(spec: CoreSpec, prover: _Prover) -> ConfigError:
+    """No size meets ``max_error_lsb``: say how close the largest size gets, and what is accepted."""
+    g = spec.guard_bits if spec.guard_bits is not None else MAX_AUTO_GUARD_BITS
+    n = spec.iterations if spec.iterations is not None else _largest_n(spec, g)
+    achieved = float("inf")
+    if n is not None:
+        achieved = prover.worst(make_datapath(spec, n, g))
+    # (n, g) lies inside the search space the sizer walks, and this is the full check's measure
+    # of it, so any budget above `achieved` is met there: the budget fix needs no second run.
+    budget = _budget_above(max(achieved, spec.max_error_lsb))
+    fixes: list[tuple[str, dict[str, object]]] = []
+    fixed = [f for f in ("iterations", "guard_bits") if getattr(spec, f) is not None]
+    for fields in [[f] for f in fixed] + ([fixed] if len(fixed) == 2 else []):
+        change: dict[str, object] = {f: "auto" for f in fields}
+        if _accepted(spec, change):
+            text = " and ".join(f'{f} = "auto"' for f in fields)
+            fixes.append((f"set {text}", change))
+            break
+    if budget is not None:
+        fixes.append((f"set max_error_lsb = {budget:.2f} to accept this accuracy", {"max_error_lsb": budget}))
+    field, value = (fixed[0], getattr(spec, fixed[0])) if fixed else ("max_error_lsb", spec.max_error_lsb)
+    where = f" ({n} iterations, {g} guard bits)" if n is not None else ""
+    return ConfigError(
         field,
         value,
-        f"the core must meet max_error_lsb = {spec.max_error_lsb} against the ideal; "
-        f"the best this allows is {achieved:.3f} LSB",
-        fix,
+        f"the worst error against the ideal must stay below max_error_lsb = {spec.max_error_lsb}; "
+        f"the best these sizes reach is {achieved:.4f} LSB{where}",
+        # No fix without proof: past a budget of 1e6 only a different core can help.
+        ", or ".join(text for text, _ in fixes) if fixes else "no allowed budget is met; change data_width or the function",
+        suggestion=fixes[0][1] if fixes else None,
+    )
+
+
+def _check_port_widths(spec: CoreSpec) -> None:
+    """Refuse, before any sizing, a core with a port wider than :data:`MAX_PORT_WIDTH`: some
+    outputs are wider than data_width (a product or a magnitude needs a bit more, a raw gain one
+    or two), so a 64-bit data_width does not fit every function."""
+    probe = make_datapath(spec, MIN_Z_ONLY_ITERATIONS, MAX_AUTO_GUARD_BITS)
+    widest = max(input_ports(probe) + output_ports(probe), key=lambda port: port.width)
+    if widest.width <= MAX_PORT_WIDTH:
+        return
+    extra = widest.width - spec.data_width
+    fits = MAX_PORT_WIDTH - extra
+    raise ConfigError(
+        "data_width",
+        spec.data_width,
+        f"at most {fits} here: port {widest.name} is data_width + {extra} bits, and ports are at "
+        f"most {MAX_PORT_WIDTH} bits wide",
+        f"set data_width = {fits}",
+        suggestion={"data_width": fits},
     )
 
 
@@ -474,9 +573,13 @@ def build_design(spec: CoreSpec, *, progress: Progress | None = None) -> Design:
         ConfigError: if the sizes cannot meet the error target, or the architecture does not fit
             the iteration count.
     """
+    _check_port_widths(spec)
     n, g, stats, proof = _size(_arithmetic(spec), progress)
     dp = make_datapath(spec, n, g)
-    timing: Timing = make_timing(spec, n)
+    try:
+        timing: Timing = make_timing(spec, n)
+    except ConfigError as exc:  # more stages than iterations: as many as there are is accepted
+        raise ConfigError(exc.field, exc.value, exc.allowed, exc.fix, suggestion={exc.field: n}) from None
     auto = tuple(f for f, v in (("iterations", spec.iterations), ("guard_bits", spec.guard_bits)) if v is None)
     return Design(
         spec=spec,

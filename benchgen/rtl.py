@@ -7,7 +7,9 @@ config: no timestamps, no absolute paths, sorted iteration everywhere.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+import re
+from dataclasses import dataclass, replace
+from functools import cache
 from importlib import resources
 from pathlib import Path
 from typing import Any
@@ -15,10 +17,38 @@ from typing import Any
 import jinja2
 
 from benchgen import __version__
+from benchgen.config import MAX_NAME_LENGTH, name_problem
 from benchgen.design import Design
+from benchgen.errors import ConfigError
 from benchgen.functions import input_ports, output_ports, small_vector_limit
 
-__all__ = ["Iteration", "build_context", "render_core", "template_dir", "template_environment", "verilog_literal"]
+__all__ = [
+    "MAX_HEADER_LINE",
+    "Iteration",
+    "build_context",
+    "check_module_name",
+    "header_lines",
+    "render_core",
+    "template_dir",
+    "template_environment",
+    "verilog_literal",
+]
+
+MAX_HEADER_LINE = 200
+"""Characters of a config line copied into the RTL header; a longer line is cut there. Icarus
+Verilog 11 stops with "input buffer overflow" on a line of about 16 KiB (16,382 bytes passed,
+16,383 failed, measured here); config.toml in the project keeps every line whole."""
+
+def header_lines(config_text: str) -> list[str]:
+    """The config text as the RTL header shows it: no byte-order mark, no trailing blanks, long
+    lines cut to :data:`MAX_HEADER_LINE` characters."""
+    out = []
+    for raw in config_text.lstrip("\ufeff").strip().splitlines():
+        line = raw.rstrip()
+        if len(line) > MAX_HEADER_LINE:
+            line = f"{line[:MAX_HEADER_LINE]} [cut: {len(line) - MAX_HEADER_LINE} more characters in config.toml]"
+        out.append(line)
+    return out
 
 
 def template_dir() -> Path:
@@ -459,7 +489,7 @@ def build_context(design: Design, *, config_text: str = "") -> dict[str, Any]:
         "accuracy": design.accuracy,
         "proof_lines": _wrap("measured over " + design.proof.describe() + ".", 92),
         "small_vector": small_vector_limit(dp),
-        "config_lines": [line.rstrip() for line in config_text.strip().splitlines()],
+        "config_lines": header_lines(config_text),
         "tag": spec.tag_width > 0,
         "tag_width": spec.tag_width,
         "inputs": input_ports(dp),
@@ -541,8 +571,12 @@ def _wrap(text: str, width: int) -> list[str]:
     return lines
 
 
+@cache
 def template_environment() -> jinja2.Environment:
-    """The one Jinja2 environment of every generated file: strict, no autoescape, stable spacing."""
+    """The one Jinja2 environment of every generated file: strict, no autoescape, stable spacing.
+
+    Made once per process, so each template is compiled once (compiling is most of a render's
+    time; the loader still reloads a template whose file changed)."""
     return jinja2.Environment(
         loader=jinja2.FileSystemLoader(str(template_dir())),
         undefined=jinja2.StrictUndefined,
@@ -566,3 +600,44 @@ def render_core(design: Design, *, config_text: str = "") -> str:
     while lines and not lines[-1]:
         lines.pop()
     return "\n".join(lines) + "\n"
+
+
+_COMMENT_OR_STRING = re.compile(r"//[^\n]*|/\*.*?\*/|\"(?:\\.|[^\"\\])*\"", re.DOTALL)
+_TOKEN = re.compile(r"[A-Za-z_][A-Za-z0-9_$]*")
+
+
+def _name_uses(verilog: str, name: str) -> int:
+    """How often ``name`` appears as an identifier in Verilog text, comments and strings aside."""
+    return sum(1 for t in _TOKEN.findall(_COMMENT_OR_STRING.sub(" ", verilog)) if t == name)
+
+
+def check_module_name(design: Design) -> None:
+    """Refuse a core name that is also the name of a port, signal or constant inside the core.
+
+    Such a core is legal Verilog, but ``verilator -Wall`` warns that the inner declaration hides
+    the module (VARHIDDEN, e.g. for a core named ``advance`` or ``clk``), and the generated RTL
+    must lint clean. Which names the core uses depends on the function and the architecture, so
+    the rendered core is read, not a fixed list.
+
+    Raises:
+        ConfigError: naming a close name that is free (tried the same way) as the fix.
+    """
+    name = design.spec.name
+    if _name_uses(render_core(design), name) <= 1:  # the module declaration itself
+        return
+    for suffix in ("core", "top", "unit", "cordic"):
+        better = f"{name[: MAX_NAME_LENGTH - len(suffix) - 1]}_{suffix}"
+        if name_problem(better) is None:
+            trial = replace(design, spec=replace(design.spec, name=better))
+            if _name_uses(render_core(trial), better) <= 1:
+                break
+    else:  # pragma: no cover - four suffixes all taken inside one core
+        better = "nco_core"
+    raise ConfigError(
+        "name",
+        name,
+        "a name that no port, signal or constant inside the core also has (the inner one would "
+        "hide the module: verilator -Wall, VARHIDDEN)",
+        f'use name = "{better}"',
+        suggestion={"name": better},
+    )

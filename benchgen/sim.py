@@ -7,11 +7,13 @@ pooled here into the run's report.
 from __future__ import annotations
 
 import contextlib
+import hashlib
 import json
 import os
 import secrets
 import shutil
 import sys
+import tempfile
 import time
 from collections.abc import Iterator
 from dataclasses import dataclass, field
@@ -20,10 +22,10 @@ from typing import Any
 
 from benchgen.bench.bulk_plan import FULL_RATE_TESTS, bulk_plan, bulk_run_args
 from benchgen.errors import BenchgenError
-from benchgen.project import design_from_manifest, load_manifest
+from benchgen.project import ProjectError, design_from_manifest, load_manifest
 from benchgen.simulators import SIMULATORS, SimulatorMissing, find_simulator, simulator_env
 
-__all__ = ["BULK_ENGINES", "SimError", "SimReport", "run_sim"]
+__all__ = ["BULK_ENGINES", "SimError", "SimReport", "run_sim", "space_free_build_dir"]
 
 BULK_ENGINES = ("auto", "native", "cocotb")
 
@@ -230,6 +232,8 @@ def run_sim(
     top = manifest["toplevel"]
     folder = simulator + ("_native" if native else "_bulk" if bulk else "")
     build = Path(build_dir).resolve() if build_dir else project / "build" / folder
+    if simulator == "verilator":
+        build = space_free_build_dir(build)
     build.mkdir(parents=True, exist_ok=True)
     # The bench appends one line per test to its results file. Each run gets files of its own
     # (a fresh name), published under the usual names with os.replace when the run is over: a
@@ -388,6 +392,30 @@ def _copy_csv(written: Path, wanted: str | Path | None) -> None:
     if wanted and written.is_file():
         shutil.copyfile(written, wanted)
         written.unlink()
+
+
+def space_free_build_dir(build: Path) -> Path:
+    """``build``, or where to build instead when its path holds a space.
+
+    Verilator's make files stop in such a folder (its include/verilated.mk: "GNU Make cannot
+    build in directories containing spaces"), while Verilator itself reads sources from one.
+    The build then goes to a folder under the system's temporary folder named after ``build``'s
+    path, so a re-run of the same project finds its earlier build there.
+
+    Raises:
+        ProjectError: if the temporary folder's path holds a space too.
+    """
+    if not any(c.isspace() for c in str(build)):
+        return build
+    key = hashlib.sha256(str(build).encode()).hexdigest()[:16]
+    elsewhere = Path(tempfile.gettempdir()).resolve() / "benchgen-build" / key / build.name
+    if any(c.isspace() for c in str(elsewhere)):
+        raise ProjectError(
+            f"Verilator cannot build in '{build}' (GNU make refuses a path with a space) nor in the "
+            f"temporary folder '{tempfile.gettempdir()}'; move the project to a path without "
+            "spaces, set TMPDIR to one, or use --simulator icarus"
+        )
+    return elsewhere
 
 
 def _run_native(

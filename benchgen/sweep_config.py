@@ -38,15 +38,15 @@ import hashlib
 import itertools
 import json
 import re
-import tomllib
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from benchgen.config import parse_config
+from benchgen.config import parse_config, read_toml
 from benchgen.design import build_design
-from benchgen.errors import BenchgenError, ConfigError
+from benchgen.errors import BenchgenError, ConfigError, one_line, show_value
+from benchgen.rtl import check_module_name
 from benchgen.simulators import SIMULATORS
 
 __all__ = [
@@ -182,12 +182,16 @@ class SweepSpec:
 
 
 def _bad(where: str, key: str, value: Any, allowed: str, fix: str) -> SweepError:
-    shown = json.dumps(value) if not isinstance(value, str) else repr(value)
-    return SweepError(where, [f"[{key}] = {shown} is not valid: {allowed}. Fix: {fix}"])
+    return SweepError(where, [f"[{one_line(key, 80)}] = {show_value(value)} is not valid: {allowed}. Fix: {fix}"])
 
 
 def _scalar(value: Any) -> bool:
     return isinstance(value, str | int | float | bool)
+
+
+def _file_safe(text: str) -> str:
+    """``text`` as a sweep name: runs of other characters become '_' (``"sweep"`` if none is left)."""
+    return re.sub(r"[^A-Za-z0-9_.-]+", "_", text).strip("_.-")[:100] or "sweep"
 
 
 def parse_sweep(raw: Mapping[str, Any], *, source: str = "") -> SweepSpec:
@@ -207,9 +211,14 @@ def parse_sweep(raw: Mapping[str, Any], *, source: str = "") -> SweepSpec:
         if key not in _SWEEP_KEYS:
             raise _bad(source, f"sweep.{key}", sweep[key], "known keys are " + ", ".join(_SWEEP_KEYS),
                        f"remove '{key}' (core fields belong in [base] or [matrix])")
-    name = sweep.get("name", Path(source).stem if source else "sweep")
-    if not isinstance(name, str) or not re.fullmatch(r"[A-Za-z0-9_.-]+", name):
-        raise _bad(source, "sweep.name", name, "letters, digits, '_', '-', '.'", 'e.g. name = "nco_depths"')
+    if "name" in sweep:
+        name = sweep["name"]
+        if not isinstance(name, str) or not re.fullmatch(r"[A-Za-z0-9_.-]{1,100}", name):
+            better = _file_safe(name if isinstance(name, str) else "")
+            raise _bad(source, "sweep.name", name, "1 to 100 letters, digits, '_', '-', '.'", f'name = "{better}"')
+    else:
+        # Not written: named after the file, made file-safe ("my core.toml" -> "my_core").
+        name = _file_safe(Path(source).stem if source else "")
     sims = sweep.get("simulators", ["icarus"])
     if isinstance(sims, str):
         sims = [sims]
@@ -300,12 +309,10 @@ def load_sweep(path: str | Path) -> SweepSpec:
         SweepError: if the file is missing, not TOML or badly shaped.
     """
     path = Path(path)
-    if not path.is_file():
-        raise SweepError(str(path), ["the sweep file does not exist; check the path (examples: sim_projects/sweeps/)"])
     try:
-        raw = tomllib.loads(path.read_text(encoding="utf-8"))
-    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
-        raise SweepError(str(path), [f"not valid TOML ({exc}); correct the line named"]) from None
+        raw = read_toml(path, what="sweep file", example="sim_projects/sweeps/")
+    except ConfigError as exc:  # missing, unreadable, not TOML, nested too deeply
+        raise SweepError(str(path), [f"{one_line(str(exc.value))}: {exc.allowed}. Fix: {exc.fix}"]) from None
     if "base" not in raw and "name" in raw and "function" in raw:
         # A plain core config is a sweep of one point: one report format for one run or many.
         raw = {"base": raw}
@@ -375,9 +382,10 @@ def validate_points(points: list[Point]) -> list[str]:
     for core_id, p in by_core.items():
         label = " ".join(f"{k}={v}" for k, v in p.axes.items()) or core_id
         try:
-            build_design(parse_config(p.core))
+            check_module_name(build_design(parse_config(p.core)))
         except ConfigError as exc:
             problems.append(
-                f"point {label}: field '{exc.field}' = {exc.value!r}: {exc.allowed}. Fix: {exc.fix}"
+                f"point {label}: field '{one_line(exc.field, 80)}' = {show_value(exc.value)}: "
+                f"{one_line(exc.allowed, 600)}. Fix: {one_line(exc.fix, 600)}"
             )
     return problems
