@@ -201,7 +201,7 @@ async def test_gaps_and_stalls(dut: Any) -> None:
     for k, (p_idle, p_stall) in enumerate(((0.0, 0.0), (0.5, 0.0), (0.0, 0.5), (0.3, 0.7))):
         idle = rng.random(4099) < p_idle
         stall = rng.random(4093) < p_stall
-        cap = await tb.stream.run(tb.random(rng, count // 4), idle=idle, stall=stall)
+        cap = await tb.stream.run(tb.random(rng, count // 4), idle=idle, stall=stall, withdraw=True)
         tb.check("gaps_and_stalls", cap, result)
         if not cap.complete:
             result.problems.append(f"pattern {k}: {len(cap.out_cycles)} of {count // 4} samples came out")
