@@ -448,8 +448,8 @@ def _largest_n(spec: CoreSpec, g: int) -> int | None:
 
 def _budget_above(error: float) -> float | None:
     """The smallest budget with two decimals that ``error`` stays strictly below, if allowed."""
-    if not np.isfinite(error):
-        return None
+    if not np.isfinite(error) or error >= 1e6:
+        return None  # past the largest budget allowed (and where 0.01 steps vanish in a float)
     budget = float(f"{np.floor(error * 100) / 100 + 0.01:.2f}")
     while budget <= error:  # float rounding can leave it at or below the error
         budget = float(f"{budget + 0.01:.2f}")

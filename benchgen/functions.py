@@ -34,6 +34,7 @@ from benchgen.reference import (
 __all__ = [
     "EXHAUSTIVE_LIMIT_BITS",
     "Port",
+    "bench_corners",
     "corner_inputs",
     "directed_inputs",
     "enumerate_inputs",
@@ -509,6 +510,19 @@ def sizing_inputs(dp: Datapath, *, cheapest: Datapath | None = None) -> tuple[In
     rng = np.random.default_rng(_SIZING_SEED)
     fixed = join_inputs(corner_inputs(dp), directed_inputs(dp, seed=_SIZING_SEED))
     return join_inputs(fixed, random_inputs(dp, rng, count)), False
+
+
+BENCH_DIRECTED_SEED = 1241
+BENCH_DIRECTED_PER_OCTAVE = 8
+
+
+def bench_corners(dp: Datapath) -> Inputs:
+    """What a bench's corner test sends: the corners, then a small directed worst-case set
+    (:func:`directed_inputs`, a seed of its own and 8 random inputs per octave), so the RTL is
+    checked where each function is worst, not only where the model was sized."""
+    return join_inputs(
+        corner_inputs(dp), directed_inputs(dp, seed=BENCH_DIRECTED_SEED, per_octave=BENCH_DIRECTED_PER_OCTAVE)
+    )
 
 
 def join_inputs(*parts: Inputs) -> Inputs:

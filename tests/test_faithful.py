@@ -257,7 +257,7 @@ def test_directed_sets_reach_the_worst_regions() -> None:
 
 def _generate(tmp_path: Any, values: dict[str, Any]) -> Any:
     from benchgen.project import generate_project
-    from tests.conftest import write_config
+    from conftest import write_config
 
     out = tmp_path / "proj"
     generate_project(write_config(tmp_path / "core.toml", {"name": "faithful", **values}), out)
@@ -283,7 +283,7 @@ def _sim_json(project: Any, tmp_path: Any) -> tuple[int, dict[str, Any]]:
 def test_every_input_on_verilator(values: dict[str, Any], tmp_path: Any) -> None:
     """The RTL of the auto-sized 12-bit div and atan2 over all 2^24 input pairs (bulk bench,
     with idle and stall patterns): bit for bit with the model, every sample within budget."""
-    from tests.conftest import require_simulator
+    from conftest import require_simulator
 
     require_simulator("verilator")
     status, report = _sim_json(_generate(tmp_path, values), tmp_path)
@@ -296,7 +296,7 @@ def test_every_input_on_verilator(values: dict[str, Any], tmp_path: Any) -> None
 def test_exhaustive_run_counts_the_samples_over_budget_and_names_the_worst(tmp_path: Any) -> None:
     """A core judged against a tighter budget than it was built for: the exhaustive report says
     how many samples are over it and which input is worst, as the model predicts."""
-    from tests.conftest import require_simulator
+    from conftest import require_simulator
 
     require_simulator("verilator")
     values = {"function": "atan2", "data_width": 10, "angle_width": 10, "prenormalise": False,
@@ -332,3 +332,79 @@ def test_exhaustive_run_counts_the_samples_over_budget_and_names_the_worst(tmp_p
     errors = (abs(float(_wrap_turns(one["out_angle"] - named, 10)[0])), abs(float(one["out_magnitude"][0]) - math.hypot(at["in_x"], at["in_y"])))
     assert max(errors) == pytest.approx(expected_worst, abs=1e-9)
     assert any("not below the budget" in p and "judged samples" in p for p in report["problems"])
+
+
+@pytest.mark.sim
+def test_div_reproduction_on_verilator(tmp_path: Any) -> None:
+    """The default 16-bit div core's RTL at -5/3: its corner test sends the directed set (every
+    pair with abs(den) <= 16), so the sample is in the CSV, equal to the model and within budget."""
+    import csv
+
+    from benchgen.cli import main
+    from conftest import require_simulator
+
+    require_simulator("verilator")
+    project = _generate(tmp_path, {"function": "div"})
+    rows = tmp_path / "samples.csv"
+    status = main(["sim", str(project), "--simulator", "verilator", "--samples", "2000", "--seed", "5", "--csv", str(rows)])
+    assert status == 0
+    with rows.open() as fh:
+        hits = [r for r in csv.DictReader(fh) if r["in_num"] == "-5" and r["in_den"] == "3"]
+    assert hits and hits[0]["test"] == "corners"
+    row = hits[0]
+    assert row["out_quotient"] == row["model_out_quotient"] and row["out_domain_error"] == "0"
+    assert abs(int(row["out_quotient"]) - (-5 / 3 * 2**14)) < 1.0
+
+
+# --- What the project says about the proof ---------------------------------------------
+
+
+@pytest.mark.parametrize(
+    ("values", "method", "phrase"),
+    [
+        ({"function": "atan2", "data_width": 12, "angle_width": 12}, "exhaustive", "every one of the 16777216 input codes"),
+        ({"function": "div", "data_width": 18}, "sampled", "1000000 seeded random"),
+    ],
+    ids=["every-input", "sampled"],
+)
+def test_manifest_header_and_generate_say_how_the_accuracy_was_measured(
+    values: dict[str, Any], method: str, phrase: str, tmp_path: Any, capsys: pytest.CaptureFixture[str]
+) -> None:
+    import json
+
+    from benchgen.cli import main
+    from conftest import write_config
+
+    config = write_config(tmp_path / "core.toml", {"name": "told", **values})
+    assert main(["generate", str(config), "-o", str(tmp_path / "p")]) == 0
+    printed = capsys.readouterr().out
+    manifest = json.loads((tmp_path / "p" / "manifest.json").read_text())
+    proof = manifest["error_budget"]["proof"]
+    assert proof["method"] == method and manifest["error_budget"]["model_samples"] == proof["inputs"]
+    if method == "exhaustive":
+        assert proof["inputs"] == 1 << 24 and proof["random"] == 0
+    else:
+        assert proof["random"] == 1_000_000 and proof["directed"] > 1000
+        assert proof["inputs"] == proof["random"] + proof["directed"]
+    header = (tmp_path / "p" / "rtl" / "told.v").read_text().split("module told")[0]
+    assert phrase in " ".join(line.lstrip("/ ") for line in header.splitlines())
+    assert phrase in printed and phrase in manifest["error_budget"]["measured_on"]
+
+
+def test_generate_shows_progress_only_after_two_seconds(monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[str]) -> None:
+    from benchgen import cli
+
+    now = [100.0]
+    monkeypatch.setattr(cli.time, "monotonic", lambda: now[0])
+    progress = cli._Progress()
+    progress("checking 12 iterations")  # at once: silent
+    now[0] += 1.5
+    progress("checking 13 iterations")  # 1.5 s: still silent
+    now[0] += 1.0
+    progress("checking every input: 25%")  # 2.5 s: shown
+    now[0] += 0.5
+    progress("checking every input: 50%")  # half a second later: held back
+    now[0] += 1.0
+    progress("checking every input: 75%")
+    err = capsys.readouterr().err.splitlines()
+    assert err == ["  sizing (2 s): checking every input: 25%", "  sizing (4 s): checking every input: 75%"]

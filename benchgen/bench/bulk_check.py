@@ -23,7 +23,7 @@ import numpy.typing as npt
 from benchgen.bench.scoreboard import FIRST_MISMATCHES, CheckResult, write_csv_rows
 from benchgen.design import Design
 from benchgen.functions import (
-    corner_inputs,
+    bench_corners,
     function_errors,
     ideal_outputs,
     input_ports,
@@ -124,8 +124,8 @@ class BulkFunction:
         return self._table is not None
 
     def corners(self) -> Inputs:
-        """The function's boundary inputs."""
-        return corner_inputs(self.dp)
+        """The function's boundary inputs and directed worst cases."""
+        return bench_corners(self.dp)
 
     def random(self, rng: np.random.Generator, count: int) -> Inputs:
         """Uniform random codes on every input port."""

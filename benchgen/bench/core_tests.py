@@ -22,7 +22,7 @@ from cocotb.clock import Clock
 from benchgen.bench.scoreboard import CheckResult, compare, record, write_csv_rows
 from benchgen.bench.stream import Capture, StreamBench
 from benchgen.design import Design
-from benchgen.functions import corner_inputs, function_errors, ideal_outputs, input_ports, output_ports, random_inputs
+from benchgen.functions import bench_corners, function_errors, ideal_outputs, input_ports, output_ports, random_inputs
 from benchgen.model import evaluate_function
 from benchgen.project import design_from_manifest, load_manifest
 
@@ -87,8 +87,8 @@ class CoreBench:
         return self.with_tags(random_inputs(self.dp, rng, count))
 
     def corners(self) -> dict[str, npt.NDArray[Any]]:
-        """The function's corner inputs, tags counting up."""
-        return self.with_tags(corner_inputs(self.dp))
+        """The function's corner inputs and directed worst cases, tags counting up."""
+        return self.with_tags(bench_corners(self.dp))
 
     def with_tags(self, stim: dict[str, npt.NDArray[Any]]) -> dict[str, npt.NDArray[Any]]:
         """Add counting tags (they wrap) when the core has a tag."""
