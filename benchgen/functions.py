@@ -647,6 +647,42 @@ def _angle_radians(dp: Datapath, codes: npt.ArrayLike) -> npt.NDArray[np.float64
     return signed * (2.0 * np.pi / 2.0**dp.angle_width)
 
 
+# Up to this width the float64 ideal of mul and div is exact to far below an LSB (a product of
+# two 26-bit values fits float64's 53 bits); wider ones are judged from exact integers.
+EXACT_FLOAT_LINEAR_BITS = 26
+
+
+def _exact_linear_errors(dp: Datapath, inputs: Inputs, outputs: dict[str, npt.NDArray[Any]]) -> npt.NDArray[np.float64]:
+    """mul and div errors in output LSBs from exact integer arithmetic: the difference between
+    the output and the exact result is formed as a ratio of integers and only then rounded to
+    float64, so it is exact to float64 precision at any width. div's ideal is clamped to the
+    format, as in :func:`function_errors`; out-of-domain pairs give NaN (not judged)."""
+    b = dp.data_width
+
+    def ints(values: npt.ArrayLike) -> npt.NDArray[np.object_]:
+        half = 1 << (b - 1)
+        mask = (1 << b) - 1
+        return np.array([((int(v) + half) & mask) - half for v in np.asarray(values).ravel()], dtype=object)
+
+    if dp.function == "mul":
+        a, m = ints(inputs["in_a"]), ints(inputs["in_b"])
+        got = np.array([int(v) for v in np.asarray(outputs["out_product"]).ravel()], dtype=object)
+        numer = got * (1 << (b - 1)) - a * m  # exact: (out - a m / 2^(b-1)) 2^(b-1)
+        return np.array([float(v) for v in numer], dtype=np.float64) / 2.0 ** (b - 1)
+    num, den = ints(inputs["in_num"]), ints(inputs["in_den"])
+    got = np.array([int(v) for v in np.asarray(outputs["out_quotient"]).ravel()], dtype=object)
+    scaled = num * (1 << (b - 2))  # the exact quotient is scaled / den
+    out = np.full(len(got), np.nan)
+    for k, (n2, d, q) in enumerate(zip(scaled, den, got, strict=True)):
+        if d == 0 or abs(n2) >= abs(d) << (b - 1):
+            continue  # outside the domain: not judged
+        if abs(n2) > dp.out_max * abs(d):  # beyond the format: judged against the clamped value
+            out[k] = float(q - (dp.out_max if (n2 < 0) == (d < 0) else -dp.out_max))
+        else:
+            out[k] = float(q * d - n2) / float(d)
+    return out
+
+
 def function_errors(
     dp: Datapath, inputs: Inputs, outputs: dict[str, npt.NDArray[Any]], ideal: dict[str, npt.NDArray[Any]] | None = None
 ) -> dict[str, npt.NDArray[np.float64]]:
@@ -682,9 +718,14 @@ def function_errors(
         num = np.asarray(inputs["in_num"]).astype(np.int64)
         den = np.asarray(inputs["in_den"]).astype(np.int64)
         inside = div_domain(dp, num, den)
-        clamped = np.clip(np.asarray(ideal["out_quotient"], dtype=np.float64), -dp.out_max, dp.out_max)
-        err = errors_lsb(outputs["out_quotient"], clamped)
+        if dp.data_width > EXACT_FLOAT_LINEAR_BITS:
+            err = _exact_linear_errors(dp, inputs, outputs)
+        else:
+            clamped = np.clip(np.asarray(ideal["out_quotient"], dtype=np.float64), -dp.out_max, dp.out_max)
+            err = errors_lsb(outputs["out_quotient"], clamped)
         errs["out_quotient"] = np.where(inside, err, np.nan)
+    if dp.function == "mul" and dp.data_width > EXACT_FLOAT_LINEAR_BITS:
+        errs["out_product"] = _exact_linear_errors(dp, inputs, outputs)
     if dp.function == "atan2":
         e = errs["out_angle"]
         if not dp.radians:
