@@ -628,6 +628,8 @@ def ideal_outputs(dp: Datapath, inputs: Inputs, *, with_gain: bool = True) -> di
         cos, sin = ideal_sincos(dp, inputs["in_angle"])
         ideal = {"out_cos": cos, "out_sin": sin}
         return apply_gain(dp, ideal) if with_gain else ideal
+    if dp.data_width > FLOAT64_MAX_DATA_WIDTH or dp.angle_width > FLOAT64_MAX_DATA_WIDTH:
+        return _ideal_circular_wide(dp, inputs, with_gain)
     x = np.asarray(inputs["in_x"], dtype=np.float64)
     y = np.asarray(inputs["in_y"], dtype=np.float64)
     growth = 1.0 if dp.gain_mode == "compensated" or not with_gain else 1.0 / float(dp.gain)
@@ -638,6 +640,37 @@ def ideal_outputs(dp: Datapath, inputs: Inputs, *, with_gain: bool = True) -> di
     theta = np.arctan2(y, x)
     angle = theta * 2.0**dp.angle_frac if dp.radians else theta / (2 * np.pi) * 2.0**dp.angle_width
     return {"out_angle": angle, "out_magnitude": growth * np.hypot(x, y)}
+
+
+def _ideal_circular_wide(dp: Datapath, inputs: Inputs, with_gain: bool) -> dict[str, npt.NDArray[Any]]:
+    """rotate and atan2 past float64's precision: mpmath at 40 digits (a 60-bit product in
+    float64 is off by up to 2^(60-53) LSB)."""
+    b = dp.data_width
+
+    def signed(values: npt.ArrayLike, width: int) -> list[int]:
+        half = 1 << (width - 1)
+        mask = (1 << width) - 1
+        return [((int(v) + half) & mask) - half for v in np.asarray(values).ravel()]
+
+    xs, ys = signed(inputs["in_x"], b), signed(inputs["in_y"], b)
+    with mpmath.workdps(_IDEAL_DPS):
+        growth = 1 / mpmath.mpf(dp.gain) if with_gain and dp.gain_mode == "raw" else mpmath.mpf(1)
+        if dp.function == "rotate":
+            a = dp.angle_width
+            codes = signed(inputs["in_angle"], a) if dp.radians else [int(v) & ((1 << a) - 1) for v in np.asarray(inputs["in_angle"]).ravel()]
+            out_x, out_y = [], []
+            for x, y, c in zip(xs, ys, codes, strict=True):
+                t = c / mpmath.mpf(2) ** dp.angle_frac if dp.radians else 2 * mpmath.pi * c / mpmath.mpf(2) ** a
+                cos, sin = mpmath.cos(t), mpmath.sin(t)
+                out_x.append(growth * (x * cos - y * sin))
+                out_y.append(growth * (x * sin + y * cos))
+            return {"out_x": np.array(out_x, dtype=object), "out_y": np.array(out_y, dtype=object)}
+        angles, mags = [], []
+        for x, y in zip(xs, ys, strict=True):
+            theta = mpmath.atan2(y, x)
+            angles.append(theta * mpmath.mpf(2) ** dp.angle_frac if dp.radians else theta / (2 * mpmath.pi) * mpmath.mpf(2) ** dp.angle_width)
+            mags.append(growth * mpmath.hypot(x, y))
+        return {"out_angle": np.array(angles, dtype=object), "out_magnitude": np.array(mags, dtype=object)}
 
 
 def _angle_radians(dp: Datapath, codes: npt.ArrayLike) -> npt.NDArray[np.float64]:
@@ -729,8 +762,21 @@ def function_errors(
     if dp.function == "atan2":
         e = errs["out_angle"]
         if not dp.radians:
-            full = 2.0**dp.angle_width
-            e = (e + full / 2) % full - full / 2
+            # A binary angle wraps: an error past half a turn is the same angle the other way.
+            # Formed exactly: (e + full/2) % full in float64 would round a small error away
+            # once the angle is wider than about 52 bits.
+            ideal_angle = np.asarray(ideal["out_angle"])
+            full = 1 << dp.angle_width
+            if ideal_angle.dtype == object:
+                with mpmath.workdps(_IDEAL_DPS):
+                    diffs = []
+                    for o, i in zip(np.asarray(outputs["out_angle"]).ravel(), ideal_angle.ravel(), strict=True):
+                        d = mpmath.mpf(int(o)) - i
+                        d = d - full * mpmath.nint(d / full)
+                        diffs.append(float(d))
+                e = np.array(diffs, dtype=np.float64).reshape(e.shape)
+            else:
+                e = np.where(np.abs(e) > full / 2, e - np.sign(e) * float(full), e)
         x = np.asarray(inputs["in_x"], dtype=np.float64)
         y = np.asarray(inputs["in_y"], dtype=np.float64)
         errs["out_angle"] = np.where(np.hypot(x, y) >= small_vector_limit(dp), e, np.nan)
