@@ -318,11 +318,14 @@ def estimate(
     *,
     place_and_route: bool = False,
     clock_mhz: float = 100.0,
+    seed: int = 1,
 ) -> Estimate:
     """Synthesise ``top`` inside its port-register wrapper for ``target``; optionally place and route.
 
     The counts in the result are of ``top`` alone (the wrapper's flip-flops are taken out); Fmax
-    covers every path of ``top``, port to register and register to port included.
+    covers every path of ``top``, port to register and register to port included. ``seed`` is
+    nextpnr's placer seed: Fmax varies from seed to seed by several percent, so a comparison
+    that must not hang on one placement (benchmarks/hardware.py) takes the median over seeds.
 
     Raises:
         SynthError: if a tool is missing or fails.
@@ -359,7 +362,7 @@ def estimate(
     if place_and_route:
         cmd = [
             *_tool(device.pnr_tool), *device.pnr_args, "--json", "netlist.json",
-            "--freq", f"{clock_mhz:g}", "--timing-allow-fail", "--report", "pnr.json", "--seed", "1",
+            "--freq", f"{clock_mhz:g}", "--timing-allow-fail", "--report", "pnr.json", "--seed", str(seed),
         ]
         try:
             _run(cmd, work_dir / "nextpnr.log", work_dir, timeout=ROUTER1_LIMIT_S)
