@@ -319,6 +319,13 @@ def render(prepared: dict[str, Prepared], measured: dict[str, dict[str, Measured
     return lines
 
 
+def select(only: list[str] | None) -> list[CoreDef]:
+    """The cores to run, in table order: ``only`` (all when ``None``) and their references."""
+    keys = set(only or BY_KEY)
+    keys |= {ref for k in list(keys) if (ref := BY_KEY[k].reference) is not None}
+    return [c for c in CORES if c.key in keys]
+
+
 def _load() -> str:
     try:
         return " / ".join(f"{x:.2f}" for x in os.getloadavg())
@@ -347,9 +354,7 @@ def main(argv: list[str] | None = None) -> int:
     seeds = [1] if args.quick else list(range(1, args.seeds + 1))
     if not seeds:
         parser.error("--seeds: at least 1")
-    keys = set(args.only or BY_KEY)
-    keys |= {BY_KEY[k].reference for k in list(keys) if BY_KEY[k].reference}  # type: ignore[misc]
-    selected = [c for c in CORES if c.key in keys]
+    selected = select(args.only)
     if args.keep is not None and args.keep.exists() and any(args.keep.iterdir()):
         parser.error(f"--keep: '{args.keep}' is not empty; give a new folder so no earlier result is reused")
 
