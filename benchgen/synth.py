@@ -324,8 +324,9 @@ def estimate(
 
     The counts in the result are of ``top`` alone (the wrapper's flip-flops are taken out); Fmax
     covers every path of ``top``, port to register and register to port included. ``seed`` is
-    nextpnr's placer seed: Fmax varies from seed to seed by several percent, so a comparison
-    that must not hang on one placement (benchmarks/hardware.py) takes the median over seeds.
+    nextpnr's placer seed: Fmax moved by up to 12% between seeds in the baseline of
+    docs/hardware.md, so a comparison that must not hang on one placement
+    (benchmarks/hardware.py) takes the median over seeds.
 
     Raises:
         SynthError: if a tool is missing or fails.
