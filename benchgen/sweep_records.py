@@ -214,6 +214,7 @@ class EstimateRecord(_Strict):
     luts: NonNegInt
     ffs: NonNegInt
     carry: NonNegInt
+    mux: NonNegInt
     bram: NonNegInt
     dsp: NonNegInt
     cells: dict[str, NonNegInt]
