@@ -22,6 +22,7 @@ from typing import Any
 
 from benchgen.errors import BenchgenError
 from benchgen.sweep_records import RecordError, read_result, read_sweep_file
+from benchgen.synth import DEVICES
 
 __all__ = [
     "ESTIMATE_NOTE",
@@ -50,7 +51,7 @@ COLUMNS = (
     "max_error_lsb", "rms_error_lsb", "budget_lsb", "model_max_error_lsb", "latency_cycles",
     "expected_latency_cycles", "cycles_per_sample",
 )
-RESOURCE_KEYS = ("luts", "ffs", "carry", "bram", "dsp", "logic_cells", "fmax_mhz", "note")
+RESOURCE_KEYS = ("luts", "mux", "ffs", "carry", "bram", "dsp", "logic_cells", "fmax_mhz", "note")
 
 
 class ReportError(BenchgenError):
@@ -292,7 +293,11 @@ def _summary_columns(data: ReportData) -> list[tuple[str, str]]:
     cols = [("point", "point"), ("status", "status"), ("max_error_lsb", "worst err LSB"),
             ("rms_error_lsb", "RMS err LSB"), ("latency_cycles", "latency clk"), ("cycles_per_sample", "clk/sample")]
     for t in data.targets:
-        cols += [(f"{t}_luts", f"{t} LUT"), (f"{t}_ffs", f"{t} FF"), (f"{t}_carry", f"{t} carry"),
+        cols.append((f"{t}_luts", f"{t} LUT"))
+        if t in DEVICES and DEVICES[t].mux_cells:
+            # Beside the LUTs: PFUMX / L6MUX21 join LUT4s into wider functions (ECP5).
+            cols.append((f"{t}_mux", f"{t} mux"))
+        cols += [(f"{t}_ffs", f"{t} FF"), (f"{t}_carry", f"{t} carry"),
                  (f"{t}_bram", f"{t} BRAM"), (f"{t}_dsp", f"{t} DSP"), (f"{t}_fmax_mhz", f"{t} Fmax MHz")]
     cols += [("pareto", "Pareto")]
     return cols

@@ -227,6 +227,7 @@ class EstimateRecord(_Strict):
     luts: NonNegInt
     ffs: NonNegInt
     carry: NonNegInt
+    mux: NonNegInt
     bram: NonNegInt
     dsp: NonNegInt
     cells: dict[str, NonNegInt]

@@ -65,6 +65,8 @@ class Device:
         synth_command: Yosys synthesis script for the family (``{top}`` is the module).
         pnr_tool: nextpnr flavour.
         pnr_args: Arguments selecting the part and package.
+        mux_cells: The family's wide-function multiplexer cells, counted as ``Estimate.mux``
+            (none on iCE40, whose logic cell is one LUT4).
     """
 
     family: str
@@ -72,6 +74,7 @@ class Device:
     synth_command: str
     pnr_tool: str
     pnr_args: tuple[str, ...]
+    mux_cells: tuple[str, ...] = ()
 
 
 # Both scripts are the families' standard Yosys flows with one change: LUT mapping by classic ABC
@@ -91,7 +94,11 @@ _ECP5_SCRIPT = (
 
 DEVICES: dict[str, Device] = {
     "ice40": Device("ice40", "iCE40 HX8K CT256", _ICE40_SCRIPT, "nextpnr-ice40", ("--hx8k", "--package", "ct256")),
-    "ecp5": Device("ecp5", "ECP5 LFE5U-25F CABGA256", _ECP5_SCRIPT, "nextpnr-ecp5", ("--25k", "--package", "CABGA256")),
+    # ECP5 builds 5- to 7-input functions from LUT4s joined by the slice's PFUMX (two LUT4s
+    # into a LUT5) and L6MUX21 (two LUT5s into a LUT6, and so on) muxes; classic ABC maps
+    # with "-lut 4:7", so a LUT4 count alone understates how much of the slices a core takes.
+    "ecp5": Device("ecp5", "ECP5 LFE5U-25F CABGA256", _ECP5_SCRIPT, "nextpnr-ecp5", ("--25k", "--package", "CABGA256"),
+                   mux_cells=("PFUMX", "L6MUX21")),
 }
 
 # Cell names are the families' primitive libraries as Yosys maps to them.
@@ -121,6 +128,8 @@ class Estimate:
         luts: 4-input LUTs.
         ffs: Flip-flops.
         carry: Carry cells (iCE40 ``SB_CARRY``: one per bit; ECP5 ``CCU2C``: two bits each).
+        mux: Wide-function multiplexer cells that join LUT4s into wider functions (ECP5
+            ``PFUMX`` and ``L6MUX21``; always 0 on iCE40, which has none).
         bram: Block RAMs.
         dsp: Multiplier/DSP blocks.
         cells: Every cell type and count, as Yosys reports them.
@@ -139,6 +148,7 @@ class Estimate:
     luts: int
     ffs: int
     carry: int
+    mux: int
     bram: int
     dsp: int
     cells: dict[str, int]
@@ -308,11 +318,15 @@ def estimate(
     *,
     place_and_route: bool = False,
     clock_mhz: float = 100.0,
+    seed: int = 1,
 ) -> Estimate:
     """Synthesise ``top`` inside its port-register wrapper for ``target``; optionally place and route.
 
     The counts in the result are of ``top`` alone (the wrapper's flip-flops are taken out); Fmax
-    covers every path of ``top``, port to register and register to port included.
+    covers every path of ``top``, port to register and register to port included. ``seed`` is
+    nextpnr's placer seed: Fmax moved by up to 12% between seeds in the baseline of
+    docs/hardware.md, so a comparison that must not hang on one placement
+    (benchmarks/hardware.py) takes the median over seeds.
 
     Raises:
         SynthError: if a tool is missing or fails.
@@ -349,7 +363,7 @@ def estimate(
     if place_and_route:
         cmd = [
             *_tool(device.pnr_tool), *device.pnr_args, "--json", "netlist.json",
-            "--freq", f"{clock_mhz:g}", "--timing-allow-fail", "--report", "pnr.json", "--seed", "1",
+            "--freq", f"{clock_mhz:g}", "--timing-allow-fail", "--report", "pnr.json", "--seed", str(seed),
         ]
         try:
             _run(cmd, work_dir / "nextpnr.log", work_dir, timeout=ROUTER1_LIMIT_S)
@@ -370,6 +384,7 @@ def estimate(
         luts=sum(n for c, n in cells.items() if c in _LUT_CELLS),
         ffs=sum(n for c, n in cells.items() if _is_ff(c)),
         carry=sum(n for c, n in cells.items() if c in _CARRY_CELLS),
+        mux=sum(n for c, n in cells.items() if c in device.mux_cells),
         bram=sum(n for c, n in cells.items() if c in _BRAM_CELLS),
         dsp=sum(n for c, n in cells.items() if c in _DSP_CELLS),
         cells=cells,

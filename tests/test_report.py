@@ -147,3 +147,24 @@ def test_merge_of_shards_equals_the_whole(tmp_path: Path) -> None:
     assert status == 0
     assert (tmp_path / "m" / "report.csv").read_bytes() == (whole / "report.csv").read_bytes()
     assert (tmp_path / "m" / "junit.xml").read_bytes() == (whole / "junit.xml").read_bytes()
+
+
+def test_ecp5_mux_cells_stand_beside_its_luts(tmp_path: Path) -> None:
+    """ECP5's PFUMX / L6MUX21 count is a column beside its LUT4s; iCE40 has no such cells."""
+    from benchgen.report import to_csv, to_markdown
+
+    raw = sweep_raw(synth={"targets": ["ice40", "ecp5"]})
+    raw["matrix"] = {"pipeline_depth": [1, 2]}
+    out = tmp_path / "out"
+    run_sweep(parse_sweep(raw), out, jobs=1, runner=fake_runner, use_cache=False, formats=("json",))
+    data = collect(out)
+    header = to_markdown(data).split("## Points", 1)[1].strip().splitlines()[0]
+    cols = [c.strip() for c in header.strip("|").split("|")]
+    assert cols[cols.index("ecp5 LUT") + 1] == "ecp5 mux"
+    assert "ice40 mux" not in cols
+    assert cols[cols.index("ice40 LUT") + 1] == "ice40 FF"
+    rows = list(csv.DictReader(io.StringIO(to_csv(data))))
+    # fake_runner reports 7 mux cells on ECP5 and none on iCE40.
+    assert [r["ecp5_mux"] for r in rows] == ["7"] * len(rows)
+    assert [r["ice40_mux"] for r in rows] == ["0"] * len(rows)
+    assert "ecp5 mux" in to_table(data).splitlines()[0]

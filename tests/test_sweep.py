@@ -55,7 +55,7 @@ def fake_runner(task: Any, work_root: str, cache_dir: str | None) -> dict[str, A
     if task.kind == "synth":
         depth = design["derived"]["pipeline_depth"] or 1
         est = {"target": task.target, "part": "stand-in", "luts": 100 + 3 * depth, "ffs": 20 * depth,
-               "carry": 50, "bram": 0, "dsp": 0, "cells": {"LUT4": 100 + 3 * depth},
+               "carry": 50, "mux": 7 if task.target == "ecp5" else 0, "bram": 0, "dsp": 0, "cells": {"LUT4": 100 + 3 * depth},
                "fmax_mhz": 30.0 + 10 * depth, "clock_mhz": 100.0, "logic_cells": 110 + 20 * depth,
                "tools": {"yosys": "stand-in"}, "seconds": 0.1, "note": None, "wrapper_ffs": 0}
         return {**base, "status": "ok", "source_hash": "0" * 16, "estimate": est}

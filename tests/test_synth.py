@@ -76,6 +76,55 @@ def test_single_stage_core_is_timed_from_its_ports(tmp_path: Path) -> None:
     assert fmax[1] < fmax[4], fmax
 
 
+# A 6-input function of registered inputs: one LUT4 cannot hold it, so ECP5 joins LUT4s with
+# PFUMX / L6MUX21 cells (classic ABC maps to LUT4..LUT7 there); iCE40 has no such cells.
+_WIDE_MUX = """`default_nettype none
+module wide_mux (
+    input  wire clk,
+    input  wire [63:0] in_table,
+    input  wire [5:0] in_sel,
+    output wire out_bit
+);
+    reg [5:0] sel_reg;
+    reg out_reg;
+    always @(posedge clk) begin
+        sel_reg <= in_sel;
+        out_reg <= in_table[sel_reg];
+    end
+    assign out_bit = out_reg;
+endmodule
+"""
+
+
+@pytest.mark.synth
+def test_ecp5_estimate_counts_its_wide_mux_cells(tmp_path: Path) -> None:
+    """The 64:1 mux needs more than a LUT4 per output on ECP5: the wide-mux cells are counted."""
+    require_yowasp()
+    src = tmp_path / "wide_mux.v"
+    src.write_text(_WIDE_MUX)
+    ecp5 = estimate([src], "wide_mux", "ecp5", tmp_path / "ecp5")
+    assert ecp5.mux > 0
+    assert ecp5.mux == ecp5.cells.get("PFUMX", 0) + ecp5.cells.get("L6MUX21", 0)
+    assert ecp5.luts > 0 and ecp5.ffs == 7
+    ice40 = estimate([src], "wide_mux", "ice40", tmp_path / "ice40")
+    assert ice40.mux == 0 and ice40.luts > 0
+
+
+def test_an_estimate_cached_before_the_mux_count_is_made_again() -> None:
+    """A cache entry without ``mux`` (written before it was counted) is refused, so a sweep
+    estimates the core again rather than report ECP5 without its mux cells."""
+    from benchgen.sweep_records import RecordError, check_cache_entry
+
+    est = {"target": "ecp5", "part": "p", "luts": 10, "mux": 3, "ffs": 5, "carry": 2, "bram": 0, "dsp": 0,
+           "cells": {"LUT4": 10}, "fmax_mhz": 100.0, "clock_mhz": 100.0, "logic_cells": 12,
+           "tools": {"yosys": "x"}, "seconds": 1.0, "note": None, "wrapper_ffs": 0}
+    entry = {"status": "ok", "source_hash": "0" * 16, "estimate": est}
+    assert check_cache_entry(entry, "synth") == entry
+    old = {**entry, "estimate": {k: v for k, v in est.items() if k != "mux"}}
+    with pytest.raises(RecordError, match="mux"):
+        check_cache_entry(old, "synth")
+
+
 def test_wrapper_registers_every_port(tmp_path: Path) -> None:
     """The generated wrapper puts one flip-flop stage between each port and the core (no tools)."""
     project = _generate_point_project(small_core(1), tmp_path / "p")
