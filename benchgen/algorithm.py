@@ -180,6 +180,10 @@ class Datapath:
         exp_width: exp: bits of the exponent output.
         lz_width: ln/sqrt: bits of the normalising shift.
         norm_max: sqrt: the largest output shift (half the largest even normalising shift).
+        prenorm_max: div, atan2 (prenormalised): the largest left shift the input
+            normalisation applies (the redundant sign bits of a data_width-bit input, at most
+            data_width - 2); 0 when the inputs are not normalised.
+        prenorm_width: Bits of that shift count.
     """
 
     function: str = "sincos"
@@ -218,6 +222,8 @@ class Datapath:
     exp_width: int = 0
     lz_width: int = 0
     norm_max: int = 0
+    prenorm_max: int = 0
+    prenorm_width: int = 0
 
     @property
     def output_max(self) -> int:
@@ -292,6 +298,7 @@ def make_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Datapath:
     table = tuple(
         _atan_radians(i, z_frac) if radians else _atan_turns(i, z_frac) for i in range(iterations)
     )
+    prenorm = spec.function == "atan2" and spec.prenormalise
     return Datapath(
         function=spec.function,
         mode="vectoring" if spec.function == "atan2" else "rotation",
@@ -316,6 +323,8 @@ def make_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Datapath:
         out_width=out_width,
         out_max=out_max,
         shifts=tuple(range(iterations)),
+        prenorm_max=b - 2 if prenorm else 0,
+        prenorm_width=(b - 2).bit_length() if prenorm else 0,
     )
 
 
@@ -394,6 +403,8 @@ def _linear_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Datapa
         out_width=out_width,
         out_max=(1 << (out_width - 1)) - 1,
         shifts=tuple(range(iterations)),
+        prenorm_max=0 if mul else b - 2,
+        prenorm_width=0 if mul else (b - 2).bit_length(),
     )
 
 

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import sys
+import time
 
 try:
     # Ctrl-C while these load ends as it does later, with one line and exit status 130: the
@@ -88,14 +89,32 @@ def _output_file(option: str, path: str | None) -> None:
 def _generate(args: argparse.Namespace) -> int:
     from benchgen.project import generate_project
 
-    design = generate_project(args.config, args.output)
+    design = generate_project(args.config, args.output, progress=_Progress())
     dp, timing = design.datapath, design.timing
     print(
         f"wrote {args.output}: {design.spec.name}, {dp.iterations} iterations, {dp.guard_bits} guard bits, "
         f"latency {timing.latency_cycles}, one sample per {timing.cycles_per_sample} clock(s), "
-        f"worst error {design.accuracy.max_error_lsb:.4f} LSB (model vs ideal)"
+        f"worst error {design.accuracy.max_error_lsb:.4f} LSB (model vs ideal, over {design.proof.describe()})"
     )
     return 0
+
+
+class _Progress:
+    """Progress lines on stderr for a generate that takes a while: silent for the first
+    2 seconds, then at most one line a second."""
+
+    QUIET_SECONDS = 2.0
+
+    def __init__(self) -> None:
+        self.start = time.monotonic()
+        self.last = 0.0
+
+    def __call__(self, text: str) -> None:
+        now = time.monotonic()
+        if now - self.start < self.QUIET_SECONDS or now - self.last < 1.0:
+            return
+        self.last = now
+        print(f"  sizing ({now - self.start:.0f} s): {text}", file=sys.stderr, flush=True)
 
 
 def _simulate(args: argparse.Namespace, project: Path) -> int:

@@ -152,6 +152,9 @@ class CoreSpec:
         gain: ``compensated`` (the core removes the rotation gain) or ``raw`` (left in, stated
             in the manifest).
         angle_unit: ``turns`` (binary angle) or ``radians`` (signed fixed point, 3 integer bits).
+        prenormalise: atan2: shift (x, y) left by their common redundant sign bits before
+            vectoring, so the angle meets the budget for every non-zero vector (``False``
+            keeps the smaller core whose angle is judged only for long vectors).
     """
 
     name: str
@@ -168,6 +171,7 @@ class CoreSpec:
     max_error_lsb: float = 1.0
     gain: str = "compensated"
     angle_unit: str = "turns"
+    prenormalise: bool = True
 
     def to_dict(self) -> dict[str, Any]:
         """The spec as config-file values (``auto`` for sized fields, absent fields dropped)."""
@@ -177,6 +181,8 @@ class CoreSpec:
             unused += ("angle_width", "angle_unit")
         if self.function in GAIN_FREE_FUNCTIONS:
             unused += ("gain",)
+        if self.function != "atan2":
+            unused += ("prenormalise",)
         for key, value in asdict(self).items():
             if key in unused:
                 continue
@@ -203,6 +209,7 @@ _FIELDS: tuple[str, ...] = (
     "max_error_lsb",
     "gain",
     "angle_unit",
+    "prenormalise",
 )
 
 
@@ -397,6 +404,21 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
             suggestion={"angle_width": MIN_RADIAN_ANGLE_WIDTH},
         )
     assert angle_width is not None and data_width is not None and tag_width is not None
+    prenormalise = True
+    if "prenormalise" in raw:
+        value = raw["prenormalise"]
+        if function != "atan2":
+            raise ConfigError(
+                "prenormalise",
+                value,
+                'only used by function = "atan2" (div always normalises its operands)',
+                "remove prenormalise",
+            )
+        if not isinstance(value, bool):
+            raise ConfigError(
+                "prenormalise", value, "true or false", "write prenormalise = true or prenormalise = false (no quotes)"
+            )
+        prenormalise = value
 
     max_error = raw.get("max_error_lsb", 1.0)
     if isinstance(max_error, bool) or not isinstance(max_error, int | float):
@@ -479,6 +501,7 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
         max_error_lsb=float(max_error),
         gain=gain,
         angle_unit=angle_unit,
+        prenormalise=prenormalise,
     )
 
 

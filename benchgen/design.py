@@ -10,8 +10,9 @@ target, so no config yields a core silently worse than it asked for.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, replace
-from functools import cache
+from typing import Any
 
 import numpy as np
 import numpy.typing as npt
@@ -19,8 +20,27 @@ import numpy.typing as npt
 from benchgen.algorithm import MIN_Z_ONLY_ITERATIONS, Datapath, Timing, make_datapath, make_timing
 from benchgen.config import MAX_ITERATIONS, CoreSpec
 from benchgen.errors import ConfigError
-from benchgen.functions import ideal_outputs, input_ports, measure, output_ports, sizing_inputs
-from benchgen.model import sincos
+from benchgen.functions import (
+    EXHAUSTIVE_LIMIT_BITS,
+    EXHAUSTIVE_SLOW_MODEL_BITS,
+    RANDOM_SIZING_SAMPLES,
+    WIDE_SIZING_SAMPLES,
+    Inputs,
+    apply_gain,
+    corner_inputs,
+    directed_inputs,
+    enumerate_inputs,
+    function_errors,
+    ideal_outputs,
+    input_ports,
+    input_space_bits,
+    int64_model,
+    join_inputs,
+    measure,
+    output_ports,
+    random_inputs,
+)
+from benchgen.model import evaluate_function, sincos, to_signed
 from benchgen.reference import ErrorStats, error_stats, ideal_sincos
 
 __all__ = [
@@ -28,22 +48,22 @@ __all__ = [
     "MAX_AUTO_GUARD_BITS",
     "MAX_PORT_WIDTH",
     "Design",
+    "Proof",
     "build_design",
+    "clear_sizing_cache",
     "corner_angles",
     "evaluate",
     "sizing_angles",
+    "sizing_evidence",
 ]
 
-EXHAUSTIVE_LIMIT_BITS = 20
 MAX_PORT_WIDTH = 64
 """Widest data port: the bulk harness packs each port into a slot of at most 8 bytes, and its C++
 runner moves ports as 64-bit integers (benchgen/harness.py)."""
-RANDOM_SIZING_SAMPLES = 1_000_000
-WIDE_SIZING_SAMPLES = 4096
 MAX_AUTO_GUARD_BITS = 16
 _SIZING_SEED = 20261202
-_PREFILTER = 32768
-_PREFILTER_WIDE = 256
+# sincos helpers for plots and tests: whole angle spaces up to 2**20 codes.
+_ANGLE_EXHAUSTIVE_BITS = 20
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -54,8 +74,8 @@ class Design:
         spec: The validated configuration.
         datapath: Arithmetic: widths, constants, rounding.
         timing: Stage layout, latency and throughput.
-        accuracy: Error of the bit-true model against the ideal over the sizing set.
-        accuracy_exhaustive: Whether that set was every input code.
+        accuracy: Error of the bit-true model against the ideal over the proof's inputs.
+        proof: How that accuracy was established (every input, or sampled and directed).
         auto_fields: Names of the fields the sizer chose.
     """
 
@@ -63,8 +83,13 @@ class Design:
     datapath: Datapath
     timing: Timing
     accuracy: ErrorStats
-    accuracy_exhaustive: bool
+    proof: Proof
     auto_fields: tuple[str, ...]
+
+    @property
+    def accuracy_exhaustive(self) -> bool:
+        """Whether the accuracy covers every input code."""
+        return self.proof.exhaustive
 
 
 def corner_angles(angle_width: int) -> npt.NDArray[np.int64] | npt.NDArray[np.object_]:
@@ -82,7 +107,7 @@ def corner_angles(angle_width: int) -> npt.NDArray[np.int64] | npt.NDArray[np.ob
 
 def sizing_angles(angle_width: int, data_width: int) -> tuple[npt.NDArray[np.int64] | npt.NDArray[np.object_], bool]:
     """The angles a design is measured on, and whether they are the whole input space."""
-    if angle_width <= EXHAUSTIVE_LIMIT_BITS:
+    if angle_width <= _ANGLE_EXHAUSTIVE_BITS:
         return np.arange(1 << angle_width, dtype=np.int64), True
     rng = np.random.default_rng(_SIZING_SEED)
     # Beyond these widths the model runs on Python integers (exact but about 100x slower), so
@@ -111,67 +136,301 @@ def evaluate(dp: Datapath, angles: npt.ArrayLike, ideal: tuple[np.ndarray, np.nd
     return error_stats([out.cos, out.sin], [ideal_cos, ideal_sin])
 
 
+# Inputs per chunk of an exhaustive check: a few tens of MB of intermediates.
+CHECK_CHUNK = 1 << 18
+# The search set: corners, directed worst cases and this many of the checked inputs; every
+# failure a full check finds is added to it.
+SEARCH_SAMPLES = 32768
+SEARCH_SAMPLES_WIDE = 256
+# Inputs kept from each failing full check (the worst ones) to reject later candidates cheaply.
+COUNTEREXAMPLES = 64
+
+Progress = Callable[[str], None]
+
+
 @dataclass(frozen=True)
-class _SizingSet:
-    inputs: dict[str, np.ndarray]
-    ideal: dict[str, np.ndarray] | None
-    subset: dict[str, np.ndarray]
-    subset_ideal: dict[str, np.ndarray] | None
-    exhaustive: bool
+class Proof:
+    """How the accuracy of a design was established.
+
+    Attributes:
+        method: ``exhaustive`` (every input code) or ``sampled`` (seeded random inputs plus the
+            corners and the directed worst cases).
+        inputs: How many inputs the worst error was taken over.
+        random: Of those, seeded random inputs (0 when exhaustive).
+        directed: Of those, corners and directed worst-case inputs (0 when exhaustive).
+    """
+
+    method: str
+    inputs: int
+    random: int = 0
+    directed: int = 0
+
+    @property
+    def exhaustive(self) -> bool:
+        """Whether every input code was checked."""
+        return self.method == "exhaustive"
+
+    def describe(self) -> str:
+        """One phrase for reports: over what the worst error was measured."""
+        if self.exhaustive:
+            return f"every one of the {self.inputs} input codes"
+        return (
+            f"{self.inputs} inputs: {self.random} seeded random, {self.directed} corners and "
+            "directed worst cases (the input space is too large to enumerate)"
+        )
+
+    def as_dict(self) -> dict[str, Any]:
+        """JSON-ready form."""
+        return {"method": self.method, "inputs": self.inputs, "random": self.random, "directed": self.directed}
 
 
-def _sizing_set(spec: CoreSpec) -> _SizingSet:
-    # Only the fields that shape the ports and the ideal matter; the rest share one set.
-    return _sizing_set_for(spec.function, spec.angle_width, spec.data_width, spec.angle_unit, spec.gain)
+class _Accumulator:
+    """Running error statistics over chunks: counts, sum, sum of squares, the worst."""
+
+    def __init__(self) -> None:
+        self.samples = 0
+        self.judged = 0
+        self.total = 0.0
+        self.squares = 0.0
+        self.worst = 0.0
+
+    def add(self, samples: int, errs: list[npt.NDArray[np.float64]]) -> None:
+        """Count ``samples`` inputs and their errors (NaN: not judged, left out)."""
+        self.samples += samples
+        for raw in errs:
+            e = raw[~np.isnan(raw)]
+            if e.size:
+                self.judged += e.size
+                self.total += float(np.sum(e))
+                self.squares += float(np.sum(e * e))
+                self.worst = max(self.worst, float(np.max(np.abs(e))))
+
+    def stats(self) -> ErrorStats:
+        if not self.judged:
+            return ErrorStats(self.samples, 0.0, 0.0, 0.0)
+        return ErrorStats(
+            self.samples, self.worst, float(np.sqrt(self.squares / self.judged)), self.total / self.judged
+        )
 
 
-@cache
-def _sizing_set_for(function: str, angle_width: int, data_width: int, angle_unit: str, gain: str) -> _SizingSet:
-    probe_spec = CoreSpec(
-        name="probe", function=function, angle_width=angle_width, data_width=data_width, angle_unit=angle_unit, gain=gain
-    )
-    probe = make_datapath(probe_spec, MIN_Z_ONLY_ITERATIONS, MAX_AUTO_GUARD_BITS)
-    try:
-        cheapest = make_datapath(probe_spec, MIN_Z_ONLY_ITERATIONS, 0)
-    except ConfigError:
-        cheapest = None  # too narrow for three iterations without guard bits
-    inputs, exhaustive = sizing_inputs(probe, cheapest=cheapest)
-    count = len(next(iter(inputs.values())))
-    limit = min(_PREFILTER, count // 8) if data_width <= 40 and angle_width <= 56 else _PREFILTER_WIDE
-    step = max(1, count // limit)
-    subset = {k: v[::step] for k, v in inputs.items()}
-    # The gain-free ideal depends on the inputs only, not on the size being tried; a raw
-    # core's growth 1/K_n is applied per candidate.
-    return _SizingSet(
-        inputs=inputs,
-        ideal=ideal_outputs(probe, inputs, with_gain=False),
-        subset=subset,
-        subset_ideal=ideal_outputs(probe, subset, with_gain=False),
-        exhaustive=exhaustive,
-    )
+def _take(inputs: Inputs, index: npt.NDArray[np.int64]) -> Inputs:
+    return {k: np.asarray(v)[index] for k, v in inputs.items()}
 
 
-def _meets(spec: CoreSpec, n: int, g: int) -> tuple[bool, ErrorStats | None]:
-    try:
-        dp = make_datapath(spec, n, g)
-    except ConfigError:
-        return False, None  # more iterations than this width holds
-    sset = _sizing_set(spec)
-    # The subset's worst error is a lower bound of the full set's: a failing subset rejects
-    # the candidate cheaply; a passing one is confirmed on the full set.
-    if measure(dp, sset.subset, sset.subset_ideal).max_error_lsb >= spec.max_error_lsb:
-        return False, None
-    stats = measure(dp, sset.inputs, sset.ideal)
-    return stats.max_error_lsb < spec.max_error_lsb, stats
+class _Prover:
+    """Checks candidate sizes of one arithmetic against its error budget.
+
+    A candidate is first tried on a small search set; a failure there is a real failure (its
+    inputs are real inputs), so the candidate is rejected at once. A candidate that passes is
+    checked on the full set: every input of the space when it has at most 2**24 codes and the
+    model runs on int64 (in chunks, stopping at the first chunk over budget), else the sampled
+    set (seeded random inputs, corners, directed worst cases). The worst inputs of a failed full
+    check join the search set, so the sizer never picks a size that check has not passed.
+    """
+
+    def __init__(self, spec: CoreSpec, progress: Progress | None) -> None:
+        self.progress = progress
+        probe = make_datapath(spec, MIN_Z_ONLY_ITERATIONS, MAX_AUTO_GUARD_BITS)
+        try:
+            cheapest: Datapath | None = make_datapath(spec, MIN_Z_ONLY_ITERATIONS, 0)
+        except ConfigError:
+            cheapest = None  # too narrow for three iterations without guard bits
+        self.probe = probe
+        bits = input_space_bits(probe)
+        fast = int64_model(cheapest if cheapest is not None else probe)
+        self.exhaustive = bits <= EXHAUSTIVE_SLOW_MODEL_BITS or (bits <= EXHAUSTIVE_LIMIT_BITS and fast)
+        self.space = 1 << bits if self.exhaustive else 0
+        fixed = join_inputs(corner_inputs(probe), directed_inputs(probe, seed=_SIZING_SEED))
+        self.fixed_count = len(next(iter(fixed.values())))
+        limit = SEARCH_SAMPLES if fast else SEARCH_SAMPLES_WIDE
+        if self.exhaustive:
+            self.full: Inputs | None = None
+            self.full_ideal: dict[str, npt.NDArray[Any]] | None = None
+            step = max(1, self.space // limit)
+            # A stride through the space that is not a power of two visits every port's codes.
+            stride = step + 1 if step > 1 and step % 2 == 0 else step
+            if self.space <= limit:
+                sample = enumerate_inputs(probe, 0, self.space)
+            else:
+                sample = _strided(probe, self.space, stride, limit)
+            self.random_count = 0
+        else:
+            rng = np.random.default_rng(_SIZING_SEED)
+            count = RANDOM_SIZING_SAMPLES if fast else WIDE_SIZING_SAMPLES
+            rand = random_inputs(probe, rng, count)
+            self.full = join_inputs(fixed, rand)
+            # The gain-free ideal depends on the inputs only; a raw core's 1/K_n is applied
+            # per candidate.
+            self.full_ideal = ideal_outputs(probe, self.full, with_gain=False)
+            self.random_count = count
+            sample = _take(rand, np.arange(min(limit, count)))
+        self.search = join_inputs(fixed, sample)
+        self.search_ideal = ideal_outputs(probe, self.search, with_gain=False)
+
+    def proof(self) -> Proof:
+        """What a passing full check covers."""
+        if self.exhaustive:
+            return Proof("exhaustive", self.space)
+        return Proof("sampled", self.fixed_count + self.random_count, self.random_count, self.fixed_count)
+
+    def _say(self, text: str) -> None:
+        if self.progress is not None:
+            self.progress(text)
+
+    def rejects(self, dp: Datapath, budget: float) -> bool:
+        """Whether the search set already shows the candidate over budget."""
+        return measure(dp, self.search, self.search_ideal).max_error_lsb >= budget
+
+    def learn(self, inputs: Inputs) -> None:
+        """Add failing inputs to the search set."""
+        self.search = join_inputs(self.search, inputs)
+        self.search_ideal = ideal_outputs(self.probe, self.search, with_gain=False)
+
+    def worst(self, dp: Datapath) -> float:
+        """The candidate's worst error over the full check (no early stop)."""
+        stats = self.check(dp, float("inf"))
+        assert stats is not None
+        return stats.max_error_lsb
+
+    def check(self, dp: Datapath, budget: float) -> ErrorStats | None:
+        """The full check: the candidate's statistics if it meets the budget, else None (and
+        its worst inputs are learned)."""
+        label = f"{dp.iterations} iterations, {dp.guard_bits} guard bits"
+        if not self.exhaustive:
+            assert self.full is not None
+            self._say(f"checking {label} on {len(next(iter(self.full.values())))} inputs")
+            errs = _judged(dp, self.full, apply_gain(dp, self.full_ideal) if self.full_ideal else None)
+            acc = _Accumulator()
+            acc.add(len(next(iter(self.full.values()))), list(errs.values()))
+            worst = _worst_rows(errs)
+            if acc.worst >= budget:
+                self.learn(_take(self.full, worst))
+                return None
+            return acc.stats()
+        acc = _Accumulator()
+        for start in range(0, self.space, CHECK_CHUNK):
+            stop = min(self.space, start + CHECK_CHUNK)
+            if start and start % (CHECK_CHUNK * 16) == 0:
+                self._say(f"checking {label} on every input: {100 * start // self.space}%")
+            inputs = enumerate_inputs(dp, start, stop)
+            errs = _judged(dp, inputs, None)
+            acc.add(stop - start, list(errs.values()))
+            if acc.worst >= budget:
+                self.learn(_take(inputs, _worst_rows(errs)))
+                return None
+        return acc.stats()
 
 
-def _best_guard(spec: CoreSpec, n: int) -> tuple[int, ErrorStats] | None:
-    g_range = [spec.guard_bits] if spec.guard_bits is not None else range(MAX_AUTO_GUARD_BITS + 1)
-    for g in g_range:
-        ok, stats = _meets(spec, n, g)
-        if ok and stats is not None:
-            return g, stats
-    return None
+def _strided(dp: Datapath, space: int, stride: int, count: int) -> Inputs:
+    index = (np.arange(count, dtype=np.int64) * stride) % space
+    ports = input_ports(dp)
+    shift = sum(p.width for p in ports)
+    out: Inputs = {}
+    for p in ports:
+        shift -= p.width
+        codes = (index >> shift) & ((1 << p.width) - 1)
+        out[p.name] = to_signed(codes, p.width) if p.signed else codes
+    return out
+
+
+def _judged(dp: Datapath, inputs: Inputs, ideal: dict[str, npt.NDArray[Any]] | None) -> dict[str, npt.NDArray[np.float64]]:
+    """Per output, the errors in LSBs; NaN where a sample is not judged."""
+    outputs = evaluate_function(dp, inputs)
+    return function_errors(dp, inputs, outputs, ideal)
+
+
+def _worst_rows(errs: dict[str, npt.NDArray[np.float64]]) -> npt.NDArray[np.int64]:
+    """Indices of the inputs with the largest errors over every output."""
+    worst = np.max(np.nan_to_num(np.abs(np.stack(list(errs.values()))), nan=0.0), axis=0)
+    k = min(COUNTEREXAMPLES, worst.size)
+    return np.argpartition(worst, worst.size - k)[worst.size - k :].astype(np.int64)
+
+
+def _prover(spec: CoreSpec, progress: Progress | None) -> _Prover:
+    # Only the fields that shape the ports and the judging matter; cores that differ in the
+    # rest (budget, rounding, sizes) share one prover, and so the inputs it has learned.
+    key = (spec.function, spec.angle_width, spec.data_width, spec.angle_unit, spec.gain, spec.prenormalise)
+    found = _PROVERS.pop(key, None)
+    if found is None:
+        found = _Prover(spec, progress)
+    _PROVERS[key] = found  # most recently used last
+    while len(_PROVERS) > _PROVERS_KEPT:
+        del _PROVERS[next(iter(_PROVERS))]  # a sampled prover holds ~50 MB of inputs and ideals
+    found.progress = progress
+    return found
+
+
+_PROVERS: dict[tuple[Any, ...], _Prover] = {}
+_PROVERS_KEPT = 8
+
+
+def clear_sizing_cache() -> None:
+    """Forget every sizing result and search set (benchmarks time sizing from scratch)."""
+    _PROVERS.clear()
+    _SIZES.clear()
+
+
+def _size(spec: CoreSpec, progress: Progress | None = None) -> tuple[int, int, ErrorStats, Proof]:
+    """Smallest iterations, then smallest guard bits, meeting the target over the full check
+    (fields fixed by the spec stay).
+
+    Raises:
+        ConfigError: if no size meets the target, with a fix (``suggestion``) that is accepted:
+            either tried here, or a budget above an error measured inside the search space.
+    """
+    cached = _SIZES.get(spec)
+    if cached is not None:
+        return cached
+    prover = _prover(spec, progress)
+    budget = spec.max_error_lsb
+    g_top = spec.guard_bits if spec.guard_bits is not None else MAX_AUTO_GUARD_BITS
+
+    def candidate(n: int, g: int) -> Datapath | None:
+        try:
+            return make_datapath(spec, n, g)
+        except ConfigError:
+            return None  # more iterations than this width holds
+
+    g_range = [spec.guard_bits] if spec.guard_bits is not None else list(range(MAX_AUTO_GUARD_BITS + 1))
+
+    def passes_search(n: int) -> bool:
+        return any(dp is not None and not prover.rejects(dp, budget) for dp in (candidate(n, g) for g in g_range))
+
+    if spec.iterations is not None:
+        # Iterations that no allowed guard-bit count can hold are refused with the width
+        # message, and a count the width does hold as the fix.
+        try:
+            make_datapath(spec, spec.iterations, g_top)
+        except ConfigError as exc:
+            raise _fit_iterations(spec, g_top, exc) from None
+        n_range = [spec.iterations]
+    else:
+        # The fewest iterations the search set allows (a lower bound: below it every guard-bit
+        # count fails on real inputs). Start near the answer, about data_width iterations, at a
+        # count the data path holds with the most guard bits allowed (a linear z of few
+        # fraction bits holds fewer), and walk down while the search set is met, else up.
+        n = max(1, min(spec.data_width - 2, _largest_n(spec, g_top) or 1))
+        if passes_search(n):
+            while n > 1 and passes_search(n - 1):
+                n -= 1
+        else:
+            while n < MAX_ITERATIONS and not passes_search(n):
+                n += 1
+        n_range = list(range(n, MAX_ITERATIONS + 1))
+    for n in n_range:
+        for g in g_range:
+            dp = candidate(n, g)
+            if dp is None or prover.rejects(dp, budget):
+                continue
+            stats = prover.check(dp, budget)
+            if stats is not None:
+                result = (n, g, stats, prover.proof())
+                _SIZES[spec] = result
+                return result
+    raise _missed_budget(spec, prover)
+
+
+_SIZES: dict[CoreSpec, tuple[int, int, ErrorStats, Proof]] = {}
 
 
 def _feasible(spec: CoreSpec, n: int, g: int) -> bool:
@@ -189,8 +448,8 @@ def _largest_n(spec: CoreSpec, g: int) -> int | None:
 
 def _budget_above(error: float) -> float | None:
     """The smallest budget with two decimals that ``error`` stays strictly below, if allowed."""
-    if not np.isfinite(error):
-        return None
+    if not np.isfinite(error) or error >= 1e6:
+        return None  # past the largest budget allowed (and where 0.01 steps vanish in a float)
     budget = float(f"{np.floor(error * 100) / 100 + 0.01:.2f}")
     while budget <= error:  # float rounding can leave it at or below the error
         budget = float(f"{budget + 0.01:.2f}")
@@ -216,47 +475,6 @@ def _accepted(spec: CoreSpec, change: dict[str, object]) -> bool:
     return True
 
 
-@cache
-def _size(spec: CoreSpec) -> tuple[int, int, ErrorStats]:
-    """Smallest iterations, then smallest guard bits, meeting the target (fields fixed by the spec stay).
-
-    Raises:
-        ConfigError: if no size meets the target, with a fix (``suggestion``) that is accepted:
-            either tried here, or a budget above an error measured inside the search space.
-    """
-    if spec.iterations is not None:
-        # Iterations that no allowed guard-bit count can hold are refused with the width message,
-        # and a count the width does hold as the fix.
-        g_top = spec.guard_bits if spec.guard_bits is not None else MAX_AUTO_GUARD_BITS
-        try:
-            make_datapath(spec, spec.iterations, g_top)
-        except ConfigError as exc:
-            raise _fit_iterations(spec, g_top, exc) from None
-        found = _best_guard(spec, spec.iterations)
-        if found is not None:
-            return spec.iterations, found[0], found[1]
-    else:
-        # Start near the answer (about data_width iterations) and walk: down while the target is
-        # still met, else up until it is. Every count below the answer is thus shown to fail.
-        # The start is a count the data path can hold with the most guard bits allowed, so
-        # that a narrow path (a linear z of few fraction bits) is searched below it too.
-        g_top = spec.guard_bits if spec.guard_bits is not None else MAX_AUTO_GUARD_BITS
-        n = max(1, min(spec.data_width - 2, _largest_n(spec, g_top) or 1))
-        found = _best_guard(spec, n)
-        if found is not None:
-            while n > 1:
-                lower = _best_guard(spec, n - 1)
-                if lower is None:
-                    break
-                n, found = n - 1, lower
-            return n, found[0], found[1]
-        for n in range(n + 1, MAX_ITERATIONS + 1):
-            found = _best_guard(spec, n)
-            if found is not None:
-                return n, found[0], found[1]
-    raise _missed_budget(spec)
-
-
 def _fit_iterations(spec: CoreSpec, g: int, exc: ConfigError) -> ConfigError:
     """The width refusal of fixed iterations, with a count that fits as the fix (and a budget
     that this count then meets, where it misses the one set)."""
@@ -276,16 +494,15 @@ def _fit_iterations(spec: CoreSpec, g: int, exc: ConfigError) -> ConfigError:
     return ConfigError(exc.field, exc.value, exc.allowed, f"set {fix}", suggestion=change)
 
 
-def _missed_budget(spec: CoreSpec) -> ConfigError:
+def _missed_budget(spec: CoreSpec, prover: _Prover) -> ConfigError:
     """No size meets ``max_error_lsb``: say how close the largest size gets, and what is accepted."""
     g = spec.guard_bits if spec.guard_bits is not None else MAX_AUTO_GUARD_BITS
     n = spec.iterations if spec.iterations is not None else _largest_n(spec, g)
     achieved = float("inf")
     if n is not None:
-        sset = _sizing_set(spec)
-        achieved = measure(make_datapath(spec, n, g), sset.inputs, sset.ideal).max_error_lsb
-    # (n, g) lies inside the search space the sizer walked, and the sizer's measure of it is this
-    # one, so any budget above `achieved` is met there: the budget fix needs no second run.
+        achieved = prover.worst(make_datapath(spec, n, g))
+    # (n, g) lies inside the search space the sizer walks, and this is the full check's measure
+    # of it, so any budget above `achieved` is met there: the budget fix needs no second run.
     budget = _budget_above(max(achieved, spec.max_error_lsb))
     fixes: list[tuple[str, dict[str, object]]] = []
     fixed = [f for f in ("iterations", "guard_bits") if getattr(spec, f) is not None]
@@ -330,30 +547,45 @@ def _check_port_widths(spec: CoreSpec) -> None:
     )
 
 
-def build_design(spec: CoreSpec) -> Design:
+def _arithmetic(spec: CoreSpec) -> CoreSpec:
+    """The spec with every field that does not change the arithmetic set to one value: cores
+    that differ only in name, architecture or tag share one sizing run."""
+    return replace(spec, name="core", architecture="pipelined", pipeline_depth=None, iterations_per_cycle=None, tag_width=0)
+
+
+def sizing_evidence(spec: CoreSpec) -> Inputs:
+    """The inputs the sizer tried smaller sizes on (corners, directed worst cases, a slice of
+    the checked inputs, and the worst inputs of every failed full check): each size it
+    rejected exceeds the budget on some of them. For tests and reports of the sizing proof."""
+    arithmetic = _arithmetic(spec)
+    _size(arithmetic)
+    return dict(_prover(arithmetic, None).search)
+
+
+def build_design(spec: CoreSpec, *, progress: Progress | None = None) -> Design:
     """Size (where ``auto``) and derive everything about a core.
+
+    Args:
+        spec: The validated configuration.
+        progress: Called with a short line now and then while a long check runs.
 
     Raises:
         ConfigError: if the sizes cannot meet the error target, or the architecture does not fit
             the iteration count.
     """
     _check_port_widths(spec)
-    # The size depends on the arithmetic alone: cores that differ only in name, architecture
-    # or tag share one sizing run.
-    arithmetic = replace(spec, name="core", architecture="pipelined", pipeline_depth=None, iterations_per_cycle=None, tag_width=0)
-    n, g, stats = _size(arithmetic)
+    n, g, stats, proof = _size(_arithmetic(spec), progress)
     dp = make_datapath(spec, n, g)
     try:
         timing: Timing = make_timing(spec, n)
     except ConfigError as exc:  # more stages than iterations: as many as there are is accepted
         raise ConfigError(exc.field, exc.value, exc.allowed, exc.fix, suggestion={exc.field: n}) from None
-    exhaustive = _sizing_set(spec).exhaustive
     auto = tuple(f for f, v in (("iterations", spec.iterations), ("guard_bits", spec.guard_bits)) if v is None)
     return Design(
         spec=spec,
         datapath=dp,
         timing=timing,
         accuracy=stats,
-        accuracy_exhaustive=exhaustive,
+        proof=proof,
         auto_fields=auto,
     )

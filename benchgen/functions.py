@@ -34,7 +34,13 @@ from benchgen.reference import (
 __all__ = [
     "EXHAUSTIVE_LIMIT_BITS",
     "Port",
+    "bench_corners",
     "corner_inputs",
+    "directed_inputs",
+    "enumerate_inputs",
+    "input_space_bits",
+    "join_inputs",
+    "int64_model",
     "function_errors",
     "ideal_outputs",
     "input_ports",
@@ -44,7 +50,10 @@ __all__ = [
     "small_vector_limit",
 ]
 
-EXHAUSTIVE_LIMIT_BITS = 20
+# Every input is checked when the input space has at most 2**24 codes and the model runs on
+# int64 (a few seconds a pass, in chunks), or at most 2**20 codes on any model.
+EXHAUSTIVE_LIMIT_BITS = 24
+EXHAUSTIVE_SLOW_MODEL_BITS = 20
 WIDE_DATA_BITS = 40
 RANDOM_SIZING_SAMPLES = 1_000_000
 WIDE_SIZING_SAMPLES = 4096
@@ -168,10 +177,14 @@ def output_ports(dp: Datapath) -> tuple[Port, ...]:
 
 
 def small_vector_limit(dp: Datapath) -> int:
-    """atan2: the angle budget holds for vectors at least this long (1/16 of full scale).
+    """atan2: the angle budget holds for vectors at least this long.
 
-    Shorter vectors carry too few significant bits for a fine angle; see docs/error_analysis.md.
+    1 (every vector but the zero vector) for a prenormalised core; 1/16 of full scale for one
+    built with ``prenormalise = false``, whose short vectors carry too few significant bits
+    for a fine angle (see docs/error_analysis.md).
     """
+    if dp.prenorm_max:
+        return 1
     return 1 << max(0, dp.data_width - 5)
 
 
@@ -265,12 +278,183 @@ def corner_inputs(dp: Datapath) -> Inputs:
     return {"in_x": np.array(xs, dtype=dtype), "in_y": np.array(ys, dtype=dtype), "in_angle": np.array(zs, dtype=dtype)}
 
 
+def _pack(columns: dict[str, list[int]], widths: dict[str, int]) -> Inputs:
+    dtype: Any = np.int64 if max(widths.values()) <= 62 else object
+    return {k: np.array(v, dtype=dtype) for k, v in columns.items()}
+
+
+def _below(rng: np.random.Generator, bound: int) -> int:
+    """A uniform integer in [0, bound) for any bound (Python integers past int64)."""
+    if bound <= 1:
+        return 0
+    if bound < 1 << 62:
+        return int(rng.integers(0, bound))
+    return int(rng.integers(0, 1 << 62)) * bound >> 62
+
+
+def _octave(rng: np.random.Generator, bits: int) -> int:
+    """A random magnitude of exactly ``bits`` bits (1 has one bit)."""
+    return (1 << (bits - 1)) + _below(rng, 1 << (bits - 1))
+
+
+def _signed_octaves(rng: np.random.Generator, width: int, per: int) -> list[int]:
+    """``per`` random values of each magnitude octave of a signed ``width``-bit port, both signs."""
+    out: list[int] = []
+    for bits in range(1, width):
+        for _ in range(per):
+            v = _octave(rng, bits)
+            out.append(-v if rng.integers(0, 2) else v)
+    return out
+
+
+def directed_inputs(dp: Datapath, *, seed: int, per_octave: int = 64) -> Inputs:
+    """Inputs aimed at each function's worst regions, which uniform random samples rarely hit.
+
+    Short vectors and small denominators at every octave of their length (where the error of
+    an unnormalised core grows), the axes and diagonals, quotients near the edge of the range,
+    every normalising shift of ln and sqrt (each power of two and its neighbours), every
+    exponent step of exp (multiples of ln 2), the atanh domain edge, the angle octants. The
+    sizer adds these to its random set; a test draws a larger set with another seed.
+
+    Args:
+        dp: The data path.
+        seed: Seed of the random parts.
+        per_octave: Random inputs drawn per octave of magnitude.
+    """
+    rng = np.random.default_rng(seed)
+    b = dp.data_width
+    top = (1 << (b - 1)) - 1
+    lo = -(1 << (b - 1))
+    f = dp.function
+    names = [p.name for p in input_ports(dp)]
+    widths = {p.name: p.width for p in input_ports(dp)}
+    cols: dict[str, list[int]] = {n: [] for n in names}
+
+    def add(*values: int) -> None:
+        for n, v in zip(names, values, strict=True):
+            cols[n].append(v)
+
+    def angle_near_octants() -> list[int]:
+        a = dp.angle_width
+        full = 1 << a
+        out = []
+        for k in range(16):
+            edge = k * full // 16
+            for j in range(-8, 9):
+                v = (edge + j) % full
+                out.append(v - full if dp.radians and v >= full // 2 else v)
+        if dp.radians:
+            out = [v for v in out if -(full // 2) <= v < full // 2]
+        return out
+
+    def random_angle() -> int:
+        v = _below(rng, 1 << dp.angle_width)
+        return v - (1 << dp.angle_width) if dp.radians and v >= 1 << (dp.angle_width - 1) else v
+
+    if f == "sincos":
+        for v in angle_near_octants():
+            add(v)
+        for bits in range(1, dp.angle_width):  # small angles of either sign
+            for _ in range(per_octave):
+                v = _octave(rng, bits)
+                add(v)
+                add(-v if dp.radians else (1 << dp.angle_width) - v)
+    elif f in ("atan2", "rotate"):
+        vectors: list[tuple[int, int]] = []
+        small = min(8, top)
+        vectors += [(x, y) for x in range(-small, small + 1) for y in range(-small, small + 1)]
+        for bits in range(1, b):
+            for _ in range(per_octave):
+                big = _octave(rng, bits)
+                other = _below(rng, big + 1)
+                x, y = (big, other) if rng.integers(0, 2) else (other, big)
+                x = -x if rng.integers(0, 2) else x
+                y = -y if rng.integers(0, 2) else y
+                vectors.append((max(x, lo), max(y, lo)))
+            v = _octave(rng, bits)
+            for sx, sy in ((1, 1), (1, -1), (-1, 1), (-1, -1)):  # diagonals
+                vectors.append((sx * v, sy * v))
+            for j in range(-3, 4):  # near the axes
+                vectors += [(v, j), (-v, j), (j, v), (j, -v)]
+        vectors += [(lo, lo), (lo, 0), (0, lo), (lo, top), (top, lo), (top, top), (lo, -1), (-1, lo)]
+        if f == "atan2":
+            for x, y in vectors:
+                add(x, y)
+        else:
+            angles = angle_near_octants()
+            for k, (x, y) in enumerate(vectors):
+                add(x, y, angles[k % len(angles)])
+                add(x, y, random_angle())
+    elif f == "mul":
+        values = [0, 1, -1, top, lo, top - 1, lo + 1] + _signed_octaves(rng, b, max(1, per_octave // 8))
+        for a in values:
+            add(a, values[_below(rng, len(values))])
+            add(a, lo)
+            add(a, top)
+    elif f == "div":
+        small = min(16, top)
+        for den in range(-small, small + 1):
+            if den == 0:
+                continue
+            for num in range(-2 * abs(den) + 1, 2 * abs(den)):
+                if lo <= num <= top:
+                    add(num, den)
+        for bits in range(1, b):
+            for _ in range(per_octave):
+                mag = _octave(rng, bits)
+                den = -mag if rng.integers(0, 2) else mag
+                span = min(2 * mag - 1, top)
+                num = _below(rng, 2 * span + 1) - span
+                add(max(num, lo), den)
+            mag = _octave(rng, bits)
+            for j in range(1, 5):  # quotients near +-2 and +-1
+                for num in (2 * mag - j, -(2 * mag - j), mag - j + 2, -(mag - j + 2)):
+                    if lo <= num <= top:
+                        add(num, mag)
+                        add(num, -mag)
+        for num in (lo, lo + 1, top, -top, 1, -1, 0):
+            add(num, lo)
+    elif f in ("ln", "sqrt"):
+        for k in range(b):
+            for j in range(-16, 17):
+                v = (1 << k) + j
+                if 0 <= v < 1 << b:
+                    add(v)
+        for bits in range(1, b + 1):
+            for _ in range(per_octave):
+                add(_octave(rng, bits))
+    else:  # sinhcosh, exp, atanh: signed inputs
+        for v in _signed_octaves(rng, b, per_octave):
+            add(v)
+        for j in range(64):
+            add(top - j)
+            add(lo + j)
+        if f == "atanh":
+            for j in range(-64, 65):
+                for v in (dp.domain_limit + j, -dp.domain_limit + j):
+                    if lo <= v <= top:
+                        add(v)
+        if f == "exp":
+            with mpmath.workdps(_IDEAL_DPS):
+                scale = mpmath.mpf(2) ** dp.in_frac
+                step = mpmath.log(2) * scale
+                q = 0
+                while q * step <= top + 8:
+                    centre = int(mpmath.nint(q * step))
+                    for j in range(-8, 9):
+                        for v in (centre + j, -centre + j):
+                            if lo <= v <= top:
+                                add(v)
+                    q += 1
+    return _pack(cols, widths)
+
+
 def random_inputs(dp: Datapath, rng: np.random.Generator, count: int) -> Inputs:
     """Uniform random codes on every input port."""
     return {p.name: _uniform(rng, p.width, count, p.signed) for p in input_ports(dp)}
 
 
-def _int64_model(dp: Datapath) -> bool:
+def int64_model(dp: Datapath) -> bool:
     """Whether the bit-true model of ``dp`` runs on int64 (else on Python integers, ~100x slower)."""
     if dp.data_width > WIDE_DATA_BITS or dp.angle_width > 56:
         return False
@@ -280,11 +464,35 @@ def _int64_model(dp: Datapath) -> bool:
     return product <= 58
 
 
-def sizing_inputs(dp: Datapath, *, cheapest: Datapath | None = None) -> tuple[Inputs, bool]:
-    """The inputs a design's accuracy is measured on, and whether they are the whole space.
+def input_space_bits(dp: Datapath) -> int:
+    """log2 of the number of input codes: the sum of the data input widths."""
+    return sum(p.width for p in input_ports(dp))
 
-    The whole input space when it has at most 2**20 points; otherwise 10**6 seeded random
-    inputs plus the corners (4096 where the model runs on Python integers).
+
+def enumerate_inputs(dp: Datapath, start: int, stop: int) -> Inputs:
+    """The inputs with flat index ``start`` to ``stop - 1`` of the whole input space.
+
+    The flat index is the concatenation of the port codes, the first port most significant;
+    signed ports are given as signed values.
+    """
+    ports = input_ports(dp)
+    index = np.arange(start, stop, dtype=np.int64)
+    shift = sum(p.width for p in ports)
+    out: Inputs = {}
+    for p in ports:
+        shift -= p.width
+        codes = (index >> shift) & ((1 << p.width) - 1)
+        out[p.name] = to_signed(codes, p.width) if p.signed else codes
+    return out
+
+
+def sizing_inputs(dp: Datapath, *, cheapest: Datapath | None = None) -> tuple[Inputs, bool]:
+    """A set of inputs to measure a design on, and whether it is the whole input space.
+
+    The whole space when it has at most 2**20 points (:func:`enumerate_inputs`); otherwise
+    10**6 seeded random inputs (4096 where the model runs on Python integers) after the corners
+    and the directed worst cases (:func:`directed_inputs`). The sizer itself goes further:
+    it checks every input of spaces up to 2**24 codes in chunks (benchgen.design).
 
     Args:
         dp: The data path (its ports and formats shape the inputs).
@@ -292,23 +500,36 @@ def sizing_inputs(dp: Datapath, *, cheapest: Datapath | None = None) -> tuple[In
             when the model runs on int64 there, as it does for the sizes the sizer settles on
             (a candidate with more guard bits may run on Python integers, slower but exact).
     """
-    ports = input_ports(dp)
-    total_bits = sum(p.width for p in ports)
-    if total_bits <= EXHAUSTIVE_LIMIT_BITS:
-        grids = np.meshgrid(*[np.arange(1 << p.width, dtype=np.int64) for p in ports], indexing="ij")
-        out = {}
-        for p, g in zip(ports, grids, strict=True):
-            flat = g.ravel()
-            out[p.name] = to_signed(flat, p.width) if p.signed else flat
-        return out, True
+    total_bits = input_space_bits(dp)
+    if total_bits <= EXHAUSTIVE_SLOW_MODEL_BITS:
+        return enumerate_inputs(dp, 0, 1 << total_bits), True
     # Deciding at zero guard bits, not at the most the sizer tries: a 24-bit sqrt judged at 16
     # guard bits was sized on 4096 samples and missed 1.25 LSB errors at 1.5e-4 of its inputs.
-    fast = _int64_model(cheapest if cheapest is not None else dp)
+    fast = int64_model(cheapest if cheapest is not None else dp)
     count = RANDOM_SIZING_SAMPLES if fast else WIDE_SIZING_SAMPLES
     rng = np.random.default_rng(_SIZING_SEED)
-    corners = corner_inputs(dp)
-    rand = random_inputs(dp, rng, count)
-    return {k: np.concatenate([corners[k], rand[k]]) for k in rand}, False
+    fixed = join_inputs(corner_inputs(dp), directed_inputs(dp, seed=_SIZING_SEED))
+    return join_inputs(fixed, random_inputs(dp, rng, count)), False
+
+
+BENCH_DIRECTED_SEED = 1241
+BENCH_DIRECTED_PER_OCTAVE = 8
+
+
+def bench_corners(dp: Datapath) -> Inputs:
+    """What a bench's corner test sends: the corners, then a small directed worst-case set
+    (:func:`directed_inputs`, a seed of its own and 8 random inputs per octave), so the RTL is
+    checked where each function is worst, not only where the model was sized."""
+    return join_inputs(
+        corner_inputs(dp), directed_inputs(dp, seed=BENCH_DIRECTED_SEED, per_octave=BENCH_DIRECTED_PER_OCTAVE)
+    )
+
+
+def join_inputs(*parts: Inputs) -> Inputs:
+    """Input sets one after the other (same ports)."""
+    names = list(parts[0])
+    dtype: Any = object if any(np.asarray(p[n]).dtype == object for p in parts for n in names) else np.int64
+    return {n: np.concatenate([np.asarray(p[n]).astype(dtype) for p in parts]) for n in names}
 
 
 def _ideal_linear(dp: Datapath, inputs: Inputs) -> dict[str, npt.NDArray[Any]]:
@@ -407,6 +628,8 @@ def ideal_outputs(dp: Datapath, inputs: Inputs, *, with_gain: bool = True) -> di
         cos, sin = ideal_sincos(dp, inputs["in_angle"])
         ideal = {"out_cos": cos, "out_sin": sin}
         return apply_gain(dp, ideal) if with_gain else ideal
+    if dp.data_width > FLOAT64_MAX_DATA_WIDTH or dp.angle_width > FLOAT64_MAX_DATA_WIDTH:
+        return _ideal_circular_wide(dp, inputs, with_gain)
     x = np.asarray(inputs["in_x"], dtype=np.float64)
     y = np.asarray(inputs["in_y"], dtype=np.float64)
     growth = 1.0 if dp.gain_mode == "compensated" or not with_gain else 1.0 / float(dp.gain)
@@ -419,11 +642,78 @@ def ideal_outputs(dp: Datapath, inputs: Inputs, *, with_gain: bool = True) -> di
     return {"out_angle": angle, "out_magnitude": growth * np.hypot(x, y)}
 
 
+def _ideal_circular_wide(dp: Datapath, inputs: Inputs, with_gain: bool) -> dict[str, npt.NDArray[Any]]:
+    """rotate and atan2 past float64's precision: mpmath at 40 digits (a 60-bit product in
+    float64 is off by up to 2^(60-53) LSB)."""
+    b = dp.data_width
+
+    def signed(values: npt.ArrayLike, width: int) -> list[int]:
+        half = 1 << (width - 1)
+        mask = (1 << width) - 1
+        return [((int(v) + half) & mask) - half for v in np.asarray(values).ravel()]
+
+    xs, ys = signed(inputs["in_x"], b), signed(inputs["in_y"], b)
+    with mpmath.workdps(_IDEAL_DPS):
+        growth = 1 / mpmath.mpf(dp.gain) if with_gain and dp.gain_mode == "raw" else mpmath.mpf(1)
+        if dp.function == "rotate":
+            a = dp.angle_width
+            codes = signed(inputs["in_angle"], a) if dp.radians else [int(v) & ((1 << a) - 1) for v in np.asarray(inputs["in_angle"]).ravel()]
+            out_x, out_y = [], []
+            for x, y, c in zip(xs, ys, codes, strict=True):
+                t = c / mpmath.mpf(2) ** dp.angle_frac if dp.radians else 2 * mpmath.pi * c / mpmath.mpf(2) ** a
+                cos, sin = mpmath.cos(t), mpmath.sin(t)
+                out_x.append(growth * (x * cos - y * sin))
+                out_y.append(growth * (x * sin + y * cos))
+            return {"out_x": np.array(out_x, dtype=object), "out_y": np.array(out_y, dtype=object)}
+        angles, mags = [], []
+        for x, y in zip(xs, ys, strict=True):
+            theta = mpmath.atan2(y, x)
+            angles.append(theta * mpmath.mpf(2) ** dp.angle_frac if dp.radians else theta / (2 * mpmath.pi) * mpmath.mpf(2) ** dp.angle_width)
+            mags.append(growth * mpmath.hypot(x, y))
+        return {"out_angle": np.array(angles, dtype=object), "out_magnitude": np.array(mags, dtype=object)}
+
+
 def _angle_radians(dp: Datapath, codes: npt.ArrayLike) -> npt.NDArray[np.float64]:
     signed = to_signed(np.asarray(codes).astype(np.int64), dp.angle_width).astype(np.float64)
     if dp.radians:
         return signed / 2.0**dp.angle_frac
     return signed * (2.0 * np.pi / 2.0**dp.angle_width)
+
+
+# Up to this width the float64 ideal of mul and div is exact to far below an LSB (a product of
+# two 26-bit values fits float64's 53 bits); wider ones are judged from exact integers.
+EXACT_FLOAT_LINEAR_BITS = 26
+
+
+def _exact_linear_errors(dp: Datapath, inputs: Inputs, outputs: dict[str, npt.NDArray[Any]]) -> npt.NDArray[np.float64]:
+    """mul and div errors in output LSBs from exact integer arithmetic: the difference between
+    the output and the exact result is formed as a ratio of integers and only then rounded to
+    float64, so it is exact to float64 precision at any width. div's ideal is clamped to the
+    format, as in :func:`function_errors`; out-of-domain pairs give NaN (not judged)."""
+    b = dp.data_width
+
+    def ints(values: npt.ArrayLike) -> npt.NDArray[np.object_]:
+        half = 1 << (b - 1)
+        mask = (1 << b) - 1
+        return np.array([((int(v) + half) & mask) - half for v in np.asarray(values).ravel()], dtype=object)
+
+    if dp.function == "mul":
+        a, m = ints(inputs["in_a"]), ints(inputs["in_b"])
+        got = np.array([int(v) for v in np.asarray(outputs["out_product"]).ravel()], dtype=object)
+        numer = got * (1 << (b - 1)) - a * m  # exact: (out - a m / 2^(b-1)) 2^(b-1)
+        return np.array([float(v) for v in numer], dtype=np.float64) / 2.0 ** (b - 1)
+    num, den = ints(inputs["in_num"]), ints(inputs["in_den"])
+    got = np.array([int(v) for v in np.asarray(outputs["out_quotient"]).ravel()], dtype=object)
+    scaled = num * (1 << (b - 2))  # the exact quotient is scaled / den
+    out = np.full(len(got), np.nan)
+    for k, (n2, d, q) in enumerate(zip(scaled, den, got, strict=True)):
+        if d == 0 or abs(n2) >= abs(d) << (b - 1):
+            continue  # outside the domain: not judged
+        if abs(n2) > dp.out_max * abs(d):  # beyond the format: judged against the clamped value
+            out[k] = float(q - (dp.out_max if (n2 < 0) == (d < 0) else -dp.out_max))
+        else:
+            out[k] = float(q * d - n2) / float(d)
+    return out
 
 
 def function_errors(
@@ -455,17 +745,38 @@ def function_errors(
         w = np.asarray(inputs["in_w"])
         errs["out_ln"] = np.where(w != 0, errs["out_ln"], np.nan)
     if dp.function == "div":
-        # Judged inside the domain, and below the format's largest value (2 - 2^-(b-2)), where
-        # the quotient saturates by design.
+        # Judged at every pair inside the domain. A quotient between the format's largest
+        # value (2 - 2^-(b-2)) and 2 saturates to that value by design: it is judged against
+        # the ideal clamped to the format.
         num = np.asarray(inputs["in_num"]).astype(np.int64)
         den = np.asarray(inputs["in_den"]).astype(np.int64)
-        inside = div_domain(dp, num, den) & (np.abs(ideal["out_quotient"]) <= dp.out_max)
-        errs["out_quotient"] = np.where(inside, errs["out_quotient"], np.nan)
+        inside = div_domain(dp, num, den)
+        if dp.data_width > EXACT_FLOAT_LINEAR_BITS:
+            err = _exact_linear_errors(dp, inputs, outputs)
+        else:
+            clamped = np.clip(np.asarray(ideal["out_quotient"], dtype=np.float64), -dp.out_max, dp.out_max)
+            err = errors_lsb(outputs["out_quotient"], clamped)
+        errs["out_quotient"] = np.where(inside, err, np.nan)
+    if dp.function == "mul" and dp.data_width > EXACT_FLOAT_LINEAR_BITS:
+        errs["out_product"] = _exact_linear_errors(dp, inputs, outputs)
     if dp.function == "atan2":
         e = errs["out_angle"]
         if not dp.radians:
-            full = 2.0**dp.angle_width
-            e = (e + full / 2) % full - full / 2
+            # A binary angle wraps: an error past half a turn is the same angle the other way.
+            # Formed exactly: (e + full/2) % full in float64 would round a small error away
+            # once the angle is wider than about 52 bits.
+            ideal_angle = np.asarray(ideal["out_angle"])
+            full = 1 << dp.angle_width
+            if ideal_angle.dtype == object:
+                with mpmath.workdps(_IDEAL_DPS):
+                    diffs = []
+                    for o, i in zip(np.asarray(outputs["out_angle"]).ravel(), ideal_angle.ravel(), strict=True):
+                        d = mpmath.mpf(int(o)) - i
+                        d = d - full * mpmath.nint(d / full)
+                        diffs.append(float(d))
+                e = np.array(diffs, dtype=np.float64).reshape(e.shape)
+            else:
+                e = np.where(np.abs(e) > full / 2, e - np.sign(e) * float(full), e)
         x = np.asarray(inputs["in_x"], dtype=np.float64)
         y = np.asarray(inputs["in_y"], dtype=np.float64)
         errs["out_angle"] = np.where(np.hypot(x, y) >= small_vector_limit(dp), e, np.nan)

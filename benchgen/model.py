@@ -32,8 +32,10 @@ __all__ = [
     "model_width",
     "mul",
     "prescale",
+    "redundant_sign_bits",
     "rotate",
     "round_drop",
+    "round_shift",
     "sincos",
     "sinhcosh",
     "sqrt",
@@ -103,6 +105,63 @@ def round_drop(values: IntArray, drop: int, rounding: str, out_width: int) -> In
     else:  # pragma: no cover - the config rejects other modes
         raise ValueError(f"unknown rounding {rounding!r}")
     return wrap(kept + inc, out_width)
+
+
+def _round_int(value: int, drop: int, rounding: str) -> int:
+    """:func:`round_shift` of one Python integer."""
+    if drop == 0:
+        return value
+    kept = value >> drop
+    frac = value & ((1 << drop) - 1)
+    half = 1 << (drop - 1)
+    if rounding == "half_up":
+        return kept + (frac >= half)
+    if rounding == "half_even":
+        return kept + (frac > half or (frac == half and kept & 1 == 1))
+    return kept
+
+
+def round_shift(values: IntArray, drop: IntArray, rounding: str) -> IntArray:
+    """Divide by 2**drop (a count per element, each >= 0) with the given rounding.
+
+    The same increment rule as :func:`round_drop`, with the rounding point varying per sample
+    (an output shifted back by a normalising shift). No wrap: the caller clamps.
+    """
+    drop = np.asarray(drop)
+    if values.dtype == object:
+        return np.array(
+            [_round_int(int(v), int(d), rounding) for v, d in zip(values.ravel(), drop.ravel(), strict=True)],
+            dtype=object,
+        ).reshape(values.shape)
+    d = drop.astype(np.int64)
+    one = np.int64(1)
+    kept = values >> d
+    frac = values & ((one << d) - one)
+    half = np.where(d > 0, one << np.maximum(d - one, 0), np.int64(-1))  # -1: nothing dropped, no increment
+    if rounding == "truncate":
+        inc = np.zeros_like(kept)
+    elif rounding == "half_up":
+        inc = ((half >= 0) & (frac >= half)).astype(np.int64)
+    elif rounding == "half_even":
+        tie_up = (frac == half) & ((kept & one) == one)
+        inc = ((half >= 0) & ((frac > half) | tie_up)).astype(np.int64)
+    else:  # pragma: no cover - the config rejects other modes
+        raise ValueError(f"unknown rounding {rounding!r}")
+    return kept + inc
+
+
+def redundant_sign_bits(values: tuple[IntArray, ...], width: int) -> IntArray:
+    """The left shift that normalises signed ``width``-bit values together: how many of their
+    top bits below the sign all repeat the sign, counted for the value that has fewest.
+
+    Every value shifted left by it still fits ``width`` bits, and the largest of them then
+    reaches at least 2**(width - 2) in magnitude. The count is at most width - 2 (inputs that
+    are all 0 or -1 give that).
+    """
+    bits = np.zeros(values[0].shape, dtype=values[0].dtype)
+    for v in values:
+        bits = bits | (v ^ (v >> (width - 1)))  # |v| less one for negatives: the bits below the sign
+    return leading_zeros(bits, width - 1)
 
 
 def _saturate(values: IntArray, limit: int) -> IntArray:
@@ -286,19 +345,28 @@ def iterate_wrapping(dp: Datapath, x: IntArray, y: IntArray, z: IntArray, dtype:
 def prescale(dp: Datapath, values: IntArray) -> IntArray:
     """Input data at internal scale: times K_n with the guard bits (compensated), or shifted (raw).
 
-    The product's dropped bits round half up, read from all of them, as the RTL does.
+    The product's dropped bits round half up, read from all of them, as the RTL does. A product
+    too wide for int64 is formed on Python integers and the rounded value (x's width) comes
+    back to int64.
     """
     if dp.gain_mode == "raw":
         return values << dp.guard_bits
     drop = dp.k_frac - dp.guard_bits
-    product = values * dp.k_const
-    return (product >> drop) + ((product & ((1 << drop) - 1)) >= (1 << (drop - 1))).astype(product.dtype)
+    wide = values.dtype != object and _product_bits(dp) > INT64_MODEL_BITS
+    product = (values.astype(object) if wide else values) * dp.k_const
+    scaled = (product >> drop) + ((product & ((1 << drop) - 1)) >= (1 << (drop - 1))).astype(product.dtype)
+    return scaled.astype(np.int64) if wide else scaled
+
+
+def _product_bits(dp: Datapath) -> int:
+    """Bits of the prescale product (a data_width + 1 bit value times K_n at k_frac bits)."""
+    return dp.data_width + 1 + dp.k_frac + 1 if dp.k_frac else 0
 
 
 def _widest(dp: Datapath) -> int:
-    """Bits the widest intermediate needs: the prescale product, or a register, plus margin."""
-    product = dp.data_width + 1 + dp.k_frac + 1 if dp.k_frac else 0
-    return max(product, dp.xy_width, dp.z_width, dp.angle_width) + 2
+    """Bits the widest intermediate of the iterations needs: a register plus margin (the
+    prescale product is formed on Python integers where it is wider)."""
+    return max(dp.xy_width, dp.z_width, dp.angle_width) + 2
 
 
 def _as_ints(values: npt.ArrayLike, width: int, dtype: Any) -> IntArray:
@@ -331,15 +399,25 @@ def rotate(dp: Datapath, x_in: npt.ArrayLike, y_in: npt.ArrayLike, angles: npt.A
 def atan2(dp: Datapath, x_in: npt.ArrayLike, y_in: npt.ArrayLike) -> dict[str, IntArray]:
     """Predict the atan2 core: ``out_angle`` of the vector (x, y) and ``out_magnitude``.
 
-    A vector with x < 0 is turned by half a turn first (Walther 1971's pre-rotation by pi) and
-    z starts at that half turn. The zero vector gives angle 0 and magnitude 0.
+    Prenormalised cores first shift x and y left together by their common redundant sign
+    bits (:func:`redundant_sign_bits`), which leaves the angle as it is and puts the longer
+    component in the top half of the format, so a short vector is resolved as finely as a long
+    one; the magnitude is shifted back before its one rounding. A vector with x < 0 is then
+    turned by half a turn (Walther 1971's pre-rotation by pi) and z starts at that half turn.
+    The zero vector gives angle 0 and magnitude 0.
     """
     dtype = _dtype_for(_widest(dp))
     b = dp.data_width
     x = to_signed(_as_ints(x_in, b, dtype), b)
     y = to_signed(_as_ints(y_in, b, dtype), b)
-    neg = x < 0
     zero = (x == 0) & (y == 0)
+    shift = None
+    if dp.prenorm_max:
+        shift = redundant_sign_bits((x, y), b)
+        shift_t = shift.astype(x.dtype)
+        x = x << shift_t
+        y = y << shift_t
+    neg = x < 0
     if dp.radians:
         turn = np.where(y >= 0, dp.pi_const, -dp.pi_const)
     else:
@@ -350,8 +428,11 @@ def atan2(dp: Datapath, x_in: npt.ArrayLike, y_in: npt.ArrayLike) -> dict[str, I
     x_n, _, z_n = iterate(dp, prescale(dp, xv), prescale(dp, yv), z, dtype)
     angle = round_drop(z_n, dp.z_frac - dp.angle_frac, dp.rounding, dp.angle_width)
     angle = np.where(zero, 0, angle)
-    mag = round_drop(x_n, dp.guard_bits, dp.rounding, dp.out_width + 1)
-    mag = np.where(mag < 0, 0, mag)
+    if shift is None:
+        mag = round_drop(x_n, dp.guard_bits, dp.rounding, dp.out_width + 1)
+    else:
+        mag = round_shift(x_n, shift + dp.guard_bits, dp.rounding)
+    mag = np.where(mag < 0, 0, np.where(mag > dp.out_max, dp.out_max, mag))
     return {"out_angle": angle, "out_magnitude": mag}
 
 
@@ -383,8 +464,11 @@ def div(dp: Datapath, num_in: npt.ArrayLike, den_in: npt.ArrayLike) -> dict[str,
     """Predict the div core: ``out_quotient`` = num / den (data_width - 2 fraction bits) and
     ``out_domain_error``, set (with a zero quotient) where the quotient is out of range.
 
-    Linear vectoring (Walther 1971): x = |den|, y from num (negated with den), z from 0; y is
-    driven to 0 and z collects num / den.
+    Range extension: num and den are first shifted left together by den's redundant sign bits
+    (:func:`redundant_sign_bits`), which leaves the quotient as it is and brings |den| into
+    [1/2, 1], so a small denominator is divided as finely as a large one. Then linear
+    vectoring (Walther 1971): x = |den|, y from num (negated with den), z from 0; y is driven
+    to 0 and z collects num / den.
     """
     dtype = _dtype_for(_widest(dp))
     b = dp.data_width
@@ -392,9 +476,14 @@ def div(dp: Datapath, num_in: npt.ArrayLike, den_in: npt.ArrayLike) -> dict[str,
     num = to_signed(_as_ints(num_in, b, dtype), b)
     den = to_signed(_as_ints(den_in, b, dtype), b)
     ok = div_domain(dp, num, den)
+    shift = redundant_sign_bits((den,), b).astype(den.dtype)
+    # In the domain |num| < 2 |den|, so the shifted num fits b + 1 bits; outside it the
+    # register wraps (the quotient is flagged and forced to 0 there).
+    num = wrap(num << shift, b + 1)
+    den = den << shift
     neg = den < 0
     x = np.where(neg, -den, den) << g
-    y = np.where(neg, -num, num) << g
+    y = wrap(np.where(neg, -num, num), b + 1) << g
     z = np.zeros_like(x)
     _, _, z = iterate(dp, x, y, z, dtype)
     q = _saturate(round_drop(z, g, dp.rounding, dp.data_width + 1), dp.out_max)

@@ -23,7 +23,7 @@ import shutil
 import signal
 import threading
 import time
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from pathlib import Path, PurePosixPath
 from typing import Any
 
@@ -35,7 +35,7 @@ except ImportError:  # pragma: no cover - not a supported platform for the simul
 from benchgen import __version__
 from benchgen.config import CoreSpec, load_config, parse_config
 from benchgen.algorithm import make_datapath, make_timing
-from benchgen.design import Design, build_design
+from benchgen.design import Design, Proof, build_design
 from benchgen.reference import ErrorStats
 from benchgen.errors import BenchgenError, ConfigError
 from benchgen.functions import input_ports, output_ports, small_vector_limit
@@ -131,12 +131,9 @@ def manifest_for(design: Design) -> dict[str, Any]:
             "model_bias_lsb": round(design.accuracy.bias_lsb, 6),
             "model_samples": design.accuracy.samples,
             "model_exhaustive": design.accuracy_exhaustive,
+            "proof": design.proof.as_dict(),
             "atan2_angle_budget_min_magnitude": small_vector_limit(dp) if dp.function == "atan2" else None,
-            "measured_on": (
-                f"all {design.accuracy.samples} inputs"
-                if design.accuracy_exhaustive
-                else f"{design.accuracy.samples} seeded random inputs and corners"
-            ),
+            "measured_on": design.proof.describe(),
         },
         "files": {
             "rtl": [f"rtl/{spec.name}.v"],
@@ -260,7 +257,9 @@ def render_project(design: Design, config_text: str) -> dict[str, str]:
     return dict(sorted(files.items()))
 
 
-def generate_project(config_path: str | Path, out_dir: str | Path) -> Design:
+def generate_project(
+    config_path: str | Path, out_dir: str | Path, *, progress: Callable[[str], None] | None = None
+) -> Design:
     """Validate a config and write its project folder (replacing an earlier benchgen project).
 
     In an earlier project only the files its manifest lists as generated are replaced or deleted;
@@ -275,7 +274,7 @@ def generate_project(config_path: str | Path, out_dir: str | Path) -> Design:
     config_path = Path(config_path)
     spec = load_config(config_path)
     try:
-        design = build_design(spec)
+        design = build_design(spec, progress=progress)
         check_module_name(design)
     except ConfigError as exc:
         raise exc.with_source(str(config_path)) from None
@@ -778,6 +777,15 @@ def _manifest_shape_problem(data: object) -> str | None:
     return None
 
 
+def _proof_from(budget: dict[str, Any]) -> Proof:
+    """The proof a manifest records (older manifests only say whether it was exhaustive)."""
+    proof = budget.get("proof")
+    if isinstance(proof, dict):
+        return Proof(str(proof["method"]), int(proof["inputs"]), int(proof["random"]), int(proof["directed"]))
+    samples = int(budget["model_samples"])
+    return Proof("exhaustive", samples) if budget["model_exhaustive"] else Proof("sampled", samples, samples, 0)
+
+
 def design_from_manifest(manifest: dict[str, Any]) -> Design:
     """Rebuild the design a manifest was written from, and check it still matches.
 
@@ -809,7 +817,7 @@ def design_from_manifest(manifest: dict[str, Any]) -> Design:
                 rms_error_lsb=budget["model_rms_error_lsb"],
                 bias_lsb=budget["model_bias_lsb"],
             ),
-            accuracy_exhaustive=budget["model_exhaustive"],
+            proof=_proof_from(budget),
             auto_fields=tuple(derived["auto_fields"]),
         )
         # Every key but the version must come out the same: the names, ports and files the

@@ -20,7 +20,7 @@ from benchgen import __version__
 from benchgen.config import MAX_NAME_LENGTH, name_problem
 from benchgen.design import Design
 from benchgen.errors import ConfigError
-from benchgen.functions import input_ports, output_ports
+from benchgen.functions import input_ports, output_ports, small_vector_limit
 
 __all__ = [
     "MAX_HEADER_LINE",
@@ -380,7 +380,10 @@ def _side_signals(design: Design) -> list[dict[str, Any]]:
     """Per-sample values that travel beside x, y, z from the input logic to the output logic."""
     dp = design.datapath
     if dp.function == "atan2":
-        return [{"name": "zero", "width": 1, "src": "in_zero"}]
+        zero = {"name": "zero", "width": 1, "src": "in_zero"}
+        if dp.prenorm_max:
+            return [zero, {"name": "shift", "width": dp.prenorm_width, "src": "in_shift"}]
+        return [zero]
     if dp.function in ("div", "atanh"):
         return [{"name": "bad", "width": 1, "src": "in_bad"}]
     if dp.function == "ln":
@@ -484,6 +487,8 @@ def build_context(design: Design, *, config_text: str = "") -> dict[str, Any]:
         "dp": dp,
         "timing": design.timing,
         "accuracy": design.accuracy,
+        "proof_lines": _wrap("measured over " + design.proof.describe() + ".", 92),
+        "small_vector": small_vector_limit(dp),
         "config_lines": header_lines(config_text),
         "tag": spec.tag_width > 0,
         "tag_width": spec.tag_width,
@@ -501,6 +506,17 @@ def build_context(design: Design, *, config_text: str = "") -> dict[str, Any]:
         "atan": [verilog_literal(a, dp.z_width) for a in dp.atan_table],
         "drops": _drops(design),
     }
+    ctx["prenorm"] = None
+    if dp.prenorm_max:
+        sw = dp.prenorm_width
+
+        def leading_zero_encoder(bits: str) -> str:
+            # bits holds bits B-2 down to 1 of the value: the index of the first 1 from the top,
+            # B - 2 when there is none (bit 0 alone, or nothing, below the sign).
+            terms = [f"{bits}[{b - 3 - k}] ? {verilog_literal(k, sw)}" for k in range(b - 2)]
+            return " : ".join(terms + [verilog_literal(b - 2, sw)])
+
+        ctx["prenorm"] = {"sw": sw, "sm": dp.prenorm_max, "expr": leading_zero_encoder}
     has_y, has_z = _carries(dp.function)
     ctx["has_y"] = has_y
     ctx["has_z"] = has_z
@@ -542,6 +558,17 @@ def build_context(design: Design, *, config_text: str = "") -> dict[str, Any]:
             ctx["scale"] = None
             ctx["raw_ext"] = w - g - (b + 1)  # sign bits above the (b+1)-bit input, below x_start's top
     return ctx | (_pipelined_context(design) if design.timing.architecture == "pipelined" else _iterative_context(design))
+
+
+def _wrap(text: str, width: int) -> list[str]:
+    """Words of ``text`` in lines of at most ``width`` characters (for header comments)."""
+    lines: list[str] = []
+    for word in text.split():
+        if lines and len(lines[-1]) + 1 + len(word) <= width:
+            lines[-1] += " " + word
+        else:
+            lines.append(word)
+    return lines
 
 
 @cache

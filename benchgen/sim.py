@@ -61,6 +61,10 @@ class SimReport:
         log_file: The simulator's log.
         mode: ``per-clock``, ``bulk`` or ``bulk, exhaustive``.
         engine: What drove the bench: ``cocotb`` or ``C++ runner`` (Verilator bulk runs).
+        over_budget: Judged output values whose error against the ideal is not below the
+            budget, over all tests.
+        worst_sample: The sample with the largest error against the ideal: its port, error,
+            sample number and inputs (None when nothing was judged).
     """
 
     simulator: str
@@ -86,6 +90,8 @@ class SimReport:
     log_file: str = ""
     mode: str = "per-clock"
     engine: str = "cocotb"
+    over_budget: int = 0
+    worst_sample: dict[str, Any] | None = None
 
     def as_dict(self) -> dict[str, Any]:
         """JSON form (the keys of ``--json``)."""
@@ -104,6 +110,8 @@ class SimReport:
             "max_error_lsb": round(self.max_error_lsb, 6),
             "rms_error_lsb": round(self.rms_error_lsb, 6),
             "error_budget_lsb": self.error_budget_lsb,
+            "over_budget": self.over_budget,
+            "worst_sample": self.worst_sample,
             "latency_cycles": self.latency_cycles,
             "expected_latency_cycles": self.expected_latency_cycles,
             "cycles_per_sample": self.cycles_per_sample,
@@ -113,6 +121,13 @@ class SimReport:
             "problems": self.problems,
             "per_test": self.per_test,
         }
+
+    def _worst_inputs(self) -> str:
+        if not self.worst_sample:
+            return "-"
+        w = self.worst_sample
+        inputs = ", ".join(f"{k}={v}" for k, v in w["inputs"].items() if k != "in_tag")
+        return f"{inputs} ({w['port']}, {w['error_lsb']:.4f} LSB)"
 
     def table(self) -> str:
         """A short human-readable summary."""
@@ -128,6 +143,8 @@ class SimReport:
             ("samples checked", str(self.samples)),
             ("mismatches vs model", str(self.mismatches)),
             ("worst error vs ideal", f"{self.max_error_lsb:.4f} LSB (budget {self.error_budget_lsb} LSB)"),
+            ("  at input", self._worst_inputs()),
+            ("samples over budget", str(self.over_budget)),
             ("RMS error vs ideal", f"{self.rms_error_lsb:.4f} LSB"),
             ("latency", f"{lat} clocks (manifest {self.expected_latency_cycles})"),
             ("cycles per sample", f"{cps} (manifest {self.expected_cycles_per_sample})"),
@@ -440,6 +457,10 @@ def _pool(report: SimReport, per_test: list[dict[str, Any]]) -> None:
         sum_sq += t["sum_sq_error"]
         count += t["error_count"]
         report.problems.extend(f"{t['test']}: {p}" for p in t["problems"])
+        report.over_budget += int(t.get("over_budget", 0))
+        w = t.get("worst_sample")
+        if w and (report.worst_sample is None or w["error_lsb"] > report.worst_sample["error_lsb"]):
+            report.worst_sample = {**w, "test": t["test"]}
         if t["test"] in FULL_RATE_TESTS:
             if t["latency_cycles"]:
                 lo, hi = t["latency_cycles"]

@@ -129,6 +129,16 @@ def _scalar_row(row: dict[str, Any]) -> dict[str, Any]:
 MismatchRow = Annotated[dict[str, Any], Field(min_length=1)]
 
 
+class WorstSample(_Strict):
+    """The sample with the largest error against the ideal in a run."""
+
+    port: str
+    error_lsb: NonNegFloat
+    index: NonNegInt
+    inputs: dict[str, int]
+    test: str
+
+
 class SimRunRecord(_Strict):
     """One simulation's measurements: :meth:`benchgen.sim.SimReport.as_dict` without ``per_test``.
 
@@ -159,6 +169,8 @@ class SimRunRecord(_Strict):
     sim_seconds: NonNegFloat
     build_seconds: NonNegFloat
     problems: list[str]
+    over_budget: NonNegInt = 0
+    worst_sample: WorstSample | None = None
 
     @model_validator(mode="after")
     def _consistent(self) -> SimRunRecord:
@@ -172,6 +184,7 @@ class SimRunRecord(_Strict):
                 (self.failed > 0, f"failed = {self.failed}"),
                 (self.samples == 0, "samples = 0"),
                 (self.mismatches > 0, f"mismatches = {self.mismatches}"),
+                (self.over_budget > 0, f"over_budget = {self.over_budget}"),
                 (bool(self.problems), f"{len(self.problems)} problem(s) noted"),
                 (self.max_error_lsb > self.error_budget_lsb,
                  f"max_error_lsb = {self.max_error_lsb} is over the budget {self.error_budget_lsb}"),

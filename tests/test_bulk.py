@@ -169,15 +169,18 @@ def test_the_input_space_is_every_port_concatenated_in_port_order(
         np.testing.assert_allclose(np.asarray(ideal_looked_up[port], float), np.asarray(ideal_direct[port], float))
 
 
-def test_atan2_angle_errors_of_short_vectors_are_not_judged(tmp_path: Path) -> None:
-    project = _project(tmp_path, function="atan2", angle_width=10, data_width=10)
+@pytest.mark.parametrize("prenormalise", [True, False])
+def test_atan2_angle_errors_of_short_vectors(tmp_path: Path, prenormalise: bool) -> None:
+    """The bulk bench judges what the core promises: every non-zero vector's angle when
+    prenormalised, only vectors of at least 2^(b-5) otherwise."""
+    project = _project(tmp_path, function="atan2", angle_width=10, data_width=10, prenormalise=prenormalise)
     design = design_from_manifest(load_manifest(project))
     fn = BulkFunction(design)
     inputs = {"in_x": np.array([1, 400, 0]), "in_y": np.array([1, 300, 0])}
     expected, ideal = fn.predict(inputs)
     errors = fn.errors(inputs, expected, ideal)
-    assert np.isnan(errors["out_angle"][0]) and np.isnan(errors["out_angle"][2])
-    assert not np.isnan(errors["out_angle"][1])
+    assert np.isnan(errors["out_angle"][2]) and not np.isnan(errors["out_angle"][1])
+    assert np.isnan(errors["out_angle"][0]) != prenormalise
     assert not np.isnan(errors["out_magnitude"]).any()
 
 

@@ -128,7 +128,7 @@ def test_no_name_inside_a_core_contains_core() -> None:
         for arch in ({"architecture": "pipelined"}, {"architecture": "iterative", "iterations_per_cycle": 3}):
             # Fixed sizes and a loose budget: the names do not depend on the size, and no sizing runs.
             sizes = {"iterations": 8, "guard_bits": 2, "max_error_lsb": 1e6}
-            names |= _inner_names({"name": "m", "tag_width": k % 2, **arch, **fn, **sizes})
+            names |= _inner_names({"name": "m", "tag_width": k % 2, **arch, **sizes, **fn})
     assert "advance" in names and "clk" in names  # the check reads real names
     assert not [n for n in names if "core" in n.lower()]
 

@@ -36,6 +36,11 @@ FUNCTION_CASES = [
     {"function": "rotate", "data_width": 10, "angle_width": 11, "gain": "raw", "angle_unit": "radians"},
     {"function": "atan2", "data_width": 10, "angle_width": 12},
     {"function": "atan2", "data_width": 9, "angle_width": 10, "gain": "raw", "angle_unit": "radians"},
+    {"function": "atan2", "data_width": 10, "angle_width": 12, "prenormalise": False},
+    # The narrowest normalisers (a 3-bit atan2's shift is one bit), with iterations enough for
+    # every architecture variant.
+    {"function": "atan2", "data_width": 3, "angle_width": 5, "iterations": 6, "max_error_lsb": 2.0},
+    {"function": "div", "data_width": 5, "iterations": 6, "max_error_lsb": 2.0},
     {"function": "sincos", "data_width": 10, "angle_width": 12, "angle_unit": "radians"},
     {"function": "sincos", "data_width": 10, "angle_width": 11, "gain": "raw"},
     {"function": "mul", "data_width": 10},

@@ -80,6 +80,7 @@ FUNCTION_CORES = {
     "sqrt_raw_truncate": {"function": "sqrt", "data_width": 12, "gain": "raw", "rounding": "truncate", "max_error_lsb": 1.5, "tag_width": 2},
     "exp_raw_truncate": {"function": "exp", "data_width": 11, "gain": "raw", "rounding": "truncate", "max_error_lsb": 1.5},
     "sincos_raw": {"function": "sincos", "data_width": 12, "angle_width": 12, "gain": "raw", "tag_width": 1},
+    "atan2_unnormalised": {"function": "atan2", "data_width": 12, "angle_width": 12, "prenormalise": False},
 }
 # Uniform random codes fall outside div's domain (|num| >= 2 |den|) a quarter of the time and
 # outside atanh's (|u| > 0.8069) a fifth of it, and ln's (w = 0) once in 4096: more samples
@@ -100,6 +101,7 @@ VARIANT_CASES = {
     "sqrt_raw_truncate": ("depth3", "verilator"),
     "exp_raw_truncate": ("iter3", "icarus"),
     "sincos_raw": ("depth3", "icarus"),
+    "atan2_unnormalised": ("depth3", "verilator"),
 }
 FUNCTION_CASES = [
     (core, arch, sim)

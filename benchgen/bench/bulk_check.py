@@ -23,7 +23,7 @@ import numpy.typing as npt
 from benchgen.bench.scoreboard import FIRST_MISMATCHES, CheckResult, write_csv_rows
 from benchgen.design import Design
 from benchgen.functions import (
-    corner_inputs,
+    bench_corners,
     function_errors,
     ideal_outputs,
     input_ports,
@@ -124,8 +124,8 @@ class BulkFunction:
         return self._table is not None
 
     def corners(self) -> Inputs:
-        """The function's boundary inputs."""
-        return corner_inputs(self.dp)
+        """The function's boundary inputs and directed worst cases."""
+        return bench_corners(self.dp)
 
     def random(self, rng: np.random.Generator, count: int) -> Inputs:
         """Uniform random codes on every input port."""
@@ -329,8 +329,11 @@ class ErrorStats:
     would (``tests/test_bulk.py`` checks it against that).
     """
 
-    def __init__(self, keep: int = WORST_SAMPLES) -> None:
+    def __init__(self, keep: int = WORST_SAMPLES, budget: float = float("inf")) -> None:
         self.keep = keep
+        self.budget = budget
+        self.over = 0
+        """Judged samples whose error is not below the budget."""
         self.count = 0
         self.total = 0.0
         self.total_sq = 0.0
@@ -346,6 +349,7 @@ class ErrorStats:
             return
         ok = err[judged]
         self.count += count
+        self.over += int(np.count_nonzero(np.abs(ok) >= self.budget))
         self.total += float(np.sum(ok))
         self.total_sq += float(np.sum(ok**2))
         mag = np.where(judged, np.abs(err), -1.0)
@@ -380,6 +384,7 @@ class ErrorStats:
         """JSON form for the test's record."""
         return {
             "error_count": self.count,
+            "over_budget": self.over,
             "max_error_lsb": self.max,
             "rms_error_lsb": self.rms,
             "mean_error_lsb": self.mean,
@@ -457,7 +462,7 @@ class Tally:
                 row.update({f"got_{p}": int(v[k]) for p, v in got.items()})
                 res.first_mismatches.append(row)
         for port, all_err in errors.items():
-            stats = self.errors.setdefault(port, ErrorStats())
+            stats = self.errors.setdefault(port, ErrorStats(budget=self.budget))
             stats.add(offset, np.asarray(all_err[:n], dtype=np.float64), inputs)
 
     def count_problem(self, text: str) -> None:
@@ -495,9 +500,16 @@ class Tally:
             # Same rule as the per-clock bench: the error must stay strictly below the budget.
             if worst >= self.budget:
                 res.problems.append(
-                    f"{port}: error {worst:.4f} LSB against the ideal is not below the budget {self.budget} LSB "
-                    f"at sample {k} (input " + ", ".join(f"{p}={v}" for p, v in inp.items()) + f"; seed {self.seed})"
+                    f"{port}: {stats.over} of {stats.count} judged samples are not below the budget "
+                    f"{self.budget} LSB; the worst, {worst:.4f} LSB, at sample {k} (input "
+                    + ", ".join(f"{p}={v}" for p, v in inp.items())
+                    + f"; seed {self.seed})"
                 )
+        res.extra["over_budget"] = sum(s.over for s in judged.values())
+        worst_port = max(judged, key=lambda p: judged[p].worst[0][0], default=None)
+        if worst_port is not None:
+            w, k, inp = judged[worst_port].worst[0]
+            res.extra["worst_sample"] = {"port": worst_port, "error_lsb": w, "index": k, "inputs": inp}
         res.sum_sq_error = sum(s.total_sq for s in judged.values())
         res.error_count = sum(s.count for s in judged.values())
         res.max_error_lsb = max((s.max for s in judged.values()), default=0.0)

@@ -22,7 +22,7 @@ from cocotb.clock import Clock
 from benchgen.bench.scoreboard import CheckResult, compare, record, write_csv_rows
 from benchgen.bench.stream import Capture, StreamBench
 from benchgen.design import Design
-from benchgen.functions import corner_inputs, function_errors, ideal_outputs, input_ports, output_ports, random_inputs
+from benchgen.functions import bench_corners, function_errors, ideal_outputs, input_ports, output_ports, random_inputs
 from benchgen.model import evaluate_function
 from benchgen.project import design_from_manifest, load_manifest
 
@@ -87,8 +87,8 @@ class CoreBench:
         return self.with_tags(random_inputs(self.dp, rng, count))
 
     def corners(self) -> dict[str, npt.NDArray[Any]]:
-        """The function's corner inputs, tags counting up."""
-        return self.with_tags(corner_inputs(self.dp))
+        """The function's corner inputs and directed worst cases, tags counting up."""
+        return self.with_tags(bench_corners(self.dp))
 
     def with_tags(self, stim: dict[str, npt.NDArray[Any]]) -> dict[str, npt.NDArray[Any]]:
         """Add counting tags (they wrap) when the core has a tag."""
@@ -201,7 +201,7 @@ async def test_gaps_and_stalls(dut: Any) -> None:
     for k, (p_idle, p_stall) in enumerate(((0.0, 0.0), (0.5, 0.0), (0.0, 0.5), (0.3, 0.7))):
         idle = rng.random(4099) < p_idle
         stall = rng.random(4093) < p_stall
-        cap = await tb.stream.run(tb.random(rng, count // 4), idle=idle, stall=stall)
+        cap = await tb.stream.run(tb.random(rng, count // 4), idle=idle, stall=stall, withdraw=True)
         tb.check("gaps_and_stalls", cap, result)
         if not cap.complete:
             result.problems.append(f"pattern {k}: {len(cap.out_cycles)} of {count // 4} samples came out")

@@ -90,6 +90,7 @@ class StreamBench:
         stall: npt.NDArray[np.bool_] | None = None,
         max_cycles: int | None = None,
         stop_after: int | None = None,
+        withdraw: bool = False,
     ) -> Capture:
         """Send every sample of ``stimulus`` and collect the outputs.
 
@@ -101,6 +102,10 @@ class StreamBench:
             max_cycles: Give up after this many clocks (the capture says incomplete).
             stop_after: Stop after this many clocks even if samples are still in flight
                 (for a reset in mid-stream).
+            withdraw: On an idle clock, take back a sample the core has not taken yet (drop
+                ``in_valid`` and put other data on the inputs), offering it again later: the
+                core must take a sample only at an edge where ``in_valid`` is high
+                (docs/number_formats.md, the handshake contract).
         """
         dut = self.dut
         names = list(self.inputs)
@@ -156,6 +161,11 @@ class StreamBench:
                 got += 1
             if clocks >= limit or (stop_after is not None and clocks >= stop_after):
                 break
+            if offering and withdraw and idle_pat[clocks % len(idle_pat)]:
+                in_valid.value = 0
+                for h, n in zip(handles_in, names, strict=True):
+                    h.value = values[n][(sent + count // 2) % count]  # another sample's data
+                offering = False
             if not offering:
                 offering = offer_next()
             ready_driven = not stall_pat[clocks % len(stall_pat)]
