@@ -25,10 +25,10 @@ from benchgen.sweep_records import RecordError, read_result, read_sweep_file
 from benchgen.synth import DEVICES
 
 __all__ = [
-    "ESTIMATE_NOTE",
     "ReportData",
     "ReportError",
     "collect",
+    "estimate_note",
     "pareto_front",
     "to_csv",
     "to_html",
@@ -38,13 +38,19 @@ __all__ = [
     "write_reports",
 ]
 
-ESTIMATE_NOTE = (
-    "Resource and Fmax figures are estimates from the open toolchains Yosys and nextpnr (via the "
-    "yowasp wheels) for an iCE40 HX8K and an ECP5-25F. They compare design points with each other; "
-    "they are not what a vendor's synthesis and timing flow will report. Each core is estimated inside a "
-    "wrapper that registers every port, so every path is timed; the wrapper's flip-flops are taken out "
-    "of the flip-flop counts but remain in the placed-cell counts."
-)
+def estimate_note(targets: Iterable[str]) -> str:
+    """What the resource and Fmax figures are, naming only the device families estimated for."""
+    parts = [DEVICES[t].part if t in DEVICES else t for t in targets]
+    devices = parts[0] if len(parts) == 1 else ", ".join(parts[:-1]) + " and " + parts[-1]
+    return (
+        "Resource and Fmax figures are estimates from the open toolchains Yosys and nextpnr (via the "
+        f"yowasp wheels) for the {devices}. They compare design points with each other; "
+        "they are not what a vendor's synthesis and timing flow will report. Each core is estimated inside a "
+        "wrapper that registers every port, so every path is timed; the wrapper's flip-flops are taken out "
+        "of the flip-flop counts but remain in the placed-cell counts."
+    )
+
+
 COLUMNS = (
     "point", "status", "simulator", "function", "architecture", "pipeline_depth", "iterations_per_cycle",
     "angle_width", "data_width", "iterations", "guard_bits", "rounding", "samples", "mismatches",
@@ -369,7 +375,7 @@ def to_json(data: ReportData, *, wall_seconds: float | None = None, ran: int | N
         "digest": data.digest,
         "shard": data.shard,
         "targets": data.targets,
-        "estimate_note": ESTIMATE_NOTE if data.targets else None,
+        "estimate_note": estimate_note(data.targets) if data.targets else None,
         "points": len(data.rows),
         "passed": data.passed,
         "missing_tasks": data.missing,
@@ -393,7 +399,7 @@ def to_markdown(data: ReportData, plots: dict[str, str] | None = None,
     if data.shard:
         parts += [f"Shard {data.shard[0]} of {data.shard[1]}: merge the shards with `benchgen report merge`.", ""]
     if data.targets:
-        parts += [f"> {ESTIMATE_NOTE}", ""]
+        parts += [f"> {estimate_note(data.targets)}", ""]
     cols = _summary_columns(data)
     parts += ["## Points", "", _md_table([h for _, h in cols], [[_cell(r, k) for k, _ in cols] for r in data.rows]), ""]
     front = [r for r in data.rows if r["pareto"]]
@@ -506,7 +512,7 @@ def to_html(data: ReportData, plots: dict[str, bytes], spectra: list[dict[str, A
          "Every point's outputs were compared bit for bit with the bit-true model; errors are against the ideal.</p>"),
     ]
     if data.targets:
-        parts.append(f'<p class="note">{html.escape(ESTIMATE_NOTE)}</p>')
+        parts.append(f'<p class="note">{html.escape(estimate_note(data.targets))}</p>')
     parts += ["<h2>Points</h2>", "<p>Bold rows are on the Pareto front of area, latency and worst error.</p>",
               _html_table([h for _, h in cols], [[_cell(r, k) for k, _ in cols] for r in data.rows], classes)]
     if spectra:

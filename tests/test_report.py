@@ -168,3 +168,15 @@ def test_ecp5_mux_cells_stand_beside_its_luts(tmp_path: Path) -> None:
     assert [r["ecp5_mux"] for r in rows] == ["7"] * len(rows)
     assert [r["ice40_mux"] for r in rows] == ["0"] * len(rows)
     assert "ecp5 mux" in to_table(data).splitlines()[0]
+
+
+def test_estimate_note_names_only_the_families_estimated(sweep_dir: Path) -> None:
+    """The sweep estimated for iCE40 alone: its note must not claim an ECP5 estimate too."""
+    from benchgen.report import estimate_note
+
+    html = (sweep_dir / "report.html").read_text()
+    note = html.split('<p class="note">', 1)[1].split("</p>", 1)[0]
+    assert "iCE40 HX8K" in note and "ECP5" not in note
+    md = (sweep_dir / "report.md").read_text()
+    assert "ECP5" not in md.split("## Points", 1)[0]
+    assert "the iCE40 HX8K CT256 and ECP5 LFE5U-25F CABGA256." in estimate_note(["ice40", "ecp5"])
