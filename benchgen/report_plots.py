@@ -51,8 +51,8 @@ def _one_per_core(data: ReportData) -> list[dict[str, Any]]:
 
 
 def _series_key(row: dict[str, Any], x_field: str) -> str:
-    parts = [f"{k}={v}" for k, v in row["axes"].items() if k != x_field]
-    return ", ".join(parts) or "all"
+    """The legend label of a row's line: the other axes' values ("" when the x axis is the only one)."""
+    return ", ".join(f"{k}={v}" for k, v in row["axes"].items() if k != x_field)
 
 
 def _series(rows: list[dict[str, Any]], x_field: str, y: Callable[[dict[str, Any]], Any]) -> dict[str, tuple[list[float], list[float]]]:
@@ -82,14 +82,16 @@ def _line_panel(ax: Any, rows: list[dict[str, Any]], y: Callable[[dict[str, Any]
         return False
     depths: list[float] = []
     for label, (xs, ys) in series.items():
-        ax.plot(xs, ys, marker="o", label=label)
+        ax.plot(xs, ys, marker="o", label=label or "_nolegend_")
         depths += xs
     _depth_axis(ax, depths)
     ax.set_ylabel(ylabel)
     if from_zero:
         # Counts read against zero: a cropped axis would make a 10% change look like a doubling.
         ax.set_ylim(bottom=0)
-    ax.legend(fontsize=8)
+    if any(series):
+        # A sweep that varies only the x axis draws one line: a legend could only say "all".
+        ax.legend(fontsize=8)
     return True
 
 
@@ -183,24 +185,31 @@ def _core_of(data: ReportData, row: dict[str, Any]) -> dict[str, Any]:
 
 
 def _latency_plot(data: ReportData) -> bytes | None:
+    fig = _latency_figure(data)
+    return None if fig is None else _png(fig)
+
+
+def _latency_figure(data: ReportData) -> Any:
     rows = [r for r in _one_per_core(data) if r["architecture"] == "pipelined" and r["pipeline_depth"]]
     if not rows:
         return None
     has_fmax = any(r["latency_ns"] is not None for r in rows)
     n = 3 if has_fmax else 2
-    fig, axes = _figure(1, n, height=3.8)
+    # Short titles, the Fmax source on a second line: three panels side by side leave each title
+    # about a third of the width (tests/test_report.py checks they stand apart).
+    fig, axes = _figure(1, n, width=14 if has_fmax else 11, height=3.8)
     _line_panel(axes[0][0], rows, lambda r: r["latency_cycles"] or r["expected_latency_cycles"], "latency (clocks)")
-    axes[0][0].set_title("latency in clocks")
+    axes[0][0].set_title("latency in clocks", fontsize=10)
     if has_fmax:
         t = next(r["fmax_target"] for r in rows if r["latency_ns"] is not None)
-        _line_panel(axes[0][1], rows, lambda r: r["latency_ns"], f"latency (ns) at {t} Fmax estimate")
-        axes[0][1].set_title(f"latency in time ({t} estimate)")
+        _line_panel(axes[0][1], rows, lambda r: r["latency_ns"], "latency (ns)")
+        axes[0][1].set_title(f"latency in time\n(at the {t} Fmax estimate)", fontsize=10)
         _line_panel(axes[0][2], rows, lambda r: r["throughput_msps"], "throughput (Msamples/s)")
-        axes[0][2].set_title(f"throughput ({t} Fmax estimate / clocks per sample)")
+        axes[0][2].set_title(f"throughput\n({t} Fmax estimate / clocks per sample)", fontsize=10)
     else:
         _line_panel(axes[0][1], rows, lambda r: 1.0 / (r["cycles_per_sample"] or 1), "samples per clock")
-        axes[0][1].set_title("throughput (samples per clock)")
-    return _png(fig)
+        axes[0][1].set_title("throughput (samples per clock)", fontsize=10)
+    return fig
 
 
 def _resource_plot(data: ReportData) -> bytes | None:

@@ -180,3 +180,42 @@ def test_estimate_note_names_only_the_families_estimated(sweep_dir: Path) -> Non
     md = (sweep_dir / "report.md").read_text()
     assert "ECP5" not in md.split("## Points", 1)[0]
     assert "the iCE40 HX8K CT256 and ECP5 LFE5U-25F CABGA256." in estimate_note(["ice40", "ecp5"])
+
+
+def _depth_only_sweep(tmp_path: Path, targets: list[str]) -> Path:
+    raw = sweep_raw(synth={"targets": targets})
+    raw["sweep"]["simulators"] = ["icarus"]
+    raw["matrix"] = {"pipeline_depth": [1, 2, 5]}
+    out = tmp_path / "out"
+    run_sweep(parse_sweep(raw), out, jobs=1, runner=fake_runner, use_cache=False, formats=("json",))
+    return out
+
+
+def _boxes_overlap(a: object, b: object) -> bool:
+    return bool(a.x0 < b.x1 and b.x0 < a.x1 and a.y0 < b.y1 and b.y0 < a.y1)  # type: ignore[attr-defined]
+
+
+def test_latency_figure_titles_stand_apart_and_carry_no_empty_legend(tmp_path: Path) -> None:
+    """Each panel's title is drawn clear of its neighbours' (as laid out in the PNG), and a sweep
+    that varies only the depth draws one line per panel with no legend (it could only say "all")."""
+    import matplotlib.pyplot as plt
+
+    from benchgen.report_plots import _latency_figure
+
+    data = collect(_depth_only_sweep(tmp_path, ["ice40"]))
+    fig = _latency_figure(data)
+    assert fig is not None
+    fig.tight_layout()
+    fig.canvas.draw()
+    renderer = fig.canvas.get_renderer()
+    axes = [ax for ax in fig.axes if ax.get_visible()]
+    assert len(axes) == 3
+    titles = [ax.title.get_window_extent(renderer) for ax in axes]
+    for i in range(len(titles)):
+        assert titles[i].x0 >= 0 and titles[i].x1 <= fig.bbox.width  # inside the picture
+        for j in range(i + 1, len(titles)):
+            assert not _boxes_overlap(titles[i], titles[j]), (axes[i].get_title(), axes[j].get_title())
+    for ax in axes:
+        assert ax.get_legend() is None
+        assert [line.get_label() for line in ax.get_lines()] != ["all"]
+    plt.close(fig)
