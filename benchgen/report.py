@@ -14,6 +14,7 @@ import csv
 import html
 import io
 import json
+import math
 import xml.etree.ElementTree as ET
 from collections.abc import Iterable
 from dataclasses import dataclass, field
@@ -28,6 +29,7 @@ __all__ = [
     "ReportData",
     "ReportError",
     "collect",
+    "error_dbfs",
     "estimate_note",
     "pareto_front",
     "to_csv",
@@ -54,8 +56,8 @@ def estimate_note(targets: Iterable[str]) -> str:
 COLUMNS = (
     "point", "status", "simulator", "function", "architecture", "pipeline_depth", "iterations_per_cycle",
     "angle_width", "data_width", "iterations", "guard_bits", "rounding", "samples", "mismatches",
-    "max_error_lsb", "rms_error_lsb", "budget_lsb", "model_max_error_lsb", "latency_cycles",
-    "expected_latency_cycles", "cycles_per_sample",
+    "max_error_lsb", "rms_error_lsb", "budget_lsb", "model_max_error_lsb", "worst_port", "worst_port_width",
+    "error_dbfs", "latency_cycles", "expected_latency_cycles", "cycles_per_sample",
 )
 RESOURCE_KEYS = ("luts", "mux", "ffs", "carry", "bram", "dsp", "logic_cells", "fmax_mhz", "note")
 
@@ -203,6 +205,14 @@ def _row(point: dict[str, Any], res: dict[str, Any] | None, targets: list[str],
             )
             row["problems"] = list(sim.get("problems", []))
             row["first_mismatches"] = res.get("first_mismatches", [])
+            worst = sim.get("worst_sample") or {}
+            row["worst_port"] = worst.get("port")
+    ports = (design or {}).get("ports") or {}
+    if row["worst_port"] in ports:
+        row["worst_port_width"] = int(ports[row["worst_port"]])
+    elif row["max_error_lsb"] is not None:
+        row["worst_port_width"] = row["data_width"]  # a result from before the ports were recorded
+    row["error_dbfs"] = error_dbfs(row["max_error_lsb"], row["worst_port_width"])
     row["estimates"] = {}
     for t in targets:
         s = results.get(f"{point['core_id']}__{t}")
@@ -234,6 +244,20 @@ def _derive(row: dict[str, Any], targets: list[str]) -> None:
             break
 
 
+def error_dbfs(error_lsb: float | None, width: int | None) -> float | None:
+    """A worst error as a fraction of its output's full scale, in dB: 20 log10(error / 2^width).
+
+    An output of ``width`` bits spans 2^width codes, so one LSB of a 12-bit output is 16 times
+    one LSB of a 16-bit output. On this scale every core's accuracy compares with every other's
+    whatever its output width (lower is better: -6.02 dB per bit, 0.5 LSB of a 16-bit output
+    is -102.3 dBFS). ``None`` when there is no error to scale, or it is exactly zero (no finite
+    dB value; the Pareto front counts it as the best).
+    """
+    if error_lsb is None or width is None or error_lsb <= 0:
+        return None
+    return round(20.0 * math.log10(error_lsb) - 20.0 * width * math.log10(2.0), 2)
+
+
 def _area(row: dict[str, Any], targets: list[str]) -> float | None:
     if not targets:
         return None
@@ -260,7 +284,13 @@ def pareto_front(items: list[tuple[float, ...]]) -> list[bool]:
 
 
 def _mark_pareto(rows: list[dict[str, Any]], targets: list[str]) -> None:
-    """Mark each core on the front of area x latency x worst error (over its simulators)."""
+    """Mark each core on the front of area, latency, throughput and worst error (dBFS).
+
+    Area, latency and error are minimised, throughput maximised. Throughput is samples per second
+    (the estimated Fmax over clocks per sample) where every core has an Fmax, else samples per
+    clock; latency likewise in ns or clocks. The error is the worst over the core's simulators,
+    on the one scale of :func:`error_dbfs`, so cores of different output widths compare fairly.
+    """
     cores: dict[str, list[dict[str, Any]]] = {}
     for r in rows:
         r["pareto"] = False
@@ -268,11 +298,13 @@ def _mark_pareto(rows: list[dict[str, Any]], targets: list[str]) -> None:
         if r["status"] == "passed":
             cores.setdefault(r["core_id"], []).append(r)
     keys, objs = [], []
+    in_time = all(rs[0]["latency_ns"] is not None and rs[0]["throughput_msps"] is not None for rs in cores.values())
     for core_id, rs in cores.items():
         r0 = rs[0]
-        latency = r0["latency_ns"] if r0["latency_ns"] is not None else r0["latency_cycles"]
-        err = max(r["max_error_lsb"] for r in rs)
-        obj = [float(latency or 0), float(err)]
+        latency = r0["latency_ns"] if in_time else r0["latency_cycles"]
+        rate = r0["throughput_msps"] if in_time else 1.0 / (r0["cycles_per_sample"] or 1)
+        err = max((-math.inf if r["error_dbfs"] is None else r["error_dbfs"]) for r in rs)
+        obj = [float(latency or 0), -float(rate), err]
         if r0["area"] is not None:
             obj.insert(0, r0["area"])
         keys.append(core_id)
@@ -297,7 +329,8 @@ def _fmt(v: Any, digits: int = 3) -> str:
 
 def _summary_columns(data: ReportData) -> list[tuple[str, str]]:
     cols = [("point", "point"), ("status", "status"), ("max_error_lsb", "worst err LSB"),
-            ("rms_error_lsb", "RMS err LSB"), ("latency_cycles", "latency clk"), ("cycles_per_sample", "clk/sample")]
+            ("error_dbfs", "worst err dBFS"), ("rms_error_lsb", "RMS err LSB"), ("latency_cycles", "latency clk"),
+            ("cycles_per_sample", "clk/sample")]
     for t in data.targets:
         cols.append((f"{t}_luts", f"{t} LUT"))
         if t in DEVICES and DEVICES[t].mux_cells:
@@ -315,7 +348,7 @@ def _cell(row: dict[str, Any], key: str) -> str:
         return "yes" if v else ""
     if key == "cycles_per_sample" and isinstance(v, float):
         return f"{v:g}"
-    if key.endswith("fmax_mhz"):
+    if key.endswith("fmax_mhz") or key == "error_dbfs":
         return _fmt(v, 1)
     return _fmt(v)
 
@@ -405,14 +438,12 @@ def to_markdown(data: ReportData, plots: dict[str, str] | None = None,
     front = [r for r in data.rows if r["pareto"]]
     if front:
         seen: set[str] = set()
-        parts += ["## Pareto front (area, latency, worst error)", ""]
+        parts += ["## Pareto front (area, latency, throughput, worst error in dB of full scale)", ""]
         for r in front:
             if r["core_id"] in seen:
                 continue
             seen.add(r["core_id"])
-            lat = f"{r['latency_ns']} ns" if r["latency_ns"] is not None else f"{r['latency_cycles']} clocks"
-            area = f"{r['area']:.0f} cells" if r["area"] is not None else "area not estimated"
-            parts.append(f"- {r['point'].rsplit(' ', 1)[0]}: {area}, latency {lat}, worst error {r['max_error_lsb']} LSB")
+            parts.append(f"- {r['point'].rsplit(' ', 1)[0]}: {_front_line(r)}")
         parts.append("")
     if spectra:
         parts += ["## Sine quality (coherent tone, bit-true model)", "",
@@ -445,6 +476,16 @@ def to_markdown(data: ReportData, plots: dict[str, str] | None = None,
                           _md_table(keys, [[str(m.get(k)) for k in keys] for m in r["first_mismatches"]])]
             parts.append("")
     return "\n".join(parts).rstrip() + "\n"
+
+
+def _front_line(r: dict[str, Any]) -> str:
+    lat = f"{r['latency_ns']} ns" if r["latency_ns"] is not None else f"{r['latency_cycles']} clocks"
+    area = f"{r['area']:.0f} cells" if r["area"] is not None else "area not estimated"
+    rate = (f"{r['throughput_msps']} MS/s" if r["throughput_msps"] is not None
+            else f"{1.0 / (r['cycles_per_sample'] or 1):g} samples per clock")
+    dbfs = "-" if r["error_dbfs"] is None else f"{r['error_dbfs']:.1f} dBFS"
+    return (f"{area}, latency {lat}, throughput {rate}, worst error {r['max_error_lsb']} LSB of "
+            f"{r['worst_port_width']} bits ({dbfs})")
 
 
 def to_junit(data: ReportData) -> str:
@@ -513,7 +554,8 @@ def to_html(data: ReportData, plots: dict[str, bytes], spectra: list[dict[str, A
     ]
     if data.targets:
         parts.append(f'<p class="note">{html.escape(estimate_note(data.targets))}</p>')
-    parts += ["<h2>Points</h2>", "<p>Bold rows are on the Pareto front of area, latency and worst error.</p>",
+    parts += ["<h2>Points</h2>", ("<p>Bold rows are on the Pareto front of area, latency, throughput (samples per "
+                                "second) and worst error in dB of full scale.</p>"),
               _html_table([h for _, h in cols], [[_cell(r, k) for k, _ in cols] for r in data.rows], classes)]
     if spectra:
         parts += ["<h2>Sine quality</h2>",

@@ -243,16 +243,22 @@ def _pareto_plot(data: ReportData) -> bytes | None:
     if len(rows) < 2:
         return None
     with_area = all(r["area"] is not None for r in rows)
-    use_ns = all(r["latency_ns"] is not None for r in rows)
+    use_ns = all(r["latency_ns"] is not None and r["throughput_msps"] is not None for r in rows)
     lat = [r["latency_ns"] if use_ns else r["latency_cycles"] for r in rows]
-    err = [max(q["max_error_lsb"] for q in data.rows if q["core_id"] == r["core_id"] and q["status"] == "passed")
-           for r in rows]
+    rate = [r["throughput_msps"] if use_ns else 1.0 / (r["cycles_per_sample"] or 1) for r in rows]
+    rate_unit = "MS/s" if use_ns else "samples/clock"
+    # The worst over the core's simulators, on the one scale the front is judged on (dBFS).
+    err = []
+    for r in rows:
+        values = [q["error_dbfs"] for q in data.rows if q["core_id"] == r["core_id"] and q["status"] == "passed"]
+        known = [v for v in values if v is not None]
+        err.append(max(known) if known else float("nan"))
     fig, axes = _figure(1, 1, width=9, height=6)
     ax = axes[0][0]
     if with_area:
         x = [r["area"] for r in rows]
-        sc = ax.scatter(x, lat, c=err, cmap="viridis", s=60, zorder=3)
-        fig.colorbar(sc, ax=ax, label="worst error (LSB)")
+        sc = ax.scatter(x, lat, c=err, cmap="viridis_r", s=60, zorder=3)
+        fig.colorbar(sc, ax=ax, label="worst error (dB of full scale; lower is better)")
         ax.set_xlabel(f"area: {data.targets[0]} logic cells (estimate)")
         y = lat
     else:
@@ -264,14 +270,16 @@ def _pareto_plot(data: ReportData) -> bytes | None:
     fx = [xv for xv, f in zip(x, front, strict=True) if f]
     fy = [yv for yv, f in zip(y, front, strict=True) if f]
     ax.scatter(fx, fy, s=220, facecolors="none", edgecolors="red", linewidths=2, zorder=4, label="on the Pareto front")
-    for r, xv, yv, f in zip(rows, x, y, front, strict=True):
-        label = ", ".join(f"{v}" for v in r["axes"].values())
+    for r, xv, yv, f, tp in zip(rows, x, y, front, rate, strict=True):
+        label = ", ".join(f"{v}" for v in r["axes"].values()) + f" ({tp:g} {rate_unit})"
         ax.annotate(label, (xv, yv), textcoords="offset points", xytext=(6, 6), fontsize=7 if f else 6,
                     color="black" if f else "grey", fontweight="bold" if f else "normal")
-    ax.text(0.01, 0.01, "labels: " + ", ".join(data.axes), transform=ax.transAxes, fontsize=7, color="grey")
-    ax.set_ylabel(("latency (ns)" if use_ns else "latency (clocks)") if with_area else "worst error (LSB)")
-    ax.set_title("Pareto front: area x latency x worst error (all minimised)" if with_area
-                 else "Pareto front: latency x worst error")
+    ax.text(0.01, 0.01, "labels: " + ", ".join(data.axes) + f" (throughput in {rate_unit})", transform=ax.transAxes,
+            fontsize=7, color="grey")
+    ax.set_ylabel(("latency (ns)" if use_ns else "latency (clocks)") if with_area
+                  else "worst error (dB of full scale)")
+    ax.set_title("Pareto front: area, latency, throughput (max) and worst error in dBFS" if with_area
+                 else "Pareto front: latency, throughput (max) and worst error in dBFS")
     ax.grid(True, alpha=0.3)
     ax.legend(fontsize=8)
     return _png(fig)

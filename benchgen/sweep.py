@@ -360,6 +360,8 @@ def _design_summary(project: Path) -> dict[str, Any]:
         "derived": manifest["derived"],
         "error_budget": manifest["error_budget"],
         "rtl": manifest["files"]["rtl"],
+        # Output widths: the report puts each core's worst error on one scale (dB of full scale).
+        "ports": manifest["ports"],
     }
 
 

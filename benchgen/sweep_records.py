@@ -114,6 +114,7 @@ class DesignRecord(_Strict):
     derived: DerivedRecord
     error_budget: ErrorBudgetRecord
     rtl: Annotated[list[str], Field(min_length=1)]
+    ports: dict[str, PosInt] | None = None  # absent in results written before the report read it
 
 
 # ----------------------------------------------------------------------------- simulation

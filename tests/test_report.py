@@ -112,13 +112,15 @@ def test_pareto_rows_agree_with_the_front(sweep_dir: Path) -> None:
     cores = {r["core_id"]: r for r in data.rows if r["status"] == "passed"}
     flagged = {c for c, r in cores.items() if r["pareto"]}
     assert flagged
+
+    def objectives(r: dict) -> tuple[float, ...]:  # all minimised
+        return (r["area"], r["latency_ns"], -r["throughput_msps"], r["error_dbfs"])
+
     for c in flagged:
-        a = cores[c]
-        for b in cores.values():
-            better = (b["area"] <= a["area"] and b["latency_ns"] <= a["latency_ns"]
-                      and b["max_error_lsb"] <= a["max_error_lsb"])
-            strictly = (b["area"], b["latency_ns"], b["max_error_lsb"]) != (a["area"], a["latency_ns"], a["max_error_lsb"])
-            assert not (better and strictly)
+        a = objectives(cores[c])
+        for other in cores.values():
+            b = objectives(other)
+            assert not (all(y <= x for x, y in zip(a, b)) and b != a)
 
 
 def test_report_render_rebuilds_the_same_tables(sweep_dir: Path, tmp_path: Path) -> None:
@@ -219,3 +221,33 @@ def test_latency_figure_titles_stand_apart_and_carry_no_empty_legend(tmp_path: P
         assert ax.get_legend() is None
         assert [line.get_label() for line in ax.get_lines()] != ["all"]
     plt.close(fig)
+
+
+def _core_row(core_id: str, *, cells: int, latency_ns: float, msps: float, error_lsb: float, width: int) -> dict:
+    import math
+
+    return {"core_id": core_id, "status": "passed", "ice40_logic_cells": cells, "latency_ns": latency_ns,
+            "latency_cycles": 4, "throughput_msps": msps, "cycles_per_sample": 1, "max_error_lsb": error_lsb,
+            "data_width": width, "error_dbfs": 20 * math.log10(error_lsb / 2**width)}
+
+
+def test_pareto_judges_accuracy_on_one_scale_across_output_widths() -> None:
+    """0.73 LSB of an 18-bit output is 64 times smaller than 0.55 LSB of a 12-bit one."""
+    from benchgen.report import _mark_pareto, error_dbfs
+
+    assert error_dbfs(0.5, 16) == pytest.approx(-102.35, abs=0.01)  # 20 log10(0.5 / 65536)
+    wide = _core_row("w18", cells=100, latency_ns=40, msps=100, error_lsb=0.73, width=18)
+    narrow = _core_row("w12", cells=100, latency_ns=40, msps=100, error_lsb=0.55, width=12)
+    _mark_pareto([wide, narrow], ["ice40"])
+    assert wide["pareto"] and not narrow["pareto"]
+
+
+def test_pareto_keeps_the_fastest_core() -> None:
+    """A core with twice the throughput stays on the front though it is larger, slower to answer
+    and less accurate: throughput is an objective of its own."""
+    from benchgen.report import _mark_pareto
+
+    fast = _core_row("fast", cells=200, latency_ns=50, msps=200, error_lsb=0.9, width=16)
+    small = _core_row("small", cells=100, latency_ns=40, msps=100, error_lsb=0.5, width=16)
+    _mark_pareto([fast, small], ["ice40"])
+    assert fast["pareto"] and small["pareto"]
