@@ -82,6 +82,8 @@ class ReportData:
         missing: Task ids with no result (a result file that was ignored counts as none).
         shard: ``(i, N)`` or ``None``.
         ignored: One line per result file left out as invalid: the file and its fault.
+        configs: Each core's config by core id (the manifest's, else the sweep point's): what
+            the plots rebuild a core's model from. Not written into the reports.
     """
 
     name: str
@@ -93,6 +95,7 @@ class ReportData:
     missing: list[str] = field(default_factory=list)
     shard: list[int] | None = None
     ignored: list[str] = field(default_factory=list)
+    configs: dict[str, dict[str, Any]] = field(default_factory=dict)
 
     @property
     def passed(self) -> int:
@@ -133,11 +136,15 @@ def collect(out_dir: str | Path) -> ReportData:
             results[tid] = data
     rows = []
     timing: dict[str, Any] = {}
+    configs: dict[str, dict[str, Any]] = {}
     for p in sweep["points"]:
         if p["point_id"] not in task_ids:
             continue
         res = results.get(p["point_id"])
         row = _row(p, res, targets, results, ignored)
+        design = (res or {}).get("design")
+        if design or p["core_id"] not in configs:
+            configs[p["core_id"]] = dict(design["config"]) if design else dict(p["core"])
         if p["point_id"] in ignored:
             row["problems"] = [ignored[p["point_id"]]]
         rows.append(row)
@@ -162,6 +169,7 @@ def collect(out_dir: str | Path) -> ReportData:
         missing=sorted(t for t in task_ids if t not in results),
         shard=sweep.get("shard"),
         ignored=[ignored[t] for t in sorted(ignored)],
+        configs=configs,
     )
 
 

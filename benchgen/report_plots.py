@@ -98,41 +98,73 @@ def _line_panel(ax: Any, rows: list[dict[str, Any]], y: Callable[[dict[str, Any]
 # ----------------------------------------------------------------------------- accuracy
 
 
+PLOT_SAMPLES = 8192
+"""Random inputs per point of the error curves (besides the corners and directed worst cases);
+the whole input space where it has at most this many codes."""
+PLOT_SAMPLES_WIDE = 512
+"""The same where the model runs on Python integers (outputs past about 58 bits), ~100x slower."""
+_PLOT_SEED = 20240
+
+
+def _plot_inputs(dp: Any) -> dict[str, Any]:
+    """Inputs the error curves are measured on: every code of a small input space, else the
+    function's corners and directed worst cases plus seeded random inputs."""
+    from benchgen.functions import (
+        bench_corners,
+        enumerate_inputs,
+        input_space_bits,
+        int64_model,
+        join_inputs,
+        random_inputs,
+    )
+
+    bits = input_space_bits(dp)
+    if (1 << bits) <= PLOT_SAMPLES:
+        return enumerate_inputs(dp, 0, 1 << bits)
+    count = PLOT_SAMPLES if int64_model(dp) else PLOT_SAMPLES_WIDE
+    return join_inputs(bench_corners(dp), random_inputs(dp, np.random.default_rng(_PLOT_SEED), count))
+
+
 def model_error_grid(core: dict[str, Any], iterations: list[int], guard_bits: list[int]) -> dict[int, dict[int, tuple[float, float]]]:
     """Worst and RMS error (LSB) of the bit-true model for each guard bits -> iterations.
 
-    Measured on every 4th angle code (all codes for angles up to 14 bits): the curves show the
-    trend; the sizing in ``benchgen.design`` is what proves a core's budget.
+    Any function: the model (:func:`benchgen.model.evaluate_function`) against the ideal, judged
+    as the bench judges it (:func:`benchgen.functions.measure`), over every input of a space of
+    at most :data:`PLOT_SAMPLES` codes, else over the corners, the directed worst cases and
+    :data:`PLOT_SAMPLES` seeded random inputs. The curves show the trend; the sizing in
+    ``benchgen.design`` is what proves a core's budget. Sizes the data path refuses are left out.
     """
     from benchgen.algorithm import make_datapath
     from benchgen.config import parse_config
-    from benchgen.design import evaluate
     from benchgen.errors import ConfigError
+    from benchgen.functions import measure
 
     raw = {k: v for k, v in core.items() if k not in ("iterations", "guard_bits", "pipeline_depth", "iterations_per_cycle")}
     spec = parse_config(raw)
-    step = 1 if spec.angle_width <= 14 else 1 << min(spec.angle_width - 14, 8)
-    angles = np.arange(0, 1 << min(spec.angle_width, 22), step, dtype=np.int64)
     grid: dict[int, dict[int, tuple[float, float]]] = {}
+    inputs: dict[str, Any] | None = None
     for g in guard_bits:
         for n in iterations:
             try:
                 dp = make_datapath(spec, n, g)
             except ConfigError:
                 continue
-            s = evaluate(dp, angles)
+            if inputs is None:
+                inputs = _plot_inputs(dp)  # the ports and formats do not change with the size
+            s = measure(dp, inputs)
             grid.setdefault(g, {})[n] = (s.max_error_lsb, s.rms_error_lsb)
     return grid
 
 
 def _error_plot(data: ReportData) -> bytes | None:
-    cores = [r for r in _one_per_core(data) if r["function"] == "sincos" and r["iterations"]]
+    cores = [r for r in _one_per_core(data) if r["iterations"] and r["core_id"] in data.configs]
     if not cores:
         return None
-    widths = sorted({r["data_width"] for r in cores})[:3]
-    fig, axes = _figure(len(widths), 2)
-    for i, width in enumerate(widths):
-        at_width = [r for r in cores if r["data_width"] == width]
+    # One row of panels per function and output width (at most three), in sweep order.
+    groups = list(dict.fromkeys((r["function"], r["data_width"]) for r in cores))[:3]
+    fig, axes = _figure(len(groups), 2)
+    for i, (function, width) in enumerate(groups):
+        at_width = [r for r in cores if (r["function"], r["data_width"]) == (function, width)]
         its = sorted({r["iterations"] for r in at_width})
         gbs = sorted({r["guard_bits"] for r in at_width})
         n_range = list(range(max(4, min(its) - 6), max(its) + 3))
@@ -145,7 +177,7 @@ def _error_plot(data: ReportData) -> bytes | None:
                 if pts:
                     ax.plot([p[0] for p in pts], [p[1][idx] for p in pts], marker=".", label=f"model, {g} guard bits")
             measured = [(r["iterations"], r["max_error_lsb" if idx == 0 else "rms_error_lsb"]) for r in data.rows
-                        if r["data_width"] == width and r["function"] == "sincos" and r["max_error_lsb"] is not None]
+                        if (r["function"], r["data_width"]) == (function, width) and r["max_error_lsb"] is not None]
             if measured:
                 ax.scatter([m[0] for m in measured], [m[1] for m in measured], marker="x", s=60, color="black",
                            zorder=5, label="simulated points")
@@ -163,22 +195,17 @@ def _error_plot(data: ReportData) -> bytes | None:
             ax.yaxis.set_minor_formatter(NullFormatter())
             ax.set_xlabel("iterations")
             ax.set_ylabel(f"{name} error (output LSB)")
-            ax.set_title(f"{width}-bit outputs: {name} error against the ideal")
+            ax.set_title(f"{function}, {width}-bit data: {name} error against the ideal", fontsize=10)
             ax.grid(True, which="both", alpha=0.3)
             ax.legend(fontsize=7, ncol=2)
     return _png(fig)
 
 
 def _core_of(data: ReportData, row: dict[str, Any]) -> dict[str, Any]:
-    return {
-        "name": "core",
-        "function": row["function"],
-        "architecture": "pipelined",
-        "angle_width": row["angle_width"],
-        "data_width": row["data_width"],
-        "rounding": row["rounding"],
-        "max_error_lsb": 1e6,
-    }
+    """The core's own config (every field: gain, angle unit, ...), sized by hand below."""
+    sizes = ("iterations", "guard_bits", "pipeline_depth", "iterations_per_cycle", "architecture")
+    config = {k: v for k, v in data.configs[row["core_id"]].items() if k not in sizes}
+    return {**config, "name": "core", "architecture": "pipelined", "max_error_lsb": 1e6}
 
 
 # ----------------------------------------------------------------------------- timing, resources
@@ -306,7 +333,7 @@ def sine_quality(data: ReportData) -> list[dict[str, Any]]:
 
     seen: dict[tuple[Any, ...], dict[str, Any]] = {}
     for r in _one_per_core(data):
-        if r["function"] != "sincos" or r["status"] != "passed":
+        if r["function"] != "sincos" or r["status"] != "passed" or r["core_id"] not in data.configs:
             continue
         key = (r["angle_width"], r["data_width"], r["iterations"], r["guard_bits"], r["rounding"])
         if key in seen or len(seen) >= MAX_PANELS:

@@ -251,3 +251,28 @@ def test_pareto_keeps_the_fastest_core() -> None:
     small = _core_row("small", cells=100, latency_ns=40, msps=100, error_lsb=0.5, width=16)
     _mark_pareto([fast, small], ["ice40"])
     assert fast["pareto"] and small["pareto"]
+
+
+@pytest.mark.parametrize("function", ["atan2", "sqrt"])
+def test_error_against_iterations_is_drawn_for_any_function(tmp_path: Path, function: str) -> None:
+    """The model's error curves are drawn for every function, not only sincos; at a core's own
+    size the curve agrees with the sizer's proof (it measures a subset of the proven inputs)."""
+    from benchgen.report_plots import make_plots, model_error_grid
+
+    raw = sweep_raw()
+    raw["sweep"]["simulators"] = ["icarus"]
+    raw["base"] = {"name": "t", "function": function, "data_width": 8, "max_error_lsb": 1.5}
+    if function == "atan2":
+        raw["base"]["angle_width"] = 8
+    raw["matrix"] = {"rounding": ["truncate", "half_even"]}
+    out = tmp_path / "out"
+    run_sweep(parse_sweep(raw), out, jobs=1, runner=fake_runner, use_cache=False, formats=("json",))
+    data = collect(out)
+    plots = make_plots(data, [])
+    assert "Error against iterations and guard bits" in plots
+    for r in data.rows:
+        config = {**data.configs[r["core_id"]], "max_error_lsb": 1e6}
+        grid = model_error_grid(config, [r["iterations"] - 3, r["iterations"]], [r["guard_bits"]])
+        worst_sized = grid[r["guard_bits"]][r["iterations"]][0]
+        assert 0 < worst_sized <= r["model_max_error_lsb"] + 1e-6  # the manifest rounds to 6 places
+        assert grid[r["guard_bits"]][r["iterations"] - 3][0] > worst_sized  # fewer iterations, larger error
