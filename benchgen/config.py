@@ -24,6 +24,7 @@ __all__ = [
     "MAX_NAME_LENGTH",
     "MAX_WIDTH",
     "ROUNDING_MODES",
+    "SYNONYMS",
     "CoreSpec",
     "load_config",
     "name_problem",
@@ -44,6 +45,26 @@ ANGLE_UNITS = ("turns", "radians")
 MIN_RADIAN_ANGLE_WIDTH = 6
 ARCHITECTURES = ("pipelined", "iterative")
 ROUNDING_MODES = ("truncate", "half_up", "half_even")
+# Trade names an engineer may write for a value, by field: the "did you mean" hint ranks by
+# meaning first and by spelling only where no synonym is known ("atan" is close in spelling to
+# "atanh", but an engineer who writes it means the two-argument arctangent).
+SYNONYMS: dict[str, dict[str, str]] = {
+    "function": {
+        "sin": "sincos", "cos": "sincos", "sine": "sincos", "cosine": "sincos", "nco": "sincos",
+        "atan": "atan2", "arctan": "atan2", "arctan2": "atan2", "phase": "atan2",
+        "magnitude": "atan2", "hypot": "atan2",
+        "log": "ln", "divide": "div", "multiply": "mul",
+        "sinh": "sinhcosh", "cosh": "sinhcosh",
+    },
+    "rounding": {
+        "round_half_even": "half_even", "rne": "half_even", "convergent": "half_even",
+        "bankers": "half_even", "floor": "truncate", "trunc": "truncate", "round_half_up": "half_up",
+    },
+    "architecture": {
+        "pipeline": "pipelined", "pipelined_core": "pipelined", "unrolled": "pipelined",
+        "iteration": "iterative", "iterate": "iterative", "sequential": "iterative", "folded": "iterative",
+    },
+}
 MIN_ANGLE_WIDTH = 3
 MIN_DATA_WIDTH = 3
 MAX_WIDTH = 64
@@ -274,10 +295,24 @@ def _choice_field(raw: Mapping[str, Any], key: str, choices: tuple[str, ...]) ->
             suggestion={key: choices[0]},
         )
     if value not in choices:
-        near = difflib.get_close_matches(value, list(choices), n=1, cutoff=0.4)
-        hint = near[0] if near else choices[0]
+        hint = _meant(key, value, choices)
         raise ConfigError(key, value, allowed, f'use {key} = "{hint}"', suggestion={key: hint})
     return value
+
+
+def _meant(key: str, value: str, choices: tuple[str, ...]) -> str:
+    """The choice a wrong value most likely means: by meaning (the case and separators of the
+    value aside, then :data:`SYNONYMS`), else by spelling, else the first choice."""
+    plain = re.sub(r"[\s-]+", "_", value.strip().lower()).replace("'", "")
+    if plain in choices:
+        return plain
+    synonyms = SYNONYMS.get(key, {})
+    if plain in synonyms:
+        return synonyms[plain]
+    near = difflib.get_close_matches(plain, list(choices) + list(synonyms), n=1, cutoff=0.4)
+    if near:
+        return synonyms.get(near[0], near[0])
+    return choices[0]
 
 
 def name_problem(value: str) -> str | None:

@@ -111,3 +111,38 @@ def test_error_object_fields() -> None:
         parse_config({**GOOD, "data_width": 65})
     assert (info.value.field, info.value.value) == ("data_width", 65)
     assert "data_width = 64" in info.value.fix
+
+
+# What an engineer writes, and what the hint must offer: by meaning where a trade name is known
+# (spelling alone sends "atan" to atanh and "convergent" to truncate).
+MEANT = [
+    ("function", "atan", "atan2"),
+    ("function", "arctan", "atan2"),
+    ("function", "hypot", "atan2"),
+    ("function", "magnitude", "atan2"),
+    ("function", "sin", "sincos"),
+    ("function", "Cosine", "sincos"),
+    ("function", "log", "ln"),
+    ("function", "divide", "div"),
+    ("function", "multiply", "mul"),
+    ("rounding", "convergent", "half_even"),
+    ("rounding", "round_half_even", "half_even"),
+    ("rounding", "RNE", "half_even"),
+    ("rounding", "floor", "truncate"),
+    ("rounding", "Half-Even", "half_even"),
+    ("architecture", "pipeline", "pipelined"),
+    ("architecture", "sequential", "iterative"),
+]
+
+
+@pytest.mark.parametrize(("field", "written", "meant"), MEANT)
+def test_did_you_mean_ranks_by_meaning(field: str, written: str, meant: str) -> None:
+    base = {**GOOD, "max_error_lsb": 1.5}
+    if field == "function" and meant not in ("sincos", "atan2"):
+        base.pop("angle_width")
+    with pytest.raises(ConfigError) as refused:
+        parse_config({**base, field: written})
+    assert refused.value.field == field
+    assert f'use {field} = "{meant}"' in str(refused.value)
+    assert refused.value.suggestion == {field: meant}
+    parse_config({**base, **refused.value.suggestion})  # the fix offered is one the tool accepts
