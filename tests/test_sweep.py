@@ -290,4 +290,23 @@ def test_single_core_config_is_a_one_point_sweep(tmp_path: Path) -> None:
     f = tmp_path / "core.toml"
     f.write_text("".join(f"{k} = {json.dumps(v)}\n" for k, v in BASE.items()))
     points = expand(load_sweep(f))
-    assert len(points) == 1 and points[0].simulator == "icarus"
+    assert len(points) == 1 and points[0].simulator == "verilator"
+
+
+def test_one_default_simulator_everywhere(tmp_path: Path) -> None:
+    """demo, sim, a single-config sweep and a sweep file without simulators all pick Verilator."""
+    from benchgen.cli import build_parser
+
+    f = tmp_path / "core.toml"
+    f.write_text("".join(f"{k} = {json.dumps(v)}\n" for k, v in BASE.items()))
+    raw = sweep_raw()
+    del raw["sweep"]["simulators"]
+    parser = build_parser()
+    chosen = {
+        "demo": parser.parse_args(["demo"]).simulator,
+        "sim": parser.parse_args(["sim", "project"]).simulator,
+        "single config": expand(load_sweep(f))[0].simulator,
+        "sweep file": parse_sweep(raw).simulators,
+    }
+    assert chosen == {"demo": "verilator", "sim": "verilator", "single config": "verilator",
+                      "sweep file": ("verilator",)}
