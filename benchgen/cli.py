@@ -158,7 +158,10 @@ def _demo(args: argparse.Namespace) -> int:
 
     config = Path(str(resources.files("benchgen").joinpath("examples/demo.toml")))
     out = Path(args.output)
-    print(f"Generating the demo core (a radio's down-converter oscillator) into {out} ...")
+    # Said before anything is written: the demo makes a folder where it is run.
+    print(f"benchgen demo writes its project into {out.resolve()} (another folder: -o DIR), "
+          f"then simulates it on {args.simulator}.")
+    print("Generating the demo core (a radio's down-converter oscillator) ...")
     generate_project(config, out)
     print((out / "README.md").read_text().split("\n\n")[1])
     print(f"\nSimulating on {args.simulator} ...")

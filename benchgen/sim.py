@@ -25,7 +25,7 @@ from benchgen.errors import BenchgenError
 from benchgen.project import ProjectError, design_from_manifest, load_manifest
 from benchgen.simulators import SIMULATORS, SimulatorMissing, find_simulator, simulator_env
 
-__all__ = ["BULK_ENGINES", "SimError", "SimReport", "run_sim", "space_free_build_dir"]
+__all__ = ["BULK_ENGINES", "SimError", "SimReport", "duration", "run_sim", "space_free_build_dir"]
 
 BULK_ENGINES = ("auto", "native", "cocotb")
 
@@ -148,7 +148,7 @@ class SimReport:
             ("RMS error vs ideal", f"{self.rms_error_lsb:.4f} LSB"),
             ("latency", f"{lat} clocks (manifest {self.expected_latency_cycles})"),
             ("cycles per sample", f"{cps} (manifest {self.expected_cycles_per_sample})"),
-            ("build / sim time", f"{self.build_seconds:.1f} s / {self.sim_seconds:.1f} s"),
+            ("build / sim time", f"{duration(self.build_seconds)} / {duration(self.sim_seconds)}"),
         ]
         width = max(len(k) for k, _ in rows)
         lines = [f"  {k:<{width}}  {v}" for k, v in rows]
@@ -156,6 +156,16 @@ class SimReport:
         if self.problems:
             out += "\n\nProblems:\n" + "\n".join(f"- {p}" for p in self.problems)
         return out
+
+
+def duration(seconds: float) -> str:
+    """A wall time for people: milliseconds below a second, so a real 20 ms build (Icarus
+    compiles a core to its bytecode that fast) does not read as "0.0 s", as if nothing ran."""
+    if seconds >= 1.0:
+        return f"{seconds:.1f} s"
+    if seconds >= 0.0005:
+        return f"{seconds * 1000:.0f} ms"
+    return "under 1 ms"
 
 
 @contextlib.contextmanager
