@@ -124,6 +124,13 @@ def _simulate(args: argparse.Namespace, project: Path) -> int:
     # Checked first: a report that cannot be written must not cost a simulation.
     _output_file("--json", args.json)
     _output_file("--csv", args.csv)
+    _output_file("--html", args.html)
+    csv_path = args.csv
+    if args.html and not csv_path:
+        # The HTML report's error figures are drawn from the per-sample CSV: kept beside the
+        # report while it is written, then deleted.
+        html = Path(args.html)
+        csv_path = str(html.with_name(f".{html.name}.samples.csv"))
 
     if args.mode == "auto" and bulk_plan("auto", args.samples, args.exhaustive):
         why = "--exhaustive" if args.exhaustive else f"{args.samples} samples (>= {BULK_FROM_SAMPLES})"
@@ -134,13 +141,25 @@ def _simulate(args: argparse.Namespace, project: Path) -> int:
         samples=args.samples,
         seed=args.seed,
         waves=args.waves,
-        csv_path=args.csv,
+        csv_path=csv_path,
         mode=args.mode,
         exhaustive=args.exhaustive,
         bulk_engine=args.bulk_engine,
     )
     print(report.table())
     print(f"  log: {report.log_file}")
+    if args.html:
+        from benchgen.project import design_from_manifest, load_manifest
+        from benchgen.sim_report import write_html
+
+        try:
+            write_html(args.html, report, csv_path, design_from_manifest(load_manifest(project)))
+        except OSError as exc:
+            raise UsageError(f"--html {args.html}: cannot write it ({exc.strerror or exc})") from None
+        finally:
+            if csv_path != args.csv:
+                Path(csv_path).unlink(missing_ok=True)
+        print(f"  html: {args.html}")
     if args.json:
         try:
             Path(args.json).write_text(json.dumps(report.as_dict(), indent=2) + "\n")
@@ -204,7 +223,11 @@ def _add_sim_options(p: argparse.ArgumentParser) -> None:
     )
     p.add_argument("--waves", action="store_true", help="record waveforms (FST on Icarus, VCD on Verilator)")
     p.add_argument("--json", metavar="PATH", help="write the report as JSON")
-    p.add_argument("--csv", metavar="PATH", help="write one row per sample: input, outputs, model, ideal")
+    p.add_argument("--csv", metavar="PATH",
+                   help="write one row per sample: inputs, outputs, model, ideal, error in LSB per output")
+    p.add_argument("--html", metavar="FILE",
+                   help="write a one-file HTML report: summary, tests, error histogram and error against "
+                   "the input per output")
     p.add_argument(
         "--mode",
         choices=("auto", "per-clock", "bulk"),

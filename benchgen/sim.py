@@ -129,12 +129,11 @@ class SimReport:
         inputs = ", ".join(f"{k}={v}" for k, v in w["inputs"].items() if k != "in_tag")
         return f"{inputs} ({w['port']}, {w['error_lsb']:.4f} LSB)"
 
-    def table(self) -> str:
-        """A short human-readable summary."""
-        verdict = "PASS" if self.passed else "FAIL"
+    def rows(self) -> list[tuple[str, str]]:
+        """The summary as (label, value) pairs: the terminal table and the HTML report show these."""
         lat = "-" if self.latency_cycles is None else str(self.latency_cycles)
         cps = "-" if self.cycles_per_sample is None else f"{self.cycles_per_sample:g}"
-        rows = [
+        return [
             ("core", self.toplevel),
             ("bench mode", f"{self.mode} ({self.engine})"),
             ("simulator", f"{self.simulator} {self.simulator_version}"),
@@ -150,6 +149,11 @@ class SimReport:
             ("cycles per sample", f"{cps} (manifest {self.expected_cycles_per_sample})"),
             ("build / sim time", f"{duration(self.build_seconds)} / {duration(self.sim_seconds)}"),
         ]
+
+    def table(self) -> str:
+        """A short human-readable summary."""
+        verdict = "PASS" if self.passed else "FAIL"
+        rows = self.rows()
         width = max(len(k) for k, _ in rows)
         lines = [f"  {k:<{width}}  {v}" for k, v in rows]
         out = "\n".join(lines) + f"\n  result: {verdict}"

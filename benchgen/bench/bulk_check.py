@@ -543,12 +543,14 @@ def check_block(
     got = {p: v[:m] for p, v in got.items()}
     if "in_tag" in stim:
         expected["out_tag"] = inputs["in_tag"]
-    tally.add(tally.offered, inputs, got, expected, fn.errors(inputs, got, ideal))
+    errors = fn.errors(inputs, got, ideal)
+    tally.add(tally.offered, inputs, got, expected, errors)
     if tally.csv is not None:
         columns: dict[str, npt.NDArray[Any]] = {p: inputs[p] for p in fn.inputs}
         columns.update({p: got[p] for p in fn.outputs})
         columns.update({f"model_{p}": expected[p] for p in fn.outputs})
         columns.update({f"ideal_{p}": np.asarray(v, dtype=np.float64) for p, v in ideal.items()})
+        columns.update({f"error_{p}": np.asarray(v, dtype=np.float64) for p, v in errors.items()})
         write_csv_rows(tally.result.test, columns, tally.csv)
     if timed:
         tally.timing(block)

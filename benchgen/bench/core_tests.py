@@ -133,6 +133,7 @@ class CoreBench:
         columns.update({p: got[p][:n] for p in self.out_ports})
         columns.update({f"model_{p}": expected[p][:n] for p in self.out_ports})
         columns.update({f"ideal_{p}": np.asarray(ideal[p][:n], dtype=np.float64) for p in ideal})
+        columns.update({f"error_{p}": np.asarray(errors[p][:n], dtype=np.float64) for p in errors})
         write_csv_rows(name, columns)
         return result
 

@@ -160,7 +160,10 @@ def record(result: CheckResult) -> None:
 def write_csv_rows(test: str, columns: dict[str, npt.NDArray[Any]], path: str | Path | None = None) -> None:
     """Append one row per sample to the CSV at ``path`` (default: ``BENCHGEN_CSV``, if set).
 
-    The header is written when the file is new. Rows are formatted a column at a time and
+    The benches write, per sample: the test, the inputs, the outputs, ``model_<port>`` (the
+    bit-true model), ``ideal_<port>`` (the exact value, in output LSBs) and ``error_<port>``
+    (output minus ideal, in that output's LSBs; empty where the budget does not judge the
+    sample). The header is written when the file is new. Rows are formatted a column at a time and
     written in one go, so the bulk bench can stream every block of a long run to disk.
     """
     path = path if path is not None else os.environ.get(CSV_ENV)
@@ -179,7 +182,8 @@ def write_csv_rows(test: str, columns: dict[str, npt.NDArray[Any]], path: str | 
 def _column_text(values: npt.NDArray[Any]) -> list[str]:
     arr = np.asarray(values)
     if arr.dtype.kind == "f":
-        return [f"{v:.6f}" for v in arr.tolist()]
+        # NaN is an error the budget does not judge (an atan2 angle of a tiny vector, ...): empty.
+        return ["" if v != v else f"{v:.6f}" for v in arr.tolist()]
     if arr.dtype.kind in "iub":
         return [str(int(v)) for v in arr.tolist()]
     return [_fmt(v) for v in arr]
