@@ -145,9 +145,15 @@ def _simulate(args: argparse.Namespace, project: Path) -> int:
         mode=args.mode,
         exhaustive=args.exhaustive,
         bulk_engine=args.bulk_engine,
+        waves_window=args.waves_window,
+        waves_limit_mb=args.waves_limit,
     )
     print(report.table())
     print(f"  log: {report.log_file}")
+    if report.waves_file:
+        print(f"  waves: {report.waves_file} ({report.waves_note})")
+    elif report.waves_note:
+        print(f"  waves: {report.waves_note}")
     if args.html:
         from benchgen.project import design_from_manifest, load_manifest
         from benchgen.sim_report import write_html
@@ -221,7 +227,16 @@ def _add_sim_options(p: argparse.ArgumentParser) -> None:
         default=None,
         help=f"random seed from 0 to {MAX_SEED} (printed in the report; default: from the clock)",
     )
-    p.add_argument("--waves", action="store_true", help="record waveforms (FST on Icarus, VCD on Verilator)")
+    p.add_argument("--waves", action="store_true",
+                   help="dump the whole run's waveforms to BUILD/<core>.fst (Icarus) or .vcd (Verilator); the "
+                   "path is printed")
+    p.add_argument("--waves-window", metavar="N", type=_whole_number("--waves-window", 1, 10**9, "100"),
+                   default=None,
+                   help="run without waves and, if a sample differs from the model, rerun the same seed dumping "
+                   "only N clocks either side of the first one")
+    p.add_argument("--waves-limit", metavar="MB", type=_whole_number("--waves-limit", 1, 10**9, "4000"),
+                   default=1000,
+                   help="largest whole-run dump, estimated before the run, in MB (default 1000)")
     p.add_argument("--json", metavar="PATH", help="write the report as JSON")
     p.add_argument("--csv", metavar="PATH",
                    help="write one row per sample: inputs, outputs, model, ideal, error in LSB per output")

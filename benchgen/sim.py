@@ -22,8 +22,22 @@ from typing import Any
 
 from benchgen.bench.bulk_plan import FULL_RATE_TESTS, bulk_plan, bulk_run_args
 from benchgen.errors import BenchgenError
+from benchgen.harness import bulk_files, bulk_layout
 from benchgen.project import ProjectError, design_from_manifest, load_manifest
 from benchgen.simulators import SIMULATORS, SimulatorMissing, find_simulator, simulator_env
+from benchgen.waves import (
+    CLOCK_NS,
+    DEFAULT_LIMIT_MB,
+    FAR_NS,
+    WavesError,
+    WavesPlan,
+    estimate_bytes,
+    estimate_clocks,
+    signal_bits,
+    too_large,
+    waves_file,
+    write_watcher,
+)
 
 __all__ = ["BULK_ENGINES", "SimError", "SimReport", "duration", "run_sim", "space_free_build_dir"]
 
@@ -65,6 +79,8 @@ class SimReport:
             budget, over all tests.
         worst_sample: The sample with the largest error against the ideal: its port, error,
             sample number and inputs (None when nothing was judged).
+        waves_file: The waveform dump written, if any (:mod:`benchgen.waves`).
+        waves_note: What the dump holds, or why none was written.
     """
 
     simulator: str
@@ -92,6 +108,8 @@ class SimReport:
     engine: str = "cocotb"
     over_budget: int = 0
     worst_sample: dict[str, Any] | None = None
+    waves_file: str = ""
+    waves_note: str = ""
 
     def as_dict(self) -> dict[str, Any]:
         """JSON form (the keys of ``--json``)."""
@@ -119,6 +137,8 @@ class SimReport:
             "sim_seconds": round(self.sim_seconds, 3),
             "build_seconds": round(self.build_seconds, 3),
             "problems": self.problems,
+            "waves_file": self.waves_file or None,
+            "waves_note": self.waves_note or None,
             "per_test": self.per_test,
         }
 
@@ -208,6 +228,8 @@ def run_sim(
     mode: str = "auto",
     exhaustive: bool = False,
     bulk_engine: str = "auto",
+    waves_window: int | None = None,
+    waves_limit_mb: float = DEFAULT_LIMIT_MB,
 ) -> SimReport:
     """Build and simulate a project; return what the bench measured.
 
@@ -218,6 +240,12 @@ def run_sim(
     ``bulk_engine`` picks how a bulk run is driven: ``auto`` (a generated C++ runner on Verilator,
     see :mod:`benchgen.bench.bulk_native`, unless waves are asked for; cocotb on Icarus),
     ``native`` or ``cocotb``.
+
+    ``waves`` dumps the whole run to ``<build folder>/<core>.fst`` (Icarus) or ``.vcd``
+    (Verilator), refused before anything runs when the estimated size passes
+    ``waves_limit_mb``; ``waves_window=N`` instead runs without waves and, if a sample differs
+    from the model, reruns the same seed dumping only the N clocks either side of the first such
+    sample (:mod:`benchgen.waves`). Where the dump went is ``report.waves_file``.
 
     Raises:
         SimError: if the simulator is missing or the run could not start.
@@ -230,6 +258,10 @@ def run_sim(
     bulk = bulk_plan(mode, samples, exhaustive)
     if bulk_engine not in BULK_ENGINES:
         raise SimError(f"bulk engine '{bulk_engine}': use one of {', '.join(BULK_ENGINES)}")
+    if waves_window is not None:
+        if waves_window < 1:
+            raise WavesError(f"--waves-window {waves_window}: give a positive number of clocks, e.g. --waves-window 100")
+        waves = False  # the first run dumps nothing; a rerun dumps the window (below)
     native = bulk and simulator == "verilator" and (bulk_engine == "native" or (bulk_engine == "auto" and not waves))
     if native and waves:
         raise SimError("the native bulk runner records no waves; drop --waves or use the cocotb bulk engine")
@@ -238,6 +270,9 @@ def run_sim(
     project = Path(project_dir).resolve()
     manifest = load_manifest(project)
     design = design_from_manifest(manifest)
+    if waves:
+        # Before anything is built or simulated: a dump too large to keep must not cost a run.
+        _check_waves_size(project, manifest, design, simulator, samples, bulk, exhaustive, waves_limit_mb)
     try:
         info = find_simulator(simulator)
     except SimulatorMissing as exc:
@@ -269,6 +304,10 @@ def run_sim(
         expected_cycles_per_sample=design.timing.cycles_per_sample,
         log_file=str(log_file),
     )
+    plan = None
+    if waves:
+        plan = WavesPlan(path=waves_file(build, top, simulator))
+        plan.path.unlink(missing_ok=True)  # an older run's dump must not pass for this one's
     with run_files:
         if native:
             report.mode = "bulk, exhaustive" if exhaustive else "bulk"
@@ -276,10 +315,92 @@ def run_sim(
             csv_out = csv_tmp if csv_path else None
             _run_native(report, project, manifest, design, info, build, samples, exhaustive, results_jsonl, csv_out)
         else:
-            _run_cocotb(report, project, manifest, info, build, samples, seed, waves, bulk, exhaustive,
+            _run_cocotb(report, project, manifest, info, build, samples, seed, plan, bulk, exhaustive,
                         results_jsonl, results_xml, csv_tmp if csv_path else None, log_file)
         _copy_csv(csv_tmp, csv_path)
+    if plan is not None:
+        report.waves_file = str(plan.path)
+        report.waves_note = "the whole run"
+    if waves_window is not None:
+        _window_waves(report, project, manifest, info, build, samples, seed, bulk, exhaustive, waves_window)
     return report
+
+
+def _check_waves_size(project: Path, manifest: dict[str, Any], design: Any, simulator: str, samples: int,
+                      bulk: bool, exhaustive: bool, limit_mb: float) -> None:
+    """Refuse, before anything runs, a whole-run dump estimated past ``limit_mb``."""
+    from benchgen.bench.bulk_plan import input_space_bits
+    from benchgen.functions import bench_corners
+
+    sources = [project / rel for rel in manifest["files"]["rtl"]]
+    if bulk:
+        sources.append(project / bulk_files(manifest).rtl)
+    bits = signal_bits([p for p in sources if p.is_file()])
+    corners = len(next(iter(bench_corners(design.datapath).values())))
+    clocks = estimate_clocks(
+        samples=samples, cycles_per_sample=design.timing.cycles_per_sample, latency=design.timing.latency_cycles,
+        bulk=bulk, exhaustive=exhaustive, space_bits=input_space_bits(manifest), corners=corners,
+    )
+    size = estimate_bytes(clocks, bits, simulator)
+    if size > limit_mb * 1e6:
+        raise too_large(size, limit_mb, clocks, bits, fix_window=True)
+
+
+def _window_waves(report: SimReport, project: Path, manifest: dict[str, Any], info: Any, build: Path, samples: int,
+                  seed: int, bulk: bool, exhaustive: bool, clocks: int) -> None:
+    """Rerun a failed run with the same seed, dumping only ``clocks`` clocks either side of the
+    first sample that differed from the model (:mod:`benchgen.waves`)."""
+    failures = [(t["test"], t["first_failure"]) for t in report.per_test if t.get("first_failure")]
+    if not failures:
+        report.waves_note = (
+            "no waves written: no sample differed from the model"
+            + (" (the run failed otherwise; --waves dumps the whole run)" if not report.passed else "")
+        )
+        return
+    top = manifest["toplevel"]
+    simulator = report.simulator
+    window_build = build.with_name(build.name.replace("_native", "_bulk") + "_window")
+    window_build.mkdir(parents=True, exist_ok=True)
+    path = waves_file(window_build, top, simulator)
+    path.unlink(missing_ok=True)
+    test, where = failures[0]
+    if "time_ns" in where:
+        at = int(where["time_ns"])
+    else:
+        # Bulk: the block number over the whole run (the tests run one after another, each
+        # counting its own blocks), then a rerun that stops where that output is taken.
+        block = sum(int(t.get("blocks", 0)) for t in report.per_test[: [t["test"] for t in report.per_test].index(test)])
+        found = window_build / "first_failure_time.txt"
+        found.unlink(missing_ok=True)
+        find = WavesPlan(path=path, start_ns=FAR_NS, find=(block + int(where["block"]), int(where["output"])),
+                         found=found)
+        _rerun(report, project, manifest, info, window_build, samples, seed, find, bulk, exhaustive)
+        if not found.is_file():
+            report.waves_note = f"no waves written: the rerun did not reach the first failure (see {window_build / 'sim.log'})"
+            return
+        # The watcher sees `received` step to k + 1 one edge after output k was handed over.
+        at = int(found.read_text().split()[0]) - CLOCK_NS
+    start = max(0, at - clocks * CLOCK_NS)
+    plan = WavesPlan(path=path, start_ns=start, stop_ns=at + clocks * CLOCK_NS)
+    _rerun(report, project, manifest, info, window_build, samples, seed, plan, bulk, exhaustive)
+    if not path.is_file():
+        report.waves_note = f"no waves written: the rerun wrote no dump (see {window_build / 'sim.log'})"
+        return
+    report.waves_file = str(path)
+    report.waves_note = (f"{clocks} clocks either side of the first mismatch ({test}, output at {at} ns): "
+                         f"{start} ns to {at + clocks * CLOCK_NS} ns")
+
+
+def _rerun(report: SimReport, project: Path, manifest: dict[str, Any], info: Any, build: Path, samples: int,
+           seed: int, plan: WavesPlan, bulk: bool, exhaustive: bool) -> None:
+    """The run again, on the cocotb engine, with the watcher doing what ``plan`` says. Its
+    verdicts are thrown away: the watcher ends it early on purpose."""
+    scratch = SimReport(simulator=report.simulator, simulator_version=report.simulator_version,
+                        toplevel=report.toplevel, seed=seed)
+    with _RunFiles(build) as files:
+        with contextlib.suppress(SimError, RuntimeError):
+            _run_cocotb(scratch, project, manifest, info, build, samples, seed, plan, bulk, exhaustive,
+                        files.results_jsonl, files.results_xml, None, build / "sim.log")
 
 
 class _RunFiles:
@@ -320,7 +441,7 @@ def _run_cocotb(
     build: Path,
     samples: int,
     seed: int,
-    waves: bool,
+    plan: WavesPlan | None,
     bulk: bool,
     exhaustive: bool,
     results_jsonl: Path,
@@ -345,6 +466,17 @@ def _run_cocotb(
     }
     if csv_tmp:
         bench_env["BENCHGEN_CSV"] = str(csv_tmp)
+    plusargs: list[str] = []
+    if plan is not None:
+        index_width = bulk_layout(manifest).index_width if bulk else 1
+        watcher, watcher_args = write_watcher(build, simulator, hdl_top, bulk=bulk, index_width=index_width)
+        sources = [*sources, watcher]
+        build_args = [*build_args, *watcher_args]
+        plusargs = plan.plusargs()
+    # Verilator compiles tracing in when built with waves (the watcher then opens the dump);
+    # Icarus needs vvp's -fst at run time, which the runner adds for a test with waves.
+    build_waves = plan is not None and simulator == "verilator"
+    test_waves = plan is not None and simulator == "icarus"
     with simulator_env(info), _env(bench_env), _sys_path(project / "bench"):
         runner = get_runner(simulator)
         t0 = time.perf_counter()
@@ -356,7 +488,7 @@ def _run_cocotb(
                 build_dir=build,
                 always=True,
                 timescale=("1ns", "1ps"),
-                waves=waves,
+                waves=build_waves,
                 log_file=build / "build.log",
             )
         except (SystemExit, Exception) as exc:  # the runner exits on a failed build
@@ -372,7 +504,8 @@ def _run_cocotb(
                 build_dir=build,
                 test_dir=build,
                 seed=seed,
-                waves=waves,
+                waves=test_waves,
+                plusargs=plusargs,
                 results_xml=str(results_xml),
                 timescale=("1ns", "1ps"),
                 log_file=log_file,

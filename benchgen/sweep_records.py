@@ -172,6 +172,8 @@ class SimRunRecord(_Strict):
     problems: list[str]
     over_budget: NonNegInt = 0
     worst_sample: WorstSample | None = None
+    waves_file: str | None = None
+    waves_note: str | None = None
 
     @model_validator(mode="after")
     def _consistent(self) -> SimRunRecord:

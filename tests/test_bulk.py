@@ -633,12 +633,14 @@ def test_a_bulk_run_streams_every_sample_to_the_csv(sincos12: Path, tmp_path: Pa
     with csv.open() as fh:
         header = fh.readline().strip().split(",")
         assert header == ["test", "in_angle", "out_cos", "out_sin", "model_out_cos", "model_out_sin",
-                          "ideal_out_cos", "ideal_out_sin"]  # fmt: skip
+                          "ideal_out_cos", "ideal_out_sin", "error_out_cos", "error_out_sin"]  # fmt: skip
         tests = np.loadtxt(fh, delimiter=",", usecols=0, dtype=str)
     assert {t: int(np.count_nonzero(tests == t)) for t in set(tests)} == {
         t["test"]: t["samples"] for t in report.per_test
     }
-    values = np.loadtxt(csv, delimiter=",", skiprows=1, usecols=range(1, 8))
+    values = np.loadtxt(csv, delimiter=",", skiprows=1, usecols=range(1, 10))
     # The core is right, so every row's outputs are the model's, within a LSB of the ideal.
     np.testing.assert_array_equal(values[:, 1:3], values[:, 3:5])
     assert np.max(np.abs(values[:, 1:3] - values[:, 5:7])) < 1.0
+    # The error columns are the outputs less the ideal, in LSB (both printed to six places).
+    np.testing.assert_allclose(values[:, 7:9], values[:, 1:3] - values[:, 5:7], atol=2e-6)

@@ -193,7 +193,8 @@ def test_csv_has_one_row_per_sample(tmp_path: Path) -> None:
     csv = tmp_path / "samples.csv"
     report = run_sim(project, simulator="icarus", samples=500, seed=3, csv_path=csv)
     lines = csv.read_text().splitlines()
-    assert lines[0] == "test,in_angle,out_cos,out_sin,model_out_cos,model_out_sin,ideal_out_cos,ideal_out_sin"
+    assert lines[0] == ("test,in_angle,out_cos,out_sin,model_out_cos,model_out_sin,ideal_out_cos,ideal_out_sin,"
+                        "error_out_cos,error_out_sin")
     assert len(lines) - 1 == report.samples
     for row in lines[1:50]:
         fields = row.split(",")

@@ -442,6 +442,8 @@ class Tally:
     count_problems: int = 0
     """Blocks whose sample or byte counts were wrong."""
     csv: Path | None = None
+    blocks: int = 0
+    """Blocks checked so far: the number of the next one within the test."""
 
     def add(self, offset: int, inputs: Inputs, got: Inputs, expected: Inputs, errors: dict[str, Any]) -> None:
         """Compare one block bit for bit, and its errors (NaN: not judged) against the budget."""
@@ -453,6 +455,10 @@ class Tally:
             bad |= np.asarray(got[port] != exp[:n], dtype=bool)
         count = int(np.count_nonzero(bad))
         if count:
+            if "first_failure" not in res.extra:
+                # Where `benchgen sim --waves-window` centres its dump: the block and the
+                # output within it (benchgen.waves finds its clock in a rerun).
+                res.extra["first_failure"] = {"block": self.blocks, "output": int(np.flatnonzero(bad)[0])}
             res.mismatches += count
             room = FIRST_MISMATCHES - len(res.first_mismatches)
             for k in np.flatnonzero(bad)[: max(room, 0)]:
@@ -516,6 +522,7 @@ class Tally:
         if res.error_count:
             res.rms_error_lsb = float(np.sqrt(res.sum_sq_error / res.error_count))
         res.extra["error_by_port"] = {port: stats.as_dict() for port, stats in judged.items()}
+        res.extra["blocks"] = self.blocks
         res.latency_cycles = self.lat
         res.cycles_per_sample = self.span / self.gaps if self.gaps else None
         return res
@@ -555,6 +562,7 @@ def check_block(
     if timed:
         tally.timing(block)
     tally.offered += n
+    tally.blocks += 1
 
 
 def check_patterns(tally: Tally, segment: Segment, seen: SegmentTally, latency: int) -> None:

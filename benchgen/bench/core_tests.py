@@ -120,6 +120,7 @@ class CoreBench:
         short = {k: v[:n] for k, v in inputs.items()}
         ideal = ideal_outputs(self.dp, short)
         errors = function_errors(self.dp, short, {p: got[p][:n] for p in self.out_ports}, ideal)
+        shown_before = len(result.first_mismatches)
         compare(
             result,
             inputs=shown,
@@ -129,6 +130,11 @@ class CoreBench:
             budget_lsb=self.design.spec.max_error_lsb,
             seed=self.seed,
         )
+        if len(result.first_mismatches) > shown_before and "first_failure" not in result.extra:
+            # Where `benchgen sim --waves-window` centres its dump: the first mismatching output.
+            k = result.first_mismatches[shown_before]["index"]
+            if k < len(cap.out_times):
+                result.extra["first_failure"] = {"time_ns": cap.out_times[k]}
         columns: dict[str, npt.NDArray[Any]] = {k: v[:n] for k, v in inputs.items()}
         columns.update({p: got[p][:n] for p in self.out_ports})
         columns.update({f"model_{p}": expected[p][:n] for p in self.out_ports})

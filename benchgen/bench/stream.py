@@ -14,6 +14,7 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 from cocotb.triggers import RisingEdge
+from cocotb.utils import get_sim_time
 
 __all__ = ["Capture", "StreamBench"]
 
@@ -26,6 +27,8 @@ class Capture:
         in_cycles: Clock count of each accepted input.
         in_values: Per input port name, the values accepted, in order.
         out_cycles: Clock count of each output taken.
+        out_times: Simulation time (ns) of each output taken: where a waveform window is
+            centred (:mod:`benchgen.waves`).
         out_values: Per output port name, the signed (or, for tags, unsigned) values taken.
         cycles: Clocks the run lasted.
         complete: Whether every input came back out.
@@ -34,6 +37,7 @@ class Capture:
     in_cycles: list[int] = field(default_factory=list)
     in_values: dict[str, list[int]] = field(default_factory=dict)
     out_cycles: list[int] = field(default_factory=list)
+    out_times: list[int] = field(default_factory=list)
     out_values: dict[str, list[int]] = field(default_factory=dict)
     cycles: int = 0
     complete: bool = False
@@ -154,6 +158,7 @@ class StreamBench:
                 offering = False
             if ready_driven and out_valid.value:
                 cap.out_cycles.append(self.cycle)
+                cap.out_times.append(int(get_sim_time("ns")))
                 for h, is_signed, lst in zip(handles_out, signed_out, out_lists, strict=True):
                     v = h.value
                     # One-bit ports read as a scalar Logic on some simulators: int() reads both.
