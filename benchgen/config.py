@@ -120,11 +120,13 @@ _VHDL_KEYWORDS = frozenset(
 #   `package std` (include/verilated_std.sv) and refuses a module of that name as a duplicate.
 # - TOP: Verilator 5.048 refuses it ("conflicts with Verilator top-level internals").
 # - cocotb_iverilog_dump: the module cocotb 2.1's runner adds to an Icarus build for waves.
+# - benchgen_waves, benchgen_waves_root: the modules benchgen adds to a build for waves
+#   (benchgen.waves).
 # Without case: VHDL's libraries std, ieee and work, which every VHDL design sees; and the
 # Windows device names con, prn, aux, nul, com1-9, lpt1-9, which no file may carry, extension
 # or not (Microsoft, "Naming Files, Paths, and Namespaces"; from memory), since the project's
 # files are named after the core.
-_TOOL_NAMES = frozenset({"std", "TOP", "cocotb_iverilog_dump"})
+_TOOL_NAMES = frozenset({"std", "TOP", "cocotb_iverilog_dump", "benchgen_waves", "benchgen_waves_root"})
 # Verilator 5.048 reads a comment that starts with "verilator" or "synopsys" as a directive and
 # stops with BADVLTPRAGMA on "// verilator_core: ..." (checked here; "Verilator" too).
 _DIRECTIVE_PREFIXES = ("verilator", "synopsys")

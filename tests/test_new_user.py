@@ -58,3 +58,35 @@ def test_readme_use_section_shows_every_subcommand() -> None:
     use = _use_section()
     missing = [c for c in commands if f"benchgen {c}" not in use]
     assert not missing, f"README's Use section shows no example of: {missing}"
+
+
+def _demo_block() -> str:
+    text = (ROOT / "README.md").read_text()
+    after = text.split("`benchgen demo --seed 1`, run in `/home/you`, printed this", 1)[1]
+    lines = after.split("\n\n", 1)[1].split("\n")
+    block = []
+    for line in lines:
+        if line and not line.startswith("    "):
+            break
+        block.append(line[4:])
+    return "\n".join(block).strip("\n")
+
+
+def _masked(text: str) -> str:
+    """What may differ between runs and machines: the wall times and the simulator's version."""
+    import re
+
+    text = re.sub(r"(build / sim time\s+).*", r"\1TIMES", text)
+    return re.sub(r"(simulator\s+verilator )\S+", r"\1VERSION", text)
+
+
+@pytest.mark.sim
+def test_readme_shows_what_the_demo_prints(tmp_path: Path, monkeypatch: pytest.MonkeyPatch,
+                                           capsys: pytest.CaptureFixture[str]) -> None:
+    from tests.conftest import require_simulator
+
+    require_simulator("verilator")
+    monkeypatch.chdir(tmp_path)
+    assert main(["demo", "--seed", "1"]) == 0
+    printed = capsys.readouterr().out.replace(str(tmp_path), "/home/you").strip("\n")
+    assert _masked(printed) == _masked(_demo_block())

@@ -177,3 +177,14 @@ def test_verilator_dump_shows_the_failing_output_at_the_recorded_time(project: P
                 value = int(line.split()[0][1:], 2)
     assert value is not None
     assert (value - 256 if value >= 128 else value) == wrong
+
+
+@pytest.mark.parametrize("name", ["benchgen_waves", "benchgen_waves_root"])
+def test_a_core_cannot_take_the_watcher_modules_name(name: str) -> None:
+    """The watcher is compiled beside the core; a core of the same name would not build."""
+    from benchgen.config import parse_config
+    from benchgen.errors import ConfigError
+
+    with pytest.raises(ConfigError) as refused:
+        parse_config({**CORE, "name": name})
+    assert refused.value.field == "name" and "reserved" in str(refused.value)
