@@ -125,7 +125,9 @@ def _plot_inputs(dp: Any) -> dict[str, Any]:
     return join_inputs(bench_corners(dp), random_inputs(dp, np.random.default_rng(_PLOT_SEED), count))
 
 
-def model_error_grid(core: dict[str, Any], iterations: list[int], guard_bits: list[int]) -> dict[int, dict[int, tuple[float, float]]]:
+def model_error_grid(
+    core: dict[str, Any], iterations: list[int], guard_bits: list[int]
+) -> dict[int, dict[int, tuple[float, float]]]:
     """Worst and RMS error (LSB) of the bit-true model for each guard bits -> iterations.
 
     Any function: the model (:func:`benchgen.model.evaluate_function`) against the ideal, judged

@@ -260,7 +260,9 @@ def run_sim(
         raise SimError(f"bulk engine '{bulk_engine}': use one of {', '.join(BULK_ENGINES)}")
     if waves_window is not None:
         if waves_window < 1:
-            raise WavesError(f"--waves-window {waves_window}: give a positive number of clocks, e.g. --waves-window 100")
+            raise WavesError(
+                f"--waves-window {waves_window}: give a positive number of clocks, e.g. --waves-window 100"
+            )
         waves = False  # the first run dumps nothing; a rerun dumps the window (below)
     native = bulk and simulator == "verilator" and (bulk_engine == "native" or (bulk_engine == "auto" and not waves))
     if native and waves:
@@ -369,14 +371,17 @@ def _window_waves(report: SimReport, project: Path, manifest: dict[str, Any], in
     else:
         # Bulk: the block number over the whole run (the tests run one after another, each
         # counting its own blocks), then a rerun that stops where that output is taken.
-        block = sum(int(t.get("blocks", 0)) for t in report.per_test[: [t["test"] for t in report.per_test].index(test)])
+        earlier = report.per_test[: [t["test"] for t in report.per_test].index(test)]
+        block = sum(int(t.get("blocks", 0)) for t in earlier)
         found = window_build / "first_failure_time.txt"
         found.unlink(missing_ok=True)
         find = WavesPlan(path=path, start_ns=FAR_NS, find=(block + int(where["block"]), int(where["output"])),
                          found=found)
         _rerun(report, project, manifest, info, window_build, samples, seed, find, bulk, exhaustive)
         if not found.is_file():
-            report.waves_note = f"no waves written: the rerun did not reach the first failure (see {window_build / 'sim.log'})"
+            report.waves_note = (
+                f"no waves written: the rerun did not reach the first failure (see {window_build / 'sim.log'})"
+            )
             return
         # The watcher sees `received` step to k + 1 one edge after output k was handed over.
         at = int(found.read_text().split()[0]) - CLOCK_NS

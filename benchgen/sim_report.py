@@ -8,10 +8,10 @@ the input. The figures are matplotlib PNGs embedded as base64 data, in the sweep
 
 The per-sample errors come from the run's sample CSV (the ``error_<port>`` columns the benches
 write), read once in chunks and folded into fixed-size summaries, so a run of 10^8 samples makes
-a page of the same size as one of 10^4, in the same memory: a histogram of :data:`HIST_BINS` bins
-over the run's largest error either side of zero, the smallest and largest error in each of :data:`INPUT_BINS` bins of the input code (or,
-for two inputs, the largest magnitude in each cell of a :data:`MAP_BINS` square map), and the
-first :data:`SCATTER_POINTS` samples as dots.
+a page of the same size as one of 10^4, in the same memory: a histogram of :data:`HIST_BINS`
+bins over the run's largest error either side of zero, the smallest and largest error in each of
+:data:`INPUT_BINS` bins of the input code (or, for two inputs, the largest magnitude in each cell
+of a :data:`MAP_BINS` square map), and the first :data:`SCATTER_POINTS` samples as dots.
 """
 
 from __future__ import annotations
