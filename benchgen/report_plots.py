@@ -96,21 +96,30 @@ def _line_panel(ax: Any, rows: list[dict[str, Any]], y: Callable[[dict[str, Any]
 # ----------------------------------------------------------------------------- accuracy
 
 
+def _spectral(function: str) -> bool:
+    """Whether a function's outputs are a sinusoid of its angle (its spectrum is plotted)."""
+    from benchgen.functions import function_named
+
+    return function_named(function).spectral
+
+
 def model_error_grid(core: dict[str, Any], iterations: list[int], guard_bits: list[int]) -> dict[int, dict[int, tuple[float, float]]]:
     """Worst and RMS error (LSB) of the bit-true model for each guard bits -> iterations.
 
-    Measured on every 4th angle code (all codes for angles up to 14 bits): the curves show the
-    trend; the sizing in ``benchgen.design`` is what proves a core's budget.
+    Measured on every input where the space is small, else on 2^16 of the sizing set's inputs.
     """
-    from benchgen.algorithm import make_datapath
     from benchgen.config import parse_config
-    from benchgen.design import evaluate
     from benchgen.errors import ConfigError
+    from benchgen.functions import make_datapath, measure, sizing_inputs
 
     raw = {k: v for k, v in core.items() if k not in ("iterations", "guard_bits", "pipeline_depth", "iterations_per_cycle")}
     spec = parse_config(raw)
-    step = 1 if spec.angle_width <= 14 else 1 << min(spec.angle_width - 14, 8)
-    angles = np.arange(0, 1 << min(spec.angle_width, 22), step, dtype=np.int64)
+    # Every input where the space is small, else a slice of the sizing set: the curves show the
+    # trend; the sizing in benchgen.design is what proves a core's budget.
+    inputs, _ = sizing_inputs(make_datapath(spec, max(iterations), max(guard_bits)))
+    count = len(next(iter(inputs.values())))
+    step = max(1, count // 65536)
+    inputs = {k: v[::step] for k, v in inputs.items()}
     grid: dict[int, dict[int, tuple[float, float]]] = {}
     for g in guard_bits:
         for n in iterations:
@@ -118,13 +127,13 @@ def model_error_grid(core: dict[str, Any], iterations: list[int], guard_bits: li
                 dp = make_datapath(spec, n, g)
             except ConfigError:
                 continue
-            s = evaluate(dp, angles)
+            s = measure(dp, inputs)
             grid.setdefault(g, {})[n] = (s.max_error_lsb, s.rms_error_lsb)
     return grid
 
 
 def _error_plot(data: ReportData) -> bytes | None:
-    cores = [r for r in _one_per_core(data) if r["function"] == "sincos" and r["iterations"]]
+    cores = [r for r in _one_per_core(data) if _spectral(r["function"]) and r["iterations"]]
     if not cores:
         return None
     widths = sorted({r["data_width"] for r in cores})[:3]
@@ -143,7 +152,7 @@ def _error_plot(data: ReportData) -> bytes | None:
                 if pts:
                     ax.plot([p[0] for p in pts], [p[1][idx] for p in pts], marker=".", label=f"model, {g} guard bits")
             measured = [(r["iterations"], r["max_error_lsb" if idx == 0 else "rms_error_lsb"]) for r in data.rows
-                        if r["data_width"] == width and r["function"] == "sincos" and r["max_error_lsb"] is not None]
+                        if r["data_width"] == width and _spectral(r["function"]) and r["max_error_lsb"] is not None]
             if measured:
                 ax.scatter([m[0] for m in measured], [m[1] for m in measured], marker="x", s=60, color="black",
                            zorder=5, label="simulated points")
@@ -284,12 +293,12 @@ def sine_quality(data: ReportData) -> list[dict[str, Any]]:
     """SNR/SFDR of a coherent tone through the bit-true model, one per distinct sine data path."""
     from benchgen.config import parse_config
     from benchgen.design import build_design
-    from benchgen.model import sincos
+    from benchgen.functions import function_named
     from benchgen.spectrum import analyse_tone, coherent_phase_codes, ideal_snr_db
 
     seen: dict[tuple[Any, ...], dict[str, Any]] = {}
     for r in _one_per_core(data):
-        if r["function"] != "sincos" or r["status"] != "passed":
+        if not _spectral(r["function"]) or r["status"] != "passed":
             continue
         key = (r["angle_width"], r["data_width"], r["iterations"], r["guard_bits"], r["rounding"])
         if key in seen or len(seen) >= MAX_PANELS:
@@ -298,8 +307,8 @@ def sine_quality(data: ReportData) -> list[dict[str, Any]]:
         dp = build_design(parse_config(core)).datapath
         n_fft = min(SPECTRUM_FFT, 1 << dp.angle_width)
         cycles = _coherent_cycles(n_fft)
-        out = sincos(dp, coherent_phase_codes(dp.angle_width, n_fft, cycles))
-        spec = analyse_tone(np.asarray(out.sin, dtype=np.float64), cycles)
+        sine = function_named(r["function"]).tone(dp, coherent_phase_codes(dp.angle_width, n_fft, cycles))
+        spec = analyse_tone(np.asarray(sine, dtype=np.float64), cycles)
         seen[key] = {
             "label": f"{dp.data_width}-bit out, {dp.angle_width}-bit angle, {dp.iterations} it., {dp.guard_bits} guard",
             "bits": dp.data_width,
@@ -344,6 +353,6 @@ def make_plots(data: ReportData, spectra: list[dict[str, Any]]) -> dict[str, byt
         "Latency and throughput against pipeline depth": _latency_plot(data),
         "Resources and Fmax against pipeline depth": _resource_plot(data),
         "Pareto front": _pareto_plot(data),
-        "Spectrum of a coherent tone (sincos)": _spectrum_plot(spectra),
+        "Spectrum of a coherent tone": _spectrum_plot(spectra),
     }
     return {k: v for k, v in plots.items() if v is not None}

@@ -13,7 +13,8 @@ import mpmath
 import numpy as np
 import pytest
 
-from benchgen.algorithm import circular_gain, make_datapath, make_timing
+from benchgen.algorithm import circular_gain, make_timing
+from benchgen.functions import make_datapath
 from benchgen.config import parse_config
 from benchgen.model import round_drop, wrap
 

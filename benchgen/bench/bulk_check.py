@@ -31,7 +31,8 @@ from benchgen.functions import (
     random_inputs,
 )
 from benchgen.harness import BulkLayout, Slot
-from benchgen.model import evaluate_function, to_signed
+from benchgen.functions import evaluate as evaluate_function
+from benchgen.model import to_signed
 
 __all__ = [
     "DEFAULT_SAMPLES",

@@ -23,7 +23,7 @@ from benchgen.bench.scoreboard import CheckResult, compare, record, write_csv_ro
 from benchgen.bench.stream import Capture, StreamBench
 from benchgen.design import Design
 from benchgen.functions import bench_corners, function_errors, ideal_outputs, input_ports, output_ports, random_inputs
-from benchgen.model import evaluate_function
+from benchgen.functions import evaluate as evaluate_function
 from benchgen.project import design_from_manifest, load_manifest
 
 __all__ = [

@@ -33,7 +33,6 @@
 //   guard_bits = "auto"
 //   rounding = "half_even"
 //   tag_width = 0
-
 `resetall
 `timescale 1ns / 1ps
 `default_nettype none
@@ -89,13 +88,11 @@ module agc_ln_power (
     wire [23:0] x_1 = x_start + (dir_0 ? {{1{y_start[23]}}, y_start[23:1]} : ~{{1{y_start[23]}}, y_start[23:1]}) + {23'h000000, ~dir_0};
     wire [23:0] y_1 = y_start + (dir_0 ? {{1{x_start[23]}}, x_start[23:1]} : ~{{1{x_start[23]}}, x_start[23:1]}) + {23'h000000, ~dir_0};
     wire [18:0] z_1 = z_start + (dir_0 ? ~ATAN_0 : ATAN_0) + {18'h00000, dir_0};
-
     // iteration 1 (shift 2): turn counter-clockwise when y < 0
     wire dir_1 = (y_1 >= Y_HALF);
     wire [23:0] x_2 = x_1 + (dir_1 ? {{2{y_1[23]}}, y_1[23:2]} : ~{{2{y_1[23]}}, y_1[23:2]}) + {23'h000000, ~dir_1};
     wire [23:0] y_2 = y_1 + (dir_1 ? {{2{x_1[23]}}, x_1[23:2]} : ~{{2{x_1[23]}}, x_1[23:2]}) + {23'h000000, ~dir_1};
     wire [18:0] z_2 = z_1 + (dir_1 ? ~ATAN_1 : ATAN_1) + {18'h00000, dir_1};
-
     // iteration 2 (shift 3): turn counter-clockwise when y < 0
     wire dir_2 = (y_2 >= Y_HALF);
     wire [23:0] s0_x = x_2 + (dir_2 ? {{3{y_2[23]}}, y_2[23:3]} : ~{{3{y_2[23]}}, y_2[23:3]}) + {23'h000000, ~dir_2};
@@ -133,19 +130,16 @@ module agc_ln_power (
     wire [23:0] x_4 = s0_x_reg + (dir_3 ? {{4{s0_y_reg[23]}}, s0_y_reg[23:4]} : ~{{4{s0_y_reg[23]}}, s0_y_reg[23:4]}) + {23'h000000, ~dir_3};
     wire [23:0] y_4 = s0_y_reg + (dir_3 ? {{4{s0_x_reg[23]}}, s0_x_reg[23:4]} : ~{{4{s0_x_reg[23]}}, s0_x_reg[23:4]}) + {23'h000000, ~dir_3};
     wire [18:0] z_4 = s0_z_reg + (dir_3 ? ~ATAN_3 : ATAN_3) + {18'h00000, dir_3};
-
     // iteration 4 (shift 4): turn counter-clockwise when y < 0
     wire dir_4 = (y_4 >= Y_HALF);
     wire [23:0] x_5 = x_4 + (dir_4 ? {{4{y_4[23]}}, y_4[23:4]} : ~{{4{y_4[23]}}, y_4[23:4]}) + {23'h000000, ~dir_4};
     wire [23:0] y_5 = y_4 + (dir_4 ? {{4{x_4[23]}}, x_4[23:4]} : ~{{4{x_4[23]}}, x_4[23:4]}) + {23'h000000, ~dir_4};
     wire [18:0] z_5 = z_4 + (dir_4 ? ~ATAN_4 : ATAN_4) + {18'h00000, dir_4};
-
     // iteration 5 (shift 5): turn counter-clockwise when y < 0
     wire dir_5 = (y_5 >= Y_HALF);
     wire [23:0] x_6 = x_5 + (dir_5 ? {{5{y_5[23]}}, y_5[23:5]} : ~{{5{y_5[23]}}, y_5[23:5]}) + {23'h000000, ~dir_5};
     wire [23:0] y_6 = y_5 + (dir_5 ? {{5{x_5[23]}}, x_5[23:5]} : ~{{5{x_5[23]}}, x_5[23:5]}) + {23'h000000, ~dir_5};
     wire [18:0] z_6 = z_5 + (dir_5 ? ~ATAN_5 : ATAN_5) + {18'h00000, dir_5};
-
     // iteration 6 (shift 6): turn counter-clockwise when y < 0
     wire dir_6 = (y_6 >= Y_HALF);
     wire [23:0] s1_x = x_6 + (dir_6 ? {{6{y_6[23]}}, y_6[23:6]} : ~{{6{y_6[23]}}, y_6[23:6]}) + {23'h000000, ~dir_6};
@@ -183,19 +177,16 @@ module agc_ln_power (
     wire [23:0] x_8 = s1_x_reg + (dir_7 ? {{7{s1_y_reg[23]}}, s1_y_reg[23:7]} : ~{{7{s1_y_reg[23]}}, s1_y_reg[23:7]}) + {23'h000000, ~dir_7};
     wire [23:0] y_8 = s1_y_reg + (dir_7 ? {{7{s1_x_reg[23]}}, s1_x_reg[23:7]} : ~{{7{s1_x_reg[23]}}, s1_x_reg[23:7]}) + {23'h000000, ~dir_7};
     wire [18:0] z_8 = s1_z_reg + (dir_7 ? ~ATAN_7 : ATAN_7) + {18'h00000, dir_7};
-
     // iteration 8 (shift 8): turn counter-clockwise when y < 0
     wire dir_8 = (y_8 >= Y_HALF);
     wire [23:0] x_9 = x_8 + (dir_8 ? {{8{y_8[23]}}, y_8[23:8]} : ~{{8{y_8[23]}}, y_8[23:8]}) + {23'h000000, ~dir_8};
     wire [23:0] y_9 = y_8 + (dir_8 ? {{8{x_8[23]}}, x_8[23:8]} : ~{{8{x_8[23]}}, x_8[23:8]}) + {23'h000000, ~dir_8};
     wire [18:0] z_9 = z_8 + (dir_8 ? ~ATAN_8 : ATAN_8) + {18'h00000, dir_8};
-
     // iteration 9 (shift 9): turn counter-clockwise when y < 0
     wire dir_9 = (y_9 >= Y_HALF);
     wire [23:0] x_10 = x_9 + (dir_9 ? {{9{y_9[23]}}, y_9[23:9]} : ~{{9{y_9[23]}}, y_9[23:9]}) + {23'h000000, ~dir_9};
     wire [23:0] y_10 = y_9 + (dir_9 ? {{9{x_9[23]}}, x_9[23:9]} : ~{{9{x_9[23]}}, x_9[23:9]}) + {23'h000000, ~dir_9};
     wire [18:0] z_10 = z_9 + (dir_9 ? ~ATAN_9 : ATAN_9) + {18'h00000, dir_9};
-
     // iteration 10 (shift 10): turn counter-clockwise when y < 0
     wire dir_10 = (y_10 >= Y_HALF);
     wire [23:0] s2_x = x_10 + (dir_10 ? {{10{y_10[23]}}, y_10[23:10]} : ~{{10{y_10[23]}}, y_10[23:10]}) + {23'h000000, ~dir_10};
@@ -233,21 +224,17 @@ module agc_ln_power (
     wire [23:0] x_12 = s2_x_reg + (dir_11 ? {{11{s2_y_reg[23]}}, s2_y_reg[23:11]} : ~{{11{s2_y_reg[23]}}, s2_y_reg[23:11]}) + {23'h000000, ~dir_11};
     wire [23:0] y_12 = s2_y_reg + (dir_11 ? {{11{s2_x_reg[23]}}, s2_x_reg[23:11]} : ~{{11{s2_x_reg[23]}}, s2_x_reg[23:11]}) + {23'h000000, ~dir_11};
     wire [18:0] z_12 = s2_z_reg + (dir_11 ? ~ATAN_11 : ATAN_11) + {18'h00000, dir_11};
-
     // iteration 12 (shift 12): turn counter-clockwise when y < 0
     wire dir_12 = (y_12 >= Y_HALF);
     wire [23:0] tx_12 = dir_12 ? {{12{y_12[23]}}, y_12[23:12]} : ~{{12{y_12[23]}}, y_12[23:12]};
-    wire c_x_13 = ({1'b0, x_12[12:0]} + {1'b0, tx_12[12:0]} + {13'h0000, ~dir_12}) > {1'b0, 13'h1fff};
+    wire c_x_13 = (({1'b0, x_12[12:0]} + {1'b0, tx_12[12:0]} + {13'h0000, ~dir_12}) > {1'b0, 13'h1fff});
     wire [10:0] x_13_kept = x_12[23:13] + tx_12[23:13] + {10'h000, c_x_13};
-
     wire [23:0] y_13 = y_12 + (dir_12 ? {{12{x_12[23]}}, x_12[23:12]} : ~{{12{x_12[23]}}, x_12[23:12]}) + {23'h000000, ~dir_12};
     wire [18:0] z_13 = z_12 + (dir_12 ? ~ATAN_12 : ATAN_12) + {18'h00000, dir_12};
-
     // iteration 13 (shift 13): turn counter-clockwise when y < 0
     wire dir_13 = (y_13 >= Y_HALF);
-    wire [23:0] y_14 = y_13 + (dir_13 ? {{13{x_13_kept[10]}}, x_13_kept[10:0]} : ~{{13{x_13_kept[10]}}, x_13_kept[10:0]}) + {23'h000000, ~dir_13};
+    wire [23:0] y_14 = y_13 + (dir_13 ? {{13{x_13_kept[10]}}, x_13_kept} : ~{{13{x_13_kept[10]}}, x_13_kept}) + {23'h000000, ~dir_13};
     wire [18:0] z_14 = z_13 + (dir_13 ? ~ATAN_13 : ATAN_13) + {18'h00000, dir_13};
-
     // iteration 14 (shift 13): turn counter-clockwise when y < 0
     wire dir_14 = (y_14 >= Y_HALF);
     wire [18:0] s3_z = z_14 + (dir_14 ? ~ATAN_14 : ATAN_14) + {18'h00000, dir_14};
@@ -278,18 +265,14 @@ module agc_ln_power (
     wire [22:0] ln_twice = {{3{s3_z[18]}}, s3_z, 1'b0};
     wire [22:0] ln_sum = ln_twice - e_ln2;
     // ln: drop 6 bit(s), half_even
-    wire ln_inc = (ln_sum[5:0] > 6'h20)
-        | ((ln_sum[5:0] == 6'h20) & ln_sum[6]);
+    wire ln_inc = (ln_sum[5:0] > 6'h20) | ((ln_sum[5:0] == 6'h20) & ln_sum[6]);
     wire [16:0] ln_q = ln_sum[22:6] + {16'h0000, ln_inc};
-
     // saturate to +-32767
     wire ln_over = ~ln_q[16] & ln_q[15];
     wire ln_under = ln_q[16] & (~ln_q[15] | (ln_q[15:0] == 16'h8000));
     wire [15:0] ln = ln_over ? 16'h7fff : ln_under ? 16'h8001 : ln_q[15:0];
-
     wire [15:0] fin_out_ln = s2_bad_reg ? 16'h0000 : ln;
     wire [0:0] fin_out_domain_error = s2_bad_reg;
-
     wire fin_valid = s2_valid_reg;
 
     // Output buffer with two entries. out_ready reaches only this buffer and ready_reg; the
@@ -348,7 +331,6 @@ module agc_ln_power (
     assign out_valid = out_valid_reg;
     assign out_ln = out_ln_reg;
     assign out_domain_error = out_domain_error_reg;
-
     assign advance = ready_reg;
 
 endmodule

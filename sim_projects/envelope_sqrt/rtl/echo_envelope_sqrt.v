@@ -33,7 +33,6 @@
 //   guard_bits = "auto"
 //   rounding = "half_even"
 //   tag_width = 4
-
 `resetall
 `timescale 1ns / 1ps
 `default_nettype none
@@ -86,11 +85,11 @@ module echo_envelope_sqrt (
     reg [2:0] shift_j0;
     always @* begin
         case (count_reg)
-            2'h0: begin shift_j0 = 3'h1; end
-            2'h1: begin shift_j0 = 3'h3; end
-            2'h2: begin shift_j0 = 3'h4; end
-            2'h3: begin shift_j0 = 3'h6; end
-            default: begin shift_j0 = 3'h1; end
+            2'h0: shift_j0 = 3'h1;
+            2'h1: shift_j0 = 3'h3;
+            2'h2: shift_j0 = 3'h4;
+            2'h3: shift_j0 = 3'h6;
+            default: shift_j0 = 3'h1;
         endcase
     end
 
@@ -98,11 +97,11 @@ module echo_envelope_sqrt (
     reg [2:0] shift_j1;
     always @* begin
         case (count_reg)
-            2'h0: begin shift_j1 = 3'h2; end
-            2'h1: begin shift_j1 = 3'h4; end
-            2'h2: begin shift_j1 = 3'h5; end
-            2'h3: begin shift_j1 = 3'h7; end
-            default: begin shift_j1 = 3'h2; end
+            2'h0: shift_j1 = 3'h2;
+            2'h1: shift_j1 = 3'h4;
+            2'h2: shift_j1 = 3'h5;
+            2'h3: shift_j1 = 3'h7;
+            default: shift_j1 = 3'h2;
         endcase
     end
 
@@ -124,17 +123,13 @@ module echo_envelope_sqrt (
     // undo the normalisation: shift right by k with every bit kept, then round once
     wire [28:0] sq_wide = $signed({x_2, 6'h00}) >>> half_reg;
     // sq: drop 12 bit(s), half_even
-    wire sq_inc = (sq_wide[11:0] > 12'h800)
-        | ((sq_wide[11:0] == 12'h800) & sq_wide[12]);
+    wire sq_inc = (sq_wide[11:0] > 12'h800) | ((sq_wide[11:0] == 12'h800) & sq_wide[12]);
     wire [16:0] sq_q = sq_wide[28:12] + {16'h0000, sq_inc};
-
     // clamp to [0, 16383]: the value is never negative; rounding can reach the top
     wire sq_value_neg = sq_q[16];
     wire sq_value_over = ~sq_value_neg & (sq_q[15:14] != 2'h0);
     wire [13:0] sq_value = sq_value_neg ? 14'h0000 : sq_value_over ? 14'h3fff : sq_q[13:0];
-
     wire [13:0] fin_out_sqrt = zero_reg ? 14'h0000 : sq_value;
-
     wire [3:0] fin_tag = tag_reg;
 
     // Output buffer with two entries. out_ready reaches only this buffer and ready_reg; the

@@ -33,7 +33,6 @@
 //   guard_bits = "auto"
 //   rounding = "half_up"
 //   tag_width = 9
-
 `resetall
 `timescale 1ns / 1ps
 `default_nettype none
@@ -87,7 +86,6 @@ module fft1024_twiddle (
     // convergence range.
     wire in_fold = in_angle[9] ^ in_angle[8];
     wire [24:0] z_start = {in_angle[8], in_angle[8:0], 15'h0000};
-
     wire [23:0] x_start = in_fold ? X_START_NEG : X_START_POS;
     wire [23:0] y_start = 24'h000000;
 
@@ -97,19 +95,16 @@ module fft1024_twiddle (
     wire [23:0] x_1 = x_start + (dir_0 ? ~y_start : y_start) + {23'h000000, dir_0};
     wire [23:0] y_1 = y_start + (dir_0 ? x_start : ~x_start) + {23'h000000, ~dir_0};
     wire [24:0] z_1 = z_start + (dir_0 ? ~ATAN_0 : ATAN_0) + {24'h000000, dir_0};
-
     // iteration 1: turn counter-clockwise when the remaining angle is >= 0
     wire dir_1 = (z_1 < Z_HALF);
     wire [23:0] x_2 = x_1 + (dir_1 ? ~{{1{y_1[23]}}, y_1[23:1]} : {{1{y_1[23]}}, y_1[23:1]}) + {23'h000000, dir_1};
     wire [23:0] y_2 = y_1 + (dir_1 ? {{1{x_1[23]}}, x_1[23:1]} : ~{{1{x_1[23]}}, x_1[23:1]}) + {23'h000000, ~dir_1};
     wire [24:0] z_2 = z_1 + (dir_1 ? ~ATAN_1 : ATAN_1) + {24'h000000, dir_1};
-
     // iteration 2: turn counter-clockwise when the remaining angle is >= 0
     wire dir_2 = (z_2 < Z_HALF);
     wire [23:0] x_3 = x_2 + (dir_2 ? ~{{2{y_2[23]}}, y_2[23:2]} : {{2{y_2[23]}}, y_2[23:2]}) + {23'h000000, dir_2};
     wire [23:0] y_3 = y_2 + (dir_2 ? {{2{x_2[23]}}, x_2[23:2]} : ~{{2{x_2[23]}}, x_2[23:2]}) + {23'h000000, ~dir_2};
     wire [24:0] z_3 = z_2 + (dir_2 ? ~ATAN_2 : ATAN_2) + {24'h000000, dir_2};
-
     // iteration 3: turn counter-clockwise when the remaining angle is >= 0
     wire dir_3 = (z_3 < Z_HALF);
     wire [23:0] s0_x = x_3 + (dir_3 ? ~{{3{y_3[23]}}, y_3[23:3]} : {{3{y_3[23]}}, y_3[23:3]}) + {23'h000000, dir_3};
@@ -145,25 +140,21 @@ module fft1024_twiddle (
     wire [23:0] x_5 = s0_x_reg + (dir_4 ? ~{{4{s0_y_reg[23]}}, s0_y_reg[23:4]} : {{4{s0_y_reg[23]}}, s0_y_reg[23:4]}) + {23'h000000, dir_4};
     wire [23:0] y_5 = s0_y_reg + (dir_4 ? {{4{s0_x_reg[23]}}, s0_x_reg[23:4]} : ~{{4{s0_x_reg[23]}}, s0_x_reg[23:4]}) + {23'h000000, ~dir_4};
     wire [24:0] z_5 = s0_z_reg + (dir_4 ? ~ATAN_4 : ATAN_4) + {24'h000000, dir_4};
-
     // iteration 5: turn counter-clockwise when the remaining angle is >= 0
     wire dir_5 = (z_5 < Z_HALF);
     wire [23:0] x_6 = x_5 + (dir_5 ? ~{{5{y_5[23]}}, y_5[23:5]} : {{5{y_5[23]}}, y_5[23:5]}) + {23'h000000, dir_5};
     wire [23:0] y_6 = y_5 + (dir_5 ? {{5{x_5[23]}}, x_5[23:5]} : ~{{5{x_5[23]}}, x_5[23:5]}) + {23'h000000, ~dir_5};
     wire [24:0] z_6 = z_5 + (dir_5 ? ~ATAN_5 : ATAN_5) + {24'h000000, dir_5};
-
     // iteration 6: turn counter-clockwise when the remaining angle is >= 0
     wire dir_6 = (z_6 < Z_HALF);
     wire [23:0] x_7 = x_6 + (dir_6 ? ~{{6{y_6[23]}}, y_6[23:6]} : {{6{y_6[23]}}, y_6[23:6]}) + {23'h000000, dir_6};
     wire [23:0] y_7 = y_6 + (dir_6 ? {{6{x_6[23]}}, x_6[23:6]} : ~{{6{x_6[23]}}, x_6[23:6]}) + {23'h000000, ~dir_6};
     wire [24:0] z_7 = z_6 + (dir_6 ? ~ATAN_6 : ATAN_6) + {24'h000000, dir_6};
-
     // iteration 7: turn counter-clockwise when the remaining angle is >= 0
     wire dir_7 = (z_7 < Z_HALF);
     wire [23:0] x_8 = x_7 + (dir_7 ? ~{{7{y_7[23]}}, y_7[23:7]} : {{7{y_7[23]}}, y_7[23:7]}) + {23'h000000, dir_7};
     wire [23:0] y_8 = y_7 + (dir_7 ? {{7{x_7[23]}}, x_7[23:7]} : ~{{7{x_7[23]}}, x_7[23:7]}) + {23'h000000, ~dir_7};
     wire [24:0] z_8 = z_7 + (dir_7 ? ~ATAN_7 : ATAN_7) + {24'h000000, dir_7};
-
     // iteration 8: turn counter-clockwise when the remaining angle is >= 0
     wire dir_8 = (z_8 < Z_HALF);
     wire [23:0] s1_x = x_8 + (dir_8 ? ~{{8{y_8[23]}}, y_8[23:8]} : {{8{y_8[23]}}, y_8[23:8]}) + {23'h000000, dir_8};
@@ -199,25 +190,21 @@ module fft1024_twiddle (
     wire [23:0] x_10 = s1_x_reg + (dir_9 ? ~{{9{s1_y_reg[23]}}, s1_y_reg[23:9]} : {{9{s1_y_reg[23]}}, s1_y_reg[23:9]}) + {23'h000000, dir_9};
     wire [23:0] y_10 = s1_y_reg + (dir_9 ? {{9{s1_x_reg[23]}}, s1_x_reg[23:9]} : ~{{9{s1_x_reg[23]}}, s1_x_reg[23:9]}) + {23'h000000, ~dir_9};
     wire [24:0] z_10 = s1_z_reg + (dir_9 ? ~ATAN_9 : ATAN_9) + {24'h000000, dir_9};
-
     // iteration 10: turn counter-clockwise when the remaining angle is >= 0
     wire dir_10 = (z_10 < Z_HALF);
     wire [23:0] x_11 = x_10 + (dir_10 ? ~{{10{y_10[23]}}, y_10[23:10]} : {{10{y_10[23]}}, y_10[23:10]}) + {23'h000000, dir_10};
     wire [23:0] y_11 = y_10 + (dir_10 ? {{10{x_10[23]}}, x_10[23:10]} : ~{{10{x_10[23]}}, x_10[23:10]}) + {23'h000000, ~dir_10};
     wire [24:0] z_11 = z_10 + (dir_10 ? ~ATAN_10 : ATAN_10) + {24'h000000, dir_10};
-
     // iteration 11: turn counter-clockwise when the remaining angle is >= 0
     wire dir_11 = (z_11 < Z_HALF);
     wire [23:0] x_12 = x_11 + (dir_11 ? ~{{11{y_11[23]}}, y_11[23:11]} : {{11{y_11[23]}}, y_11[23:11]}) + {23'h000000, dir_11};
     wire [23:0] y_12 = y_11 + (dir_11 ? {{11{x_11[23]}}, x_11[23:11]} : ~{{11{x_11[23]}}, x_11[23:11]}) + {23'h000000, ~dir_11};
     wire [24:0] z_12 = z_11 + (dir_11 ? ~ATAN_11 : ATAN_11) + {24'h000000, dir_11};
-
     // iteration 12: turn counter-clockwise when the remaining angle is >= 0
     wire dir_12 = (z_12 < Z_HALF);
     wire [23:0] x_13 = x_12 + (dir_12 ? ~{{12{y_12[23]}}, y_12[23:12]} : {{12{y_12[23]}}, y_12[23:12]}) + {23'h000000, dir_12};
     wire [23:0] y_13 = y_12 + (dir_12 ? {{12{x_12[23]}}, x_12[23:12]} : ~{{12{x_12[23]}}, x_12[23:12]}) + {23'h000000, ~dir_12};
     wire [24:0] z_13 = z_12 + (dir_12 ? ~ATAN_12 : ATAN_12) + {24'h000000, dir_12};
-
     // iteration 13: turn counter-clockwise when the remaining angle is >= 0
     wire dir_13 = (z_13 < Z_HALF);
     wire [23:0] s2_x = x_13 + (dir_13 ? ~{{13{y_13[23]}}, y_13[23:13]} : {{13{y_13[23]}}, y_13[23:13]}) + {23'h000000, dir_13};
@@ -253,25 +240,21 @@ module fft1024_twiddle (
     wire [23:0] x_15 = s2_x_reg + (dir_14 ? ~{{14{s2_y_reg[23]}}, s2_y_reg[23:14]} : {{14{s2_y_reg[23]}}, s2_y_reg[23:14]}) + {23'h000000, dir_14};
     wire [23:0] y_15 = s2_y_reg + (dir_14 ? {{14{s2_x_reg[23]}}, s2_x_reg[23:14]} : ~{{14{s2_x_reg[23]}}, s2_x_reg[23:14]}) + {23'h000000, ~dir_14};
     wire [24:0] z_15 = s2_z_reg + (dir_14 ? ~ATAN_14 : ATAN_14) + {24'h000000, dir_14};
-
     // iteration 15: turn counter-clockwise when the remaining angle is >= 0
     wire dir_15 = (z_15 < Z_HALF);
     wire [23:0] x_16 = x_15 + (dir_15 ? ~{{15{y_15[23]}}, y_15[23:15]} : {{15{y_15[23]}}, y_15[23:15]}) + {23'h000000, dir_15};
     wire [23:0] y_16 = y_15 + (dir_15 ? {{15{x_15[23]}}, x_15[23:15]} : ~{{15{x_15[23]}}, x_15[23:15]}) + {23'h000000, ~dir_15};
     wire [24:0] z_16 = z_15 + (dir_15 ? ~ATAN_15 : ATAN_15) + {24'h000000, dir_15};
-
     // iteration 16: turn counter-clockwise when the remaining angle is >= 0
     wire dir_16 = (z_16 < Z_HALF);
     wire [23:0] x_17 = x_16 + (dir_16 ? ~{{16{y_16[23]}}, y_16[23:16]} : {{16{y_16[23]}}, y_16[23:16]}) + {23'h000000, dir_16};
     wire [23:0] y_17 = y_16 + (dir_16 ? {{16{x_16[23]}}, x_16[23:16]} : ~{{16{x_16[23]}}, x_16[23:16]}) + {23'h000000, ~dir_16};
     wire [24:0] z_17 = z_16 + (dir_16 ? ~ATAN_16 : ATAN_16) + {24'h000000, dir_16};
-
     // iteration 17: turn counter-clockwise when the remaining angle is >= 0
     wire dir_17 = (z_17 < Z_HALF);
     wire [23:0] x_18 = x_17 + (dir_17 ? ~{{17{y_17[23]}}, y_17[23:17]} : {{17{y_17[23]}}, y_17[23:17]}) + {23'h000000, dir_17};
     wire [23:0] y_18 = y_17 + (dir_17 ? {{17{x_17[23]}}, x_17[23:17]} : ~{{17{x_17[23]}}, x_17[23:17]}) + {23'h000000, ~dir_17};
     wire [24:0] z_18 = z_17 + (dir_17 ? ~ATAN_17 : ATAN_17) + {24'h000000, dir_17};
-
     // iteration 18: turn counter-clockwise when the remaining angle is >= 0
     wire dir_18 = (z_18 < Z_HALF);
     wire [23:0] s3_x = x_18 + (dir_18 ? ~{{18{y_18[23]}}, y_18[23:18]} : {{18{y_18[23]}}, y_18[23:18]}) + {23'h000000, dir_18};
@@ -281,21 +264,17 @@ module fft1024_twiddle (
     // fin_out_cos: drop 5 bit(s), half_up
     wire fin_out_cos_inc = (s3_x[4:0] >= 5'h10);
     wire [18:0] fin_out_cos_q = s3_x[23:5] + {18'h00000, fin_out_cos_inc};
-
     // saturate to +-131071
     wire fin_out_cos_over = ~fin_out_cos_q[18] & fin_out_cos_q[17];
     wire fin_out_cos_under = fin_out_cos_q[18] & (~fin_out_cos_q[17] | (fin_out_cos_q[17:0] == 18'h20000));
     wire [17:0] fin_out_cos = fin_out_cos_over ? 18'h1ffff : fin_out_cos_under ? 18'h20001 : fin_out_cos_q[17:0];
-
     // fin_out_sin: drop 5 bit(s), half_up
     wire fin_out_sin_inc = (s3_y[4:0] >= 5'h10);
     wire [18:0] fin_out_sin_q = s3_y[23:5] + {18'h00000, fin_out_sin_inc};
-
     // saturate to +-131071
     wire fin_out_sin_over = ~fin_out_sin_q[18] & fin_out_sin_q[17];
     wire fin_out_sin_under = fin_out_sin_q[18] & (~fin_out_sin_q[17] | (fin_out_sin_q[17:0] == 18'h20000));
     wire [17:0] fin_out_sin = fin_out_sin_over ? 18'h1ffff : fin_out_sin_under ? 18'h20001 : fin_out_sin_q[17:0];
-
     wire fin_valid = s2_valid_reg;
     wire [8:0] fin_tag = s2_tag_reg;
 
@@ -361,7 +340,6 @@ module fft1024_twiddle (
     assign out_cos = out_cos_reg;
     assign out_sin = out_sin_reg;
     assign out_tag = out_tag_reg;
-
     assign advance = ready_reg;
 
 endmodule

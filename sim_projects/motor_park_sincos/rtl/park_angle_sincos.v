@@ -33,7 +33,6 @@
 //   guard_bits = "auto"
 //   rounding = "half_even"
 //   tag_width = 0
-
 `resetall
 `timescale 1ns / 1ps
 `default_nettype none
@@ -62,7 +61,6 @@ module park_angle_sincos (
     // convergence range.
     wire in_fold = in_angle[11] ^ in_angle[10];
     wire [21:0] z_start = {in_angle[10], in_angle[10:0], 10'h000};
-
     wire [20:0] x_start = in_fold ? X_START_NEG : X_START_POS;
     wire [20:0] y_start = 21'h000000;
 
@@ -125,26 +123,21 @@ module park_angle_sincos (
     wire [20:0] ys_j1 = $signed(y_1) >>> shift_j1;
     // iteration 1: turn counter-clockwise when the remaining angle is >= 0
     wire dir_j1 = (z_1 < Z_HALF);
-    wire [20:0] x_2 = active_j1 ? x_1 + (dir_j1 ? ~ys_j1 : ys_j1) + {20'h00000, dir_j1} : x_1;
-    wire [20:0] y_2 = active_j1 ? y_1 + (dir_j1 ? xs_j1 : ~xs_j1) + {20'h00000, ~dir_j1} : y_1;
-    wire [21:0] z_2 = active_j1 ? z_1 + (dir_j1 ? ~atan_j1 : atan_j1) + {21'h000000, dir_j1} : z_1;
+    wire [20:0] x_2 = active_j1 ? (x_1 + (dir_j1 ? ~ys_j1 : ys_j1) + {20'h00000, dir_j1}) : x_1;
+    wire [20:0] y_2 = active_j1 ? (y_1 + (dir_j1 ? xs_j1 : ~xs_j1) + {20'h00000, ~dir_j1}) : y_1;
+    wire [21:0] z_2 = active_j1 ? (z_1 + (dir_j1 ? ~atan_j1 : atan_j1) + {21'h000000, dir_j1}) : z_1;
 
     // ---- output: rounding, saturation, buffer ----
     // fin_out_cos: drop 6 bit(s), half_even
-    wire fin_out_cos_inc = (x_2[5:0] > 6'h20)
-        | ((x_2[5:0] == 6'h20) & x_2[6]);
+    wire fin_out_cos_inc = (x_2[5:0] > 6'h20) | ((x_2[5:0] == 6'h20) & x_2[6]);
     wire [14:0] fin_out_cos_q = x_2[20:6] + {14'h0000, fin_out_cos_inc};
-
     // saturate to +-8191
     wire fin_out_cos_over = ~fin_out_cos_q[14] & fin_out_cos_q[13];
     wire fin_out_cos_under = fin_out_cos_q[14] & (~fin_out_cos_q[13] | (fin_out_cos_q[13:0] == 14'h2000));
     wire [13:0] fin_out_cos = fin_out_cos_over ? 14'h1fff : fin_out_cos_under ? 14'h2001 : fin_out_cos_q[13:0];
-
     // fin_out_sin: drop 6 bit(s), half_even
-    wire fin_out_sin_inc = (y_2[5:0] > 6'h20)
-        | ((y_2[5:0] == 6'h20) & y_2[6]);
+    wire fin_out_sin_inc = (y_2[5:0] > 6'h20) | ((y_2[5:0] == 6'h20) & y_2[6]);
     wire [14:0] fin_out_sin_q = y_2[20:6] + {14'h0000, fin_out_sin_inc};
-
     // saturate to +-8191
     wire fin_out_sin_over = ~fin_out_sin_q[14] & fin_out_sin_q[13];
     wire fin_out_sin_under = fin_out_sin_q[14] & (~fin_out_sin_q[13] | (fin_out_sin_q[13:0] == 14'h2000));

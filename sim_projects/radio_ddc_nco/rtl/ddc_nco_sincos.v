@@ -31,7 +31,6 @@
 //   guard_bits = "auto"
 //   rounding = "half_even"
 //   tag_width = 4
-
 `resetall
 `timescale 1ns / 1ps
 `default_nettype none
@@ -83,7 +82,6 @@ module ddc_nco_sincos (
     // convergence range.
     wire in_fold = in_angle[15] ^ in_angle[14];
     wire [25:0] z_start = {in_angle[14], in_angle[14:0], 10'h000};
-
     wire [24:0] x_start = in_fold ? X_START_NEG : X_START_POS;
     wire [24:0] y_start = 25'h0000000;
 
@@ -575,25 +573,19 @@ module ddc_nco_sincos (
 
     // ---- output: rounding, saturation, buffer ----
     // fin_out_cos: drop 8 bit(s), half_even
-    wire fin_out_cos_inc = (s16_x[7:0] > 8'h80)
-        | ((s16_x[7:0] == 8'h80) & s16_x[8]);
+    wire fin_out_cos_inc = (s16_x[7:0] > 8'h80) | ((s16_x[7:0] == 8'h80) & s16_x[8]);
     wire [16:0] fin_out_cos_q = s16_x[24:8] + {16'h0000, fin_out_cos_inc};
-
     // saturate to +-32767
     wire fin_out_cos_over = ~fin_out_cos_q[16] & fin_out_cos_q[15];
     wire fin_out_cos_under = fin_out_cos_q[16] & (~fin_out_cos_q[15] | (fin_out_cos_q[15:0] == 16'h8000));
     wire [15:0] fin_out_cos = fin_out_cos_over ? 16'h7fff : fin_out_cos_under ? 16'h8001 : fin_out_cos_q[15:0];
-
     // fin_out_sin: drop 8 bit(s), half_even
-    wire fin_out_sin_inc = (s16_y[7:0] > 8'h80)
-        | ((s16_y[7:0] == 8'h80) & s16_y[8]);
+    wire fin_out_sin_inc = (s16_y[7:0] > 8'h80) | ((s16_y[7:0] == 8'h80) & s16_y[8]);
     wire [16:0] fin_out_sin_q = s16_y[24:8] + {16'h0000, fin_out_sin_inc};
-
     // saturate to +-32767
     wire fin_out_sin_over = ~fin_out_sin_q[16] & fin_out_sin_q[15];
     wire fin_out_sin_under = fin_out_sin_q[16] & (~fin_out_sin_q[15] | (fin_out_sin_q[15:0] == 16'h8000));
     wire [15:0] fin_out_sin = fin_out_sin_over ? 16'h7fff : fin_out_sin_under ? 16'h8001 : fin_out_sin_q[15:0];
-
     wire fin_valid = s15_valid_reg;
     wire [3:0] fin_tag = s15_tag_reg;
 
@@ -659,7 +651,6 @@ module ddc_nco_sincos (
     assign out_cos = out_cos_reg;
     assign out_sin = out_sin_reg;
     assign out_tag = out_tag_reg;
-
     assign advance = ready_reg;
 
 endmodule
