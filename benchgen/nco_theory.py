@@ -21,9 +21,10 @@ geometric sum). ``m = 0`` is the carrier, ``m = -1`` the largest spur, so
 
     spur / carrier = sin(Delta / (2M)) / sin((2 pi - Delta) / (2M))
 
-which is ``tan(Delta/4)`` at ``M = 2`` (20 log10 tan(pi / 2**(P+1)) = -(6.02 P - 3.92) dB to
-0.01 dB) and falls to ``1 / (2**P - 1)`` (about -6.02 P dB) as ``M`` grows: only 3.92 dB
-separate the best and worst non-exact words. The spurs of a real (cosine) output have the same
+which is ``tan(Delta/4)`` at ``M = 2`` (20 log10 tan(pi / 2**(P+1)) is -(6.02 P - 3.92) dB
+within 0.01 dB for P = 6 to 20, the difference being the rounding of 6.02 and 3.92) and falls
+to ``1 / (2**P - 1)`` (about -6.02 P dB) as ``M`` grows: only 3.92 dB separate the best and
+worst non-exact words. The spurs of a real (cosine) output have the same
 levels relative to its carrier, at the mirror frequencies.
 
 **Dither** (derived here; the classical result is that dither turns truncation spurs into noise):

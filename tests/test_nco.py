@@ -439,3 +439,41 @@ def test_partial_dither_acts_as_more_phase_bits(dither: int, period: int) -> Non
         tolerance = 0.1 + 20 * math.log10(1 + 2 * 10 ** (-gap / 20))
         assert m.sfdr_db == pytest.approx(-spur, abs=tolerance)
         assert m.sfdr_db > -truncation_spur_dbc(period, p) + 2.0  # better than undithered
+
+
+# --- the theory's own formulas ---------------------------------------------------------------------
+
+
+def test_exact_spur_formula_meets_nicholas_samueli_and_its_limits() -> None:
+    """Derived here: M = 2 gives tan(Delta/4), within 0.01 dB of Nicholas and Samueli's
+    -(6.02 P - 3.92) for P = 6 to 20; large M tends to 1/(2**P - 1); the levels fall with M."""
+    for p in range(6, 21):
+        assert truncation_spur_dbc(2, p) == pytest.approx(20 * math.log10(math.tan(math.pi / 2 ** (p + 1))), abs=1e-9)
+        assert truncation_spur_dbc(2, p) == pytest.approx(nicholas_samueli_worst_dbc(p), abs=0.01)
+        levels = [truncation_spur_dbc(1 << k, p) for k in range(1, 12)]
+        assert levels == sorted(levels, reverse=True)
+        assert levels[-1] == pytest.approx(-20 * math.log10(2**p - 1), abs=0.01)
+    assert truncation_spur_dbc(1, 10) == -math.inf and truncation_snr_db(1, 10) == math.inf
+
+
+def test_dither_formula_costs_exactly_3_db_once_it_resolves_the_period() -> None:
+    """Derived here: with 2**D >= M the phase error power doubles; with D = 0 it is the
+    undithered truncation's (small-angle: within 0.01 dB of the exact truncation_snr_db)."""
+    for p in (8, 12):
+        for period in (2, 4, 16, 64):
+            plain = dithered_phase_snr_db(period, p, 0)
+            assert plain == pytest.approx(truncation_snr_db(period, p), abs=0.01)
+            full = dithered_phase_snr_db(period, p, period.bit_length() - 1)
+            assert plain - full == pytest.approx(10 * math.log10(2), abs=1e-9)
+            assert dithered_phase_snr_db(period, p, 24) == pytest.approx(full, abs=1e-9)
+
+
+def test_truncation_words_are_refused_where_they_cannot_exist() -> None:
+    with pytest.raises(ValueError, match="odd"):
+        truncation_word(32, 8, 1 << 14, 2, 4)
+    with pytest.raises(ValueError, match="period"):
+        truncation_word(32, 8, 1 << 14, 3, 5)
+    with pytest.raises(ValueError, match="cannot hold"):
+        truncation_word(32, 14, 1 << 14, 2, 5)  # M = 2 at P = 14 repeats every 2**15 samples
+    w = truncation_word(48, 12, 1 << 16, 8, 5)
+    assert w.period == truncation_period(w.freq_word, 48, 12) == 8 and w.cycles == 5 * (1 << 16) // (8 << 12)
