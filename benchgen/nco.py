@@ -287,7 +287,9 @@ def phase_path(
 
 def _check_core(nco: Nco, dp: Datapath) -> None:
     if dp.function != "sincos" or dp.angle_unit != "turns":
-        raise ValueError(f"an NCO drives a sincos core with a binary angle (turns), not {dp.function} in {dp.angle_unit}")
+        raise ValueError(
+            f"an NCO drives a sincos core with a binary angle (turns), not {dp.function} in {dp.angle_unit}"
+        )
     if dp.angle_width != nco.angle_width:
         raise ValueError(f"the core's angle_width is {dp.angle_width} but the NCO keeps {nco.angle_width} phase bits")
 

@@ -112,19 +112,26 @@ def phase_bits_for(sfdr_dbc: float | None = None, snr_db: float | None = None) -
     sfdr = _target("sfdr_dbc", sfdr_dbc)
     snr = _target("snr_db", snr_db)
     if sfdr is None and snr is None:
-        raise ConfigError("sfdr_dbc", None, "a required SFDR and/or SNR", "set sfdr_dbc = 80.0", suggestion={"sfdr_dbc": 80.0})
+        raise ConfigError(
+            "sfdr_dbc", None, "a required SFDR and/or SNR", "set sfdr_dbc = 80.0", suggestion={"sfdr_dbc": 80.0}
+        )
     big = float(1 << 40)  # an amplitude so large the core's error does not count
+
+    def meets(p: int) -> bool:
+        return (sfdr is None or sfdr_bound_db(p, big, 0.0) > sfdr) and (snr is None or snr_bound_db(p, big, 0.0) > snr)
+
     for p in range(3, MAX_SIZED_PHASE_BITS + 1):
-        if (sfdr is None or sfdr_bound_db(p, big, 0.0) > sfdr) and (snr is None or snr_bound_db(p, big, 0.0) > snr):
+        if meets(p):
             return p
-    field, value = ("sfdr_dbc", sfdr) if sfdr is not None and sfdr_bound_db(MAX_SIZED_PHASE_BITS, big, 0.0) <= sfdr else ("snr_db", snr)
-    best = math.floor(
-        (sfdr_bound_db if field == "sfdr_dbc" else snr_bound_db)(MAX_SIZED_PHASE_BITS, big, 0.0) * 10
-    ) / 10  # fmt: skip
+    top = MAX_SIZED_PHASE_BITS
+    if sfdr is not None and sfdr_bound_db(top, big, 0.0) <= sfdr:
+        field, value, limit = "sfdr_dbc", sfdr, sfdr_bound_db(top, big, 0.0)
+    else:
+        field, value, limit = "snr_db", snr, snr_bound_db(top, big, 0.0)
+    best = math.floor(limit * 10) / 10  # rounded down, so the suggestion is reachable
     raise ConfigError(
         field, value,
-        f"at most {best} dB: the sizer proves its result on a coherent record of 2**(P+1) samples, "
-        f"P <= {MAX_SIZED_PHASE_BITS}",
+        f"at most {best} dB: the sizer proves its result on a coherent record of 2**(P+1) samples, P <= {top}",
         f"set {field} = {best}", suggestion={field: best},
     )  # fmt: skip
 
@@ -206,7 +213,9 @@ def spectrum_checks(nco: Nco, dp: Datapath) -> tuple[SpectrumCheck, ...]:
         word = truncation_word(a, p, n_fft, period, odd)
         out = run(nco, dp, n_fft, freq_word=word.freq_word, phase_offset=offset)
         m = measure_tone(out.complex(), word.cycles)
-        checks.append(SpectrumCheck(label, word.freq_word, offset, n_fft, word.cycles, word.period, m.sfdr_db, m.snr_db))
+        checks.append(
+            SpectrumCheck(label, word.freq_word, offset, n_fft, word.cycles, word.period, m.sfdr_db, m.snr_db)
+        )
     return tuple(checks)
 
 

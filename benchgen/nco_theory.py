@@ -213,7 +213,8 @@ def truncation_word(acc_width: int, phase_bits: int, n_fft: int, period: int, od
     if odd % 2 == 0:
         raise ValueError(f"odd must be odd, not {odd}")
     if period < 1 or period & (period - 1) or period > 1 << (acc_width - phase_bits):
-        raise ValueError(f"period must be a power of two up to 2**(A-P) = {1 << (acc_width - phase_bits)}, not {period}")
+        top = 1 << (acc_width - phase_bits)
+        raise ValueError(f"period must be a power of two up to 2**(A-P) = {top}, not {period}")
     if period == 1:
         cycles = odd * max(1, n_fft >> phase_bits)
     else:

@@ -215,7 +215,9 @@ def measure_tone(samples: npt.ArrayLike, cycles: float, *, window: str | None = 
     else:
         carrier = int(round(cycles))
         if not lobe < carrier < n // 2 - lobe:
-            raise ValueError(f"carrier at {cycles} cycles is outside {lobe + 1} .. {n // 2 - lobe - 1} for a real record")
+            raise ValueError(
+                f"carrier at {cycles} cycles is outside {lobe + 1} .. {n // 2 - lobe - 1} for a real record"
+            )
         xw = x.astype(np.float64) * (blackman_harris_4(n) if lobe else 1.0)
         power = np.abs(np.fft.rfft(xw)) ** 2
     bins = power.size
