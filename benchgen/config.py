@@ -16,11 +16,13 @@ from typing import Any
 
 from benchgen.errors import ConfigError, show_value
 from benchgen.functions import FUNCTION_NAMES, function_named, refused_fields
-from benchgen.spec import CoreSpec
+from benchgen.spec import DEFAULT_VLNV_LIBRARY, DEFAULT_VLNV_VENDOR, CoreSpec
 
 __all__ = [
     "ANGLE_UNITS",
     "ARCHITECTURES",
+    "DEFAULT_VLNV_LIBRARY",
+    "DEFAULT_VLNV_VENDOR",
     "FUNCTIONS",
     "GAIN_MODES",
     "MAX_NAME_LENGTH",
@@ -46,6 +48,12 @@ MIN_DATA_WIDTH = 3
 MAX_WIDTH = 64
 MAX_TAG_WIDTH = 64
 MAX_ITERATIONS = 96
+# The vendor and library parts of the FuseSoC name (VLNV) of the core file every project holds
+# (benchgen/fusesoc.py). FuseSoC 2.4's own rule for each part is [A-Za-z0-9_.-]* (its vlnv.py);
+# ours also wants a letter or digit first (a leading '-' or '.' reads as an option or a hidden
+# file) and a bounded length.
+MAX_VLNV_PART = 64
+_VLNV_PART = re.compile(r"[A-Za-z0-9][A-Za-z0-9_.-]*")
 
 # IEEE 1364-2005 reserved words, plus the IEEE 1800-2017 ones, because Verilator parses
 # Verilog files as SystemVerilog by default and a module called `logic` would break there.
@@ -144,6 +152,8 @@ _FIELDS: tuple[str, ...] = (
     "gain",
     "angle_unit",
     "prenormalise",
+    "vlnv_vendor",
+    "vlnv_library",
 )
 
 
@@ -228,6 +238,26 @@ def _choice_field(raw: Mapping[str, Any], key: str, choices: tuple[str, ...]) ->
         hint = near[0] if near else choices[0]
         raise ConfigError(key, value, allowed, f'use {key} = "{hint}"', suggestion={key: hint})
     return value
+
+
+def _vlnv_field(raw: Mapping[str, Any], key: str, default: str) -> str:
+    """A part of the core's FuseSoC name; the fix offered is the value with its bad characters
+    replaced, which this check then accepts."""
+    if key not in raw:
+        return default
+    value = raw[key]
+    allowed = (
+        "letters, digits, '.', '-' and '_', starting with a letter or digit, at most "
+        f"{MAX_VLNV_PART} characters (a part of FuseSoC's vendor:library:name:version)"
+    )
+    if not isinstance(value, str):
+        raise ConfigError(
+            key, value, allowed, f'write it as a quoted string, e.g. {key} = "{default}"', suggestion={key: default}
+        )
+    if _VLNV_PART.fullmatch(value) and len(value) <= MAX_VLNV_PART:
+        return value
+    cleaned = re.sub(r"[^A-Za-z0-9_.-]+", "_", value).lstrip("_.-")[:MAX_VLNV_PART] or default
+    raise ConfigError(key, value, allowed, f'use {key} = "{cleaned}"', suggestion={key: cleaned})
 
 
 def name_problem(value: str) -> str | None:
@@ -357,6 +387,9 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
             )  # fmt: skip
         prenormalise = value
 
+    vlnv_vendor = _vlnv_field(raw, "vlnv_vendor", DEFAULT_VLNV_VENDOR)
+    vlnv_library = _vlnv_field(raw, "vlnv_library", DEFAULT_VLNV_LIBRARY)
+
     max_error = raw.get("max_error_lsb", 1.0)
     if isinstance(max_error, bool) or not isinstance(max_error, int | float):
         raise ConfigError(
@@ -439,6 +472,8 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
         gain=gain,
         angle_unit=angle_unit,
         prenormalise=prenormalise,
+        vlnv_vendor=vlnv_vendor,
+        vlnv_library=vlnv_library,
     )
 
 

@@ -8,7 +8,12 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-__all__ = ["CoreSpec"]
+__all__ = ["DEFAULT_VLNV_LIBRARY", "DEFAULT_VLNV_VENDOR", "CoreSpec"]
+
+DEFAULT_VLNV_VENDOR = "benchgen"
+"""Vendor part of a core's FuseSoC name, unless the config sets ``vlnv_vendor``."""
+DEFAULT_VLNV_LIBRARY = "cores"
+"""Library part of a core's FuseSoC name, unless the config sets ``vlnv_library``."""
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -35,6 +40,8 @@ class CoreSpec:
         prenormalise: Where the function offers it (its module lists ``prenormalise`` in its
             options): shift the inputs left by their common redundant sign bits before the
             iterations (``False`` keeps the smaller core without the normaliser).
+        vlnv_vendor: Vendor part of the core's FuseSoC name ``vendor:library:name:version``.
+        vlnv_library: Library part of that name.
     """
 
     name: str
@@ -52,3 +59,5 @@ class CoreSpec:
     gain: str = "compensated"
     angle_unit: str = "turns"
     prenormalise: bool = True
+    vlnv_vendor: str = DEFAULT_VLNV_VENDOR
+    vlnv_library: str = DEFAULT_VLNV_LIBRARY

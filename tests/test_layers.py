@@ -63,9 +63,13 @@ def _imports(path: Path) -> list[tuple[str, int]]:
             else:
                 name = node.module or ""
             out.append((name, node.lineno))
-            # from benchgen import model: the imported names are modules
+            # from benchgen import model: the imported names that are modules
             if name == "benchgen":
-                out += [(f"benchgen.{a.name}", node.lineno) for a in node.names]
+                out += [
+                    (f"benchgen.{a.name}", node.lineno)
+                    for a in node.names
+                    if (PACKAGE / f"{a.name}.py").is_file() or (PACKAGE / a.name).is_dir()
+                ]
     return out
 
 
