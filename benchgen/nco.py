@@ -286,7 +286,7 @@ def phase_path(
 
 
 def _check_core(nco: Nco, dp: Datapath) -> None:
-    if dp.function != "sincos" or dp.angle_unit != "turns":
+    if dp.function != SINCOS.name or dp.angle_unit != "turns":
         raise ValueError(
             f"an NCO drives a sincos core with a binary angle (turns), not {dp.function} in {dp.angle_unit}"
         )

@@ -51,6 +51,7 @@ from benchgen.design import Design, build_design
 from benchgen.errors import ConfigError
 from benchgen.nco import Nco, run
 from benchgen.nco_theory import truncation_word
+from benchgen.functions.sincos import FUNCTION as SINCOS
 from benchgen.functions.sincos import ideal_sincos
 from benchgen.spectrum import measure_tone
 
@@ -142,7 +143,6 @@ def core_error_max_lsb(dp: Datapath) -> float:
     ``e = (cos - a cos t) + j (sin - a sin t)`` against the exact values (float64 ideal,
     benchgen.reference); every one of the 2**P codes is evaluated.
     """
-    from benchgen.functions.sincos import FUNCTION as SINCOS
 
     worst = 0.0
     step = 1 << 16
@@ -256,7 +256,7 @@ class NcoSizing:
         dp = self.design.datapath
         return {
             "name": self.design.spec.name,
-            "function": "sincos",
+            "function": SINCOS.name,
             "architecture": self.design.spec.architecture,
             "angle_width": dp.angle_width,
             "data_width": dp.data_width,
@@ -302,7 +302,7 @@ def size_nco(
             continue
         config = {
             "name": name,
-            "function": "sincos",
+            "function": SINCOS.name,
             "architecture": architecture,
             "angle_width": p,
             "data_width": n,

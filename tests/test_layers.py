@@ -25,7 +25,7 @@ LAYERS: list[list[str]] = [
     ["design", "nco_sizing"],
     ["hardware"],
     ["rtl"],
-    ["harness", "synth"],
+    ["harness", "synth", "fusesoc"],
     ["project", "api"],
     ["bench"],
     ["sim"],
