@@ -101,6 +101,18 @@ class _Core:
         self.final_needs = self.fn.final_values(dp)
         self.tag = design.spec.tag_width > 0
         self.truncating = dp.rounding == "truncate"
+        self.b.width_name("xy", dp.xy_width)  # declared first, whatever uses it first
+
+    def angle_name(self, i: int) -> str:
+        """The name of iteration i's angle constant: atan(2^-s) in circular coordinates,
+        atanh(2^-s) in hyperbolic ones, the step 2^-s in linear ones."""
+        prefix = {"circular": "ATAN", "hyperbolic": "ATANH", "linear": "STEP"}[self.dp.coordinates]
+        return f"{prefix}_{i}"
+
+    def angle(self, i: int) -> Expr:
+        """Iteration i's angle constant (a zero where the core builds no z)."""
+        name = self.angle_name(i)
+        return self.b.p(name) if self.has_z and name in self.b.params else Const(0, self.dp.z_width)
 
     # ------------------------------------------------------------------ header and ports
 
@@ -173,14 +185,14 @@ class _Core:
     def constants(self, with_table: bool) -> None:
         dp, b = self.dp, self.b
         if dp.mode == "vectoring":
-            b.param("Y_HALF", 1 << (dp.xy_width - 1), dp.xy_width, "codes at or above this are y < 0", here=True)
+            b.param("Y_HALF", 1 << (dp.xy_width - 1), dp.xy_width, "codes at or above this are y < 0", here=True, of="xy")
         else:
-            b.param("Z_HALF", 1 << (dp.z_width - 1), dp.z_width, "codes below this are angles >= 0", here=True)
+            b.param("Z_HALF", 1 << (dp.z_width - 1), dp.z_width, "codes below this are angles >= 0", here=True, of="z")
         if with_table and self.has_z:
             b.note()
             count = dp.iterations if dp.mode == "vectoring" else dp.iterations - 1
             for i in range(count):
-                b.param(f"ATAN_{i}", dp.atan_table[i], dp.z_width, self.fn.atan_comment(dp, i), here=True)
+                b.param(self.angle_name(i), dp.atan_table[i], dp.z_width, self.fn.atan_comment(dp, i), here=True, of="z")
 
     # ------------------------------------------------------------------ iterations
 
@@ -235,11 +247,19 @@ class _Core:
             if x_out:
                 ys = b.sig(f"ys_{label}") if self.has_y else b.sig(f"xs_{label}")
         else:
+            # Each shifted value gets a wire of its own: the update reads it twice (added or
+            # subtracted), and the text stays one short line per value.
+            def shifted(name: str, value: Sig, low: int = 0) -> Expr:
+                e = sign_shift(value, step.shift, W, low)  # type: ignore[arg-type]
+                if isinstance(e, Sig):
+                    return e
+                return b.wire(f"{name}_{label}", e, f"{name[0]} >>> {step.shift}", of="xy")
+
             if y_out or (x_out and not self.has_y):
-                xs = sign_shift(x_in, step.shift, W, x_low)
+                xs = shifted("xs", x_in, x_low)
             if x_out:
                 # exp carries no y: y is x all the way
-                ys = sign_shift(y_in, step.shift, W) if self.has_y and y_in is not None else xs
+                ys = shifted("ys", y_in) if self.has_y and y_in is not None else xs
         hyperbolic = dp.coordinates == "hyperbolic"
         out = Final()
         nxt: list[Sig | None] = [None, None, None]
@@ -249,7 +269,7 @@ class _Core:
                 out.x_kept = nxt[0] = b.kept_add(x_out, x_in, t, Not(d) if hyperbolic else d, W, kept["x"])
             else:
                 new = Add(x_in, Mux(d, ys, Not(ys)), Not(d)) if hyperbolic else Add(x_in, Mux(d, Not(ys), ys), d)
-                out.x = nxt[0] = b.wire(x_out, Mux(step.active, new, x_in) if step.active is not None else new)
+                out.x = nxt[0] = b.wire(x_out, Mux(step.active, new, x_in) if step.active is not None else new, of="xy")
         if y_out:
             assert y_in is not None
             if kept["y"]:
@@ -257,7 +277,7 @@ class _Core:
                 out.y_kept = nxt[1] = b.kept_add(y_out, y_in, t, Not(d), W, kept["y"])
             else:
                 new = Add(y_in, Mux(d, xs, Not(xs)), Not(d))
-                out.y = nxt[1] = b.wire(y_out, Mux(step.active, new, y_in) if step.active is not None else new)
+                out.y = nxt[1] = b.wire(y_out, Mux(step.active, new, y_in) if step.active is not None else new, of="xy")
         if z_out:
             assert z_in is not None
             if kept["z"]:
@@ -265,7 +285,7 @@ class _Core:
                 out.z_kept = nxt[2] = b.kept_add(z_out, z_in, t, d, ZW, kept["z"])
             else:
                 new = Add(z_in, Mux(d, Not(step.atan), step.atan), d)
-                out.z = nxt[2] = b.wire(z_out, Mux(step.active, new, z_in) if step.active is not None else new)
+                out.z = nxt[2] = b.wire(z_out, Mux(step.active, new, z_in) if step.active is not None else new, of="z")
         return nxt[0], nxt[1], nxt[2], out
 
     def z_only_vectoring(self) -> bool:
@@ -371,15 +391,15 @@ class _Core:
         final = Final()
         for k, (first, end) in enumerate(bounds):
             b.note()
-            b.note(f"---- stage {k}: iterations {first} to {end - 1} ----")
+            what = f"iteration {first}" if end - first == 1 else f"iterations {first} to {end - 1}"
+            b.note(f"---- stage {k}: {what} ----")
             for i in range(first, end):
                 dst = (f"s{k}_x", f"s{k}_y", f"s{k}_z") if i == end - 1 else (f"x_{i + 1}", f"y_{i + 1}", f"z_{i + 1}")
                 # z-only vectoring: iteration n-2 reads x only shifted by s_{n-2}, so iteration
                 # n-3 forms just those bits of x (plus the carry of the rest).
                 keep_low = dp.shifts[n - 2] if z_only and not linear and i == n - 3 else 0
-                atan: Expr = b.p(f"ATAN_{i}") if self.has_z and f"ATAN_{i}" in b.params else Const(0, dp.z_width)
                 fx, fy, fz, final = self.iteration(
-                    _Step(f"{i}", i, dp.shifts[i], atan), src, dst,
+                    _Step(f"{i}", i, dp.shifts[i], self.angle(i)), src, dst,
                     final=i == n - 1, x_low=x_low, skip_x=z_only and i == n - 2, x_keep_low=keep_low,
                 )
                 if keep_low:
@@ -410,17 +430,17 @@ class _Core:
             loads: list[tuple[Sig, Expr]] = []
             new_src: list[Sig | None] = [src[0], None, None]
             if x_reg_width:
-                xr = b.known(Sig(f"s{k}_x_reg", x_reg_width))
+                xr = b.reg(f"s{k}_x_reg", x_reg_width, of="xy")
                 m.add(Reg(xr))
                 loads.append((xr, x_reg_src))  # type: ignore[arg-type]
                 new_src[0] = xr
             if self.has_y:
-                yr = b.known(Sig(f"s{k}_y_reg", W))
+                yr = b.reg(f"s{k}_y_reg", W, of="xy")
                 m.add(Reg(yr))
                 loads.append((yr, src[1]))  # type: ignore[arg-type]
                 new_src[1] = yr
             if self.has_z:
-                zr = b.known(Sig(f"s{k}_z_reg", dp.z_width))
+                zr = b.reg(f"s{k}_z_reg", dp.z_width, of="z")
                 m.add(Reg(zr))
                 loads.append((zr, src[2]))  # type: ignore[arg-type]
                 new_src[2] = zr
@@ -472,14 +492,14 @@ class _Core:
             last = b.wire("last", Cmp("==", count, Const(cycles - 1, count_width)))
         else:
             last = b.wire("last", Const(1, 1))
-        x_reg = b.known(Sig("x_reg", W))
+        x_reg = b.reg("x_reg", W, of="xy")
         m.add(Reg(x_reg))
         y_reg = z_reg = tag_reg = None
         if self.has_y:
-            y_reg = b.known(Sig("y_reg", W))
+            y_reg = b.reg("y_reg", W, of="xy")
             m.add(Reg(y_reg))
         if self.has_z:
-            z_reg = b.known(Sig("z_reg", dp.z_width))
+            z_reg = b.reg("z_reg", dp.z_width, of="z")
             m.add(Reg(z_reg))
         if self.tag:
             tag_reg = b.known(Sig("tag_reg", self.design.spec.tag_width, vector=True))
@@ -501,15 +521,14 @@ class _Core:
                 rows.append((c, dp.shifts[i] if i < end else 0, dp.atan_table[i] if i < end else 0, i < end))
             needs_active = not all(r[3] for r in rows)
             if fixed:
-                atan: Expr = b.p(f"ATAN_{j}") if self.has_z and f"ATAN_{j}" in b.params else Const(0, dp.z_width)
-                steps.append(_Step(f"j{j}", j, dp.shifts[j], atan))
+                steps.append(_Step(f"j{j}", j, dp.shifts[j], self.angle(j)))
                 continue
             assert count is not None
             b.note()
             b.note(f"shift and angle constant of iteration {j} of each clock")
             sigs = [b.known(Sig(f"shift_j{j}", shift_width))]
             if self.has_z:
-                sigs.append(b.known(Sig(f"atan_j{j}", dp.z_width)))
+                sigs.append(b.reg(f"atan_j{j}", dp.z_width, of="z"))
             if needs_active:
                 sigs.append(b.known(Sig(f"active_j{j}", 1)))
             for sig in sigs:
@@ -544,10 +563,10 @@ class _Core:
             b.note()
             if not fixed:
                 shift = b.sig(f"shift_j{j}")
-                b.wire(f"xs_j{j}", Sra(src[0], shift))
+                b.wire(f"xs_j{j}", Sra(src[0], shift), of="xy")
                 if dp.coordinates != "linear" and self.has_y:
                     assert src[1] is not None
-                    b.wire(f"ys_j{j}", Sra(src[1], shift))
+                    b.wire(f"ys_j{j}", Sra(src[1], shift), of="xy")
             fx, fy, fz, final = self.iteration(
                 step, src, dst,
                 final=fixed and j == per_cycle - 1, x_low=x_low,

@@ -99,19 +99,41 @@ class Builder:
         """A signal declared earlier, by name."""
         return self.signals[name]
 
-    def wire(self, name: str, expr: Expr, comment: str = "", *, vector: bool = False) -> Sig:
-        """Declare a wire holding ``expr`` (``vector``: declared with a range even at one bit)."""
-        sig = self.m.wire(name, expr, comment, vector=vector)
+    def width_name(self, of: str, width: int) -> str:
+        """The named width constant a value of x/y (``of="xy"``) or z (``of="z"``) is declared
+        with: XY_W or Z_W, declared in the module on first use; empty when ``width`` is not that
+        full width (a value with some low bits dropped keeps a plain range)."""
+        name, full, note = {
+            "xy": ("XY_W", self.W, f"x and y: data bits plus {self.G} guard bits"),
+            "z": ("Z_W", self.ZW, f"z: {self.dp.z_frac} fraction bits"),
+        }[of]
+        if width != full:
+            return ""
+        if all(w[0] != name for w in self.m.widths):
+            self.m.widths.append((name, full, note))
+        return name
+
+    def wire(self, name: str, expr: Expr, comment: str = "", *, vector: bool = False, of: str = "") -> Sig:
+        """Declare a wire holding ``expr`` (``vector``: declared with a range even at one bit;
+        ``of``: "xy" or "z" for a value of x/y or z, declared with its named width)."""
+        width_name = self.width_name(of, expr.width) if of else ""
+        sig = self.m.wire(name, expr, comment, width_name, vector=vector)
         self.signals[name] = sig
         return sig
+
+    def reg(self, name: str, width: int, *, vector: bool = False, of: str = "") -> Sig:
+        """A register's signal (declared by the caller with a Reg statement), with its named
+        width when it holds a value of x/y or z (``of``)."""
+        return self.known(Sig(name, width, self.width_name(of, width) if of else "", vector))
 
     def note(self, text: str = "") -> None:
         """A comment (lines split on newlines); an empty text is a blank line."""
         self.m.add(Comment(text))
 
-    def param(self, name: str, value: int, width: int, comment: str = "", *, here: bool = True) -> Param:
-        """A named constant, declared at this point of the body (or with the others)."""
-        p = self.m.param(name, value, width, comment, here=here)
+    def param(self, name: str, value: int, width: int, comment: str = "", *, here: bool = True, of: str = "") -> Param:
+        """A named constant, declared at this point of the body (or with the others); ``of``
+        as for :meth:`wire`."""
+        p = self.m.param(name, value, width, comment, here=here, width_name=self.width_name(of, width) if of else "")
         self.params[name] = p
         return p
 

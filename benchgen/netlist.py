@@ -105,6 +105,7 @@ class Param(Expr):
     value: int
     width: int
     comment: str = ""
+    width_name: str = ""
 
 
 @dataclass(frozen=True, eq=False)
@@ -501,9 +502,11 @@ class Module:
         self.body.append(Wire(sig, expr, comment))
         return sig
 
-    def param(self, name: str, value: int, width: int, comment: str = "", *, here: bool = False) -> Param:
+    def param(
+        self, name: str, value: int, width: int, comment: str = "", *, here: bool = False, width_name: str = ""
+    ) -> Param:
         """Declare a named constant (with the other constants, or ``here`` in the body)."""
-        p = Param(name, value, width, comment)
+        p = Param(name, value, width, comment, width_name)
         if here:
             self.body.append(Local(p))
         else:

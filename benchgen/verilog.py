@@ -204,7 +204,8 @@ def _row(sigs: tuple[Sig, ...], values: tuple[int, ...]) -> str:
 
 
 def _param_line(p: Param) -> str:
-    return f"{INDENT}localparam [{p.width - 1}:0] {p.name} = {literal(p.value, p.width)};{_comment(p.comment)}"
+    size = f"{p.width_name}-1" if p.width_name else f"{p.width - 1}"
+    return f"{INDENT}localparam [{size}:0] {p.name} = {literal(p.value, p.width)};{_comment(p.comment)}"
 
 
 def module_parts(module: Module) -> dict[str, object]:

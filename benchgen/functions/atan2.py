@@ -232,9 +232,9 @@ class Atan2(CircularFunction):
         x = self.hw_prescale(b, dp, "x_start", x_turned)
         y = self.hw_prescale(b, dp, "y_start", y_turned)
         if dp.radians:
-            z = b.wire("z_start", Mux(Not(neg), Const(0, ZW), Mux(in_y[B - 1], Const(-dp.pi_const, ZW), Const(dp.pi_const, ZW))))
+            z = b.wire("z_start", Mux(Not(neg), Const(0, ZW), Mux(in_y[B - 1], Const(-dp.pi_const, ZW), Const(dp.pi_const, ZW))), of="z")
         else:
-            z = b.wire("z_start", Mux(neg, Const(1 << (ZW - 1), ZW), Const(0, ZW)))
+            z = b.wire("z_start", Mux(neg, Const(1 << (ZW - 1), ZW), Const(0, ZW)), of="z")
         return Start(x, y, z, side)
 
     def hw_outputs(self, b: Builder, dp: Datapath, final: Final, side: Mapping[str, Any]) -> None:

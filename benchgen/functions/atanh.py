@@ -155,9 +155,9 @@ class Atanh(HyperbolicFunction):
         u_ext = b.wire("u_ext", Cat((in_u[B - 1], in_u)))
         u_abs = b.wire("u_abs", Mux(u_ext[B], Neg(u_ext), u_ext))
         bad = b.wire("in_bad", Cmp(">", u_abs, Const(dp.domain_limit, B + 1)))
-        x = b.wire("x_start", x0)
-        y = b.wire("y_start", Cat((Rep(W - B - G, in_u[B - 1]), in_u) + ((Const(0, G),) if G else ())))
-        z = b.wire("z_start", Const(0, ZW))
+        x = b.wire("x_start", x0, of="xy")
+        y = b.wire("y_start", Cat((Rep(W - B - G, in_u[B - 1]), in_u) + ((Const(0, G),) if G else ())), of="xy")
+        z = b.wire("z_start", Const(0, ZW), of="z")
         return Start(x, y, z, {"bad": bad})
 
     def hw_outputs(self, b: Builder, dp: Datapath, final: Final, side: Mapping[str, Any]) -> None:

@@ -297,7 +297,7 @@ class CircularFunction(Function):
             over = b.wire("fold_over", Cmp(">", theta, half_pi, signed=True))
             under = b.wire("fold_under", Cmp("<", theta, neg_half_pi, signed=True))
             fold = b.wire("in_fold", Or(over, under))
-            z = b.wire("z_start", Mux(over, Add(theta, neg_pi), Mux(under, Add(theta, pi), theta)))
+            z = b.wire("z_start", Mux(over, Add(theta, neg_pi), Mux(under, Add(theta, pi), theta)), of="z")
             return fold, z
         b.note(
             "Quadrant fold: an angle in the left half-plane (top two bits differ) is turned by half a\n"
@@ -307,7 +307,7 @@ class CircularFunction(Function):
         )
         fold = b.wire("in_fold", Xor(angle[A - 1], angle[A - 2]))
         pad = ZW - A
-        z = b.wire("z_start", b.pad(Cat((angle[A - 2], Slice(angle, A - 2, 0))), pad))
+        z = b.wire("z_start", b.pad(Cat((angle[A - 2], Slice(angle, A - 2, 0))), pad), of="z")
         return fold, z
 
     def hw_prescale(self, b: Builder, dp: CircularDatapath, name: str, src: Sig) -> Sig:
@@ -322,8 +322,8 @@ class CircularFunction(Function):
             product = b.wire(
                 f"{name}_prod", Mul(Cat((Rep(pw - B - 1, src[B]), src)), Cat((Const(0, pw - kw), Const(dp.k_const, kw))))
             )
-            return b.wire(name, b.scale_round(name, product, drop, W))
+            return b.wire(name, b.scale_round(name, product, drop, W), of="xy")
         b.note(f"{name}: the raw input at internal scale (the gain stays in the result).")
         ext = W - G - (B + 1)
         parts: list[Expr] = ([Rep(ext, src[B])] if ext > 0 else []) + [src] + ([Const(0, G)] if G else [])
-        return b.wire(name, Cat(tuple(parts)))
+        return b.wire(name, Cat(tuple(parts)), of="xy")

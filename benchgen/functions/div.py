@@ -203,9 +203,9 @@ class Div(LinearFunction):
         den_norm_abs = b.wire("den_norm_abs", Mux(neg, Neg(den_norm), den_norm))
         num_turned = b.wire("num_turned", Mux(neg, Neg(num_norm), num_norm))
         ext = W - B - 1 - G
-        x = b.wire("x_start", Cat((Rep(ext, den_norm_abs[B]), den_norm_abs) + ((Const(0, G),) if G else ())))
-        y = b.wire("y_start", Cat((Rep(ext, num_turned[B]), num_turned) + ((Const(0, G),) if G else ())))
-        z = b.wire("z_start", Const(0, ZW))
+        x = b.wire("x_start", Cat((Rep(ext, den_norm_abs[B]), den_norm_abs) + ((Const(0, G),) if G else ())), of="xy")
+        y = b.wire("y_start", Cat((Rep(ext, num_turned[B]), num_turned) + ((Const(0, G),) if G else ())), of="xy")
+        z = b.wire("z_start", Const(0, ZW), of="z")
         return Start(x, y, z, {"bad": bad})
 
     def hw_outputs(self, b: Builder, dp: Datapath, final: Final, side: Mapping[str, Any]) -> None:

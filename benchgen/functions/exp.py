@@ -254,11 +254,11 @@ class Exp(HyperbolicFunction):
         rem_neg = b.wire("rem_neg", rem[ZW - 1])
         ew = dp.exp_width
         in_q = b.wire("in_q", Add(Slice(q_first, ew - 1, 0), Cat((Const(0, ew - 1), rem_neg)), subtract=True))
-        z = b.wire("z_start", Add(rem, Mux(rem_neg, ln2, Const(0, ZW))))
+        z = b.wire("z_start", Add(rem, Mux(rem_neg, ln2, Const(0, ZW))), of="z")
         what = "1/A_n removes the gain" if dp.gain_mode == "compensated" else "1 (raw gain)"
         b.note(f"e^r by hyperbolic rotation of (x0, x0) by r: x0 = {what}.")
         x0 = b.param("X_START", dp.x_start, W)
-        x = b.wire("x_start", x0)
+        x = b.wire("x_start", x0, of="xy")
         return Start(x, None, z, {"q": in_q})
 
     def hw_outputs(self, b: Builder, dp: Datapath, final: Final, side: Mapping[str, Any]) -> None:

@@ -150,9 +150,9 @@ class Ln(HyperbolicFunction):
         lz = b.leading_zeros("in_lz", in_w, B - 1, B - 1, dp.lz_width, B - 1)
         m = b.wire("in_m", Shl(in_w, lz))
         low = (Const(0, G),) if G else ()
-        x = b.wire("x_start", Cat((Const(1, W - B - G), m) + low))
-        y = b.wire("y_start", Cat((Const(-1, W - B - G), m) + low))
-        z = b.wire("z_start", Const(0, ZW))
+        x = b.wire("x_start", Cat((Const(1, W - B - G), m) + low), of="xy")
+        y = b.wire("y_start", Cat((Const(-1, W - B - G), m) + low), of="xy")
+        z = b.wire("z_start", Const(0, ZW), of="z")
         return Start(x, y, z, {"bad": bad, "lz": lz})
 
     def hw_outputs(self, b: Builder, dp: Datapath, final: Final, side: Mapping[str, Any]) -> None:

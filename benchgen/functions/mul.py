@@ -93,9 +93,9 @@ class Mul(LinearFunction):
         W, ZW, B, G = dp.xy_width, dp.z_width, dp.data_width, dp.guard_bits
         b.note("Linear rotation: x holds a, z starts at b and is driven to 0 while y collects a b.")
         in_a, in_b = b.sig("in_a"), b.sig("in_b")
-        x = b.wire("x_start", Cat((Rep(W - B - G, in_a[B - 1]), in_a) + ((Const(0, G),) if G else ())))
-        y = b.wire("y_start", Const(0, W))
-        z = b.wire("z_start", Cat((Rep(ZW - B - G, in_b[B - 1]), in_b) + ((Const(0, G),) if G else ())))
+        x = b.wire("x_start", Cat((Rep(W - B - G, in_a[B - 1]), in_a) + ((Const(0, G),) if G else ())), of="xy")
+        y = b.wire("y_start", Const(0, W), of="xy")
+        z = b.wire("z_start", Cat((Rep(ZW - B - G, in_b[B - 1]), in_b) + ((Const(0, G),) if G else ())), of="z")
         return Start(x, y, z)
 
     def hw_outputs(self, b: Builder, dp: Datapath, final: Final, side: Mapping[str, Any]) -> None:

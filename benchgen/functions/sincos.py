@@ -181,8 +181,8 @@ class SinCos(CircularFunction):
         pos = b.param("X_START_POS", dp.x_start, W, f"amplitude{what}, {dp.guard_bits} guard bits")
         neg = b.param("X_START_NEG", -dp.x_start, W, "the same, negated (fold)")
         fold, z = self.hw_fold(b, dp)
-        x = b.wire("x_start", Mux(fold, neg, pos))
-        y = b.wire("y_start", Const(0, W))
+        x = b.wire("x_start", Mux(fold, neg, pos), of="xy")
+        y = b.wire("y_start", Const(0, W), of="xy")
         return Start(x, y, z)
 
     def hw_outputs(self, b: Builder, dp: Datapath, final: Final, side: Mapping[str, Any]) -> None:

@@ -110,11 +110,11 @@ class SinhCosh(HyperbolicFunction):
         what = "1/A_n removes the gain" if dp.gain_mode == "compensated" else "1 (raw gain)"
         b.note(f"Hyperbolic rotation of (x0, 0) by t: x0 = {what}.")
         x0 = b.param("X_START", dp.x_start, W)
-        x = b.wire("x_start", x0)
-        y = b.wire("y_start", Const(0, W))
+        x = b.wire("x_start", x0, of="xy")
+        y = b.wire("y_start", Const(0, W), of="xy")
         in_t = b.sig("in_t")
         pad = dp.z_frac - dp.in_frac
-        z = b.wire("z_start", Cat((Rep(ZW - B - pad, in_t[B - 1]), in_t, Const(0, pad))))
+        z = b.wire("z_start", Cat((Rep(ZW - B - pad, in_t[B - 1]), in_t, Const(0, pad))), of="z")
         return Start(x, y, z)
 
     def hw_outputs(self, b: Builder, dp: Datapath, final: Final, side: Mapping[str, Any]) -> None:

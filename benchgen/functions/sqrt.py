@@ -183,8 +183,8 @@ class Sqrt(HyperbolicFunction):
         else:
             wide = b.wire("m_wide", Cat((Const(0, W - B - G), m) + ((Const(0, G),) if G else ())))
         quarter = b.param("QUARTER", dp.quarter, W, "1/4" + (" times 1/A_n" if dp.k_frac else ""))
-        x = b.wire("x_start", Add(wide, quarter))
-        y = b.wire("y_start", Add(wide, quarter, subtract=True))
+        x = b.wire("x_start", Add(wide, quarter), of="xy")
+        y = b.wire("y_start", Add(wide, quarter, subtract=True), of="xy")
         return Start(x, y, None, {"zero": zero, "half": half})
 
     def hw_outputs(self, b: Builder, dp: Datapath, final: Final, side: Mapping[str, Any]) -> None:
