@@ -466,7 +466,10 @@ FIX_CASES: list[tuple[str, dict[str, Any]]] = [
     # The cases: "max_error_lsb >= inf", a budget already set, a width at its maximum.
     ("mul_no_guard", {"function": "mul", "data_width": 8, "guard_bits": 0, "max_error_lsb": 0.5}),
     ("sinhcosh_truncate", {"function": "sinhcosh", "data_width": 11, "rounding": "truncate"}),
-    ("atan2_64", {"function": "atan2", "angle_width": 64, "data_width": 64, "max_error_lsb": 0.5}),
+    # A width at its maximum: the fix lowers the width (63). The budget is a reachable one, so
+    # the fixed config is sized in seconds (at 0.5 LSB the 63-bit search takes minutes and its
+    # refusal is the budget_low case's).
+    ("atan2_64", {"function": "atan2", "angle_width": 64, "data_width": 64, "max_error_lsb": 4.0}),
 ]
 
 
