@@ -21,6 +21,7 @@ from benchgen.algorithm import MIN_Z_ONLY_ITERATIONS, Datapath, Timing, make_tim
 from benchgen.config import MAX_ITERATIONS, CoreSpec
 from benchgen.errors import ConfigError
 from benchgen.functions import (
+    CorePort,
     EXHAUSTIVE_LIMIT_BITS,
     EXHAUSTIVE_SLOW_MODEL_BITS,
     RANDOM_SIZING_SAMPLES,
@@ -28,6 +29,7 @@ from benchgen.functions import (
     WIDE_SIZING_SAMPLES,
     Inputs,
     apply_gain,
+    core_ports,
     corner_inputs,
     directed_inputs,
     enumerate_inputs,
@@ -88,6 +90,11 @@ class Design:
     def accuracy_exhaustive(self) -> bool:
         """Whether the accuracy covers every input code."""
         return self.proof.exhaustive
+
+    @property
+    def ports(self) -> tuple[CorePort, ...]:
+        """Every port of the core, in declaration order (:func:`benchgen.functions.core_ports`)."""
+        return core_ports(self.datapath, self.spec.tag_width)
 
 
 # Inputs per chunk of an exhaustive check: a few tens of MB of intermediates.

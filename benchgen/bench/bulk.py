@@ -92,7 +92,7 @@ class BulkBench:
             raise RuntimeError("benchgen.bench.bulk.bind(manifest) was not called")
         self.manifest = load_manifest(_manifest_path.parent)
         self.design: Design = design_from_manifest(self.manifest)
-        self.layout = bulk_layout(self.manifest)
+        self.layout = bulk_layout(self.design.spec.name, self.design.ports)
         self.function = BulkFunction(self.design)
         self.dut = dut
         # The run's seed as given to `benchgen sim --seed` (cocotb 2 derives RANDOM_SEED from it

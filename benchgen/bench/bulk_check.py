@@ -30,7 +30,7 @@ from benchgen.functions import (
     output_ports,
     random_inputs,
 )
-from benchgen.harness import BulkLayout, Slot
+from benchgen.harness import BulkLayout
 from benchgen.functions import evaluate as evaluate_function
 from benchgen.model import to_signed
 
@@ -61,7 +61,6 @@ __all__ = [
     "level",
     "pack",
     "parse_fault",
-    "slot_of",
     "unpack",
     "with_tags",
 ]
@@ -650,8 +649,3 @@ def unpack(layout: BulkLayout, raw: npt.NDArray[np.uint8], signed: tuple[str, ..
         else:
             out[slot.port] = v.astype(np.int64) if slot.width < 63 else v
     return out
-
-
-def slot_of(layout: BulkLayout, port: str) -> Slot:
-    """The slot of one port (input or output)."""
-    return next(s for s in (*layout.inputs, *layout.outputs) if s.port == port)

@@ -19,7 +19,6 @@ __all__ = [
     "MODES",
     "bulk_plan",
     "bulk_run_args",
-    "input_space_bits",
 ]
 
 MODES = ("auto", "per-clock", "bulk")
@@ -41,14 +40,6 @@ class BulkError(BenchgenError):
     """A bulk run that cannot be set up (bad mode, input space too large, stale project)."""
 
     exit_status = 2
-
-
-def input_space_bits(manifest: dict[str, Any]) -> int:
-    """Bits of the core's input space: the sum of its data input widths, tag excluded."""
-    ports: dict[str, int] = manifest["ports"]
-    return sum(
-        int(w) for p, w in ports.items() if p.startswith("in_") and p not in ("in_valid", "in_ready", "in_tag")
-    )
 
 
 def bulk_plan(mode: str, samples: int, exhaustive: bool) -> bool:
@@ -84,7 +75,10 @@ def bulk_run_args(
             "benchgen generate config.toml -o ."
         )
     if exhaustive:
-        bits = input_space_bits(manifest)
+        from benchgen.functions import input_space_bits
+        from benchgen.project import design_from_manifest
+
+        bits = input_space_bits(design_from_manifest(manifest).datapath)
         if bits > EXHAUSTIVE_MAX_BITS:
             raise BulkError(
                 f"--exhaustive: the core has 2^{bits} input codes, more than the 2^{EXHAUSTIVE_MAX_BITS} "
