@@ -35,7 +35,6 @@ from benchgen.functions import (
     enumerate_inputs,
     function_errors,
     evaluate,
-    function_named,
     ideal_outputs,
     input_ports,
     input_space_bits,
@@ -47,7 +46,7 @@ from benchgen.functions import (
     random_inputs,
 )
 from benchgen.model import to_signed
-from benchgen.reference import ErrorStats, error_stats
+from benchgen.reference import ErrorStats
 
 __all__ = [
     "EXHAUSTIVE_LIMIT_BITS",

@@ -95,8 +95,9 @@ class CorePort:
     doc: str = ""
 
     @property
-    def vector(self) -> bool:
-        """Whether the port is a vector even at one bit (data and tag ports are)."""
+    def payload(self) -> bool:
+        """Whether the port carries the sample itself (a data or tag port), not the clock, the
+        reset or the handshake. Payload ports are vectors even at one bit."""
         return self.role in ("data", "tag")
 
 
