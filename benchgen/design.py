@@ -18,7 +18,7 @@ import numpy as np
 import numpy.typing as npt
 
 from benchgen.algorithm import MIN_Z_ONLY_ITERATIONS, Datapath, Timing, make_timing
-from benchgen.config import MAX_ITERATIONS, CoreSpec
+from benchgen.config import MAX_ITERATIONS, MAX_PORT_WIDTH, CoreSpec
 from benchgen.errors import ConfigError
 from benchgen.functions import (
     CorePort,
@@ -59,9 +59,6 @@ __all__ = [
     "sizing_evidence",
 ]
 
-MAX_PORT_WIDTH = 64
-"""Widest data port: the bulk harness packs each port into a slot of at most 8 bytes, and its C++
-runner moves ports as 64-bit integers (benchgen/harness.py)."""
 MAX_AUTO_GUARD_BITS = 16
 
 

@@ -29,6 +29,7 @@ from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
 from benchgen import __version__
+from benchgen.config import MAX_PORT_WIDTH
 from benchgen.functions import CorePort
 from benchgen.rtl import template_environment
 
@@ -108,10 +109,9 @@ class BulkLayout:
 
 
 def _slot_bytes(width: int) -> int:
-    for size in (1, 2, 4, 8):
-        if width <= 8 * size:
-            return size
-    raise ValueError(f"port of {width} bits is wider than the 64 bits a slot holds")
+    if width > MAX_PORT_WIDTH:
+        raise ValueError(f"port of {width} bits is wider than the {MAX_PORT_WIDTH} bits a slot holds")
+    return next(size for size in (1, 2, 4, 8) if width <= 8 * size)
 
 
 def _slots(ports: list[CorePort]) -> tuple[tuple[Slot, ...], int]:

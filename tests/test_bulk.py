@@ -655,3 +655,13 @@ def test_a_bulk_run_streams_every_sample_to_the_csv(sincos12: Path, tmp_path: Pa
     # The core is right, so every row's outputs are the model's, within a LSB of the ideal.
     np.testing.assert_array_equal(values[:, 1:3], values[:, 3:5])
     assert np.max(np.abs(values[:, 1:3] - values[:, 5:7])) < 1.0
+
+
+def test_a_port_wider_than_a_slot_is_refused() -> None:
+    """A slot holds at most the widest port a core may have (config.MAX_PORT_WIDTH)."""
+    from benchgen.config import MAX_PORT_WIDTH
+
+    wide = CorePort("in_x", MAX_PORT_WIDTH + 1, "in", "data")
+    with pytest.raises(ValueError, match=f"{MAX_PORT_WIDTH + 1} bits is wider than the {MAX_PORT_WIDTH} bits"):
+        bulk_layout("c", (*PORTS, wide))
+    assert bulk_layout("c", (*PORTS, CorePort("in_x", MAX_PORT_WIDTH, "in", "data"))).inputs[1].nbytes == 8

@@ -34,9 +34,7 @@ from cocotb.triggers import Timer, ValueChange
 
 from benchgen.bench.bulk_check import (
     DEFAULT_SAMPLES,
-    EXHAUSTIVE_MAX_BITS,
     FAULT_ENV,
-    SAMPLES_ENV,
     Block,
     BulkFunction,
     Inputs,
@@ -56,7 +54,8 @@ from benchgen.bench.bulk_check import (
     unpack,
     with_tags,
 )
-from benchgen.bench.scoreboard import CSV_ENV, CheckResult, record
+from benchgen.bench.bulk_plan import EXHAUSTIVE_MAX_BITS
+from benchgen.bench.scoreboard import CSV_ENV, SAMPLES_ENV, CheckResult, record
 from benchgen.design import Design
 from benchgen.harness import bulk_layout
 from benchgen.project import design_from_manifest, load_manifest

@@ -36,12 +36,10 @@ from benchgen.model import to_signed
 
 __all__ = [
     "DEFAULT_SAMPLES",
-    "EXHAUSTIVE_MAX_BITS",
     "EXHAUSTIVE_MIN_CHUNK",
     "FAULT_ENV",
     "FIRST_COUNT_PROBLEMS",
     "GAP_PATTERNS",
-    "SAMPLES_ENV",
     "TABLE_MAX_BITS",
     "WORST_SAMPLES",
     "Block",
@@ -65,10 +63,8 @@ __all__ = [
     "with_tags",
 ]
 
-SAMPLES_ENV = "BENCHGEN_SAMPLES"
 FAULT_ENV = "BENCHGEN_BULK_FAULT"
 DEFAULT_SAMPLES = 1_000_000
-EXHAUSTIVE_MAX_BITS = 24
 TABLE_MAX_BITS = 20
 """Input spaces up to this many bits get the model and the ideal tabulated once per run: a lookup
 per sample then replaces the model's per-sample arithmetic, with the same bit-true answers."""

@@ -36,7 +36,6 @@ import numpy as np
 
 from benchgen import __version__
 from benchgen.bench.bulk_check import (
-    EXHAUSTIVE_MAX_BITS,
     FAULT_ENV,
     Block,
     BulkFunction,
@@ -58,7 +57,7 @@ from benchgen.bench.bulk_check import (
     unpack,
     with_tags,
 )
-from benchgen.bench.bulk_plan import BulkError
+from benchgen.bench.bulk_plan import BulkError, check_exhaustive
 from benchgen.bench.scoreboard import CheckResult
 from benchgen.design import Design
 from benchgen.harness import (
@@ -388,11 +387,8 @@ def run_native(
         raise BulkError(str(exc)) from None
     bench = _NativeBench(design, layout, seed, fault, log_file, csv)
     fn = bench.function
-    if exhaustive and fn.space_bits > EXHAUSTIVE_MAX_BITS:
-        raise BulkError(
-            f"--exhaustive: the core has 2^{fn.space_bits} input codes, more than the 2^{EXHAUSTIVE_MAX_BITS} "
-            "an exhaustive run covers; use --samples N for a random run instead"
-        )
+    if exhaustive:
+        check_exhaustive(fn.space_bits)
     build = build_native(project, manifest, layout, info, build_dir)
     run = NativeRun(build=build)
     if exhaustive:

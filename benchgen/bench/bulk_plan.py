@@ -19,6 +19,7 @@ __all__ = [
     "MODES",
     "bulk_plan",
     "bulk_run_args",
+    "check_exhaustive",
 ]
 
 MODES = ("auto", "per-clock", "bulk")
@@ -40,6 +41,19 @@ class BulkError(BenchgenError):
     """A bulk run that cannot be set up (bad mode, input space too large, stale project)."""
 
     exit_status = 2
+
+
+def check_exhaustive(bits: int) -> None:
+    """Refuse an exhaustive run of an input space of ``2**bits`` codes beyond the limit.
+
+    Raises:
+        BulkError: if ``bits`` exceeds :data:`EXHAUSTIVE_MAX_BITS`.
+    """
+    if bits > EXHAUSTIVE_MAX_BITS:
+        raise BulkError(
+            f"--exhaustive: the core has 2^{bits} input codes, more than the 2^{EXHAUSTIVE_MAX_BITS} "
+            "an exhaustive run covers; use --samples N for a random run instead"
+        )
 
 
 def bulk_plan(mode: str, samples: int, exhaustive: bool) -> bool:
@@ -78,12 +92,7 @@ def bulk_run_args(
         from benchgen.functions import input_space_bits
         from benchgen.project import design_from_manifest
 
-        bits = input_space_bits(design_from_manifest(manifest).datapath)
-        if bits > EXHAUSTIVE_MAX_BITS:
-            raise BulkError(
-                f"--exhaustive: the core has 2^{bits} input codes, more than the 2^{EXHAUSTIVE_MAX_BITS} "
-                "an exhaustive run covers; use --samples N for a random run instead"
-            )
+        check_exhaustive(input_space_bits(design_from_manifest(manifest).datapath))
     sources = [project / rel for rel in manifest["files"]["rtl"]] + [harness]
     build_args = list(_VERILATOR_ARGS) if simulator == "verilator" else []
     tests = ["test_bulk_exhaustive"] if exhaustive else ["test_bulk_full_rate", "test_bulk_gaps_and_stalls"]

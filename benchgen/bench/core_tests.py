@@ -19,7 +19,7 @@ import numpy as np
 import numpy.typing as npt
 from cocotb.clock import Clock
 
-from benchgen.bench.scoreboard import CheckResult, compare, record, write_csv_rows
+from benchgen.bench.scoreboard import SAMPLES_ENV, CheckResult, compare, record, write_csv_rows
 from benchgen.bench.stream import Capture, StreamBench
 from benchgen.design import Design
 from benchgen.functions import bench_corners, function_errors, ideal_outputs, random_inputs
@@ -34,7 +34,6 @@ __all__ = [
     "test_reset_mid_stream",
 ]
 
-SAMPLES_ENV = "BENCHGEN_SAMPLES"
 DEFAULT_SAMPLES = 20_000
 CLOCK_NS = 10
 
