@@ -151,8 +151,9 @@ def prepare(core: CoreDef, work: Path) -> Prepared:
     rtl = [folder / "project" / f for f in manifest["files"]["rtl"]]
     describe = (f"{derived['iterations']} it., {derived['guard_bits']} guard, "
                 f"{manifest['config'].get('rounding', 'half_even')}, xy {derived['xy_width']} / z {derived['z_width']} bits")
-    return Prepared(core, rtl, manifest["toplevel"], manifest["error_budget"]["model_max_error_lsb"], derived["latency_cycles"],
-                    derived["cycles_per_sample"], describe, design_from_manifest(manifest).ports)
+    return Prepared(core, rtl, manifest["toplevel"], manifest["error_budget"]["model_max_error_lsb"],
+                    derived["latency_cycles"], derived["cycles_per_sample"], describe,
+                    design_from_manifest(manifest).ports)
 
 
 def measure(p: Prepared, target: str, seeds: list[int], clock_mhz: float, work: Path,

@@ -12,7 +12,8 @@ from benchgen.hardware import build_core
 from benchgen.project import manifest_for
 
 # Small cores, so sizing each one takes a moment.
-SMALL = {"sincos": 8, "rotate": 6, "atan2": 7, "mul": 7, "div": 7, "sinhcosh": 9, "exp": 9, "atanh": 9, "ln": 9, "sqrt": 9}
+SMALL = {"sincos": 8, "rotate": 6, "atan2": 7, "mul": 7, "div": 7,
+         "sinhcosh": 9, "exp": 9, "atanh": 9, "ln": 9, "sqrt": 9}
 
 
 @pytest.mark.parametrize("tag_width", [0, 3])
