@@ -195,11 +195,6 @@ class Datapath:
     out_frac: int = 0
 
     @property
-    def output_max(self) -> int:
-        """Largest data output magnitude; outputs saturate symmetrically to +-output_max."""
-        return self.out_max
-
-    @property
     def radians(self) -> bool:
         """Whether angles are in radians (else turns)."""
         return self.angle_unit == "radians"

@@ -26,6 +26,7 @@ __all__ = [
     "FUNCTIONS",
     "GAIN_MODES",
     "MAX_NAME_LENGTH",
+    "MAX_PORT_WIDTH",
     "MAX_WIDTH",
     "ROUNDING_MODES",
     "CoreSpec",
@@ -45,8 +46,12 @@ ARCHITECTURES = ("pipelined", "iterative")
 ROUNDING_MODES = ("truncate", "half_up", "half_even")
 MIN_ANGLE_WIDTH = 3
 MIN_DATA_WIDTH = 3
-MAX_WIDTH = 64
-MAX_TAG_WIDTH = 64
+MAX_PORT_WIDTH = 64
+"""Widest port of a core: the bulk harness packs each port into a slot of at most 8 bytes, and its
+C++ runner moves ports as 64-bit integers (benchgen/harness.py)."""
+MAX_WIDTH = MAX_PORT_WIDTH
+"""Widest ``data_width`` and ``angle_width``: each is the width of a port."""
+MAX_TAG_WIDTH = MAX_PORT_WIDTH
 MAX_ITERATIONS = 96
 # The vendor and library parts of the FuseSoC name (VLNV) of the core file every project holds
 # (benchgen/fusesoc.py). FuseSoC 2.4's own rule for each part is [A-Za-z0-9_.-]* (its vlnv.py);

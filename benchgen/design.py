@@ -18,9 +18,10 @@ import numpy as np
 import numpy.typing as npt
 
 from benchgen.algorithm import MIN_Z_ONLY_ITERATIONS, Datapath, Timing, make_timing
-from benchgen.config import MAX_ITERATIONS, CoreSpec
+from benchgen.config import MAX_ITERATIONS, MAX_PORT_WIDTH, CoreSpec
 from benchgen.errors import ConfigError
 from benchgen.functions import (
+    CorePort,
     EXHAUSTIVE_LIMIT_BITS,
     EXHAUSTIVE_SLOW_MODEL_BITS,
     RANDOM_SIZING_SAMPLES,
@@ -28,12 +29,12 @@ from benchgen.functions import (
     WIDE_SIZING_SAMPLES,
     Inputs,
     apply_gain,
+    core_ports,
     corner_inputs,
     directed_inputs,
     enumerate_inputs,
     function_errors,
     evaluate,
-    function_named,
     ideal_outputs,
     input_ports,
     input_space_bits,
@@ -45,7 +46,7 @@ from benchgen.functions import (
     random_inputs,
 )
 from benchgen.model import to_signed
-from benchgen.reference import ErrorStats, error_stats
+from benchgen.reference import ErrorStats
 
 __all__ = [
     "EXHAUSTIVE_LIMIT_BITS",
@@ -58,9 +59,6 @@ __all__ = [
     "sizing_evidence",
 ]
 
-MAX_PORT_WIDTH = 64
-"""Widest data port: the bulk harness packs each port into a slot of at most 8 bytes, and its C++
-runner moves ports as 64-bit integers (benchgen/harness.py)."""
 MAX_AUTO_GUARD_BITS = 16
 
 
@@ -88,6 +86,11 @@ class Design:
     def accuracy_exhaustive(self) -> bool:
         """Whether the accuracy covers every input code."""
         return self.proof.exhaustive
+
+    @property
+    def ports(self) -> tuple[CorePort, ...]:
+        """Every port of the core, in declaration order (:func:`benchgen.functions.core_ports`)."""
+        return core_ports(self.datapath, self.spec.tag_width)
 
 
 # Inputs per chunk of an exhaustive check: a few tens of MB of intermediates.

@@ -241,16 +241,19 @@ def iterate_wrapping(dp: Datapath, x: IntArray, y: IntArray, z: IntArray, dtype:
 
 
 def as_ints(values: npt.ArrayLike, width: int, dtype: Any) -> IntArray:
-    """Input codes as int64, or as Python integers for an object-dtype model."""
+    """What a ``width``-bit input port takes of the values: their low ``width`` bits, as
+    unsigned codes (int64, or Python integers for an object-dtype model); :func:`to_signed`
+    reads them as two's complement."""
     raw = np.asarray(values)
     if dtype == object or raw.dtype == object:
-        return np.array([int(v) for v in raw.ravel()], dtype=object).reshape(raw.shape)
-    return raw.astype(np.int64)
+        ints = np.array([int(v) for v in raw.ravel()], dtype=object).reshape(raw.shape)
+        return ints & ((1 << width) - 1)
+    return raw.astype(np.int64) & np.int64((1 << width) - 1)
 
 
 def unsigned(values: npt.ArrayLike, width: int, dtype: Any) -> IntArray:
-    """Unsigned ``width``-bit codes."""
-    return as_ints(values, width, dtype) & ((1 << width) - 1)
+    """Unsigned ``width``-bit codes (:func:`as_ints`)."""
+    return as_ints(values, width, dtype)
 
 
 def leading_zeros(codes: IntArray, width: int) -> IntArray:

@@ -38,7 +38,7 @@ from benchgen.algorithm import make_timing
 from benchgen.design import Design, Proof, build_design
 from benchgen.reference import ErrorStats
 from benchgen.errors import BenchgenError, ConfigError
-from benchgen.functions import function_of, input_ports, make_datapath, output_ports
+from benchgen.functions import function_of, make_datapath
 from benchgen.fusesoc import core_file_name, render_core_file, vlnv
 from benchgen.harness import bulk_project_files
 from benchgen.rtl import check_module_name, render_core
@@ -85,20 +85,16 @@ class ProjectError(BenchgenError):
 def manifest_for(design: Design) -> dict[str, Any]:
     """Every derived number of a design, as JSON-ready values."""
     spec, dp, timing = design.spec, design.datapath, design.timing
-    ins, outs = input_ports(dp), output_ports(dp)
-    ports: dict[str, Any] = {"clk": 1, "rst": 1, "in_valid": 1, "in_ready": 1, "out_valid": 1, "out_ready": 1}
-    ports.update({p.name: p.width for p in ins + outs})
-    if spec.tag_width:
-        ports["in_tag"] = spec.tag_width
-        ports["out_tag"] = spec.tag_width
+    ports = design.ports
+    data = [p for p in ports if p.role == "data"]
     return {
         "benchgen_version": __version__,
         "toplevel": spec.name,
         "function": spec.function,
         "config": spec_to_dict(spec),
-        "ports": ports,
-        "formats": {p.name: p.doc for p in ins + outs},
-        "signed_outputs": [p.name for p in outs if p.signed],
+        "ports": {p.name: p.width for p in ports},
+        "formats": {p.name: p.doc for p in data},
+        "signed_outputs": [p.name for p in data if p.direction == "out" and p.signed],
         "derived": {
             "iterations": dp.iterations,
             "guard_bits": dp.guard_bits,
@@ -151,7 +147,7 @@ def _readme(design: Design, manifest: dict[str, Any]) -> str:
         else f"iterative, {d['iterations_per_cycle']} iteration(s) per clock"
     )
     what = function_of(dp).describe(dp)
-    ports = "\n".join(f"| `{p.name}` | {p.doc} |" for p in input_ports(dp) + output_ports(dp))
+    ports = "\n".join(f"| `{p.name}` | {p.doc} |" for p in design.ports if p.role == "data")
     return f"""# {spec.name}
 
 {what}, {arch}.
@@ -232,7 +228,7 @@ def render_project(design: Design, config_text: str) -> dict[str, str]:
         f"bench/test_{name}.py": _test_module(design),
         core_file_name(design.spec): render_core_file(design, manifest["files"]["rtl"]),
         # The bulk harness wraps the unchanged core for volume runs (benchgen.harness).
-        **bulk_project_files(manifest),
+        **bulk_project_files(design),
     }
     manifest["files"]["generated"] = sorted([*files, MANIFEST_NAME])
     files[MANIFEST_NAME] = json.dumps(manifest, indent=2, sort_keys=True) + "\n"

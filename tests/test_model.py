@@ -151,3 +151,15 @@ def test_fast_path_equals_the_wrapping_path(
     x_fast, y_fast, _ = iterate(dp, x, y, z, np.int64)
     x_slow, y_slow, _ = iterate_wrapping(dp, x, y, z, np.int64)
     assert np.array_equal(x_slow, x_fast) and np.array_equal(y_slow, y_fast)
+
+
+def test_input_codes_keep_only_the_ports_width() -> None:
+    """A port takes the low bits of what it is given, as the hardware does: the model's input
+    step honours the port width on both number paths (it used to ignore it)."""
+    from benchgen.model import as_ints, to_signed
+
+    fast = as_ints(np.array([-1, 16, 5, -8, 23]), 4, np.int64)
+    assert fast.dtype == np.int64 and fast.tolist() == [15, 0, 5, 8, 7]
+    assert to_signed(fast, 4).tolist() == [-1, 0, 5, -8, 7]
+    wide = as_ints(np.array([-1, 1 << 70, 3], dtype=object), 70, object)
+    assert wide.tolist() == [(1 << 70) - 1, 0, 3]

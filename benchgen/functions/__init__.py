@@ -16,7 +16,7 @@ import numpy.typing as npt
 
 from benchgen.algorithm import Datapath
 from benchgen.functions import atan2, atanh, div, exp, ln, mul, rotate, sincos, sinhcosh, sqrt
-from benchgen.functions.base import Function, Inputs, Outputs, Port, uniform
+from benchgen.functions.base import CorePort, Function, Inputs, Outputs, Port, uniform
 from benchgen.model import to_signed
 from benchgen.reference import ErrorStats, error_stats
 from benchgen.spec import CoreSpec
@@ -28,6 +28,7 @@ __all__ = [
     "FUNCTION_NAMES",
     "RANDOM_SIZING_SAMPLES",
     "WIDE_SIZING_SAMPLES",
+    "CorePort",
     "Function",
     "Inputs",
     "Outputs",
@@ -35,6 +36,7 @@ __all__ = [
     "apply_gain",
     "bench_corners",
     "corner_inputs",
+    "core_ports",
     "directed_inputs",
     "enumerate_inputs",
     "evaluate",
@@ -130,6 +132,33 @@ def input_ports(dp: Datapath) -> tuple[Port, ...]:
 def output_ports(dp: Datapath) -> tuple[Port, ...]:
     """Data outputs, in port order."""
     return function_of(dp).output_ports(dp)
+
+
+def core_ports(dp: Datapath, tag_width: int) -> tuple[CorePort, ...]:
+    """Every port of the core, in the order its module declares them.
+
+    The function's data ports (:func:`input_ports`, :func:`output_ports`) with the ports the
+    hardware adds around them: clock, reset, each stream's valid and ready, and the tag that
+    travels with each sample when ``tag_width`` is not 0.
+    """
+
+    def data(ports: tuple[Port, ...], direction: str) -> list[CorePort]:
+        return [CorePort(p.name, p.width, direction, "data", p.signed, p.doc) for p in ports]
+
+    tag_in = [CorePort("in_tag", tag_width, "in", "tag")] if tag_width else []
+    tag_out = [CorePort("out_tag", tag_width, "out", "tag")] if tag_width else []
+    return (
+        CorePort("clk", 1, "in", "clock"),
+        CorePort("rst", 1, "in", "reset"),
+        CorePort("in_valid", 1, "in", "handshake"),
+        CorePort("in_ready", 1, "out", "handshake"),
+        *data(input_ports(dp), "in"),
+        *tag_in,
+        CorePort("out_valid", 1, "out", "handshake"),
+        CorePort("out_ready", 1, "in", "handshake"),
+        *data(output_ports(dp), "out"),
+        *tag_out,
+    )
 
 
 def evaluate(dp: Datapath, inputs: Mapping[str, npt.ArrayLike]) -> Outputs:

@@ -29,6 +29,7 @@ if TYPE_CHECKING:
 
 __all__ = [
     "IDEAL_DPS",
+    "CorePort",
     "Function",
     "Inputs",
     "Outputs",
@@ -66,6 +67,38 @@ class Port:
     width: int
     signed: bool
     doc: str
+
+
+@dataclass(frozen=True)
+class CorePort:
+    """A port of a core's module: the one description of its interface.
+
+    The data ports are the function's (:class:`Port`, whose format they carry); clock, reset,
+    handshake and tag are the ones every core has (:func:`benchgen.functions.core_ports`). The
+    manifest's ``ports``, the hardware's port list, the bulk harness's word layout and the
+    estimate flow's port-register wrapper are all read from it.
+
+    Attributes:
+        name: Port name.
+        width: Bits.
+        direction: ``in`` or ``out``.
+        role: ``clock``, ``reset``, ``handshake``, ``data`` (the function's) or ``tag``.
+        signed: Read as two's complement (data ports only).
+        doc: The data port's format, for headers and manifests (empty for the others).
+    """
+
+    name: str
+    width: int
+    direction: str
+    role: str
+    signed: bool = False
+    doc: str = ""
+
+    @property
+    def payload(self) -> bool:
+        """Whether the port carries the sample itself (a data or tag port), not the clock, the
+        reset or the handshake. Payload ports are vectors even at one bit."""
+        return self.role in ("data", "tag")
 
 
 def fixed_doc(width: int, frac: int, signed: bool) -> str:
