@@ -12,9 +12,9 @@ from pathlib import Path
 import pytest
 
 from benchgen.report import collect, pareto_front, to_table
-from benchgen.sweep import run_sweep
+from benchgen.sweep_cli import FORMATS
 from benchgen.sweep_config import parse_sweep
-from tests.test_sweep import fake_runner, sweep_raw
+from tests.test_sweep import fake_runner, run_and_report, sweep_raw
 
 PNG_MAGIC = b"\x89PNG\r\n\x1a\n"
 
@@ -48,7 +48,7 @@ class _Page(HTMLParser):
 def sweep_dir(tmp_path_factory: pytest.TempPathFactory) -> Path:
     out = tmp_path_factory.mktemp("report") / "out"
     spec = parse_sweep(sweep_raw(synth={"targets": ["ice40"]}))
-    run_sweep(spec, out, jobs=1, runner=fake_runner, use_cache=False)
+    run_and_report(spec, out, jobs=1, runner=fake_runner, use_cache=False, formats=FORMATS)
     return out
 
 
@@ -135,9 +135,9 @@ def test_merge_of_shards_equals_the_whole(tmp_path: Path) -> None:
 
     spec = parse_sweep(sweep_raw())
     whole = tmp_path / "whole"
-    run_sweep(spec, whole, jobs=1, runner=fake_runner, use_cache=False, formats=("csv", "junit"))
+    run_and_report(spec, whole, jobs=1, runner=fake_runner, use_cache=False, formats=("csv", "junit"))
     for i in (1, 2):
-        run_sweep(spec, tmp_path / f"s{i}", jobs=1, runner=fake_runner, use_cache=False, shard=(i, 2),
+        run_and_report(spec, tmp_path / f"s{i}", jobs=1, runner=fake_runner, use_cache=False, shard=(i, 2),
                   formats=("csv",))
     part = (tmp_path / "s1" / "report.csv").read_text().splitlines()
     assert 1 < len(part) < len((whole / "report.csv").read_text().splitlines())
@@ -156,7 +156,7 @@ def test_ecp5_mux_cells_stand_beside_its_luts(tmp_path: Path) -> None:
     raw = sweep_raw(synth={"targets": ["ice40", "ecp5"]})
     raw["matrix"] = {"pipeline_depth": [1, 2]}
     out = tmp_path / "out"
-    run_sweep(parse_sweep(raw), out, jobs=1, runner=fake_runner, use_cache=False, formats=("json",))
+    run_and_report(parse_sweep(raw), out, jobs=1, runner=fake_runner, use_cache=False, formats=("json",))
     data = collect(out)
     header = to_markdown(data).split("## Points", 1)[1].strip().splitlines()[0]
     cols = [c.strip() for c in header.strip("|").split("|")]
