@@ -168,3 +168,81 @@ def test_ecp5_mux_cells_stand_beside_its_luts(tmp_path: Path) -> None:
     assert [r["ecp5_mux"] for r in rows] == ["7"] * len(rows)
     assert [r["ice40_mux"] for r in rows] == ["0"] * len(rows)
     assert "ecp5 mux" in to_table(data).splitlines()[0]
+
+
+def _report_files(folder: Path) -> dict[str, bytes]:
+    names = ["report.json", "report.csv", "report.md", "report.html", "junit.xml"]
+    files = {n: (folder / n).read_bytes() for n in names if (folder / n).is_file()}
+    files.update({f"plots/{p.name}": p.read_bytes() for p in sorted((folder / "plots").glob("*.png"))})
+    return files
+
+
+def test_report_runs_nothing(sweep_dir: Path, tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    """Rendering reads records only: with sizing, the model and the spectrum unusable, every
+    file comes out the same (the sweep measured the model once, into model_analysis.json)."""
+    import shutil
+
+    import benchgen.config
+    import benchgen.design
+    import benchgen.functions
+    import benchgen.spectrum
+    from benchgen.report import write_reports
+
+    def refuse(*args: object, **kwargs: object) -> None:
+        raise AssertionError("the report ran a computation")
+
+    for module, name in ((benchgen.config, "parse_config"), (benchgen.design, "build_design"),
+                         (benchgen.functions, "make_datapath"), (benchgen.functions, "measure"),
+                         (benchgen.functions, "function_named"), (benchgen.spectrum, "analyse_tone")):
+        monkeypatch.setattr(module, name, refuse)
+    copy = tmp_path / "copy"
+    shutil.copytree(sweep_dir, copy)
+    write_reports(copy, formats=FORMATS)
+    assert _report_files(copy) == _report_files(sweep_dir)
+
+
+def test_the_sweep_writes_no_report_and_its_report_is_a_function_of_the_records(tmp_path: Path) -> None:
+    """The sweep leaves the report to its caller; what ``benchgen sweep`` writes, ``report render``
+    rebuilds byte for byte from the records (no wall time or run count in any file)."""
+    from benchgen.cli import main
+    from benchgen.sweep import run_sweep
+
+    spec = parse_sweep(sweep_raw(matrix={"pipeline_depth": [1, 2]}))
+    bare = run_sweep(spec, tmp_path / "bare", jobs=1, runner=fake_runner, use_cache=False)
+    assert bare.exit_status == 0
+    assert not list((tmp_path / "bare").glob("report.*")) and (tmp_path / "bare" / "model_analysis.json").is_file()
+    out = tmp_path / "out"
+    run_and_report(spec, out, jobs=1, runner=fake_runner, use_cache=False, formats=FORMATS)
+    first = _report_files(out)
+    assert "report.json" in first and "report.html" in first
+    assert main(["report", "render", str(out), "--formats", ",".join(FORMATS)]) == 0
+    assert _report_files(out) == first
+
+
+def test_a_folder_without_the_model_analysis_is_refused_in_one_line(sweep_dir: Path, tmp_path: Path,
+                                                                    capsys: pytest.CaptureFixture[str]) -> None:
+    """A folder an older benchgen wrote has no model_analysis.json: the report says to re-run."""
+    import shutil
+
+    from benchgen.cli import main
+
+    old = tmp_path / "old"
+    shutil.copytree(sweep_dir, old)
+    (old / "model_analysis.json").unlink()
+    assert main(["report", "render", str(old), "--formats", "csv"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1
+    assert "model_analysis.json" in err and "run the same 'benchgen sweep' command into it again" in err
+    (old / "model_analysis.json").write_text('{"digest": "x", "error_grids": [], "tones": [{}]}')
+    assert main(["report", "render", str(old), "--formats", "csv"]) == 2
+    assert "tones.0" in capsys.readouterr().err
+
+
+def test_tones_show_only_data_paths_a_simulation_verified(sweep_dir: Path) -> None:
+    """A tone's RTL must have passed a simulation before the report shows its quality."""
+    from dataclasses import replace
+
+    data = collect(sweep_dir)
+    assert data.tones and data.verified_tones() == data.tones
+    failed = [dict(r, status="failed") for r in data.rows]
+    assert replace(data, rows=failed).verified_tones() == []
