@@ -22,7 +22,6 @@ from benchgen.sweep import (
     load_results,
     make_tasks,
     parse_shard,
-    run_sweep,
     select_shard,
 )
 from benchgen.sweep_cli import sweep_and_report
