@@ -246,3 +246,18 @@ def test_tones_show_only_data_paths_a_simulation_verified(sweep_dir: Path) -> No
     assert data.tones and data.verified_tones() == data.tones
     failed = [dict(r, status="failed") for r in data.rows]
     assert replace(data, rows=failed).verified_tones() == []
+
+
+def test_error_grid_stops_each_curve_at_the_widest_core_it_can_build() -> None:
+    """The grid reaches past the sweep's iterations; where that passes the internal width the
+    curve ends there (the report's own grid once sized its inputs at the largest iterations and
+    guard bits and failed, so a 12-bit, 20-iteration, 7-guard-bit sweep got no report)."""
+    from benchgen.sweep_analysis import analyse_models
+
+    core = {"name": "t", "function": "sincos", "angle_width": 10, "data_width": 8, "iterations": 13,
+            "guard_bits": 4, "max_error_lsb": 1.5}
+    (grid,) = analyse_models([("c", core)])["error_grids"]
+    ends = {c["guard_bits"]: c["iterations"][-1] for c in grid["curves"]}
+    # The internal width is data_width + guard_bits + 1: no more iterations than that.
+    assert ends == {0: 9, 2: 11, 4: 13}
+    assert grid["core_ids"] == ["c"] and grid["budget_lsb"] == 1.5
