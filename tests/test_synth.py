@@ -10,7 +10,7 @@ from typing import Any
 
 import pytest
 
-from benchgen.sweep import _design_summary, _generate_point_project
+from benchgen.sweep import _generate_point_project
 from benchgen.synth import SynthError, core_ports, estimate, io_wrapper
 
 
@@ -38,8 +38,7 @@ def small_core(depth: int) -> dict[str, Any]:
 def test_ice40_estimate_of_a_small_pipelined_core(tmp_path: Path) -> None:
     require_yowasp()
     depth = 4
-    project = _generate_point_project(small_core(depth), tmp_path / "p")
-    design = _design_summary(project)
+    project, design = _generate_point_project(small_core(depth), tmp_path / "p")
     est = estimate([project / r for r in design["rtl"]], design["toplevel"], "ice40", tmp_path / "syn",
                    place_and_route=True, clock_mhz=50)
     assert est.luts > 0 and est.carry > 0
@@ -67,8 +66,7 @@ def test_single_stage_core_is_timed_from_its_ports(tmp_path: Path) -> None:
     require_yowasp()
     fmax = {}
     for depth in (1, 4):
-        project = _generate_point_project(small_core(depth), tmp_path / f"p{depth}")
-        design = _design_summary(project)
+        project, design = _generate_point_project(small_core(depth), tmp_path / f"p{depth}")
         est = estimate([project / r for r in design["rtl"]], design["toplevel"], "ice40", tmp_path / f"syn{depth}",
                        place_and_route=True, clock_mhz=50)
         assert est.fmax_mhz is not None
@@ -127,8 +125,7 @@ def test_an_estimate_cached_before_the_mux_count_is_made_again() -> None:
 
 def test_wrapper_registers_every_port(tmp_path: Path) -> None:
     """The generated wrapper puts one flip-flop stage between each port and the core (no tools)."""
-    project = _generate_point_project(small_core(1), tmp_path / "p")
-    design = _design_summary(project)
+    project, design = _generate_point_project(small_core(1), tmp_path / "p")
     top = design["toplevel"]
     core_text = (project / design["rtl"][0]).read_text()
     wrapper, text, ffs = io_wrapper(core_text, top)
