@@ -10,8 +10,8 @@ from typing import Any
 
 import pytest
 
-from benchgen.sweep import _design_summary, _generate_point_project
 from benchgen.project import design_from_manifest, load_manifest
+from benchgen.sweep import _generate_point_project
 from benchgen.synth import SynthError, estimate, io_wrapper, read_ports
 
 
@@ -39,8 +39,7 @@ def small_core(depth: int) -> dict[str, Any]:
 def test_ice40_estimate_of_a_small_pipelined_core(tmp_path: Path) -> None:
     require_yowasp()
     depth = 4
-    project = _generate_point_project(small_core(depth), tmp_path / "p")
-    design = _design_summary(project)
+    project, design = _generate_point_project(small_core(depth), tmp_path / "p")
     ports = design_from_manifest(load_manifest(project)).ports
     est = estimate([project / r for r in design["rtl"]], design["toplevel"], "ice40", tmp_path / "syn",
                    ports=ports, place_and_route=True, clock_mhz=50)
@@ -68,8 +67,7 @@ def test_single_stage_core_is_timed_from_its_ports(tmp_path: Path) -> None:
     require_yowasp()
     fmax = {}
     for depth in (1, 4):
-        project = _generate_point_project(small_core(depth), tmp_path / f"p{depth}")
-        design = _design_summary(project)
+        project, design = _generate_point_project(small_core(depth), tmp_path / f"p{depth}")
         est = estimate([project / r for r in design["rtl"]], design["toplevel"], "ice40", tmp_path / f"syn{depth}",
                        place_and_route=True, clock_mhz=50)
         assert est.fmax_mhz is not None
@@ -128,8 +126,8 @@ def test_an_estimate_cached_before_the_mux_count_is_made_again() -> None:
 
 def test_wrapper_registers_every_port(tmp_path: Path) -> None:
     """The generated wrapper puts one flip-flop stage between each port and the core (no tools)."""
-    project = _generate_point_project(small_core(1), tmp_path / "p")
-    top = load_manifest(project)["toplevel"]
+    project, design = _generate_point_project(small_core(1), tmp_path / "p")
+    top = design["toplevel"]
     ports = design_from_manifest(load_manifest(project)).ports
     wrapper, text, ffs = io_wrapper(top, ports)
     assert {p.name for p in ports} >= {"clk", "rst", "in_valid", "in_ready", "out_valid", "out_ready"}
@@ -164,7 +162,7 @@ def test_wrapper_registers_every_port(tmp_path: Path) -> None:
 def test_wrapper_of_a_generated_core_is_the_one_read_from_its_verilog(tmp_path: Path) -> None:
     """The ports the design describes are the ports its Verilog declares: the wrapper made from
     the design and the one made from the text (as for a hand-written core) are the same."""
-    project = _generate_point_project({**small_core(2), "tag_width": 3}, tmp_path / "p")
+    project, _ = _generate_point_project({**small_core(2), "tag_width": 3}, tmp_path / "p")
     manifest = load_manifest(project)
     top = manifest["toplevel"]
     from_design = io_wrapper(top, design_from_manifest(manifest).ports)
