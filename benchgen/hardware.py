@@ -166,21 +166,11 @@ class _Core:
         self.module.header = lines
 
     def ports(self) -> None:
+        """Declare the ports the design lists (the one port description, Design.ports)."""
         m, b = self.module, self.b
-        b.known(m.port("clk", 1, "in"))
-        b.known(m.port("rst", 1, "in"))
-        b.known(m.port("in_valid", 1, "in", "input stream"))
-        b.known(m.port("in_ready", 1, "out"))
-        for p in self.fn.input_ports(self.dp):
-            b.known(m.port(p.name, p.width, "in", vector=True))
-        if self.tag:
-            b.known(m.port("in_tag", self.design.spec.tag_width, "in", vector=True))
-        b.known(m.port("out_valid", 1, "out", "output stream"))
-        b.known(m.port("out_ready", 1, "in"))
-        for p in self.fn.output_ports(self.dp):
-            b.known(m.port(p.name, p.width, "out", vector=True))
-        if self.tag:
-            b.known(m.port("out_tag", self.design.spec.tag_width, "out", vector=True))
+        groups = {"in_valid": "input stream", "out_valid": "output stream"}
+        for p in self.design.ports:
+            b.known(m.port(p.name, p.width, p.direction, groups.get(p.name, ""), vector=p.payload))
 
     def constants(self, with_table: bool) -> None:
         dp, b = self.dp, self.b
@@ -318,9 +308,7 @@ class _Core:
         out_valid = b.known(Sig("out_valid_reg", 1))
         spare_valid = b.known(Sig("spare_valid_reg", 1))
         m.add(Reg(ready), Reg(out_valid), Reg(spare_valid))
-        ports = [(p.name, p.width) for p in self.fn.output_ports(self.dp)]
-        if self.tag:
-            ports.append(("out_tag", self.design.spec.tag_width))
+        ports = [(p.name, p.width) for p in self.design.ports if p.direction == "out" and p.payload]
         regs: dict[str, tuple[Sig, Sig]] = {}
         for name, width in ports:
             short = "tag" if name == "out_tag" else name
