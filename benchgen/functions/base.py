@@ -51,6 +51,9 @@ IDEAL_DPS = 40
 WIDE_DATA_BITS = 40
 """Past this data width the model runs on Python integers."""
 
+WIDE_ANGLE_BITS = 56
+"""Past this angle width the model runs on Python integers."""
+
 
 @dataclass(frozen=True)
 class Port:
@@ -243,7 +246,7 @@ class Function:
 
     def int64_model(self, dp: Datapath) -> bool:
         """Whether the model runs on int64 (else on Python integers, about 100x slower)."""
-        if dp.data_width > WIDE_DATA_BITS or dp.angle_width > 56:
+        if dp.data_width > WIDE_DATA_BITS or dp.angle_width > WIDE_ANGLE_BITS:
             return False
         return self.model_bits(dp) <= INT64_MODEL_BITS
 

@@ -25,11 +25,16 @@ from benchgen.algorithm import (
     circular_gain,
     pi_at,
 )
-from benchgen.functions.base import Function, below
+from benchgen.functions.base import WIDE_ANGLE_BITS, WIDE_DATA_BITS, Function, below
 from benchgen.hwlib import Builder
 from benchgen.model import INT64_MODEL_BITS, to_signed
 from benchgen.netlist import Add, Cat, Cmp, Const, Expr, Mul, Mux, Or, Rep, Sig, Slice, Xor
 from benchgen.spec import CoreSpec
+
+INT64_PRODUCT_BITS = 58
+"""Widest gain-compensation product (data bits + 2 + the gain constant's fraction bits) the
+int64 model forms, with a margin below int64's 63 for the rounding add; wider products run on
+Python integers."""
 
 __all__ = ["CircularDatapath", "CircularFunction"]
 
@@ -151,10 +156,12 @@ class CircularFunction(Function):
         return max(dp.xy_width, dp.z_width, dp.angle_width) + 2
 
     def int64_model(self, dp: Datapath) -> bool:
-        if dp.data_width > 40 or dp.angle_width > 56:
+        if dp.data_width > WIDE_DATA_BITS or dp.angle_width > WIDE_ANGLE_BITS:
             return False
+        # The gain multiply's product (the widest intermediate) must stay inside int64 with
+        # room for the rounding add and the sign.
         product = dp.data_width + 2 + dp.k_frac if dp.k_frac else 0  # type: ignore[attr-defined]
-        return product <= 58
+        return product <= INT64_PRODUCT_BITS
 
     # ---------------------------------------------------------------- stimulus
 

@@ -10,9 +10,9 @@ import numpy as np
 import numpy.typing as npt
 
 from benchgen.algorithm import MP_DIGITS, Datapath, atanh_at, check_width, check_z_only, hyperbolic_gain, hyperbolic_shifts
-from benchgen.functions.base import IDEAL_DPS, Function, Inputs, octave, pack
+from benchgen.functions.base import IDEAL_DPS, WIDE_DATA_BITS, Function, Inputs, octave, pack
 from benchgen.hwlib import Builder
-from benchgen.model import to_signed
+from benchgen.model import INT64_MODEL_BITS, to_signed
 from benchgen.reference import FLOAT64_MAX_DATA_WIDTH
 
 __all__ = ["HyperbolicFunction", "normalising_directed", "power_of_two_corners"]
@@ -83,10 +83,8 @@ class HyperbolicFunction(Function):
         return max(dp.xy_width, dp.z_width) + 2
 
     def int64_model(self, dp: Datapath) -> bool:
-        if dp.data_width > 40:
+        if dp.data_width > WIDE_DATA_BITS:
             return False
-        from benchgen.model import INT64_MODEL_BITS
-
         return self.model_bits(dp) <= INT64_MODEL_BITS
 
     # ---------------------------------------------------------------- stimulus and ideal
