@@ -272,7 +272,9 @@ def make_timing(spec: CoreSpec, iterations: int) -> Timing:
                 f"set pipeline_depth to at most {n}, or fix iterations to a larger number",
             )
         bounds = tuple((k * n // depth, (k + 1) * n // depth) for k in range(depth))
-        return Timing(architecture="pipelined", stages=bounds, latency_cycles=depth, cycles_per_sample=1)
+        # depth stages of iterations, then the output register (rounding and saturation from
+        # a register of their own) into the output buffer: depth + 1 clocks.
+        return Timing(architecture="pipelined", stages=bounds, latency_cycles=depth + 1, cycles_per_sample=1)
     per_cycle = spec.iterations_per_cycle or 1
     if per_cycle > n:
         raise ConfigError(

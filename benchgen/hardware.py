@@ -285,6 +285,47 @@ class _Core:
 
     # ------------------------------------------------------------------ output stage
 
+    def output_register(
+        self, final: Final, side: dict[str, Expr], valid: Expr, tag: Expr | None, advance: Sig
+    ) -> tuple[Final, dict[str, Expr], Expr, Expr | None]:
+        """Register what the last iteration formed (and what travels with it), so rounding and
+        saturation start from a register instead of sharing a clock with an iteration's adder.
+        Returns the registered values in the same shape."""
+        b, m = self.b, self.module
+        b.note()
+        b.note(
+            "---- output register: the last iteration's values, held so that rounding and\n"
+            "saturation have a clock of their own ----"
+        )
+        valid_reg = b.known(Sig("o_valid_reg", 1))
+        m.add(Reg(valid_reg))
+        loads: list[tuple[Sig, Expr]] = []
+        held = Final()
+        for field in ("x", "y", "z", "x_kept", "y_kept", "z_kept"):
+            value = getattr(final, field)
+            if value is None:
+                continue
+            reg = b.reg(f"o_{field}_reg", value.width, of="z" if field.startswith("z") else "xy")
+            m.add(Reg(reg))
+            loads.append((reg, value))
+            setattr(held, field, reg)
+        tag_reg: Expr | None = None
+        if tag is not None:
+            tag_reg = b.reg("o_tag_reg", self.design.spec.tag_width, vector=True)
+            m.add(Reg(tag_reg))  # type: ignore[arg-type]
+            loads.append((tag_reg, tag))  # type: ignore[arg-type]
+        side_regs: dict[str, Expr] = {}
+        for name, width in self.fn.side_signals(self.dp):
+            reg = b.reg(f"o_{name}_reg", width, vector=True)
+            m.add(Reg(reg))
+            loads.append((reg, side[name]))
+            side_regs[name] = reg
+        b.note()
+        m.add(RegisterBlock(updates=(((advance, ((valid_reg, valid),)),),), reset=((valid_reg, Const(0, 1)),)))
+        b.note()
+        m.add(RegisterBlock(updates=(((advance, tuple(loads)),),)))
+        return held, side_regs, valid_reg, tag_reg
+
     def output_stage(self, final: Final, side: dict[str, Expr], fin_valid: Expr, fin_tag: Expr | None) -> None:
         b = self.b
         b.note()
@@ -449,6 +490,7 @@ class _Core:
             m.add(RegisterBlock(updates=(((advance, tuple(loads)),),)))
             valid_prev, tag_prev, side_prev = valid, tag_reg, side_regs
             src = (new_src[0], new_src[1], new_src[2])  # type: ignore[assignment]
+        final, side_prev, valid_prev, tag_prev = self.output_register(final, side_prev, valid_prev, tag_prev, advance)
         self.output_stage(final, side_prev, valid_prev, tag_prev)
         m.add(Assign(advance, b.sig("ready_reg")))
 

@@ -13,7 +13,7 @@
 // Internal widths: x, y 24 bits (5 guard bits); z 19 bits (17 fraction bits).
 // Worst error against the ideal, bit-true model: 0.9857 LSB (RMS 0.4104 LSB),
 // measured over every one of the 65536 input codes.
-// Timing: latency 4 clocks from input handshake to output handshake, one
+// Timing: latency 5 clocks from input handshake to output handshake, one
 // sample every 1 clock(s) at full rate.
 // Handshake: a sample moves when valid and ready are both high at a rising clock edge.
 // rst is synchronous and active high; it clears the control state, not the data path.
@@ -269,11 +269,34 @@ module agc_ln_power (
     wire dir_14 = (y_14 >= Y_HALF);
     wire [Z_W-1:0] s3_z = z_14 + (dir_14 ? ~ATANH_14 : ATANH_14) + {18'h00000, dir_14};
 
+    // ---- output register: the last iteration's values, held so that rounding and
+    // saturation have a clock of their own ----
+    reg o_valid_reg;
+    reg [Z_W-1:0] o_z_reg;
+    reg [0:0] o_bad_reg;
+    reg [3:0] o_lz_reg;
+
+    always @(posedge clk) begin
+        if (rst) begin
+            o_valid_reg <= 1'b0;
+        end else if (advance) begin
+            o_valid_reg <= s2_valid_reg;
+        end
+    end
+
+    always @(posedge clk) begin
+        if (advance) begin
+            o_z_reg <= s3_z;
+            o_bad_reg <= s2_bad_reg;
+            o_lz_reg <= s2_lz_reg;
+        end
+    end
+
     // ---- output: rounding, saturation, buffer ----
     // ln w = 2 z - e ln 2, e ln 2 from a table of the 16 normalising shifts
     reg [22:0] e_ln2;
     always @* begin
-        case (s2_lz_reg)
+        case (o_lz_reg)
             4'h0: e_ln2 = 23'h000000;  // 0 ln 2
             4'h1: e_ln2 = 23'h0162e4;  // 1 ln 2
             4'h2: e_ln2 = 23'h02c5c8;  // 2 ln 2
@@ -292,7 +315,7 @@ module agc_ln_power (
             4'hf: e_ln2 = 23'h14cb5f;  // 15 ln 2
         endcase
     end
-    wire [22:0] ln_twice = {{3{s3_z[18]}}, s3_z, 1'b0};
+    wire [22:0] ln_twice = {{3{o_z_reg[18]}}, o_z_reg, 1'b0};
     wire [22:0] ln_sum = ln_twice - e_ln2;
     // ln: drop 6 bit(s), half_even
     wire ln_inc = (ln_sum[5:0] > 6'h20) | ((ln_sum[5:0] == 6'h20) & ln_sum[6]);
@@ -301,9 +324,9 @@ module agc_ln_power (
     wire ln_over = ~ln_q[16] & ln_q[15];
     wire ln_under = ln_q[16] & (~ln_q[15] | (ln_q[15:0] == 16'h8000));
     wire [15:0] ln = ln_over ? 16'h7fff : ln_under ? 16'h8001 : ln_q[15:0];
-    wire [15:0] fin_out_ln = s2_bad_reg ? 16'h0000 : ln;
-    wire [0:0] fin_out_domain_error = s2_bad_reg;
-    wire fin_valid = s2_valid_reg;
+    wire [15:0] fin_out_ln = o_bad_reg ? 16'h0000 : ln;
+    wire [0:0] fin_out_domain_error = o_bad_reg;
+    wire fin_valid = o_valid_reg;
 
     // Output buffer with two entries. out_ready reaches only this buffer and ready_reg; the
     // core advances while ready_reg is high. When the consumer stalls, the sample already on

@@ -13,7 +13,7 @@
 // Internal widths: x, y 24 bits (5 guard bits); z 25 bits (25 fraction bits of a turn).
 // Worst error against the ideal, bit-true model: 0.9307 LSB (RMS 0.3609 LSB),
 // measured over every one of the 1024 input codes.
-// Timing: latency 4 clocks from input handshake to output handshake, one
+// Timing: latency 5 clocks from input handshake to output handshake, one
 // sample every 1 clock(s) at full rate.
 // Handshake: a sample moves when valid and ready are both high at a rising clock edge.
 // rst is synchronous and active high; it clears the control state, not the data path.
@@ -299,23 +299,46 @@ module fft1024_twiddle (
     wire [XY_W-1:0] s3_x = x_18 + (dir_18 ? ~ys_18 : ys_18) + {23'h000000, dir_18};
     wire [XY_W-1:0] s3_y = y_18 + (dir_18 ? xs_18 : ~xs_18) + {23'h000000, ~dir_18};
 
+    // ---- output register: the last iteration's values, held so that rounding and
+    // saturation have a clock of their own ----
+    reg o_valid_reg;
+    reg [XY_W-1:0] o_x_reg;
+    reg [XY_W-1:0] o_y_reg;
+    reg [8:0] o_tag_reg;
+
+    always @(posedge clk) begin
+        if (rst) begin
+            o_valid_reg <= 1'b0;
+        end else if (advance) begin
+            o_valid_reg <= s2_valid_reg;
+        end
+    end
+
+    always @(posedge clk) begin
+        if (advance) begin
+            o_x_reg <= s3_x;
+            o_y_reg <= s3_y;
+            o_tag_reg <= s2_tag_reg;
+        end
+    end
+
     // ---- output: rounding, saturation, buffer ----
     // fin_out_cos: drop 5 bit(s), half_up
-    wire fin_out_cos_inc = (s3_x[4:0] >= 5'h10);
-    wire [18:0] fin_out_cos_q = s3_x[23:5] + {18'h00000, fin_out_cos_inc};
+    wire fin_out_cos_inc = (o_x_reg[4:0] >= 5'h10);
+    wire [18:0] fin_out_cos_q = o_x_reg[23:5] + {18'h00000, fin_out_cos_inc};
     // saturate to +-131071
     wire fin_out_cos_over = ~fin_out_cos_q[18] & fin_out_cos_q[17];
     wire fin_out_cos_under = fin_out_cos_q[18] & (~fin_out_cos_q[17] | (fin_out_cos_q[17:0] == 18'h20000));
     wire [17:0] fin_out_cos = fin_out_cos_over ? 18'h1ffff : fin_out_cos_under ? 18'h20001 : fin_out_cos_q[17:0];
     // fin_out_sin: drop 5 bit(s), half_up
-    wire fin_out_sin_inc = (s3_y[4:0] >= 5'h10);
-    wire [18:0] fin_out_sin_q = s3_y[23:5] + {18'h00000, fin_out_sin_inc};
+    wire fin_out_sin_inc = (o_y_reg[4:0] >= 5'h10);
+    wire [18:0] fin_out_sin_q = o_y_reg[23:5] + {18'h00000, fin_out_sin_inc};
     // saturate to +-131071
     wire fin_out_sin_over = ~fin_out_sin_q[18] & fin_out_sin_q[17];
     wire fin_out_sin_under = fin_out_sin_q[18] & (~fin_out_sin_q[17] | (fin_out_sin_q[17:0] == 18'h20000));
     wire [17:0] fin_out_sin = fin_out_sin_over ? 18'h1ffff : fin_out_sin_under ? 18'h20001 : fin_out_sin_q[17:0];
-    wire fin_valid = s2_valid_reg;
-    wire [8:0] fin_tag = s2_tag_reg;
+    wire fin_valid = o_valid_reg;
+    wire [8:0] fin_tag = o_tag_reg;
 
     // Output buffer with two entries. out_ready reaches only this buffer and ready_reg; the
     // core advances while ready_reg is high. When the consumer stalls, the sample already on

@@ -13,7 +13,7 @@
 // Internal widths: x, y 25 bits (8 guard bits); z 26 bits (26 fraction bits of a turn).
 // Worst error against the ideal, bit-true model: 0.9985 LSB (RMS 0.3515 LSB),
 // measured over every one of the 65536 input codes.
-// Timing: latency 17 clocks from input handshake to output handshake, one
+// Timing: latency 18 clocks from input handshake to output handshake, one
 // sample every 1 clock(s) at full rate.
 // Handshake: a sample moves when valid and ready are both high at a rising clock edge.
 // rst is synchronous and active high; it clears the control state, not the data path.
@@ -606,23 +606,46 @@ module ddc_nco_sincos (
     wire [XY_W-1:0] s16_x = s15_x_reg + (dir_16 ? ~ys_16 : ys_16) + {24'h000000, dir_16};
     wire [XY_W-1:0] s16_y = s15_y_reg + (dir_16 ? xs_16 : ~xs_16) + {24'h000000, ~dir_16};
 
+    // ---- output register: the last iteration's values, held so that rounding and
+    // saturation have a clock of their own ----
+    reg o_valid_reg;
+    reg [XY_W-1:0] o_x_reg;
+    reg [XY_W-1:0] o_y_reg;
+    reg [3:0] o_tag_reg;
+
+    always @(posedge clk) begin
+        if (rst) begin
+            o_valid_reg <= 1'b0;
+        end else if (advance) begin
+            o_valid_reg <= s15_valid_reg;
+        end
+    end
+
+    always @(posedge clk) begin
+        if (advance) begin
+            o_x_reg <= s16_x;
+            o_y_reg <= s16_y;
+            o_tag_reg <= s15_tag_reg;
+        end
+    end
+
     // ---- output: rounding, saturation, buffer ----
     // fin_out_cos: drop 8 bit(s), half_even
-    wire fin_out_cos_inc = (s16_x[7:0] > 8'h80) | ((s16_x[7:0] == 8'h80) & s16_x[8]);
-    wire [16:0] fin_out_cos_q = s16_x[24:8] + {16'h0000, fin_out_cos_inc};
+    wire fin_out_cos_inc = (o_x_reg[7:0] > 8'h80) | ((o_x_reg[7:0] == 8'h80) & o_x_reg[8]);
+    wire [16:0] fin_out_cos_q = o_x_reg[24:8] + {16'h0000, fin_out_cos_inc};
     // saturate to +-32767
     wire fin_out_cos_over = ~fin_out_cos_q[16] & fin_out_cos_q[15];
     wire fin_out_cos_under = fin_out_cos_q[16] & (~fin_out_cos_q[15] | (fin_out_cos_q[15:0] == 16'h8000));
     wire [15:0] fin_out_cos = fin_out_cos_over ? 16'h7fff : fin_out_cos_under ? 16'h8001 : fin_out_cos_q[15:0];
     // fin_out_sin: drop 8 bit(s), half_even
-    wire fin_out_sin_inc = (s16_y[7:0] > 8'h80) | ((s16_y[7:0] == 8'h80) & s16_y[8]);
-    wire [16:0] fin_out_sin_q = s16_y[24:8] + {16'h0000, fin_out_sin_inc};
+    wire fin_out_sin_inc = (o_y_reg[7:0] > 8'h80) | ((o_y_reg[7:0] == 8'h80) & o_y_reg[8]);
+    wire [16:0] fin_out_sin_q = o_y_reg[24:8] + {16'h0000, fin_out_sin_inc};
     // saturate to +-32767
     wire fin_out_sin_over = ~fin_out_sin_q[16] & fin_out_sin_q[15];
     wire fin_out_sin_under = fin_out_sin_q[16] & (~fin_out_sin_q[15] | (fin_out_sin_q[15:0] == 16'h8000));
     wire [15:0] fin_out_sin = fin_out_sin_over ? 16'h7fff : fin_out_sin_under ? 16'h8001 : fin_out_sin_q[15:0];
-    wire fin_valid = s15_valid_reg;
-    wire [3:0] fin_tag = s15_tag_reg;
+    wire fin_valid = o_valid_reg;
+    wire [3:0] fin_tag = o_tag_reg;
 
     // Output buffer with two entries. out_ready reaches only this buffer and ready_reg; the
     // core advances while ready_reg is high. When the consumer stalls, the sample already on
