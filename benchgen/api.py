@@ -22,12 +22,12 @@ from typing import Any, TypeAlias
 import numpy as np
 import numpy.typing as npt
 
-from benchgen.config import CoreSpec, load_config as _load_config_file, parse_config
+from benchgen.config import CoreSpec, load_config as _load_config_file, parse_config, spec_to_dict
 from benchgen.design import Design, build_design
 from benchgen.errors import BenchgenError, ConfigError, one_line, show_value
 from benchgen.functions import input_ports, output_ports
 from benchgen.fusesoc import core_file_name, vlnv
-from benchgen.model import evaluate_function
+from benchgen.functions import evaluate as evaluate_function
 from benchgen.project import (
     MANIFEST_NAME,
     ProjectError,
@@ -407,7 +407,7 @@ def design_core(config: Config, *, progress: Callable[[str], None] | None = None
     """
     source = None
     if isinstance(config, CoreSpec):
-        spec, text = config, _toml_text(config.to_dict())
+        spec, text = config, _toml_text(spec_to_dict(config))
     elif isinstance(config, Mapping):
         spec = load_config(config)
         text = _toml_text(dict(config))
@@ -466,7 +466,7 @@ def open_project(path: str | PathLike[str]) -> Project:
     try:
         text = config.read_text(encoding="utf-8")
     except (OSError, UnicodeDecodeError):
-        text = _toml_text(design.spec.to_dict())  # the manifest holds the same fields
+        text = _toml_text(spec_to_dict(design.spec))  # the manifest holds the same fields
     return Project(folder, manifest, Core(design, text))
 
 

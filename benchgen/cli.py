@@ -100,8 +100,9 @@ def _generate(args: argparse.Namespace) -> int:
 
 
 class _Progress:
-    """Progress lines on stderr for a generate that takes a while: silent for the first
-    2 seconds, then at most one line a second."""
+    """Progress lines on stdout (beside the "wrote" line; stderr keeps the one-line errors) for
+    a generate that takes a while: silent for the first 2 seconds, then at most one line a
+    second."""
 
     QUIET_SECONDS = 2.0
 
@@ -114,7 +115,7 @@ class _Progress:
         if now - self.start < self.QUIET_SECONDS or now - self.last < 1.0:
             return
         self.last = now
-        print(f"  sizing ({now - self.start:.0f} s): {text}", file=sys.stderr, flush=True)
+        print(f"  sizing ({now - self.start:.0f} s): {text}", flush=True)
 
 
 def _simulate(args: argparse.Namespace, project: Path) -> int:

@@ -15,6 +15,8 @@ from pathlib import Path
 from typing import Any
 
 from benchgen.errors import ConfigError, show_value
+from benchgen.functions import FUNCTION_NAMES, function_named, refused_fields
+from benchgen.spec import DEFAULT_VLNV_LIBRARY, DEFAULT_VLNV_VENDOR, CoreSpec
 
 __all__ = [
     "ANGLE_UNITS",
@@ -24,6 +26,7 @@ __all__ = [
     "FUNCTIONS",
     "GAIN_MODES",
     "MAX_NAME_LENGTH",
+    "MAX_PORT_WIDTH",
     "MAX_WIDTH",
     "ROUNDING_MODES",
     "CoreSpec",
@@ -31,16 +34,11 @@ __all__ = [
     "name_problem",
     "parse_config",
     "read_toml",
+    "spec_to_dict",
     "suggest_name",
 ]
 
-FUNCTIONS = ("sincos", "rotate", "atan2", "mul", "div", "sinhcosh", "exp", "atanh", "ln", "sqrt")
-LINEAR_FUNCTIONS = ("mul", "div")
-HYPERBOLIC_FUNCTIONS = ("sinhcosh", "exp", "atanh", "ln", "sqrt")
-# Functions whose ports carry no angle (angle_width and angle_unit do not apply).
-ANGLE_FREE_FUNCTIONS = LINEAR_FUNCTIONS + HYPERBOLIC_FUNCTIONS
-# Functions whose result carries no gain (gain does not apply).
-GAIN_FREE_FUNCTIONS = LINEAR_FUNCTIONS + ("atanh", "ln")
+FUNCTIONS = FUNCTION_NAMES
 GAIN_MODES = ("compensated", "raw")
 ANGLE_UNITS = ("turns", "radians")
 MIN_RADIAN_ANGLE_WIDTH = 6
@@ -48,15 +46,17 @@ ARCHITECTURES = ("pipelined", "iterative")
 ROUNDING_MODES = ("truncate", "half_up", "half_even")
 MIN_ANGLE_WIDTH = 3
 MIN_DATA_WIDTH = 3
-MAX_WIDTH = 64
-MAX_TAG_WIDTH = 64
+MAX_PORT_WIDTH = 64
+"""Widest port of a core: the bulk harness packs each port into a slot of at most 8 bytes, and its
+C++ runner moves ports as 64-bit integers (benchgen/harness.py)."""
+MAX_WIDTH = MAX_PORT_WIDTH
+"""Widest ``data_width`` and ``angle_width``: each is the width of a port."""
+MAX_TAG_WIDTH = MAX_PORT_WIDTH
 MAX_ITERATIONS = 96
 # The vendor and library parts of the FuseSoC name (VLNV) of the core file every project holds
 # (benchgen/fusesoc.py). FuseSoC 2.4's own rule for each part is [A-Za-z0-9_.-]* (its vlnv.py);
 # ours also wants a letter or digit first (a leading '-' or '.' reads as an option or a hidden
 # file) and a bounded length.
-DEFAULT_VLNV_VENDOR = "benchgen"
-DEFAULT_VLNV_LIBRARY = "cores"
 MAX_VLNV_PART = 64
 _VLNV_PART = re.compile(r"[A-Za-z0-9][A-Za-z0-9_.-]*")
 
@@ -141,73 +141,6 @@ _NAME_RULE = (
 )
 
 
-@dataclass(frozen=True, kw_only=True)
-class CoreSpec:
-    """One core, as the user asked for it (``None`` means ``auto`` or "not applicable").
-
-    Attributes:
-        name: Verilog module name.
-        function: Which function the core computes (``sincos``, ``rotate``, ``atan2``, ``mul``,
-            ``div``, ``sinhcosh``, ``exp``, ``atanh``, ``ln``, ``sqrt``).
-        architecture: ``pipelined`` or ``iterative``.
-        pipeline_depth: Register stages of a pipelined core; ``None`` means one per iteration.
-        iterations_per_cycle: Iterations an iterative core performs per clock.
-        angle_width: Bits of the binary angle input (2**angle_width codes per turn).
-        data_width: Bits of each signed output.
-        iterations: Rotation iterations, or ``None`` for auto sizing.
-        guard_bits: Extra fraction bits inside the data path, or ``None`` for auto sizing.
-        rounding: How the guard bits are dropped at the output.
-        tag_width: Width of the user tag carried with each sample; 0 means no tag ports.
-        max_error_lsb: Worst error the core may have against the ideal, in output LSBs.
-        gain: ``compensated`` (the core removes the rotation gain) or ``raw`` (left in, stated
-            in the manifest).
-        angle_unit: ``turns`` (binary angle) or ``radians`` (signed fixed point, 3 integer bits).
-        prenormalise: atan2: shift (x, y) left by their common redundant sign bits before
-            vectoring, so the angle meets the budget for every non-zero vector (``False``
-            keeps the smaller core whose angle is judged only for long vectors).
-        vlnv_vendor: Vendor part of the core's FuseSoC name ``vendor:library:name:version``.
-        vlnv_library: Library part of that name.
-    """
-
-    name: str
-    function: str = "sincos"
-    architecture: str = "pipelined"
-    pipeline_depth: int | None = None
-    iterations_per_cycle: int | None = None
-    angle_width: int = 16
-    data_width: int = 16
-    iterations: int | None = None
-    guard_bits: int | None = None
-    rounding: str = "half_even"
-    tag_width: int = 0
-    max_error_lsb: float = 1.0
-    gain: str = "compensated"
-    angle_unit: str = "turns"
-    prenormalise: bool = True
-    vlnv_vendor: str = DEFAULT_VLNV_VENDOR
-    vlnv_library: str = DEFAULT_VLNV_LIBRARY
-
-    def to_dict(self) -> dict[str, Any]:
-        """The spec as config-file values (``auto`` for sized fields, absent fields dropped)."""
-        out: dict[str, Any] = {}
-        unused: tuple[str, ...] = ()
-        if self.function in ANGLE_FREE_FUNCTIONS:
-            unused += ("angle_width", "angle_unit")
-        if self.function in GAIN_FREE_FUNCTIONS:
-            unused += ("gain",)
-        if self.function != "atan2":
-            unused += ("prenormalise",)
-        for key, value in asdict(self).items():
-            if key in unused:
-                continue
-            if value is None:
-                if key in ("iterations", "guard_bits"):
-                    out[key] = "auto"
-                continue
-            out[key] = value
-        return out
-
-
 _FIELDS: tuple[str, ...] = (
     "name",
     "function",
@@ -227,6 +160,22 @@ _FIELDS: tuple[str, ...] = (
     "vlnv_vendor",
     "vlnv_library",
 )
+
+
+def spec_to_dict(spec: CoreSpec) -> dict[str, Any]:
+    """The spec as config-file values (``auto`` for sized fields; fields the function does not
+    use, and absent ones, dropped)."""
+    unused = set(refused_fields(function_named(spec.function)))
+    out: dict[str, Any] = {}
+    for key, value in asdict(spec).items():
+        if key in unused:
+            continue
+        if value is None:
+            if key in ("iterations", "guard_bits"):
+                out[key] = "auto"
+            continue
+        out[key] = value
+    return out
 
 
 def _closest(word: str, choices: tuple[str, ...] | list[str]) -> str:
@@ -395,8 +344,8 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
             "function",
             "(missing)",
             "required",
-            'add function = "sincos" (or one of rotate, atan2, mul, div, sinhcosh, exp, atanh, ln, sqrt)',
-            suggestion={"function": "sincos"},
+            f'add function = "{FUNCTION_NAMES[0]}" (or one of {", ".join(FUNCTION_NAMES[1:])})',
+            suggestion={"function": FUNCTION_NAMES[0]},
         )
     name = _check_name(raw["name"])
     function = _choice_field(raw, "function", FUNCTIONS)
@@ -413,22 +362,15 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
     tag_width = _int_field(raw, "tag_width", 0, MAX_TAG_WIDTH, default=0) if "tag_width" in raw else 0
     gain = _choice_field(raw, "gain", GAIN_MODES) if "gain" in raw else "compensated"
     angle_unit = _choice_field(raw, "angle_unit", ANGLE_UNITS) if "angle_unit" in raw else "turns"
-    if function in ANGLE_FREE_FUNCTIONS:
-        # No angle port (and, for some, no gain): a value set here would mislead.
-        for key in ("angle_width", "angle_unit", "gain"):
-            if key == "gain" and function not in GAIN_FREE_FUNCTIONS:
-                continue
-            if key in raw:
-                why = (
-                    "linear coordinates have no angle and no gain"
-                    if function in LINEAR_FUNCTIONS
-                    else "its ports carry no angle" if key != "gain"
-                    else "its result is the angle z, which the gain does not scale"
-                )
-                raise ConfigError(
-                    key, raw[key], f'not used by function = "{function}" ({why})', f"remove {key}",
-                    suggestion={key: None},
-                )  # fmt: skip
+    fn = function_named(function)
+    for key, why in refused_fields(fn).items():
+        # A field the function does not use: a value set here would mislead.
+        if key in raw:
+            raise ConfigError(
+                key, raw[key], f'not used by function = "{function}" ({why})', f"remove {key}",
+                suggestion={key: None},
+            )  # fmt: skip
+    if not fn.angle_ports:
         angle_width = data_width
     if angle_unit == "radians" and angle_width < MIN_RADIAN_ANGLE_WIDTH:
         raise ConfigError(
@@ -443,17 +385,11 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
     prenormalise = True
     if "prenormalise" in raw:
         value = raw["prenormalise"]
-        if function != "atan2":
-            raise ConfigError(
-                "prenormalise",
-                value,
-                'only used by function = "atan2" (div always normalises its operands)',
-                "remove prenormalise",
-            )
         if not isinstance(value, bool):
             raise ConfigError(
-                "prenormalise", value, "true or false", "write prenormalise = true or prenormalise = false (no quotes)"
-            )
+                "prenormalise", value, "true or false", "write prenormalise = true or prenormalise = false (no quotes)",
+                suggestion={"prenormalise": True},
+            )  # fmt: skip
         prenormalise = value
 
     vlnv_vendor = _vlnv_field(raw, "vlnv_vendor", DEFAULT_VLNV_VENDOR)

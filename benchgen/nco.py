@@ -47,7 +47,7 @@ import numpy.typing as npt
 from benchgen.algorithm import Datapath
 from benchgen.errors import ConfigError
 from benchgen.lfsr import LFSR_TAPS, MAX_LFSR_WIDTH, MIN_LFSR_WIDTH, lfsr_states
-from benchgen.model import sincos
+from benchgen.functions.sincos import FUNCTION as SINCOS
 
 __all__ = [
     "DEFAULT_LFSR_WIDTH",
@@ -286,7 +286,7 @@ def phase_path(
 
 
 def _check_core(nco: Nco, dp: Datapath) -> None:
-    if dp.function != "sincos" or dp.angle_unit != "turns":
+    if dp.function != SINCOS.name or dp.angle_unit != "turns":
         raise ValueError(
             f"an NCO drives a sincos core with a binary angle (turns), not {dp.function} in {dp.angle_unit}"
         )
@@ -315,8 +315,8 @@ def run(
     """
     _check_core(nco, dp)
     path = phase_path(nco, n, freq_word=freq_word, phase_offset=phase_offset, changes=changes)
-    out = sincos(dp, path.codes)
-    return NcoOutput(path=path, cos=out.cos, sin=out.sin)
+    out = SINCOS.model(dp, {"in_angle": path.codes})
+    return NcoOutput(path=path, cos=out["out_cos"], sin=out["out_sin"])
 
 
 def run_stream(

@@ -51,7 +51,8 @@ from benchgen.design import Design, build_design
 from benchgen.errors import ConfigError
 from benchgen.nco import Nco, run
 from benchgen.nco_theory import truncation_word
-from benchgen.reference import ideal_sincos
+from benchgen.functions.sincos import FUNCTION as SINCOS
+from benchgen.functions.sincos import ideal_sincos
 from benchgen.spectrum import measure_tone
 
 __all__ = [
@@ -142,15 +143,14 @@ def core_error_max_lsb(dp: Datapath) -> float:
     ``e = (cos - a cos t) + j (sin - a sin t)`` against the exact values (float64 ideal,
     benchgen.reference); every one of the 2**P codes is evaluated.
     """
-    from benchgen.model import sincos
 
     worst = 0.0
     step = 1 << 16
     for lo in range(0, 1 << dp.angle_width, step):
         codes = np.arange(lo, min(lo + step, 1 << dp.angle_width), dtype=np.int64)
-        out = sincos(dp, codes)
+        out = SINCOS.model(dp, {"in_angle": codes})
         ic, is_ = ideal_sincos(dp, codes)
-        e = np.hypot(out.cos.astype(np.float64) - ic, out.sin.astype(np.float64) - is_)
+        e = np.hypot(out["out_cos"].astype(np.float64) - ic, out["out_sin"].astype(np.float64) - is_)
         worst = max(worst, float(np.max(e)))
     return worst
 
@@ -256,7 +256,7 @@ class NcoSizing:
         dp = self.design.datapath
         return {
             "name": self.design.spec.name,
-            "function": "sincos",
+            "function": SINCOS.name,
             "architecture": self.design.spec.architecture,
             "angle_width": dp.angle_width,
             "data_width": dp.data_width,
@@ -302,7 +302,7 @@ def size_nco(
             continue
         config = {
             "name": name,
-            "function": "sincos",
+            "function": SINCOS.name,
             "architecture": architecture,
             "angle_width": p,
             "data_width": n,

@@ -33,12 +33,12 @@ except ImportError:  # pragma: no cover - not a supported platform for the simul
     fcntl = None  # type: ignore[assignment]
 
 from benchgen import __version__
-from benchgen.config import CoreSpec, load_config, parse_config
-from benchgen.algorithm import make_datapath, make_timing
+from benchgen.config import CoreSpec, load_config, parse_config, spec_to_dict
+from benchgen.algorithm import make_timing
 from benchgen.design import Design, Proof, build_design
 from benchgen.reference import ErrorStats
 from benchgen.errors import BenchgenError, ConfigError
-from benchgen.functions import input_ports, output_ports, small_vector_limit
+from benchgen.functions import function_of, make_datapath
 from benchgen.fusesoc import core_file_name, render_core_file, vlnv
 from benchgen.harness import bulk_project_files
 from benchgen.rtl import check_module_name, render_core
@@ -85,20 +85,16 @@ class ProjectError(BenchgenError):
 def manifest_for(design: Design) -> dict[str, Any]:
     """Every derived number of a design, as JSON-ready values."""
     spec, dp, timing = design.spec, design.datapath, design.timing
-    ins, outs = input_ports(dp), output_ports(dp)
-    ports: dict[str, Any] = {"clk": 1, "rst": 1, "in_valid": 1, "in_ready": 1, "out_valid": 1, "out_ready": 1}
-    ports.update({p.name: p.width for p in ins + outs})
-    if spec.tag_width:
-        ports["in_tag"] = spec.tag_width
-        ports["out_tag"] = spec.tag_width
+    ports = design.ports
+    data = [p for p in ports if p.role == "data"]
     return {
         "benchgen_version": __version__,
         "toplevel": spec.name,
         "function": spec.function,
-        "config": spec.to_dict(),
-        "ports": ports,
-        "formats": {p.name: p.doc for p in ins + outs},
-        "signed_outputs": [p.name for p in outs if p.signed],
+        "config": spec_to_dict(spec),
+        "ports": {p.name: p.width for p in ports},
+        "formats": {p.name: p.doc for p in data},
+        "signed_outputs": [p.name for p in data if p.direction == "out" and p.signed],
         "derived": {
             "iterations": dp.iterations,
             "guard_bits": dp.guard_bits,
@@ -111,9 +107,7 @@ def manifest_for(design: Design) -> dict[str, Any]:
             "angle_unit": dp.angle_unit,
             "mode": dp.mode,
             "z_frac": dp.z_frac,
-            "x_start": dp.x_start,
-            "k_const": dp.k_const,
-            "k_frac": dp.k_frac,
+            "constants": dp.constants(),
             "out_width": dp.out_width,
             "coordinates": dp.coordinates,
             "shifts": list(dp.shifts),
@@ -134,7 +128,7 @@ def manifest_for(design: Design) -> dict[str, Any]:
             "model_samples": design.accuracy.samples,
             "model_exhaustive": design.accuracy_exhaustive,
             "proof": design.proof.as_dict(),
-            "atan2_angle_budget_min_magnitude": small_vector_limit(dp) if dp.function == "atan2" else None,
+            **function_of(dp).manifest_extras(dp),
             "measured_on": design.proof.describe(),
         },
         "files": {
@@ -142,16 +136,6 @@ def manifest_for(design: Design) -> dict[str, Any]:
             "test_module": f"test_{spec.name}",
         },
     }
-
-
-def _gain_label(dp: Any) -> str:
-    if dp.coordinates == "hyperbolic":
-        return f"compensation 1/A_n (iterations {dp.iterations}; raw outputs are A_n times the exact)"
-    if dp.coordinates == "linear":
-        return "gain (linear coordinates: none)"
-    if dp.function == "sincos" and dp.gain_mode == "compensated":
-        return f"gain K (iterations {dp.iterations}; removed by the start value)"
-    return f"gain K (iterations {dp.iterations}; raw outputs are 1/K times the exact)"
 
 
 def _readme(design: Design, manifest: dict[str, Any]) -> str:
@@ -162,19 +146,8 @@ def _readme(design: Design, manifest: dict[str, Any]) -> str:
         if timing.architecture == "pipelined"
         else f"iterative, {d['iterations_per_cycle']} iteration(s) per clock"
     )
-    what = {
-        "sincos": f"Sine and cosine of a {dp.angle_width}-bit angle ({dp.angle_unit}), {dp.data_width}-bit outputs",
-        "rotate": f"Rotation of a {dp.data_width}-bit vector by a {dp.angle_width}-bit angle ({dp.angle_unit}), gain {dp.gain_mode}",
-        "atan2": f"Angle ({dp.angle_unit}, {dp.angle_width} bits) and magnitude of a {dp.data_width}-bit vector, gain {dp.gain_mode}",
-        "mul": f"Product of two {dp.data_width}-bit fractions by linear rotation",
-        "div": f"Quotient of two {dp.data_width}-bit fractions by linear vectoring, with a domain flag",
-        "sinhcosh": f"Hyperbolic cosine and sine of a {dp.data_width}-bit argument by hyperbolic rotation, gain {dp.gain_mode}",
-        "exp": f"e^t of a {dp.data_width}-bit argument as mantissa and exponent (t = q ln 2 + r, hyperbolic rotation), gain {dp.gain_mode}",
-        "atanh": f"Inverse hyperbolic tangent of a {dp.data_width}-bit fraction by hyperbolic vectoring, with a domain flag",
-        "ln": f"Natural logarithm of a {dp.data_width}-bit unsigned fraction (normalised, hyperbolic vectoring), with a domain flag",
-        "sqrt": f"Square root of a {dp.data_width}-bit unsigned fraction (normalised, hyperbolic vectoring), gain {dp.gain_mode}",
-    }[spec.function]
-    ports = "\n".join(f"| `{p.name}` | {p.doc} |" for p in input_ports(dp) + output_ports(dp))
+    what = function_of(dp).describe(dp)
+    ports = "\n".join(f"| `{p.name}` | {p.doc} |" for p in design.ports if p.role == "data")
     return f"""# {spec.name}
 
 {what}, {arch}.
@@ -188,7 +161,7 @@ Generated by benchgen {__version__} from `config.toml`; regenerate rather than e
 |---|---|
 | iterations / guard bits | {dp.iterations} / {dp.guard_bits} |
 | internal x, y / z width | {dp.xy_width} / {dp.z_width} bits |
-| {_gain_label(dp)} | {dp.gain} ({dp.gain_mode}) |
+| {function_of(dp).gain_label(dp)} | {dp.gain} ({dp.gain_mode}) |
 | rounding | {spec.rounding} |
 | latency | {timing.latency_cycles} clocks, input handshake to output handshake |
 | throughput | one sample every {timing.cycles_per_sample} clock(s) |
@@ -255,7 +228,7 @@ def render_project(design: Design, config_text: str) -> dict[str, str]:
         f"bench/test_{name}.py": _test_module(design),
         core_file_name(design.spec): render_core_file(design, manifest["files"]["rtl"]),
         # The bulk harness wraps the unchanged core for volume runs (benchgen.harness).
-        **bulk_project_files(manifest),
+        **bulk_project_files(design),
     }
     manifest["files"]["generated"] = sorted([*files, MANIFEST_NAME])
     files[MANIFEST_NAME] = json.dumps(manifest, indent=2, sort_keys=True) + "\n"

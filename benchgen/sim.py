@@ -21,6 +21,7 @@ from pathlib import Path
 from typing import Any
 
 from benchgen.bench.bulk_plan import FULL_RATE_TESTS, bulk_plan, bulk_run_args
+from benchgen.bench.scoreboard import CSV_ENV, RESULTS_ENV, SAMPLES_ENV
 from benchgen.errors import BenchgenError
 from benchgen.project import ProjectError, design_from_manifest, load_manifest
 from benchgen.simulators import SIMULATORS, SimulatorMissing, find_simulator, simulator_env
@@ -325,12 +326,9 @@ def _run_cocotb(
     if bulk:
         sources, test_module, hdl_top, build_args, testcase = bulk_run_args(project, manifest, info.name, exhaustive)
         report.mode = "bulk, exhaustive" if exhaustive else "bulk"
-    bench_env = {
-        "BENCHGEN_SAMPLES": str(samples),
-        "BENCHGEN_RESULTS": str(results_jsonl),
-    }
+    bench_env = {SAMPLES_ENV: str(samples), RESULTS_ENV: str(results_jsonl)}
     if csv_tmp:
-        bench_env["BENCHGEN_CSV"] = str(csv_tmp)
+        bench_env[CSV_ENV] = str(csv_tmp)
     with simulator_env(info), _env(bench_env), _sys_path(project / "bench"):
         runner = get_runner(simulator)
         t0 = time.perf_counter()

@@ -41,8 +41,6 @@ __all__ = [
     "SIMULATORS",
     "SimulatorInfo",
     "SimulatorMissing",
-    "apply_env",
-    "available",
     "find_simulator",
     "simulator_env",
 ]
@@ -340,37 +338,6 @@ def find_simulator(name: str) -> SimulatorInfo:
     if name == "verilator":
         return _find_verilator()
     raise ValueError(f"unknown simulator {name!r}; expected one of {', '.join(SIMULATORS)}")
-
-
-def available(name: str) -> bool:
-    """Tell whether a simulator is usable.
-
-    Args:
-        name: One of :data:`SIMULATORS`.
-
-    Returns:
-        ``True`` when :func:`find_simulator` would succeed.
-
-    Raises:
-        ValueError: *name* is not a supported simulator.
-    """
-    try:
-        find_simulator(name)
-    except SimulatorMissing:
-        return False
-    return True
-
-
-def apply_env(info: SimulatorInfo) -> None:
-    """Set the simulator's variables in :data:`os.environ` for good.
-
-    Use this in a process that only ever runs one simulator (e.g. a worker);
-    otherwise prefer :func:`simulator_env`.
-
-    Args:
-        info: The simulator, from :func:`find_simulator`.
-    """
-    os.environ.update(info.env)
 
 
 @contextmanager

@@ -21,7 +21,7 @@ from conftest import require_simulator
 
 import benchgen
 from benchgen.cli import main
-from benchgen.model import evaluate_function
+from benchgen.functions import evaluate as evaluate_function
 
 ROOT = Path(__file__).resolve().parent.parent
 DOC = ROOT / "docs" / "api.md"

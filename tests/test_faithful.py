@@ -17,12 +17,13 @@ import numpy as np
 import numpy.typing as npt
 import pytest
 
-from benchgen.algorithm import log_int_bits, make_datapath
+from benchgen.algorithm import log_int_bits
+from benchgen.functions import make_datapath
 from benchgen.config import parse_config
 from benchgen.design import MAX_AUTO_GUARD_BITS, build_design, sizing_evidence
 from benchgen.errors import ConfigError
 from benchgen.functions import directed_inputs, enumerate_inputs, input_space_bits, measure
-from benchgen.model import evaluate_function
+from benchgen.functions import evaluate as evaluate_function
 
 Arr = npt.NDArray[Any]
 
@@ -409,8 +410,8 @@ def test_generate_shows_progress_only_after_two_seconds(monkeypatch: pytest.Monk
     progress("checking every input: 50%")  # half a second later: held back
     now[0] += 1.0
     progress("checking every input: 75%")
-    err = capsys.readouterr().err.splitlines()
-    assert err == ["  sizing (2 s): checking every input: 25%", "  sizing (4 s): checking every input: 75%"]
+    shown = capsys.readouterr().out.splitlines()
+    assert shown == ["  sizing (2 s): checking every input: 25%", "  sizing (4 s): checking every input: 75%"]
 
 
 @pytest.mark.parametrize("function", ["mul", "div"])

@@ -14,7 +14,7 @@ from conftest import require_simulator
 
 from benchgen import __version__
 from benchgen.cli import main
-from benchgen.config import DEFAULT_VLNV_LIBRARY, DEFAULT_VLNV_VENDOR, parse_config
+from benchgen.config import DEFAULT_VLNV_LIBRARY, DEFAULT_VLNV_VENDOR, parse_config, spec_to_dict
 from benchgen.design import build_design
 from benchgen.errors import ConfigError
 from benchgen.project import generate_project, render_project
@@ -44,7 +44,7 @@ def test_vlnv_defaults_and_config_values() -> None:
     assert (spec.vlnv_vendor, spec.vlnv_library) == (DEFAULT_VLNV_VENDOR, DEFAULT_VLNV_LIBRARY) == ("benchgen", "cores")
     spec = parse_config(small_core(vlnv_vendor="acme.dsp", vlnv_library="radio-ip_2"))
     assert (spec.vlnv_vendor, spec.vlnv_library) == ("acme.dsp", "radio-ip_2")
-    assert spec.to_dict()["vlnv_vendor"] == "acme.dsp"
+    assert spec_to_dict(spec)["vlnv_vendor"] == "acme.dsp"
 
 
 @pytest.mark.parametrize(

@@ -26,8 +26,8 @@ from cocotb.triggers import ReadOnly, RisingEdge
 
 from benchgen.bench.scoreboard import CheckResult, compare
 from benchgen.design import Design
-from benchgen.functions import function_errors, ideal_outputs, input_ports, output_ports
-from benchgen.model import evaluate_function
+from benchgen.functions import function_errors, ideal_outputs
+from benchgen.functions import evaluate as evaluate_function
 from benchgen.project import MANIFEST_NAME, design_from_manifest, load_manifest
 
 __all__ = ["CoreChecker", "StreamDriver", "StreamMonitor"]
@@ -264,31 +264,30 @@ class CoreChecker:
             folder = folder.parent
         self.manifest = load_manifest(folder)
         self.design: Design = design_from_manifest(self.manifest)
-        dp = self.design.datapath
         found = dict(ports or {})
 
         def handle(name: str) -> Any:
             return found[name] if name in found else getattr(core, name)
 
         self.clk = clk if clk is not None else handle("clk")
-        if reset is None and ("rst" in found or "rst" in self.manifest["ports"]):
+        ports = self.design.ports
+        if reset is None and ("rst" in found or any(p.name == "rst" for p in ports)):
             reset = handle("rst")
         self.reset_handle = reset
         self.reset_active_high = reset_active_high
-        self.in_ports = [p.name for p in input_ports(dp)]
-        self.out_ports = [p.name for p in output_ports(dp)]
-        self.tagged = "in_tag" in self.manifest["ports"]
-        tag_in = ["in_tag"] if self.tagged else []
-        tag_out = ["out_tag"] if self.tagged else []
+        # Each stream's words: the function's data ports and the tag.
+        ins = [p for p in ports if p.direction == "in" and p.payload]
+        outs = [p for p in ports if p.direction == "out" and p.payload]
+        self.in_ports = [p.name for p in ins if p.role == "data"]
+        self.out_ports = [p.name for p in outs if p.role == "data"]
+        self.tagged = any(p.role == "tag" for p in ins)
         self.inputs = StreamMonitor(
-            self.clk, handle("in_valid"), handle("in_ready"),
-            {n: handle(n) for n in self.in_ports + tag_in},
-            signed=tuple(p.name for p in input_ports(dp) if p.signed), name="core input",
+            self.clk, handle("in_valid"), handle("in_ready"), {p.name: handle(p.name) for p in ins},
+            signed=tuple(p.name for p in ins if p.signed), name="core input",
         )  # fmt: skip
         self.outputs = StreamMonitor(
-            self.clk, handle("out_valid"), handle("out_ready"),
-            {n: handle(n) for n in self.out_ports + tag_out},
-            signed=tuple(p.name for p in output_ports(dp) if p.signed), name="core output",
+            self.clk, handle("out_valid"), handle("out_ready"), {p.name: handle(p.name) for p in outs},
+            signed=tuple(p.name for p in outs if p.signed), name="core output",
         )  # fmt: skip
         self.seed = int(cocotb.RANDOM_SEED)
         self.result = CheckResult(test=f"{self.manifest['toplevel']} in its design")
