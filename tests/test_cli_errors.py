@@ -343,6 +343,10 @@ _INTERRUPT_CHILD = textwrap.dedent(
     """
     import importlib.abc, os, runpy, signal, sys
 
+    # A shell starts benchgen with Ctrl-C at its default; a test's parent process may ignore
+    # SIGINT (a pool or cluster that ran earlier in the same pytest worker), and an ignored
+    # SIGINT is inherited and keeps Python from installing its handler.
+    signal.signal(signal.SIGINT, signal.default_int_handler)
     MODULE = sys.argv[1]
 
     class Interrupt(importlib.abc.MetaPathFinder):
