@@ -19,6 +19,7 @@ from benchgen.errors import ConfigError
 from benchgen.hardware import MAX_HEADER_LINE, build_core, header_lines
 from benchgen.netlist import Module, declared
 from benchgen.verilog import literal, module_parts
+from benchgen.vhdl import module_parts as vhdl_module_parts
 
 __all__ = [
     "MAX_HEADER_LINE",
@@ -26,6 +27,8 @@ __all__ = [
     "header_lines",
     "render_core",
     "render_module",
+    "render_vhdl_core",
+    "render_vhdl_module",
     "template_dir",
     "template_environment",
     "verilog_literal",
@@ -61,7 +64,15 @@ def template_environment() -> jinja2.Environment:
 
 def render_module(module: Module) -> str:
     """A described module as Verilog-2005 text."""
-    text = template_environment().get_template("module.v.j2").render(module_parts(module))
+    return _tidy(template_environment().get_template("module.v.j2").render(module_parts(module)))
+
+
+def render_vhdl_module(module: Module) -> str:
+    """A described module as VHDL-2008 text (the same description as :func:`render_module`)."""
+    return _tidy(template_environment().get_template("module.vhd.j2").render(vhdl_module_parts(module)))
+
+
+def _tidy(text: str) -> str:
     # One trailing newline, no trailing blanks, no runs of blank lines: byte-stable output
     # whatever the spacing of the description.
     lines: list[str] = []
@@ -76,6 +87,11 @@ def render_module(module: Module) -> str:
 def render_core(design: Design, *, config_text: str = "") -> str:
     """The core's Verilog source."""
     return render_module(build_core(design, config_text=config_text))
+
+
+def render_vhdl_core(design: Design, *, config_text: str = "") -> str:
+    """The core's VHDL-2008 source, printed from the same description as its Verilog."""
+    return render_vhdl_module(build_core(design, config_text=config_text))
 
 
 def check_module_name(design: Design) -> None:
