@@ -171,3 +171,22 @@ def test_the_verilog_and_the_vhdl_core_give_the_same_stream(tmp_path: Path) -> N
         streams.append(csv.read_text())
     assert streams[0].count("\n") > 1_500
     assert streams[0] == streams[1]
+
+
+def test_a_missing_or_old_ghdl_is_one_clear_line(tmp_path: Path, capsys: pytest.CaptureFixture[str],
+                                                monkeypatch: pytest.MonkeyPatch) -> None:
+    """No ghdl on PATH, or a GHDL older than 2.0: exit 3 with how to install it, no traceback."""
+    from benchgen import simulators
+    from benchgen.simulators import SimulatorMissing, find_simulator
+
+    out, _ = _generate(tmp_path, "g", hdl="vhdl")
+    monkeypatch.setattr(simulators.shutil, "which", lambda name: None)
+    with pytest.raises(SimulatorMissing, match="apt-get install ghdl"):
+        find_simulator("ghdl")
+    status = main(["sim", str(out), "--simulator", "ghdl"])
+    err = capsys.readouterr().err
+    assert status == 3 and "apt-get install ghdl" in err and "Traceback" not in err
+    monkeypatch.setattr(simulators.shutil, "which", lambda name: f"/usr/bin/{name}")
+    monkeypatch.setattr(simulators, "_run_version", lambda cmd, env=None: "GHDL 1.0.0 (Debian) [Dunoon edition]")
+    with pytest.raises(SimulatorMissing, match="GHDL 1.0.0, but benchgen needs 2.0"):
+        find_simulator("ghdl")
