@@ -106,11 +106,11 @@ def check_module_name(design: Design) -> None:
         ConfigError: naming a close name that is free (tried the same way) as the fix.
     """
     name = design.spec.name
-    if name not in _inner_names(design):
+    if not _clashes(name, design):
         return
     for suffix in ("core", "top", "unit", "cordic"):
         better = f"{name[: MAX_NAME_LENGTH - len(suffix) - 1]}_{suffix}"
-        if name_problem(better) is None and better not in _inner_names(replace(design, spec=replace(design.spec, name=better))):
+        if name_problem(better) is None and not _clashes(better, replace(design, spec=replace(design.spec, name=better))):
             break
     else:  # pragma: no cover - four suffixes all taken inside one core
         better = "nco_core"
@@ -118,10 +118,19 @@ def check_module_name(design: Design) -> None:
         "name",
         name,
         "a name that no port, signal or constant inside the core also has (the inner one would "
-        "hide the module: verilator -Wall, VARHIDDEN)",
+        "hide the module: verilator -Wall, VARHIDDEN; in VHDL, in any case: ghdl -Whide)",
         f'use name = "{better}"',
         suggestion={"name": better},
     )
+
+
+def _clashes(name: str, design: Design) -> bool:
+    """Whether a name inside the core is the core's name: in any case where the core is also
+    VHDL, which ignores case (ghdl -Whide: a port ``clk`` hides an entity ``CLK``)."""
+    inner = _inner_names(design)
+    if "vhdl" in design.spec.hdl:
+        return name.lower() in {n.lower() for n in inner}
+    return name in inner
 
 
 def _inner_names(design: Design) -> set[str]:

@@ -5,6 +5,7 @@ examples byte for byte)."""
 from __future__ import annotations
 
 import json
+import re
 from pathlib import Path
 from typing import Any
 
@@ -190,3 +191,23 @@ def test_a_missing_or_old_ghdl_is_one_clear_line(tmp_path: Path, capsys: pytest.
     monkeypatch.setattr(simulators, "_run_version", lambda cmd, env=None: "GHDL 1.0.0 (Debian) [Dunoon edition]")
     with pytest.raises(SimulatorMissing, match="GHDL 1.0.0, but benchgen needs 2.0"):
         find_simulator("ghdl")
+
+
+def test_a_core_named_like_a_port_in_another_case_is_refused_for_vhdl(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    """VHDL ignores case: a port clk would hide an entity CLK (ghdl -Whide). Verilog tells them
+    apart, so a Verilog-only core may keep the name."""
+    for hdl, refused in (("verilog", False), (["verilog", "vhdl"], True)):
+        config = write_config(tmp_path / "n.toml", {**GOOD, "name": "CLK", "hdl": hdl})
+        out = tmp_path / f"n_{refused}"
+        status = main(["generate", str(config), "-o", str(out)])
+        err = capsys.readouterr().err
+        if not refused:
+            assert status == 0
+            continue
+        assert status == 2 and "field 'name'" in err and "Traceback" not in err and err.count("\n") == 1
+        fix = re.search(r'name = "(\w+)"', err)
+        assert fix is not None
+        generate_project(write_config(tmp_path / "fixed.toml", {**GOOD, "name": fix.group(1), "hdl": hdl}),
+                         tmp_path / "fixed")
