@@ -126,7 +126,7 @@ def _simulate(args: argparse.Namespace, project: Path) -> int:
     _output_file("--json", args.json)
     _output_file("--csv", args.csv)
 
-    if args.mode == "auto" and bulk_plan("auto", args.samples, args.exhaustive):
+    if args.mode == "auto" and args.simulator != "ghdl" and bulk_plan("auto", args.samples, args.exhaustive):
         why = "--exhaustive" if args.exhaustive else f"{args.samples} samples (>= {BULK_FROM_SAMPLES})"
         print(f"{why}: using the bulk bench (HDL streams whole blocks, Python checks whole arrays)")
     report = run_sim(
@@ -181,7 +181,7 @@ def _report(args: argparse.Namespace) -> int:
 def _add_sim_options(p: argparse.ArgumentParser, default_sim: str | None) -> None:
     p.add_argument(
         "--simulator",
-        choices=("icarus", "verilator"),
+        choices=("icarus", "verilator", "ghdl"),
         default=default_sim,
         required=default_sim is None,
         help="simulator to build and run with",

@@ -16,7 +16,8 @@ from typing import Any
 
 from benchgen.errors import ConfigError, show_value
 from benchgen.functions import FUNCTION_NAMES, function_named, refused_fields
-from benchgen.spec import DEFAULT_VLNV_LIBRARY, DEFAULT_VLNV_VENDOR, CoreSpec
+from benchgen.spec import DEFAULT_HDL, DEFAULT_VLNV_LIBRARY, DEFAULT_VLNV_VENDOR, HDLS, CoreSpec
+from benchgen.vhdl import RESERVED_WORDS as VHDL_RESERVED_WORDS
 
 __all__ = [
     "ANGLE_UNITS",
@@ -89,21 +90,8 @@ _VERILOG_KEYWORDS = frozenset(
     wildcard with within accept_on reject_on nexttime
     """.split()
 )
-# IEEE 1076-2008 reserved words (clause 15.10; listed from memory), plus VHDL-2019's `private`
-# and `view`: a VHDL back end is planned, and VHDL compares identifiers without case.
-_VHDL_KEYWORDS = frozenset(
-    """
-    abs access after alias all and architecture array assert assume assume_guarantee attribute
-    begin block body buffer bus case component configuration constant context cover default
-    disconnect downto else elsif end entity exit fairness file for force function generate
-    generic group guarded if impure in inertial inout is label library linkage literal loop map
-    mod nand new next nor not null of on open or others out package parameter port postponed
-    private procedure process property protected pure range record register reject release rem
-    report restrict restrict_guarantee return rol ror select sequence severity shared signal sla
-    sll sra srl strong subtype then to transport type unaffected units until use variable view
-    vmode vprop vunit wait when while with xnor xor
-    """.split()
-)
+# VHDL's reserved words (one list, the VHDL printer's): VHDL compares identifiers without case.
+_VHDL_KEYWORDS = VHDL_RESERVED_WORDS
 # Names that a simulator, or a library it loads, already defines:
 # - std: SystemVerilog's built-in package (IEEE 1800-2017 26.7); Verilator 5.048 ships it as
 #   `package std` (include/verilated_std.sv) and refuses a module of that name as a duplicate.
@@ -159,6 +147,7 @@ _FIELDS: tuple[str, ...] = (
     "prenormalise",
     "vlnv_vendor",
     "vlnv_library",
+    "hdl",
 )
 
 
@@ -174,6 +163,10 @@ def spec_to_dict(spec: CoreSpec) -> dict[str, Any]:
             if key in ("iterations", "guard_bits"):
                 out[key] = "auto"
             continue
+        if key == "hdl":
+            if value == DEFAULT_HDL:
+                continue  # a Verilog-only core's manifest stays as it was before the field existed
+            value = value[0] if len(value) == 1 else list(value)
         out[key] = value
     return out
 
@@ -319,6 +312,36 @@ def _check_name(value: Any) -> str:
     return value
 
 
+def _toml(value: str | list[str]) -> str:
+    """A string or a list of strings as TOML writes it."""
+    return f'"{value}"' if isinstance(value, str) else "[" + ", ".join(f'"{x}"' for x in value) + "]"
+
+
+def _hdl_field(raw: Mapping[str, Any]) -> tuple[str, ...]:
+    """The output languages: one name, or a list of distinct names, from :data:`HDLS`."""
+    if "hdl" not in raw:
+        return DEFAULT_HDL
+    value = raw["hdl"]
+    allowed = '"verilog", "vhdl" or ["verilog", "vhdl"]'
+    items = value if isinstance(value, list) else [value]
+    if not items or not all(isinstance(v, str) for v in items):
+        raise ConfigError("hdl", value, allowed, 'write hdl = "verilog", hdl = "vhdl" or hdl = ["verilog", "vhdl"]',
+                          suggestion={"hdl": "verilog"})
+    for v in items:
+        if v not in HDLS:
+            near = difflib.get_close_matches(v.lower(), list(HDLS), n=1, cutoff=0.4)
+            hint = near[0] if near else HDLS[0]
+            fixed = [hint if x == v else x for x in items]
+            fix_value = fixed[0] if not isinstance(value, list) else sorted(set(fixed), key=HDLS.index)
+            raise ConfigError("hdl", value, allowed, f"use hdl = {_toml(fix_value)}", suggestion={"hdl": fix_value})
+    if len(set(items)) != len(items):
+        unique = sorted(set(items), key=HDLS.index)
+        fix_value = unique[0] if len(unique) == 1 else unique
+        raise ConfigError("hdl", value, f"{allowed}, each language once", f"use hdl = {_toml(fix_value)}",
+                          suggestion={"hdl": fix_value})
+    return tuple(sorted(items, key=HDLS.index))
+
+
 def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
     """Validate a mapping of config values and return the frozen spec.
 
@@ -394,6 +417,7 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
 
     vlnv_vendor = _vlnv_field(raw, "vlnv_vendor", DEFAULT_VLNV_VENDOR)
     vlnv_library = _vlnv_field(raw, "vlnv_library", DEFAULT_VLNV_LIBRARY)
+    hdl = _hdl_field(raw)
 
     max_error = raw.get("max_error_lsb", 1.0)
     if isinstance(max_error, bool) or not isinstance(max_error, int | float):
@@ -479,6 +503,7 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
         prenormalise=prenormalise,
         vlnv_vendor=vlnv_vendor,
         vlnv_library=vlnv_library,
+        hdl=hdl,
     )
 
 

@@ -19,6 +19,7 @@ from benchgen.errors import ConfigError
 from benchgen.hardware import MAX_HEADER_LINE, build_core, header_lines
 from benchgen.netlist import Module, declared
 from benchgen.verilog import literal, module_parts
+from benchgen.vhdl import module_parts as vhdl_module_parts
 
 __all__ = [
     "MAX_HEADER_LINE",
@@ -26,6 +27,8 @@ __all__ = [
     "header_lines",
     "render_core",
     "render_module",
+    "render_vhdl_core",
+    "render_vhdl_module",
     "template_dir",
     "template_environment",
     "verilog_literal",
@@ -61,7 +64,15 @@ def template_environment() -> jinja2.Environment:
 
 def render_module(module: Module) -> str:
     """A described module as Verilog-2005 text."""
-    text = template_environment().get_template("module.v.j2").render(module_parts(module))
+    return _tidy(template_environment().get_template("module.v.j2").render(module_parts(module)))
+
+
+def render_vhdl_module(module: Module) -> str:
+    """A described module as VHDL-2008 text (the same description as :func:`render_module`)."""
+    return _tidy(template_environment().get_template("module.vhd.j2").render(vhdl_module_parts(module)))
+
+
+def _tidy(text: str) -> str:
     # One trailing newline, no trailing blanks, no runs of blank lines: byte-stable output
     # whatever the spacing of the description.
     lines: list[str] = []
@@ -78,6 +89,11 @@ def render_core(design: Design, *, config_text: str = "") -> str:
     return render_module(build_core(design, config_text=config_text))
 
 
+def render_vhdl_core(design: Design, *, config_text: str = "") -> str:
+    """The core's VHDL-2008 source, printed from the same description as its Verilog."""
+    return render_vhdl_module(build_core(design, config_text=config_text))
+
+
 def check_module_name(design: Design) -> None:
     """Refuse a core name that is also the name of a port, signal or constant inside the core.
 
@@ -90,11 +106,11 @@ def check_module_name(design: Design) -> None:
         ConfigError: naming a close name that is free (tried the same way) as the fix.
     """
     name = design.spec.name
-    if name not in _inner_names(design):
+    if not _clashes(name, design):
         return
     for suffix in ("core", "top", "unit", "cordic"):
         better = f"{name[: MAX_NAME_LENGTH - len(suffix) - 1]}_{suffix}"
-        if name_problem(better) is None and better not in _inner_names(replace(design, spec=replace(design.spec, name=better))):
+        if name_problem(better) is None and not _clashes(better, replace(design, spec=replace(design.spec, name=better))):
             break
     else:  # pragma: no cover - four suffixes all taken inside one core
         better = "nco_core"
@@ -102,10 +118,19 @@ def check_module_name(design: Design) -> None:
         "name",
         name,
         "a name that no port, signal or constant inside the core also has (the inner one would "
-        "hide the module: verilator -Wall, VARHIDDEN)",
+        "hide the module: verilator -Wall, VARHIDDEN; in VHDL, in any case: ghdl -Whide)",
         f'use name = "{better}"',
         suggestion={"name": better},
     )
+
+
+def _clashes(name: str, design: Design) -> bool:
+    """Whether a name inside the core is the core's name: in any case where the core is also
+    VHDL, which ignores case (ghdl -Whide: a port ``clk`` hides an entity ``CLK``)."""
+    inner = _inner_names(design)
+    if "vhdl" in design.spec.hdl:
+        return name.lower() in {n.lower() for n in inner}
+    return name in inner
 
 
 def _inner_names(design: Design) -> set[str]:

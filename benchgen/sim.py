@@ -24,7 +24,7 @@ from benchgen.bench.bulk_plan import FULL_RATE_TESTS, bulk_plan, bulk_run_args
 from benchgen.bench.scoreboard import CSV_ENV, RESULTS_ENV, SAMPLES_ENV
 from benchgen.errors import BenchgenError
 from benchgen.project import ProjectError, design_from_manifest, load_manifest
-from benchgen.simulators import SIMULATORS, SimulatorMissing, find_simulator, simulator_env
+from benchgen.simulators import SIMULATORS, VHDL_SIMULATORS, SimulatorMissing, find_simulator, simulator_env
 
 __all__ = ["BULK_ENGINES", "SimError", "SimReport", "run_sim", "space_free_build_dir"]
 
@@ -210,11 +210,16 @@ def run_sim(
         SimError: if the simulator is missing or the run could not start.
         ProjectError: if the folder is not a (current) benchgen project.
     """
-    if simulator not in SIMULATORS:
-        raise SimError(f"unknown simulator '{simulator}': use one of {', '.join(SIMULATORS)}")
+    if simulator not in SIMULATORS + VHDL_SIMULATORS:
+        raise SimError(f"unknown simulator '{simulator}': use one of {', '.join(SIMULATORS + VHDL_SIMULATORS)}")
     if samples < 1:
         raise SimError(f"--samples {samples}: give a positive number of samples")
     bulk = bulk_plan(mode, samples, exhaustive)
+    if simulator in VHDL_SIMULATORS and bulk:
+        # The bulk harness is Verilog; a VHDL one is not written yet.
+        if exhaustive or mode == "bulk":
+            raise SimError(f"the bulk bench (and --exhaustive) does not run on {simulator} yet; use --mode per-clock")
+        bulk = False  # auto: the per-clock bench, at any sample count
     if bulk_engine not in BULK_ENGINES:
         raise SimError(f"bulk engine '{bulk_engine}': use one of {', '.join(BULK_ENGINES)}")
     native = bulk and simulator == "verilator" and (bulk_engine == "native" or (bulk_engine == "auto" and not waves))
@@ -225,6 +230,7 @@ def run_sim(
     project = Path(project_dir).resolve()
     manifest = load_manifest(project)
     design = design_from_manifest(manifest)
+    _check_language(manifest, simulator)
     try:
         info = find_simulator(simulator)
     except SimulatorMissing as exc:
@@ -267,6 +273,20 @@ def run_sim(
                         results_jsonl, results_xml, csv_tmp if csv_path else None, log_file)
         _copy_csv(csv_tmp, csv_path)
     return report
+
+
+def _check_language(manifest: dict[str, Any], simulator: str) -> None:
+    """Refuse a simulator whose language the project's core is not written in."""
+    if simulator in VHDL_SIMULATORS and not manifest["files"].get("vhdl"):
+        raise SimError(
+            f"{simulator} simulates the VHDL core and this project has none: set "
+            'hdl = ["verilog", "vhdl"] in config.toml and regenerate, or use --simulator verilator'
+        )
+    if simulator in SIMULATORS and not manifest["files"]["rtl"]:
+        raise SimError(
+            f'{simulator} simulates the Verilog core and this project has none (hdl = "vhdl"): use '
+            '--simulator ghdl, or set hdl = ["verilog", "vhdl"] in config.toml and regenerate'
+        )
 
 
 class _RunFiles:
@@ -322,6 +342,16 @@ def _run_cocotb(
     simulator = report.simulator
     sources = [project / rel for rel in manifest["files"]["rtl"]]
     build_args: list[str] = []
+    test_args: list[str] = []
+    run_options: list[str] = []
+    if simulator in VHDL_SIMULATORS:
+        sources = [project / rel for rel in manifest["files"]["vhdl"]]
+        # Analysis and elaboration both need the standard the library was built with.
+        build_args, test_args = list(info.build_args), list(info.build_args)
+        # numeric_std's warnings only from the first clock on: at time 0 the inputs are still
+        # undriven and it warns of every 'U' it compares. A run option, so after the unit name,
+        # where the runner puts plusargs.
+        run_options = ["--ieee-asserts=disable-at-0"]
     test_module, hdl_top, testcase = manifest["files"]["test_module"], top, None
     if bulk:
         sources, test_module, hdl_top, build_args, testcase = bulk_run_args(project, manifest, info.name, exhaustive)
@@ -357,6 +387,8 @@ def _run_cocotb(
                 test_dir=build,
                 seed=seed,
                 waves=waves,
+                test_args=test_args,
+                plusargs=run_options,
                 results_xml=str(results_xml),
                 timescale=("1ns", "1ps"),
                 log_file=log_file,

@@ -8,12 +8,16 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-__all__ = ["DEFAULT_VLNV_LIBRARY", "DEFAULT_VLNV_VENDOR", "CoreSpec"]
+__all__ = ["DEFAULT_HDL", "DEFAULT_VLNV_LIBRARY", "DEFAULT_VLNV_VENDOR", "HDLS", "CoreSpec"]
 
 DEFAULT_VLNV_VENDOR = "benchgen"
 """Vendor part of a core's FuseSoC name, unless the config sets ``vlnv_vendor``."""
 DEFAULT_VLNV_LIBRARY = "cores"
 """Library part of a core's FuseSoC name, unless the config sets ``vlnv_library``."""
+HDLS = ("verilog", "vhdl")
+"""The languages a core is written in: Verilog-2005 (``rtl/NAME.v``), VHDL-2008 (``rtl/NAME.vhd``)."""
+DEFAULT_HDL = ("verilog",)
+"""The languages of a core whose config sets no ``hdl``."""
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -42,6 +46,8 @@ class CoreSpec:
             iterations (``False`` keeps the smaller core without the normaliser).
         vlnv_vendor: Vendor part of the core's FuseSoC name ``vendor:library:name:version``.
         vlnv_library: Library part of that name.
+        hdl: The languages the core is written in, in the order of :data:`HDLS` (``verilog``,
+            ``vhdl`` or both).
     """
 
     name: str
@@ -61,3 +67,4 @@ class CoreSpec:
     prenormalise: bool = True
     vlnv_vendor: str = DEFAULT_VLNV_VENDOR
     vlnv_library: str = DEFAULT_VLNV_LIBRARY
+    hdl: tuple[str, ...] = DEFAULT_HDL

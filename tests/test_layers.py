@@ -19,7 +19,7 @@ LAYERS: list[list[str]] = [
     ["errors", "spec"],
     ["algorithm", "reference", "simulators", "lfsr"],
     ["model", "netlist", "spectrum"],
-    ["hwlib", "verilog"],
+    ["hwlib", "verilog", "vhdl"],
     ["functions"],
     ["config", "nco", "nco_theory"],
     ["design", "nco_sizing"],
@@ -147,11 +147,12 @@ def test_a_function_name_is_a_literal_only_in_its_own_module(function: str) -> N
     assert not found, f'"{function}" appears as a literal outside its module: {found}'
 
 
-def test_the_verilog_template_only_lays_out_printed_text() -> None:
-    """The core's template holds no test of a function and no arithmetic: it prints the parts
-    Python made (header, ports, constants, body) and nothing else."""
-    text = (ROOT / "rtl_templates" / "module.v.j2").read_text()
+@pytest.mark.parametrize("template", ["module.v.j2", "module.vhd.j2"])
+def test_the_core_templates_only_lay_out_printed_text(template: str) -> None:
+    """The core's templates (Verilog and VHDL) hold no test of a function and no arithmetic:
+    they print the parts Python made (header, ports, constants, body) and nothing else."""
+    text = (ROOT / "rtl_templates" / template).read_text()
     statements = [s.strip() for s in text.split("{%")[1:]]
-    assert all(s.split()[0] in ("for", "endfor") for s in statements)
+    assert statements and all(s.split()[0] in ("for", "endfor") for s in statements)
     for expr in (s.split("}}")[0] for s in text.split("{{")[1:]):
         assert not any(op in expr for op in ("+", "-", "*", "/", "function", "dp.")), expr
