@@ -213,6 +213,13 @@ class Builder:
         top = e[e.width - 1]
         return Cat((Rep(width - e.width, top), e))
 
+    def internal(self, value: Sig, width: int) -> Expr:
+        """A signed input ``value`` at internal scale in ``width`` bits: sign-extended above,
+        the guard bits (zeros) below."""
+        top = value.width - 1
+        ext = width - value.width - self.G
+        return Cat((Rep(ext, value[top]), value) + ((Const(0, self.G),) if self.G else ()))
+
     def pad(self, e: Expr, low: int) -> Expr:
         """``e`` with ``low`` zero bits appended below (one flat concatenation)."""
         if not low:

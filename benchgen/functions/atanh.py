@@ -15,7 +15,7 @@ from benchgen.functions.base import Inputs, Outputs, Port, fixed_doc, pack, sign
 from benchgen.functions.hyperbolic import HyperbolicFunction
 from benchgen.hwlib import Builder, Final, Start
 from benchgen.model import as_ints, dtype_for, iterate, round_drop, saturate, to_signed
-from benchgen.netlist import Cat, Cmp, Const, Mux, Neg, Rep
+from benchgen.netlist import Cat, Cmp, Const, Mux, Neg
 from benchgen.reference import errors_lsb
 from benchgen.spec import CoreSpec
 
@@ -145,7 +145,7 @@ class Atanh(HyperbolicFunction):
 
     def hw_inputs(self, b: Builder, dp: Datapath) -> Start:
         assert isinstance(dp, AtanhDatapath)
-        W, ZW, B, G = dp.xy_width, dp.z_width, dp.data_width, dp.guard_bits
+        W, ZW, B = dp.xy_width, dp.z_width, dp.data_width
         b.note(
             "Hyperbolic vectoring of (1, u): z collects atanh(u). Beyond |u| <= tanh(1.1182) the\n"
             "iterations cannot reach the angle (Walther 1971): the sample is flagged, its result 0."
@@ -156,7 +156,7 @@ class Atanh(HyperbolicFunction):
         u_abs = b.wire("u_abs", Mux(u_ext[B], Neg(u_ext), u_ext))
         bad = b.wire("in_bad", Cmp(">", u_abs, Const(dp.domain_limit, B + 1)))
         x = b.wire("x_start", x0, of="xy")
-        y = b.wire("y_start", Cat((Rep(W - B - G, in_u[B - 1]), in_u) + ((Const(0, G),) if G else ())), of="xy")
+        y = b.wire("y_start", b.internal(in_u, W), of="xy")
         z = b.wire("z_start", Const(0, ZW), of="z")
         return Start(x, y, z, {"bad": bad})
 

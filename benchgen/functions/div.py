@@ -172,7 +172,7 @@ class Div(LinearFunction):
 
     def hw_inputs(self, b: Builder, dp: Datapath) -> Start:
         assert isinstance(dp, LinearDatapath)
-        W, ZW, B, G = dp.xy_width, dp.z_width, dp.data_width, dp.guard_bits
+        W, ZW, B = dp.xy_width, dp.z_width, dp.data_width
         b.note(
             "Linear vectoring: x holds |den|, y starts at num (negated with den) and is driven to 0\n"
             "while z collects num / den. Outside |num| < 2 |den| (the linear range, Walther 1971) the\n"
@@ -202,9 +202,8 @@ class Div(LinearFunction):
         num_norm = b.wire("num_norm", Shl(num_ext, shift))
         den_norm_abs = b.wire("den_norm_abs", Mux(neg, Neg(den_norm), den_norm))
         num_turned = b.wire("num_turned", Mux(neg, Neg(num_norm), num_norm))
-        ext = W - B - 1 - G
-        x = b.wire("x_start", Cat((Rep(ext, den_norm_abs[B]), den_norm_abs) + ((Const(0, G),) if G else ())), of="xy")
-        y = b.wire("y_start", Cat((Rep(ext, num_turned[B]), num_turned) + ((Const(0, G),) if G else ())), of="xy")
+        x = b.wire("x_start", b.internal(den_norm_abs, W), of="xy")
+        y = b.wire("y_start", b.internal(num_turned, W), of="xy")
         z = b.wire("z_start", Const(0, ZW), of="z")
         return Start(x, y, z, {"bad": bad})
 

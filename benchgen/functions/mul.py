@@ -13,7 +13,7 @@ from benchgen.functions.base import Inputs, Outputs, Port, below, pack, signed_o
 from benchgen.functions.linear import EXACT_FLOAT_LINEAR_BITS, LinearDatapath, LinearFunction
 from benchgen.hwlib import Builder, Final, Start
 from benchgen.model import as_ints, dtype_for, iterate, round_drop, saturate, to_signed
-from benchgen.netlist import Cat, Const, Rep
+from benchgen.netlist import Const
 from benchgen.reference import errors_lsb
 from benchgen.spec import CoreSpec
 
@@ -90,12 +90,12 @@ class Mul(LinearFunction):
         return False, True, False
 
     def hw_inputs(self, b: Builder, dp: Datapath) -> Start:
-        W, ZW, B, G = dp.xy_width, dp.z_width, dp.data_width, dp.guard_bits
+        W, ZW = dp.xy_width, dp.z_width
         b.note("Linear rotation: x holds a, z starts at b and is driven to 0 while y collects a b.")
         in_a, in_b = b.sig("in_a"), b.sig("in_b")
-        x = b.wire("x_start", Cat((Rep(W - B - G, in_a[B - 1]), in_a) + ((Const(0, G),) if G else ())), of="xy")
+        x = b.wire("x_start", b.internal(in_a, W), of="xy")
         y = b.wire("y_start", Const(0, W), of="xy")
-        z = b.wire("z_start", Cat((Rep(ZW - B - G, in_b[B - 1]), in_b) + ((Const(0, G),) if G else ())), of="z")
+        z = b.wire("z_start", b.internal(in_b, ZW), of="z")
         return Start(x, y, z)
 
     def hw_outputs(self, b: Builder, dp: Datapath, final: Final, side: Mapping[str, Any]) -> None:
