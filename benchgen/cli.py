@@ -100,8 +100,9 @@ def _generate(args: argparse.Namespace) -> int:
 
 
 class _Progress:
-    """Progress lines on stderr for a generate that takes a while: silent for the first
-    2 seconds, then at most one line a second."""
+    """Progress lines on stdout (beside the "wrote" line; stderr keeps the one-line errors) for
+    a generate that takes a while: silent for the first 2 seconds, then at most one line a
+    second."""
 
     QUIET_SECONDS = 2.0
 
@@ -114,7 +115,7 @@ class _Progress:
         if now - self.start < self.QUIET_SECONDS or now - self.last < 1.0:
             return
         self.last = now
-        print(f"  sizing ({now - self.start:.0f} s): {text}", file=sys.stderr, flush=True)
+        print(f"  sizing ({now - self.start:.0f} s): {text}", flush=True)
 
 
 def _simulate(args: argparse.Namespace, project: Path) -> int:
@@ -132,7 +133,7 @@ def _simulate(args: argparse.Namespace, project: Path) -> int:
         html = Path(args.html)
         csv_path = str(html.with_name(f".{html.name}.samples.csv"))
 
-    if args.mode == "auto" and bulk_plan("auto", args.samples, args.exhaustive):
+    if args.mode == "auto" and args.simulator != "ghdl" and bulk_plan("auto", args.samples, args.exhaustive):
         why = "--exhaustive" if args.exhaustive else f"{args.samples} samples (>= {BULK_FROM_SAMPLES})"
         print(f"{why}: using the bulk bench (HDL streams whole blocks, Python checks whole arrays)")
     report = run_sim(
@@ -206,14 +207,15 @@ def _report(args: argparse.Namespace) -> int:
 
 
 def _add_sim_options(p: argparse.ArgumentParser) -> None:
-    from benchgen.simulators import DEFAULT_SIMULATOR, SIMULATORS
+    from benchgen.simulators import DEFAULT_SIMULATOR, SIMULATORS, VHDL_SIMULATORS
 
     p.add_argument(
         "--simulator",
-        choices=SIMULATORS,
+        choices=(*SIMULATORS, *VHDL_SIMULATORS),
         default=DEFAULT_SIMULATOR,
         help=f"simulator to build and run with (default {DEFAULT_SIMULATOR}: it comes with benchgen from PyPI "
-        "and simulates faster; icarus builds faster, so a short run of a small core ends sooner there)",
+        "and simulates faster; icarus builds faster, so a short run of a small core ends sooner there; "
+        "ghdl runs the VHDL core)",
     )
     p.add_argument(
         "--samples",

@@ -15,13 +15,20 @@ from pathlib import Path
 from typing import Any
 
 from benchgen.errors import ConfigError, show_value
+from benchgen.functions import FUNCTION_NAMES, function_named, refused_fields
+from benchgen.functions import FUNCTIONS as _FUNCTION_CLASSES
+from benchgen.spec import DEFAULT_HDL, DEFAULT_VLNV_LIBRARY, DEFAULT_VLNV_VENDOR, HDLS, CoreSpec
+from benchgen.vhdl import RESERVED_WORDS as VHDL_RESERVED_WORDS
 
 __all__ = [
     "ANGLE_UNITS",
     "ARCHITECTURES",
+    "DEFAULT_VLNV_LIBRARY",
+    "DEFAULT_VLNV_VENDOR",
     "FUNCTIONS",
     "GAIN_MODES",
     "MAX_NAME_LENGTH",
+    "MAX_PORT_WIDTH",
     "MAX_WIDTH",
     "ROUNDING_MODES",
     "SYNONYMS",
@@ -30,16 +37,11 @@ __all__ = [
     "name_problem",
     "parse_config",
     "read_toml",
+    "spec_to_dict",
     "suggest_name",
 ]
 
-FUNCTIONS = ("sincos", "rotate", "atan2", "mul", "div", "sinhcosh", "exp", "atanh", "ln", "sqrt")
-LINEAR_FUNCTIONS = ("mul", "div")
-HYPERBOLIC_FUNCTIONS = ("sinhcosh", "exp", "atanh", "ln", "sqrt")
-# Functions whose ports carry no angle (angle_width and angle_unit do not apply).
-ANGLE_FREE_FUNCTIONS = LINEAR_FUNCTIONS + HYPERBOLIC_FUNCTIONS
-# Functions whose result carries no gain (gain does not apply).
-GAIN_FREE_FUNCTIONS = LINEAR_FUNCTIONS + ("atanh", "ln")
+FUNCTIONS = FUNCTION_NAMES
 GAIN_MODES = ("compensated", "raw")
 ANGLE_UNITS = ("turns", "radians")
 MIN_RADIAN_ANGLE_WIDTH = 6
@@ -47,15 +49,10 @@ ARCHITECTURES = ("pipelined", "iterative")
 ROUNDING_MODES = ("truncate", "half_up", "half_even")
 # Trade names an engineer may write for a value, by field: the "did you mean" hint ranks by
 # meaning first and by spelling only where no synonym is known ("atan" is close in spelling to
-# "atanh", but an engineer who writes it means the two-argument arctangent).
+# "atanh", but an engineer who writes it means the two-argument arctangent). A function's own
+# trade names live in its module (``Function.synonyms``), where its name may be written.
 SYNONYMS: dict[str, dict[str, str]] = {
-    "function": {
-        "sin": "sincos", "cos": "sincos", "sine": "sincos", "cosine": "sincos", "nco": "sincos",
-        "atan": "atan2", "arctan": "atan2", "arctan2": "atan2", "phase": "atan2",
-        "magnitude": "atan2", "hypot": "atan2",
-        "log": "ln", "divide": "div", "multiply": "mul",
-        "sinh": "sinhcosh", "cosh": "sinhcosh",
-    },
+    "function": {s: f.name for f in _FUNCTION_CLASSES for s in f.synonyms},
     "rounding": {
         "round_half_even": "half_even", "rne": "half_even", "convergent": "half_even",
         "bankers": "half_even", "floor": "truncate", "trunc": "truncate", "round_half_up": "half_up",
@@ -67,9 +64,19 @@ SYNONYMS: dict[str, dict[str, str]] = {
 }
 MIN_ANGLE_WIDTH = 3
 MIN_DATA_WIDTH = 3
-MAX_WIDTH = 64
-MAX_TAG_WIDTH = 64
+MAX_PORT_WIDTH = 64
+"""Widest port of a core: the bulk harness packs each port into a slot of at most 8 bytes, and its
+C++ runner moves ports as 64-bit integers (benchgen/harness.py)."""
+MAX_WIDTH = MAX_PORT_WIDTH
+"""Widest ``data_width`` and ``angle_width``: each is the width of a port."""
+MAX_TAG_WIDTH = MAX_PORT_WIDTH
 MAX_ITERATIONS = 96
+# The vendor and library parts of the FuseSoC name (VLNV) of the core file every project holds
+# (benchgen/fusesoc.py). FuseSoC 2.4's own rule for each part is [A-Za-z0-9_.-]* (its vlnv.py);
+# ours also wants a letter or digit first (a leading '-' or '.' reads as an option or a hidden
+# file) and a bounded length.
+MAX_VLNV_PART = 64
+_VLNV_PART = re.compile(r"[A-Za-z0-9][A-Za-z0-9_.-]*")
 
 # IEEE 1364-2005 reserved words, plus the IEEE 1800-2017 ones, because Verilator parses
 # Verilog files as SystemVerilog by default and a module called `logic` would break there.
@@ -100,21 +107,8 @@ _VERILOG_KEYWORDS = frozenset(
     wildcard with within accept_on reject_on nexttime
     """.split()
 )
-# IEEE 1076-2008 reserved words (clause 15.10; listed from memory), plus VHDL-2019's `private`
-# and `view`: a VHDL back end is planned, and VHDL compares identifiers without case.
-_VHDL_KEYWORDS = frozenset(
-    """
-    abs access after alias all and architecture array assert assume assume_guarantee attribute
-    begin block body buffer bus case component configuration constant context cover default
-    disconnect downto else elsif end entity exit fairness file for force function generate
-    generic group guarded if impure in inertial inout is label library linkage literal loop map
-    mod nand new next nor not null of on open or others out package parameter port postponed
-    private procedure process property protected pure range record register reject release rem
-    report restrict restrict_guarantee return rol ror select sequence severity shared signal sla
-    sll sra srl strong subtype then to transport type unaffected units until use variable view
-    vmode vprop vunit wait when while with xnor xor
-    """.split()
-)
+# VHDL's reserved words (one list, the VHDL printer's): VHDL compares identifiers without case.
+_VHDL_KEYWORDS = VHDL_RESERVED_WORDS
 # Names that a simulator, or a library it loads, already defines:
 # - std: SystemVerilog's built-in package (IEEE 1800-2017 26.7); Verilator 5.048 ships it as
 #   `package std` (include/verilated_std.sv) and refuses a module of that name as a duplicate.
@@ -154,69 +148,6 @@ _NAME_RULE = (
 )
 
 
-@dataclass(frozen=True, kw_only=True)
-class CoreSpec:
-    """One core, as the user asked for it (``None`` means ``auto`` or "not applicable").
-
-    Attributes:
-        name: Verilog module name.
-        function: Which function the core computes (``sincos``, ``rotate``, ``atan2``, ``mul``,
-            ``div``, ``sinhcosh``, ``exp``, ``atanh``, ``ln``, ``sqrt``).
-        architecture: ``pipelined`` or ``iterative``.
-        pipeline_depth: Register stages of a pipelined core; ``None`` means one per iteration.
-        iterations_per_cycle: Iterations an iterative core performs per clock.
-        angle_width: Bits of the binary angle input (2**angle_width codes per turn).
-        data_width: Bits of each signed output.
-        iterations: Rotation iterations, or ``None`` for auto sizing.
-        guard_bits: Extra fraction bits inside the data path, or ``None`` for auto sizing.
-        rounding: How the guard bits are dropped at the output.
-        tag_width: Width of the user tag carried with each sample; 0 means no tag ports.
-        max_error_lsb: Worst error the core may have against the ideal, in output LSBs.
-        gain: ``compensated`` (the core removes the rotation gain) or ``raw`` (left in, stated
-            in the manifest).
-        angle_unit: ``turns`` (binary angle) or ``radians`` (signed fixed point, 3 integer bits).
-        prenormalise: atan2: shift (x, y) left by their common redundant sign bits before
-            vectoring, so the angle meets the budget for every non-zero vector (``False``
-            keeps the smaller core whose angle is judged only for long vectors).
-    """
-
-    name: str
-    function: str = "sincos"
-    architecture: str = "pipelined"
-    pipeline_depth: int | None = None
-    iterations_per_cycle: int | None = None
-    angle_width: int = 16
-    data_width: int = 16
-    iterations: int | None = None
-    guard_bits: int | None = None
-    rounding: str = "half_even"
-    tag_width: int = 0
-    max_error_lsb: float = 1.0
-    gain: str = "compensated"
-    angle_unit: str = "turns"
-    prenormalise: bool = True
-
-    def to_dict(self) -> dict[str, Any]:
-        """The spec as config-file values (``auto`` for sized fields, absent fields dropped)."""
-        out: dict[str, Any] = {}
-        unused: tuple[str, ...] = ()
-        if self.function in ANGLE_FREE_FUNCTIONS:
-            unused += ("angle_width", "angle_unit")
-        if self.function in GAIN_FREE_FUNCTIONS:
-            unused += ("gain",)
-        if self.function != "atan2":
-            unused += ("prenormalise",)
-        for key, value in asdict(self).items():
-            if key in unused:
-                continue
-            if value is None:
-                if key in ("iterations", "guard_bits"):
-                    out[key] = "auto"
-                continue
-            out[key] = value
-        return out
-
-
 _FIELDS: tuple[str, ...] = (
     "name",
     "function",
@@ -233,7 +164,30 @@ _FIELDS: tuple[str, ...] = (
     "gain",
     "angle_unit",
     "prenormalise",
+    "vlnv_vendor",
+    "vlnv_library",
+    "hdl",
 )
+
+
+def spec_to_dict(spec: CoreSpec) -> dict[str, Any]:
+    """The spec as config-file values (``auto`` for sized fields; fields the function does not
+    use, and absent ones, dropped)."""
+    unused = set(refused_fields(function_named(spec.function)))
+    out: dict[str, Any] = {}
+    for key, value in asdict(spec).items():
+        if key in unused:
+            continue
+        if value is None:
+            if key in ("iterations", "guard_bits"):
+                out[key] = "auto"
+            continue
+        if key == "hdl":
+            if value == DEFAULT_HDL:
+                continue  # a Verilog-only core's manifest stays as it was before the field existed
+            value = value[0] if len(value) == 1 else list(value)
+        out[key] = value
+    return out
 
 
 def _closest(word: str, choices: tuple[str, ...] | list[str]) -> str:
@@ -317,6 +271,26 @@ def _meant(key: str, value: str, choices: tuple[str, ...]) -> str:
     return choices[0]
 
 
+def _vlnv_field(raw: Mapping[str, Any], key: str, default: str) -> str:
+    """A part of the core's FuseSoC name; the fix offered is the value with its bad characters
+    replaced, which this check then accepts."""
+    if key not in raw:
+        return default
+    value = raw[key]
+    allowed = (
+        "letters, digits, '.', '-' and '_', starting with a letter or digit, at most "
+        f"{MAX_VLNV_PART} characters (a part of FuseSoC's vendor:library:name:version)"
+    )
+    if not isinstance(value, str):
+        raise ConfigError(
+            key, value, allowed, f'write it as a quoted string, e.g. {key} = "{default}"', suggestion={key: default}
+        )
+    if _VLNV_PART.fullmatch(value) and len(value) <= MAX_VLNV_PART:
+        return value
+    cleaned = re.sub(r"[^A-Za-z0-9_.-]+", "_", value).lstrip("_.-")[:MAX_VLNV_PART] or default
+    raise ConfigError(key, value, allowed, f'use {key} = "{cleaned}"', suggestion={key: cleaned})
+
+
 def name_problem(value: str) -> str | None:
     """Why ``value`` cannot name a core (a phrase for the message), or ``None`` if it can."""
     if not _IDENTIFIER.fullmatch(value):
@@ -371,6 +345,36 @@ def _check_name(value: Any) -> str:
     return value
 
 
+def _toml(value: str | list[str]) -> str:
+    """A string or a list of strings as TOML writes it."""
+    return f'"{value}"' if isinstance(value, str) else "[" + ", ".join(f'"{x}"' for x in value) + "]"
+
+
+def _hdl_field(raw: Mapping[str, Any]) -> tuple[str, ...]:
+    """The output languages: one name, or a list of distinct names, from :data:`HDLS`."""
+    if "hdl" not in raw:
+        return DEFAULT_HDL
+    value = raw["hdl"]
+    allowed = '"verilog", "vhdl" or ["verilog", "vhdl"]'
+    items = value if isinstance(value, list) else [value]
+    if not items or not all(isinstance(v, str) for v in items):
+        raise ConfigError("hdl", value, allowed, 'write hdl = "verilog", hdl = "vhdl" or hdl = ["verilog", "vhdl"]',
+                          suggestion={"hdl": "verilog"})
+    for v in items:
+        if v not in HDLS:
+            near = difflib.get_close_matches(v.lower(), list(HDLS), n=1, cutoff=0.4)
+            hint = near[0] if near else HDLS[0]
+            fixed = [hint if x == v else x for x in items]
+            fix_value = fixed[0] if not isinstance(value, list) else sorted(set(fixed), key=HDLS.index)
+            raise ConfigError("hdl", value, allowed, f"use hdl = {_toml(fix_value)}", suggestion={"hdl": fix_value})
+    if len(set(items)) != len(items):
+        unique = sorted(set(items), key=HDLS.index)
+        fix_value = unique[0] if len(unique) == 1 else unique
+        raise ConfigError("hdl", value, f"{allowed}, each language once", f"use hdl = {_toml(fix_value)}",
+                          suggestion={"hdl": fix_value})
+    return tuple(sorted(items, key=HDLS.index))
+
+
 def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
     """Validate a mapping of config values and return the frozen spec.
 
@@ -396,8 +400,8 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
             "function",
             "(missing)",
             "required",
-            'add function = "sincos" (or one of rotate, atan2, mul, div, sinhcosh, exp, atanh, ln, sqrt)',
-            suggestion={"function": "sincos"},
+            f'add function = "{FUNCTION_NAMES[0]}" (or one of {", ".join(FUNCTION_NAMES[1:])})',
+            suggestion={"function": FUNCTION_NAMES[0]},
         )
     name = _check_name(raw["name"])
     function = _choice_field(raw, "function", FUNCTIONS)
@@ -414,22 +418,15 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
     tag_width = _int_field(raw, "tag_width", 0, MAX_TAG_WIDTH, default=0) if "tag_width" in raw else 0
     gain = _choice_field(raw, "gain", GAIN_MODES) if "gain" in raw else "compensated"
     angle_unit = _choice_field(raw, "angle_unit", ANGLE_UNITS) if "angle_unit" in raw else "turns"
-    if function in ANGLE_FREE_FUNCTIONS:
-        # No angle port (and, for some, no gain): a value set here would mislead.
-        for key in ("angle_width", "angle_unit", "gain"):
-            if key == "gain" and function not in GAIN_FREE_FUNCTIONS:
-                continue
-            if key in raw:
-                why = (
-                    "linear coordinates have no angle and no gain"
-                    if function in LINEAR_FUNCTIONS
-                    else "its ports carry no angle" if key != "gain"
-                    else "its result is the angle z, which the gain does not scale"
-                )
-                raise ConfigError(
-                    key, raw[key], f'not used by function = "{function}" ({why})', f"remove {key}",
-                    suggestion={key: None},
-                )  # fmt: skip
+    fn = function_named(function)
+    for key, why in refused_fields(fn).items():
+        # A field the function does not use: a value set here would mislead.
+        if key in raw:
+            raise ConfigError(
+                key, raw[key], f'not used by function = "{function}" ({why})', f"remove {key}",
+                suggestion={key: None},
+            )  # fmt: skip
+    if not fn.angle_ports:
         angle_width = data_width
     if angle_unit == "radians" and angle_width < MIN_RADIAN_ANGLE_WIDTH:
         raise ConfigError(
@@ -444,18 +441,16 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
     prenormalise = True
     if "prenormalise" in raw:
         value = raw["prenormalise"]
-        if function != "atan2":
-            raise ConfigError(
-                "prenormalise",
-                value,
-                'only used by function = "atan2" (div always normalises its operands)',
-                "remove prenormalise",
-            )
         if not isinstance(value, bool):
             raise ConfigError(
-                "prenormalise", value, "true or false", "write prenormalise = true or prenormalise = false (no quotes)"
-            )
+                "prenormalise", value, "true or false", "write prenormalise = true or prenormalise = false (no quotes)",
+                suggestion={"prenormalise": True},
+            )  # fmt: skip
         prenormalise = value
+
+    vlnv_vendor = _vlnv_field(raw, "vlnv_vendor", DEFAULT_VLNV_VENDOR)
+    vlnv_library = _vlnv_field(raw, "vlnv_library", DEFAULT_VLNV_LIBRARY)
+    hdl = _hdl_field(raw)
 
     max_error = raw.get("max_error_lsb", 1.0)
     if isinstance(max_error, bool) or not isinstance(max_error, int | float):
@@ -539,6 +534,9 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
         gain=gain,
         angle_unit=angle_unit,
         prenormalise=prenormalise,
+        vlnv_vendor=vlnv_vendor,
+        vlnv_library=vlnv_library,
+        hdl=hdl,
     )
 
 

@@ -17,31 +17,36 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
-from benchgen.algorithm import MIN_Z_ONLY_ITERATIONS, Datapath, Timing, make_datapath, make_timing
-from benchgen.config import MAX_ITERATIONS, CoreSpec
+from benchgen.algorithm import MIN_Z_ONLY_ITERATIONS, Datapath, Timing, make_timing
+from benchgen.config import MAX_ITERATIONS, MAX_PORT_WIDTH, CoreSpec
 from benchgen.errors import ConfigError
 from benchgen.functions import (
+    CorePort,
     EXHAUSTIVE_LIMIT_BITS,
     EXHAUSTIVE_SLOW_MODEL_BITS,
     RANDOM_SIZING_SAMPLES,
+    SIZING_SEED,
     WIDE_SIZING_SAMPLES,
     Inputs,
     apply_gain,
+    core_ports,
     corner_inputs,
     directed_inputs,
     enumerate_inputs,
     function_errors,
+    evaluate,
     ideal_outputs,
     input_ports,
     input_space_bits,
     int64_model,
     join_inputs,
+    make_datapath,
     measure,
     output_ports,
     random_inputs,
 )
-from benchgen.model import evaluate_function, sincos, to_signed
-from benchgen.reference import ErrorStats, error_stats, ideal_sincos
+from benchgen.model import to_signed
+from benchgen.reference import ErrorStats
 
 __all__ = [
     "EXHAUSTIVE_LIMIT_BITS",
@@ -51,19 +56,10 @@ __all__ = [
     "Proof",
     "build_design",
     "clear_sizing_cache",
-    "corner_angles",
-    "evaluate",
-    "sizing_angles",
     "sizing_evidence",
 ]
 
-MAX_PORT_WIDTH = 64
-"""Widest data port: the bulk harness packs each port into a slot of at most 8 bytes, and its C++
-runner moves ports as 64-bit integers (benchgen/harness.py)."""
 MAX_AUTO_GUARD_BITS = 16
-_SIZING_SEED = 20261202
-# sincos helpers for plots and tests: whole angle spaces up to 2**20 codes.
-_ANGLE_EXHAUSTIVE_BITS = 20
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -91,49 +87,10 @@ class Design:
         """Whether the accuracy covers every input code."""
         return self.proof.exhaustive
 
-
-def corner_angles(angle_width: int) -> npt.NDArray[np.int64] | npt.NDArray[np.object_]:
-    """0, every quadrant and octant boundary and one code either side, and the most negative code."""
-    full = 1 << angle_width
-    codes: set[int] = set()
-    for k in range(8):
-        edge = k * full // 8
-        codes.update({(edge - 1) % full, edge % full, (edge + 1) % full})
-    codes.add(full // 2)  # the most negative code, read as signed: -1/2 turn
-    codes.add(full - 1)
-    out = sorted(codes)
-    return np.array(out, dtype=np.int64 if angle_width <= 62 else object)
-
-
-def sizing_angles(angle_width: int, data_width: int) -> tuple[npt.NDArray[np.int64] | npt.NDArray[np.object_], bool]:
-    """The angles a design is measured on, and whether they are the whole input space."""
-    if angle_width <= _ANGLE_EXHAUSTIVE_BITS:
-        return np.arange(1 << angle_width, dtype=np.int64), True
-    rng = np.random.default_rng(_SIZING_SEED)
-    # Beyond these widths the model runs on Python integers (exact but about 100x slower), so
-    # the random set shrinks; the manifest says how many angles the accuracy was measured on.
-    fast = data_width <= 40 and angle_width <= 56
-    count = RANDOM_SIZING_SAMPLES if fast else WIDE_SIZING_SAMPLES
-    corners = corner_angles(angle_width)
-    if angle_width <= 62:
-        rand = rng.integers(0, 1 << angle_width, size=count, dtype=np.int64)
-        return np.concatenate([corners, rand]), False
-    rand_obj = [int(v) for v in rng.integers(0, 1 << 62, size=count, dtype=np.int64)]
-    rand_obj = [(v << (angle_width - 62)) | (v & ((1 << (angle_width - 62)) - 1)) for v in rand_obj]
-    return np.array(list(corners) + rand_obj, dtype=object), False
-
-
-def evaluate(dp: Datapath, angles: npt.ArrayLike, ideal: tuple[np.ndarray, np.ndarray] | None = None) -> ErrorStats:
-    """Error of the bit-true model of ``dp`` against the ideal over ``angles``.
-
-    Args:
-        dp: The data path to measure.
-        angles: Input angle codes.
-        ideal: The ideal (cos, sin) for these angles and this amplitude, if already computed.
-    """
-    out = sincos(dp, angles)
-    ideal_cos, ideal_sin = ideal if ideal is not None else ideal_sincos(dp, angles)
-    return error_stats([out.cos, out.sin], [ideal_cos, ideal_sin])
+    @property
+    def ports(self) -> tuple[CorePort, ...]:
+        """Every port of the core, in declaration order (:func:`benchgen.functions.core_ports`)."""
+        return core_ports(self.datapath, self.spec.tag_width)
 
 
 # Inputs per chunk of an exhaustive check: a few tens of MB of intermediates.
@@ -240,7 +197,7 @@ class _Prover:
         fast = int64_model(cheapest if cheapest is not None else probe)
         self.exhaustive = bits <= EXHAUSTIVE_SLOW_MODEL_BITS or (bits <= EXHAUSTIVE_LIMIT_BITS and fast)
         self.space = 1 << bits if self.exhaustive else 0
-        fixed = join_inputs(corner_inputs(probe), directed_inputs(probe, seed=_SIZING_SEED))
+        fixed = join_inputs(corner_inputs(probe), directed_inputs(probe, seed=SIZING_SEED))
         self.fixed_count = len(next(iter(fixed.values())))
         limit = SEARCH_SAMPLES if fast else SEARCH_SAMPLES_WIDE
         if self.exhaustive:
@@ -255,7 +212,7 @@ class _Prover:
                 sample = _strided(probe, self.space, stride, limit)
             self.random_count = 0
         else:
-            rng = np.random.default_rng(_SIZING_SEED)
+            rng = np.random.default_rng(SIZING_SEED)
             count = RANDOM_SIZING_SAMPLES if fast else WIDE_SIZING_SAMPLES
             rand = random_inputs(probe, rng, count)
             self.full = join_inputs(fixed, rand)
@@ -335,7 +292,7 @@ def _strided(dp: Datapath, space: int, stride: int, count: int) -> Inputs:
 
 def _judged(dp: Datapath, inputs: Inputs, ideal: dict[str, npt.NDArray[Any]] | None) -> dict[str, npt.NDArray[np.float64]]:
     """Per output, the errors in LSBs; NaN where a sample is not judged."""
-    outputs = evaluate_function(dp, inputs)
+    outputs = evaluate(dp, inputs)
     return function_errors(dp, inputs, outputs, ideal)
 
 

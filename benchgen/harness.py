@@ -24,11 +24,17 @@ sample written with ``%u``, least significant byte first (checked on Icarus 11 a
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from benchgen import __version__
+from benchgen.config import MAX_PORT_WIDTH
+from benchgen.functions import CorePort
 from benchgen.rtl import template_environment
+
+if TYPE_CHECKING:
+    from benchgen.design import Design
 
 __all__ = [
     "DEFAULT_BLOCK",
@@ -51,9 +57,6 @@ DEFAULT_BLOCK = 16384
 WATCHDOG_CLOCKS = 1 << 22
 """Clocks the harness waits for a block request before it ends the simulation: Python never lets
 simulated time pass between blocks, so a long wait means the Python side is gone."""
-
-_HANDSHAKE = frozenset({"clk", "rst", "in_valid", "in_ready", "out_valid", "out_ready"})
-
 
 @dataclass(frozen=True)
 class Slot:
@@ -85,8 +88,8 @@ class BulkLayout:
         core: Core module name.
         module: Harness module name.
         block: Samples per block (a power of two).
-        inputs: Input data ports, function inputs first, tag last.
-        outputs: Output data ports, function outputs first, tag last.
+        inputs: Input data ports: the function's in name order, the tag last.
+        outputs: Output data ports: the function's in name order, the tag last.
         in_bytes: Bytes per stimulus word (a multiple of 4).
         out_bytes: Bytes per result word (a multiple of 4).
     """
@@ -106,38 +109,35 @@ class BulkLayout:
 
 
 def _slot_bytes(width: int) -> int:
-    for size in (1, 2, 4, 8):
-        if width <= 8 * size:
-            return size
-    raise ValueError(f"port of {width} bits is wider than the 64 bits a slot holds")
+    if width > MAX_PORT_WIDTH:
+        raise ValueError(f"port of {width} bits is wider than the {MAX_PORT_WIDTH} bits a slot holds")
+    return next(size for size in (1, 2, 4, 8) if width <= 8 * size)
 
 
-def _slots(ports: list[tuple[str, int]]) -> tuple[tuple[Slot, ...], int]:
+def _slots(ports: list[CorePort]) -> tuple[tuple[Slot, ...], int]:
     slots = []
     offset = 0
-    for name, width in ports:
-        size = _slot_bytes(width)
-        slots.append(Slot(port=name, width=width, byte_offset=offset, nbytes=size))
+    for p in ports:
+        size = _slot_bytes(p.width)
+        slots.append(Slot(port=p.name, width=p.width, byte_offset=offset, nbytes=size))
         offset += size
     return tuple(slots), -(-offset // 4) * 4
 
 
-def _ordered(ports: dict[str, int], prefix: str) -> list[tuple[str, int]]:
-    # Data ports in name order, the tag last: a stable order that does not depend on how the
-    # manifest happens to be sorted.
-    names = sorted(p for p in ports if p.startswith(prefix) and p not in _HANDSHAKE)
-    tag = f"{prefix}tag"
-    if tag in names:
-        names.remove(tag)
-        names.append(tag)
-    return [(n, int(ports[n])) for n in names]
+def _ordered(ports: Sequence[CorePort], direction: str) -> list[CorePort]:
+    # The function's data ports in name order, the tag last: the order every harness so far was
+    # generated with (the words' layout is part of the generated files).
+    data = sorted((p for p in ports if p.direction == direction and p.role == "data"), key=lambda p: p.name)
+    return data + [p for p in ports if p.direction == direction and p.role == "tag"]
 
 
-def bulk_layout(manifest: dict[str, Any], *, block: int = DEFAULT_BLOCK) -> BulkLayout:
-    """The word layout of a project's bulk harness, from its manifest's port list.
+def bulk_layout(core: str, ports: Sequence[CorePort], *, block: int = DEFAULT_BLOCK) -> BulkLayout:
+    """The word layout of a core's bulk harness.
 
     Args:
-        manifest: The project manifest (``toplevel`` and ``ports`` are used).
+        core: The core's module name.
+        ports: The core's ports (:attr:`benchgen.design.Design.ports`); the data and tag ports
+            get slots.
         block: Samples per block; a power of two from 16 to 2**20.
 
     Raises:
@@ -145,10 +145,8 @@ def bulk_layout(manifest: dict[str, Any], *, block: int = DEFAULT_BLOCK) -> Bulk
     """
     if block < 16 or block > 1 << 20 or block & (block - 1):
         raise ValueError(f"block size {block}: use a power of two from 16 to 1048576")
-    ports: dict[str, int] = manifest["ports"]
-    inputs, in_bytes = _slots(_ordered(ports, "in_"))
-    outputs, out_bytes = _slots(_ordered(ports, "out_"))
-    core = str(manifest["toplevel"])
+    inputs, in_bytes = _slots(_ordered(ports, "in"))
+    outputs, out_bytes = _slots(_ordered(ports, "out"))
     return BulkLayout(
         core=core,
         module=f"{core}_bulk",
@@ -265,7 +263,10 @@ class BulkFiles:
 
 def bulk_files(manifest: dict[str, Any]) -> BulkFiles:
     """Names of a project's bulk files, derived from its top level name."""
-    core = str(manifest["toplevel"])
+    return _bulk_files(str(manifest["toplevel"]))
+
+
+def _bulk_files(core: str) -> BulkFiles:
     return BulkFiles(rtl=f"rtl/{core}_bulk.v", toplevel=f"{core}_bulk", test_module=f"test_{core}_bulk")
 
 
@@ -281,10 +282,11 @@ test_bulk_full_rate, test_bulk_gaps_and_stalls, test_bulk_exhaustive = bind(MANI
 '''
 
 
-def bulk_project_files(manifest: dict[str, Any]) -> dict[str, str]:
+def bulk_project_files(design: Design) -> dict[str, str]:
     """The bulk harness and its thin test module, by path relative to the project folder."""
-    names = bulk_files(manifest)
+    core = design.spec.name
+    names = _bulk_files(core)
     return {
-        names.rtl: render_bulk_harness(bulk_layout(manifest)),
-        f"bench/{names.test_module}.py": _BULK_TEST_MODULE.format(core=manifest["toplevel"]),
+        names.rtl: render_bulk_harness(bulk_layout(core, design.ports)),
+        f"bench/{names.test_module}.py": _BULK_TEST_MODULE.format(core=core),
     }

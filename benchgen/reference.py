@@ -16,49 +16,10 @@ import mpmath
 import numpy as np
 import numpy.typing as npt
 
-from benchgen.algorithm import Datapath
-from benchgen.model import to_signed
 
-__all__ = ["ErrorStats", "FLOAT64_MAX_DATA_WIDTH", "error_stats", "errors_lsb", "ideal_sincos"]
+__all__ = ["FLOAT64_MAX_DATA_WIDTH", "ErrorStats", "error_stats", "errors_lsb"]
 
 FLOAT64_MAX_DATA_WIDTH = 40
-
-
-def ideal_sincos(
-    dp: Datapath, angles: npt.ArrayLike, *, use_mpmath: bool = False, dps: int = 40
-) -> tuple[npt.NDArray[np.float64], npt.NDArray[np.float64]]:
-    """amplitude * cos and amplitude * sin of binary angles, as float64 arrays.
-
-    Args:
-        dp: The core's data path (for the angle width and amplitude).
-        angles: Angle codes, taken modulo 2**angle_width.
-        use_mpmath: Force the mpmath path (``dps`` decimal digits).
-        dps: mpmath precision.
-    """
-    raw = np.asarray(angles)
-    n_bits = dp.angle_width
-    if use_mpmath or dp.data_width > FLOAT64_MAX_DATA_WIDTH:
-        codes = [int(a) % (1 << n_bits) for a in raw.ravel()]
-        cos = np.empty(len(codes), dtype=object)
-        sin = np.empty(len(codes), dtype=object)
-        with mpmath.workdps(dps):
-            scale = (
-                1 / mpmath.mpf(2) ** dp.angle_frac if dp.radians else 2 * mpmath.pi / mpmath.mpf(2) ** n_bits
-            )
-            amp = mpmath.mpf(dp.amplitude)
-            for k, code in enumerate(codes):
-                signed = code - (1 << n_bits) if code >> (n_bits - 1) else code
-                t = signed * scale
-                cos[k] = amp * mpmath.cos(t)
-                sin[k] = amp * mpmath.sin(t)
-        return cos.reshape(raw.shape), sin.reshape(raw.shape)
-    if raw.dtype == object:
-        raw = np.array([int(a) % (1 << n_bits) for a in raw.ravel()], dtype=np.uint64).reshape(raw.shape)
-    codes = raw.astype(np.int64) & np.int64((1 << n_bits) - 1) if n_bits < 64 else raw.astype(np.uint64)
-    signed = to_signed(codes.astype(np.int64), n_bits) if n_bits < 64 else codes.astype(np.int64)
-    scale = 1.0 / 2.0**dp.angle_frac if dp.radians else 2.0 * np.pi / 2.0**n_bits
-    t = signed.astype(np.float64) * scale
-    return dp.amplitude * np.cos(t), dp.amplitude * np.sin(t)
 
 
 @dataclass(frozen=True)

@@ -1,10 +1,16 @@
 """Reports of a sweep (or a single run, a sweep of one point): table, JSON, CSV, Markdown, HTML, JUnit.
 
-Everything is rebuilt from a sweep folder (``sweep.json`` and ``results/``), so a report can be
-written again, or for merged shards, without running anything. The tables, CSV, Markdown and
-plots hold only results, never wall times, so the same sweep run anywhere (a local pool, a Dask
-cluster, shards merged) gives the same files; the wall times live in ``report.json``'s
-``timing`` section and in the terminal table.
+Everything is rebuilt from a sweep folder (``sweep.json``, ``model_analysis.json`` and
+``results/``), so a report can be written again, or for merged shards, without running anything:
+this module and :mod:`benchgen.report_plots` only read records and format them. The sweep
+computed everything they show, the model's error curves and tones included
+(:mod:`benchgen.sweep_analysis`).
+
+The files are a function of the records alone: the same records give the same bytes. The tables,
+CSV, Markdown and plots hold only results, never times, so the same sweep run anywhere (a local
+pool, a Dask cluster, shards merged) gives the same files; the time each task took, as its result
+records it, is in ``report.json``'s ``timing`` section, and the run's wall time only in the
+terminal table.
 """
 
 from __future__ import annotations
@@ -22,7 +28,14 @@ from pathlib import Path
 from typing import Any
 
 from benchgen.errors import BenchgenError
-from benchgen.sweep_records import RecordError, read_result, read_sweep_file
+from benchgen.report_plots import make_plots, one_per_core
+from benchgen.sweep_records import (
+    MODEL_ANALYSIS_FILE,
+    RecordError,
+    read_model_analysis,
+    read_result,
+    read_sweep_file,
+)
 from benchgen.synth import DEVICES
 
 __all__ = [
@@ -82,8 +95,8 @@ class ReportData:
         missing: Task ids with no result (a result file that was ignored counts as none).
         shard: ``(i, N)`` or ``None``.
         ignored: One line per result file left out as invalid: the file and its fault.
-        configs: Each core's config by core id (the manifest's, else the sweep point's): what
-            the plots rebuild a core's model from. Not written into the reports.
+        error_grids: The model's error curves, one per function and output width (``model_analysis.json``).
+        tones: The model's coherent tones, one per distinct data path (``model_analysis.json``).
     """
 
     name: str
@@ -95,12 +108,18 @@ class ReportData:
     missing: list[str] = field(default_factory=list)
     shard: list[int] | None = None
     ignored: list[str] = field(default_factory=list)
-    configs: dict[str, dict[str, Any]] = field(default_factory=dict)
+    error_grids: list[dict[str, Any]] = field(default_factory=list)
+    tones: list[dict[str, Any]] = field(default_factory=list)
 
     @property
     def passed(self) -> int:
         """Points whose verification passed."""
         return sum(r["status"] == "passed" for r in self.rows)
+
+    def verified_tones(self) -> list[dict[str, Any]]:
+        """The tones of data paths whose RTL a simulation verified: a core with a passed point."""
+        passed = {r["core_id"] for r in one_per_core(self.rows) if r["status"] == "passed"}
+        return [t for t in self.tones if passed & set(t["core_ids"])]
 
 
 def collect(out_dir: str | Path) -> ReportData:
@@ -111,7 +130,9 @@ def collect(out_dir: str | Path) -> ReportData:
     file and the fault (also in :attr:`ReportData.ignored`), and the rest of the report is made.
 
     Raises:
-        ReportError: if the folder holds no sweep, or its ``sweep.json`` is not a valid one.
+        ReportError: if the folder holds no sweep, its ``sweep.json`` is not a valid one, or it
+            holds no valid ``model_analysis.json`` of that sweep (one written before the sweep
+            measured it: running the sweep again into the folder writes it).
     """
     out = Path(out_dir)
     try:
@@ -120,6 +141,15 @@ def collect(out_dir: str | Path) -> ReportData:
         raise ReportError(f"'{out}' holds no sweep.json: give a folder written by 'benchgen sweep -o'") from None
     except RecordError as exc:
         raise ReportError(f"{exc}; run the sweep again into a new folder") from None
+    rerun = "run the same 'benchgen sweep' command into it again, which writes it (finished tasks come from the cache)"
+    try:
+        analysis = read_model_analysis(out)
+    except FileNotFoundError:
+        raise ReportError(f"'{out}' holds no {MODEL_ANALYSIS_FILE} (an older benchgen wrote it): {rerun}") from None
+    except RecordError as exc:
+        raise ReportError(f"{exc}; {rerun}") from None
+    if analysis["digest"] != sweep["digest"]:
+        raise ReportError(f"'{out / MODEL_ANALYSIS_FILE}' belongs to another sweep than its sweep.json: {rerun}")
     spec = sweep["spec"]
     targets = list(spec["synth"]["targets"])
     task_kinds = {t["task_id"]: t["kind"] for t in sweep["tasks"]}
@@ -136,15 +166,11 @@ def collect(out_dir: str | Path) -> ReportData:
             results[tid] = data
     rows = []
     timing: dict[str, Any] = {}
-    configs: dict[str, dict[str, Any]] = {}
     for p in sweep["points"]:
         if p["point_id"] not in task_ids:
             continue
         res = results.get(p["point_id"])
         row = _row(p, res, targets, results, ignored)
-        design = (res or {}).get("design")
-        if design or p["core_id"] not in configs:
-            configs[p["core_id"]] = dict(design["config"]) if design else dict(p["core"])
         if p["point_id"] in ignored:
             row["problems"] = [ignored[p["point_id"]]]
         rows.append(row)
@@ -169,7 +195,8 @@ def collect(out_dir: str | Path) -> ReportData:
         missing=sorted(t for t in task_ids if t not in results),
         shard=sweep.get("shard"),
         ignored=[ignored[t] for t in sorted(ignored)],
-        configs=configs,
+        error_grids=analysis["error_grids"],
+        tones=analysis["tones"],
     )
 
 
@@ -408,9 +435,13 @@ def to_csv(data: ReportData) -> str:
     return buf.getvalue()
 
 
-def to_json(data: ReportData, *, wall_seconds: float | None = None, ran: int | None = None,
-            spectra: list[dict[str, Any]] | None = None) -> str:
-    """The rows, the counts, the sine quality and (separately) the wall times."""
+def _tone_summary(tones: list[dict[str, Any]]) -> list[dict[str, Any]]:
+    keys = ("label", "bits", "snr_db", "sfdr_db", "ideal_snr_db", "n_fft", "cycles")
+    return [{k: t[k] for k in keys} for t in tones]
+
+
+def to_json(data: ReportData) -> str:
+    """The rows, the counts, the sine quality and (separately) the time each task took."""
     doc = {
         "sweep": data.name,
         "digest": data.digest,
@@ -421,8 +452,8 @@ def to_json(data: ReportData, *, wall_seconds: float | None = None, ran: int | N
         "passed": data.passed,
         "missing_tasks": data.missing,
         "rows": data.rows,
-        "sine_quality": [{k: v for k, v in s.items() if not k.startswith("_")} for s in spectra or []],
-        "timing": {"wall_seconds": wall_seconds, "tasks_run": ran, "tasks": data.timing},
+        "sine_quality": _tone_summary(data.verified_tones()),
+        "timing": {"tasks": data.timing},
     }
     return json.dumps(doc, indent=1, sort_keys=True) + "\n"
 
@@ -433,9 +464,9 @@ def _md_table(header: list[str], rows: list[list[str]]) -> str:
     return "\n".join(out)
 
 
-def to_markdown(data: ReportData, plots: dict[str, str] | None = None,
-                spectra: list[dict[str, Any]] | None = None) -> str:
+def to_markdown(data: ReportData, plots: dict[str, str] | None = None) -> str:
     """A Markdown report; ``plots`` maps a plot title to a relative image path."""
+    spectra = data.verified_tones()
     parts = [f"# Sweep report: {data.name}", "", _counts(data) + f" (sweep digest `{data.digest}`).", ""]
     if data.shard:
         parts += [f"Shard {data.shard[0]} of {data.shard[1]}: merge the shards with `benchgen report merge`.", ""]
@@ -549,8 +580,9 @@ def _html_table(header: list[str], rows: list[list[str]], classes: list[str] | N
     return f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
 
 
-def to_html(data: ReportData, plots: dict[str, bytes], spectra: list[dict[str, Any]] | None = None) -> str:
+def to_html(data: ReportData, plots: dict[str, bytes]) -> str:
     """One self-contained HTML file: tables, and every plot embedded as a PNG data URI."""
+    spectra = data.verified_tones()
     cols = _summary_columns(data)
     classes = [" ".join(c for c in (r["status"], "pareto" if r["pareto"] else "") if c) for r in data.rows]
     parts = [
@@ -608,7 +640,11 @@ def write_reports(
     ran: int | None = None,
     stream: Any = None,
 ) -> list[Path]:
-    """Write the chosen report formats into ``out_dir`` (``table`` prints to ``stream``)."""
+    """Write the chosen report formats into ``out_dir`` (``table`` prints to ``stream``).
+
+    The files depend on the folder's records alone; ``wall_seconds`` and ``ran`` (the run that
+    just finished) go only into the printed table.
+    """
     out = Path(out_dir)
     data = collect(out)
     formats = set(formats)
@@ -623,28 +659,21 @@ def write_reports(
             path.write_text(text, encoding="utf-8", newline="\n")
         written.append(path)
 
-    spectra: list[dict[str, Any]] = []
-    if formats & {"json", "md", "html"}:
-        from benchgen.report_plots import sine_quality
-
-        spectra = sine_quality(data)
     if "json" in formats:
-        put("report.json", to_json(data, wall_seconds=wall_seconds, ran=ran, spectra=spectra))
+        put("report.json", to_json(data))
     if "csv" in formats:
         put("report.csv", to_csv(data))
     if "junit" in formats:
         put("junit.xml", to_junit(data))
     if "md" in formats or "html" in formats:
-        from benchgen.report_plots import make_plots
-
-        plots = make_plots(data, spectra)
+        plots = make_plots(data.rows, data.targets, data.axes, data.error_grids, data.verified_tones())
         names = {title: f"plots/{_file_name(title)}.png" for title in plots}
         if "md" in formats:
             for title, png in plots.items():
                 put(names[title], png)
-            put("report.md", to_markdown(data, names, spectra))
+            put("report.md", to_markdown(data, names))
         if "html" in formats:
-            put("report.html", to_html(data, plots, spectra))
+            put("report.html", to_html(data, plots))
     if "table" in formats and stream is not None:
         stream.write(to_table(data, wall_seconds=wall_seconds, ran=ran) + "\n")
     return written

@@ -1,4 +1,8 @@
-"""Plots of a sweep report (matplotlib, Agg back end) and the sine-quality measurement.
+"""Plots of a sweep report (matplotlib, Agg back end), drawn from plain data: nothing is computed here.
+
+The report's rows (:func:`benchgen.report.collect`) and the sweep's model analysis (error grids
+and tones, measured by :mod:`benchgen.sweep_analysis` and read back from ``model_analysis.json``)
+come in as lists of dictionaries; this module imports nothing of benchgen.
 
 Each plot is returned as PNG bytes, written with no timestamp or software tag so that the same
 results give the same bytes. A plot that has nothing to show for a sweep (no estimates, no
@@ -14,12 +18,9 @@ from typing import Any
 
 import numpy as np
 
-from benchgen.report import ReportData
+__all__ = ["make_plots", "one_per_core"]
 
-__all__ = ["make_plots", "model_error_grid", "sine_quality"]
-
-MAX_PANELS = 4
-SPECTRUM_FFT = 1 << 16
+Row = dict[str, Any]
 
 
 def _figure(rows: int, cols: int, width: float = 11.0, height: float = 3.4) -> tuple[Any, Any]:
@@ -42,9 +43,10 @@ def _png(fig: Any) -> bytes:
     return buf.getvalue()
 
 
-def _one_per_core(data: ReportData) -> list[dict[str, Any]]:
-    seen: dict[str, dict[str, Any]] = {}
-    for r in data.rows:
+def one_per_core(rows: list[Row]) -> list[Row]:
+    """One row per core: a passed one where the core has one."""
+    seen: dict[str, Row] = {}
+    for r in rows:
         if r["core_id"] not in seen or (r["status"] == "passed" and seen[r["core_id"]]["status"] != "passed"):
             seen[r["core_id"]] = r
     return list(seen.values())
@@ -98,95 +100,24 @@ def _line_panel(ax: Any, rows: list[dict[str, Any]], y: Callable[[dict[str, Any]
 # ----------------------------------------------------------------------------- accuracy
 
 
-PLOT_SAMPLES = 8192
-"""Random inputs per point of the error curves (besides the corners and directed worst cases);
-the whole input space where it has at most this many codes."""
-PLOT_SAMPLES_WIDE = 512
-"""The same where the model runs on Python integers (outputs past about 58 bits), ~100x slower."""
-_PLOT_SEED = 20240
-
-
-def _plot_inputs(dp: Any) -> dict[str, Any]:
-    """Inputs the error curves are measured on: every code of a small input space, else the
-    function's corners and directed worst cases plus seeded random inputs."""
-    from benchgen.functions import (
-        bench_corners,
-        enumerate_inputs,
-        input_space_bits,
-        int64_model,
-        join_inputs,
-        random_inputs,
-    )
-
-    bits = input_space_bits(dp)
-    if (1 << bits) <= PLOT_SAMPLES:
-        return enumerate_inputs(dp, 0, 1 << bits)
-    count = PLOT_SAMPLES if int64_model(dp) else PLOT_SAMPLES_WIDE
-    return join_inputs(bench_corners(dp), random_inputs(dp, np.random.default_rng(_PLOT_SEED), count))
-
-
-def model_error_grid(
-    core: dict[str, Any], iterations: list[int], guard_bits: list[int]
-) -> dict[int, dict[int, tuple[float, float]]]:
-    """Worst and RMS error (LSB) of the bit-true model for each guard bits -> iterations.
-
-    Any function: the model (:func:`benchgen.model.evaluate_function`) against the ideal, judged
-    as the bench judges it (:func:`benchgen.functions.measure`), over every input of a space of
-    at most :data:`PLOT_SAMPLES` codes, else over the corners, the directed worst cases and
-    :data:`PLOT_SAMPLES` seeded random inputs. The curves show the trend; the sizing in
-    ``benchgen.design`` is what proves a core's budget. Sizes the data path refuses are left out.
-    """
-    from benchgen.algorithm import make_datapath
-    from benchgen.config import parse_config
-    from benchgen.errors import ConfigError
-    from benchgen.functions import measure
-
-    raw = {k: v for k, v in core.items() if k not in ("iterations", "guard_bits", "pipeline_depth", "iterations_per_cycle")}
-    spec = parse_config(raw)
-    grid: dict[int, dict[int, tuple[float, float]]] = {}
-    inputs: dict[str, Any] | None = None
-    for g in guard_bits:
-        for n in iterations:
-            try:
-                dp = make_datapath(spec, n, g)
-            except ConfigError:
-                continue
-            if inputs is None:
-                inputs = _plot_inputs(dp)  # the ports and formats do not change with the size
-            s = measure(dp, inputs)
-            grid.setdefault(g, {})[n] = (s.max_error_lsb, s.rms_error_lsb)
-    return grid
-
-
-def _error_plot(data: ReportData) -> bytes | None:
-    cores = [r for r in _one_per_core(data) if r["iterations"] and r["core_id"] in data.configs]
-    if not cores:
+def _error_plot(rows: list[Row], grids: list[dict[str, Any]]) -> bytes | None:
+    """For each function and output width, the model's error curves with the simulated points on them."""
+    if not grids:
         return None
-    # One row of panels per function and output width (at most three), in sweep order.
-    groups = list(dict.fromkeys((r["function"], r["data_width"]) for r in cores))[:3]
-    fig, axes = _figure(len(groups), 2)
-    for i, (function, width) in enumerate(groups):
-        at_width = [r for r in cores if (r["function"], r["data_width"]) == (function, width)]
-        its = sorted({r["iterations"] for r in at_width})
-        gbs = sorted({r["guard_bits"] for r in at_width})
-        n_range = list(range(max(4, min(its) - 6), max(its) + 3))
-        g_list = sorted(set(gbs) | {0, 2, max(0, math.ceil(math.log2(max(its))))})[:6]
-        grid = model_error_grid(_core_of(data, at_width[0]), n_range, g_list)
-        for col, (idx, name) in enumerate(((0, "worst"), (1, "RMS"))):
+    fig, axes = _figure(len(grids), 2)
+    for i, grid in enumerate(grids):
+        function, width, cores = grid["function"], grid["data_width"], set(grid["core_ids"])
+        for col, (key, name) in enumerate((("max_error_lsb", "worst"), ("rms_error_lsb", "RMS"))):
             ax = axes[i][col]
-            for g in g_list:
-                pts = sorted(grid.get(g, {}).items())
-                if pts:
-                    ax.plot([p[0] for p in pts], [p[1][idx] for p in pts], marker=".", label=f"model, {g} guard bits")
-            measured = [(r["iterations"], r["max_error_lsb" if idx == 0 else "rms_error_lsb"]) for r in data.rows
-                        if (r["function"], r["data_width"]) == (function, width) and r["max_error_lsb"] is not None]
+            for curve in grid["curves"]:
+                ax.plot(curve["iterations"], curve[key], marker=".", label=f"model, {curve['guard_bits']} guard bits")
+            measured = [(r["iterations"], r[key]) for r in rows if r["core_id"] in cores and r["max_error_lsb"] is not None]
             if measured:
                 ax.scatter([m[0] for m in measured], [m[1] for m in measured], marker="x", s=60, color="black",
                            zorder=5, label="simulated points")
-            if idx == 0:
-                budget = at_width[0]["budget_lsb"]
-                if budget:
-                    ax.axhline(budget, color="red", linestyle="--", linewidth=1, label=f"budget {budget:g} LSB")
+            if col == 0:
+                budget = grid["budget_lsb"]
+                ax.axhline(budget, color="red", linestyle="--", linewidth=1, label=f"budget {budget:g} LSB")
                 ax.axhline(0.5, color="grey", linestyle=":", linewidth=1, label="0.5 LSB (correct rounding)")
             else:
                 ax.axhline(1 / math.sqrt(12), color="grey", linestyle=":", linewidth=1, label="0.289 LSB (ideal rounding)")
@@ -203,23 +134,16 @@ def _error_plot(data: ReportData) -> bytes | None:
     return _png(fig)
 
 
-def _core_of(data: ReportData, row: dict[str, Any]) -> dict[str, Any]:
-    """The core's own config (every field: gain, angle unit, ...), sized by hand below."""
-    sizes = ("iterations", "guard_bits", "pipeline_depth", "iterations_per_cycle", "architecture")
-    config = {k: v for k, v in data.configs[row["core_id"]].items() if k not in sizes}
-    return {**config, "name": "core", "architecture": "pipelined", "max_error_lsb": 1e6}
-
-
 # ----------------------------------------------------------------------------- timing, resources
 
 
-def _latency_plot(data: ReportData) -> bytes | None:
-    fig = _latency_figure(data)
+def _latency_plot(all_rows: list[Row]) -> bytes | None:
+    fig = _latency_figure(all_rows)
     return None if fig is None else _png(fig)
 
 
-def _latency_figure(data: ReportData) -> Any:
-    rows = [r for r in _one_per_core(data) if r["architecture"] == "pipelined" and r["pipeline_depth"]]
+def _latency_figure(all_rows: list[Row]) -> Any:
+    rows = [r for r in one_per_core(all_rows) if r["architecture"] == "pipelined" and r["pipeline_depth"]]
     if not rows:
         return None
     has_fmax = any(r["latency_ns"] is not None for r in rows)
@@ -241,14 +165,14 @@ def _latency_figure(data: ReportData) -> Any:
     return fig
 
 
-def _resource_plot(data: ReportData) -> bytes | None:
-    rows = [r for r in _one_per_core(data) if r["architecture"] == "pipelined" and r["pipeline_depth"]]
-    if not rows or not data.targets:
+def _resource_plot(all_rows: list[Row], targets: list[str]) -> bytes | None:
+    rows = [r for r in one_per_core(all_rows) if r["architecture"] == "pipelined" and r["pipeline_depth"]]
+    if not rows or not targets:
         return None
     panels = [("luts", "LUT4"), ("ffs", "flip-flops"), ("carry", "carry cells"), ("fmax_mhz", "Fmax (MHz)")]
-    fig, axes = _figure(len(data.targets), len(panels), width=14, height=3.3)
+    fig, axes = _figure(len(targets), len(panels), width=14, height=3.3)
     drew = False
-    for i, t in enumerate(data.targets):
+    for i, t in enumerate(targets):
         for j, (key, name) in enumerate(panels):
             column = f"{t}_{key}"
 
@@ -267,8 +191,8 @@ def _resource_plot(data: ReportData) -> bytes | None:
     return _png(fig)
 
 
-def _pareto_plot(data: ReportData) -> bytes | None:
-    rows = [r for r in _one_per_core(data) if r["status"] == "passed"]
+def _pareto_plot(all_rows: list[Row], targets: list[str], axis_names: list[str]) -> bytes | None:
+    rows = [r for r in one_per_core(all_rows) if r["status"] == "passed"]
     if len(rows) < 2:
         return None
     with_area = all(r["area"] is not None for r in rows)
@@ -279,7 +203,7 @@ def _pareto_plot(data: ReportData) -> bytes | None:
     # The worst over the core's simulators, on the one scale the front is judged on (dBFS).
     err = []
     for r in rows:
-        values = [q["error_dbfs"] for q in data.rows if q["core_id"] == r["core_id"] and q["status"] == "passed"]
+        values = [q["error_dbfs"] for q in all_rows if q["core_id"] == r["core_id"] and q["status"] == "passed"]
         known = [v for v in values if v is not None]
         err.append(max(known) if known else float("nan"))
     fig, axes = _figure(1, 1, width=9, height=6)
@@ -288,7 +212,7 @@ def _pareto_plot(data: ReportData) -> bytes | None:
         x = [r["area"] for r in rows]
         sc = ax.scatter(x, lat, c=err, cmap="viridis_r", s=60, zorder=3)
         fig.colorbar(sc, ax=ax, label="worst error (dB of full scale; lower is better)")
-        ax.set_xlabel(f"area: {data.targets[0]} logic cells (estimate)")
+        ax.set_xlabel(f"area: {targets[0]} logic cells (estimate)")
         y = lat
     else:
         x = lat
@@ -303,7 +227,7 @@ def _pareto_plot(data: ReportData) -> bytes | None:
         label = ", ".join(f"{v}" for v in r["axes"].values()) + f" ({tp:g} {rate_unit})"
         ax.annotate(label, (xv, yv), textcoords="offset points", xytext=(6, 6), fontsize=7 if f else 6,
                     color="black" if f else "grey", fontweight="bold" if f else "normal")
-    ax.text(0.01, 0.01, "labels: " + ", ".join(data.axes) + f" (throughput in {rate_unit})", transform=ax.transAxes,
+    ax.text(0.01, 0.01, "labels: " + ", ".join(axis_names) + f" (throughput in {rate_unit})", transform=ax.transAxes,
             fontsize=7, color="grey")
     ax.set_ylabel(("latency (ns)" if use_ns else "latency (clocks)") if with_area
                   else "worst error (dB of full scale)")
@@ -317,58 +241,19 @@ def _pareto_plot(data: ReportData) -> bytes | None:
 # ----------------------------------------------------------------------------- sine quality
 
 
-def _coherent_cycles(n_fft: int) -> int:
-    """A prime near n_fft/16 (4099 for 2**16, as in FACTS.md)."""
-    target = max(3, n_fft // 16 + 3)
-    for c in range(target, 2, -1):
-        if c % 2 and all(c % d for d in range(3, int(c**0.5) + 1, 2)):
-            return c
-    return 3
-
-
-def sine_quality(data: ReportData) -> list[dict[str, Any]]:
-    """SNR/SFDR of a coherent tone through the bit-true model, one per distinct sine data path."""
-    from benchgen.config import parse_config
-    from benchgen.design import build_design
-    from benchgen.model import sincos
-    from benchgen.spectrum import analyse_tone, coherent_phase_codes, ideal_snr_db
-
-    seen: dict[tuple[Any, ...], dict[str, Any]] = {}
-    for r in _one_per_core(data):
-        if r["function"] != "sincos" or r["status"] != "passed" or r["core_id"] not in data.configs:
-            continue
-        key = (r["angle_width"], r["data_width"], r["iterations"], r["guard_bits"], r["rounding"])
-        if key in seen or len(seen) >= MAX_PANELS:
-            continue
-        core = _core_of(data, r) | {"iterations": r["iterations"], "guard_bits": r["guard_bits"]}
-        dp = build_design(parse_config(core)).datapath
-        n_fft = min(SPECTRUM_FFT, 1 << dp.angle_width)
-        cycles = _coherent_cycles(n_fft)
-        out = sincos(dp, coherent_phase_codes(dp.angle_width, n_fft, cycles))
-        spec = analyse_tone(np.asarray(out.sin, dtype=np.float64), cycles)
-        seen[key] = {
-            "label": f"{dp.data_width}-bit out, {dp.angle_width}-bit angle, {dp.iterations} it., {dp.guard_bits} guard",
-            "bits": dp.data_width,
-            "snr_db": round(spec.snr_db, 2),
-            "sfdr_db": round(spec.sfdr_db, 2),
-            "ideal_snr_db": round(ideal_snr_db(dp.data_width), 2),
-            "n_fft": n_fft,
-            "cycles": cycles,
-            "_dbc": spec.dbc,
-        }
-    return list(seen.values())
-
-
-def _spectrum_plot(spectra: list[dict[str, Any]]) -> bytes | None:
-    if not spectra:
+def _spectrum_plot(tones: list[dict[str, Any]]) -> bytes | None:
+    """Each tone's spectrum: per bin, the band from its lowest to its highest FFT level."""
+    if not tones:
         return None
-    fig, axes = _figure(len(spectra), 1, width=11, height=3.0)
-    for ax_row, s in zip(axes, spectra, strict=True):
+    fig, axes = _figure(len(tones), 1, width=11, height=3.0)
+    for ax_row, s in zip(axes, tones, strict=True):
         ax = ax_row[0]
-        dbc = s["_dbc"]
-        f = np.arange(dbc.size) / s["n_fft"]
-        floor = max(float(np.min(dbc)), -200.0)
-        ax.plot(f, np.maximum(dbc, floor), linewidth=0.5)
+        low, high = np.asarray(s["bin_low_dbc"]), np.asarray(s["bin_high_dbc"])
+        floor = max(float(np.min(low)), -200.0)
+        f = np.asarray(s["bin_start"] + [s["n_fft"] // 2 + 1], dtype=np.float64) / s["n_fft"]
+        # One step per bin; the last level is repeated so the band reaches the last bin's end.
+        ax.fill_between(f, np.maximum(np.append(low, low[-1]), floor), np.maximum(np.append(high, high[-1]), floor),
+                        step="post", linewidth=0.5, color="C0")
         ax.axhline(-s["sfdr_db"], color="red", linestyle="--", linewidth=1, label=f"largest spur: SFDR {s['sfdr_db']:.1f} dBc")
         ax.set_ylim(floor - 5, 5)
         ax.set_xlim(0, 0.5)
@@ -383,13 +268,22 @@ def _spectrum_plot(spectra: list[dict[str, Any]]) -> bytes | None:
     return _png(fig)
 
 
-def make_plots(data: ReportData, spectra: list[dict[str, Any]]) -> dict[str, bytes]:
-    """Every plot that has something to show, by title."""
+def make_plots(rows: list[Row], targets: list[str], axis_names: list[str], grids: list[dict[str, Any]],
+               tones: list[dict[str, Any]]) -> dict[str, bytes]:
+    """Every plot that has something to show, by title.
+
+    Args:
+        rows: The report's rows (one per point).
+        targets: Estimate targets.
+        axis_names: The fields the sweep varies (they label the Pareto points).
+        grids: The model's error grids, one per function and output width.
+        tones: The tones to show (their spectra, one panel each).
+    """
     plots: dict[str, bytes | None] = {
-        "Error against iterations and guard bits": _error_plot(data),
-        "Latency and throughput against pipeline depth": _latency_plot(data),
-        "Resources and Fmax against pipeline depth": _resource_plot(data),
-        "Pareto front": _pareto_plot(data),
-        "Spectrum of a coherent tone (sincos)": _spectrum_plot(spectra),
+        "Error against iterations and guard bits": _error_plot(rows, grids),
+        "Latency and throughput against pipeline depth": _latency_plot(rows),
+        "Resources and Fmax against pipeline depth": _resource_plot(rows, targets),
+        "Pareto front": _pareto_plot(rows, targets, axis_names),
+        "Spectrum of a coherent tone": _spectrum_plot(tones),
     }
     return {k: v for k, v in plots.items() if v is not None}

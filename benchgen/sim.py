@@ -21,10 +21,11 @@ from pathlib import Path
 from typing import Any
 
 from benchgen.bench.bulk_plan import FULL_RATE_TESTS, bulk_plan, bulk_run_args
+from benchgen.bench.scoreboard import CSV_ENV, RESULTS_ENV, SAMPLES_ENV
 from benchgen.errors import BenchgenError
 from benchgen.harness import bulk_files, bulk_layout
 from benchgen.project import ProjectError, design_from_manifest, load_manifest
-from benchgen.simulators import SIMULATORS, SimulatorMissing, find_simulator, simulator_env
+from benchgen.simulators import SIMULATORS, VHDL_SIMULATORS, SimulatorMissing, find_simulator, simulator_env
 from benchgen.waves import (
     CLOCK_NS,
     DEFAULT_LIMIT_MB,
@@ -33,6 +34,7 @@ from benchgen.waves import (
     WavesPlan,
     estimate_bytes,
     estimate_clocks,
+    no_window,
     signal_bits,
     too_large,
     waves_file,
@@ -251,11 +253,16 @@ def run_sim(
         SimError: if the simulator is missing or the run could not start.
         ProjectError: if the folder is not a (current) benchgen project.
     """
-    if simulator not in SIMULATORS:
-        raise SimError(f"unknown simulator '{simulator}': use one of {', '.join(SIMULATORS)}")
+    if simulator not in SIMULATORS + VHDL_SIMULATORS:
+        raise SimError(f"unknown simulator '{simulator}': use one of {', '.join(SIMULATORS + VHDL_SIMULATORS)}")
     if samples < 1:
         raise SimError(f"--samples {samples}: give a positive number of samples")
     bulk = bulk_plan(mode, samples, exhaustive)
+    if simulator in VHDL_SIMULATORS and bulk:
+        # The bulk harness is Verilog; a VHDL one is not written yet.
+        if exhaustive or mode == "bulk":
+            raise SimError(f"the bulk bench (and --exhaustive) does not run on {simulator} yet; use --mode per-clock")
+        bulk = False  # auto: the per-clock bench, at any sample count
     if bulk_engine not in BULK_ENGINES:
         raise SimError(f"bulk engine '{bulk_engine}': use one of {', '.join(BULK_ENGINES)}")
     if waves_window is not None:
@@ -272,6 +279,9 @@ def run_sim(
     project = Path(project_dir).resolve()
     manifest = load_manifest(project)
     design = design_from_manifest(manifest)
+    _check_language(manifest, simulator)
+    if waves_window is not None and simulator in VHDL_SIMULATORS:
+        raise no_window(simulator)
     if waves:
         # Before anything is built or simulated: a dump too large to keep must not cost a run.
         _check_waves_size(project, manifest, design, simulator, samples, bulk, exhaustive, waves_limit_mb)
@@ -331,21 +341,23 @@ def run_sim(
 def _check_waves_size(project: Path, manifest: dict[str, Any], design: Any, simulator: str, samples: int,
                       bulk: bool, exhaustive: bool, limit_mb: float) -> None:
     """Refuse, before anything runs, a whole-run dump estimated past ``limit_mb``."""
-    from benchgen.bench.bulk_plan import input_space_bits
-    from benchgen.functions import bench_corners
+    from benchgen.functions import bench_corners, input_space_bits
 
-    sources = [project / rel for rel in manifest["files"]["rtl"]]
+    if simulator in VHDL_SIMULATORS:
+        sources = [project / rel for rel in manifest["files"]["vhdl"]]
+    else:
+        sources = [project / rel for rel in manifest["files"]["rtl"]]
     if bulk:
         sources.append(project / bulk_files(manifest).rtl)
     bits = signal_bits([p for p in sources if p.is_file()])
     corners = len(next(iter(bench_corners(design.datapath).values())))
     clocks = estimate_clocks(
         samples=samples, cycles_per_sample=design.timing.cycles_per_sample, latency=design.timing.latency_cycles,
-        bulk=bulk, exhaustive=exhaustive, space_bits=input_space_bits(manifest), corners=corners,
+        bulk=bulk, exhaustive=exhaustive, space_bits=input_space_bits(design.datapath), corners=corners,
     )
     size = estimate_bytes(clocks, bits, simulator)
     if size > limit_mb * 1e6:
-        raise too_large(size, limit_mb, clocks, bits, fix_window=True)
+        raise too_large(size, limit_mb, clocks, bits, fix_window=simulator not in VHDL_SIMULATORS)
 
 
 def _window_waves(report: SimReport, project: Path, manifest: dict[str, Any], info: Any, build: Path, samples: int,
@@ -408,6 +420,20 @@ def _rerun(report: SimReport, project: Path, manifest: dict[str, Any], info: Any
                         files.results_jsonl, files.results_xml, None, build / "sim.log")
 
 
+def _check_language(manifest: dict[str, Any], simulator: str) -> None:
+    """Refuse a simulator whose language the project's core is not written in."""
+    if simulator in VHDL_SIMULATORS and not manifest["files"].get("vhdl"):
+        raise SimError(
+            f"{simulator} simulates the VHDL core and this project has none: set "
+            'hdl = ["verilog", "vhdl"] in config.toml and regenerate, or use --simulator verilator'
+        )
+    if simulator in SIMULATORS and not manifest["files"]["rtl"]:
+        raise SimError(
+            f'{simulator} simulates the Verilog core and this project has none (hdl = "vhdl"): use '
+            '--simulator ghdl, or set hdl = ["verilog", "vhdl"] in config.toml and regenerate'
+        )
+
+
 class _RunFiles:
     """The files one run's bench writes, under names no other run uses, published at the end.
 
@@ -461,19 +487,30 @@ def _run_cocotb(
     simulator = report.simulator
     sources = [project / rel for rel in manifest["files"]["rtl"]]
     build_args: list[str] = []
+    test_args: list[str] = []
+    run_options: list[str] = []
+    if simulator in VHDL_SIMULATORS:
+        sources = [project / rel for rel in manifest["files"]["vhdl"]]
+        # Analysis and elaboration both need the standard the library was built with.
+        build_args, test_args = list(info.build_args), list(info.build_args)
+        # numeric_std's warnings only from the first clock on: at time 0 the inputs are still
+        # undriven and it warns of every 'U' it compares. A run option, so after the unit name,
+        # where the runner puts plusargs.
+        run_options = ["--ieee-asserts=disable-at-0"]
     test_module, hdl_top, testcase = manifest["files"]["test_module"], top, None
     if bulk:
         sources, test_module, hdl_top, build_args, testcase = bulk_run_args(project, manifest, info.name, exhaustive)
         report.mode = "bulk, exhaustive" if exhaustive else "bulk"
-    bench_env = {
-        "BENCHGEN_SAMPLES": str(samples),
-        "BENCHGEN_RESULTS": str(results_jsonl),
-    }
+    bench_env = {SAMPLES_ENV: str(samples), RESULTS_ENV: str(results_jsonl)}
     if csv_tmp:
-        bench_env["BENCHGEN_CSV"] = str(csv_tmp)
+        bench_env[CSV_ENV] = str(csv_tmp)
     plusargs: list[str] = []
-    if plan is not None:
-        index_width = bulk_layout(manifest).index_width if bulk else 1
+    if plan is not None and simulator in VHDL_SIMULATORS:
+        # GHDL dumps the whole run itself, to the file its run option names (no watcher: VHDL
+        # cannot start a dump mid-run, so a window is refused before the run).
+        run_options = [*run_options, f"--wave={plan.path}"]
+    elif plan is not None:
+        index_width = bulk_layout(top, design_from_manifest(manifest).ports).index_width if bulk else 1
         watcher, watcher_args = write_watcher(build, simulator, hdl_top, bulk=bulk, index_width=index_width)
         sources = [*sources, watcher]
         build_args = [*build_args, *watcher_args]
@@ -510,7 +547,8 @@ def _run_cocotb(
                 test_dir=build,
                 seed=seed,
                 waves=test_waves,
-                plusargs=plusargs,
+                test_args=test_args,
+                plusargs=[*run_options, *plusargs],
                 results_xml=str(results_xml),
                 timescale=("1ns", "1ps"),
                 log_file=log_file,

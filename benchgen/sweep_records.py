@@ -1,4 +1,5 @@
-"""Schemas of everything a sweep reads back from disk: cache entries, result records, ``sweep.json``.
+"""Schemas of everything a sweep or its report reads back from disk: cache entries, result records,
+``sweep.json`` and ``model_analysis.json``.
 
 A sweep trusts nothing it did not just compute. A cache entry or a result file may be empty,
 cut short by a full disk, edited by hand, written by another benchgen, or hold bytes that are not
@@ -28,14 +29,17 @@ from typing import Annotated, Any, Literal
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator, model_validator
 
 __all__ = [
+    "MODEL_ANALYSIS_FILE",
     "RESULTS_DIR",
     "RESULT_STATUSES",
     "SWEEP_FILE",
     "RecordError",
     "check_cache_entry",
+    "check_model_analysis",
     "check_result",
     "check_sweep_file",
     "read_json_record",
+    "read_model_analysis",
     "read_result",
     "read_sweep_file",
 ]
@@ -43,6 +47,8 @@ __all__ = [
 #: What an output folder holds: its sweep, and one result file per task under results/<kind>/.
 SWEEP_FILE = "sweep.json"
 RESULTS_DIR = "results"
+#: What the bit-true model says about the sweep's cores (benchgen.sweep_analysis), for the report.
+MODEL_ANALYSIS_FILE = "model_analysis.json"
 
 #: Every status a result record may carry, by task kind (a closed set).
 RESULT_STATUSES: dict[str, tuple[str, ...]] = {"sim": ("passed", "failed", "error"), "synth": ("ok", "error")}
@@ -335,6 +341,68 @@ class SweepFileRecord(_Strict):
     tasks: list[TaskRecord]
 
 
+# ----------------------------------------------------------------------------- model_analysis.json
+
+
+class ErrorCurveRecord(_Strict):
+    """The model's worst and RMS error over iterations, at one number of guard bits."""
+
+    guard_bits: NonNegInt
+    iterations: Annotated[list[PosInt], Field(min_length=1)]
+    max_error_lsb: list[NonNegFloat]
+    rms_error_lsb: list[NonNegFloat]
+
+    @model_validator(mode="after")
+    def _same_length(self) -> ErrorCurveRecord:
+        n = len(self.iterations)
+        if len(self.max_error_lsb) != n or len(self.rms_error_lsb) != n:
+            raise ValueError(f"{n} iterations but {len(self.max_error_lsb)} worst and {len(self.rms_error_lsb)} RMS errors")
+        return self
+
+
+class ErrorGridRecord(_Strict):
+    """The error curves of one function at one output width, and the sweep's cores they stand for."""
+
+    function: str
+    data_width: PosInt
+    budget_lsb: PosFloat
+    core_ids: Annotated[list[str], Field(min_length=1)]
+    curves: list[ErrorCurveRecord]
+
+
+class ToneRecord(_Strict):
+    """A coherent tone through one data path: its quality and its spectrum, kept in bins."""
+
+    label: str
+    bits: PosInt
+    snr_db: float
+    sfdr_db: float
+    ideal_snr_db: float
+    n_fft: PosInt
+    cycles: PosInt
+    bin_start: Annotated[list[NonNegInt], Field(min_length=1)]
+    bin_low_dbc: list[float]
+    bin_high_dbc: list[float]
+    core_ids: Annotated[list[str], Field(min_length=1)]
+
+    @model_validator(mode="after")
+    def _bins(self) -> ToneRecord:
+        n = len(self.bin_start)
+        if len(self.bin_low_dbc) != n or len(self.bin_high_dbc) != n:
+            raise ValueError(f"{n} bins but {len(self.bin_low_dbc)} low and {len(self.bin_high_dbc)} high levels")
+        if any(lo > hi for lo, hi in zip(self.bin_low_dbc, self.bin_high_dbc, strict=True)):
+            raise ValueError("a bin's low level is above its high level")
+        return self
+
+
+class ModelAnalysisRecord(_Strict):
+    """``model_analysis.json`` (:func:`benchgen.sweep_analysis.analyse_models`, with the sweep's digest)."""
+
+    digest: str
+    error_grids: list[ErrorGridRecord]
+    tones: list[ToneRecord]
+
+
 # ----------------------------------------------------------------------------- checking
 
 
@@ -405,6 +473,15 @@ def check_sweep_file(data: Any) -> dict[str, Any]:
     return _validate(SweepFileRecord, data)
 
 
+def check_model_analysis(data: Any) -> dict[str, Any]:
+    """Return the content of a ``model_analysis.json`` if it fits its schema.
+
+    Raises:
+        RecordError: naming the first fault.
+    """
+    return _validate(ModelAnalysisRecord, data)
+
+
 def read_json_record(path: Path) -> Any:
     """The JSON value in ``path``.
 
@@ -463,5 +540,19 @@ def read_sweep_file(out_dir: Path) -> dict[str, Any]:
     path = out_dir / SWEEP_FILE
     try:
         return check_sweep_file(read_json_record(path))
+    except RecordError as exc:
+        raise RecordError(f"{path}: {exc}") from None
+
+
+def read_model_analysis(out_dir: Path) -> dict[str, Any]:
+    """The ``model_analysis.json`` of an output folder.
+
+    Raises:
+        FileNotFoundError: if there is none (a folder written before the sweep measured it).
+        RecordError: if it is not a valid one; the message names the file and the fault.
+    """
+    path = out_dir / MODEL_ANALYSIS_FILE
+    try:
+        return check_model_analysis(read_json_record(path))
     except RecordError as exc:
         raise RecordError(f"{path}: {exc}") from None

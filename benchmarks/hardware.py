@@ -54,7 +54,8 @@ sys.path.insert(0, str(HERE / "hand_cores"))
 
 import check_hand_cores  # noqa: E402  (benchmarks/ is not a package)
 
-from benchgen.project import generate_project, load_manifest  # noqa: E402
+from benchgen.functions import CorePort  # noqa: E402
+from benchgen.project import design_from_manifest, generate_project, load_manifest  # noqa: E402
 from benchgen.synth import DEVICES, Estimate, estimate, tool_versions  # noqa: E402
 
 SINCOS = {"function": "sincos", "angle_width": 16, "data_width": 16}
@@ -108,6 +109,8 @@ class Prepared:
     latency: int
     cycles_per_sample: int
     describe: str
+    ports: tuple[CorePort, ...] | None = None
+    """A generated core's ports (a hand core's are read from its source)."""
 
 
 @dataclass
@@ -148,8 +151,9 @@ def prepare(core: CoreDef, work: Path) -> Prepared:
     rtl = [folder / "project" / f for f in manifest["files"]["rtl"]]
     describe = (f"{derived['iterations']} it., {derived['guard_bits']} guard, "
                 f"{manifest['config'].get('rounding', 'half_even')}, xy {derived['xy_width']} / z {derived['z_width']} bits")
-    return Prepared(core, rtl, manifest["toplevel"], manifest["error_budget"]["model_max_error_lsb"], derived["latency_cycles"],
-                    derived["cycles_per_sample"], describe)
+    return Prepared(core, rtl, manifest["toplevel"], manifest["error_budget"]["model_max_error_lsb"],
+                    derived["latency_cycles"], derived["cycles_per_sample"], describe,
+                    design_from_manifest(manifest).ports)
 
 
 def measure(p: Prepared, target: str, seeds: list[int], clock_mhz: float, work: Path,
@@ -159,7 +163,7 @@ def measure(p: Prepared, target: str, seeds: list[int], clock_mhz: float, work: 
     for seed in seeds:
         t0 = time.perf_counter()
         est = estimate(p.sources, p.top, target, work / "synth" / p.core.key / target / f"seed{seed}",
-                       place_and_route=True, clock_mhz=clock_mhz, seed=seed)
+                       ports=p.ports, place_and_route=True, clock_mhz=clock_mhz, seed=seed)
         log(f"  {p.core.key:<24} {target:<5} seed {seed}: {est.luts} LUT4, {est.fmax_mhz} MHz "
             f"({time.perf_counter() - t0:.0f} s)")
         if result is None:

@@ -7,11 +7,9 @@ the cache, not the resume store). Target: the re-run takes under 20% of the firs
 With ``--cluster-check`` a third run goes through a Dask ``LocalCluster`` with two workers, with
 its own empty cache, and its report tables are compared byte for byte with the local pool's.
 
-With ``--publish DIR`` the first run's report (Markdown, plots, HTML, CSV, JSON, JUnit) is copied
-into DIR, which is how ``sim_projects/sweeps/nco_depth_width/`` is produced.
+Each run is what ``benchgen sweep`` does: the sweep, then its report.
 
-    python benchmarks/sweep_rerun.py sim_projects/sweeps/nco_depth_width.toml \\
-        --publish sim_projects/sweeps/nco_depth_width --cluster-check
+    python benchmarks/sweep_rerun.py sim_projects/sweeps/nco_depth_width.toml --cluster-check
 """
 
 from __future__ import annotations
@@ -24,16 +22,15 @@ import time
 from pathlib import Path
 
 from benchgen.report import collect, to_table
-from benchgen.sweep import run_sweep
+from benchgen.sweep_cli import sweep_and_report
 from benchgen.sweep_config import load_sweep
 
-REPORT_FILES = ("report.md", "report.html", "report.csv", "report.json", "junit.xml", "sweep.json")
 STABLE_FILES = ("report.md", "report.csv", "junit.xml")
 
 
 def _timed(label: str, **kwargs: object) -> tuple[float, object]:
     t0 = time.perf_counter()
-    outcome = run_sweep(**kwargs)  # type: ignore[arg-type]
+    outcome, _ = sweep_and_report(**kwargs)  # type: ignore[arg-type]
     wall = time.perf_counter() - t0
     print(f"{label}: {wall:.1f} s, {outcome.ran} task(s) run, exit status {outcome.exit_status}", flush=True)
     return wall, outcome
@@ -44,7 +41,6 @@ def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     ap.add_argument("sweep", help="sweep TOML")
     ap.add_argument("--jobs", type=int, default=None)
-    ap.add_argument("--publish", metavar="DIR", help="copy the first run's report here")
     ap.add_argument("--cluster-check", action="store_true", help="also run on a 2-worker LocalCluster and compare")
     ap.add_argument("--keep", metavar="DIR", help="work in DIR instead of a temporary folder")
     args = ap.parse_args()
@@ -66,15 +62,6 @@ def main() -> int:
     same = all((root / "first" / f).read_bytes() == (root / "rerun" / f).read_bytes() for f in STABLE_FILES)
     print(f"re-run report identical to the first: {same}")
     status = 0 if rerun / first < 0.20 and same else 1
-    if args.publish:
-        dest = Path(args.publish)
-        shutil.rmtree(dest / "plots", ignore_errors=True)
-        dest.mkdir(parents=True, exist_ok=True)
-        for f in REPORT_FILES:
-            shutil.copyfile(root / "first" / f, dest / f)
-        shutil.copytree(root / "first" / "plots", dest / "plots")
-        print(f"report copied to {dest}", flush=True)
-
     if args.cluster_check:
         _ = _timed("Dask LocalCluster, 2 workers, its own empty cache", spec=spec, out_dir=root / "cluster",
                          cluster="local", jobs=2, cache_dir=root / "cache_cluster", progress=sys.stderr)

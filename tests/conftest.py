@@ -52,7 +52,7 @@ def best_over_guard(spec: Any, n: int, inputs: Any, ideal: Any) -> float:
     iterations: the sizing proofs show a smaller ``n`` fails whatever the guard bits."""
     import math
 
-    from benchgen.algorithm import make_datapath
+    from benchgen.functions import make_datapath
     from benchgen.design import MAX_AUTO_GUARD_BITS
     from benchgen.errors import ConfigError
     from benchgen.functions import measure
@@ -65,3 +65,11 @@ def best_over_guard(spec: Any, n: int, inputs: Any, ideal: Any) -> float:
             continue  # more iterations than this width holds
         best = min(best, measure(dp, inputs, ideal).max_error_lsb)
     return best
+
+
+def run(dp: Any, *values: Any) -> Any:
+    """The bit-true model of ``dp`` on input values given in port order (a test shorthand)."""
+    from benchgen.functions import evaluate, input_ports
+
+    names = [p.name for p in input_ports(dp)]
+    return evaluate(dp, {n: __import__("numpy").asarray(v) for n, v in zip(names, values, strict=True)})

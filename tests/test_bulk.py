@@ -10,13 +10,16 @@ from __future__ import annotations
 import json
 import subprocess
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import pytest
 
 from benchgen.bench.bulk_check import BulkFunction, FaultError, pack, parse_fault, unpack
 from benchgen.bench.bulk_plan import BULK_FROM_SAMPLES, BulkError, bulk_plan, bulk_run_args
+from benchgen.functions import CorePort
 from benchgen.harness import (
+    BulkLayout,
     bulk_files,
     bulk_layout,
     native_names,
@@ -28,10 +31,20 @@ from benchgen.project import design_from_manifest, generate_project, load_manife
 from benchgen.simulators import find_simulator, simulator_env
 from tests.conftest import require_simulator, write_config
 
-PORTS = {
-    "clk": 1, "rst": 1, "in_valid": 1, "in_ready": 1, "out_valid": 1, "out_ready": 1,
-    "in_angle": 13, "in_tag": 5, "out_cos": 12, "out_sin": 12, "out_tag": 5,
-}
+PORTS = (
+    CorePort("clk", 1, "in", "clock"), CorePort("rst", 1, "in", "reset"),
+    CorePort("in_valid", 1, "in", "handshake"), CorePort("in_ready", 1, "out", "handshake"),
+    CorePort("in_angle", 13, "in", "data"), CorePort("in_tag", 5, "in", "tag"),
+    CorePort("out_valid", 1, "out", "handshake"), CorePort("out_ready", 1, "in", "handshake"),
+    CorePort("out_sin", 12, "out", "data", True), CorePort("out_cos", 12, "out", "data", True),
+    CorePort("out_tag", 5, "out", "tag"),
+)
+
+
+def _layout(manifest: dict[str, Any], **kw: Any) -> BulkLayout:
+    """The layout of a project's harness, from the design its manifest describes."""
+    design = design_from_manifest(manifest)
+    return bulk_layout(design.spec.name, design.ports, **kw)
 
 
 def _project(tmp_path: Path, **values: object) -> Path:
@@ -51,7 +64,7 @@ def sincos12(tmp_path_factory: pytest.TempPathFactory) -> Path:
 
 
 def test_layout_slots_are_byte_aligned_and_words_whole_32_bit_units() -> None:
-    layout = bulk_layout({"toplevel": "c", "ports": PORTS})
+    layout = bulk_layout("c", PORTS)
     assert [s.port for s in layout.inputs] == ["in_angle", "in_tag"]
     assert [s.port for s in layout.outputs] == ["out_cos", "out_sin", "out_tag"]
     for slots, size in ((layout.inputs, layout.in_bytes), (layout.outputs, layout.out_bytes)):
@@ -64,7 +77,7 @@ def test_layout_slots_are_byte_aligned_and_words_whole_32_bit_units() -> None:
 
 
 def test_stimulus_words_are_big_endian_with_each_port_in_its_slot() -> None:
-    layout = bulk_layout({"toplevel": "c", "ports": PORTS})
+    layout = bulk_layout("c", PORTS)
     rng = np.random.default_rng(4)
     angle = rng.integers(0, 1 << 13, size=50)
     tag = rng.integers(0, 1 << 5, size=50)
@@ -76,7 +89,7 @@ def test_stimulus_words_are_big_endian_with_each_port_in_its_slot() -> None:
 
 
 def test_result_words_unpack_to_signed_outputs_and_unsigned_tags() -> None:
-    layout = bulk_layout({"toplevel": "c", "ports": PORTS})
+    layout = bulk_layout("c", PORTS)
     rng = np.random.default_rng(5)
     cos = rng.integers(-(1 << 11), 1 << 11, size=64)
     sin = rng.integers(-(1 << 11), 1 << 11, size=64)
@@ -114,7 +127,7 @@ def test_project_carries_the_harness_and_leaves_the_core_alone(tmp_path: Path) -
     manifest = load_manifest(project)
     names = bulk_files(manifest)
     harness = (project / names.rtl).read_text()
-    assert harness == render_bulk_harness(bulk_layout(manifest))
+    assert harness == render_bulk_harness(_layout(manifest))
     assert f"module {names.toplevel};" in harness and "bulk_core core (" in harness
     core = (project / "rtl/bulk_core.v").read_text()
     assert names.toplevel not in core and "$fopen" not in core
@@ -136,7 +149,7 @@ def test_harness_is_lint_clean(tmp_path: Path) -> None:
 
 
 def test_stimulus_words_for_the_runner_are_little_endian() -> None:
-    layout = bulk_layout({"toplevel": "c", "ports": PORTS})
+    layout = bulk_layout("c", PORTS)
     raw = pack(layout, {"in_angle": np.array([0x1234]), "in_tag": np.array([0x1F])}, 1, big_endian=False)
     a, t = layout.inputs
     word = int.from_bytes(raw, "little")
@@ -194,14 +207,14 @@ def test_atan2_angle_errors_of_short_vectors(tmp_path: Path, prenormalise: bool)
     ],
 )
 def test_a_malformed_fault_names_the_value_and_the_form(text: str, message: str) -> None:
-    layout = bulk_layout({"toplevel": "c", "ports": PORTS})
+    layout = bulk_layout("c", PORTS)
     with pytest.raises(FaultError, match=message):
         parse_fault(text, layout)
     assert parse_fault("7:out_sin:3", layout) == (7, 1 << (layout.outputs[1].lsb + 3))
 
 
 def test_runner_main_copies_each_slot_into_its_port_and_masks_the_padding() -> None:
-    layout = bulk_layout({"toplevel": "c", "ports": PORTS})
+    layout = bulk_layout("c", PORTS)
     module, binary = native_names(layout)
     main = render_native_main(layout)
     assert f'#include "V{module}.h"' in main and binary in main
@@ -218,7 +231,7 @@ def test_runner_harness_is_lint_clean(tmp_path: Path) -> None:
     require_simulator("verilator")
     info = find_simulator("verilator")
     project = _project(tmp_path, function="rotate", angle_width=10, data_width=10)
-    layout = bulk_layout(load_manifest(project))
+    layout = _layout(load_manifest(project))
     module, _ = native_names(layout)
     harness = tmp_path / f"{module}.v"  # named after its module, as the runner build names it
     harness.write_text(render_native_harness(layout))
@@ -329,7 +342,7 @@ def test_hyperbolic_exhaustive_with_flags_and_side_values(function: str, simulat
     assert report.passed, report.problems
     assert report.samples == 1 << 12 and report.mismatches == 0
     assert report.max_error_lsb < 1.0
-    assert report.latency_cycles == report.expected_latency_cycles == 4
+    assert report.latency_cycles == report.expected_latency_cycles == 4 + 1  # depth + the output register
 
 
 @pytest.mark.sim
@@ -362,7 +375,7 @@ def test_a_runner_that_dies_is_reported_not_waited_for(tmp_path: Path) -> None:
 
     project = _project(tmp_path)
     design = design_from_manifest(load_manifest(project))
-    layout = bulk_layout(load_manifest(project))
+    layout = _layout(load_manifest(project))
     log_path = tmp_path / "sim.log"
     bench = _NativeBench(design, layout, 7, None, log_path)
     plan = full_rate_plan(bench.function, bench.rng(1), 50_000, layout.block)
@@ -388,7 +401,7 @@ def test_exhaustive_plan_puts_every_code_through_full_rate_and_the_stall_pattern
     manifest = load_manifest(project)
     fn = BulkFunction(design_from_manifest(manifest))
     total = 1 << fn.space_bits
-    plan = exhaustive_plan(fn, bulk_layout(manifest).block)
+    plan = exhaustive_plan(fn, _layout(manifest).block)
     # One segment per pattern: full rate, idle gaps, output stalls, both; each checked as applied.
     assert [(s.idle, s.stall) for s in plan] == list(GAP_PATTERNS)
     assert all(s.pattern_check for s in plan)
@@ -538,7 +551,7 @@ def test_a_tally_holds_the_same_after_ten_blocks_or_three_hundred(tmp_path: Path
     project = _project(tmp_path)
     manifest = load_manifest(project)
     fn = BulkFunction(design_from_manifest(manifest))
-    layout = bulk_layout(manifest)
+    layout = _layout(manifest)
     rng = np.random.default_rng(3)
 
     def fed(blocks: int) -> int:
@@ -601,7 +614,7 @@ def test_the_runner_loop_keeps_no_block_once_checked(tmp_path: Path) -> None:
     project = _project(tmp_path)
     manifest = load_manifest(project)
     design = design_from_manifest(manifest)
-    layout = bulk_layout(manifest, block=1024)
+    layout = _layout(manifest, block=1024)
     bench = _NativeBench(design, layout, 7, None, tmp_path / "sim.log")
     bench.function.tabulate()  # before measuring: the table is a fixed cost
     runner = _PerfectRunner(bench.function, design.timing.latency_cycles, layout.in_bytes)
@@ -644,3 +657,13 @@ def test_a_bulk_run_streams_every_sample_to_the_csv(sincos12: Path, tmp_path: Pa
     assert np.max(np.abs(values[:, 1:3] - values[:, 5:7])) < 1.0
     # The error columns are the outputs less the ideal, in LSB (both printed to six places).
     np.testing.assert_allclose(values[:, 7:9], values[:, 1:3] - values[:, 5:7], atol=2e-6)
+
+
+def test_a_port_wider_than_a_slot_is_refused() -> None:
+    """A slot holds at most the widest port a core may have (config.MAX_PORT_WIDTH)."""
+    from benchgen.config import MAX_PORT_WIDTH
+
+    wide = CorePort("in_x", MAX_PORT_WIDTH + 1, "in", "data")
+    with pytest.raises(ValueError, match=f"{MAX_PORT_WIDTH + 1} bits is wider than the {MAX_PORT_WIDTH} bits"):
+        bulk_layout("c", (*PORTS, wide))
+    assert bulk_layout("c", (*PORTS, CorePort("in_x", MAX_PORT_WIDTH, "in", "data"))).inputs[1].nbytes == 8

@@ -343,6 +343,10 @@ _INTERRUPT_CHILD = textwrap.dedent(
     """
     import importlib.abc, os, runpy, signal, sys
 
+    # A shell starts benchgen with Ctrl-C at its default; a test's parent process may ignore
+    # SIGINT (a pool or cluster that ran earlier in the same pytest worker), and an ignored
+    # SIGINT is inherited and keeps Python from installing its handler.
+    signal.signal(signal.SIGINT, signal.default_int_handler)
     MODULE = sys.argv[1]
 
     class Interrupt(importlib.abc.MetaPathFinder):
@@ -466,7 +470,10 @@ FIX_CASES: list[tuple[str, dict[str, Any]]] = [
     # The issue's cases: "max_error_lsb >= inf", a budget already set, a width at its maximum.
     ("mul_no_guard", {"function": "mul", "data_width": 8, "guard_bits": 0, "max_error_lsb": 0.5}),
     ("sinhcosh_truncate", {"function": "sinhcosh", "data_width": 11, "rounding": "truncate"}),
-    ("atan2_64", {"function": "atan2", "angle_width": 64, "data_width": 64, "max_error_lsb": 0.5}),
+    # A width at its maximum: the fix lowers the width (63). The budget is a reachable one, so
+    # the fixed config is sized in seconds (at 0.5 LSB the 63-bit search takes minutes and its
+    # refusal is the budget_low case's).
+    ("atan2_64", {"function": "atan2", "angle_width": 64, "data_width": 64, "max_error_lsb": 4.0}),
 ]
 
 

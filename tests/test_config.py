@@ -146,3 +146,15 @@ def test_did_you_mean_ranks_by_meaning(field: str, written: str, meant: str) -> 
     assert f'use {field} = "{meant}"' in str(refused.value)
     assert refused.value.suggestion == {field: meant}
     parse_config({**base, **refused.value.suggestion})  # the fix offered is one the tool accepts
+
+
+def test_every_synonym_points_at_a_value_its_field_accepts() -> None:
+    """The trade-name table (functions' own ``synonyms`` included) offers only accepted values,
+    and never shadows a real one."""
+    from benchgen.config import ARCHITECTURES, FUNCTIONS, ROUNDING_MODES, SYNONYMS
+
+    choices = {"function": FUNCTIONS, "rounding": ROUNDING_MODES, "architecture": ARCHITECTURES}
+    assert set(SYNONYMS) == set(choices)
+    for field, table in SYNONYMS.items():
+        assert table and set(table.values()) <= set(choices[field]), field
+        assert not set(table) & set(choices[field]), field

@@ -32,7 +32,7 @@ FUNCTIONS = ("sincos", "rotate", "atan2", "mul", "div", "sinhcosh", "exp", "atan
 FIELDS = (
     "name", "function", "architecture", "pipeline_depth", "iterations_per_cycle", "angle_width",
     "data_width", "iterations", "guard_bits", "rounding", "tag_width", "max_error_lsb", "gain",
-    "angle_unit",
+    "angle_unit", "vlnv_vendor", "vlnv_library",
 )  # fmt: skip
 # Widths of valid configs stay small: sizing runs the model, and 12 bits keep each run short.
 SMALL_WIDTH = (3, 12)
@@ -51,6 +51,8 @@ VALID: dict[str, list[Any]] = {
     "max_error_lsb": [1.0, 1.5, 2.0, 4.0, 1e6],
     "gain": ["compensated", "raw"],
     "angle_unit": ["turns", "radians"],
+    "vlnv_vendor": ["benchgen", "acme.dsp", "Lab-7"],
+    "vlnv_library": ["cores", "radio_ip", "1.x"],
 }
 
 scalars = st.one_of(
@@ -90,7 +92,7 @@ def valid_configs(draw: st.DrawFn) -> dict[str, Any]:
         config["pipeline_depth"] = draw(st.sampled_from(VALID["pipeline_depth"]))
     if arch == "iterative" and draw(st.booleans()):
         config["iterations_per_cycle"] = draw(st.sampled_from(VALID["iterations_per_cycle"]))
-    for field in ("iterations", "guard_bits", "rounding", "tag_width", "max_error_lsb"):
+    for field in ("iterations", "guard_bits", "rounding", "tag_width", "max_error_lsb", "vlnv_vendor", "vlnv_library"):
         if draw(st.booleans()):
             config[field] = draw(st.sampled_from(VALID[field]))
     return config
@@ -189,7 +191,11 @@ def accepted_configs(count: int, seed: int) -> list[dict[str, Any]]:
         config: dict[str, Any] = {"name": f"fuzz_core{len(found)}", "function": function, "data_width": rng.randint(6, 10)}
         if function in ANGLE_FUNCTIONS:
             config["angle_width"] = rng.randint(6, 10)
-        others = [f for f in FIELDS if f not in ("name", "function", "angle_width", "data_width")]
+        # The FuseSoC name changes no RTL: left out, so the seed draws the cores it always drew.
+        others = [
+            f for f in FIELDS
+            if f not in ("name", "function", "angle_width", "data_width", "vlnv_vendor", "vlnv_library")
+        ]  # fmt: skip
         for field in rng.sample(others, rng.randint(0, 5)):
             config[field] = rng.choice(VALID[field])
         status, err, out, folder = run_generate(toml_text(config).encode())

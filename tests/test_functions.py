@@ -10,20 +10,20 @@ import math
 import mpmath
 import numpy as np
 import pytest
-from conftest import best_over_guard
+from conftest import best_over_guard, run
 
-from benchgen.algorithm import circular_gain, make_datapath
+from benchgen.algorithm import circular_gain
+from benchgen.functions import make_datapath
 from benchgen.config import parse_config
 from benchgen.design import build_design
+from benchgen.functions.atan2 import small_vector_limit
 from benchgen.functions import (
     function_errors,
     ideal_outputs,
     measure,
     random_inputs,
     sizing_inputs,
-    small_vector_limit,
-)
-from benchgen.model import atan2, rotate
+    )
 
 
 def design(**values):  # type: ignore[no-untyped-def]
@@ -34,7 +34,7 @@ def test_rotate_worked_example_eighth_turn() -> None:
     # (1000, 0) turned by 1/8 turn (45 degrees, code 512 of 4096): 1000 cos 45 = 707.107,
     # 1000 sin 45 = 707.107, so both outputs round to 707.
     dp = design(function="rotate", data_width=12, angle_width=12).datapath
-    out = rotate(dp, [1000], [0], [512])
+    out = run(dp, [1000], [0], [512])
     assert (int(out["out_x"][0]), int(out["out_y"][0])) == (707, 707)
 
 
@@ -44,7 +44,7 @@ def test_rotate_worked_example_radians_quarter_turn() -> None:
     # x' = 300 cos t + 200 sin t = 200.0 + 0.145 = 200.1, y' = 300 sin t - 200 cos t = 300.0 - 0.097
     # = 299.9, so the outputs are 200 and 300.
     dp = design(function="rotate", data_width=12, angle_width=12, angle_unit="radians").datapath
-    out = rotate(dp, [300], [-200], [804])
+    out = run(dp, [300], [-200], [804])
     assert (int(out["out_x"][0]), int(out["out_y"][0])) == (200, 300)
 
 
@@ -54,7 +54,7 @@ def test_atan2_worked_examples() -> None:
     # (-1000, 0): half a turn, code 2048, read as signed -2048; magnitude 1000.
     # (0, 0): defined as angle 0, magnitude 0.
     dp = design(function="atan2", data_width=12, angle_width=12).datapath
-    out = atan2(dp, [300, -1000, 0], [400, 0, 0])
+    out = run(dp, [300, -1000, 0], [400, 0, 0])
     assert out["out_angle"][0] in (604, 605)
     assert out["out_angle"].tolist()[1:] == [-2048, 0]
     assert out["out_magnitude"].tolist() == [500, 1000, 0]
@@ -65,18 +65,17 @@ def test_sincos_raw_gain_widens_the_outputs_by_the_published_growth() -> None:
     # (Andraka 1998): cos 0 -> 2047 * 1.64676 = 3370.9 -> 3371, which needs a 13-bit output.
     # At 1/8 turn (code 512 of 4096): 3370.9 * cos 45 = 2383.6 for both.
     dp = design(function="sincos", data_width=12, angle_width=12, gain="raw").datapath
-    from benchgen.model import sincos
 
-    out = sincos(dp, [0, 512])
+    out = run(dp, [0, 512])
     assert dp.out_width == 13
-    assert int(out.cos[0]) in (3370, 3371) and abs(int(out.sin[0])) <= 1
-    assert int(out.cos[1]) in (2383, 2384) and int(out.sin[1]) in (2383, 2384)
+    assert int(out["out_cos"][0]) in (3370, 3371) and abs(int(out["out_sin"][0])) <= 1
+    assert int(out["out_cos"][1]) in (2383, 2384) and int(out["out_sin"][1]) in (2383, 2384)
 
 
 def test_atan2_raw_gain_is_the_published_growth() -> None:
     # Raw: the magnitude carries 1/K = 1.64676 (Andraka 1998). (1000, 0) -> 1646.76 -> 1647.
     dp = design(function="atan2", data_width=12, angle_width=12, gain="raw").datapath
-    out = atan2(dp, [1000], [0])
+    out = run(dp, [1000], [0])
     assert int(out["out_magnitude"][0]) == 1647
     assert 1 / float(dp.gain) == pytest.approx(1.64676, abs=1e-5)
 
@@ -96,7 +95,7 @@ def test_atan2_against_mpmath() -> None:
     dp = d.datapath
     rng = np.random.default_rng(8)
     inputs = random_inputs(dp, rng, 3000)
-    out = atan2(dp, inputs["in_x"], inputs["in_y"])
+    out = run(dp, inputs["in_x"], inputs["in_y"])
     worst = 0.0
     with mpmath.workdps(30):
         for x, y, a, m in zip(inputs["in_x"], inputs["in_y"], out["out_angle"], out["out_magnitude"], strict=True):
@@ -114,7 +113,7 @@ def test_rotate_against_mpmath() -> None:
     dp = d.datapath
     rng = np.random.default_rng(9)
     inputs = random_inputs(dp, rng, 2000)
-    out = rotate(dp, inputs["in_x"], inputs["in_y"], inputs["in_angle"])
+    out = run(dp, inputs["in_x"], inputs["in_y"], inputs["in_angle"])
     worst = 0.0
     with mpmath.workdps(30):
         for x, y, t, ox, oy in zip(inputs["in_x"], inputs["in_y"], inputs["in_angle"], out["out_x"], out["out_y"], strict=True):
@@ -137,7 +136,7 @@ def test_atan2_short_vectors_keep_their_angle_only_when_prenormalised(prenormali
         t = rng.uniform(-math.pi, math.pi, 4000)
         x = np.round(radius * np.cos(t)).astype(np.int64)
         y = np.round(radius * np.sin(t)).astype(np.int64)
-        out = atan2(dp, x, y)
+        out = run(dp, x, y)
         ideal = np.arctan2(y, x) / (2 * np.pi) * 4096
         e = (out["out_angle"] - ideal + 2048) % 4096 - 2048
         worst[radius] = float(np.max(np.abs(e)))
@@ -168,12 +167,12 @@ def test_function_errors_judge_every_vector_but_zero_when_prenormalised() -> Non
     x = np.array([0, 1, 2000, -2000, -1, 3])
     y = np.array([0, 0, 0, 5, -1, -4])
     dp = design(function="atan2", data_width=12, angle_width=12).datapath
-    errs = function_errors(dp, {"in_x": x, "in_y": y}, atan2(dp, x, y))
+    errs = function_errors(dp, {"in_x": x, "in_y": y}, run(dp, x, y))
     assert np.isnan(errs["out_angle"][0]) and not np.isnan(errs["out_angle"][1:]).any()
     assert not np.isnan(errs["out_magnitude"]).any()
     # Without prenormalisation short vectors (below 2^(b-5) = 128) are not judged.
     dp = design(function="atan2", data_width=12, angle_width=12, prenormalise=False).datapath
-    errs = function_errors(dp, {"in_x": x, "in_y": y}, atan2(dp, x, y))
+    errs = function_errors(dp, {"in_x": x, "in_y": y}, run(dp, x, y))
     assert list(np.isnan(errs["out_angle"])) == [True, True, False, False, True, True]
 
 
@@ -182,19 +181,15 @@ def test_mul_worked_example() -> None:
     # a b = -0.375 = -192/512, so out_product = -192 (exact: the core should hit it within 1 LSB,
     # and a product with few bits set comes out exactly).
     dp = design(function="mul", data_width=10).datapath
-    from benchgen.model import mul
-
-    assert int(mul(dp, [256], [-384])["out_product"][0]) == -192
+    assert int(run(dp, [256], [-384])["out_product"][0]) == -192
 
 
 def test_div_worked_examples_and_domain() -> None:
     # 10-bit fractions; the quotient has 8 fraction bits. 100 / 400 = 0.25 -> 64 codes.
     # -300 / 200 = -1.5 -> -384 codes. 300 / 100 = 3 is outside |q| < 2: flagged, quotient 0.
     # 5 / 0: flagged. -511 / -256 = 1.996 -> 511 codes (the format's largest value).
-    from benchgen.model import div
-
     dp = design(function="div", data_width=10).datapath
-    out = div(dp, [100, -300, 300, 5, -511], [400, 200, 100, 0, -256])
+    out = run(dp, [100, -300, 300, 5, -511], [400, 200, 100, 0, -256])
     assert out["out_domain_error"].tolist() == [0, 0, 1, 1, 0]
     assert out["out_quotient"].tolist()[:4] == [64, -384, 0, 0]
     assert abs(int(out["out_quotient"][4]) - 511) <= 1
@@ -204,14 +199,12 @@ def test_mul_and_div_against_exact_fractions() -> None:
     """Exact rational references (Python's fractions): no rounding in the reference at all."""
     from fractions import Fraction
 
-    from benchgen.model import div, mul
-
     rng = np.random.default_rng(12)
     for fn in ("mul", "div"):
         dp = design(function=fn, data_width=12).datapath
         a = rng.integers(-2048, 2048, 3000)
         b = rng.integers(-2048, 2048, 3000)
-        out = mul(dp, a, b)["out_product"] if fn == "mul" else div(dp, a, b)["out_quotient"]
+        out = run(dp, a, b)["out_product"] if fn == "mul" else run(dp, a, b)["out_quotient"]
         worst = Fraction(0)
         for p, q, o in zip(a.tolist(), b.tolist(), out.tolist(), strict=True):
             if fn == "mul":

@@ -210,9 +210,27 @@ def test_regenerate_over_a_manifest_without_a_file_list(
     manifest = json.loads((out / "manifest.json").read_text())
     del manifest["files"]["generated"]
     (out / "manifest.json").write_text(json.dumps(manifest, indent=2, sort_keys=True) + "\n")
+    # Those versions wrote no FuseSoC core file either (it came with the file list).
+    (out / "core_a.core").unlink()
     status, _ = run_cli(capsys, "generate", config(tmp_path, "c.toml", CONFIG_C), "-o", out)
     assert status == 0
     assert tree(out) == states["c"]
+
+
+def test_a_users_own_core_file_in_a_project_without_a_file_list_is_kept(
+    tmp_path: Path, states: dict[str, Tree], capsys: pytest.CaptureFixture[str]
+) -> None:
+    """Before benchgen wrote NAME.core, a file of that name in a project was the user's own."""
+    out = make_old_project(tmp_path, states)
+    manifest = json.loads((out / "manifest.json").read_text())
+    del manifest["files"]["generated"]
+    (out / "manifest.json").write_text(json.dumps(manifest, indent=2, sort_keys=True) + "\n")
+    (out / "core_a.core").write_text("CAPI=2:\nname: me:mine:core_a:1.0\n")
+    before = tree(out)
+    status, err = run_cli(capsys, "generate", config(tmp_path, "a.toml", CONFIG_A), "-o", out)
+    assert status == 2
+    assert_one_line(err, str(out / "core_a.core"), "not written by benchgen")
+    assert tree(out) == before
 
 
 def test_a_user_file_where_the_new_project_writes_is_refused(

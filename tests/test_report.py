@@ -12,9 +12,9 @@ from pathlib import Path
 import pytest
 
 from benchgen.report import collect, pareto_front, to_table
-from benchgen.sweep import run_sweep
+from benchgen.sweep_cli import FORMATS
 from benchgen.sweep_config import parse_sweep
-from tests.test_sweep import fake_runner, sweep_raw
+from tests.test_sweep import fake_runner, run_and_report, sweep_raw
 
 PNG_MAGIC = b"\x89PNG\r\n\x1a\n"
 
@@ -48,7 +48,7 @@ class _Page(HTMLParser):
 def sweep_dir(tmp_path_factory: pytest.TempPathFactory) -> Path:
     out = tmp_path_factory.mktemp("report") / "out"
     spec = parse_sweep(sweep_raw(synth={"targets": ["ice40"]}))
-    run_sweep(spec, out, jobs=1, runner=fake_runner, use_cache=False)
+    run_and_report(spec, out, jobs=1, runner=fake_runner, use_cache=False, formats=FORMATS)
     return out
 
 
@@ -137,9 +137,9 @@ def test_merge_of_shards_equals_the_whole(tmp_path: Path) -> None:
 
     spec = parse_sweep(sweep_raw())
     whole = tmp_path / "whole"
-    run_sweep(spec, whole, jobs=1, runner=fake_runner, use_cache=False, formats=("csv", "junit"))
+    run_and_report(spec, whole, jobs=1, runner=fake_runner, use_cache=False, formats=("csv", "junit"))
     for i in (1, 2):
-        run_sweep(spec, tmp_path / f"s{i}", jobs=1, runner=fake_runner, use_cache=False, shard=(i, 2),
+        run_and_report(spec, tmp_path / f"s{i}", jobs=1, runner=fake_runner, use_cache=False, shard=(i, 2),
                   formats=("csv",))
     part = (tmp_path / "s1" / "report.csv").read_text().splitlines()
     assert 1 < len(part) < len((whole / "report.csv").read_text().splitlines())
@@ -158,7 +158,7 @@ def test_ecp5_mux_cells_stand_beside_its_luts(tmp_path: Path) -> None:
     raw = sweep_raw(synth={"targets": ["ice40", "ecp5"]})
     raw["matrix"] = {"pipeline_depth": [1, 2]}
     out = tmp_path / "out"
-    run_sweep(parse_sweep(raw), out, jobs=1, runner=fake_runner, use_cache=False, formats=("json",))
+    run_and_report(parse_sweep(raw), out, jobs=1, runner=fake_runner, use_cache=False, formats=("json",))
     data = collect(out)
     header = to_markdown(data).split("## Points", 1)[1].strip().splitlines()[0]
     cols = [c.strip() for c in header.strip("|").split("|")]
@@ -189,7 +189,7 @@ def _depth_only_sweep(tmp_path: Path, targets: list[str]) -> Path:
     raw["sweep"]["simulators"] = ["icarus"]
     raw["matrix"] = {"pipeline_depth": [1, 2, 5]}
     out = tmp_path / "out"
-    run_sweep(parse_sweep(raw), out, jobs=1, runner=fake_runner, use_cache=False, formats=("json",))
+    run_and_report(parse_sweep(raw), out, jobs=1, runner=fake_runner, use_cache=False, formats=("json",))
     return out
 
 
@@ -205,7 +205,7 @@ def test_latency_figure_titles_stand_apart_and_carry_no_empty_legend(tmp_path: P
     from benchgen.report_plots import _latency_figure
 
     data = collect(_depth_only_sweep(tmp_path, ["ice40"]))
-    fig = _latency_figure(data)
+    fig = _latency_figure(data.rows)
     assert fig is not None
     fig.tight_layout()
     fig.canvas.draw()
@@ -255,24 +255,125 @@ def test_pareto_keeps_the_fastest_core() -> None:
 
 @pytest.mark.parametrize("function", ["atan2", "sqrt"])
 def test_error_against_iterations_is_drawn_for_any_function(tmp_path: Path, function: str) -> None:
-    """The model's error curves are drawn for every function, not only sincos; at a core's own
-    size the curve agrees with the sizer's proof (it measures a subset of the proven inputs)."""
-    from benchgen.report_plots import make_plots, model_error_grid
+    """The model's error curves are measured (benchgen.sweep_analysis) and drawn for every
+    function, not only the spectral ones; at a core's own size the curve agrees with the sizer's
+    proof (it measures a subset of the proven inputs)."""
+    from benchgen.report_plots import make_plots
 
     raw = sweep_raw()
     raw["sweep"]["simulators"] = ["icarus"]
     raw["base"] = {"name": "t", "function": function, "data_width": 8, "max_error_lsb": 1.5}
     if function == "atan2":
         raw["base"]["angle_width"] = 8
-    raw["matrix"] = {"rounding": ["truncate", "half_even"]}
+    raw["matrix"] = {"max_error_lsb": [1.0, 2.0]}
     out = tmp_path / "out"
-    run_sweep(parse_sweep(raw), out, jobs=1, runner=fake_runner, use_cache=False, formats=("json",))
+    run_and_report(parse_sweep(raw), out, jobs=1, runner=fake_runner, use_cache=False, formats=("json",))
     data = collect(out)
-    plots = make_plots(data, [])
+    plots = make_plots(data.rows, data.targets, data.axes, data.error_grids, data.verified_tones())
     assert "Error against iterations and guard bits" in plots
+    (grid,) = data.error_grids
+    assert grid["function"] == function and grid["data_width"] == 8
+    assert sorted(grid["core_ids"]) == sorted({r["core_id"] for r in data.rows})
+    shorter = 0
     for r in data.rows:
-        config = {**data.configs[r["core_id"]], "max_error_lsb": 1e6}
-        grid = model_error_grid(config, [r["iterations"] - 3, r["iterations"]], [r["guard_bits"]])
-        worst_sized = grid[r["guard_bits"]][r["iterations"]][0]
-        assert 0 < worst_sized <= r["model_max_error_lsb"] + 1e-6  # the manifest rounds to 6 places
-        assert grid[r["guard_bits"]][r["iterations"] - 3][0] > worst_sized  # fewer iterations, larger error
+        curve = next(c for c in grid["curves"] if c["guard_bits"] == r["guard_bits"])
+        worst = dict(zip(curve["iterations"], curve["max_error_lsb"], strict=True))
+        assert 0 < worst[r["iterations"]] <= r["model_max_error_lsb"] + 1e-6  # the manifest rounds to 6 places
+        fewest = min(curve["iterations"])  # the grid starts at 4 iterations at the least
+        if fewest < r["iterations"]:
+            assert worst[fewest] > worst[r["iterations"]]  # fewer iterations, larger error
+            shorter += 1
+    assert shorter  # the tighter budget takes more than the fewest iterations the grid draws
+
+
+def _report_files(folder: Path) -> dict[str, bytes]:
+    names = ["report.json", "report.csv", "report.md", "report.html", "junit.xml"]
+    files = {n: (folder / n).read_bytes() for n in names if (folder / n).is_file()}
+    files.update({f"plots/{p.name}": p.read_bytes() for p in sorted((folder / "plots").glob("*.png"))})
+    return files
+
+
+def test_report_runs_nothing(sweep_dir: Path, tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    """Rendering reads records only: with sizing, the model and the spectrum unusable, every
+    file comes out the same (the sweep measured the model once, into model_analysis.json)."""
+    import shutil
+
+    import benchgen.config
+    import benchgen.design
+    import benchgen.functions
+    import benchgen.spectrum
+    from benchgen.report import write_reports
+
+    def refuse(*args: object, **kwargs: object) -> None:
+        raise AssertionError("the report ran a computation")
+
+    for module, name in ((benchgen.config, "parse_config"), (benchgen.design, "build_design"),
+                         (benchgen.functions, "make_datapath"), (benchgen.functions, "measure"),
+                         (benchgen.functions, "function_named"), (benchgen.spectrum, "analyse_tone")):
+        monkeypatch.setattr(module, name, refuse)
+    copy = tmp_path / "copy"
+    shutil.copytree(sweep_dir, copy)
+    write_reports(copy, formats=FORMATS)
+    assert _report_files(copy) == _report_files(sweep_dir)
+
+
+def test_the_sweep_writes_no_report_and_its_report_is_a_function_of_the_records(tmp_path: Path) -> None:
+    """The sweep leaves the report to its caller; what ``benchgen sweep`` writes, ``report render``
+    rebuilds byte for byte from the records (no wall time or run count in any file)."""
+    from benchgen.cli import main
+    from benchgen.sweep import run_sweep
+
+    spec = parse_sweep(sweep_raw(matrix={"pipeline_depth": [1, 2]}))
+    bare = run_sweep(spec, tmp_path / "bare", jobs=1, runner=fake_runner, use_cache=False)
+    assert bare.exit_status == 0
+    assert not list((tmp_path / "bare").glob("report.*")) and (tmp_path / "bare" / "model_analysis.json").is_file()
+    out = tmp_path / "out"
+    run_and_report(spec, out, jobs=1, runner=fake_runner, use_cache=False, formats=FORMATS)
+    first = _report_files(out)
+    assert "report.json" in first and "report.html" in first
+    assert main(["report", "render", str(out), "--formats", ",".join(FORMATS)]) == 0
+    assert _report_files(out) == first
+
+
+def test_a_folder_without_the_model_analysis_is_refused_in_one_line(sweep_dir: Path, tmp_path: Path,
+                                                                    capsys: pytest.CaptureFixture[str]) -> None:
+    """A folder an older benchgen wrote has no model_analysis.json: the report says to re-run."""
+    import shutil
+
+    from benchgen.cli import main
+
+    old = tmp_path / "old"
+    shutil.copytree(sweep_dir, old)
+    (old / "model_analysis.json").unlink()
+    assert main(["report", "render", str(old), "--formats", "csv"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1
+    assert "model_analysis.json" in err and "run the same 'benchgen sweep' command into it again" in err
+    (old / "model_analysis.json").write_text('{"digest": "x", "error_grids": [], "tones": [{}]}')
+    assert main(["report", "render", str(old), "--formats", "csv"]) == 2
+    assert "tones.0" in capsys.readouterr().err
+
+
+def test_tones_show_only_data_paths_a_simulation_verified(sweep_dir: Path) -> None:
+    """A tone's RTL must have passed a simulation before the report shows its quality."""
+    from dataclasses import replace
+
+    data = collect(sweep_dir)
+    assert data.tones and data.verified_tones() == data.tones
+    failed = [dict(r, status="failed") for r in data.rows]
+    assert replace(data, rows=failed).verified_tones() == []
+
+
+def test_error_grid_stops_each_curve_at_the_widest_core_it_can_build() -> None:
+    """The grid reaches past the sweep's iterations; where that passes the internal width the
+    curve ends there (the report's own grid once sized its inputs at the largest iterations and
+    guard bits and failed, so a 12-bit, 20-iteration, 7-guard-bit sweep got no report)."""
+    from benchgen.sweep_analysis import analyse_models
+
+    core = {"name": "t", "function": "sincos", "angle_width": 10, "data_width": 8, "iterations": 13,
+            "guard_bits": 4, "max_error_lsb": 1.5}
+    (grid,) = analyse_models([("c", core)])["error_grids"]
+    ends = {c["guard_bits"]: c["iterations"][-1] for c in grid["curves"]}
+    # The internal width is data_width + guard_bits + 1: no more iterations than that.
+    assert ends == {0: 9, 2: 11, 4: 13}
+    assert grid["core_ids"] == ["c"] and grid["budget_lsb"] == 1.5

@@ -145,4 +145,4 @@ def test_ports_follow_the_contract() -> None:
 def test_wide_literals_carry_their_width() -> None:
     assert verilog_literal(-1, 40) == "40'hffffffffff"
     assert verilog_literal(5, 3) == "3'h5"
-    assert verilog_literal(0, 1) == "1'h0"
+    assert verilog_literal(0, 1) == "1'b0"  # a one-bit literal is written in binary

@@ -15,8 +15,7 @@ import pytest
 from benchgen.bench.scoreboard import write_csv_rows
 from benchgen.config import parse_config
 from benchgen.design import build_design
-from benchgen.functions import function_errors, ideal_outputs, output_ports, random_inputs
-from benchgen.model import evaluate_function
+from benchgen.functions import evaluate, function_errors, ideal_outputs, output_ports, random_inputs
 from benchgen.sim import SimReport
 from benchgen.sim_report import write_html
 from tests.conftest import require_simulator, write_config
@@ -79,7 +78,7 @@ def test_html_report_is_one_offline_file_with_the_numbers(tmp_path: Path) -> Non
                                         "max_error_lsb": 1.5}))
     dp = design.datapath
     inputs = random_inputs(dp, np.random.default_rng(5), 3000)
-    got = evaluate_function(dp, inputs)
+    got = evaluate(dp, inputs)
     ideal = ideal_outputs(dp, inputs)
     errors = function_errors(dp, inputs, got, ideal)
     columns = {**inputs, **{p.name: got[p.name] for p in output_ports(dp)}}

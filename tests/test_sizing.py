@@ -7,17 +7,18 @@ import math
 import numpy as np
 import pytest
 
-from benchgen.algorithm import make_datapath
+from benchgen.functions import make_datapath
 from benchgen.config import parse_config
-from benchgen.design import MAX_AUTO_GUARD_BITS, build_design, evaluate, sizing_angles
+from benchgen.design import MAX_AUTO_GUARD_BITS, build_design
+from benchgen.functions import measure, sizing_inputs
 
 
 def best_over_guard(spec, n: int) -> float:  # type: ignore[no-untyped-def]
-    angles, _ = sizing_angles(spec.angle_width, spec.data_width)
+    inputs, _ = sizing_inputs(make_datapath(spec, spec.data_width, 0))
     worst = math.inf
     for g in range(MAX_AUTO_GUARD_BITS + 1):
         if n <= spec.data_width + g + 1:
-            worst = min(worst, evaluate(make_datapath(spec, n, g), angles).max_error_lsb)
+            worst = min(worst, measure(make_datapath(spec, n, g), inputs).max_error_lsb)
     return worst
 
 
@@ -30,12 +31,12 @@ def test_sincos_sizing_is_minimal(width: int, rounding: str) -> None:
     )
     design = build_design(spec)
     n, g = design.datapath.iterations, design.datapath.guard_bits
-    angles, exhaustive = sizing_angles(width, width)
+    inputs, exhaustive = sizing_inputs(design.datapath)
     assert exhaustive  # a 2^12 or 2^16 space is checked whole
-    assert evaluate(make_datapath(spec, n, g), angles).max_error_lsb <= target
+    assert measure(make_datapath(spec, n, g), inputs).max_error_lsb <= target
     # One guard bit fewer misses the target at this iteration count ...
     if g > 0:
-        assert evaluate(make_datapath(spec, n, g - 1), angles).max_error_lsb > target
+        assert measure(make_datapath(spec, n, g - 1), inputs).max_error_lsb > target
     # ... and one iteration fewer misses it whatever the guard bits.
     assert best_over_guard(spec, n - 1) > target
 
@@ -46,8 +47,8 @@ def test_rule_of_thumb_from_facts_holds_on_this_model() -> None:
         spec = parse_config({"name": "c", "function": "sincos", "data_width": width, "angle_width": width})
         n = width + 4
         g = math.ceil(math.log2(n)) + 1
-        angles, _ = sizing_angles(width, width)
-        assert evaluate(make_datapath(spec, n, g), angles).max_error_lsb < 1.0
+        inputs, _ = sizing_inputs(make_datapath(spec, n, g))
+        assert measure(make_datapath(spec, n, g), inputs).max_error_lsb < 1.0
 
 
 def test_n_equal_b_leaves_an_error_floor() -> None:
@@ -67,6 +68,8 @@ def test_explicit_sizes_are_measured_and_kept() -> None:
 
 
 def test_large_angle_space_is_sampled_not_exhaustive() -> None:
-    angles, exhaustive = sizing_angles(24, 16)
+    spec = parse_config({"name": "c", "function": "sincos", "data_width": 16, "angle_width": 24})
+    inputs, exhaustive = sizing_inputs(make_datapath(spec, 18, 6))
+    angles = inputs["in_angle"]
     assert not exhaustive and len(angles) > 1_000_000
     assert len(np.unique(angles)) > 900_000

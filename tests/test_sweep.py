@@ -16,16 +16,16 @@ import pytest
 from benchgen.cli import main
 from benchgen.sim import SimReport
 from benchgen.sweep import (
-    _design_summary,
+    SweepOutcome,
     _generate_point_project,
     execute_task,
     load_results,
     make_tasks,
     parse_shard,
-    run_sweep,
     select_shard,
 )
-from benchgen.sweep_config import SweepError, expand, load_sweep, parse_sweep
+from benchgen.sweep_cli import sweep_and_report
+from benchgen.sweep_config import SweepError, SweepSpec, expand, load_sweep, parse_sweep
 
 BASE = {"name": "tiny", "function": "sincos", "angle_width": 10, "data_width": 8, "iterations": 10, "guard_bits": 4,
         "max_error_lsb": 1.5}
@@ -45,11 +45,15 @@ CALLS: list[str] = []
 QUICK = ("json", "junit")  # the plots have their own tests (test_report.py)
 
 
+def run_and_report(spec: SweepSpec, out: Path, *, formats: tuple[str, ...] = QUICK, **run: Any) -> SweepOutcome:
+    """Run a sweep, then write its report, as ``benchgen sweep`` does."""
+    return sweep_and_report(spec, out, formats=formats, **run)[0]
+
+
 def fake_runner(task: Any, work_root: str, cache_dir: str | None) -> dict[str, Any]:
     """Stand-in for execute_task: real project generation, model accuracy as the 'measurement'."""
     CALLS.append(task.task_id)
-    project = _generate_point_project(task.core, Path(work_root) / task.task_id)
-    design = _design_summary(project)
+    _, design = _generate_point_project(task.core, Path(work_root) / task.task_id)
     base = {"kind": task.kind, "task_id": task.task_id, "key": task.key, "label": task.label,
             "seconds": 0.01, "cached": False, "design": design}
     if task.kind == "synth":
@@ -185,13 +189,13 @@ def test_interrupted_sweep_resumes_without_redoing_finished_points(tmp_path: Pat
             raise KeyboardInterrupt
 
     with pytest.raises(KeyboardInterrupt):
-        run_sweep(spec, out, jobs=1, runner=fake_runner, on_result=stop_after_five, use_cache=False,
+        run_and_report(spec, out, jobs=1, runner=fake_runner, on_result=stop_after_five, use_cache=False,
                   formats=QUICK)
     first = list(CALLS)
     saved = {p.name: p.read_bytes() for p in (out / "results" / "sim").glob("*.json")}
     assert len(saved) == 5
     CALLS.clear()
-    outcome = run_sweep(spec, out, jobs=1, runner=fake_runner, use_cache=False, formats=QUICK)
+    outcome = run_and_report(spec, out, jobs=1, runner=fake_runner, use_cache=False, formats=QUICK)
     assert outcome.ran == total - 5
     assert not set(CALLS) & set(first)
     assert sorted(CALLS + first) == sorted(t.task_id for t in outcome.tasks)
@@ -202,11 +206,11 @@ def test_interrupted_sweep_resumes_without_redoing_finished_points(tmp_path: Pat
 
 def test_changed_sweep_reruns_only_changed_points(tmp_path: Path) -> None:
     spec = parse_sweep(sweep_raw())
-    run_sweep(spec, tmp_path / "o", jobs=1, runner=fake_runner, use_cache=False, formats=QUICK)
+    run_and_report(spec, tmp_path / "o", jobs=1, runner=fake_runner, use_cache=False, formats=QUICK)
     CALLS.clear()
     raw = sweep_raw()
     raw["sweep"]["samples"] = 200  # every sim task changes
-    outcome = run_sweep(parse_sweep(raw), tmp_path / "o", jobs=1, runner=fake_runner, use_cache=False, formats=QUICK)
+    outcome = run_and_report(parse_sweep(raw), tmp_path / "o", jobs=1, runner=fake_runner, use_cache=False, formats=QUICK)
     assert outcome.ran == len(outcome.tasks)
 
 
@@ -214,7 +218,7 @@ def test_failed_point_is_reported_and_others_still_run(tmp_path: Path) -> None:
     global FAIL_ONE
     FAIL_ONE = True
     spec = parse_sweep(sweep_raw())
-    outcome = run_sweep(spec, tmp_path / "o", jobs=1, runner=fake_runner, use_cache=False,
+    outcome = run_and_report(spec, tmp_path / "o", jobs=1, runner=fake_runner, use_cache=False,
                         formats=("junit", "md"))
     assert outcome.exit_status == 1
     bad = [t for t in outcome.failed]
@@ -230,7 +234,7 @@ def test_failed_point_is_reported_and_others_still_run(tmp_path: Path) -> None:
 
 def test_error_results_are_retried_on_resume(tmp_path: Path) -> None:
     spec = parse_sweep(sweep_raw())
-    run_sweep(spec, tmp_path / "o", jobs=1, runner=fake_runner, use_cache=False, formats=QUICK)
+    run_and_report(spec, tmp_path / "o", jobs=1, runner=fake_runner, use_cache=False, formats=QUICK)
     tasks = make_tasks(spec, expand(spec))
     victim = tmp_path / "o" / "results" / "sim" / f"{tasks[0].task_id}.json"
     data = json.loads(victim.read_text())
@@ -238,7 +242,7 @@ def test_error_results_are_retried_on_resume(tmp_path: Path) -> None:
     victim.write_text(json.dumps(data))
     assert tasks[0].task_id not in load_results(tmp_path / "o", tasks)
     CALLS.clear()
-    run_sweep(spec, tmp_path / "o", jobs=1, runner=fake_runner, use_cache=False, formats=QUICK)
+    run_and_report(spec, tmp_path / "o", jobs=1, runner=fake_runner, use_cache=False, formats=QUICK)
     assert CALLS == [tasks[0].task_id]
 
 

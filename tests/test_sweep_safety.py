@@ -33,10 +33,10 @@ from benchgen.cli import main
 from benchgen.errors import BenchgenError
 from benchgen.sim import SimReport
 from benchgen.simulators import SimulatorInfo
-from benchgen.sweep import execute_task, make_tasks, run_sweep
+from benchgen.sweep import execute_task, make_tasks
 from benchgen.sweep_config import expand, parse_sweep
 from tests.conftest import require_simulator
-from tests.test_sweep import CALLS, fake_runner, sweep_raw
+from tests.test_sweep import CALLS, fake_runner, run_and_report, sweep_raw
 
 REPO = Path(__file__).resolve().parent.parent
 QUICK = ("json",)
@@ -65,13 +65,13 @@ def test_second_sweep_into_a_busy_folder_is_refused_at_once(tmp_path: Path) -> N
         if not refused and not inner_calls:
             before = len(CALLS)
             try:
-                run_sweep(spec, out, jobs=1, runner=fake_runner, use_cache=False, formats=QUICK)
+                run_and_report(spec, out, jobs=1, runner=fake_runner, use_cache=False, formats=QUICK)
             except BenchgenError as exc:
                 refused.append(exc)
             inner_calls.append(len(CALLS) - before)
         return fake_runner(task, work, cache)
 
-    outcome = run_sweep(spec, out, jobs=1, runner=runner, use_cache=False, formats=QUICK)
+    outcome = run_and_report(spec, out, jobs=1, runner=runner, use_cache=False, formats=QUICK)
     assert inner_calls == [0], "the second sweep ran tasks in a folder another sweep was writing"
     (exc,) = refused
     assert exc.exit_status == 2
@@ -81,7 +81,7 @@ def test_second_sweep_into_a_busy_folder_is_refused_at_once(tmp_path: Path) -> N
     for r in outcome.results.values():
         assert r["sim"]["samples"] == 100  # counted once
     # The lock went with the first sweep: the folder can be used again at once.
-    assert run_sweep(spec, out, jobs=1, runner=fake_runner, use_cache=False, formats=QUICK).exit_status == 0
+    assert run_and_report(spec, out, jobs=1, runner=fake_runner, use_cache=False, formats=QUICK).exit_status == 0
 
 
 LOCK_HOLDER = """
@@ -97,12 +97,12 @@ with lock_folder(Path(sys.argv[1])):
 def test_a_killed_sweep_leaves_no_stale_lock(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
     out = tmp_path / "out"
     spec = small_spec([1])
-    run_sweep(spec, out, jobs=1, runner=fake_runner, use_cache=False, formats=QUICK)
+    run_and_report(spec, out, jobs=1, runner=fake_runner, use_cache=False, formats=QUICK)
     holder = subprocess.Popen([sys.executable, "-c", LOCK_HOLDER, str(out)], stdout=subprocess.PIPE, text=True)
     try:
         assert holder.stdout is not None and holder.stdout.readline().strip() == "locked"
         with pytest.raises(BenchgenError) as info:
-            run_sweep(spec, out, jobs=1, runner=fake_runner, use_cache=False, formats=QUICK)
+            run_and_report(spec, out, jobs=1, runner=fake_runner, use_cache=False, formats=QUICK)
         assert f"(pid {holder.pid})" in str(info.value) and info.value.exit_status == 2
         # report render must not write report files under a running sweep either
         assert main(["report", "render", str(out), "--formats", "csv"]) == 2
@@ -111,7 +111,7 @@ def test_a_killed_sweep_leaves_no_stale_lock(tmp_path: Path, capsys: pytest.Capt
     finally:
         holder.send_signal(signal.SIGKILL)
         holder.wait()
-    outcome = run_sweep(spec, out, jobs=1, runner=fake_runner, use_cache=False, formats=QUICK)
+    outcome = run_and_report(spec, out, jobs=1, runner=fake_runner, use_cache=False, formats=QUICK)
     assert outcome.exit_status == 0
 
 
@@ -324,10 +324,10 @@ def test_a_poisoned_cache_entry_never_reaches_the_output_folder(tmp_path: Path, 
     runs = _fake_sim(monkeypatch)
     spec = small_spec([2])
     cache = tmp_path / "cache"
-    run_sweep(spec, tmp_path / "o1", jobs=1, cache_dir=cache, formats=QUICK)
+    run_and_report(spec, tmp_path / "o1", jobs=1, cache_dir=cache, formats=QUICK)
     (entry,) = (cache / "sim").glob("*.json")
     entry.write_text("{}")
-    outcome = run_sweep(spec, tmp_path / "o2", jobs=1, cache_dir=cache, formats=QUICK)
+    outcome = run_and_report(spec, tmp_path / "o2", jobs=1, cache_dir=cache, formats=QUICK)
     assert len(runs) == 2
     (result,) = outcome.results.values()
     assert result["status"] == "passed" and result["cached"] is False and result["sim"]["samples"] == 1935
@@ -344,14 +344,14 @@ def test_a_result_that_does_not_fit_the_schema_is_saved_as_an_error(tmp_path: Pa
         result["sim"]["mismatches"] = 5
         return result
 
-    outcome = run_sweep(spec, tmp_path / "o", jobs=1, runner=lying, use_cache=False, formats=QUICK)
+    outcome = run_and_report(spec, tmp_path / "o", jobs=1, runner=lying, use_cache=False, formats=QUICK)
     (saved,) = (tmp_path / "o" / "results" / "sim").glob("*.json")
     record = json.loads(saved.read_text())
     assert record["status"] == "error"
     assert "passed = true, yet mismatches = 5" in record["error"]
     assert outcome.exit_status == 1
     # an error is retried on the next run
-    assert run_sweep(spec, tmp_path / "o", jobs=1, runner=fake_runner, use_cache=False, formats=QUICK).exit_status == 0
+    assert run_and_report(spec, tmp_path / "o", jobs=1, runner=fake_runner, use_cache=False, formats=QUICK).exit_status == 0
 
 
 # ----------------------------------------------------------------------------- bad result files
@@ -379,7 +379,7 @@ BAD_RESULT = {
 @pytest.fixture(scope="module")
 def finished(tmp_path_factory: pytest.TempPathFactory) -> Path:
     out = tmp_path_factory.mktemp("finished") / "out"
-    run_sweep(small_spec([1, 2]), out, jobs=1, runner=fake_runner, use_cache=False, formats=QUICK)
+    run_and_report(small_spec([1, 2]), out, jobs=1, runner=fake_runner, use_cache=False, formats=QUICK)
     return out
 
 
@@ -414,7 +414,7 @@ def test_a_bad_result_file_is_run_again_and_rewritten(bad: str, finished: Path, 
     good = victim.read_bytes()
     victim.write_bytes(BAD_RESULT[bad][0](good))
     notes = io.StringIO()
-    outcome = run_sweep(small_spec([1, 2]), out, jobs=1, runner=fake_runner, use_cache=False, formats=QUICK,
+    outcome = run_and_report(small_spec([1, 2]), out, jobs=1, runner=fake_runner, use_cache=False, formats=QUICK,
                         notes=notes)
     assert CALLS == [victim.stem]
     (line,) = notes.getvalue().splitlines()
@@ -511,7 +511,7 @@ def test_bench_fingerprint_changes_with_every_module_the_bench_imports(tmp_path:
     ours = str(tmp_path / "benchgen")
     files = sorted({m.__file__ for m in finder.modules.values() if m.__file__ and m.__file__.startswith(ours)})
     names = {Path(f).name for f in files}
-    assert {"functions.py", "model.py", "reference.py", "scoreboard.py", "core_tests.py"} <= names
+    assert {"model.py", "reference.py", "scoreboard.py", "core_tests.py", "atan2.py", "base.py"} <= names
     env = {**os.environ, "PYTHONPATH": str(tmp_path)}
     probe = subprocess.run([sys.executable, "-c", FINGERPRINT_PROBE, json.dumps(files)], env=env,
                            capture_output=True, text=True, check=True, cwd=tmp_path)

@@ -12,6 +12,7 @@ import pytest
 
 import benchgen.sweep as sweep_mod
 from benchgen.sweep import run_sweep
+from tests.test_sweep import run_and_report
 from benchgen.sweep_config import parse_sweep
 from tests.conftest import require_simulator
 
@@ -40,10 +41,10 @@ def test_interrupted_real_sweep_resumes_and_verifies_every_point(tmp_path: Path)
         raise KeyboardInterrupt
 
     with pytest.raises(KeyboardInterrupt):
-        run_sweep(spec, out, jobs=1, cache_dir=tmp_path / "cache", on_result=stop, formats=())
+        run_sweep(spec, out, jobs=1, cache_dir=tmp_path / "cache", on_result=stop)
     done = out / "results" / "sim" / f"{seen[0]}.json"
     before = done.read_bytes()
-    outcome = run_sweep(spec, out, jobs=1, cache_dir=tmp_path / "cache", formats=("junit", "csv"))
+    outcome = run_and_report(spec, out, jobs=1, cache_dir=tmp_path / "cache", formats=("junit", "csv"))
     assert outcome.ran == 2
     assert done.read_bytes() == before
     assert outcome.exit_status == 0, outcome.failed
@@ -81,14 +82,14 @@ def test_a_point_that_fails_verification_is_reported_and_the_others_run(
     require_simulator("icarus")
     real = sweep_mod._generate_point_project
 
-    def generate(core: dict[str, Any], folder: Path) -> Path:
-        project = real(core, folder)
+    def generate(core: dict[str, Any], folder: Path) -> tuple[Path, dict[str, Any]]:
+        project, design = real(core, folder)
         if core.get("pipeline_depth") == 3:
             _break_lsb(project)
-        return project
+        return project, design
 
     monkeypatch.setattr(sweep_mod, "_generate_point_project", generate)
-    outcome = run_sweep(tiny([1, 3, 10]), tmp_path / "out", jobs=1, use_cache=False, formats=("junit", "md"))
+    outcome = run_and_report(tiny([1, 3, 10]), tmp_path / "out", jobs=1, use_cache=False, formats=("junit", "md"))
     status = {r["task_id"].split("__")[0]: r["status"] for r in outcome.results.values()}
     assert status == {"pipeline_depth-1": "passed", "pipeline_depth-3": "failed", "pipeline_depth-10": "passed"}
     assert outcome.exit_status == 1
@@ -105,8 +106,8 @@ def test_dask_local_cluster_gives_the_same_report_as_the_local_pool(tmp_path: Pa
     require_simulator("icarus")
     pytest.importorskip("distributed")
     spec = tiny([2, 5])
-    pool = run_sweep(spec, tmp_path / "pool", jobs=2, cache_dir=tmp_path / "c1", formats=STABLE_FORMATS)
-    dask = run_sweep(spec, tmp_path / "dask", jobs=2, cluster="local", cache_dir=tmp_path / "c2",
+    pool = run_and_report(spec, tmp_path / "pool", jobs=2, cache_dir=tmp_path / "c1", formats=STABLE_FORMATS)
+    dask = run_and_report(spec, tmp_path / "dask", jobs=2, cluster="local", cache_dir=tmp_path / "c2",
                      formats=STABLE_FORMATS)
     assert pool.exit_status == dask.exit_status == 0
     assert dask.ran == pool.ran == 2

@@ -10,8 +10,9 @@ from typing import Any
 
 import pytest
 
-from benchgen.sweep import _design_summary, _generate_point_project
-from benchgen.synth import SynthError, core_ports, estimate, io_wrapper
+from benchgen.project import design_from_manifest, load_manifest
+from benchgen.sweep import _generate_point_project
+from benchgen.synth import SynthError, estimate, io_wrapper, read_ports
 
 
 def require_yowasp() -> None:
@@ -38,17 +39,16 @@ def small_core(depth: int) -> dict[str, Any]:
 def test_ice40_estimate_of_a_small_pipelined_core(tmp_path: Path) -> None:
     require_yowasp()
     depth = 4
-    project = _generate_point_project(small_core(depth), tmp_path / "p")
-    design = _design_summary(project)
+    project, design = _generate_point_project(small_core(depth), tmp_path / "p")
+    ports = design_from_manifest(load_manifest(project)).ports
     est = estimate([project / r for r in design["rtl"]], design["toplevel"], "ice40", tmp_path / "syn",
-                   place_and_route=True, clock_mhz=50)
+                   ports=ports, place_and_route=True, clock_mhz=50)
     assert est.luts > 0 and est.carry > 0
     xy = design["derived"]["xy_width"]
     # Each register stage holds at least x and y; the output register holds both outputs.
     assert est.ffs >= depth * 2 * xy
     assert est.ffs == sum(n for c, n in est.cells.items() if c.startswith("SB_DFF"))
     # The wrapper registers every port but clk; none of its flip-flops is counted as the core's.
-    ports = core_ports((project / design["rtl"][0]).read_text(), design["toplevel"])
     assert est.wrapper_ffs == sum(p.width for p in ports if p.name != "clk")
     assert "io_wrapper" in est.tools
     assert est.bram == 0 and est.dsp == 0  # shift-and-add needs no multiplier or memory
@@ -67,8 +67,7 @@ def test_single_stage_core_is_timed_from_its_ports(tmp_path: Path) -> None:
     require_yowasp()
     fmax = {}
     for depth in (1, 4):
-        project = _generate_point_project(small_core(depth), tmp_path / f"p{depth}")
-        design = _design_summary(project)
+        project, design = _generate_point_project(small_core(depth), tmp_path / f"p{depth}")
         est = estimate([project / r for r in design["rtl"]], design["toplevel"], "ice40", tmp_path / f"syn{depth}",
                        place_and_route=True, clock_mhz=50)
         assert est.fmax_mhz is not None
@@ -127,17 +126,16 @@ def test_an_estimate_cached_before_the_mux_count_is_made_again() -> None:
 
 def test_wrapper_registers_every_port(tmp_path: Path) -> None:
     """The generated wrapper puts one flip-flop stage between each port and the core (no tools)."""
-    project = _generate_point_project(small_core(1), tmp_path / "p")
-    design = _design_summary(project)
+    project, design = _generate_point_project(small_core(1), tmp_path / "p")
     top = design["toplevel"]
-    core_text = (project / design["rtl"][0]).read_text()
-    wrapper, text, ffs = io_wrapper(core_text, top)
-    ports = core_ports(core_text, top)
+    ports = design_from_manifest(load_manifest(project)).ports
+    wrapper, text, ffs = io_wrapper(top, ports)
     assert {p.name for p in ports} >= {"clk", "rst", "in_valid", "in_ready", "out_valid", "out_ready"}
     assert ffs == sum(p.width for p in ports if p.name != "clk")
 
     # Same ports, same directions and widths as the core, so the wrapper is a drop-in top level.
-    assert core_ports(text, wrapper) == ports
+    shape = [(p.name, p.direction, p.width) for p in ports]
+    assert [(p.name, p.direction, p.width) for p in read_ports(text, wrapper)] == shape
     body = text.split(f"{top} u_core (", 1)
     assert len(body) == 2
     regs = dict(re.findall(r"^\s*(\w+)_q <= (\w+);", body[0], re.MULTILINE))
@@ -147,9 +145,10 @@ def test_wrapper_registers_every_port(tmp_path: Path) -> None:
     for p in ports:
         if p.name == "clk":
             continue
-        decl = rf"^\s*reg\s+{re.escape(p.range)}{p.name}_q;"
+        rng = f"[{p.width - 1}:0] " if p.width > 1 else ""
+        decl = rf"^\s*reg\s+{re.escape(rng)}{p.name}_q;"
         assert re.search(decl, body[0], re.MULTILINE), f"{p.name}: no {p.width}-bit register"
-        if p.direction == "input":
+        if p.direction == "in":
             # input port -> register -> core input
             assert regs[p.name] == p.name and connections[p.name] == f"{p.name}_q"
         else:
@@ -158,6 +157,24 @@ def test_wrapper_registers_every_port(tmp_path: Path) -> None:
             assert re.findall(rf"^\s*assign {p.name} = (\w+);", body[0], re.MULTILINE) == [f"{p.name}_q"]
     # One clock edge, no reset or enable: the registers are plain D flip-flops.
     assert body[0].count("always @(posedge clk)") == 1 and "if (" not in body[0]
+
+
+def test_wrapper_of_a_generated_core_is_the_one_read_from_its_verilog(tmp_path: Path) -> None:
+    """The ports the design describes are the ports its Verilog declares: the wrapper made from
+    the design and the one made from the text (as for a hand-written core) are the same."""
+    project, _ = _generate_point_project({**small_core(2), "tag_width": 3}, tmp_path / "p")
+    manifest = load_manifest(project)
+    top = manifest["toplevel"]
+    from_design = io_wrapper(top, design_from_manifest(manifest).ports)
+    from_text = io_wrapper(top, read_ports((project / manifest["files"]["rtl"][0]).read_text(), top))
+    assert from_design == from_text
+
+
+def test_wrapper_needs_a_clock(tmp_path: Path) -> None:
+    from benchgen.functions import CorePort
+
+    with pytest.raises(SynthError, match="no one-bit clk input"):
+        io_wrapper("free_running", [CorePort("in_x", 4, "in", "data"), CorePort("out_y", 4, "out", "data")])
 
 
 def test_unknown_target_is_refused(tmp_path: Path) -> None:

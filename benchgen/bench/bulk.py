@@ -34,9 +34,7 @@ from cocotb.triggers import Timer, ValueChange
 
 from benchgen.bench.bulk_check import (
     DEFAULT_SAMPLES,
-    EXHAUSTIVE_MAX_BITS,
     FAULT_ENV,
-    SAMPLES_ENV,
     Block,
     BulkFunction,
     Inputs,
@@ -56,7 +54,8 @@ from benchgen.bench.bulk_check import (
     unpack,
     with_tags,
 )
-from benchgen.bench.scoreboard import CSV_ENV, CheckResult, record
+from benchgen.bench.bulk_plan import EXHAUSTIVE_MAX_BITS
+from benchgen.bench.scoreboard import CSV_ENV, SAMPLES_ENV, CheckResult, record
 from benchgen.design import Design
 from benchgen.harness import bulk_layout
 from benchgen.project import design_from_manifest, load_manifest
@@ -92,7 +91,7 @@ class BulkBench:
             raise RuntimeError("benchgen.bench.bulk.bind(manifest) was not called")
         self.manifest = load_manifest(_manifest_path.parent)
         self.design: Design = design_from_manifest(self.manifest)
-        self.layout = bulk_layout(self.manifest)
+        self.layout = bulk_layout(self.design.spec.name, self.design.ports)
         self.function = BulkFunction(self.design)
         self.dut = dut
         # The run's seed as given to `benchgen sim --seed` (cocotb 2 derives RANDOM_SEED from it

@@ -30,17 +30,16 @@ from benchgen.functions import (
     output_ports,
     random_inputs,
 )
-from benchgen.harness import BulkLayout, Slot
-from benchgen.model import evaluate_function, to_signed
+from benchgen.harness import BulkLayout
+from benchgen.functions import evaluate as evaluate_function
+from benchgen.model import to_signed
 
 __all__ = [
     "DEFAULT_SAMPLES",
-    "EXHAUSTIVE_MAX_BITS",
     "EXHAUSTIVE_MIN_CHUNK",
     "FAULT_ENV",
     "FIRST_COUNT_PROBLEMS",
     "GAP_PATTERNS",
-    "SAMPLES_ENV",
     "TABLE_MAX_BITS",
     "WORST_SAMPLES",
     "Block",
@@ -60,15 +59,12 @@ __all__ = [
     "level",
     "pack",
     "parse_fault",
-    "slot_of",
     "unpack",
     "with_tags",
 ]
 
-SAMPLES_ENV = "BENCHGEN_SAMPLES"
 FAULT_ENV = "BENCHGEN_BULK_FAULT"
 DEFAULT_SAMPLES = 1_000_000
-EXHAUSTIVE_MAX_BITS = 24
 TABLE_MAX_BITS = 20
 """Input spaces up to this many bits get the model and the ideal tabulated once per run: a lookup
 per sample then replaces the model's per-sample arithmetic, with the same bit-true answers."""
@@ -659,8 +655,3 @@ def unpack(layout: BulkLayout, raw: npt.NDArray[np.uint8], signed: tuple[str, ..
         else:
             out[slot.port] = v.astype(np.int64) if slot.width < 63 else v
     return out
-
-
-def slot_of(layout: BulkLayout, port: str) -> Slot:
-    """The slot of one port (input or output)."""
-    return next(s for s in (*layout.inputs, *layout.outputs) if s.port == port)

@@ -36,7 +36,6 @@ import numpy as np
 
 from benchgen import __version__
 from benchgen.bench.bulk_check import (
-    EXHAUSTIVE_MAX_BITS,
     FAULT_ENV,
     Block,
     BulkFunction,
@@ -58,7 +57,7 @@ from benchgen.bench.bulk_check import (
     unpack,
     with_tags,
 )
-from benchgen.bench.bulk_plan import BulkError
+from benchgen.bench.bulk_plan import BulkError, check_exhaustive
 from benchgen.bench.scoreboard import CheckResult
 from benchgen.design import Design
 from benchgen.harness import (
@@ -122,13 +121,14 @@ def _stamp(parts: list[tuple[str, str]]) -> str:
     return h.hexdigest()
 
 
-def build_native(project: Path, manifest: dict[str, Any], info: SimulatorInfo, build_dir: Path) -> NativeBuild:
+def build_native(
+    project: Path, manifest: dict[str, Any], layout: BulkLayout, info: SimulatorInfo, build_dir: Path
+) -> NativeBuild:
     """Build the runner for a project, or reuse the build in ``build_dir`` if it is current.
 
     Raises:
         BulkError: if Verilator fails; the message names the build log.
     """
-    layout = bulk_layout(manifest)
     module, binary = native_names(layout)
     harness = render_native_harness(layout)
     main = render_native_main(layout)
@@ -380,19 +380,16 @@ def run_native(
         BulkError: for a bad ``BENCHGEN_BULK_FAULT``, an input space too large for an exhaustive
             run, or a failed build.
     """
-    layout = bulk_layout(manifest)
+    layout = bulk_layout(design.spec.name, design.ports)
     try:
         fault = parse_fault(os.environ.get(FAULT_ENV, ""), layout)
     except FaultError as exc:
         raise BulkError(str(exc)) from None
     bench = _NativeBench(design, layout, seed, fault, log_file, csv)
     fn = bench.function
-    if exhaustive and fn.space_bits > EXHAUSTIVE_MAX_BITS:
-        raise BulkError(
-            f"--exhaustive: the core has 2^{fn.space_bits} input codes, more than the 2^{EXHAUSTIVE_MAX_BITS} "
-            "an exhaustive run covers; use --samples N for a random run instead"
-        )
-    build = build_native(project, manifest, info, build_dir)
+    if exhaustive:
+        check_exhaustive(fn.space_bits)
+    build = build_native(project, manifest, layout, info, build_dir)
     run = NativeRun(build=build)
     if exhaustive:
         tests = [_Test("bulk_exhaustive", 3, exhaustive_plan(fn, layout.block), True, 1 << fn.space_bits)]

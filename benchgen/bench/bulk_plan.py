@@ -19,7 +19,7 @@ __all__ = [
     "MODES",
     "bulk_plan",
     "bulk_run_args",
-    "input_space_bits",
+    "check_exhaustive",
 ]
 
 MODES = ("auto", "per-clock", "bulk")
@@ -43,12 +43,17 @@ class BulkError(BenchgenError):
     exit_status = 2
 
 
-def input_space_bits(manifest: dict[str, Any]) -> int:
-    """Bits of the core's input space: the sum of its data input widths, tag excluded."""
-    ports: dict[str, int] = manifest["ports"]
-    return sum(
-        int(w) for p, w in ports.items() if p.startswith("in_") and p not in ("in_valid", "in_ready", "in_tag")
-    )
+def check_exhaustive(bits: int) -> None:
+    """Refuse an exhaustive run of an input space of ``2**bits`` codes beyond the limit.
+
+    Raises:
+        BulkError: if ``bits`` exceeds :data:`EXHAUSTIVE_MAX_BITS`.
+    """
+    if bits > EXHAUSTIVE_MAX_BITS:
+        raise BulkError(
+            f"--exhaustive: the core has 2^{bits} input codes, more than the 2^{EXHAUSTIVE_MAX_BITS} "
+            "an exhaustive run covers; use --samples N for a random run instead"
+        )
 
 
 def bulk_plan(mode: str, samples: int, exhaustive: bool) -> bool:
@@ -84,12 +89,10 @@ def bulk_run_args(
             "benchgen generate config.toml -o ."
         )
     if exhaustive:
-        bits = input_space_bits(manifest)
-        if bits > EXHAUSTIVE_MAX_BITS:
-            raise BulkError(
-                f"--exhaustive: the core has 2^{bits} input codes, more than the 2^{EXHAUSTIVE_MAX_BITS} "
-                "an exhaustive run covers; use --samples N for a random run instead"
-            )
+        from benchgen.functions import input_space_bits
+        from benchgen.project import design_from_manifest
+
+        check_exhaustive(input_space_bits(design_from_manifest(manifest).datapath))
     sources = [project / rel for rel in manifest["files"]["rtl"]] + [harness]
     build_args = list(_VERILATOR_ARGS) if simulator == "verilator" else []
     tests = ["test_bulk_exhaustive"] if exhaustive else ["test_bulk_full_rate", "test_bulk_gaps_and_stalls"]

@@ -19,11 +19,11 @@ import numpy as np
 import numpy.typing as npt
 from cocotb.clock import Clock
 
-from benchgen.bench.scoreboard import CheckResult, compare, record, write_csv_rows
+from benchgen.bench.scoreboard import SAMPLES_ENV, CheckResult, compare, record, write_csv_rows
 from benchgen.bench.stream import Capture, StreamBench
 from benchgen.design import Design
-from benchgen.functions import bench_corners, function_errors, ideal_outputs, input_ports, output_ports, random_inputs
-from benchgen.model import evaluate_function
+from benchgen.functions import bench_corners, function_errors, ideal_outputs, random_inputs
+from benchgen.functions import evaluate as evaluate_function
 from benchgen.project import design_from_manifest, load_manifest
 
 __all__ = [
@@ -34,7 +34,6 @@ __all__ = [
     "test_reset_mid_stream",
 ]
 
-SAMPLES_ENV = "BENCHGEN_SAMPLES"
 DEFAULT_SAMPLES = 20_000
 CLOCK_NS = 10
 
@@ -59,15 +58,16 @@ class CoreBench:
         self.dp = self.design.datapath
         self.dut = dut
         self.tag_width = self.design.spec.tag_width
-        self.in_ports = [p.name for p in input_ports(self.dp)]
-        self.out_ports = [p.name for p in output_ports(self.dp)]
-        tag_in = ["in_tag"] if self.tag_width else []
-        tag_out = ["out_tag"] if self.tag_width else []
+        # Each stream's words: the function's data ports and the tag.
+        ins = [p for p in self.design.ports if p.direction == "in" and p.payload]
+        outs = [p for p in self.design.ports if p.direction == "out" and p.payload]
+        self.in_ports = [p.name for p in ins if p.role == "data"]
+        self.out_ports = [p.name for p in outs if p.role == "data"]
         self.stream = StreamBench(
             dut,
-            inputs=tuple(self.in_ports + tag_in),
-            outputs=tuple(self.out_ports + tag_out),
-            signed=tuple(p.name for p in output_ports(self.dp) if p.signed),
+            inputs=tuple(p.name for p in ins),
+            outputs=tuple(p.name for p in outs),
+            signed=tuple(p.name for p in outs if p.signed),
         )
         # The run's seed as given to the runner (cocotb re-derives RANDOM_SEED per test).
         self.seed = int(os.environ.get("COCOTB_RANDOM_SEED", cocotb.RANDOM_SEED))

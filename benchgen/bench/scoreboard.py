@@ -18,6 +18,8 @@ import numpy.typing as npt
 
 __all__ = ["CheckResult", "compare", "record", "write_csv_rows"]
 
+SAMPLES_ENV = "BENCHGEN_SAMPLES"
+"""How many random samples a bench runs (set by ``benchgen sim``)."""
 RESULTS_ENV = "BENCHGEN_RESULTS"
 CSV_ENV = "BENCHGEN_CSV"
 FIRST_MISMATCHES = 8

@@ -13,7 +13,7 @@
 // Internal widths: x, y 24 bits (5 guard bits); z 19 bits (17 fraction bits).
 // Worst error against the ideal, bit-true model: 0.9857 LSB (RMS 0.4104 LSB),
 // measured over every one of the 65536 input codes.
-// Timing: latency 4 clocks from input handshake to output handshake, one
+// Timing: latency 5 clocks from input handshake to output handshake, one
 // sample every 1 clock(s) at full rate.
 // Handshake: a sample moves when valid and ready are both high at a rising clock edge.
 // rst is synchronous and active high; it clears the control state, not the data path.
@@ -33,7 +33,6 @@
 //   guard_bits = "auto"
 //   rounding = "half_even"
 //   tag_width = 0
-
 `resetall
 `timescale 1ns / 1ps
 `default_nettype none
@@ -52,23 +51,26 @@ module agc_ln_power (
     output wire [0:0] out_domain_error
 );
 
-    localparam [23:0] Y_HALF = 24'h800000;  // codes at or above this are y < 0
+    localparam XY_W = 24;  // x and y: data bits plus 5 guard bits
+    localparam Z_W = 19;  // z: 17 fraction bits
 
-    localparam [18:0] ATAN_0 = 19'h1193f;  // atanh(2^-1)
-    localparam [18:0] ATAN_1 = 19'h082c5;  // atanh(2^-2)
-    localparam [18:0] ATAN_2 = 19'h04056;  // atanh(2^-3)
-    localparam [18:0] ATAN_3 = 19'h0200b;  // atanh(2^-4)
-    localparam [18:0] ATAN_4 = 19'h0200b;  // atanh(2^-4)
-    localparam [18:0] ATAN_5 = 19'h01001;  // atanh(2^-5)
-    localparam [18:0] ATAN_6 = 19'h00800;  // atanh(2^-6)
-    localparam [18:0] ATAN_7 = 19'h00400;  // atanh(2^-7)
-    localparam [18:0] ATAN_8 = 19'h00200;  // atanh(2^-8)
-    localparam [18:0] ATAN_9 = 19'h00100;  // atanh(2^-9)
-    localparam [18:0] ATAN_10 = 19'h00080;  // atanh(2^-10)
-    localparam [18:0] ATAN_11 = 19'h00040;  // atanh(2^-11)
-    localparam [18:0] ATAN_12 = 19'h00020;  // atanh(2^-12)
-    localparam [18:0] ATAN_13 = 19'h00010;  // atanh(2^-13)
-    localparam [18:0] ATAN_14 = 19'h00010;  // atanh(2^-13)
+    localparam [XY_W-1:0] Y_HALF = 24'h800000;  // codes at or above this are y < 0
+
+    localparam [Z_W-1:0] ATANH_0 = 19'h1193f;  // atanh(2^-1)
+    localparam [Z_W-1:0] ATANH_1 = 19'h082c5;  // atanh(2^-2)
+    localparam [Z_W-1:0] ATANH_2 = 19'h04056;  // atanh(2^-3)
+    localparam [Z_W-1:0] ATANH_3 = 19'h0200b;  // atanh(2^-4)
+    localparam [Z_W-1:0] ATANH_4 = 19'h0200b;  // atanh(2^-4)
+    localparam [Z_W-1:0] ATANH_5 = 19'h01001;  // atanh(2^-5)
+    localparam [Z_W-1:0] ATANH_6 = 19'h00800;  // atanh(2^-6)
+    localparam [Z_W-1:0] ATANH_7 = 19'h00400;  // atanh(2^-7)
+    localparam [Z_W-1:0] ATANH_8 = 19'h00200;  // atanh(2^-8)
+    localparam [Z_W-1:0] ATANH_9 = 19'h00100;  // atanh(2^-9)
+    localparam [Z_W-1:0] ATANH_10 = 19'h00080;  // atanh(2^-10)
+    localparam [Z_W-1:0] ATANH_11 = 19'h00040;  // atanh(2^-11)
+    localparam [Z_W-1:0] ATANH_12 = 19'h00020;  // atanh(2^-12)
+    localparam [Z_W-1:0] ATANH_13 = 19'h00010;  // atanh(2^-13)
+    localparam [Z_W-1:0] ATANH_14 = 19'h00010;  // atanh(2^-13)
 
     // The pipeline advances while the output buffer can take a sample.
     wire advance;
@@ -79,33 +81,37 @@ module agc_ln_power (
     wire in_bad = (in_w == 16'h0000);
     wire [3:0] in_lz = in_w[15] ? 4'h0 : in_w[14] ? 4'h1 : in_w[13] ? 4'h2 : in_w[12] ? 4'h3 : in_w[11] ? 4'h4 : in_w[10] ? 4'h5 : in_w[9] ? 4'h6 : in_w[8] ? 4'h7 : in_w[7] ? 4'h8 : in_w[6] ? 4'h9 : in_w[5] ? 4'ha : in_w[4] ? 4'hb : in_w[3] ? 4'hc : in_w[2] ? 4'hd : in_w[1] ? 4'he : 4'hf;
     wire [15:0] in_m = in_w << in_lz;
-    wire [23:0] x_start = {3'h1, in_m, 5'h00};
-    wire [23:0] y_start = {3'h7, in_m, 5'h00};
-    wire [18:0] z_start = 19'h00000;
+    wire [XY_W-1:0] x_start = {3'h1, in_m, 5'h00};
+    wire [XY_W-1:0] y_start = {3'h7, in_m, 5'h00};
+    wire [Z_W-1:0] z_start = 19'h00000;
 
     // ---- stage 0: iterations 0 to 2 ----
     // iteration 0 (shift 1): turn counter-clockwise when y < 0
     wire dir_0 = (y_start >= Y_HALF);
-    wire [23:0] x_1 = x_start + (dir_0 ? {{1{y_start[23]}}, y_start[23:1]} : ~{{1{y_start[23]}}, y_start[23:1]}) + {23'h000000, ~dir_0};
-    wire [23:0] y_1 = y_start + (dir_0 ? {{1{x_start[23]}}, x_start[23:1]} : ~{{1{x_start[23]}}, x_start[23:1]}) + {23'h000000, ~dir_0};
-    wire [18:0] z_1 = z_start + (dir_0 ? ~ATAN_0 : ATAN_0) + {18'h00000, dir_0};
-
+    wire [XY_W-1:0] xs_0 = {{1{x_start[23]}}, x_start[23:1]};  // x >>> 1
+    wire [XY_W-1:0] ys_0 = {{1{y_start[23]}}, y_start[23:1]};  // y >>> 1
+    wire [XY_W-1:0] x_1 = x_start + (dir_0 ? ys_0 : ~ys_0) + {23'h000000, ~dir_0};
+    wire [XY_W-1:0] y_1 = y_start + (dir_0 ? xs_0 : ~xs_0) + {23'h000000, ~dir_0};
+    wire [Z_W-1:0] z_1 = z_start + (dir_0 ? ~ATANH_0 : ATANH_0) + {18'h00000, dir_0};
     // iteration 1 (shift 2): turn counter-clockwise when y < 0
     wire dir_1 = (y_1 >= Y_HALF);
-    wire [23:0] x_2 = x_1 + (dir_1 ? {{2{y_1[23]}}, y_1[23:2]} : ~{{2{y_1[23]}}, y_1[23:2]}) + {23'h000000, ~dir_1};
-    wire [23:0] y_2 = y_1 + (dir_1 ? {{2{x_1[23]}}, x_1[23:2]} : ~{{2{x_1[23]}}, x_1[23:2]}) + {23'h000000, ~dir_1};
-    wire [18:0] z_2 = z_1 + (dir_1 ? ~ATAN_1 : ATAN_1) + {18'h00000, dir_1};
-
+    wire [XY_W-1:0] xs_1 = {{2{x_1[23]}}, x_1[23:2]};  // x >>> 2
+    wire [XY_W-1:0] ys_1 = {{2{y_1[23]}}, y_1[23:2]};  // y >>> 2
+    wire [XY_W-1:0] x_2 = x_1 + (dir_1 ? ys_1 : ~ys_1) + {23'h000000, ~dir_1};
+    wire [XY_W-1:0] y_2 = y_1 + (dir_1 ? xs_1 : ~xs_1) + {23'h000000, ~dir_1};
+    wire [Z_W-1:0] z_2 = z_1 + (dir_1 ? ~ATANH_1 : ATANH_1) + {18'h00000, dir_1};
     // iteration 2 (shift 3): turn counter-clockwise when y < 0
     wire dir_2 = (y_2 >= Y_HALF);
-    wire [23:0] s0_x = x_2 + (dir_2 ? {{3{y_2[23]}}, y_2[23:3]} : ~{{3{y_2[23]}}, y_2[23:3]}) + {23'h000000, ~dir_2};
-    wire [23:0] s0_y = y_2 + (dir_2 ? {{3{x_2[23]}}, x_2[23:3]} : ~{{3{x_2[23]}}, x_2[23:3]}) + {23'h000000, ~dir_2};
-    wire [18:0] s0_z = z_2 + (dir_2 ? ~ATAN_2 : ATAN_2) + {18'h00000, dir_2};
+    wire [XY_W-1:0] xs_2 = {{3{x_2[23]}}, x_2[23:3]};  // x >>> 3
+    wire [XY_W-1:0] ys_2 = {{3{y_2[23]}}, y_2[23:3]};  // y >>> 3
+    wire [XY_W-1:0] s0_x = x_2 + (dir_2 ? ys_2 : ~ys_2) + {23'h000000, ~dir_2};
+    wire [XY_W-1:0] s0_y = y_2 + (dir_2 ? xs_2 : ~xs_2) + {23'h000000, ~dir_2};
+    wire [Z_W-1:0] s0_z = z_2 + (dir_2 ? ~ATANH_2 : ATANH_2) + {18'h00000, dir_2};
 
     reg s0_valid_reg;
-    reg [23:0] s0_x_reg;
-    reg [23:0] s0_y_reg;
-    reg [18:0] s0_z_reg;
+    reg [XY_W-1:0] s0_x_reg;
+    reg [XY_W-1:0] s0_y_reg;
+    reg [Z_W-1:0] s0_z_reg;
     reg [0:0] s0_bad_reg;
     reg [3:0] s0_lz_reg;
 
@@ -130,32 +136,37 @@ module agc_ln_power (
     // ---- stage 1: iterations 3 to 6 ----
     // iteration 3 (shift 4): turn counter-clockwise when y < 0
     wire dir_3 = (s0_y_reg >= Y_HALF);
-    wire [23:0] x_4 = s0_x_reg + (dir_3 ? {{4{s0_y_reg[23]}}, s0_y_reg[23:4]} : ~{{4{s0_y_reg[23]}}, s0_y_reg[23:4]}) + {23'h000000, ~dir_3};
-    wire [23:0] y_4 = s0_y_reg + (dir_3 ? {{4{s0_x_reg[23]}}, s0_x_reg[23:4]} : ~{{4{s0_x_reg[23]}}, s0_x_reg[23:4]}) + {23'h000000, ~dir_3};
-    wire [18:0] z_4 = s0_z_reg + (dir_3 ? ~ATAN_3 : ATAN_3) + {18'h00000, dir_3};
-
+    wire [XY_W-1:0] xs_3 = {{4{s0_x_reg[23]}}, s0_x_reg[23:4]};  // x >>> 4
+    wire [XY_W-1:0] ys_3 = {{4{s0_y_reg[23]}}, s0_y_reg[23:4]};  // y >>> 4
+    wire [XY_W-1:0] x_4 = s0_x_reg + (dir_3 ? ys_3 : ~ys_3) + {23'h000000, ~dir_3};
+    wire [XY_W-1:0] y_4 = s0_y_reg + (dir_3 ? xs_3 : ~xs_3) + {23'h000000, ~dir_3};
+    wire [Z_W-1:0] z_4 = s0_z_reg + (dir_3 ? ~ATANH_3 : ATANH_3) + {18'h00000, dir_3};
     // iteration 4 (shift 4): turn counter-clockwise when y < 0
     wire dir_4 = (y_4 >= Y_HALF);
-    wire [23:0] x_5 = x_4 + (dir_4 ? {{4{y_4[23]}}, y_4[23:4]} : ~{{4{y_4[23]}}, y_4[23:4]}) + {23'h000000, ~dir_4};
-    wire [23:0] y_5 = y_4 + (dir_4 ? {{4{x_4[23]}}, x_4[23:4]} : ~{{4{x_4[23]}}, x_4[23:4]}) + {23'h000000, ~dir_4};
-    wire [18:0] z_5 = z_4 + (dir_4 ? ~ATAN_4 : ATAN_4) + {18'h00000, dir_4};
-
+    wire [XY_W-1:0] xs_4 = {{4{x_4[23]}}, x_4[23:4]};  // x >>> 4
+    wire [XY_W-1:0] ys_4 = {{4{y_4[23]}}, y_4[23:4]};  // y >>> 4
+    wire [XY_W-1:0] x_5 = x_4 + (dir_4 ? ys_4 : ~ys_4) + {23'h000000, ~dir_4};
+    wire [XY_W-1:0] y_5 = y_4 + (dir_4 ? xs_4 : ~xs_4) + {23'h000000, ~dir_4};
+    wire [Z_W-1:0] z_5 = z_4 + (dir_4 ? ~ATANH_4 : ATANH_4) + {18'h00000, dir_4};
     // iteration 5 (shift 5): turn counter-clockwise when y < 0
     wire dir_5 = (y_5 >= Y_HALF);
-    wire [23:0] x_6 = x_5 + (dir_5 ? {{5{y_5[23]}}, y_5[23:5]} : ~{{5{y_5[23]}}, y_5[23:5]}) + {23'h000000, ~dir_5};
-    wire [23:0] y_6 = y_5 + (dir_5 ? {{5{x_5[23]}}, x_5[23:5]} : ~{{5{x_5[23]}}, x_5[23:5]}) + {23'h000000, ~dir_5};
-    wire [18:0] z_6 = z_5 + (dir_5 ? ~ATAN_5 : ATAN_5) + {18'h00000, dir_5};
-
+    wire [XY_W-1:0] xs_5 = {{5{x_5[23]}}, x_5[23:5]};  // x >>> 5
+    wire [XY_W-1:0] ys_5 = {{5{y_5[23]}}, y_5[23:5]};  // y >>> 5
+    wire [XY_W-1:0] x_6 = x_5 + (dir_5 ? ys_5 : ~ys_5) + {23'h000000, ~dir_5};
+    wire [XY_W-1:0] y_6 = y_5 + (dir_5 ? xs_5 : ~xs_5) + {23'h000000, ~dir_5};
+    wire [Z_W-1:0] z_6 = z_5 + (dir_5 ? ~ATANH_5 : ATANH_5) + {18'h00000, dir_5};
     // iteration 6 (shift 6): turn counter-clockwise when y < 0
     wire dir_6 = (y_6 >= Y_HALF);
-    wire [23:0] s1_x = x_6 + (dir_6 ? {{6{y_6[23]}}, y_6[23:6]} : ~{{6{y_6[23]}}, y_6[23:6]}) + {23'h000000, ~dir_6};
-    wire [23:0] s1_y = y_6 + (dir_6 ? {{6{x_6[23]}}, x_6[23:6]} : ~{{6{x_6[23]}}, x_6[23:6]}) + {23'h000000, ~dir_6};
-    wire [18:0] s1_z = z_6 + (dir_6 ? ~ATAN_6 : ATAN_6) + {18'h00000, dir_6};
+    wire [XY_W-1:0] xs_6 = {{6{x_6[23]}}, x_6[23:6]};  // x >>> 6
+    wire [XY_W-1:0] ys_6 = {{6{y_6[23]}}, y_6[23:6]};  // y >>> 6
+    wire [XY_W-1:0] s1_x = x_6 + (dir_6 ? ys_6 : ~ys_6) + {23'h000000, ~dir_6};
+    wire [XY_W-1:0] s1_y = y_6 + (dir_6 ? xs_6 : ~xs_6) + {23'h000000, ~dir_6};
+    wire [Z_W-1:0] s1_z = z_6 + (dir_6 ? ~ATANH_6 : ATANH_6) + {18'h00000, dir_6};
 
     reg s1_valid_reg;
-    reg [23:0] s1_x_reg;
-    reg [23:0] s1_y_reg;
-    reg [18:0] s1_z_reg;
+    reg [XY_W-1:0] s1_x_reg;
+    reg [XY_W-1:0] s1_y_reg;
+    reg [Z_W-1:0] s1_z_reg;
     reg [0:0] s1_bad_reg;
     reg [3:0] s1_lz_reg;
 
@@ -180,32 +191,37 @@ module agc_ln_power (
     // ---- stage 2: iterations 7 to 10 ----
     // iteration 7 (shift 7): turn counter-clockwise when y < 0
     wire dir_7 = (s1_y_reg >= Y_HALF);
-    wire [23:0] x_8 = s1_x_reg + (dir_7 ? {{7{s1_y_reg[23]}}, s1_y_reg[23:7]} : ~{{7{s1_y_reg[23]}}, s1_y_reg[23:7]}) + {23'h000000, ~dir_7};
-    wire [23:0] y_8 = s1_y_reg + (dir_7 ? {{7{s1_x_reg[23]}}, s1_x_reg[23:7]} : ~{{7{s1_x_reg[23]}}, s1_x_reg[23:7]}) + {23'h000000, ~dir_7};
-    wire [18:0] z_8 = s1_z_reg + (dir_7 ? ~ATAN_7 : ATAN_7) + {18'h00000, dir_7};
-
+    wire [XY_W-1:0] xs_7 = {{7{s1_x_reg[23]}}, s1_x_reg[23:7]};  // x >>> 7
+    wire [XY_W-1:0] ys_7 = {{7{s1_y_reg[23]}}, s1_y_reg[23:7]};  // y >>> 7
+    wire [XY_W-1:0] x_8 = s1_x_reg + (dir_7 ? ys_7 : ~ys_7) + {23'h000000, ~dir_7};
+    wire [XY_W-1:0] y_8 = s1_y_reg + (dir_7 ? xs_7 : ~xs_7) + {23'h000000, ~dir_7};
+    wire [Z_W-1:0] z_8 = s1_z_reg + (dir_7 ? ~ATANH_7 : ATANH_7) + {18'h00000, dir_7};
     // iteration 8 (shift 8): turn counter-clockwise when y < 0
     wire dir_8 = (y_8 >= Y_HALF);
-    wire [23:0] x_9 = x_8 + (dir_8 ? {{8{y_8[23]}}, y_8[23:8]} : ~{{8{y_8[23]}}, y_8[23:8]}) + {23'h000000, ~dir_8};
-    wire [23:0] y_9 = y_8 + (dir_8 ? {{8{x_8[23]}}, x_8[23:8]} : ~{{8{x_8[23]}}, x_8[23:8]}) + {23'h000000, ~dir_8};
-    wire [18:0] z_9 = z_8 + (dir_8 ? ~ATAN_8 : ATAN_8) + {18'h00000, dir_8};
-
+    wire [XY_W-1:0] xs_8 = {{8{x_8[23]}}, x_8[23:8]};  // x >>> 8
+    wire [XY_W-1:0] ys_8 = {{8{y_8[23]}}, y_8[23:8]};  // y >>> 8
+    wire [XY_W-1:0] x_9 = x_8 + (dir_8 ? ys_8 : ~ys_8) + {23'h000000, ~dir_8};
+    wire [XY_W-1:0] y_9 = y_8 + (dir_8 ? xs_8 : ~xs_8) + {23'h000000, ~dir_8};
+    wire [Z_W-1:0] z_9 = z_8 + (dir_8 ? ~ATANH_8 : ATANH_8) + {18'h00000, dir_8};
     // iteration 9 (shift 9): turn counter-clockwise when y < 0
     wire dir_9 = (y_9 >= Y_HALF);
-    wire [23:0] x_10 = x_9 + (dir_9 ? {{9{y_9[23]}}, y_9[23:9]} : ~{{9{y_9[23]}}, y_9[23:9]}) + {23'h000000, ~dir_9};
-    wire [23:0] y_10 = y_9 + (dir_9 ? {{9{x_9[23]}}, x_9[23:9]} : ~{{9{x_9[23]}}, x_9[23:9]}) + {23'h000000, ~dir_9};
-    wire [18:0] z_10 = z_9 + (dir_9 ? ~ATAN_9 : ATAN_9) + {18'h00000, dir_9};
-
+    wire [XY_W-1:0] xs_9 = {{9{x_9[23]}}, x_9[23:9]};  // x >>> 9
+    wire [XY_W-1:0] ys_9 = {{9{y_9[23]}}, y_9[23:9]};  // y >>> 9
+    wire [XY_W-1:0] x_10 = x_9 + (dir_9 ? ys_9 : ~ys_9) + {23'h000000, ~dir_9};
+    wire [XY_W-1:0] y_10 = y_9 + (dir_9 ? xs_9 : ~xs_9) + {23'h000000, ~dir_9};
+    wire [Z_W-1:0] z_10 = z_9 + (dir_9 ? ~ATANH_9 : ATANH_9) + {18'h00000, dir_9};
     // iteration 10 (shift 10): turn counter-clockwise when y < 0
     wire dir_10 = (y_10 >= Y_HALF);
-    wire [23:0] s2_x = x_10 + (dir_10 ? {{10{y_10[23]}}, y_10[23:10]} : ~{{10{y_10[23]}}, y_10[23:10]}) + {23'h000000, ~dir_10};
-    wire [23:0] s2_y = y_10 + (dir_10 ? {{10{x_10[23]}}, x_10[23:10]} : ~{{10{x_10[23]}}, x_10[23:10]}) + {23'h000000, ~dir_10};
-    wire [18:0] s2_z = z_10 + (dir_10 ? ~ATAN_10 : ATAN_10) + {18'h00000, dir_10};
+    wire [XY_W-1:0] xs_10 = {{10{x_10[23]}}, x_10[23:10]};  // x >>> 10
+    wire [XY_W-1:0] ys_10 = {{10{y_10[23]}}, y_10[23:10]};  // y >>> 10
+    wire [XY_W-1:0] s2_x = x_10 + (dir_10 ? ys_10 : ~ys_10) + {23'h000000, ~dir_10};
+    wire [XY_W-1:0] s2_y = y_10 + (dir_10 ? xs_10 : ~xs_10) + {23'h000000, ~dir_10};
+    wire [Z_W-1:0] s2_z = z_10 + (dir_10 ? ~ATANH_10 : ATANH_10) + {18'h00000, dir_10};
 
     reg s2_valid_reg;
-    reg [23:0] s2_x_reg;
-    reg [23:0] s2_y_reg;
-    reg [18:0] s2_z_reg;
+    reg [XY_W-1:0] s2_x_reg;
+    reg [XY_W-1:0] s2_y_reg;
+    reg [Z_W-1:0] s2_z_reg;
     reg [0:0] s2_bad_reg;
     reg [3:0] s2_lz_reg;
 
@@ -230,33 +246,57 @@ module agc_ln_power (
     // ---- stage 3: iterations 11 to 14 ----
     // iteration 11 (shift 11): turn counter-clockwise when y < 0
     wire dir_11 = (s2_y_reg >= Y_HALF);
-    wire [23:0] x_12 = s2_x_reg + (dir_11 ? {{11{s2_y_reg[23]}}, s2_y_reg[23:11]} : ~{{11{s2_y_reg[23]}}, s2_y_reg[23:11]}) + {23'h000000, ~dir_11};
-    wire [23:0] y_12 = s2_y_reg + (dir_11 ? {{11{s2_x_reg[23]}}, s2_x_reg[23:11]} : ~{{11{s2_x_reg[23]}}, s2_x_reg[23:11]}) + {23'h000000, ~dir_11};
-    wire [18:0] z_12 = s2_z_reg + (dir_11 ? ~ATAN_11 : ATAN_11) + {18'h00000, dir_11};
-
+    wire [XY_W-1:0] xs_11 = {{11{s2_x_reg[23]}}, s2_x_reg[23:11]};  // x >>> 11
+    wire [XY_W-1:0] ys_11 = {{11{s2_y_reg[23]}}, s2_y_reg[23:11]};  // y >>> 11
+    wire [XY_W-1:0] x_12 = s2_x_reg + (dir_11 ? ys_11 : ~ys_11) + {23'h000000, ~dir_11};
+    wire [XY_W-1:0] y_12 = s2_y_reg + (dir_11 ? xs_11 : ~xs_11) + {23'h000000, ~dir_11};
+    wire [Z_W-1:0] z_12 = s2_z_reg + (dir_11 ? ~ATANH_11 : ATANH_11) + {18'h00000, dir_11};
     // iteration 12 (shift 12): turn counter-clockwise when y < 0
     wire dir_12 = (y_12 >= Y_HALF);
-    wire [23:0] tx_12 = dir_12 ? {{12{y_12[23]}}, y_12[23:12]} : ~{{12{y_12[23]}}, y_12[23:12]};
-    wire c_x_13 = ({1'b0, x_12[12:0]} + {1'b0, tx_12[12:0]} + {13'h0000, ~dir_12}) > {1'b0, 13'h1fff};
+    wire [XY_W-1:0] xs_12 = {{12{x_12[23]}}, x_12[23:12]};  // x >>> 12
+    wire [XY_W-1:0] ys_12 = {{12{y_12[23]}}, y_12[23:12]};  // y >>> 12
+    wire [23:0] tx_12 = dir_12 ? ys_12 : ~ys_12;
+    wire c_x_13 = (({1'b0, x_12[12:0]} + {1'b0, tx_12[12:0]} + {13'h0000, ~dir_12}) > {1'b0, 13'h1fff});
     wire [10:0] x_13_kept = x_12[23:13] + tx_12[23:13] + {10'h000, c_x_13};
-
-    wire [23:0] y_13 = y_12 + (dir_12 ? {{12{x_12[23]}}, x_12[23:12]} : ~{{12{x_12[23]}}, x_12[23:12]}) + {23'h000000, ~dir_12};
-    wire [18:0] z_13 = z_12 + (dir_12 ? ~ATAN_12 : ATAN_12) + {18'h00000, dir_12};
-
+    wire [XY_W-1:0] y_13 = y_12 + (dir_12 ? xs_12 : ~xs_12) + {23'h000000, ~dir_12};
+    wire [Z_W-1:0] z_13 = z_12 + (dir_12 ? ~ATANH_12 : ATANH_12) + {18'h00000, dir_12};
     // iteration 13 (shift 13): turn counter-clockwise when y < 0
     wire dir_13 = (y_13 >= Y_HALF);
-    wire [23:0] y_14 = y_13 + (dir_13 ? {{13{x_13_kept[10]}}, x_13_kept[10:0]} : ~{{13{x_13_kept[10]}}, x_13_kept[10:0]}) + {23'h000000, ~dir_13};
-    wire [18:0] z_14 = z_13 + (dir_13 ? ~ATAN_13 : ATAN_13) + {18'h00000, dir_13};
-
+    wire [XY_W-1:0] xs_13 = {{13{x_13_kept[10]}}, x_13_kept};  // x >>> 13
+    wire [XY_W-1:0] y_14 = y_13 + (dir_13 ? xs_13 : ~xs_13) + {23'h000000, ~dir_13};
+    wire [Z_W-1:0] z_14 = z_13 + (dir_13 ? ~ATANH_13 : ATANH_13) + {18'h00000, dir_13};
     // iteration 14 (shift 13): turn counter-clockwise when y < 0
     wire dir_14 = (y_14 >= Y_HALF);
-    wire [18:0] s3_z = z_14 + (dir_14 ? ~ATAN_14 : ATAN_14) + {18'h00000, dir_14};
+    wire [Z_W-1:0] s3_z = z_14 + (dir_14 ? ~ATANH_14 : ATANH_14) + {18'h00000, dir_14};
+
+    // ---- output register: the last iteration's values, held so that rounding and
+    // saturation have a clock of their own ----
+    reg o_valid_reg;
+    reg [Z_W-1:0] o_z_reg;
+    reg [0:0] o_bad_reg;
+    reg [3:0] o_lz_reg;
+
+    always @(posedge clk) begin
+        if (rst) begin
+            o_valid_reg <= 1'b0;
+        end else if (advance) begin
+            o_valid_reg <= s2_valid_reg;
+        end
+    end
+
+    always @(posedge clk) begin
+        if (advance) begin
+            o_z_reg <= s3_z;
+            o_bad_reg <= s2_bad_reg;
+            o_lz_reg <= s2_lz_reg;
+        end
+    end
 
     // ---- output: rounding, saturation, buffer ----
     // ln w = 2 z - e ln 2, e ln 2 from a table of the 16 normalising shifts
     reg [22:0] e_ln2;
     always @* begin
-        case (s2_lz_reg)
+        case (o_lz_reg)
             4'h0: e_ln2 = 23'h000000;  // 0 ln 2
             4'h1: e_ln2 = 23'h0162e4;  // 1 ln 2
             4'h2: e_ln2 = 23'h02c5c8;  // 2 ln 2
@@ -275,22 +315,18 @@ module agc_ln_power (
             4'hf: e_ln2 = 23'h14cb5f;  // 15 ln 2
         endcase
     end
-    wire [22:0] ln_twice = {{3{s3_z[18]}}, s3_z, 1'b0};
+    wire [22:0] ln_twice = {{3{o_z_reg[18]}}, o_z_reg, 1'b0};
     wire [22:0] ln_sum = ln_twice - e_ln2;
     // ln: drop 6 bit(s), half_even
-    wire ln_inc = (ln_sum[5:0] > 6'h20)
-        | ((ln_sum[5:0] == 6'h20) & ln_sum[6]);
+    wire ln_inc = (ln_sum[5:0] > 6'h20) | ((ln_sum[5:0] == 6'h20) & ln_sum[6]);
     wire [16:0] ln_q = ln_sum[22:6] + {16'h0000, ln_inc};
-
     // saturate to +-32767
     wire ln_over = ~ln_q[16] & ln_q[15];
     wire ln_under = ln_q[16] & (~ln_q[15] | (ln_q[15:0] == 16'h8000));
     wire [15:0] ln = ln_over ? 16'h7fff : ln_under ? 16'h8001 : ln_q[15:0];
-
-    wire [15:0] fin_out_ln = s2_bad_reg ? 16'h0000 : ln;
-    wire [0:0] fin_out_domain_error = s2_bad_reg;
-
-    wire fin_valid = s2_valid_reg;
+    wire [15:0] fin_out_ln = o_bad_reg ? 16'h0000 : ln;
+    wire [0:0] fin_out_domain_error = o_bad_reg;
+    wire fin_valid = o_valid_reg;
 
     // Output buffer with two entries. out_ready reaches only this buffer and ready_reg; the
     // core advances while ready_reg is high. When the consumer stalls, the sample already on
@@ -348,7 +384,6 @@ module agc_ln_power (
     assign out_valid = out_valid_reg;
     assign out_ln = out_ln_reg;
     assign out_domain_error = out_domain_error_reg;
-
     assign advance = ready_reg;
 
 endmodule

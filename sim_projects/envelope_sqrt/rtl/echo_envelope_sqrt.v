@@ -33,7 +33,6 @@
 //   guard_bits = "auto"
 //   rounding = "half_even"
 //   tag_width = 4
-
 `resetall
 `timescale 1ns / 1ps
 `default_nettype none
@@ -53,7 +52,9 @@ module echo_envelope_sqrt (
     output wire [3:0] out_tag
 );
 
-    localparam [22:0] Y_HALF = 23'h400000;  // codes at or above this are y < 0
+    localparam XY_W = 23;  // x and y: data bits plus 6 guard bits
+
+    localparam [XY_W-1:0] Y_HALF = 23'h400000;  // codes at or above this are y < 0
 
     // Normalise by an even shift 2k: m = w 2^2k in [1/4, 1), then hyperbolic vectoring of
     // (m + 1/4, m - 1/4) gives x = A_n sqrt(m) (Walther 1971); sqrt(w) = sqrt(m) 2^-k.
@@ -65,16 +66,16 @@ module echo_envelope_sqrt (
     wire [20:0] m_scaled = m_prod[36:16] + {20'h00000, (m_prod[15:0] >= 16'h8000)};
     wire [22:0] m_wide = {2'h0, m_scaled};
     localparam [22:0] QUARTER = 23'h04d477;  // 1/4 times 1/A_n
-    wire [22:0] x_start = m_wide + QUARTER;
-    wire [22:0] y_start = m_wide - QUARTER;
+    wire [XY_W-1:0] x_start = m_wide + QUARTER;
+    wire [XY_W-1:0] y_start = m_wide - QUARTER;
 
     // One sample at a time: load the start values, then 4 clock(s) of
     // 2 iteration(s); the last clock writes the rounded result to the output buffer.
     reg busy_reg;
     reg [1:0] count_reg;
     wire last = (count_reg == 2'h3);
-    reg [22:0] x_reg;
-    reg [22:0] y_reg;
+    reg [XY_W-1:0] x_reg;
+    reg [XY_W-1:0] y_reg;
     reg [3:0] tag_reg;
     reg [0:0] zero_reg;
     reg [2:0] half_reg;
@@ -86,11 +87,11 @@ module echo_envelope_sqrt (
     reg [2:0] shift_j0;
     always @* begin
         case (count_reg)
-            2'h0: begin shift_j0 = 3'h1; end
-            2'h1: begin shift_j0 = 3'h3; end
-            2'h2: begin shift_j0 = 3'h4; end
-            2'h3: begin shift_j0 = 3'h6; end
-            default: begin shift_j0 = 3'h1; end
+            2'h0: shift_j0 = 3'h1;
+            2'h1: shift_j0 = 3'h3;
+            2'h2: shift_j0 = 3'h4;
+            2'h3: shift_j0 = 3'h6;
+            default: shift_j0 = 3'h1;
         endcase
     end
 
@@ -98,43 +99,39 @@ module echo_envelope_sqrt (
     reg [2:0] shift_j1;
     always @* begin
         case (count_reg)
-            2'h0: begin shift_j1 = 3'h2; end
-            2'h1: begin shift_j1 = 3'h4; end
-            2'h2: begin shift_j1 = 3'h5; end
-            2'h3: begin shift_j1 = 3'h7; end
-            default: begin shift_j1 = 3'h2; end
+            2'h0: shift_j1 = 3'h2;
+            2'h1: shift_j1 = 3'h4;
+            2'h2: shift_j1 = 3'h5;
+            2'h3: shift_j1 = 3'h7;
+            default: shift_j1 = 3'h2;
         endcase
     end
 
-    wire [22:0] xs_j0 = $signed(x_reg) >>> shift_j0;
-    wire [22:0] ys_j0 = $signed(y_reg) >>> shift_j0;
+    wire [XY_W-1:0] xs_j0 = $signed(x_reg) >>> shift_j0;
+    wire [XY_W-1:0] ys_j0 = $signed(y_reg) >>> shift_j0;
     // iteration 0 (shift from the table): turn counter-clockwise when y < 0
     wire dir_j0 = (y_reg >= Y_HALF);
-    wire [22:0] x_1 = x_reg + (dir_j0 ? ys_j0 : ~ys_j0) + {22'h000000, ~dir_j0};
-    wire [22:0] y_1 = y_reg + (dir_j0 ? xs_j0 : ~xs_j0) + {22'h000000, ~dir_j0};
+    wire [XY_W-1:0] x_1 = x_reg + (dir_j0 ? ys_j0 : ~ys_j0) + {22'h000000, ~dir_j0};
+    wire [XY_W-1:0] y_1 = y_reg + (dir_j0 ? xs_j0 : ~xs_j0) + {22'h000000, ~dir_j0};
 
-    wire [22:0] xs_j1 = $signed(x_1) >>> shift_j1;
-    wire [22:0] ys_j1 = $signed(y_1) >>> shift_j1;
+    wire [XY_W-1:0] xs_j1 = $signed(x_1) >>> shift_j1;
+    wire [XY_W-1:0] ys_j1 = $signed(y_1) >>> shift_j1;
     // iteration 1 (shift from the table): turn counter-clockwise when y < 0
     wire dir_j1 = (y_1 >= Y_HALF);
-    wire [22:0] x_2 = x_1 + (dir_j1 ? ys_j1 : ~ys_j1) + {22'h000000, ~dir_j1};
-    wire [22:0] y_2 = y_1 + (dir_j1 ? xs_j1 : ~xs_j1) + {22'h000000, ~dir_j1};
+    wire [XY_W-1:0] x_2 = x_1 + (dir_j1 ? ys_j1 : ~ys_j1) + {22'h000000, ~dir_j1};
+    wire [XY_W-1:0] y_2 = y_1 + (dir_j1 ? xs_j1 : ~xs_j1) + {22'h000000, ~dir_j1};
 
     // ---- output: rounding, saturation, buffer ----
     // undo the normalisation: shift right by k with every bit kept, then round once
     wire [28:0] sq_wide = $signed({x_2, 6'h00}) >>> half_reg;
     // sq: drop 12 bit(s), half_even
-    wire sq_inc = (sq_wide[11:0] > 12'h800)
-        | ((sq_wide[11:0] == 12'h800) & sq_wide[12]);
+    wire sq_inc = (sq_wide[11:0] > 12'h800) | ((sq_wide[11:0] == 12'h800) & sq_wide[12]);
     wire [16:0] sq_q = sq_wide[28:12] + {16'h0000, sq_inc};
-
     // clamp to [0, 16383]: the value is never negative; rounding can reach the top
     wire sq_value_neg = sq_q[16];
     wire sq_value_over = ~sq_value_neg & (sq_q[15:14] != 2'h0);
     wire [13:0] sq_value = sq_value_neg ? 14'h0000 : sq_value_over ? 14'h3fff : sq_q[13:0];
-
     wire [13:0] fin_out_sqrt = zero_reg ? 14'h0000 : sq_value;
-
     wire [3:0] fin_tag = tag_reg;
 
     // Output buffer with two entries. out_ready reaches only this buffer and ready_reg; the

@@ -13,7 +13,7 @@
 // Internal widths: x, y 24 bits (5 guard bits); z 25 bits (25 fraction bits of a turn).
 // Worst error against the ideal, bit-true model: 0.9307 LSB (RMS 0.3609 LSB),
 // measured over every one of the 1024 input codes.
-// Timing: latency 4 clocks from input handshake to output handshake, one
+// Timing: latency 5 clocks from input handshake to output handshake, one
 // sample every 1 clock(s) at full rate.
 // Handshake: a sample moves when valid and ready are both high at a rising clock edge.
 // rst is synchronous and active high; it clears the control state, not the data path.
@@ -33,7 +33,6 @@
 //   guard_bits = "auto"
 //   rounding = "half_up"
 //   tag_width = 9
-
 `resetall
 `timescale 1ns / 1ps
 `default_nettype none
@@ -54,26 +53,29 @@ module fft1024_twiddle (
     output wire [8:0] out_tag
 );
 
-    localparam [24:0] Z_HALF = 25'h1000000;  // codes below this are angles >= 0
+    localparam XY_W = 24;  // x and y: data bits plus 5 guard bits
+    localparam Z_W = 25;  // z: 25 fraction bits
 
-    localparam [24:0] ATAN_0 = 25'h0400000;  // atan(2^-0) in turns
-    localparam [24:0] ATAN_1 = 25'h025c80a;  // atan(2^-1) in turns
-    localparam [24:0] ATAN_2 = 25'h013f671;  // atan(2^-2) in turns
-    localparam [24:0] ATAN_3 = 25'h00a2224;  // atan(2^-3) in turns
-    localparam [24:0] ATAN_4 = 25'h005161b;  // atan(2^-4) in turns
-    localparam [24:0] ATAN_5 = 25'h0028bb0;  // atan(2^-5) in turns
-    localparam [24:0] ATAN_6 = 25'h00145ec;  // atan(2^-6) in turns
-    localparam [24:0] ATAN_7 = 25'h000a2f9;  // atan(2^-7) in turns
-    localparam [24:0] ATAN_8 = 25'h000517d;  // atan(2^-8) in turns
-    localparam [24:0] ATAN_9 = 25'h00028be;  // atan(2^-9) in turns
-    localparam [24:0] ATAN_10 = 25'h000145f;  // atan(2^-10) in turns
-    localparam [24:0] ATAN_11 = 25'h0000a30;  // atan(2^-11) in turns
-    localparam [24:0] ATAN_12 = 25'h0000518;  // atan(2^-12) in turns
-    localparam [24:0] ATAN_13 = 25'h000028c;  // atan(2^-13) in turns
-    localparam [24:0] ATAN_14 = 25'h0000146;  // atan(2^-14) in turns
-    localparam [24:0] ATAN_15 = 25'h00000a3;  // atan(2^-15) in turns
-    localparam [24:0] ATAN_16 = 25'h0000051;  // atan(2^-16) in turns
-    localparam [24:0] ATAN_17 = 25'h0000029;  // atan(2^-17) in turns
+    localparam [Z_W-1:0] Z_HALF = 25'h1000000;  // codes below this are angles >= 0
+
+    localparam [Z_W-1:0] ATAN_0 = 25'h0400000;  // atan(2^-0) in turns
+    localparam [Z_W-1:0] ATAN_1 = 25'h025c80a;  // atan(2^-1) in turns
+    localparam [Z_W-1:0] ATAN_2 = 25'h013f671;  // atan(2^-2) in turns
+    localparam [Z_W-1:0] ATAN_3 = 25'h00a2224;  // atan(2^-3) in turns
+    localparam [Z_W-1:0] ATAN_4 = 25'h005161b;  // atan(2^-4) in turns
+    localparam [Z_W-1:0] ATAN_5 = 25'h0028bb0;  // atan(2^-5) in turns
+    localparam [Z_W-1:0] ATAN_6 = 25'h00145ec;  // atan(2^-6) in turns
+    localparam [Z_W-1:0] ATAN_7 = 25'h000a2f9;  // atan(2^-7) in turns
+    localparam [Z_W-1:0] ATAN_8 = 25'h000517d;  // atan(2^-8) in turns
+    localparam [Z_W-1:0] ATAN_9 = 25'h00028be;  // atan(2^-9) in turns
+    localparam [Z_W-1:0] ATAN_10 = 25'h000145f;  // atan(2^-10) in turns
+    localparam [Z_W-1:0] ATAN_11 = 25'h0000a30;  // atan(2^-11) in turns
+    localparam [Z_W-1:0] ATAN_12 = 25'h0000518;  // atan(2^-12) in turns
+    localparam [Z_W-1:0] ATAN_13 = 25'h000028c;  // atan(2^-13) in turns
+    localparam [Z_W-1:0] ATAN_14 = 25'h0000146;  // atan(2^-14) in turns
+    localparam [Z_W-1:0] ATAN_15 = 25'h00000a3;  // atan(2^-15) in turns
+    localparam [Z_W-1:0] ATAN_16 = 25'h0000051;  // atan(2^-16) in turns
+    localparam [Z_W-1:0] ATAN_17 = 25'h0000029;  // atan(2^-17) in turns
 
     // The pipeline advances while the output buffer can take a sample.
     wire advance;
@@ -86,40 +88,42 @@ module fft1024_twiddle (
     // negated instead. What remains is within +-1/4 turn, inside the +-99.88 degree
     // convergence range.
     wire in_fold = in_angle[9] ^ in_angle[8];
-    wire [24:0] z_start = {in_angle[8], in_angle[8:0], 15'h0000};
-
-    wire [23:0] x_start = in_fold ? X_START_NEG : X_START_POS;
-    wire [23:0] y_start = 24'h000000;
+    wire [Z_W-1:0] z_start = {in_angle[8], in_angle[8:0], 15'h0000};
+    wire [XY_W-1:0] x_start = in_fold ? X_START_NEG : X_START_POS;
+    wire [XY_W-1:0] y_start = 24'h000000;
 
     // ---- stage 0: iterations 0 to 3 ----
     // iteration 0: turn counter-clockwise when the remaining angle is >= 0
     wire dir_0 = (z_start < Z_HALF);
-    wire [23:0] x_1 = x_start + (dir_0 ? ~y_start : y_start) + {23'h000000, dir_0};
-    wire [23:0] y_1 = y_start + (dir_0 ? x_start : ~x_start) + {23'h000000, ~dir_0};
-    wire [24:0] z_1 = z_start + (dir_0 ? ~ATAN_0 : ATAN_0) + {24'h000000, dir_0};
-
+    wire [XY_W-1:0] x_1 = x_start + (dir_0 ? ~y_start : y_start) + {23'h000000, dir_0};
+    wire [XY_W-1:0] y_1 = y_start + (dir_0 ? x_start : ~x_start) + {23'h000000, ~dir_0};
+    wire [Z_W-1:0] z_1 = z_start + (dir_0 ? ~ATAN_0 : ATAN_0) + {24'h000000, dir_0};
     // iteration 1: turn counter-clockwise when the remaining angle is >= 0
     wire dir_1 = (z_1 < Z_HALF);
-    wire [23:0] x_2 = x_1 + (dir_1 ? ~{{1{y_1[23]}}, y_1[23:1]} : {{1{y_1[23]}}, y_1[23:1]}) + {23'h000000, dir_1};
-    wire [23:0] y_2 = y_1 + (dir_1 ? {{1{x_1[23]}}, x_1[23:1]} : ~{{1{x_1[23]}}, x_1[23:1]}) + {23'h000000, ~dir_1};
-    wire [24:0] z_2 = z_1 + (dir_1 ? ~ATAN_1 : ATAN_1) + {24'h000000, dir_1};
-
+    wire [XY_W-1:0] xs_1 = {{1{x_1[23]}}, x_1[23:1]};  // x >>> 1
+    wire [XY_W-1:0] ys_1 = {{1{y_1[23]}}, y_1[23:1]};  // y >>> 1
+    wire [XY_W-1:0] x_2 = x_1 + (dir_1 ? ~ys_1 : ys_1) + {23'h000000, dir_1};
+    wire [XY_W-1:0] y_2 = y_1 + (dir_1 ? xs_1 : ~xs_1) + {23'h000000, ~dir_1};
+    wire [Z_W-1:0] z_2 = z_1 + (dir_1 ? ~ATAN_1 : ATAN_1) + {24'h000000, dir_1};
     // iteration 2: turn counter-clockwise when the remaining angle is >= 0
     wire dir_2 = (z_2 < Z_HALF);
-    wire [23:0] x_3 = x_2 + (dir_2 ? ~{{2{y_2[23]}}, y_2[23:2]} : {{2{y_2[23]}}, y_2[23:2]}) + {23'h000000, dir_2};
-    wire [23:0] y_3 = y_2 + (dir_2 ? {{2{x_2[23]}}, x_2[23:2]} : ~{{2{x_2[23]}}, x_2[23:2]}) + {23'h000000, ~dir_2};
-    wire [24:0] z_3 = z_2 + (dir_2 ? ~ATAN_2 : ATAN_2) + {24'h000000, dir_2};
-
+    wire [XY_W-1:0] xs_2 = {{2{x_2[23]}}, x_2[23:2]};  // x >>> 2
+    wire [XY_W-1:0] ys_2 = {{2{y_2[23]}}, y_2[23:2]};  // y >>> 2
+    wire [XY_W-1:0] x_3 = x_2 + (dir_2 ? ~ys_2 : ys_2) + {23'h000000, dir_2};
+    wire [XY_W-1:0] y_3 = y_2 + (dir_2 ? xs_2 : ~xs_2) + {23'h000000, ~dir_2};
+    wire [Z_W-1:0] z_3 = z_2 + (dir_2 ? ~ATAN_2 : ATAN_2) + {24'h000000, dir_2};
     // iteration 3: turn counter-clockwise when the remaining angle is >= 0
     wire dir_3 = (z_3 < Z_HALF);
-    wire [23:0] s0_x = x_3 + (dir_3 ? ~{{3{y_3[23]}}, y_3[23:3]} : {{3{y_3[23]}}, y_3[23:3]}) + {23'h000000, dir_3};
-    wire [23:0] s0_y = y_3 + (dir_3 ? {{3{x_3[23]}}, x_3[23:3]} : ~{{3{x_3[23]}}, x_3[23:3]}) + {23'h000000, ~dir_3};
-    wire [24:0] s0_z = z_3 + (dir_3 ? ~ATAN_3 : ATAN_3) + {24'h000000, dir_3};
+    wire [XY_W-1:0] xs_3 = {{3{x_3[23]}}, x_3[23:3]};  // x >>> 3
+    wire [XY_W-1:0] ys_3 = {{3{y_3[23]}}, y_3[23:3]};  // y >>> 3
+    wire [XY_W-1:0] s0_x = x_3 + (dir_3 ? ~ys_3 : ys_3) + {23'h000000, dir_3};
+    wire [XY_W-1:0] s0_y = y_3 + (dir_3 ? xs_3 : ~xs_3) + {23'h000000, ~dir_3};
+    wire [Z_W-1:0] s0_z = z_3 + (dir_3 ? ~ATAN_3 : ATAN_3) + {24'h000000, dir_3};
 
     reg s0_valid_reg;
-    reg [23:0] s0_x_reg;
-    reg [23:0] s0_y_reg;
-    reg [24:0] s0_z_reg;
+    reg [XY_W-1:0] s0_x_reg;
+    reg [XY_W-1:0] s0_y_reg;
+    reg [Z_W-1:0] s0_z_reg;
     reg [8:0] s0_tag_reg;
 
     always @(posedge clk) begin
@@ -142,38 +146,44 @@ module fft1024_twiddle (
     // ---- stage 1: iterations 4 to 8 ----
     // iteration 4: turn counter-clockwise when the remaining angle is >= 0
     wire dir_4 = (s0_z_reg < Z_HALF);
-    wire [23:0] x_5 = s0_x_reg + (dir_4 ? ~{{4{s0_y_reg[23]}}, s0_y_reg[23:4]} : {{4{s0_y_reg[23]}}, s0_y_reg[23:4]}) + {23'h000000, dir_4};
-    wire [23:0] y_5 = s0_y_reg + (dir_4 ? {{4{s0_x_reg[23]}}, s0_x_reg[23:4]} : ~{{4{s0_x_reg[23]}}, s0_x_reg[23:4]}) + {23'h000000, ~dir_4};
-    wire [24:0] z_5 = s0_z_reg + (dir_4 ? ~ATAN_4 : ATAN_4) + {24'h000000, dir_4};
-
+    wire [XY_W-1:0] xs_4 = {{4{s0_x_reg[23]}}, s0_x_reg[23:4]};  // x >>> 4
+    wire [XY_W-1:0] ys_4 = {{4{s0_y_reg[23]}}, s0_y_reg[23:4]};  // y >>> 4
+    wire [XY_W-1:0] x_5 = s0_x_reg + (dir_4 ? ~ys_4 : ys_4) + {23'h000000, dir_4};
+    wire [XY_W-1:0] y_5 = s0_y_reg + (dir_4 ? xs_4 : ~xs_4) + {23'h000000, ~dir_4};
+    wire [Z_W-1:0] z_5 = s0_z_reg + (dir_4 ? ~ATAN_4 : ATAN_4) + {24'h000000, dir_4};
     // iteration 5: turn counter-clockwise when the remaining angle is >= 0
     wire dir_5 = (z_5 < Z_HALF);
-    wire [23:0] x_6 = x_5 + (dir_5 ? ~{{5{y_5[23]}}, y_5[23:5]} : {{5{y_5[23]}}, y_5[23:5]}) + {23'h000000, dir_5};
-    wire [23:0] y_6 = y_5 + (dir_5 ? {{5{x_5[23]}}, x_5[23:5]} : ~{{5{x_5[23]}}, x_5[23:5]}) + {23'h000000, ~dir_5};
-    wire [24:0] z_6 = z_5 + (dir_5 ? ~ATAN_5 : ATAN_5) + {24'h000000, dir_5};
-
+    wire [XY_W-1:0] xs_5 = {{5{x_5[23]}}, x_5[23:5]};  // x >>> 5
+    wire [XY_W-1:0] ys_5 = {{5{y_5[23]}}, y_5[23:5]};  // y >>> 5
+    wire [XY_W-1:0] x_6 = x_5 + (dir_5 ? ~ys_5 : ys_5) + {23'h000000, dir_5};
+    wire [XY_W-1:0] y_6 = y_5 + (dir_5 ? xs_5 : ~xs_5) + {23'h000000, ~dir_5};
+    wire [Z_W-1:0] z_6 = z_5 + (dir_5 ? ~ATAN_5 : ATAN_5) + {24'h000000, dir_5};
     // iteration 6: turn counter-clockwise when the remaining angle is >= 0
     wire dir_6 = (z_6 < Z_HALF);
-    wire [23:0] x_7 = x_6 + (dir_6 ? ~{{6{y_6[23]}}, y_6[23:6]} : {{6{y_6[23]}}, y_6[23:6]}) + {23'h000000, dir_6};
-    wire [23:0] y_7 = y_6 + (dir_6 ? {{6{x_6[23]}}, x_6[23:6]} : ~{{6{x_6[23]}}, x_6[23:6]}) + {23'h000000, ~dir_6};
-    wire [24:0] z_7 = z_6 + (dir_6 ? ~ATAN_6 : ATAN_6) + {24'h000000, dir_6};
-
+    wire [XY_W-1:0] xs_6 = {{6{x_6[23]}}, x_6[23:6]};  // x >>> 6
+    wire [XY_W-1:0] ys_6 = {{6{y_6[23]}}, y_6[23:6]};  // y >>> 6
+    wire [XY_W-1:0] x_7 = x_6 + (dir_6 ? ~ys_6 : ys_6) + {23'h000000, dir_6};
+    wire [XY_W-1:0] y_7 = y_6 + (dir_6 ? xs_6 : ~xs_6) + {23'h000000, ~dir_6};
+    wire [Z_W-1:0] z_7 = z_6 + (dir_6 ? ~ATAN_6 : ATAN_6) + {24'h000000, dir_6};
     // iteration 7: turn counter-clockwise when the remaining angle is >= 0
     wire dir_7 = (z_7 < Z_HALF);
-    wire [23:0] x_8 = x_7 + (dir_7 ? ~{{7{y_7[23]}}, y_7[23:7]} : {{7{y_7[23]}}, y_7[23:7]}) + {23'h000000, dir_7};
-    wire [23:0] y_8 = y_7 + (dir_7 ? {{7{x_7[23]}}, x_7[23:7]} : ~{{7{x_7[23]}}, x_7[23:7]}) + {23'h000000, ~dir_7};
-    wire [24:0] z_8 = z_7 + (dir_7 ? ~ATAN_7 : ATAN_7) + {24'h000000, dir_7};
-
+    wire [XY_W-1:0] xs_7 = {{7{x_7[23]}}, x_7[23:7]};  // x >>> 7
+    wire [XY_W-1:0] ys_7 = {{7{y_7[23]}}, y_7[23:7]};  // y >>> 7
+    wire [XY_W-1:0] x_8 = x_7 + (dir_7 ? ~ys_7 : ys_7) + {23'h000000, dir_7};
+    wire [XY_W-1:0] y_8 = y_7 + (dir_7 ? xs_7 : ~xs_7) + {23'h000000, ~dir_7};
+    wire [Z_W-1:0] z_8 = z_7 + (dir_7 ? ~ATAN_7 : ATAN_7) + {24'h000000, dir_7};
     // iteration 8: turn counter-clockwise when the remaining angle is >= 0
     wire dir_8 = (z_8 < Z_HALF);
-    wire [23:0] s1_x = x_8 + (dir_8 ? ~{{8{y_8[23]}}, y_8[23:8]} : {{8{y_8[23]}}, y_8[23:8]}) + {23'h000000, dir_8};
-    wire [23:0] s1_y = y_8 + (dir_8 ? {{8{x_8[23]}}, x_8[23:8]} : ~{{8{x_8[23]}}, x_8[23:8]}) + {23'h000000, ~dir_8};
-    wire [24:0] s1_z = z_8 + (dir_8 ? ~ATAN_8 : ATAN_8) + {24'h000000, dir_8};
+    wire [XY_W-1:0] xs_8 = {{8{x_8[23]}}, x_8[23:8]};  // x >>> 8
+    wire [XY_W-1:0] ys_8 = {{8{y_8[23]}}, y_8[23:8]};  // y >>> 8
+    wire [XY_W-1:0] s1_x = x_8 + (dir_8 ? ~ys_8 : ys_8) + {23'h000000, dir_8};
+    wire [XY_W-1:0] s1_y = y_8 + (dir_8 ? xs_8 : ~xs_8) + {23'h000000, ~dir_8};
+    wire [Z_W-1:0] s1_z = z_8 + (dir_8 ? ~ATAN_8 : ATAN_8) + {24'h000000, dir_8};
 
     reg s1_valid_reg;
-    reg [23:0] s1_x_reg;
-    reg [23:0] s1_y_reg;
-    reg [24:0] s1_z_reg;
+    reg [XY_W-1:0] s1_x_reg;
+    reg [XY_W-1:0] s1_y_reg;
+    reg [Z_W-1:0] s1_z_reg;
     reg [8:0] s1_tag_reg;
 
     always @(posedge clk) begin
@@ -196,38 +206,44 @@ module fft1024_twiddle (
     // ---- stage 2: iterations 9 to 13 ----
     // iteration 9: turn counter-clockwise when the remaining angle is >= 0
     wire dir_9 = (s1_z_reg < Z_HALF);
-    wire [23:0] x_10 = s1_x_reg + (dir_9 ? ~{{9{s1_y_reg[23]}}, s1_y_reg[23:9]} : {{9{s1_y_reg[23]}}, s1_y_reg[23:9]}) + {23'h000000, dir_9};
-    wire [23:0] y_10 = s1_y_reg + (dir_9 ? {{9{s1_x_reg[23]}}, s1_x_reg[23:9]} : ~{{9{s1_x_reg[23]}}, s1_x_reg[23:9]}) + {23'h000000, ~dir_9};
-    wire [24:0] z_10 = s1_z_reg + (dir_9 ? ~ATAN_9 : ATAN_9) + {24'h000000, dir_9};
-
+    wire [XY_W-1:0] xs_9 = {{9{s1_x_reg[23]}}, s1_x_reg[23:9]};  // x >>> 9
+    wire [XY_W-1:0] ys_9 = {{9{s1_y_reg[23]}}, s1_y_reg[23:9]};  // y >>> 9
+    wire [XY_W-1:0] x_10 = s1_x_reg + (dir_9 ? ~ys_9 : ys_9) + {23'h000000, dir_9};
+    wire [XY_W-1:0] y_10 = s1_y_reg + (dir_9 ? xs_9 : ~xs_9) + {23'h000000, ~dir_9};
+    wire [Z_W-1:0] z_10 = s1_z_reg + (dir_9 ? ~ATAN_9 : ATAN_9) + {24'h000000, dir_9};
     // iteration 10: turn counter-clockwise when the remaining angle is >= 0
     wire dir_10 = (z_10 < Z_HALF);
-    wire [23:0] x_11 = x_10 + (dir_10 ? ~{{10{y_10[23]}}, y_10[23:10]} : {{10{y_10[23]}}, y_10[23:10]}) + {23'h000000, dir_10};
-    wire [23:0] y_11 = y_10 + (dir_10 ? {{10{x_10[23]}}, x_10[23:10]} : ~{{10{x_10[23]}}, x_10[23:10]}) + {23'h000000, ~dir_10};
-    wire [24:0] z_11 = z_10 + (dir_10 ? ~ATAN_10 : ATAN_10) + {24'h000000, dir_10};
-
+    wire [XY_W-1:0] xs_10 = {{10{x_10[23]}}, x_10[23:10]};  // x >>> 10
+    wire [XY_W-1:0] ys_10 = {{10{y_10[23]}}, y_10[23:10]};  // y >>> 10
+    wire [XY_W-1:0] x_11 = x_10 + (dir_10 ? ~ys_10 : ys_10) + {23'h000000, dir_10};
+    wire [XY_W-1:0] y_11 = y_10 + (dir_10 ? xs_10 : ~xs_10) + {23'h000000, ~dir_10};
+    wire [Z_W-1:0] z_11 = z_10 + (dir_10 ? ~ATAN_10 : ATAN_10) + {24'h000000, dir_10};
     // iteration 11: turn counter-clockwise when the remaining angle is >= 0
     wire dir_11 = (z_11 < Z_HALF);
-    wire [23:0] x_12 = x_11 + (dir_11 ? ~{{11{y_11[23]}}, y_11[23:11]} : {{11{y_11[23]}}, y_11[23:11]}) + {23'h000000, dir_11};
-    wire [23:0] y_12 = y_11 + (dir_11 ? {{11{x_11[23]}}, x_11[23:11]} : ~{{11{x_11[23]}}, x_11[23:11]}) + {23'h000000, ~dir_11};
-    wire [24:0] z_12 = z_11 + (dir_11 ? ~ATAN_11 : ATAN_11) + {24'h000000, dir_11};
-
+    wire [XY_W-1:0] xs_11 = {{11{x_11[23]}}, x_11[23:11]};  // x >>> 11
+    wire [XY_W-1:0] ys_11 = {{11{y_11[23]}}, y_11[23:11]};  // y >>> 11
+    wire [XY_W-1:0] x_12 = x_11 + (dir_11 ? ~ys_11 : ys_11) + {23'h000000, dir_11};
+    wire [XY_W-1:0] y_12 = y_11 + (dir_11 ? xs_11 : ~xs_11) + {23'h000000, ~dir_11};
+    wire [Z_W-1:0] z_12 = z_11 + (dir_11 ? ~ATAN_11 : ATAN_11) + {24'h000000, dir_11};
     // iteration 12: turn counter-clockwise when the remaining angle is >= 0
     wire dir_12 = (z_12 < Z_HALF);
-    wire [23:0] x_13 = x_12 + (dir_12 ? ~{{12{y_12[23]}}, y_12[23:12]} : {{12{y_12[23]}}, y_12[23:12]}) + {23'h000000, dir_12};
-    wire [23:0] y_13 = y_12 + (dir_12 ? {{12{x_12[23]}}, x_12[23:12]} : ~{{12{x_12[23]}}, x_12[23:12]}) + {23'h000000, ~dir_12};
-    wire [24:0] z_13 = z_12 + (dir_12 ? ~ATAN_12 : ATAN_12) + {24'h000000, dir_12};
-
+    wire [XY_W-1:0] xs_12 = {{12{x_12[23]}}, x_12[23:12]};  // x >>> 12
+    wire [XY_W-1:0] ys_12 = {{12{y_12[23]}}, y_12[23:12]};  // y >>> 12
+    wire [XY_W-1:0] x_13 = x_12 + (dir_12 ? ~ys_12 : ys_12) + {23'h000000, dir_12};
+    wire [XY_W-1:0] y_13 = y_12 + (dir_12 ? xs_12 : ~xs_12) + {23'h000000, ~dir_12};
+    wire [Z_W-1:0] z_13 = z_12 + (dir_12 ? ~ATAN_12 : ATAN_12) + {24'h000000, dir_12};
     // iteration 13: turn counter-clockwise when the remaining angle is >= 0
     wire dir_13 = (z_13 < Z_HALF);
-    wire [23:0] s2_x = x_13 + (dir_13 ? ~{{13{y_13[23]}}, y_13[23:13]} : {{13{y_13[23]}}, y_13[23:13]}) + {23'h000000, dir_13};
-    wire [23:0] s2_y = y_13 + (dir_13 ? {{13{x_13[23]}}, x_13[23:13]} : ~{{13{x_13[23]}}, x_13[23:13]}) + {23'h000000, ~dir_13};
-    wire [24:0] s2_z = z_13 + (dir_13 ? ~ATAN_13 : ATAN_13) + {24'h000000, dir_13};
+    wire [XY_W-1:0] xs_13 = {{13{x_13[23]}}, x_13[23:13]};  // x >>> 13
+    wire [XY_W-1:0] ys_13 = {{13{y_13[23]}}, y_13[23:13]};  // y >>> 13
+    wire [XY_W-1:0] s2_x = x_13 + (dir_13 ? ~ys_13 : ys_13) + {23'h000000, dir_13};
+    wire [XY_W-1:0] s2_y = y_13 + (dir_13 ? xs_13 : ~xs_13) + {23'h000000, ~dir_13};
+    wire [Z_W-1:0] s2_z = z_13 + (dir_13 ? ~ATAN_13 : ATAN_13) + {24'h000000, dir_13};
 
     reg s2_valid_reg;
-    reg [23:0] s2_x_reg;
-    reg [23:0] s2_y_reg;
-    reg [24:0] s2_z_reg;
+    reg [XY_W-1:0] s2_x_reg;
+    reg [XY_W-1:0] s2_y_reg;
+    reg [Z_W-1:0] s2_z_reg;
     reg [8:0] s2_tag_reg;
 
     always @(posedge clk) begin
@@ -250,54 +266,79 @@ module fft1024_twiddle (
     // ---- stage 3: iterations 14 to 18 ----
     // iteration 14: turn counter-clockwise when the remaining angle is >= 0
     wire dir_14 = (s2_z_reg < Z_HALF);
-    wire [23:0] x_15 = s2_x_reg + (dir_14 ? ~{{14{s2_y_reg[23]}}, s2_y_reg[23:14]} : {{14{s2_y_reg[23]}}, s2_y_reg[23:14]}) + {23'h000000, dir_14};
-    wire [23:0] y_15 = s2_y_reg + (dir_14 ? {{14{s2_x_reg[23]}}, s2_x_reg[23:14]} : ~{{14{s2_x_reg[23]}}, s2_x_reg[23:14]}) + {23'h000000, ~dir_14};
-    wire [24:0] z_15 = s2_z_reg + (dir_14 ? ~ATAN_14 : ATAN_14) + {24'h000000, dir_14};
-
+    wire [XY_W-1:0] xs_14 = {{14{s2_x_reg[23]}}, s2_x_reg[23:14]};  // x >>> 14
+    wire [XY_W-1:0] ys_14 = {{14{s2_y_reg[23]}}, s2_y_reg[23:14]};  // y >>> 14
+    wire [XY_W-1:0] x_15 = s2_x_reg + (dir_14 ? ~ys_14 : ys_14) + {23'h000000, dir_14};
+    wire [XY_W-1:0] y_15 = s2_y_reg + (dir_14 ? xs_14 : ~xs_14) + {23'h000000, ~dir_14};
+    wire [Z_W-1:0] z_15 = s2_z_reg + (dir_14 ? ~ATAN_14 : ATAN_14) + {24'h000000, dir_14};
     // iteration 15: turn counter-clockwise when the remaining angle is >= 0
     wire dir_15 = (z_15 < Z_HALF);
-    wire [23:0] x_16 = x_15 + (dir_15 ? ~{{15{y_15[23]}}, y_15[23:15]} : {{15{y_15[23]}}, y_15[23:15]}) + {23'h000000, dir_15};
-    wire [23:0] y_16 = y_15 + (dir_15 ? {{15{x_15[23]}}, x_15[23:15]} : ~{{15{x_15[23]}}, x_15[23:15]}) + {23'h000000, ~dir_15};
-    wire [24:0] z_16 = z_15 + (dir_15 ? ~ATAN_15 : ATAN_15) + {24'h000000, dir_15};
-
+    wire [XY_W-1:0] xs_15 = {{15{x_15[23]}}, x_15[23:15]};  // x >>> 15
+    wire [XY_W-1:0] ys_15 = {{15{y_15[23]}}, y_15[23:15]};  // y >>> 15
+    wire [XY_W-1:0] x_16 = x_15 + (dir_15 ? ~ys_15 : ys_15) + {23'h000000, dir_15};
+    wire [XY_W-1:0] y_16 = y_15 + (dir_15 ? xs_15 : ~xs_15) + {23'h000000, ~dir_15};
+    wire [Z_W-1:0] z_16 = z_15 + (dir_15 ? ~ATAN_15 : ATAN_15) + {24'h000000, dir_15};
     // iteration 16: turn counter-clockwise when the remaining angle is >= 0
     wire dir_16 = (z_16 < Z_HALF);
-    wire [23:0] x_17 = x_16 + (dir_16 ? ~{{16{y_16[23]}}, y_16[23:16]} : {{16{y_16[23]}}, y_16[23:16]}) + {23'h000000, dir_16};
-    wire [23:0] y_17 = y_16 + (dir_16 ? {{16{x_16[23]}}, x_16[23:16]} : ~{{16{x_16[23]}}, x_16[23:16]}) + {23'h000000, ~dir_16};
-    wire [24:0] z_17 = z_16 + (dir_16 ? ~ATAN_16 : ATAN_16) + {24'h000000, dir_16};
-
+    wire [XY_W-1:0] xs_16 = {{16{x_16[23]}}, x_16[23:16]};  // x >>> 16
+    wire [XY_W-1:0] ys_16 = {{16{y_16[23]}}, y_16[23:16]};  // y >>> 16
+    wire [XY_W-1:0] x_17 = x_16 + (dir_16 ? ~ys_16 : ys_16) + {23'h000000, dir_16};
+    wire [XY_W-1:0] y_17 = y_16 + (dir_16 ? xs_16 : ~xs_16) + {23'h000000, ~dir_16};
+    wire [Z_W-1:0] z_17 = z_16 + (dir_16 ? ~ATAN_16 : ATAN_16) + {24'h000000, dir_16};
     // iteration 17: turn counter-clockwise when the remaining angle is >= 0
     wire dir_17 = (z_17 < Z_HALF);
-    wire [23:0] x_18 = x_17 + (dir_17 ? ~{{17{y_17[23]}}, y_17[23:17]} : {{17{y_17[23]}}, y_17[23:17]}) + {23'h000000, dir_17};
-    wire [23:0] y_18 = y_17 + (dir_17 ? {{17{x_17[23]}}, x_17[23:17]} : ~{{17{x_17[23]}}, x_17[23:17]}) + {23'h000000, ~dir_17};
-    wire [24:0] z_18 = z_17 + (dir_17 ? ~ATAN_17 : ATAN_17) + {24'h000000, dir_17};
-
+    wire [XY_W-1:0] xs_17 = {{17{x_17[23]}}, x_17[23:17]};  // x >>> 17
+    wire [XY_W-1:0] ys_17 = {{17{y_17[23]}}, y_17[23:17]};  // y >>> 17
+    wire [XY_W-1:0] x_18 = x_17 + (dir_17 ? ~ys_17 : ys_17) + {23'h000000, dir_17};
+    wire [XY_W-1:0] y_18 = y_17 + (dir_17 ? xs_17 : ~xs_17) + {23'h000000, ~dir_17};
+    wire [Z_W-1:0] z_18 = z_17 + (dir_17 ? ~ATAN_17 : ATAN_17) + {24'h000000, dir_17};
     // iteration 18: turn counter-clockwise when the remaining angle is >= 0
     wire dir_18 = (z_18 < Z_HALF);
-    wire [23:0] s3_x = x_18 + (dir_18 ? ~{{18{y_18[23]}}, y_18[23:18]} : {{18{y_18[23]}}, y_18[23:18]}) + {23'h000000, dir_18};
-    wire [23:0] s3_y = y_18 + (dir_18 ? {{18{x_18[23]}}, x_18[23:18]} : ~{{18{x_18[23]}}, x_18[23:18]}) + {23'h000000, ~dir_18};
+    wire [XY_W-1:0] xs_18 = {{18{x_18[23]}}, x_18[23:18]};  // x >>> 18
+    wire [XY_W-1:0] ys_18 = {{18{y_18[23]}}, y_18[23:18]};  // y >>> 18
+    wire [XY_W-1:0] s3_x = x_18 + (dir_18 ? ~ys_18 : ys_18) + {23'h000000, dir_18};
+    wire [XY_W-1:0] s3_y = y_18 + (dir_18 ? xs_18 : ~xs_18) + {23'h000000, ~dir_18};
+
+    // ---- output register: the last iteration's values, held so that rounding and
+    // saturation have a clock of their own ----
+    reg o_valid_reg;
+    reg [XY_W-1:0] o_x_reg;
+    reg [XY_W-1:0] o_y_reg;
+    reg [8:0] o_tag_reg;
+
+    always @(posedge clk) begin
+        if (rst) begin
+            o_valid_reg <= 1'b0;
+        end else if (advance) begin
+            o_valid_reg <= s2_valid_reg;
+        end
+    end
+
+    always @(posedge clk) begin
+        if (advance) begin
+            o_x_reg <= s3_x;
+            o_y_reg <= s3_y;
+            o_tag_reg <= s2_tag_reg;
+        end
+    end
 
     // ---- output: rounding, saturation, buffer ----
     // fin_out_cos: drop 5 bit(s), half_up
-    wire fin_out_cos_inc = (s3_x[4:0] >= 5'h10);
-    wire [18:0] fin_out_cos_q = s3_x[23:5] + {18'h00000, fin_out_cos_inc};
-
+    wire fin_out_cos_inc = (o_x_reg[4:0] >= 5'h10);
+    wire [18:0] fin_out_cos_q = o_x_reg[23:5] + {18'h00000, fin_out_cos_inc};
     // saturate to +-131071
     wire fin_out_cos_over = ~fin_out_cos_q[18] & fin_out_cos_q[17];
     wire fin_out_cos_under = fin_out_cos_q[18] & (~fin_out_cos_q[17] | (fin_out_cos_q[17:0] == 18'h20000));
     wire [17:0] fin_out_cos = fin_out_cos_over ? 18'h1ffff : fin_out_cos_under ? 18'h20001 : fin_out_cos_q[17:0];
-
     // fin_out_sin: drop 5 bit(s), half_up
-    wire fin_out_sin_inc = (s3_y[4:0] >= 5'h10);
-    wire [18:0] fin_out_sin_q = s3_y[23:5] + {18'h00000, fin_out_sin_inc};
-
+    wire fin_out_sin_inc = (o_y_reg[4:0] >= 5'h10);
+    wire [18:0] fin_out_sin_q = o_y_reg[23:5] + {18'h00000, fin_out_sin_inc};
     // saturate to +-131071
     wire fin_out_sin_over = ~fin_out_sin_q[18] & fin_out_sin_q[17];
     wire fin_out_sin_under = fin_out_sin_q[18] & (~fin_out_sin_q[17] | (fin_out_sin_q[17:0] == 18'h20000));
     wire [17:0] fin_out_sin = fin_out_sin_over ? 18'h1ffff : fin_out_sin_under ? 18'h20001 : fin_out_sin_q[17:0];
-
-    wire fin_valid = s2_valid_reg;
-    wire [8:0] fin_tag = s2_tag_reg;
+    wire fin_valid = o_valid_reg;
+    wire [8:0] fin_tag = o_tag_reg;
 
     // Output buffer with two entries. out_ready reaches only this buffer and ready_reg; the
     // core advances while ready_reg is high. When the consumer stalls, the sample already on
@@ -361,7 +402,6 @@ module fft1024_twiddle (
     assign out_cos = out_cos_reg;
     assign out_sin = out_sin_reg;
     assign out_tag = out_tag_reg;
-
     assign advance = ready_reg;
 
 endmodule

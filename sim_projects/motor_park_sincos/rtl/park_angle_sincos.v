@@ -33,7 +33,6 @@
 //   guard_bits = "auto"
 //   rounding = "half_even"
 //   tag_width = 0
-
 `resetall
 `timescale 1ns / 1ps
 `default_nettype none
@@ -52,7 +51,10 @@ module park_angle_sincos (
     output wire [13:0] out_sin
 );
 
-    localparam [21:0] Z_HALF = 22'h200000;  // codes below this are angles >= 0
+    localparam XY_W = 21;  // x and y: data bits plus 6 guard bits
+    localparam Z_W = 22;  // z: 22 fraction bits
+
+    localparam [Z_W-1:0] Z_HALF = 22'h200000;  // codes below this are angles >= 0
 
     localparam [20:0] X_START_POS = 21'h04db81;  // amplitude times K, 6 guard bits
     localparam [20:0] X_START_NEG = 21'h1b247f;  // the same, negated (fold)
@@ -61,26 +63,25 @@ module park_angle_sincos (
     // negated instead. What remains is within +-1/4 turn, inside the +-99.88 degree
     // convergence range.
     wire in_fold = in_angle[11] ^ in_angle[10];
-    wire [21:0] z_start = {in_angle[10], in_angle[10:0], 10'h000};
-
-    wire [20:0] x_start = in_fold ? X_START_NEG : X_START_POS;
-    wire [20:0] y_start = 21'h000000;
+    wire [Z_W-1:0] z_start = {in_angle[10], in_angle[10:0], 10'h000};
+    wire [XY_W-1:0] x_start = in_fold ? X_START_NEG : X_START_POS;
+    wire [XY_W-1:0] y_start = 21'h000000;
 
     // One sample at a time: load the start values, then 8 clock(s) of
     // 2 iteration(s); the last clock writes the rounded result to the output buffer.
     reg busy_reg;
     reg [2:0] count_reg;
     wire last = (count_reg == 3'h7);
-    reg [20:0] x_reg;
-    reg [20:0] y_reg;
-    reg [21:0] z_reg;
+    reg [XY_W-1:0] x_reg;
+    reg [XY_W-1:0] y_reg;
+    reg [Z_W-1:0] z_reg;
 
     wire accept;
     wire fin_valid = busy_reg & last;
 
     // shift and angle constant of iteration 0 of each clock
     reg [3:0] shift_j0;
-    reg [21:0] atan_j0;
+    reg [Z_W-1:0] atan_j0;
     always @* begin
         case (count_reg)
             3'h0: begin shift_j0 = 4'h0; atan_j0 = 22'h080000; end
@@ -97,7 +98,7 @@ module park_angle_sincos (
 
     // shift and angle constant of iteration 1 of each clock
     reg [3:0] shift_j1;
-    reg [21:0] atan_j1;
+    reg [Z_W-1:0] atan_j1;
     reg active_j1;
     always @* begin
         case (count_reg)
@@ -113,38 +114,33 @@ module park_angle_sincos (
         endcase
     end
 
-    wire [20:0] xs_j0 = $signed(x_reg) >>> shift_j0;
-    wire [20:0] ys_j0 = $signed(y_reg) >>> shift_j0;
+    wire [XY_W-1:0] xs_j0 = $signed(x_reg) >>> shift_j0;
+    wire [XY_W-1:0] ys_j0 = $signed(y_reg) >>> shift_j0;
     // iteration 0: turn counter-clockwise when the remaining angle is >= 0
     wire dir_j0 = (z_reg < Z_HALF);
-    wire [20:0] x_1 = x_reg + (dir_j0 ? ~ys_j0 : ys_j0) + {20'h00000, dir_j0};
-    wire [20:0] y_1 = y_reg + (dir_j0 ? xs_j0 : ~xs_j0) + {20'h00000, ~dir_j0};
-    wire [21:0] z_1 = z_reg + (dir_j0 ? ~atan_j0 : atan_j0) + {21'h000000, dir_j0};
+    wire [XY_W-1:0] x_1 = x_reg + (dir_j0 ? ~ys_j0 : ys_j0) + {20'h00000, dir_j0};
+    wire [XY_W-1:0] y_1 = y_reg + (dir_j0 ? xs_j0 : ~xs_j0) + {20'h00000, ~dir_j0};
+    wire [Z_W-1:0] z_1 = z_reg + (dir_j0 ? ~atan_j0 : atan_j0) + {21'h000000, dir_j0};
 
-    wire [20:0] xs_j1 = $signed(x_1) >>> shift_j1;
-    wire [20:0] ys_j1 = $signed(y_1) >>> shift_j1;
+    wire [XY_W-1:0] xs_j1 = $signed(x_1) >>> shift_j1;
+    wire [XY_W-1:0] ys_j1 = $signed(y_1) >>> shift_j1;
     // iteration 1: turn counter-clockwise when the remaining angle is >= 0
     wire dir_j1 = (z_1 < Z_HALF);
-    wire [20:0] x_2 = active_j1 ? x_1 + (dir_j1 ? ~ys_j1 : ys_j1) + {20'h00000, dir_j1} : x_1;
-    wire [20:0] y_2 = active_j1 ? y_1 + (dir_j1 ? xs_j1 : ~xs_j1) + {20'h00000, ~dir_j1} : y_1;
-    wire [21:0] z_2 = active_j1 ? z_1 + (dir_j1 ? ~atan_j1 : atan_j1) + {21'h000000, dir_j1} : z_1;
+    wire [XY_W-1:0] x_2 = active_j1 ? (x_1 + (dir_j1 ? ~ys_j1 : ys_j1) + {20'h00000, dir_j1}) : x_1;
+    wire [XY_W-1:0] y_2 = active_j1 ? (y_1 + (dir_j1 ? xs_j1 : ~xs_j1) + {20'h00000, ~dir_j1}) : y_1;
+    wire [Z_W-1:0] z_2 = active_j1 ? (z_1 + (dir_j1 ? ~atan_j1 : atan_j1) + {21'h000000, dir_j1}) : z_1;
 
     // ---- output: rounding, saturation, buffer ----
     // fin_out_cos: drop 6 bit(s), half_even
-    wire fin_out_cos_inc = (x_2[5:0] > 6'h20)
-        | ((x_2[5:0] == 6'h20) & x_2[6]);
+    wire fin_out_cos_inc = (x_2[5:0] > 6'h20) | ((x_2[5:0] == 6'h20) & x_2[6]);
     wire [14:0] fin_out_cos_q = x_2[20:6] + {14'h0000, fin_out_cos_inc};
-
     // saturate to +-8191
     wire fin_out_cos_over = ~fin_out_cos_q[14] & fin_out_cos_q[13];
     wire fin_out_cos_under = fin_out_cos_q[14] & (~fin_out_cos_q[13] | (fin_out_cos_q[13:0] == 14'h2000));
     wire [13:0] fin_out_cos = fin_out_cos_over ? 14'h1fff : fin_out_cos_under ? 14'h2001 : fin_out_cos_q[13:0];
-
     // fin_out_sin: drop 6 bit(s), half_even
-    wire fin_out_sin_inc = (y_2[5:0] > 6'h20)
-        | ((y_2[5:0] == 6'h20) & y_2[6]);
+    wire fin_out_sin_inc = (y_2[5:0] > 6'h20) | ((y_2[5:0] == 6'h20) & y_2[6]);
     wire [14:0] fin_out_sin_q = y_2[20:6] + {14'h0000, fin_out_sin_inc};
-
     // saturate to +-8191
     wire fin_out_sin_over = ~fin_out_sin_q[14] & fin_out_sin_q[13];
     wire fin_out_sin_under = fin_out_sin_q[14] & (~fin_out_sin_q[13] | (fin_out_sin_q[13:0] == 14'h2000));

@@ -13,7 +13,7 @@
 // Internal widths: x, y 25 bits (8 guard bits); z 26 bits (26 fraction bits of a turn).
 // Worst error against the ideal, bit-true model: 0.9985 LSB (RMS 0.3515 LSB),
 // measured over every one of the 65536 input codes.
-// Timing: latency 17 clocks from input handshake to output handshake, one
+// Timing: latency 18 clocks from input handshake to output handshake, one
 // sample every 1 clock(s) at full rate.
 // Handshake: a sample moves when valid and ready are both high at a rising clock edge.
 // rst is synchronous and active high; it clears the control state, not the data path.
@@ -31,7 +31,6 @@
 //   guard_bits = "auto"
 //   rounding = "half_even"
 //   tag_width = 4
-
 `resetall
 `timescale 1ns / 1ps
 `default_nettype none
@@ -52,24 +51,27 @@ module ddc_nco_sincos (
     output wire [3:0] out_tag
 );
 
-    localparam [25:0] Z_HALF = 26'h2000000;  // codes below this are angles >= 0
+    localparam XY_W = 25;  // x and y: data bits plus 8 guard bits
+    localparam Z_W = 26;  // z: 26 fraction bits
 
-    localparam [25:0] ATAN_0 = 26'h0800000;  // atan(2^-0) in turns
-    localparam [25:0] ATAN_1 = 26'h04b9014;  // atan(2^-1) in turns
-    localparam [25:0] ATAN_2 = 26'h027ece1;  // atan(2^-2) in turns
-    localparam [25:0] ATAN_3 = 26'h0144447;  // atan(2^-3) in turns
-    localparam [25:0] ATAN_4 = 26'h00a2c35;  // atan(2^-4) in turns
-    localparam [25:0] ATAN_5 = 26'h0051760;  // atan(2^-5) in turns
-    localparam [25:0] ATAN_6 = 26'h0028bd8;  // atan(2^-6) in turns
-    localparam [25:0] ATAN_7 = 26'h00145f1;  // atan(2^-7) in turns
-    localparam [25:0] ATAN_8 = 26'h000a2f9;  // atan(2^-8) in turns
-    localparam [25:0] ATAN_9 = 26'h000517d;  // atan(2^-9) in turns
-    localparam [25:0] ATAN_10 = 26'h00028be;  // atan(2^-10) in turns
-    localparam [25:0] ATAN_11 = 26'h000145f;  // atan(2^-11) in turns
-    localparam [25:0] ATAN_12 = 26'h0000a30;  // atan(2^-12) in turns
-    localparam [25:0] ATAN_13 = 26'h0000518;  // atan(2^-13) in turns
-    localparam [25:0] ATAN_14 = 26'h000028c;  // atan(2^-14) in turns
-    localparam [25:0] ATAN_15 = 26'h0000146;  // atan(2^-15) in turns
+    localparam [Z_W-1:0] Z_HALF = 26'h2000000;  // codes below this are angles >= 0
+
+    localparam [Z_W-1:0] ATAN_0 = 26'h0800000;  // atan(2^-0) in turns
+    localparam [Z_W-1:0] ATAN_1 = 26'h04b9014;  // atan(2^-1) in turns
+    localparam [Z_W-1:0] ATAN_2 = 26'h027ece1;  // atan(2^-2) in turns
+    localparam [Z_W-1:0] ATAN_3 = 26'h0144447;  // atan(2^-3) in turns
+    localparam [Z_W-1:0] ATAN_4 = 26'h00a2c35;  // atan(2^-4) in turns
+    localparam [Z_W-1:0] ATAN_5 = 26'h0051760;  // atan(2^-5) in turns
+    localparam [Z_W-1:0] ATAN_6 = 26'h0028bd8;  // atan(2^-6) in turns
+    localparam [Z_W-1:0] ATAN_7 = 26'h00145f1;  // atan(2^-7) in turns
+    localparam [Z_W-1:0] ATAN_8 = 26'h000a2f9;  // atan(2^-8) in turns
+    localparam [Z_W-1:0] ATAN_9 = 26'h000517d;  // atan(2^-9) in turns
+    localparam [Z_W-1:0] ATAN_10 = 26'h00028be;  // atan(2^-10) in turns
+    localparam [Z_W-1:0] ATAN_11 = 26'h000145f;  // atan(2^-11) in turns
+    localparam [Z_W-1:0] ATAN_12 = 26'h0000a30;  // atan(2^-12) in turns
+    localparam [Z_W-1:0] ATAN_13 = 26'h0000518;  // atan(2^-13) in turns
+    localparam [Z_W-1:0] ATAN_14 = 26'h000028c;  // atan(2^-14) in turns
+    localparam [Z_W-1:0] ATAN_15 = 26'h0000146;  // atan(2^-15) in turns
 
     // The pipeline advances while the output buffer can take a sample.
     wire advance;
@@ -82,22 +84,21 @@ module ddc_nco_sincos (
     // negated instead. What remains is within +-1/4 turn, inside the +-99.88 degree
     // convergence range.
     wire in_fold = in_angle[15] ^ in_angle[14];
-    wire [25:0] z_start = {in_angle[14], in_angle[14:0], 10'h000};
+    wire [Z_W-1:0] z_start = {in_angle[14], in_angle[14:0], 10'h000};
+    wire [XY_W-1:0] x_start = in_fold ? X_START_NEG : X_START_POS;
+    wire [XY_W-1:0] y_start = 25'h0000000;
 
-    wire [24:0] x_start = in_fold ? X_START_NEG : X_START_POS;
-    wire [24:0] y_start = 25'h0000000;
-
-    // ---- stage 0: iterations 0 to 0 ----
+    // ---- stage 0: iteration 0 ----
     // iteration 0: turn counter-clockwise when the remaining angle is >= 0
     wire dir_0 = (z_start < Z_HALF);
-    wire [24:0] s0_x = x_start + (dir_0 ? ~y_start : y_start) + {24'h000000, dir_0};
-    wire [24:0] s0_y = y_start + (dir_0 ? x_start : ~x_start) + {24'h000000, ~dir_0};
-    wire [25:0] s0_z = z_start + (dir_0 ? ~ATAN_0 : ATAN_0) + {25'h0000000, dir_0};
+    wire [XY_W-1:0] s0_x = x_start + (dir_0 ? ~y_start : y_start) + {24'h000000, dir_0};
+    wire [XY_W-1:0] s0_y = y_start + (dir_0 ? x_start : ~x_start) + {24'h000000, ~dir_0};
+    wire [Z_W-1:0] s0_z = z_start + (dir_0 ? ~ATAN_0 : ATAN_0) + {25'h0000000, dir_0};
 
     reg s0_valid_reg;
-    reg [24:0] s0_x_reg;
-    reg [24:0] s0_y_reg;
-    reg [25:0] s0_z_reg;
+    reg [XY_W-1:0] s0_x_reg;
+    reg [XY_W-1:0] s0_y_reg;
+    reg [Z_W-1:0] s0_z_reg;
     reg [3:0] s0_tag_reg;
 
     always @(posedge clk) begin
@@ -117,17 +118,19 @@ module ddc_nco_sincos (
         end
     end
 
-    // ---- stage 1: iterations 1 to 1 ----
+    // ---- stage 1: iteration 1 ----
     // iteration 1: turn counter-clockwise when the remaining angle is >= 0
     wire dir_1 = (s0_z_reg < Z_HALF);
-    wire [24:0] s1_x = s0_x_reg + (dir_1 ? ~{{1{s0_y_reg[24]}}, s0_y_reg[24:1]} : {{1{s0_y_reg[24]}}, s0_y_reg[24:1]}) + {24'h000000, dir_1};
-    wire [24:0] s1_y = s0_y_reg + (dir_1 ? {{1{s0_x_reg[24]}}, s0_x_reg[24:1]} : ~{{1{s0_x_reg[24]}}, s0_x_reg[24:1]}) + {24'h000000, ~dir_1};
-    wire [25:0] s1_z = s0_z_reg + (dir_1 ? ~ATAN_1 : ATAN_1) + {25'h0000000, dir_1};
+    wire [XY_W-1:0] xs_1 = {{1{s0_x_reg[24]}}, s0_x_reg[24:1]};  // x >>> 1
+    wire [XY_W-1:0] ys_1 = {{1{s0_y_reg[24]}}, s0_y_reg[24:1]};  // y >>> 1
+    wire [XY_W-1:0] s1_x = s0_x_reg + (dir_1 ? ~ys_1 : ys_1) + {24'h000000, dir_1};
+    wire [XY_W-1:0] s1_y = s0_y_reg + (dir_1 ? xs_1 : ~xs_1) + {24'h000000, ~dir_1};
+    wire [Z_W-1:0] s1_z = s0_z_reg + (dir_1 ? ~ATAN_1 : ATAN_1) + {25'h0000000, dir_1};
 
     reg s1_valid_reg;
-    reg [24:0] s1_x_reg;
-    reg [24:0] s1_y_reg;
-    reg [25:0] s1_z_reg;
+    reg [XY_W-1:0] s1_x_reg;
+    reg [XY_W-1:0] s1_y_reg;
+    reg [Z_W-1:0] s1_z_reg;
     reg [3:0] s1_tag_reg;
 
     always @(posedge clk) begin
@@ -147,17 +150,19 @@ module ddc_nco_sincos (
         end
     end
 
-    // ---- stage 2: iterations 2 to 2 ----
+    // ---- stage 2: iteration 2 ----
     // iteration 2: turn counter-clockwise when the remaining angle is >= 0
     wire dir_2 = (s1_z_reg < Z_HALF);
-    wire [24:0] s2_x = s1_x_reg + (dir_2 ? ~{{2{s1_y_reg[24]}}, s1_y_reg[24:2]} : {{2{s1_y_reg[24]}}, s1_y_reg[24:2]}) + {24'h000000, dir_2};
-    wire [24:0] s2_y = s1_y_reg + (dir_2 ? {{2{s1_x_reg[24]}}, s1_x_reg[24:2]} : ~{{2{s1_x_reg[24]}}, s1_x_reg[24:2]}) + {24'h000000, ~dir_2};
-    wire [25:0] s2_z = s1_z_reg + (dir_2 ? ~ATAN_2 : ATAN_2) + {25'h0000000, dir_2};
+    wire [XY_W-1:0] xs_2 = {{2{s1_x_reg[24]}}, s1_x_reg[24:2]};  // x >>> 2
+    wire [XY_W-1:0] ys_2 = {{2{s1_y_reg[24]}}, s1_y_reg[24:2]};  // y >>> 2
+    wire [XY_W-1:0] s2_x = s1_x_reg + (dir_2 ? ~ys_2 : ys_2) + {24'h000000, dir_2};
+    wire [XY_W-1:0] s2_y = s1_y_reg + (dir_2 ? xs_2 : ~xs_2) + {24'h000000, ~dir_2};
+    wire [Z_W-1:0] s2_z = s1_z_reg + (dir_2 ? ~ATAN_2 : ATAN_2) + {25'h0000000, dir_2};
 
     reg s2_valid_reg;
-    reg [24:0] s2_x_reg;
-    reg [24:0] s2_y_reg;
-    reg [25:0] s2_z_reg;
+    reg [XY_W-1:0] s2_x_reg;
+    reg [XY_W-1:0] s2_y_reg;
+    reg [Z_W-1:0] s2_z_reg;
     reg [3:0] s2_tag_reg;
 
     always @(posedge clk) begin
@@ -177,17 +182,19 @@ module ddc_nco_sincos (
         end
     end
 
-    // ---- stage 3: iterations 3 to 3 ----
+    // ---- stage 3: iteration 3 ----
     // iteration 3: turn counter-clockwise when the remaining angle is >= 0
     wire dir_3 = (s2_z_reg < Z_HALF);
-    wire [24:0] s3_x = s2_x_reg + (dir_3 ? ~{{3{s2_y_reg[24]}}, s2_y_reg[24:3]} : {{3{s2_y_reg[24]}}, s2_y_reg[24:3]}) + {24'h000000, dir_3};
-    wire [24:0] s3_y = s2_y_reg + (dir_3 ? {{3{s2_x_reg[24]}}, s2_x_reg[24:3]} : ~{{3{s2_x_reg[24]}}, s2_x_reg[24:3]}) + {24'h000000, ~dir_3};
-    wire [25:0] s3_z = s2_z_reg + (dir_3 ? ~ATAN_3 : ATAN_3) + {25'h0000000, dir_3};
+    wire [XY_W-1:0] xs_3 = {{3{s2_x_reg[24]}}, s2_x_reg[24:3]};  // x >>> 3
+    wire [XY_W-1:0] ys_3 = {{3{s2_y_reg[24]}}, s2_y_reg[24:3]};  // y >>> 3
+    wire [XY_W-1:0] s3_x = s2_x_reg + (dir_3 ? ~ys_3 : ys_3) + {24'h000000, dir_3};
+    wire [XY_W-1:0] s3_y = s2_y_reg + (dir_3 ? xs_3 : ~xs_3) + {24'h000000, ~dir_3};
+    wire [Z_W-1:0] s3_z = s2_z_reg + (dir_3 ? ~ATAN_3 : ATAN_3) + {25'h0000000, dir_3};
 
     reg s3_valid_reg;
-    reg [24:0] s3_x_reg;
-    reg [24:0] s3_y_reg;
-    reg [25:0] s3_z_reg;
+    reg [XY_W-1:0] s3_x_reg;
+    reg [XY_W-1:0] s3_y_reg;
+    reg [Z_W-1:0] s3_z_reg;
     reg [3:0] s3_tag_reg;
 
     always @(posedge clk) begin
@@ -207,17 +214,19 @@ module ddc_nco_sincos (
         end
     end
 
-    // ---- stage 4: iterations 4 to 4 ----
+    // ---- stage 4: iteration 4 ----
     // iteration 4: turn counter-clockwise when the remaining angle is >= 0
     wire dir_4 = (s3_z_reg < Z_HALF);
-    wire [24:0] s4_x = s3_x_reg + (dir_4 ? ~{{4{s3_y_reg[24]}}, s3_y_reg[24:4]} : {{4{s3_y_reg[24]}}, s3_y_reg[24:4]}) + {24'h000000, dir_4};
-    wire [24:0] s4_y = s3_y_reg + (dir_4 ? {{4{s3_x_reg[24]}}, s3_x_reg[24:4]} : ~{{4{s3_x_reg[24]}}, s3_x_reg[24:4]}) + {24'h000000, ~dir_4};
-    wire [25:0] s4_z = s3_z_reg + (dir_4 ? ~ATAN_4 : ATAN_4) + {25'h0000000, dir_4};
+    wire [XY_W-1:0] xs_4 = {{4{s3_x_reg[24]}}, s3_x_reg[24:4]};  // x >>> 4
+    wire [XY_W-1:0] ys_4 = {{4{s3_y_reg[24]}}, s3_y_reg[24:4]};  // y >>> 4
+    wire [XY_W-1:0] s4_x = s3_x_reg + (dir_4 ? ~ys_4 : ys_4) + {24'h000000, dir_4};
+    wire [XY_W-1:0] s4_y = s3_y_reg + (dir_4 ? xs_4 : ~xs_4) + {24'h000000, ~dir_4};
+    wire [Z_W-1:0] s4_z = s3_z_reg + (dir_4 ? ~ATAN_4 : ATAN_4) + {25'h0000000, dir_4};
 
     reg s4_valid_reg;
-    reg [24:0] s4_x_reg;
-    reg [24:0] s4_y_reg;
-    reg [25:0] s4_z_reg;
+    reg [XY_W-1:0] s4_x_reg;
+    reg [XY_W-1:0] s4_y_reg;
+    reg [Z_W-1:0] s4_z_reg;
     reg [3:0] s4_tag_reg;
 
     always @(posedge clk) begin
@@ -237,17 +246,19 @@ module ddc_nco_sincos (
         end
     end
 
-    // ---- stage 5: iterations 5 to 5 ----
+    // ---- stage 5: iteration 5 ----
     // iteration 5: turn counter-clockwise when the remaining angle is >= 0
     wire dir_5 = (s4_z_reg < Z_HALF);
-    wire [24:0] s5_x = s4_x_reg + (dir_5 ? ~{{5{s4_y_reg[24]}}, s4_y_reg[24:5]} : {{5{s4_y_reg[24]}}, s4_y_reg[24:5]}) + {24'h000000, dir_5};
-    wire [24:0] s5_y = s4_y_reg + (dir_5 ? {{5{s4_x_reg[24]}}, s4_x_reg[24:5]} : ~{{5{s4_x_reg[24]}}, s4_x_reg[24:5]}) + {24'h000000, ~dir_5};
-    wire [25:0] s5_z = s4_z_reg + (dir_5 ? ~ATAN_5 : ATAN_5) + {25'h0000000, dir_5};
+    wire [XY_W-1:0] xs_5 = {{5{s4_x_reg[24]}}, s4_x_reg[24:5]};  // x >>> 5
+    wire [XY_W-1:0] ys_5 = {{5{s4_y_reg[24]}}, s4_y_reg[24:5]};  // y >>> 5
+    wire [XY_W-1:0] s5_x = s4_x_reg + (dir_5 ? ~ys_5 : ys_5) + {24'h000000, dir_5};
+    wire [XY_W-1:0] s5_y = s4_y_reg + (dir_5 ? xs_5 : ~xs_5) + {24'h000000, ~dir_5};
+    wire [Z_W-1:0] s5_z = s4_z_reg + (dir_5 ? ~ATAN_5 : ATAN_5) + {25'h0000000, dir_5};
 
     reg s5_valid_reg;
-    reg [24:0] s5_x_reg;
-    reg [24:0] s5_y_reg;
-    reg [25:0] s5_z_reg;
+    reg [XY_W-1:0] s5_x_reg;
+    reg [XY_W-1:0] s5_y_reg;
+    reg [Z_W-1:0] s5_z_reg;
     reg [3:0] s5_tag_reg;
 
     always @(posedge clk) begin
@@ -267,17 +278,19 @@ module ddc_nco_sincos (
         end
     end
 
-    // ---- stage 6: iterations 6 to 6 ----
+    // ---- stage 6: iteration 6 ----
     // iteration 6: turn counter-clockwise when the remaining angle is >= 0
     wire dir_6 = (s5_z_reg < Z_HALF);
-    wire [24:0] s6_x = s5_x_reg + (dir_6 ? ~{{6{s5_y_reg[24]}}, s5_y_reg[24:6]} : {{6{s5_y_reg[24]}}, s5_y_reg[24:6]}) + {24'h000000, dir_6};
-    wire [24:0] s6_y = s5_y_reg + (dir_6 ? {{6{s5_x_reg[24]}}, s5_x_reg[24:6]} : ~{{6{s5_x_reg[24]}}, s5_x_reg[24:6]}) + {24'h000000, ~dir_6};
-    wire [25:0] s6_z = s5_z_reg + (dir_6 ? ~ATAN_6 : ATAN_6) + {25'h0000000, dir_6};
+    wire [XY_W-1:0] xs_6 = {{6{s5_x_reg[24]}}, s5_x_reg[24:6]};  // x >>> 6
+    wire [XY_W-1:0] ys_6 = {{6{s5_y_reg[24]}}, s5_y_reg[24:6]};  // y >>> 6
+    wire [XY_W-1:0] s6_x = s5_x_reg + (dir_6 ? ~ys_6 : ys_6) + {24'h000000, dir_6};
+    wire [XY_W-1:0] s6_y = s5_y_reg + (dir_6 ? xs_6 : ~xs_6) + {24'h000000, ~dir_6};
+    wire [Z_W-1:0] s6_z = s5_z_reg + (dir_6 ? ~ATAN_6 : ATAN_6) + {25'h0000000, dir_6};
 
     reg s6_valid_reg;
-    reg [24:0] s6_x_reg;
-    reg [24:0] s6_y_reg;
-    reg [25:0] s6_z_reg;
+    reg [XY_W-1:0] s6_x_reg;
+    reg [XY_W-1:0] s6_y_reg;
+    reg [Z_W-1:0] s6_z_reg;
     reg [3:0] s6_tag_reg;
 
     always @(posedge clk) begin
@@ -297,17 +310,19 @@ module ddc_nco_sincos (
         end
     end
 
-    // ---- stage 7: iterations 7 to 7 ----
+    // ---- stage 7: iteration 7 ----
     // iteration 7: turn counter-clockwise when the remaining angle is >= 0
     wire dir_7 = (s6_z_reg < Z_HALF);
-    wire [24:0] s7_x = s6_x_reg + (dir_7 ? ~{{7{s6_y_reg[24]}}, s6_y_reg[24:7]} : {{7{s6_y_reg[24]}}, s6_y_reg[24:7]}) + {24'h000000, dir_7};
-    wire [24:0] s7_y = s6_y_reg + (dir_7 ? {{7{s6_x_reg[24]}}, s6_x_reg[24:7]} : ~{{7{s6_x_reg[24]}}, s6_x_reg[24:7]}) + {24'h000000, ~dir_7};
-    wire [25:0] s7_z = s6_z_reg + (dir_7 ? ~ATAN_7 : ATAN_7) + {25'h0000000, dir_7};
+    wire [XY_W-1:0] xs_7 = {{7{s6_x_reg[24]}}, s6_x_reg[24:7]};  // x >>> 7
+    wire [XY_W-1:0] ys_7 = {{7{s6_y_reg[24]}}, s6_y_reg[24:7]};  // y >>> 7
+    wire [XY_W-1:0] s7_x = s6_x_reg + (dir_7 ? ~ys_7 : ys_7) + {24'h000000, dir_7};
+    wire [XY_W-1:0] s7_y = s6_y_reg + (dir_7 ? xs_7 : ~xs_7) + {24'h000000, ~dir_7};
+    wire [Z_W-1:0] s7_z = s6_z_reg + (dir_7 ? ~ATAN_7 : ATAN_7) + {25'h0000000, dir_7};
 
     reg s7_valid_reg;
-    reg [24:0] s7_x_reg;
-    reg [24:0] s7_y_reg;
-    reg [25:0] s7_z_reg;
+    reg [XY_W-1:0] s7_x_reg;
+    reg [XY_W-1:0] s7_y_reg;
+    reg [Z_W-1:0] s7_z_reg;
     reg [3:0] s7_tag_reg;
 
     always @(posedge clk) begin
@@ -327,17 +342,19 @@ module ddc_nco_sincos (
         end
     end
 
-    // ---- stage 8: iterations 8 to 8 ----
+    // ---- stage 8: iteration 8 ----
     // iteration 8: turn counter-clockwise when the remaining angle is >= 0
     wire dir_8 = (s7_z_reg < Z_HALF);
-    wire [24:0] s8_x = s7_x_reg + (dir_8 ? ~{{8{s7_y_reg[24]}}, s7_y_reg[24:8]} : {{8{s7_y_reg[24]}}, s7_y_reg[24:8]}) + {24'h000000, dir_8};
-    wire [24:0] s8_y = s7_y_reg + (dir_8 ? {{8{s7_x_reg[24]}}, s7_x_reg[24:8]} : ~{{8{s7_x_reg[24]}}, s7_x_reg[24:8]}) + {24'h000000, ~dir_8};
-    wire [25:0] s8_z = s7_z_reg + (dir_8 ? ~ATAN_8 : ATAN_8) + {25'h0000000, dir_8};
+    wire [XY_W-1:0] xs_8 = {{8{s7_x_reg[24]}}, s7_x_reg[24:8]};  // x >>> 8
+    wire [XY_W-1:0] ys_8 = {{8{s7_y_reg[24]}}, s7_y_reg[24:8]};  // y >>> 8
+    wire [XY_W-1:0] s8_x = s7_x_reg + (dir_8 ? ~ys_8 : ys_8) + {24'h000000, dir_8};
+    wire [XY_W-1:0] s8_y = s7_y_reg + (dir_8 ? xs_8 : ~xs_8) + {24'h000000, ~dir_8};
+    wire [Z_W-1:0] s8_z = s7_z_reg + (dir_8 ? ~ATAN_8 : ATAN_8) + {25'h0000000, dir_8};
 
     reg s8_valid_reg;
-    reg [24:0] s8_x_reg;
-    reg [24:0] s8_y_reg;
-    reg [25:0] s8_z_reg;
+    reg [XY_W-1:0] s8_x_reg;
+    reg [XY_W-1:0] s8_y_reg;
+    reg [Z_W-1:0] s8_z_reg;
     reg [3:0] s8_tag_reg;
 
     always @(posedge clk) begin
@@ -357,17 +374,19 @@ module ddc_nco_sincos (
         end
     end
 
-    // ---- stage 9: iterations 9 to 9 ----
+    // ---- stage 9: iteration 9 ----
     // iteration 9: turn counter-clockwise when the remaining angle is >= 0
     wire dir_9 = (s8_z_reg < Z_HALF);
-    wire [24:0] s9_x = s8_x_reg + (dir_9 ? ~{{9{s8_y_reg[24]}}, s8_y_reg[24:9]} : {{9{s8_y_reg[24]}}, s8_y_reg[24:9]}) + {24'h000000, dir_9};
-    wire [24:0] s9_y = s8_y_reg + (dir_9 ? {{9{s8_x_reg[24]}}, s8_x_reg[24:9]} : ~{{9{s8_x_reg[24]}}, s8_x_reg[24:9]}) + {24'h000000, ~dir_9};
-    wire [25:0] s9_z = s8_z_reg + (dir_9 ? ~ATAN_9 : ATAN_9) + {25'h0000000, dir_9};
+    wire [XY_W-1:0] xs_9 = {{9{s8_x_reg[24]}}, s8_x_reg[24:9]};  // x >>> 9
+    wire [XY_W-1:0] ys_9 = {{9{s8_y_reg[24]}}, s8_y_reg[24:9]};  // y >>> 9
+    wire [XY_W-1:0] s9_x = s8_x_reg + (dir_9 ? ~ys_9 : ys_9) + {24'h000000, dir_9};
+    wire [XY_W-1:0] s9_y = s8_y_reg + (dir_9 ? xs_9 : ~xs_9) + {24'h000000, ~dir_9};
+    wire [Z_W-1:0] s9_z = s8_z_reg + (dir_9 ? ~ATAN_9 : ATAN_9) + {25'h0000000, dir_9};
 
     reg s9_valid_reg;
-    reg [24:0] s9_x_reg;
-    reg [24:0] s9_y_reg;
-    reg [25:0] s9_z_reg;
+    reg [XY_W-1:0] s9_x_reg;
+    reg [XY_W-1:0] s9_y_reg;
+    reg [Z_W-1:0] s9_z_reg;
     reg [3:0] s9_tag_reg;
 
     always @(posedge clk) begin
@@ -387,17 +406,19 @@ module ddc_nco_sincos (
         end
     end
 
-    // ---- stage 10: iterations 10 to 10 ----
+    // ---- stage 10: iteration 10 ----
     // iteration 10: turn counter-clockwise when the remaining angle is >= 0
     wire dir_10 = (s9_z_reg < Z_HALF);
-    wire [24:0] s10_x = s9_x_reg + (dir_10 ? ~{{10{s9_y_reg[24]}}, s9_y_reg[24:10]} : {{10{s9_y_reg[24]}}, s9_y_reg[24:10]}) + {24'h000000, dir_10};
-    wire [24:0] s10_y = s9_y_reg + (dir_10 ? {{10{s9_x_reg[24]}}, s9_x_reg[24:10]} : ~{{10{s9_x_reg[24]}}, s9_x_reg[24:10]}) + {24'h000000, ~dir_10};
-    wire [25:0] s10_z = s9_z_reg + (dir_10 ? ~ATAN_10 : ATAN_10) + {25'h0000000, dir_10};
+    wire [XY_W-1:0] xs_10 = {{10{s9_x_reg[24]}}, s9_x_reg[24:10]};  // x >>> 10
+    wire [XY_W-1:0] ys_10 = {{10{s9_y_reg[24]}}, s9_y_reg[24:10]};  // y >>> 10
+    wire [XY_W-1:0] s10_x = s9_x_reg + (dir_10 ? ~ys_10 : ys_10) + {24'h000000, dir_10};
+    wire [XY_W-1:0] s10_y = s9_y_reg + (dir_10 ? xs_10 : ~xs_10) + {24'h000000, ~dir_10};
+    wire [Z_W-1:0] s10_z = s9_z_reg + (dir_10 ? ~ATAN_10 : ATAN_10) + {25'h0000000, dir_10};
 
     reg s10_valid_reg;
-    reg [24:0] s10_x_reg;
-    reg [24:0] s10_y_reg;
-    reg [25:0] s10_z_reg;
+    reg [XY_W-1:0] s10_x_reg;
+    reg [XY_W-1:0] s10_y_reg;
+    reg [Z_W-1:0] s10_z_reg;
     reg [3:0] s10_tag_reg;
 
     always @(posedge clk) begin
@@ -417,17 +438,19 @@ module ddc_nco_sincos (
         end
     end
 
-    // ---- stage 11: iterations 11 to 11 ----
+    // ---- stage 11: iteration 11 ----
     // iteration 11: turn counter-clockwise when the remaining angle is >= 0
     wire dir_11 = (s10_z_reg < Z_HALF);
-    wire [24:0] s11_x = s10_x_reg + (dir_11 ? ~{{11{s10_y_reg[24]}}, s10_y_reg[24:11]} : {{11{s10_y_reg[24]}}, s10_y_reg[24:11]}) + {24'h000000, dir_11};
-    wire [24:0] s11_y = s10_y_reg + (dir_11 ? {{11{s10_x_reg[24]}}, s10_x_reg[24:11]} : ~{{11{s10_x_reg[24]}}, s10_x_reg[24:11]}) + {24'h000000, ~dir_11};
-    wire [25:0] s11_z = s10_z_reg + (dir_11 ? ~ATAN_11 : ATAN_11) + {25'h0000000, dir_11};
+    wire [XY_W-1:0] xs_11 = {{11{s10_x_reg[24]}}, s10_x_reg[24:11]};  // x >>> 11
+    wire [XY_W-1:0] ys_11 = {{11{s10_y_reg[24]}}, s10_y_reg[24:11]};  // y >>> 11
+    wire [XY_W-1:0] s11_x = s10_x_reg + (dir_11 ? ~ys_11 : ys_11) + {24'h000000, dir_11};
+    wire [XY_W-1:0] s11_y = s10_y_reg + (dir_11 ? xs_11 : ~xs_11) + {24'h000000, ~dir_11};
+    wire [Z_W-1:0] s11_z = s10_z_reg + (dir_11 ? ~ATAN_11 : ATAN_11) + {25'h0000000, dir_11};
 
     reg s11_valid_reg;
-    reg [24:0] s11_x_reg;
-    reg [24:0] s11_y_reg;
-    reg [25:0] s11_z_reg;
+    reg [XY_W-1:0] s11_x_reg;
+    reg [XY_W-1:0] s11_y_reg;
+    reg [Z_W-1:0] s11_z_reg;
     reg [3:0] s11_tag_reg;
 
     always @(posedge clk) begin
@@ -447,17 +470,19 @@ module ddc_nco_sincos (
         end
     end
 
-    // ---- stage 12: iterations 12 to 12 ----
+    // ---- stage 12: iteration 12 ----
     // iteration 12: turn counter-clockwise when the remaining angle is >= 0
     wire dir_12 = (s11_z_reg < Z_HALF);
-    wire [24:0] s12_x = s11_x_reg + (dir_12 ? ~{{12{s11_y_reg[24]}}, s11_y_reg[24:12]} : {{12{s11_y_reg[24]}}, s11_y_reg[24:12]}) + {24'h000000, dir_12};
-    wire [24:0] s12_y = s11_y_reg + (dir_12 ? {{12{s11_x_reg[24]}}, s11_x_reg[24:12]} : ~{{12{s11_x_reg[24]}}, s11_x_reg[24:12]}) + {24'h000000, ~dir_12};
-    wire [25:0] s12_z = s11_z_reg + (dir_12 ? ~ATAN_12 : ATAN_12) + {25'h0000000, dir_12};
+    wire [XY_W-1:0] xs_12 = {{12{s11_x_reg[24]}}, s11_x_reg[24:12]};  // x >>> 12
+    wire [XY_W-1:0] ys_12 = {{12{s11_y_reg[24]}}, s11_y_reg[24:12]};  // y >>> 12
+    wire [XY_W-1:0] s12_x = s11_x_reg + (dir_12 ? ~ys_12 : ys_12) + {24'h000000, dir_12};
+    wire [XY_W-1:0] s12_y = s11_y_reg + (dir_12 ? xs_12 : ~xs_12) + {24'h000000, ~dir_12};
+    wire [Z_W-1:0] s12_z = s11_z_reg + (dir_12 ? ~ATAN_12 : ATAN_12) + {25'h0000000, dir_12};
 
     reg s12_valid_reg;
-    reg [24:0] s12_x_reg;
-    reg [24:0] s12_y_reg;
-    reg [25:0] s12_z_reg;
+    reg [XY_W-1:0] s12_x_reg;
+    reg [XY_W-1:0] s12_y_reg;
+    reg [Z_W-1:0] s12_z_reg;
     reg [3:0] s12_tag_reg;
 
     always @(posedge clk) begin
@@ -477,17 +502,19 @@ module ddc_nco_sincos (
         end
     end
 
-    // ---- stage 13: iterations 13 to 13 ----
+    // ---- stage 13: iteration 13 ----
     // iteration 13: turn counter-clockwise when the remaining angle is >= 0
     wire dir_13 = (s12_z_reg < Z_HALF);
-    wire [24:0] s13_x = s12_x_reg + (dir_13 ? ~{{13{s12_y_reg[24]}}, s12_y_reg[24:13]} : {{13{s12_y_reg[24]}}, s12_y_reg[24:13]}) + {24'h000000, dir_13};
-    wire [24:0] s13_y = s12_y_reg + (dir_13 ? {{13{s12_x_reg[24]}}, s12_x_reg[24:13]} : ~{{13{s12_x_reg[24]}}, s12_x_reg[24:13]}) + {24'h000000, ~dir_13};
-    wire [25:0] s13_z = s12_z_reg + (dir_13 ? ~ATAN_13 : ATAN_13) + {25'h0000000, dir_13};
+    wire [XY_W-1:0] xs_13 = {{13{s12_x_reg[24]}}, s12_x_reg[24:13]};  // x >>> 13
+    wire [XY_W-1:0] ys_13 = {{13{s12_y_reg[24]}}, s12_y_reg[24:13]};  // y >>> 13
+    wire [XY_W-1:0] s13_x = s12_x_reg + (dir_13 ? ~ys_13 : ys_13) + {24'h000000, dir_13};
+    wire [XY_W-1:0] s13_y = s12_y_reg + (dir_13 ? xs_13 : ~xs_13) + {24'h000000, ~dir_13};
+    wire [Z_W-1:0] s13_z = s12_z_reg + (dir_13 ? ~ATAN_13 : ATAN_13) + {25'h0000000, dir_13};
 
     reg s13_valid_reg;
-    reg [24:0] s13_x_reg;
-    reg [24:0] s13_y_reg;
-    reg [25:0] s13_z_reg;
+    reg [XY_W-1:0] s13_x_reg;
+    reg [XY_W-1:0] s13_y_reg;
+    reg [Z_W-1:0] s13_z_reg;
     reg [3:0] s13_tag_reg;
 
     always @(posedge clk) begin
@@ -507,17 +534,19 @@ module ddc_nco_sincos (
         end
     end
 
-    // ---- stage 14: iterations 14 to 14 ----
+    // ---- stage 14: iteration 14 ----
     // iteration 14: turn counter-clockwise when the remaining angle is >= 0
     wire dir_14 = (s13_z_reg < Z_HALF);
-    wire [24:0] s14_x = s13_x_reg + (dir_14 ? ~{{14{s13_y_reg[24]}}, s13_y_reg[24:14]} : {{14{s13_y_reg[24]}}, s13_y_reg[24:14]}) + {24'h000000, dir_14};
-    wire [24:0] s14_y = s13_y_reg + (dir_14 ? {{14{s13_x_reg[24]}}, s13_x_reg[24:14]} : ~{{14{s13_x_reg[24]}}, s13_x_reg[24:14]}) + {24'h000000, ~dir_14};
-    wire [25:0] s14_z = s13_z_reg + (dir_14 ? ~ATAN_14 : ATAN_14) + {25'h0000000, dir_14};
+    wire [XY_W-1:0] xs_14 = {{14{s13_x_reg[24]}}, s13_x_reg[24:14]};  // x >>> 14
+    wire [XY_W-1:0] ys_14 = {{14{s13_y_reg[24]}}, s13_y_reg[24:14]};  // y >>> 14
+    wire [XY_W-1:0] s14_x = s13_x_reg + (dir_14 ? ~ys_14 : ys_14) + {24'h000000, dir_14};
+    wire [XY_W-1:0] s14_y = s13_y_reg + (dir_14 ? xs_14 : ~xs_14) + {24'h000000, ~dir_14};
+    wire [Z_W-1:0] s14_z = s13_z_reg + (dir_14 ? ~ATAN_14 : ATAN_14) + {25'h0000000, dir_14};
 
     reg s14_valid_reg;
-    reg [24:0] s14_x_reg;
-    reg [24:0] s14_y_reg;
-    reg [25:0] s14_z_reg;
+    reg [XY_W-1:0] s14_x_reg;
+    reg [XY_W-1:0] s14_y_reg;
+    reg [Z_W-1:0] s14_z_reg;
     reg [3:0] s14_tag_reg;
 
     always @(posedge clk) begin
@@ -537,17 +566,19 @@ module ddc_nco_sincos (
         end
     end
 
-    // ---- stage 15: iterations 15 to 15 ----
+    // ---- stage 15: iteration 15 ----
     // iteration 15: turn counter-clockwise when the remaining angle is >= 0
     wire dir_15 = (s14_z_reg < Z_HALF);
-    wire [24:0] s15_x = s14_x_reg + (dir_15 ? ~{{15{s14_y_reg[24]}}, s14_y_reg[24:15]} : {{15{s14_y_reg[24]}}, s14_y_reg[24:15]}) + {24'h000000, dir_15};
-    wire [24:0] s15_y = s14_y_reg + (dir_15 ? {{15{s14_x_reg[24]}}, s14_x_reg[24:15]} : ~{{15{s14_x_reg[24]}}, s14_x_reg[24:15]}) + {24'h000000, ~dir_15};
-    wire [25:0] s15_z = s14_z_reg + (dir_15 ? ~ATAN_15 : ATAN_15) + {25'h0000000, dir_15};
+    wire [XY_W-1:0] xs_15 = {{15{s14_x_reg[24]}}, s14_x_reg[24:15]};  // x >>> 15
+    wire [XY_W-1:0] ys_15 = {{15{s14_y_reg[24]}}, s14_y_reg[24:15]};  // y >>> 15
+    wire [XY_W-1:0] s15_x = s14_x_reg + (dir_15 ? ~ys_15 : ys_15) + {24'h000000, dir_15};
+    wire [XY_W-1:0] s15_y = s14_y_reg + (dir_15 ? xs_15 : ~xs_15) + {24'h000000, ~dir_15};
+    wire [Z_W-1:0] s15_z = s14_z_reg + (dir_15 ? ~ATAN_15 : ATAN_15) + {25'h0000000, dir_15};
 
     reg s15_valid_reg;
-    reg [24:0] s15_x_reg;
-    reg [24:0] s15_y_reg;
-    reg [25:0] s15_z_reg;
+    reg [XY_W-1:0] s15_x_reg;
+    reg [XY_W-1:0] s15_y_reg;
+    reg [Z_W-1:0] s15_z_reg;
     reg [3:0] s15_tag_reg;
 
     always @(posedge clk) begin
@@ -567,35 +598,54 @@ module ddc_nco_sincos (
         end
     end
 
-    // ---- stage 16: iterations 16 to 16 ----
+    // ---- stage 16: iteration 16 ----
     // iteration 16: turn counter-clockwise when the remaining angle is >= 0
     wire dir_16 = (s15_z_reg < Z_HALF);
-    wire [24:0] s16_x = s15_x_reg + (dir_16 ? ~{{16{s15_y_reg[24]}}, s15_y_reg[24:16]} : {{16{s15_y_reg[24]}}, s15_y_reg[24:16]}) + {24'h000000, dir_16};
-    wire [24:0] s16_y = s15_y_reg + (dir_16 ? {{16{s15_x_reg[24]}}, s15_x_reg[24:16]} : ~{{16{s15_x_reg[24]}}, s15_x_reg[24:16]}) + {24'h000000, ~dir_16};
+    wire [XY_W-1:0] xs_16 = {{16{s15_x_reg[24]}}, s15_x_reg[24:16]};  // x >>> 16
+    wire [XY_W-1:0] ys_16 = {{16{s15_y_reg[24]}}, s15_y_reg[24:16]};  // y >>> 16
+    wire [XY_W-1:0] s16_x = s15_x_reg + (dir_16 ? ~ys_16 : ys_16) + {24'h000000, dir_16};
+    wire [XY_W-1:0] s16_y = s15_y_reg + (dir_16 ? xs_16 : ~xs_16) + {24'h000000, ~dir_16};
+
+    // ---- output register: the last iteration's values, held so that rounding and
+    // saturation have a clock of their own ----
+    reg o_valid_reg;
+    reg [XY_W-1:0] o_x_reg;
+    reg [XY_W-1:0] o_y_reg;
+    reg [3:0] o_tag_reg;
+
+    always @(posedge clk) begin
+        if (rst) begin
+            o_valid_reg <= 1'b0;
+        end else if (advance) begin
+            o_valid_reg <= s15_valid_reg;
+        end
+    end
+
+    always @(posedge clk) begin
+        if (advance) begin
+            o_x_reg <= s16_x;
+            o_y_reg <= s16_y;
+            o_tag_reg <= s15_tag_reg;
+        end
+    end
 
     // ---- output: rounding, saturation, buffer ----
     // fin_out_cos: drop 8 bit(s), half_even
-    wire fin_out_cos_inc = (s16_x[7:0] > 8'h80)
-        | ((s16_x[7:0] == 8'h80) & s16_x[8]);
-    wire [16:0] fin_out_cos_q = s16_x[24:8] + {16'h0000, fin_out_cos_inc};
-
+    wire fin_out_cos_inc = (o_x_reg[7:0] > 8'h80) | ((o_x_reg[7:0] == 8'h80) & o_x_reg[8]);
+    wire [16:0] fin_out_cos_q = o_x_reg[24:8] + {16'h0000, fin_out_cos_inc};
     // saturate to +-32767
     wire fin_out_cos_over = ~fin_out_cos_q[16] & fin_out_cos_q[15];
     wire fin_out_cos_under = fin_out_cos_q[16] & (~fin_out_cos_q[15] | (fin_out_cos_q[15:0] == 16'h8000));
     wire [15:0] fin_out_cos = fin_out_cos_over ? 16'h7fff : fin_out_cos_under ? 16'h8001 : fin_out_cos_q[15:0];
-
     // fin_out_sin: drop 8 bit(s), half_even
-    wire fin_out_sin_inc = (s16_y[7:0] > 8'h80)
-        | ((s16_y[7:0] == 8'h80) & s16_y[8]);
-    wire [16:0] fin_out_sin_q = s16_y[24:8] + {16'h0000, fin_out_sin_inc};
-
+    wire fin_out_sin_inc = (o_y_reg[7:0] > 8'h80) | ((o_y_reg[7:0] == 8'h80) & o_y_reg[8]);
+    wire [16:0] fin_out_sin_q = o_y_reg[24:8] + {16'h0000, fin_out_sin_inc};
     // saturate to +-32767
     wire fin_out_sin_over = ~fin_out_sin_q[16] & fin_out_sin_q[15];
     wire fin_out_sin_under = fin_out_sin_q[16] & (~fin_out_sin_q[15] | (fin_out_sin_q[15:0] == 16'h8000));
     wire [15:0] fin_out_sin = fin_out_sin_over ? 16'h7fff : fin_out_sin_under ? 16'h8001 : fin_out_sin_q[15:0];
-
-    wire fin_valid = s15_valid_reg;
-    wire [3:0] fin_tag = s15_tag_reg;
+    wire fin_valid = o_valid_reg;
+    wire [3:0] fin_tag = o_tag_reg;
 
     // Output buffer with two entries. out_ready reaches only this buffer and ready_reg; the
     // core advances while ready_reg is high. When the consumer stalls, the sample already on
@@ -659,7 +709,6 @@ module ddc_nco_sincos (
     assign out_cos = out_cos_reg;
     assign out_sin = out_sin_reg;
     assign out_tag = out_tag_reg;
-
     assign advance = ready_reg;
 
 endmodule

@@ -1,0 +1,70 @@
+"""A core as the user asked for it: the frozen record the config is read into.
+
+It sits below everything (the function modules size and describe a core from it); reading and
+checking a config file is benchgen.config's job.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+__all__ = ["DEFAULT_HDL", "DEFAULT_VLNV_LIBRARY", "DEFAULT_VLNV_VENDOR", "HDLS", "CoreSpec"]
+
+DEFAULT_VLNV_VENDOR = "benchgen"
+"""Vendor part of a core's FuseSoC name, unless the config sets ``vlnv_vendor``."""
+DEFAULT_VLNV_LIBRARY = "cores"
+"""Library part of a core's FuseSoC name, unless the config sets ``vlnv_library``."""
+HDLS = ("verilog", "vhdl")
+"""The languages a core is written in: Verilog-2005 (``rtl/NAME.v``), VHDL-2008 (``rtl/NAME.vhd``)."""
+DEFAULT_HDL = ("verilog",)
+"""The languages of a core whose config sets no ``hdl``."""
+
+
+@dataclass(frozen=True, kw_only=True)
+class CoreSpec:
+    """One core, as the user asked for it (``None`` means ``auto`` or "not applicable").
+
+    Attributes:
+        name: Verilog module name.
+        function: Which function the core computes (a name in the registry,
+            benchgen.functions).
+        architecture: ``pipelined`` or ``iterative``.
+        pipeline_depth: Register stages of a pipelined core; ``None`` means one per iteration.
+        iterations_per_cycle: Iterations an iterative core performs per clock.
+        angle_width: Bits of the binary angle input (2**angle_width codes per turn).
+        data_width: Bits of each signed output.
+        iterations: Rotation iterations, or ``None`` for auto sizing.
+        guard_bits: Extra fraction bits inside the data path, or ``None`` for auto sizing.
+        rounding: How the guard bits are dropped at the output.
+        tag_width: Width of the user tag carried with each sample; 0 means no tag ports.
+        max_error_lsb: Worst error the core may have against the ideal, in output LSBs.
+        gain: ``compensated`` (the core removes the rotation gain) or ``raw`` (left in, stated
+            in the manifest).
+        angle_unit: ``turns`` (binary angle) or ``radians`` (signed fixed point, 3 integer bits).
+        prenormalise: Where the function offers it (its module lists ``prenormalise`` in its
+            options): shift the inputs left by their common redundant sign bits before the
+            iterations (``False`` keeps the smaller core without the normaliser).
+        vlnv_vendor: Vendor part of the core's FuseSoC name ``vendor:library:name:version``.
+        vlnv_library: Library part of that name.
+        hdl: The languages the core is written in, in the order of :data:`HDLS` (``verilog``,
+            ``vhdl`` or both).
+    """
+
+    name: str
+    function: str
+    architecture: str = "pipelined"
+    pipeline_depth: int | None = None
+    iterations_per_cycle: int | None = None
+    angle_width: int = 16
+    data_width: int = 16
+    iterations: int | None = None
+    guard_bits: int | None = None
+    rounding: str = "half_even"
+    tag_width: int = 0
+    max_error_lsb: float = 1.0
+    gain: str = "compensated"
+    angle_unit: str = "turns"
+    prenormalise: bool = True
+    vlnv_vendor: str = DEFAULT_VLNV_VENDOR
+    vlnv_library: str = DEFAULT_VLNV_LIBRARY
+    hdl: tuple[str, ...] = DEFAULT_HDL

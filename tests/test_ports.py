@@ -1,0 +1,38 @@
+"""One description of a core's ports (functions.core_ports, Design.ports): the hardware declares
+exactly those ports, and the manifest is written from them."""
+
+from __future__ import annotations
+
+import pytest
+
+from benchgen.config import parse_config
+from benchgen.design import build_design
+from benchgen.functions import FUNCTIONS, input_ports, output_ports
+from benchgen.hardware import build_core
+from benchgen.project import manifest_for
+
+# Small cores, so sizing each one takes a moment.
+SMALL = {"sincos": 8, "rotate": 6, "atan2": 7, "mul": 7, "div": 7,
+         "sinhcosh": 9, "exp": 9, "atanh": 9, "ln": 9, "sqrt": 9}
+
+
+@pytest.mark.parametrize("tag_width", [0, 3])
+@pytest.mark.parametrize("function", [f.name for f in FUNCTIONS])
+def test_the_core_declares_the_ports_its_design_lists(function: str, tag_width: int) -> None:
+    width = SMALL[function]
+    values: dict[str, object] = {"name": "c", "function": function, "data_width": width, "tag_width": tag_width,
+                                 "max_error_lsb": 2.0}
+    if any(f.name == function and f.angle_ports for f in FUNCTIONS):
+        values["angle_width"] = width
+    design = build_design(parse_config(values))
+    ports = design.ports
+    declared = [(p.sig.name, p.sig.width, p.direction, p.sig.vector) for p in build_core(design).ports]
+    assert declared == [(p.name, p.width, p.direction, p.payload) for p in ports]
+    # The function's data ports, in its order, with their formats and signs.
+    dp = design.datapath
+    assert [p.name for p in ports if p.role == "data"] == [p.name for p in input_ports(dp) + output_ports(dp)]
+    assert {p.name for p in ports if p.role == "tag"} == ({"in_tag", "out_tag"} if tag_width else set())
+    manifest = manifest_for(design)
+    assert manifest["ports"] == {p.name: p.width for p in ports}
+    assert manifest["formats"] == {p.name: p.doc for p in input_ports(dp) + output_ports(dp)}
+    assert manifest["signed_outputs"] == [p.name for p in output_ports(dp) if p.signed]
