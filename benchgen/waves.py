@@ -77,11 +77,12 @@ DEFAULT_LIMIT_MB = 1000.0
 """Largest dump written without ``--waves-limit``: about a gigabyte, which GTKWave still opens
 in seconds and which few working folders miss."""
 
-BYTES_PER_BIT_CLOCK = {"fst": 0.1, "vcd": 1.1}
+BYTES_PER_BIT_CLOCK = {"fst": 0.1, "vcd": 1.1, "ghw": 0.9}
 """Dump bytes per declared signal bit per clock, measured on whole-run dumps of pipelined and
-iterative sine/cosine cores (8 and 16 bits) with the per-clock bench, rounded up (docs/waves.md
-has the measurements). A data path toggles most of its bits every clock at full rate, which VCD
-writes as text and FST compresses."""
+iterative sine/cosine cores (8 and 16 bits) with the per-clock bench, rounded up
+(benchmarks/waves_size.py; docs/sim_reports.md has the measurements). A data path toggles most of
+its bits every clock at full rate, which VCD writes as text and FST compresses; GHDL's GHW lies
+between."""
 
 CLOCK_NS = 10
 """Clock period of both benches (the per-clock bench's Clock and the bulk harness's ``#5``)."""
@@ -274,7 +275,7 @@ _VHDL_CONSTANT = re.compile(r"\bconstant\s+(\w+)\s*:\s*(?:natural|integer|positi
 _VHDL_DECLARATION = re.compile(
     r"(?:\bsignal\s+|[(;]\s*)(\w+(?:\s*,\s*\w+)*)\s*:\s*(?:(?:in|out|inout|buffer)\s+)?"
     r"(std_logic|std_ulogic|(?:std_logic_vector|std_ulogic_vector|unsigned|signed)\s*\(([^()]*)\s+downto\s+([^()]*)\))"
-    r"\s*(?:;|\)|:=)",
+    r"(?=\s*(?:;|\)|:=))",
     re.I,
 )
 

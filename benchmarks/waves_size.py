@@ -6,7 +6,7 @@ clocks the run took (from the results' simulated time), the signal bits the esti
 the estimate against the measurement (a ratio of at least 1 means the estimate errs large, the
 safe side for a limit). :data:`benchgen.waves.BYTES_PER_BIT_CLOCK` is set from these.
 
-    python benchmarks/waves_size.py [--simulators icarus verilator] [--samples 4000]
+    python benchmarks/waves_size.py [--simulators icarus verilator ghdl] [--samples 4000]
 """
 
 from __future__ import annotations
@@ -16,10 +16,10 @@ import re
 import tempfile
 from pathlib import Path
 
-from benchgen.bench.bulk_plan import input_space_bits
-from benchgen.functions import bench_corners
+from benchgen.functions import bench_corners, input_space_bits
 from benchgen.project import design_from_manifest, generate_project, load_manifest
 from benchgen.sim import run_sim
+from benchgen.simulators import VHDL_SIMULATORS
 from benchgen.waves import BYTES_PER_BIT_CLOCK, CLOCK_NS, FORMATS, estimate_bytes, estimate_clocks, signal_bits
 
 CORES = {
@@ -45,19 +45,21 @@ def main() -> None:
     with tempfile.TemporaryDirectory() as tmp:
         for name, core in CORES.items():
             config = Path(tmp) / f"{name}.toml"
-            config.write_text(_toml({"name": name, **core}))
+            # Both languages: the Verilog for Icarus and Verilator, the VHDL for GHDL.
+            config.write_text(_toml({"name": name, **core}) + 'hdl = ["verilog", "vhdl"]\n')
             project = Path(tmp) / name
             generate_project(config, project)
             manifest = load_manifest(project)
             design = design_from_manifest(manifest)
-            bits = signal_bits([project / r for r in manifest["files"]["rtl"]])
             corners = len(next(iter(bench_corners(design.datapath).values())))
             estimated_clocks = estimate_clocks(
                 samples=args.samples, cycles_per_sample=design.timing.cycles_per_sample,
                 latency=design.timing.latency_cycles, bulk=False, exhaustive=False,
-                space_bits=input_space_bits(manifest), corners=corners,
+                space_bits=input_space_bits(design.datapath), corners=corners,
             )
             for sim in args.simulators:
+                files = manifest["files"]["vhdl" if sim in VHDL_SIMULATORS else "rtl"]
+                bits = signal_bits([project / r for r in files])
                 report = run_sim(project, simulator=sim, samples=args.samples, seed=1, waves=True,
                                  mode="per-clock", waves_limit_mb=1e6)
                 xml = (project / "build" / sim / "results.xml").read_text()

@@ -51,6 +51,66 @@ def test_signal_bits_counts_what_a_dump_records(tmp_path: Path) -> None:
     assert signal_bits([src]) == 1 + 8 + 16 + 2 * 4 + 1 + 32
 
 
+@pytest.fixture(scope="module")
+def vhdl_project(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    root = tmp_path_factory.mktemp("waves_vhdl")
+    out = root / "good"
+    assert main(["generate", str(write_config(root / "c.toml", {**CORE, "hdl": "vhdl"})), "-o", str(out)]) == 0
+    return out
+
+
+def test_signal_bits_resolves_named_widths_in_verilog_and_vhdl(tmp_path: Path) -> None:
+    """The printers write widths through named constants (``[XY_W-1:0]``, ``unsigned(XY_W - 1
+    downto 0)``); each such vector counts its bits, in either language, and a generated core's
+    two texts count nearly alike (one description, two printers)."""
+    v = tmp_path / "m.v"
+    v.write_text(
+        "module m (input wire clk, input wire [7:0] a);\n"
+        "    localparam XY_W = 25;  // data bits plus guard bits\n"
+        "    localparam [XY_W-1:0] K = 25'h1;\n"
+        "    wire [XY_W-1:0] s0_x, s0_y;\n"
+        "    reg [XY_W - 1 : 0] s0_x_reg;\n"
+        "endmodule\n"
+    )
+    assert signal_bits([v]) == 1 + 8 + 3 * 25
+    vhd = tmp_path / "m.vhd"
+    vhd.write_text(
+        "entity m is\n    port (\n        clk : in  std_logic;\n"
+        "        a   : in  std_logic_vector(7 downto 0)\n    );\nend entity;\n"
+        "architecture rtl of m is\n"
+        "    constant XY_W : natural := 25;  -- data bits plus guard bits\n"
+        "    constant K : unsigned(XY_W - 1 downto 0) := 25x\"0000001\";\n"
+        "    signal s0_x, s0_y : unsigned(XY_W - 1 downto 0);\n"
+        "    signal s0_x_reg : signed(xy_w - 1 downto 0);\n"
+        "    signal advance : std_logic;\n"
+        "begin\nend architecture;\n"
+    )
+    assert signal_bits([vhd]) == 1 + 8 + 3 * 25 + 1
+
+
+def test_generated_cores_count_alike_in_both_languages(tmp_path: Path) -> None:
+    config = write_config(tmp_path / "c.toml", {**CORE, "name": "wv_both", "hdl": ["verilog", "vhdl"]})
+    assert main(["generate", str(config), "-o", str(tmp_path / "p")]) == 0
+    verilog, vhdl = (signal_bits([tmp_path / "p" / "rtl" / f"wv_both.{ext}"]) for ext in ("v", "vhd"))
+    assert verilog > 40 * CORE["data_width"]  # every stage's x, y and z, not the ports alone
+    assert abs(verilog - vhdl) <= 0.05 * verilog
+
+
+def test_a_window_on_ghdl_is_refused_in_one_line(vhdl_project: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    """GHDL dumps only whole runs: the window is refused before anything runs (no GHDL needed),
+    and the fix it names (--waves) is accepted by the same check."""
+    status = main(["sim", str(vhdl_project), "--simulator", "ghdl", "--waves-window", "20"])
+    err = capsys.readouterr().err
+    assert status == 2 and err.count("\n") == 1 and "Traceback" not in err
+    assert "--waves-window does not run on ghdl" in err and "use --waves" in err
+    assert not (vhdl_project / "build").exists()
+    from benchgen.project import design_from_manifest, load_manifest
+    from benchgen.sim import _check_waves_size
+
+    manifest = load_manifest(vhdl_project)
+    _check_waves_size(vhdl_project, manifest, design_from_manifest(manifest), "ghdl", 20_000, False, False, 1000)
+
+
 def test_a_dump_over_the_limit_is_refused_before_anything_runs(project: Path, capsys: pytest.CaptureFixture[str]) -> None:
     """Needs no simulator: the estimate comes from the design and the sample count."""
     from benchgen.project import design_from_manifest, load_manifest
@@ -83,6 +143,17 @@ def test_waves_path_is_printed_and_named_by_the_core(project: Path, tmp_path: Pa
     assert json.loads(report.read_text())["waves_file"] == str(dump)
     start, end = dump_span(dump)
     assert start == 0 and end > 200 * CLOCK_NS * 1000  # the whole run, in ps
+
+
+@pytest.mark.sim
+def test_ghdl_dumps_the_whole_run_under_the_same_name(vhdl_project: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    """GHDL writes <core>.ghw in its build folder (the base name every simulator uses), printed."""
+    require_simulator("ghdl")
+    assert main(["sim", str(vhdl_project), "--simulator", "ghdl", "--samples", "200", "--seed", "2", "--waves"]) == 0
+    dump = waves_file(vhdl_project / "build" / "ghdl", "wv_sc", "ghdl")
+    assert dump.name == "wv_sc.ghw"
+    assert f"waves: {dump} (the whole run)" in capsys.readouterr().out
+    assert dump.read_bytes()[:9] == b"GHDLwave\n"  # GHDL's own format, which GTKWave reads
 
 
 @pytest.mark.sim
