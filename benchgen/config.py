@@ -443,7 +443,8 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
     if "clock_enable" in raw:
         value = raw["clock_enable"]
         if not isinstance(value, bool):
-            fix = value.strip().lower() == "true" if isinstance(value, str) else bool(value) if isinstance(value, int) else False
+            # The value a wrongly typed one plainly means: "true" or a nonzero number is on.
+            fix = value.strip().lower() == "true" if isinstance(value, str) else isinstance(value, int) and value != 0
             raise ConfigError(
                 "clock_enable", value, "true or false",
                 f"write clock_enable = {'true' if fix else 'false'} (no quotes)",

@@ -251,7 +251,9 @@ async def test_reset_mid_stream(dut: Any) -> None:
     style = "asynchronous" if tb.asynchronous_reset else "synchronous"
     if cleared is not None and cleared != tb.asynchronous_reset:
         seen = "fell before" if cleared else "had not fallen by"
-        result.problems.append(f"out_valid {seen} the next clock edge after the reset rose; the reset should be {style}")
+        result.problems.append(
+            f"out_valid {seen} the next clock edge after the reset rose; the reset should be {style}"
+        )
     stale = await tb.stream.idle_clocks(latency + 4)
     if any(stale):
         result.problems.append(f"out_valid rose after the reset with no input: {stale}")
