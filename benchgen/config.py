@@ -17,7 +17,15 @@ from typing import Any
 from benchgen.errors import ConfigError, show_value
 from benchgen.functions import FUNCTION_NAMES, function_named, refused_fields
 from benchgen.functions import FUNCTIONS as _FUNCTION_CLASSES
-from benchgen.spec import DEFAULT_HDL, DEFAULT_VLNV_LIBRARY, DEFAULT_VLNV_VENDOR, HDLS, CoreSpec
+from benchgen.spec import (
+    DEFAULT_HDL,
+    DEFAULT_VLNV_LIBRARY,
+    DEFAULT_VLNV_VENDOR,
+    HDLS,
+    RESET_POLARITIES,
+    RESET_STYLES,
+    CoreSpec,
+)
 from benchgen.vhdl import RESERVED_WORDS as VHDL_RESERVED_WORDS
 
 __all__ = [
@@ -30,6 +38,8 @@ __all__ = [
     "MAX_NAME_LENGTH",
     "MAX_PORT_WIDTH",
     "MAX_WIDTH",
+    "RESET_POLARITIES",
+    "RESET_STYLES",
     "ROUNDING_MODES",
     "SYNONYMS",
     "CoreSpec",
@@ -167,7 +177,18 @@ _FIELDS: tuple[str, ...] = (
     "vlnv_vendor",
     "vlnv_library",
     "hdl",
+    "reset_style",
+    "reset_polarity",
+    "clock_enable",
 )
+# Fields left out of the manifest's config at their default, so a project that does not set
+# them keeps the manifest it had before they existed (same config, same bytes).
+_QUIET_DEFAULTS: dict[str, object] = {
+    "hdl": DEFAULT_HDL,
+    "reset_style": RESET_STYLES[0],
+    "reset_polarity": RESET_POLARITIES[0],
+    "clock_enable": False,
+}
 
 
 def spec_to_dict(spec: CoreSpec) -> dict[str, Any]:
@@ -182,9 +203,9 @@ def spec_to_dict(spec: CoreSpec) -> dict[str, Any]:
             if key in ("iterations", "guard_bits"):
                 out[key] = "auto"
             continue
+        if key in _QUIET_DEFAULTS and value == _QUIET_DEFAULTS[key]:
+            continue  # the manifest stays as it was before the field existed
         if key == "hdl":
-            if value == DEFAULT_HDL:
-                continue  # a Verilog-only core's manifest stays as it was before the field existed
             value = value[0] if len(value) == 1 else list(value)
         out[key] = value
     return out
@@ -447,6 +468,22 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
                 suggestion={"prenormalise": True},
             )  # fmt: skip
         prenormalise = value
+    reset_style = _choice_field(raw, "reset_style", RESET_STYLES) if "reset_style" in raw else RESET_STYLES[0]
+    reset_polarity = (
+        _choice_field(raw, "reset_polarity", RESET_POLARITIES) if "reset_polarity" in raw else RESET_POLARITIES[0]
+    )
+    clock_enable = False
+    if "clock_enable" in raw:
+        value = raw["clock_enable"]
+        if not isinstance(value, bool):
+            # The value a wrongly typed one plainly means: "true" or a nonzero number is on.
+            fix = value.strip().lower() == "true" if isinstance(value, str) else isinstance(value, int) and value != 0
+            raise ConfigError(
+                "clock_enable", value, "true or false",
+                f"write clock_enable = {'true' if fix else 'false'} (no quotes)",
+                suggestion={"clock_enable": fix},
+            )  # fmt: skip
+        clock_enable = value
 
     vlnv_vendor = _vlnv_field(raw, "vlnv_vendor", DEFAULT_VLNV_VENDOR)
     vlnv_library = _vlnv_field(raw, "vlnv_library", DEFAULT_VLNV_LIBRARY)
@@ -537,6 +574,9 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
         vlnv_vendor=vlnv_vendor,
         vlnv_library=vlnv_library,
         hdl=hdl,
+        reset_style=reset_style,
+        reset_polarity=reset_polarity,
+        clock_enable=clock_enable,
     )
 
 

@@ -29,6 +29,7 @@ from benchgen.functions import (
     WIDE_SIZING_SAMPLES,
     Inputs,
     apply_gain,
+    clocking_of,
     core_ports,
     corner_inputs,
     directed_inputs,
@@ -90,7 +91,7 @@ class Design:
     @property
     def ports(self) -> tuple[CorePort, ...]:
         """Every port of the core, in declaration order (:func:`benchgen.functions.core_ports`)."""
-        return core_ports(self.datapath, self.spec.tag_width)
+        return core_ports(self.datapath, self.spec.tag_width, clocking_of(self.spec))
 
 
 # Inputs per chunk of an exhaustive check: a few tens of MB of intermediates.

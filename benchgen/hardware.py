@@ -13,7 +13,7 @@ from dataclasses import dataclass
 
 from benchgen import __version__
 from benchgen.design import Design
-from benchgen.functions import function_of
+from benchgen.functions import clocking_of, function_of
 from benchgen.hwlib import Builder, Final, Start, sign_shift
 from benchgen.netlist import (
     Add,
@@ -94,7 +94,7 @@ class _Core:
         self.design = design
         self.dp = dp = design.datapath
         self.fn = function_of(dp)
-        self.module = Module(name=design.spec.name)
+        self.module = Module(name=design.spec.name, clocking=clocking_of(design.spec))
         self.b = Builder(self.module, dp)
         self.config_text = config_text
         self.has_y, self.has_z = self.fn.carries(dp)
@@ -158,7 +158,7 @@ class _Core:
             f"Timing: latency {timing.latency_cycles} clocks from input handshake to output handshake, one",
             f"sample every {timing.cycles_per_sample} clock(s) at full rate.",
             "Handshake: a sample moves when valid and ready are both high at a rising clock edge.",
-            "rst is synchronous and active high; it clears the control state, not the data path.",
+            *self.module.clocking.describe(),
         ]
         config = header_lines(self.config_text)
         if config:

@@ -92,6 +92,9 @@ class BulkLayout:
         outputs: Output data ports: the function's in name order, the tag last.
         in_bytes: Bytes per stimulus word (a multiple of 4).
         out_bytes: Bytes per result word (a multiple of 4).
+        controls: The core's reset and clock enable as the harness connects them: the
+            harness's own ``rst`` (active high) drives the core's reset at its level, and a
+            clock enable is held high (the per-clock bench is the one that toggles it).
     """
 
     core: str
@@ -101,6 +104,7 @@ class BulkLayout:
     outputs: tuple[Slot, ...]
     in_bytes: int
     out_bytes: int
+    controls: tuple[str, ...] = (".rst(rst)",)
 
     @property
     def index_width(self) -> int:
@@ -147,6 +151,12 @@ def bulk_layout(core: str, ports: Sequence[CorePort], *, block: int = DEFAULT_BL
         raise ValueError(f"block size {block}: use a power of two from 16 to 1048576")
     inputs, in_bytes = _slots(_ordered(ports, "in"))
     outputs, out_bytes = _slots(_ordered(ports, "out"))
+    controls: list[str] = []
+    for p in ports:
+        if p.role == "reset":
+            controls.append(f".{p.name}({'~rst' if p.active_low else 'rst'})")
+        elif p.role == "enable":
+            controls.append(f".{p.name}(1'b1)")
     return BulkLayout(
         core=core,
         module=f"{core}_bulk",
@@ -155,6 +165,7 @@ def bulk_layout(core: str, ports: Sequence[CorePort], *, block: int = DEFAULT_BL
         outputs=outputs,
         in_bytes=in_bytes,
         out_bytes=out_bytes,
+        controls=tuple(controls),
     )
 
 

@@ -24,6 +24,7 @@ __all__ = [
     "Add",
     "And",
     "Cat",
+    "Clocking",
     "Cmp",
     "Assign",
     "Comment",
@@ -423,8 +424,9 @@ class RegisterBlock:
             ...]) in priority order: the first enable that is high selects its values; an
             enable of None is always high. Registers not named under the chosen enable keep
             their value.
-        reset: (register, value) pairs loaded while ``rst`` is high (this takes precedence
-            over every update): control state only; the data path is never reset.
+        reset: (register, value) pairs loaded while the reset is active (this takes precedence
+            over every update, and over the clock enable): control state only; the data path
+            is never reset. The module's :class:`Clocking` says how the reset and enable act.
     """
 
     updates: tuple[Chain, ...]
@@ -472,6 +474,41 @@ class Port:
 Statement = Comment | Wire | Decl | Assign | Local | Reg | RegisterBlock | Table
 
 
+@dataclass(frozen=True)
+class Clocking:
+    """How every register block of a module is reset and enabled (one choice for the module).
+
+    Attributes:
+        reset: Name of the reset input.
+        asynchronous: The reset acts at once, not at the next rising clock edge.
+        active_low: The reset acts while its input is low.
+        enable: Name of the clock enable input, or empty for none. While it is low every
+            register holds, as if the clock had no edge; the reset acts whatever it is.
+    """
+
+    reset: str = "rst"
+    asynchronous: bool = False
+    active_low: bool = False
+    enable: str = ""
+
+    @property
+    def reset_level(self) -> int:
+        """The level of the reset input that resets."""
+        return 0 if self.active_low else 1
+
+    def describe(self) -> list[str]:
+        """The reset and enable as the core's header states them, one sentence a line."""
+        when = "asynchronous" if self.asynchronous else "synchronous"
+        level = "active low" if self.active_low else "active high"
+        lines = [f"{self.reset} is {when} and {level}; it clears the control state, not the data path."]
+        if self.enable:
+            lines.append(
+                f"{self.enable} is a clock enable: while it is low every register holds (outputs, out_valid"
+            )
+            lines.append(f"and in_ready too) and no sample moves; {self.reset} acts whatever {self.enable} is.")
+        return lines
+
+
 @dataclass
 class Module:
     """A whole core: ports, named constants, and the body in the order it is printed.
@@ -483,6 +520,7 @@ class Module:
         widths: Named width constants (name, value, comment) declared first.
         params: Named constants, in order.
         body: Statements in order.
+        clocking: How every register block is reset and enabled.
     """
 
     name: str
@@ -491,6 +529,7 @@ class Module:
     widths: list[tuple[str, int, str]] = field(default_factory=list)
     params: list[Param] = field(default_factory=list)
     body: list[Statement] = field(default_factory=list)
+    clocking: Clocking = field(default_factory=Clocking)
 
     def add(self, *statements: Statement) -> None:
         """Append statements to the body."""
@@ -634,7 +673,8 @@ def evaluate(module: Module, inputs: dict[str, npt.ArrayLike], *, transparent: b
     Args:
         module: The description.
         inputs: Unsigned (or signed: they are taken modulo 2**width) values per input port;
-            control inputs that are absent are 0 (``rst``) or 1 (every other one-bit input).
+            control inputs that are absent are inactive (the reset) or 1 (every other one-bit
+            input, the clock enable among them).
         transparent: Must be True (the only mode).
 
     Returns:
@@ -649,7 +689,10 @@ def evaluate(module: Module, inputs: dict[str, npt.ArrayLike], *, transparent: b
             continue
         raw = inputs.get(port.sig.name)
         if raw is None:
-            default = 0 if port.sig.name == "rst" else (1 if port.sig.width == 1 else 0)
+            if port.sig.name == module.clocking.reset:
+                default = 1 - module.clocking.reset_level
+            else:
+                default = 1 if port.sig.width == 1 else 0
             env.values[port.sig.name] = env.arr(default, port.sig.width)
         else:
             values = np.asarray(raw)

@@ -8,7 +8,15 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-__all__ = ["DEFAULT_HDL", "DEFAULT_VLNV_LIBRARY", "DEFAULT_VLNV_VENDOR", "HDLS", "CoreSpec"]
+__all__ = [
+    "DEFAULT_HDL",
+    "DEFAULT_VLNV_LIBRARY",
+    "DEFAULT_VLNV_VENDOR",
+    "HDLS",
+    "RESET_POLARITIES",
+    "RESET_STYLES",
+    "CoreSpec",
+]
 
 DEFAULT_VLNV_VENDOR = "benchgen"
 """Vendor part of a core's FuseSoC name, unless the config sets ``vlnv_vendor``."""
@@ -18,6 +26,10 @@ HDLS = ("verilog", "vhdl")
 """The languages a core is written in: Verilog-2005 (``rtl/NAME.v``), VHDL-2008 (``rtl/NAME.vhd``)."""
 DEFAULT_HDL = ("verilog",)
 """The languages of a core whose config sets no ``hdl``."""
+RESET_STYLES = ("synchronous", "asynchronous")
+"""When the reset acts: at a rising clock edge, or at once (the first is the default)."""
+RESET_POLARITIES = ("active_high", "active_low")
+"""The reset level that resets: high (port ``rst``, the default) or low (port ``rst_n``)."""
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -48,6 +60,11 @@ class CoreSpec:
         vlnv_library: Library part of that name.
         hdl: The languages the core is written in, in the order of :data:`HDLS` (``verilog``,
             ``vhdl`` or both).
+        reset_style: ``synchronous`` (the reset acts at a rising clock edge) or
+            ``asynchronous`` (at once, whatever the clock).
+        reset_polarity: ``active_high`` (port ``rst``) or ``active_low`` (port ``rst_n``).
+        clock_enable: Add a ``clk_en`` input: while it is low every register of the core holds
+            (a clock edge with ``clk_en`` low is no edge for the core).
     """
 
     name: str
@@ -68,3 +85,6 @@ class CoreSpec:
     vlnv_vendor: str = DEFAULT_VLNV_VENDOR
     vlnv_library: str = DEFAULT_VLNV_LIBRARY
     hdl: tuple[str, ...] = DEFAULT_HDL
+    reset_style: str = RESET_STYLES[0]
+    reset_polarity: str = RESET_POLARITIES[0]
+    clock_enable: bool = False

@@ -11,6 +11,7 @@ from benchgen.netlist import (
     Add,
     And,
     Cat,
+    Clocking,
     Cmp,
     Comment,
     Assign,
@@ -122,8 +123,9 @@ def _comment(text: str) -> str:
     return f"  // {text}" if text else ""
 
 
-def statement_lines(st: object) -> list[str]:
-    """The lines of one statement, indented for a module body."""
+def statement_lines(st: object, clocking: Clocking | None = None) -> list[str]:
+    """The lines of one statement, indented for a module body (register blocks reset and
+    enabled as ``clocking`` says: the module's, by default a synchronous active-high ``rst``)."""
     if isinstance(st, Comment):
         return [INDENT + "// " + line if line else "" for line in st.text.split("\n")] if st.text else [""]
     if isinstance(st, Wire):
@@ -137,7 +139,7 @@ def statement_lines(st: object) -> list[str]:
     if isinstance(st, Local):
         return [_param_line(st.param)]
     if isinstance(st, RegisterBlock):
-        return _block_lines(st)
+        return _block_lines(st, clocking or Clocking())
     if isinstance(st, Table):
         return _table_lines(st)
     raise TypeError(f"cannot print {type(st).__name__}")  # pragma: no cover
@@ -166,13 +168,26 @@ def _chain_lines(chain: tuple[tuple[Expr | None, tuple[tuple[Sig, Expr], ...]], 
     return lines
 
 
-def _block_lines(block: RegisterBlock) -> list[str]:
-    lines = [f"{INDENT}always @(posedge clk) begin"]
+def _block_lines(block: RegisterBlock, clocking: Clocking) -> list[str]:
+    """One clocked block: the module's reset (its style and level) wins over everything, the
+    clock enable, where there is one, gates every update."""
+    reset = f"!{clocking.reset}" if clocking.active_low else clocking.reset
+    if block.reset and clocking.asynchronous:
+        _check_all_reset(block)
+        edge = "negedge" if clocking.active_low else "posedge"
+        lines = [f"{INDENT}always @(posedge clk or {edge} {clocking.reset}) begin"]
+    else:
+        lines = [f"{INDENT}always @(posedge clk) begin"]
     chains = block.updates
     if block.reset:
-        lines.append(f"{INDENT * 2}if (rst) begin")
+        lines.append(f"{INDENT * 2}if ({reset}) begin")
         lines += _assigns(block.reset, 3)
-        if len(chains) == 1 and chains[0] and chains[0][0][0] is not None:
+        if clocking.enable:
+            lines.append(f"{INDENT * 2}end else if ({clocking.enable}) begin")
+            for chain in chains:
+                lines += _chain_lines(chain, 3, "if")
+            lines.append(f"{INDENT * 2}end")
+        elif len(chains) == 1 and chains[0] and chains[0][0][0] is not None:
             # if (rst) ... end else if (en) ...: the usual form of one enabled chain
             lines += _chain_lines(chains[0], 2, "end else if")
         else:
@@ -180,11 +195,25 @@ def _block_lines(block: RegisterBlock) -> list[str]:
             for chain in chains:
                 lines += _chain_lines(chain, 3, "if")
             lines.append(f"{INDENT * 2}end")
+    elif clocking.enable:
+        lines.append(f"{INDENT * 2}if ({clocking.enable}) begin")
+        for chain in chains:
+            lines += _chain_lines(chain, 3, "if")
+        lines.append(f"{INDENT * 2}end")
     else:
         for chain in chains:
             lines += _chain_lines(chain, 2, "if")
     lines.append(f"{INDENT}end")
     return lines
+
+
+def _check_all_reset(block: RegisterBlock) -> None:
+    """An asynchronous reset resets every register of its block: a register left out would
+    load only while the reset is inactive, which synthesis builds as an enable on the reset."""
+    reset = {reg.name for reg, _ in block.reset}
+    left = [reg.name for reg in block.registers() if reg.name not in reset]
+    if left:
+        raise ValueError(f"registers {left} share a block with an asynchronous reset but are not reset")
 
 
 def _table_lines(table: Table) -> list[str]:
@@ -222,5 +251,5 @@ def module_parts(module: Module) -> dict[str, object]:
     params = [_param_line(p) for p in module.params]
     body: list[str] = []
     for st in module.body:
-        body += statement_lines(st)
+        body += statement_lines(st, module.clocking)
     return {"name": module.name, "header": module.header, "ports": ports, "constants": constants, "params": params, "body": body}

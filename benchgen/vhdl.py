@@ -131,6 +131,7 @@ class _Printer:
         self.outputs = {p.sig.name for p in module.ports if p.direction == "out"}
         self.uses_choose: set[str] = set()
         self.names = _vhdl_names(module)
+        self.clocking = module.clocking
 
     def n(self, name: str) -> str:
         """The VHDL spelling of a name of the description (see :func:`_vhdl_names`)."""
@@ -380,13 +381,36 @@ def _comment_lines(text: str, depth: int = 1) -> list[str]:
 
 
 def _block_lines(pr: _Printer, block: RegisterBlock) -> list[str]:
-    """A clocked process; the synchronous reset is written last, so it wins over every update."""
+    """A clocked process. A synchronous reset is written last, so it wins over every update; an
+    asynchronous one comes first, outside the clock edge. The clock enable, where there is one,
+    wraps the updates only: the reset acts whatever it is."""
+    ck = pr.clocking
     label = f"p_{pr.n(block.registers()[0].name)}"
-    lines = [f"{INDENT}{label} : process (clk)", f"{INDENT}begin", f"{INDENT * 2}if rising_edge(clk) then"]
+    active = f"{ck.reset} = '{ck.reset_level}'"
+    asynchronous = bool(block.reset) and ck.asynchronous
+    if asynchronous:
+        reset = {reg.name for reg, _ in block.reset}
+        left = [reg.name for reg in block.registers() if reg.name not in reset]
+        if left:  # it would load only while the reset is inactive: an enable on the reset
+            raise ValueError(f"registers {left} share a block with an asynchronous reset but are not reset")
+    lines = [f"{INDENT}{label} : process (clk{', ' + ck.reset if asynchronous else ''})", f"{INDENT}begin"]
+    if asynchronous:
+        lines.append(f"{INDENT * 2}if {active} then")
+        for reg, value in block.reset:
+            lines += pr.assignment(reg, value, 3)
+        lines.append(f"{INDENT * 2}elsif rising_edge(clk) then")
+    else:
+        lines.append(f"{INDENT * 2}if rising_edge(clk) then")
+    depth = 3
+    if ck.enable:
+        lines.append(f"{INDENT * 3}if {ck.enable} = '1' then")
+        depth = 4
     for chain in block.updates:
-        lines += _chain_lines(pr, chain, 3)
-    if block.reset:
-        lines.append(f"{INDENT * 3}if rst = '1' then")
+        lines += _chain_lines(pr, chain, depth)
+    if ck.enable:
+        lines.append(f"{INDENT * 3}end if;")
+    if block.reset and not asynchronous:
+        lines.append(f"{INDENT * 3}if {active} then")
         for reg, value in block.reset:
             lines += pr.assignment(reg, value, 4)
         lines.append(f"{INDENT * 3}end if;")

@@ -239,9 +239,14 @@ class CoreChecker:
         core: The handle of the core instance (its ports carry the manifest's names).
         manifest: The project's ``manifest.json``, or the project folder.
         clk: The core's clock (default: the instance's ``clk``).
-        reset: The core's reset (default: the instance's ``rst``); ``None`` and no ``rst``
-            port: resets are not watched (call :meth:`reset` after one).
-        reset_active_high: Whether the reset is active when high.
+        reset: The core's reset (default: the instance's reset port, ``rst`` or ``rst_n`` as
+            the manifest says); ``None`` and no such port: resets are not watched (call
+            :meth:`reset` after one).
+        reset_active_high: Whether the reset is active when high (default: as the core's
+            reset is, high for ``rst``, low for ``rst_n``).
+        enable: The core's clock enable, for a core that has one (default: the instance's
+            ``clk_en``): an edge at which it is low is no edge for the core, so nothing moves
+            and no clock is counted there.
         ports: Handles to use instead of the instance's, by the core's port name (say, the
             wrapper's own ports where they are wired straight to the core's).
 
@@ -256,7 +261,8 @@ class CoreChecker:
         *,
         clk: Any | None = None,
         reset: Any | None = None,
-        reset_active_high: bool = True,
+        reset_active_high: bool | None = None,
+        enable: Any | None = None,
         ports: Mapping[str, Any] | None = None,
     ) -> None:
         folder = Path(manifest)
@@ -271,10 +277,15 @@ class CoreChecker:
 
         self.clk = clk if clk is not None else handle("clk")
         ports = self.design.ports
-        if reset is None and ("rst" in found or any(p.name == "rst" for p in ports)):
-            reset = handle("rst")
+        reset_port = next(p for p in ports if p.role == "reset")
+        if reset is None:
+            reset = handle(reset_port.name)
         self.reset_handle = reset
-        self.reset_active_high = reset_active_high
+        self.reset_active_high = not reset_port.active_low if reset_active_high is None else reset_active_high
+        enable_port = next((p for p in ports if p.role == "enable"), None)
+        if enable is None and enable_port is not None:
+            enable = handle(enable_port.name)
+        self.enable_handle = enable
         # Each stream's words: the function's data ports and the tag.
         ins = [p for p in ports if p.direction == "in" and p.payload]
         outs = [p for p in ports if p.direction == "out" and p.payload]
@@ -369,6 +380,8 @@ class CoreChecker:
                 self.inputs.clear()
                 self.outputs.clear()
                 continue
+            if self.enable_handle is not None and not _high(self.enable_handle):
+                continue  # the clock enable is low at the coming edge: no edge for the core
             self.inputs.sample()
             if self.outputs.sample() and len(self.outputs) > len(self.inputs):
                 self.result.problems.append(

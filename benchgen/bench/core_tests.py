@@ -63,14 +63,21 @@ class CoreBench:
         outs = [p for p in self.design.ports if p.direction == "out" and p.payload]
         self.in_ports = [p.name for p in ins if p.role == "data"]
         self.out_ports = [p.name for p in outs if p.role == "data"]
+        # The run's seed as given to the runner (cocotb re-derives RANDOM_SEED per test).
+        self.seed = int(os.environ.get("COCOTB_RANDOM_SEED", cocotb.RANDOM_SEED))
+        reset = next(p for p in self.design.ports if p.role == "reset")
+        enable = next((p.name for p in self.design.ports if p.role == "enable"), "")
+        self.asynchronous_reset = self.design.spec.reset_style == "asynchronous"
         self.stream = StreamBench(
             dut,
             inputs=tuple(p.name for p in ins),
             outputs=tuple(p.name for p in outs),
             signed=tuple(p.name for p in outs if p.signed),
+            reset=reset.name,
+            reset_active_low=reset.active_low,
+            enable=enable,
+            enable_seed=[self.seed, 99],
         )
-        # The run's seed as given to the runner (cocotb re-derives RANDOM_SEED per test).
-        self.seed = int(os.environ.get("COCOTB_RANDOM_SEED", cocotb.RANDOM_SEED))
         self.samples = int(os.environ.get(SAMPLES_ENV, DEFAULT_SAMPLES))
 
     async def start(self) -> None:
@@ -149,7 +156,9 @@ class CoreBench:
         return np.array(cap.out_cycles[:n], dtype=np.int64) - np.array(cap.in_cycles[:n], dtype=np.int64)
 
     def finish(self, result: CheckResult) -> None:
-        """Record the result and fail the test on any problem."""
+        """Record the result and fail the test on any problem (the stream's own among them:
+        something that moved while the clock enable was low)."""
+        result.problems.extend(self.stream.problems)
         record(result)
         assert not result.problems, "\n".join(result.problems)
 
@@ -241,7 +250,17 @@ async def test_reset_mid_stream(dut: Any) -> None:
         tb.check("reset_mid_stream", head, result)
     if len(cap.in_cycles) <= done:
         result.problems.append("the reset found no sample in flight; the test needs a longer stream")
-    await tb.stream.reset(cycles=2)
+    # Let a sample wait at the output, then raise the reset between two edges: an asynchronous
+    # reset drops out_valid at once, a synchronous one only at the next edge.
+    if not await tb.stream.fill(latency + 4):
+        result.problems.append(f"no sample reached the output within {latency + 4} clocks of stopping the stream")
+    cleared = await tb.stream.reset(cycles=2, mid_clock=True)
+    style = "asynchronous" if tb.asynchronous_reset else "synchronous"
+    if cleared is not None and cleared != tb.asynchronous_reset:
+        seen = "fell before" if cleared else "had not fallen by"
+        result.problems.append(
+            f"out_valid {seen} the next clock edge after the reset rose; the reset should be {style}"
+        )
     stale = await tb.stream.idle_clocks(latency + 4)
     if any(stale):
         result.problems.append(f"out_valid rose after the reset with no input: {stale}")

@@ -4,6 +4,13 @@ One coroutine per clock both drives and monitors (a single Python wake-up per cl
 per-clock loop as cheap as cocotb allows). At each rising edge it reads the handshake signals as
 the core saw them at that edge, records what moved, and sets the next inputs. Inputs follow the
 stream rules: once ``in_valid`` is high with a sample, the sample stays until it is taken.
+
+A core with a clock enable (``clk_en``) gets it at random from a seeded pattern. An edge with the
+enable low is no edge for the core: nothing crosses a handshake there, clocks are counted in
+enabled edges only (so latency and throughput read as without the enable), and the bench puts
+other data, a random ``in_valid`` and a random ``out_ready`` on the inputs for it, then checks
+that ``in_ready``, ``out_valid`` and every output held their values through it. A sample taken
+at such an edge, or one given out, would break the order and count checks.
 """
 
 from __future__ import annotations
@@ -13,7 +20,7 @@ from typing import Any
 
 import numpy as np
 import numpy.typing as npt
-from cocotb.triggers import RisingEdge
+from cocotb.triggers import FallingEdge, RisingEdge, Timer
 from cocotb.utils import get_sim_time
 
 __all__ = ["Capture", "StreamBench"]
@@ -58,6 +65,14 @@ class StreamBench:
         inputs: Input data port names (besides the handshake), e.g. ``("in_angle", "in_tag")``.
         outputs: Output data port names; ``signed`` lists those read as two's complement.
         signed: Output ports read as signed numbers.
+        reset: The reset port's name.
+        reset_active_low: Whether the reset acts while low.
+        enable: The clock enable port's name, or empty for a core without one.
+        enable_seed: Seed of the enable's random pattern and of what is driven while it is low.
+        enable_low: Share of the clocks with the enable low.
+
+    Attributes:
+        problems: What moved at an edge with the enable low, one line each (at most 10).
     """
 
     def __init__(
@@ -67,6 +82,11 @@ class StreamBench:
         inputs: tuple[str, ...],
         outputs: tuple[str, ...],
         signed: tuple[str, ...] = (),
+        reset: str = "rst",
+        reset_active_low: bool = False,
+        enable: str = "",
+        enable_seed: int | list[int] = 0,
+        enable_low: float = 0.3,
     ) -> None:
         self.dut = dut
         self.inputs = inputs
@@ -74,17 +94,64 @@ class StreamBench:
         self.signed = frozenset(signed)
         self.clk = dut.clk
         self.cycle = 0
+        self.reset_handle = getattr(dut, reset)
+        self.reset_level = 0 if reset_active_low else 1
+        self.enable_handle = getattr(dut, enable) if enable else None
+        self.rng = np.random.default_rng(enable_seed)
+        # Per edge, whether the enable is high; a prime length, so it does not line up with the
+        # tests' idle and stall patterns.
+        self.enable_pattern = [bool(v) for v in self.rng.random(4091) >= enable_low] if enable else [True]
+        self.edges = 0
+        self.problems: list[str] = []
 
-    async def reset(self, cycles: int = 3) -> None:
-        """Hold ``rst`` high for some clocks with the inputs idle and the consumer ready."""
+    def _enabled_next(self) -> bool:
+        """Drive the enable for the next edge from the pattern; whether it is high."""
+        if self.enable_handle is None:
+            return True
+        on = self.enable_pattern[self.edges % len(self.enable_pattern)]
+        self.enable_handle.value = int(on)
+        return on
+
+    def _freeze_problem(self, text: str) -> None:
+        if len(self.problems) < 10:
+            self.problems.append(text)
+
+    async def reset(self, cycles: int = 3, *, mid_clock: bool = False) -> bool | None:
+        """Hold the reset active for some clocks with the inputs idle and the consumer ready.
+
+        The clock enable goes on at random meanwhile: the reset acts whatever it is.
+
+        Args:
+            cycles: Rising edges the reset is held active for.
+            mid_clock: Raise the reset between two rising edges (at a falling edge) instead of
+                just after one, and read ``out_valid`` 1 ns later.
+
+        Returns:
+            With ``mid_clock``: whether ``out_valid`` was already low 1 ns after the reset rose,
+            before any rising edge (an asynchronous reset clears it at once, a synchronous one
+            only at the next edge); ``None`` if it was low before the reset.
+        """
         dut = self.dut
         dut.in_valid.value = 0
         dut.out_ready.value = 1
-        dut.rst.value = 1
+        cleared: bool | None = None
+        if mid_clock:
+            await FallingEdge(self.clk)
+            was_valid = bool(dut.out_valid.value)
+            self.reset_handle.value = self.reset_level
+            await Timer(1, unit="ns")
+            cleared = None if not was_valid else not bool(dut.out_valid.value)
+        else:
+            self.reset_handle.value = self.reset_level
         for _ in range(cycles):
+            self._enabled_next()
             await RisingEdge(self.clk)
+            self.edges += 1
             self.cycle += 1
-        dut.rst.value = 0
+        self.reset_handle.value = 1 - self.reset_level
+        if self.enable_handle is not None:
+            self.enable_handle.value = 1
+        return cleared
 
     async def run(
         self,
@@ -141,12 +208,59 @@ class StreamBench:
             in_valid.value = 1
             return True
 
+        def snapshot() -> tuple[int, ...]:
+            # What must hold through an edge with the enable low (X or Z read as -1).
+            values = []
+            for h in (in_ready, out_valid, *handles_out):
+                try:
+                    values.append(int(h.value))
+                except ValueError:
+                    values.append(-1)
+            return tuple(values)
+
+        def drive_other() -> None:
+            # For an edge the core must ignore: another sample's data, random valid and ready.
+            junk = self.rng.integers(0, 2, size=2)
+            for h, n in zip(handles_in, names, strict=True):
+                h.value = values[n][(sent + count // 2) % count]
+            in_valid.value = int(junk[0])
+            out_ready.value = int(junk[1])
+
+        def drive_real() -> None:
+            if offering:
+                for h, n in zip(handles_in, names, strict=True):
+                    h.value = values[n][sent]
+            in_valid.value = int(offering)
+            out_ready.value = int(ready_driven)
+
         offering = offer_next()
         ready_driven = not stall_pat[0]
         out_ready.value = int(ready_driven)
+        enabled = self._enabled_next()
+        if not enabled:
+            drive_other()
+        held: tuple[int, ...] | None = None
         edge = RisingEdge(self.clk)
         while got < count:
             await edge
+            self.edges += 1
+            if held is not None:
+                now = snapshot()
+                if now != held:
+                    self._freeze_problem(
+                        f"clk_en low at edge {self.edges - 1} (after clock {self.cycle}), yet in_ready, "
+                        f"out_valid or an output changed: {held} -> {now}"
+                    )
+                held = None
+            if not enabled:
+                # No edge for the core: nothing moved; the inputs are put back after it.
+                held = snapshot()
+                enabled = self._enabled_next()
+                if enabled:
+                    drive_real()
+                else:
+                    drive_other()
+                continue
             self.cycle += 1
             clocks += 1
             # The handshake the core saw at this edge.
@@ -175,10 +289,30 @@ class StreamBench:
                 offering = offer_next()
             ready_driven = not stall_pat[clocks % len(stall_pat)]
             out_ready.value = int(ready_driven)
+            enabled = self._enabled_next()
+            if not enabled:
+                drive_other()
         in_valid.value = 0
+        if self.enable_handle is not None:
+            self.enable_handle.value = 1
         cap.cycles = clocks
         cap.complete = got == count and sent == count
         return cap
+
+    async def fill(self, max_cycles: int) -> bool:
+        """Hold the consumer off (and the enable high) until ``out_valid`` is high, so a sample
+        waits at the output; whether one did within ``max_cycles`` clocks."""
+        self.dut.in_valid.value = 0
+        self.dut.out_ready.value = 0
+        if self.enable_handle is not None:
+            self.enable_handle.value = 1
+        for _ in range(max_cycles):
+            await RisingEdge(self.clk)
+            self.edges += 1
+            self.cycle += 1
+            if self.dut.out_valid.value:
+                return True
+        return False
 
     async def idle_clocks(self, cycles: int) -> list[int]:
         """Let the core run with no input and the consumer ready; return out_valid per clock."""
@@ -187,6 +321,7 @@ class StreamBench:
         self.dut.out_ready.value = 1
         for _ in range(cycles):
             await RisingEdge(self.clk)
+            self.edges += 1
             self.cycle += 1
             seen.append(int(self.dut.out_valid.value))
         return seen

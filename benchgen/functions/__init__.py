@@ -18,6 +18,7 @@ from benchgen.algorithm import Datapath
 from benchgen.functions import atan2, atanh, div, exp, ln, mul, rotate, sincos, sinhcosh, sqrt
 from benchgen.functions.base import CorePort, Function, Inputs, Outputs, Port, uniform
 from benchgen.model import to_signed
+from benchgen.netlist import Clocking
 from benchgen.reference import ErrorStats, error_stats
 from benchgen.spec import CoreSpec
 
@@ -35,6 +36,7 @@ __all__ = [
     "Port",
     "apply_gain",
     "bench_corners",
+    "clocking_of",
     "corner_inputs",
     "core_ports",
     "directed_inputs",
@@ -134,13 +136,36 @@ def output_ports(dp: Datapath) -> tuple[Port, ...]:
     return function_of(dp).output_ports(dp)
 
 
-def core_ports(dp: Datapath, tag_width: int) -> tuple[CorePort, ...]:
+RESET_PORT = "rst"
+"""The reset port of an active-high reset."""
+RESET_N_PORT = "rst_n"
+"""The reset port of an active-low reset (the usual ``_n`` suffix of a low-active signal)."""
+ENABLE_PORT = "clk_en"
+"""The clock enable port, where the config asks for one."""
+
+
+def clocking_of(spec: CoreSpec) -> Clocking:
+    """How a core's registers are reset and enabled, from its config: the port names and the
+    reset's style and level (docs/config.md, "Reset and clock enable")."""
+    low = spec.reset_polarity == "active_low"
+    return Clocking(
+        reset=RESET_N_PORT if low else RESET_PORT,
+        asynchronous=spec.reset_style == "asynchronous",
+        active_low=low,
+        enable=ENABLE_PORT if spec.clock_enable else "",
+    )
+
+
+def core_ports(dp: Datapath, tag_width: int, clocking: Clocking | None = None) -> tuple[CorePort, ...]:
     """Every port of the core, in the order its module declares them.
 
     The function's data ports (:func:`input_ports`, :func:`output_ports`) with the ports the
-    hardware adds around them: clock, reset, each stream's valid and ready, and the tag that
+    hardware adds around them: clock, reset (named by ``clocking``, ``rst`` by default), the
+    clock enable where ``clocking`` has one, each stream's valid and ready, and the tag that
     travels with each sample when ``tag_width`` is not 0.
     """
+    clocking = clocking or Clocking()
+    enable = [CorePort(clocking.enable, 1, "in", "enable")] if clocking.enable else []
 
     def data(ports: tuple[Port, ...], direction: str) -> list[CorePort]:
         return [CorePort(p.name, p.width, direction, "data", p.signed, p.doc) for p in ports]
@@ -149,7 +174,8 @@ def core_ports(dp: Datapath, tag_width: int) -> tuple[CorePort, ...]:
     tag_out = [CorePort("out_tag", tag_width, "out", "tag")] if tag_width else []
     return (
         CorePort("clk", 1, "in", "clock"),
-        CorePort("rst", 1, "in", "reset"),
+        CorePort(clocking.reset, 1, "in", "reset", active_low=clocking.active_low),
+        *enable,
         CorePort("in_valid", 1, "in", "handshake"),
         CorePort("in_ready", 1, "out", "handshake"),
         *data(input_ports(dp), "in"),

@@ -85,9 +85,11 @@ class CorePort:
         name: Port name.
         width: Bits.
         direction: ``in`` or ``out``.
-        role: ``clock``, ``reset``, ``handshake``, ``data`` (the function's) or ``tag``.
+        role: ``clock``, ``reset``, ``enable`` (the clock enable, where the config asks for
+            one), ``handshake``, ``data`` (the function's) or ``tag``.
         signed: Read as two's complement (data ports only).
         doc: The data port's format, for headers and manifests (empty for the others).
+        active_low: The reset acts while the port is low (the reset port only).
     """
 
     name: str
@@ -96,6 +98,7 @@ class CorePort:
     role: str
     signed: bool = False
     doc: str = ""
+    active_low: bool = False
 
     @property
     def payload(self) -> bool:
