@@ -318,8 +318,10 @@ module agc_ln_power (
     wire [22:0] ln_twice = {{3{o_z_reg[18]}}, o_z_reg, 1'b0};
     wire [22:0] ln_sum = ln_twice - e_ln2;
     // ln: drop 6 bit(s), half_even
-    wire ln_inc = (ln_sum[5:0] > 6'h20) | ((ln_sum[5:0] == 6'h20) & ln_sum[6]);
-    wire [16:0] ln_q = ln_sum[22:6] + {16'h0000, ln_inc};
+    /* verilator lint_off UNUSEDSIGNAL */
+    wire [22:0] ln_biased = ln_sum + 23'h00001f + {22'h000000, ln_sum[6]};  // half_even: bias below the kept bits
+    /* verilator lint_on UNUSEDSIGNAL */
+    wire [16:0] ln_q = ln_biased[22:6];
     // saturate to +-32767
     wire ln_over = ~ln_q[16] & ln_q[15];
     wire ln_under = ln_q[16] & (~ln_q[15] | (ln_q[15:0] == 16'h8000));

@@ -63,7 +63,10 @@ module echo_envelope_sqrt (
     wire [13:0] in_m = in_w << {in_half, 1'b0};
     // m times 1/A_n = 1.2074847754 at 6 guard bits; the 16 dropped bits round half up.
     wire [36:0] m_prod = {23'h000000, in_m} * 37'h00004d476e;
-    wire [20:0] m_scaled = m_prod[36:16] + {20'h00000, (m_prod[15:0] >= 16'h8000)};
+    /* verilator lint_off UNUSEDSIGNAL */
+    wire [36:0] m_scaled_biased = m_prod + 37'h0000008000;
+    /* verilator lint_on UNUSEDSIGNAL */
+    wire [20:0] m_scaled = m_scaled_biased[36:16];
     wire [22:0] m_wide = {2'h0, m_scaled};
     localparam [22:0] QUARTER = 23'h04d477;  // 1/4 times 1/A_n
     wire [XY_W-1:0] x_start = m_wide + QUARTER;
@@ -125,8 +128,10 @@ module echo_envelope_sqrt (
     // undo the normalisation: shift right by k with every bit kept, then round once
     wire [28:0] sq_wide = $signed({x_2, 6'h00}) >>> half_reg;
     // sq: drop 12 bit(s), half_even
-    wire sq_inc = (sq_wide[11:0] > 12'h800) | ((sq_wide[11:0] == 12'h800) & sq_wide[12]);
-    wire [16:0] sq_q = sq_wide[28:12] + {16'h0000, sq_inc};
+    /* verilator lint_off UNUSEDSIGNAL */
+    wire [28:0] sq_biased = sq_wide + 29'h000007ff + {28'h0000000, sq_wide[12]};  // half_even: bias below the kept bits
+    /* verilator lint_on UNUSEDSIGNAL */
+    wire [16:0] sq_q = sq_biased[28:12];
     // clamp to [0, 16383]: the value is never negative; rounding can reach the top
     wire sq_value_neg = sq_q[16];
     wire sq_value_over = ~sq_value_neg & (sq_q[15:14] != 2'h0);

@@ -324,15 +324,19 @@ module fft1024_twiddle (
 
     // ---- output: rounding, saturation, buffer ----
     // fin_out_cos: drop 5 bit(s), half_up
-    wire fin_out_cos_inc = (o_x_reg[4:0] >= 5'h10);
-    wire [18:0] fin_out_cos_q = o_x_reg[23:5] + {18'h00000, fin_out_cos_inc};
+    /* verilator lint_off UNUSEDSIGNAL */
+    wire [23:0] fin_out_cos_biased = o_x_reg + 24'h000010;  // half_up: bias below the kept bits
+    /* verilator lint_on UNUSEDSIGNAL */
+    wire [18:0] fin_out_cos_q = fin_out_cos_biased[23:5];
     // saturate to +-131071
     wire fin_out_cos_over = ~fin_out_cos_q[18] & fin_out_cos_q[17];
     wire fin_out_cos_under = fin_out_cos_q[18] & (~fin_out_cos_q[17] | (fin_out_cos_q[17:0] == 18'h20000));
     wire [17:0] fin_out_cos = fin_out_cos_over ? 18'h1ffff : fin_out_cos_under ? 18'h20001 : fin_out_cos_q[17:0];
     // fin_out_sin: drop 5 bit(s), half_up
-    wire fin_out_sin_inc = (o_y_reg[4:0] >= 5'h10);
-    wire [18:0] fin_out_sin_q = o_y_reg[23:5] + {18'h00000, fin_out_sin_inc};
+    /* verilator lint_off UNUSEDSIGNAL */
+    wire [23:0] fin_out_sin_biased = o_y_reg + 24'h000010;  // half_up: bias below the kept bits
+    /* verilator lint_on UNUSEDSIGNAL */
+    wire [18:0] fin_out_sin_q = fin_out_sin_biased[23:5];
     // saturate to +-131071
     wire fin_out_sin_over = ~fin_out_sin_q[18] & fin_out_sin_q[17];
     wire fin_out_sin_under = fin_out_sin_q[18] & (~fin_out_sin_q[17] | (fin_out_sin_q[17:0] == 18'h20000));

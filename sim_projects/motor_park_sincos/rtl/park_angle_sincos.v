@@ -132,15 +132,19 @@ module park_angle_sincos (
 
     // ---- output: rounding, saturation, buffer ----
     // fin_out_cos: drop 6 bit(s), half_even
-    wire fin_out_cos_inc = (x_2[5:0] > 6'h20) | ((x_2[5:0] == 6'h20) & x_2[6]);
-    wire [14:0] fin_out_cos_q = x_2[20:6] + {14'h0000, fin_out_cos_inc};
+    /* verilator lint_off UNUSEDSIGNAL */
+    wire [20:0] fin_out_cos_biased = x_2 + 21'h00001f + {20'h00000, x_2[6]};  // half_even: bias below the kept bits
+    /* verilator lint_on UNUSEDSIGNAL */
+    wire [14:0] fin_out_cos_q = fin_out_cos_biased[20:6];
     // saturate to +-8191
     wire fin_out_cos_over = ~fin_out_cos_q[14] & fin_out_cos_q[13];
     wire fin_out_cos_under = fin_out_cos_q[14] & (~fin_out_cos_q[13] | (fin_out_cos_q[13:0] == 14'h2000));
     wire [13:0] fin_out_cos = fin_out_cos_over ? 14'h1fff : fin_out_cos_under ? 14'h2001 : fin_out_cos_q[13:0];
     // fin_out_sin: drop 6 bit(s), half_even
-    wire fin_out_sin_inc = (y_2[5:0] > 6'h20) | ((y_2[5:0] == 6'h20) & y_2[6]);
-    wire [14:0] fin_out_sin_q = y_2[20:6] + {14'h0000, fin_out_sin_inc};
+    /* verilator lint_off UNUSEDSIGNAL */
+    wire [20:0] fin_out_sin_biased = y_2 + 21'h00001f + {20'h00000, y_2[6]};  // half_even: bias below the kept bits
+    /* verilator lint_on UNUSEDSIGNAL */
+    wire [14:0] fin_out_sin_q = fin_out_sin_biased[20:6];
     // saturate to +-8191
     wire fin_out_sin_over = ~fin_out_sin_q[14] & fin_out_sin_q[13];
     wire fin_out_sin_under = fin_out_sin_q[14] & (~fin_out_sin_q[13] | (fin_out_sin_q[13:0] == 14'h2000));

@@ -631,15 +631,19 @@ module ddc_nco_sincos (
 
     // ---- output: rounding, saturation, buffer ----
     // fin_out_cos: drop 8 bit(s), half_even
-    wire fin_out_cos_inc = (o_x_reg[7:0] > 8'h80) | ((o_x_reg[7:0] == 8'h80) & o_x_reg[8]);
-    wire [16:0] fin_out_cos_q = o_x_reg[24:8] + {16'h0000, fin_out_cos_inc};
+    /* verilator lint_off UNUSEDSIGNAL */
+    wire [24:0] fin_out_cos_biased = o_x_reg + 25'h000007f + {24'h000000, o_x_reg[8]};  // half_even: bias below the kept bits
+    /* verilator lint_on UNUSEDSIGNAL */
+    wire [16:0] fin_out_cos_q = fin_out_cos_biased[24:8];
     // saturate to +-32767
     wire fin_out_cos_over = ~fin_out_cos_q[16] & fin_out_cos_q[15];
     wire fin_out_cos_under = fin_out_cos_q[16] & (~fin_out_cos_q[15] | (fin_out_cos_q[15:0] == 16'h8000));
     wire [15:0] fin_out_cos = fin_out_cos_over ? 16'h7fff : fin_out_cos_under ? 16'h8001 : fin_out_cos_q[15:0];
     // fin_out_sin: drop 8 bit(s), half_even
-    wire fin_out_sin_inc = (o_y_reg[7:0] > 8'h80) | ((o_y_reg[7:0] == 8'h80) & o_y_reg[8]);
-    wire [16:0] fin_out_sin_q = o_y_reg[24:8] + {16'h0000, fin_out_sin_inc};
+    /* verilator lint_off UNUSEDSIGNAL */
+    wire [24:0] fin_out_sin_biased = o_y_reg + 25'h000007f + {24'h000000, o_y_reg[8]};  // half_even: bias below the kept bits
+    /* verilator lint_on UNUSEDSIGNAL */
+    wire [16:0] fin_out_sin_q = fin_out_sin_biased[24:8];
     // saturate to +-32767
     wire fin_out_sin_over = ~fin_out_sin_q[16] & fin_out_sin_q[15];
     wire fin_out_sin_under = fin_out_sin_q[16] & (~fin_out_sin_q[15] | (fin_out_sin_q[15:0] == 16'h8000));
