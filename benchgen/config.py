@@ -16,7 +16,7 @@ from typing import Any
 
 from benchgen.errors import ConfigError, show_value
 from benchgen.functions import FUNCTION_NAMES, function_named, refused_fields
-from benchgen.spec import DEFAULT_HDL, DEFAULT_VLNV_LIBRARY, DEFAULT_VLNV_VENDOR, HDLS, CoreSpec
+from benchgen.spec import DEFAULT_HDL, DEFAULT_VLNV_LIBRARY, DEFAULT_VLNV_VENDOR, HANDSHAKES, HDLS, CoreSpec
 from benchgen.vhdl import RESERVED_WORDS as VHDL_RESERVED_WORDS
 
 __all__ = [
@@ -148,6 +148,7 @@ _FIELDS: tuple[str, ...] = (
     "vlnv_vendor",
     "vlnv_library",
     "hdl",
+    "handshake",
 )
 
 
@@ -163,6 +164,8 @@ def spec_to_dict(spec: CoreSpec) -> dict[str, Any]:
             if key in ("iterations", "guard_bits"):
                 out[key] = "auto"
             continue
+        if key == "handshake" and value == "ready_valid":
+            continue  # the default: manifests stay as they were before the field existed
         if key == "hdl":
             if value == DEFAULT_HDL:
                 continue  # a Verilog-only core's manifest stays as it was before the field existed
@@ -385,6 +388,7 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
     tag_width = _int_field(raw, "tag_width", 0, MAX_TAG_WIDTH, default=0) if "tag_width" in raw else 0
     gain = _choice_field(raw, "gain", GAIN_MODES) if "gain" in raw else "compensated"
     angle_unit = _choice_field(raw, "angle_unit", ANGLE_UNITS) if "angle_unit" in raw else "turns"
+    handshake = _choice_field(raw, "handshake", HANDSHAKES) if "handshake" in raw else "ready_valid"
     fn = function_named(function)
     for key, why in refused_fields(fn).items():
         # A field the function does not use: a value set here would mislead.
@@ -504,6 +508,7 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
         vlnv_vendor=vlnv_vendor,
         vlnv_library=vlnv_library,
         hdl=hdl,
+        handshake=handshake,
     )
 
 

@@ -92,6 +92,8 @@ class BulkLayout:
         outputs: Output data ports: the function's in name order, the tag last.
         in_bytes: Bytes per stimulus word (a multiple of 4).
         out_bytes: Bytes per result word (a multiple of 4).
+        in_ready / out_ready: Whether the core has that port (a valid-only core has no
+            ``out_ready``, and a pipelined one no ``in_ready`` either).
     """
 
     core: str
@@ -101,6 +103,8 @@ class BulkLayout:
     outputs: tuple[Slot, ...]
     in_bytes: int
     out_bytes: int
+    in_ready: bool = True
+    out_ready: bool = True
 
     @property
     def index_width(self) -> int:
@@ -155,6 +159,8 @@ def bulk_layout(core: str, ports: Sequence[CorePort], *, block: int = DEFAULT_BL
         outputs=outputs,
         in_bytes=in_bytes,
         out_bytes=out_bytes,
+        in_ready=any(p.name == "in_ready" for p in ports),
+        out_ready=any(p.name == "out_ready" for p in ports),
     )
 
 

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-__all__ = ["DEFAULT_HDL", "DEFAULT_VLNV_LIBRARY", "DEFAULT_VLNV_VENDOR", "HDLS", "CoreSpec"]
+__all__ = ["HANDSHAKES", "DEFAULT_HDL", "DEFAULT_VLNV_LIBRARY", "DEFAULT_VLNV_VENDOR", "HDLS", "CoreSpec"]
 
 DEFAULT_VLNV_VENDOR = "benchgen"
 """Vendor part of a core's FuseSoC name, unless the config sets ``vlnv_vendor``."""
@@ -17,6 +17,10 @@ DEFAULT_VLNV_LIBRARY = "cores"
 HDLS = ("verilog", "vhdl")
 """The languages a core is written in: Verilog-2005 (``rtl/NAME.v``), VHDL-2008 (``rtl/NAME.vhd``)."""
 DEFAULT_HDL = ("verilog",)
+#: Stream handshakes: ``ready_valid`` (both streams; the consumer may stall the core) and
+#: ``valid_only`` (no ``out_ready``: for a sink that takes every sample; no output skid buffer,
+#: and a pipelined core, which then takes a sample every clock, has no ``in_ready`` either).
+HANDSHAKES = ("ready_valid", "valid_only")
 """The languages of a core whose config sets no ``hdl``."""
 
 
@@ -48,6 +52,7 @@ class CoreSpec:
         vlnv_library: Library part of that name.
         hdl: The languages the core is written in, in the order of :data:`HDLS` (``verilog``,
             ``vhdl`` or both).
+        handshake: One of :data:`HANDSHAKES`.
     """
 
     name: str
@@ -68,3 +73,4 @@ class CoreSpec:
     vlnv_vendor: str = DEFAULT_VLNV_VENDOR
     vlnv_library: str = DEFAULT_VLNV_LIBRARY
     hdl: tuple[str, ...] = DEFAULT_HDL
+    handshake: str = "ready_valid"

@@ -63,8 +63,14 @@ class StreamBench:
         inputs: tuple[str, ...],
         outputs: tuple[str, ...],
         signed: tuple[str, ...] = (),
+        in_ready: bool = True,
+        out_ready: bool = True,
     ) -> None:
         self.dut = dut
+        # A valid-only core has no out_ready (the sink takes every sample) and, pipelined, no
+        # in_ready (it takes a sample at every edge where in_valid is high).
+        self.has_in_ready = in_ready
+        self.has_out_ready = out_ready
         self.inputs = inputs
         self.outputs = outputs
         self.signed = frozenset(signed)
@@ -75,7 +81,8 @@ class StreamBench:
         """Hold ``rst`` high for some clocks with the inputs idle and the consumer ready."""
         dut = self.dut
         dut.in_valid.value = 0
-        dut.out_ready.value = 1
+        if self.has_out_ready:
+            dut.out_ready.value = 1
         dut.rst.value = 1
         for _ in range(cycles):
             await RisingEdge(self.clk)
@@ -114,10 +121,18 @@ class StreamBench:
         handles_in = [getattr(dut, n) for n in names]
         handles_out = [getattr(dut, n) for n in self.outputs]
         signed_out = [n in self.signed for n in self.outputs]
-        in_valid, in_ready = dut.in_valid, dut.in_ready
-        out_valid, out_ready = dut.out_valid, dut.out_ready
+        in_valid = dut.in_valid
+        in_ready = dut.in_ready if self.has_in_ready else None
+        out_valid = dut.out_valid
         idle_pat = [bool(v) for v in idle] if idle is not None and len(idle) else [False]
         stall_pat = [bool(v) for v in stall] if stall is not None and len(stall) else [False]
+        if not self.has_out_ready and any(stall_pat):
+            raise ValueError("the core has no out_ready (valid-only handshake): it cannot be stalled")
+
+        class _AlwaysReady:
+            value = 1
+
+        out_ready = dut.out_ready if self.has_out_ready else _AlwaysReady()
         limit = max_cycles if max_cycles is not None else 100 * (count + 64)
 
         cap = Capture(in_values={n: [] for n in names}, out_values={n: [] for n in self.outputs})
@@ -146,7 +161,7 @@ class StreamBench:
             self.cycle += 1
             clocks += 1
             # The handshake the core saw at this edge.
-            if offering and in_ready.value:
+            if offering and (in_ready is None or in_ready.value):
                 cap.in_cycles.append(self.cycle)
                 for n in names:
                     cap.in_values[n].append(values[n][sent])
@@ -179,7 +194,8 @@ class StreamBench:
         """Let the core run with no input and the consumer ready; return out_valid per clock."""
         seen = []
         self.dut.in_valid.value = 0
-        self.dut.out_ready.value = 1
+        if self.has_out_ready:
+            self.dut.out_ready.value = 1
         for _ in range(cycles):
             await RisingEdge(self.clk)
             self.cycle += 1
