@@ -285,8 +285,41 @@ def make_timing(spec: CoreSpec, iterations: int) -> Timing:
         )
     cycles = -(-n // per_cycle)
     bounds = tuple((c * per_cycle, min(n, (c + 1) * per_cycle)) for c in range(cycles))
-    # One clock loads the folded start values, `cycles` clocks iterate, and the last of them
-    # writes the rounded result into the output register.
+    # One clock loads the folded start values, `cycles` clocks iterate (the last of them
+    # writes the output register of the last iteration's values), and one more rounds and
+    # saturates from that register into the output: cycles + 2. A new sample loads in the last
+    # iteration's clock, so one sample every `cycles` clocks.
     return Timing(
-        architecture="iterative", stages=bounds, latency_cycles=cycles + 1, cycles_per_sample=cycles
+        architecture="iterative", stages=bounds, latency_cycles=cycles + 2, cycles_per_sample=cycles
     )
+
+
+def rotation_z_ranges(dp: Datapath, start: tuple[int, int]) -> list[tuple[int, int]]:
+    """The range of z before each iteration of a rotation, and after the last, from the range
+    of its start value.
+
+    A rotation steps z >= 0 down by the iteration's constant and z < 0 up by it (Volder 1959),
+    so each range is the hull of the two halves' images: exact bounds for every input, with no
+    assumption about the table (such as the convergence condition) or the rounding of its
+    constants. After iteration i the range is about +-atan(2^-i): the top bits of z are copies
+    of its sign, and a pipeline need not carry them (:func:`signed_width`).
+    """
+    lo, hi = start
+    out = [(lo, hi)]
+    for a in dp.atan_table:
+        parts = []
+        if hi >= 0:
+            parts.append((max(lo, 0) - a, hi - a))
+        if lo < 0:
+            parts.append((lo + a, min(hi, -1) + a))
+        lo, hi = min(p[0] for p in parts), max(p[1] for p in parts)
+        out.append((lo, hi))
+    return out
+
+
+def signed_width(lo: int, hi: int) -> int:
+    """Bits of the two's complement numbers that hold every integer in [lo, hi]."""
+    need_hi = hi.bit_length() + 1 if hi >= 0 else 1
+    need_lo = (-lo - 1).bit_length() + 1 if lo < 0 else 1
+    return max(need_hi, need_lo)
+

@@ -21,6 +21,7 @@ from benchgen.spec import (
     DEFAULT_HDL,
     DEFAULT_VLNV_LIBRARY,
     DEFAULT_VLNV_VENDOR,
+    HANDSHAKES,
     HDLS,
     RESET_POLARITIES,
     RESET_STYLES,
@@ -180,6 +181,7 @@ _FIELDS: tuple[str, ...] = (
     "reset_style",
     "reset_polarity",
     "clock_enable",
+    "handshake",
 )
 # Fields left out of the manifest's config at their default, so a project that does not set
 # them keeps the manifest it had before they existed (same config, same bytes).
@@ -188,6 +190,7 @@ _QUIET_DEFAULTS: dict[str, object] = {
     "reset_style": RESET_STYLES[0],
     "reset_polarity": RESET_POLARITIES[0],
     "clock_enable": False,
+    "handshake": "ready_valid",
 }
 
 
@@ -439,6 +442,7 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
     tag_width = _int_field(raw, "tag_width", 0, MAX_TAG_WIDTH, default=0) if "tag_width" in raw else 0
     gain = _choice_field(raw, "gain", GAIN_MODES) if "gain" in raw else "compensated"
     angle_unit = _choice_field(raw, "angle_unit", ANGLE_UNITS) if "angle_unit" in raw else "turns"
+    handshake = _choice_field(raw, "handshake", HANDSHAKES) if "handshake" in raw else "ready_valid"
     fn = function_named(function)
     for key, why in refused_fields(fn).items():
         # A field the function does not use: a value set here would mislead.
@@ -577,6 +581,7 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
         reset_style=reset_style,
         reset_polarity=reset_polarity,
         clock_enable=clock_enable,
+        handshake=handshake,
     )
 
 

@@ -17,8 +17,9 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
-from benchgen.algorithm import MIN_Z_ONLY_ITERATIONS, Datapath, Timing, make_timing
+from benchgen.algorithm import MIN_Z_ONLY_ITERATIONS, Datapath, Timing, make_timing, rotation_z_ranges, signed_width
 from benchgen.config import MAX_ITERATIONS, MAX_PORT_WIDTH, CoreSpec
+from benchgen.spec import DEFAULT_HDL, DEFAULT_VLNV_LIBRARY, DEFAULT_VLNV_VENDOR, RESET_POLARITIES, RESET_STYLES
 from benchgen.errors import ConfigError
 from benchgen.functions import (
     CorePort,
@@ -31,6 +32,7 @@ from benchgen.functions import (
     apply_gain,
     clocking_of,
     core_ports,
+    function_of,
     corner_inputs,
     directed_inputs,
     enumerate_inputs,
@@ -91,7 +93,9 @@ class Design:
     @property
     def ports(self) -> tuple[CorePort, ...]:
         """Every port of the core, in declaration order (:func:`benchgen.functions.core_ports`)."""
-        return core_ports(self.datapath, self.spec.tag_width, clocking_of(self.spec))
+        return core_ports(
+            self.datapath, self.spec.tag_width, clocking_of(self.spec), self.spec.handshake, self.spec.architecture
+        )
 
 
 # Inputs per chunk of an exhaustive check: a few tens of MB of intermediates.
@@ -328,9 +332,55 @@ def clear_sizing_cache() -> None:
     _SIZES.clear()
 
 
+def iteration_bits(dp: Datapath) -> int:
+    """Bits of one iteration's adders at full width: x and y (xy_width each) and z (z_width),
+    less what the function does not carry (exp has no y, a result in x alone needs no z, linear
+    coordinates hold x)."""
+    has_y, has_z = function_of(dp).carries(dp)
+    per = (0 if dp.coordinates == "linear" else dp.xy_width) + (dp.xy_width if has_y else 0)
+    return per + (dp.z_width if has_z else 0)
+
+
+def adder_bits(dp: Datapath) -> int:
+    """The bits of a pipeline's adders, every iteration's summed: the sizing's cost of a
+    pipelined core.
+
+    z counts at the width each iteration forms where the pipeline narrows it (a rotation whose
+    function states z's start range: :func:`benchgen.algorithm.rotation_z_ranges`), else at
+    full width. The adders are most of a core's logic cells and their carry chains set its
+    clock, so fewer adder bits is a smaller core and a faster one.
+    """
+    fn = function_of(dp)
+    has_y, has_z = fn.carries(dp)
+    xy = (0 if dp.coordinates == "linear" else dp.xy_width) + (dp.xy_width if has_y else 0)
+    total = dp.iterations * xy
+    if has_z:
+        start = fn.z_start_range(dp) if dp.mode == "rotation" else None
+        if start is None:
+            total += dp.iterations * dp.z_width
+        else:
+            ranges = rotation_z_ranges(dp, start)[1 : dp.iterations]  # the last forms no z
+            total += sum(min(dp.z_width, signed_width(*r)) for r in ranges)
+    return total
+
+
+def sizing_cost(spec: CoreSpec, dp: Datapath) -> tuple[int, ...]:
+    """What sizing minimises (compared as a tuple; ties to fewer iterations, the shorter latency).
+
+    Pipelined: the adder bits (:func:`adder_bits`). Iterative: first the clocks per sample
+    (throughput), then the adder bits of one clock's iterations (area), since the same adders
+    serve every clock.
+    """
+    if spec.architecture == "pipelined":
+        return adder_bits(dp), dp.iterations
+    per_cycle = spec.iterations_per_cycle or 1
+    cycles = -(-dp.iterations // per_cycle)
+    return cycles, min(per_cycle, dp.iterations) * iteration_bits(dp), dp.iterations
+
+
 def _size(spec: CoreSpec, progress: Progress | None = None) -> tuple[int, int, ErrorStats, Proof]:
-    """Smallest iterations, then smallest guard bits, meeting the target over the full check
-    (fields fixed by the spec stay).
+    """The (iterations, guard bits) of least :func:`sizing_cost` that meet the target over the
+    full check (fields fixed by the spec stay).
 
     Raises:
         ConfigError: if no size meets the target, with a fix (``suggestion``) that is accepted:
@@ -375,17 +425,34 @@ def _size(spec: CoreSpec, progress: Progress | None = None) -> tuple[int, int, E
             while n < MAX_ITERATIONS and not passes_search(n):
                 n += 1
         n_range = list(range(n, MAX_ITERATIONS + 1))
+    # cost, n, g, its check's statistics and what that check covered (inputs learned from later
+    # candidates' failures were not part of it)
+    best: tuple[tuple[int, ...], int, int, ErrorStats, Proof] | None = None
     for n in n_range:
+        if best is not None:
+            # Past the first size that passes, a count is worth trying only while its cheapest
+            # data path (the fewest guard bits that fit) costs less than the best so far: the
+            # cost grows with iterations and with guard bits.
+            cheapest = next((dp for dp in (candidate(n, g) for g in g_range) if dp is not None), None)
+            if cheapest is None or sizing_cost(spec, cheapest) >= best[0]:
+                break
         for g in g_range:
             dp = candidate(n, g)
-            if dp is None or prover.rejects(dp, budget):
+            if dp is None:
+                continue
+            if best is not None and sizing_cost(spec, dp) >= best[0]:
+                break  # more guard bits only cost more
+            if prover.rejects(dp, budget):
                 continue
             stats = prover.check(dp, budget)
             if stats is not None:
-                result = (n, g, stats, prover.proof())
-                _SIZES[spec] = result
-                return result
-    raise _missed_budget(spec, prover)
+                best = (sizing_cost(spec, dp), n, g, stats, prover.proof())
+                break  # the fewest guard bits at this count
+    if best is None:
+        raise _missed_budget(spec, prover)
+    result = (best[1], best[2], best[3], best[4])
+    _SIZES[spec] = result
+    return result
 
 
 _SIZES: dict[CoreSpec, tuple[int, int, ErrorStats, Proof]] = {}
@@ -506,9 +573,17 @@ def _check_port_widths(spec: CoreSpec) -> None:
 
 
 def _arithmetic(spec: CoreSpec) -> CoreSpec:
-    """The spec with every field that does not change the arithmetic set to one value: cores
-    that differ only in name, architecture or tag share one sizing run."""
-    return replace(spec, name="core", architecture="pipelined", pipeline_depth=None, iterations_per_cycle=None, tag_width=0)
+    """The spec with every field that does not change the sizing set to one value: cores that
+    differ only in name, pipeline depth, tag, handshake, reset, enable or language share one
+    sizing run. The
+    architecture stays (:func:`sizing_cost` weighs a pipeline and an iterative core apart), and
+    an iterative core's iterations per clock."""
+    return replace(
+        spec, name="core", pipeline_depth=None, tag_width=0, handshake="ready_valid", hdl=DEFAULT_HDL,
+        vlnv_vendor=DEFAULT_VLNV_VENDOR, vlnv_library=DEFAULT_VLNV_LIBRARY,
+        reset_style=RESET_STYLES[0], reset_polarity=RESET_POLARITIES[0], clock_enable=False,
+        iterations_per_cycle=(spec.iterations_per_cycle or 1) if spec.architecture == "iterative" else None,
+    )
 
 
 def sizing_evidence(spec: CoreSpec) -> Inputs:

@@ -12,6 +12,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from benchgen import __version__
+from benchgen.algorithm import rotation_z_ranges, signed_width
 from benchgen.design import Design
 from benchgen.functions import clocking_of, function_of
 from benchgen.hwlib import Builder, Final, Start, sign_shift
@@ -101,6 +102,13 @@ class _Core:
         self.final_needs = self.fn.final_values(dp)
         self.tag = design.spec.tag_width > 0
         self.truncating = dp.rounding == "truncate"
+        self.valid_only = design.spec.handshake == "valid_only"
+        # z narrowed stage by stage: the width of z formed by each iteration (None: full width)
+        self.z_widths: list[int] | None = None
+        start = self.fn.z_start_range(dp)
+        if design.timing.architecture == "pipelined" and self.has_z and dp.mode == "rotation" and start is not None:
+            ranges = rotation_z_ranges(dp, start)
+            self.z_widths = [min(dp.z_width, signed_width(*r)) for r in ranges[1:]]
         self.b.width_name("xy", dp.xy_width)  # declared first, whatever uses it first
 
     def angle_name(self, i: int) -> str:
@@ -157,13 +165,24 @@ class _Core:
         lines += [
             f"Timing: latency {timing.latency_cycles} clocks from input handshake to output handshake, one",
             f"sample every {timing.cycles_per_sample} clock(s) at full rate.",
-            "Handshake: a sample moves when valid and ready are both high at a rising clock edge.",
+            *self.handshake_lines(),
             *self.module.clocking.describe(),
         ]
         config = header_lines(self.config_text)
         if config:
             lines += ["", "Config:"] + [f"  {line}" for line in config]
         self.module.header = lines
+
+    def handshake_lines(self) -> list[str]:
+        if not self.valid_only:
+            return ["Handshake: a sample moves when valid and ready are both high at a rising clock edge."]
+        lines = ["Handshake: valid only. The sink takes every sample: out_valid is high for one clock per"]
+        if self.design.timing.architecture == "pipelined":
+            lines.append("result; a sample is taken at every rising edge where in_valid is high.")
+        else:
+            lines.append("result; a sample is taken when in_valid and in_ready are both high at a rising edge.")
+        lines.append("The outputs hold the last result until the next one.")
+        return lines
 
     def ports(self) -> None:
         """Declare the ports the design lists (the one port description, Design.ports)."""
@@ -176,13 +195,20 @@ class _Core:
         dp, b = self.dp, self.b
         if dp.mode == "vectoring":
             b.param("Y_HALF", 1 << (dp.xy_width - 1), dp.xy_width, "codes at or above this are y < 0", here=True, of="xy")
-        else:
+        elif self.z_widths is None:
             b.param("Z_HALF", 1 << (dp.z_width - 1), dp.z_width, "codes below this are angles >= 0", here=True, of="z")
         if with_table and self.has_z:
             b.note()
+            if self.z_widths is not None:
+                b.note(
+                    "z narrows stage by stage: after iteration i it is within about +-atan(2^-i), so its top\n"
+                    "bits are copies of its sign and are not formed (bounds over every input); each angle\n"
+                    "constant has the width of the z its iteration forms."
+                )
             count = dp.iterations if dp.mode == "vectoring" else dp.iterations - 1
             for i in range(count):
-                b.param(self.angle_name(i), dp.atan_table[i], dp.z_width, self.fn.atan_comment(dp, i), here=True, of="z")
+                width = dp.z_width if self.z_widths is None else self.z_widths[i]
+                b.param(self.angle_name(i), dp.atan_table[i], width, self.fn.atan_comment(dp, i), here=True, of="z")
 
     # ------------------------------------------------------------------ iterations
 
@@ -227,7 +253,12 @@ class _Core:
             d = b.wire(f"dir_{label}", Cmp(">=", y_in, b.p("Y_HALF")))
         else:
             assert z_in is not None
-            d = b.wire(f"dir_{label}", Cmp("<", z_in, b.p("Z_HALF")))
+            if self.z_widths is not None:
+                # z >= 0 at z_in's own width (the compare reads every bit of it, and reduces to
+                # the sign bit in synthesis)
+                d = b.wire(f"dir_{label}", Cmp("<", z_in, Const(1 << (z_in.width - 1), z_in.width)))
+            else:
+                d = b.wire(f"dir_{label}", Cmp("<", z_in, b.p("Z_HALF")))
         # x and y shifted by the iteration's shift (formed only where a value reads them).
         xs: Expr | None = None
         ys: Expr | None = None
@@ -273,6 +304,11 @@ class _Core:
             if kept["z"]:
                 t = b.wire(f"tz_{step.index}", Mux(d, Not(step.atan), step.atan))
                 out.z_kept = nxt[2] = b.kept_add(z_out, z_in, t, d, ZW, kept["z"])
+            elif self.z_widths is not None:
+                # the narrower z this iteration forms: what it drops of z_in are sign copies
+                width = step.atan.width
+                z_src = Slice(z_in, width - 1, 0) if z_in.width > width else b.extend(z_in, width)
+                out.z = nxt[2] = b.wire(z_out, Add(z_src, Mux(d, Not(step.atan), step.atan), d), of="z")
             else:
                 new = Add(z_in, Mux(d, Not(step.atan), step.atan), d)
                 out.z = nxt[2] = b.wire(z_out, Mux(step.active, new, z_in) if step.active is not None else new, of="z")
@@ -286,7 +322,7 @@ class _Core:
     # ------------------------------------------------------------------ output stage
 
     def output_register(
-        self, final: Final, side: dict[str, Expr], valid: Expr, tag: Expr | None, advance: Sig
+        self, final: Final, side: dict[str, Expr], valid: Expr, tag: Expr | None, advance: Sig | None
     ) -> tuple[Final, dict[str, Expr], Expr, Expr | None]:
         """Register what the last iteration formed (and what travels with it), so rounding and
         saturation start from a register instead of sharing a clock with an iteration's adder.
@@ -326,17 +362,61 @@ class _Core:
         m.add(RegisterBlock(updates=(((advance, tuple(loads)),),)))
         return held, side_regs, valid_reg, tag_reg
 
+    def output_view(self, formed: Final) -> Final:
+        """What the output logic reads of values an iteration formed whole (an iterative core's
+        last clock forms every value for the next clock too): the values the function's result
+        needs, and of a truncating core only the bits truncation keeps."""
+        drops = self.fn.drops(self.dp) if self.truncating else {"x": 0, "y": 0, "z": 0}
+        out = Final()
+        for field, needed in zip(("x", "y", "z"), self.final_needs, strict=True):
+            value = getattr(formed, field)
+            if not needed or value is None:
+                continue
+            if drops[field]:
+                setattr(out, f"{field}_kept", Slice(value, value.width - 1, drops[field]))
+            else:
+                setattr(out, field, value)
+        return out
+
     def output_stage(self, final: Final, side: dict[str, Expr], fin_valid: Expr, fin_tag: Expr | None) -> None:
         b = self.b
         b.note()
-        b.note("---- output: rounding, saturation, buffer ----")
+        b.note(f"---- output: rounding, saturation, {'register' if self.valid_only else 'buffer'} ----")
         self.fn.hw_outputs(b, self.dp, final, side)
         if "fin_valid" not in b.signals:
             b.wire("fin_valid", fin_valid)
         if fin_tag is not None:
             b.wire("fin_tag", fin_tag, vector=True)
         b.note()
-        self.output_buffer()
+        if self.valid_only:
+            self.output_plain()
+        else:
+            self.output_buffer()
+
+    def output_plain(self) -> None:
+        """The valid-only handshake's output: one register, loaded with each result."""
+        b, m = self.b, self.module
+        b.note(
+            "Output register: the sink takes every sample, so no buffer; out_valid is high for one\n"
+            "clock per result, and the outputs hold it until the next one."
+        )
+        out_valid = b.known(Sig("out_valid_reg", 1))
+        m.add(Reg(out_valid))
+        ports = [(p.name, p.width) for p in self.design.ports if p.direction == "out" and p.payload]
+        regs: dict[str, Sig] = {}
+        for name, width in ports:
+            regs[name] = b.known(Sig(f"{name}_reg", width, vector=True))
+            m.add(Reg(regs[name]))
+        b.note()
+        fin_valid = b.sig("fin_valid")
+        m.add(RegisterBlock(updates=(((None, ((out_valid, fin_valid),)),),), reset=((out_valid, Const(0, 1)),)))
+        b.note()
+        fin = {name: b.sig("fin_tag" if name == "out_tag" else f"fin_{name}") for name, _ in ports}
+        m.add(RegisterBlock(updates=(((fin_valid, tuple((regs[n], fin[n]) for n, _ in ports)),),)))
+        b.note()
+        m.add(Assign(b.sig("out_valid"), out_valid))
+        for name, _ in ports:
+            m.add(Assign(b.sig(name), regs[name]))
 
     def output_buffer(self) -> None:
         b, m = self.b, self.module
@@ -407,9 +487,13 @@ class _Core:
         bounds = self.design.timing.stages
         self.constants(with_table=True)
         b.note()
-        b.note("The pipeline advances while the output buffer can take a sample.")
-        advance = b.known(Sig("advance", 1))
-        m.add(Decl(advance), Assign(b.sig("in_ready"), advance))
+        advance: Sig | None = None
+        if self.valid_only:
+            b.note("The pipeline moves at every clock: the sink takes every sample.")
+        else:
+            b.note("The pipeline advances while the output buffer can take a sample.")
+            advance = b.known(Sig("advance", 1))
+            m.add(Decl(advance), Assign(b.sig("in_ready"), advance))
         b.note()
         start = self.fn.hw_inputs(b, dp)
         src: tuple[Sig, Sig | None, Sig | None] = (start.x, start.y, start.z)  # type: ignore[assignment]
@@ -469,7 +553,7 @@ class _Core:
                 loads.append((yr, src[1]))  # type: ignore[arg-type]
                 new_src[1] = yr
             if self.has_z:
-                zr = b.reg(f"s{k}_z_reg", dp.z_width, of="z")
+                zr = b.reg(f"s{k}_z_reg", src[2].width, of="z")  # type: ignore[union-attr]
                 m.add(Reg(zr))
                 loads.append((zr, src[2]))  # type: ignore[arg-type]
                 new_src[2] = zr
@@ -492,7 +576,8 @@ class _Core:
             src = (new_src[0], new_src[1], new_src[2])  # type: ignore[assignment]
         final, side_prev, valid_prev, tag_prev = self.output_register(final, side_prev, valid_prev, tag_prev, advance)
         self.output_stage(final, side_prev, valid_prev, tag_prev)
-        m.add(Assign(advance, b.sig("ready_reg")))
+        if advance is not None:
+            m.add(Assign(advance, b.sig("ready_reg")))
 
     # ------------------------------------------------------------------ iterative
 
@@ -511,7 +596,8 @@ class _Core:
         b.note()
         b.note(
             f"One sample at a time: load the start values, then {cycles} clock(s) of\n"
-            f"{per_cycle} iteration(s); the last clock writes the rounded result to the output buffer."
+            f"{per_cycle} iteration(s); the last clock hands the values to the output register, and\n"
+            "the clock after rounds them into the output."
         )
         busy = b.known(Sig("busy_reg", 1))
         m.add(Reg(busy))
@@ -542,7 +628,13 @@ class _Core:
         b.note()
         accept = b.known(Sig("accept", 1))
         m.add(Decl(accept))
-        fin_valid = b.wire("fin_valid", And(busy, last))
+        done = b.wire("done", And(busy, last))
+        ready: Sig | None = None
+        if not self.valid_only:
+            # the output side moves while the output buffer can take a sample (always, under
+            # the valid-only handshake)
+            ready = b.known(Sig("advance", 1))
+            m.add(Decl(ready))
         steps: list[_Step] = []
         for j in range(per_cycle):
             rows = []
@@ -608,15 +700,18 @@ class _Core:
                 x_low = keep_low
             else:
                 src = (src[0] if dp.coordinates == "linear" else fx, fy, fz)  # type: ignore[assignment]
-        self.output_stage(final, side_regs, fin_valid, tag_reg)
-        in_ready, in_valid, ready = b.sig("in_ready"), b.sig("in_valid"), b.sig("ready_reg")
+        if not fixed:
+            final = self.output_view(final)
+        held, held_side, held_valid, held_tag = self.output_register(final, side_regs, done, tag_reg, ready)
+        self.output_stage(held, held_side, held_valid, held_tag)
+        in_ready, in_valid = b.sig("in_ready"), b.sig("in_valid")
         b.note()
         b.note("A new sample is taken when idle, or in the clock that hands the current one over.")
-        m.add(Assign(in_ready, Or(Not(busy), And(last, ready))))
+        m.add(Assign(in_ready, Or(Not(busy), last if ready is None else And(last, ready))))
         m.add(Assign(accept, And(in_valid, in_ready)))
         b.note()
         control: list = [
-            ((accept, ((busy, Const(1, 1)),)), (And(b.sig("fin_valid"), ready), ((busy, Const(0, 1)),))),
+            ((accept, ((busy, Const(1, 1)),)), (done if ready is None else And(done, ready), ((busy, Const(0, 1)),))),
         ]
         reset: list[tuple[Sig, Expr]] = [(busy, Const(0, 1))]
         if count is not None:
@@ -645,6 +740,9 @@ class _Core:
                 back.append((z_reg, src[2]))  # type: ignore[arg-type]
             chain.append((And(busy, Not(last)), tuple(back)))
         m.add(RegisterBlock(updates=(tuple(chain),)))
+        if ready is not None:
+            b.note()
+            m.add(Assign(ready, b.sig("ready_reg")))
 
 
 def build_core(design: Design, *, config_text: str = "") -> Module:

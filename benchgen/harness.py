@@ -95,6 +95,8 @@ class BulkLayout:
         controls: The core's reset and clock enable as the harness connects them: the
             harness's own ``rst`` (active high) drives the core's reset at its level, and a
             clock enable is held high (the per-clock bench is the one that toggles it).
+        in_ready / out_ready: Whether the core has that port (a valid-only core has no
+            ``out_ready``, and a pipelined one no ``in_ready`` either).
     """
 
     core: str
@@ -105,6 +107,8 @@ class BulkLayout:
     in_bytes: int
     out_bytes: int
     controls: tuple[str, ...] = (".rst(rst)",)
+    in_ready: bool = True
+    out_ready: bool = True
 
     @property
     def index_width(self) -> int:
@@ -166,6 +170,8 @@ def bulk_layout(core: str, ports: Sequence[CorePort], *, block: int = DEFAULT_BL
         in_bytes=in_bytes,
         out_bytes=out_bytes,
         controls=tuple(controls),
+        in_ready=any(p.name == "in_ready" for p in ports),
+        out_ready=any(p.name == "out_ready" for p in ports),
     )
 
 

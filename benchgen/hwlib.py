@@ -113,11 +113,14 @@ class Builder:
             self.m.widths.append((name, full, note))
         return name
 
-    def wire(self, name: str, expr: Expr, comment: str = "", *, vector: bool = False, of: str = "") -> Sig:
+    def wire(
+        self, name: str, expr: Expr, comment: str = "", *, vector: bool = False, of: str = "", carry_only: int = 0
+    ) -> Sig:
         """Declare a wire holding ``expr`` (``vector``: declared with a range even at one bit;
-        ``of``: "xy" or "z" for a value of x/y or z, declared with its named width)."""
+        ``of``: "xy" or "z" for a value of x/y or z, declared with its named width;
+        ``carry_only``: its low bits that no one reads, formed for their carry alone)."""
         width_name = self.width_name(of, expr.width) if of else ""
-        sig = self.m.wire(name, expr, comment, width_name, vector=vector)
+        sig = self.m.wire(name, expr, comment, width_name, vector=vector, carry_only=carry_only)
         self.signals[name] = sig
         return sig
 
@@ -171,15 +174,19 @@ class Builder:
         top = Slice(src, width - 1, drop)
         if self.rounding == "truncate":
             return self.wire(f"{out}_q", top)
-        frac = Slice(src, drop - 1, 0)
-        half = Const(1 << (drop - 1), drop)
+        # One full-width add whose low bits only carry into the kept ones: q = (src + bias +
+        # tie) >> drop, with bias = half (half up) or half - 1 plus the kept LSB (half even: a
+        # tie then carries exactly when the kept value is odd). Written as a short add of the
+        # fraction plus a compare feeding the kept bits' carry-in, the same results synthesised
+        # to a longer path (docs/hardware.md, item 6 of issue 10): the carry chain of one adder
+        # is the fastest path an FPGA offers.
+        half = 1 << (drop - 1)
         if self.rounding == "half_up":
-            inc = self.wire(f"{out}_inc", Cmp(">=", frac, half))
-        elif drop == 1:
-            inc = self.wire(f"{out}_inc", And(src[0], src[1]), "a tie: round to the even neighbour")
+            total = Add(src, Const(half, width))
         else:
-            inc = self.wire(f"{out}_inc", Or(Cmp(">", frac, half), And(Cmp("==", frac, half), src[drop])))
-        return self.wire(f"{out}_q", Add(top, Cat((Const(0, width - drop - 1), inc))))
+            total = Add(src, Const(half - 1, width), src[drop])
+        biased = self.wire(f"{out}_biased", total, f"{self.rounding}: bias below the kept bits", carry_only=drop)
+        return self.wire(f"{out}_q", Slice(biased, width - 1, drop))
 
     def saturate(self, out: str, q: Sig, limit: int) -> Sig:
         """``out``: the rounded ``q`` (one bit wider than the result) saturated to +-``limit``."""
@@ -203,8 +210,10 @@ class Builder:
         """The top of ``product`` above ``drop`` bits, rounded half up from all of them, as
         ``keep_width`` bits."""
         pw = product.width
-        inc = Cmp(">=", Slice(product, drop - 1, 0), Const(1 << (drop - 1), drop))
-        return Add(Slice(product, pw - 1, drop), Cat((Const(0, keep_width - 1), inc)))
+        # one add of half an LSB across the whole product (as in round_q), then the top bits
+        biased = Add(product, Const(1 << (drop - 1), pw))
+        assert keep_width == pw - drop
+        return Slice(self.wire(f"{name}_biased", biased, carry_only=drop), pw - 1, drop)
 
     def extend(self, e: Expr, width: int) -> Expr:
         """``e`` sign-extended to ``width`` bits (``{{k{e[top]}}, e}``)."""

@@ -371,6 +371,9 @@ class Wire:
     sig: Sig
     expr: Expr
     comment: str = ""
+    carry_only: int = 0
+    """How many of its low bits no one reads: they are formed only for the carry they pass
+    up (a rounding's full-width add); printers tell linters so."""
 
     def __post_init__(self) -> None:
         if self.sig.width != self.expr.width:
@@ -535,10 +538,13 @@ class Module:
         """Append statements to the body."""
         self.body.extend(statements)
 
-    def wire(self, name: str, expr: Expr, comment: str = "", width_name: str = "", *, vector: bool = False) -> Sig:
-        """Declare and append a wire holding ``expr``; return its signal."""
+    def wire(
+        self, name: str, expr: Expr, comment: str = "", width_name: str = "", *, vector: bool = False, carry_only: int = 0
+    ) -> Sig:
+        """Declare and append a wire holding ``expr``; return its signal (``carry_only``: as
+        :attr:`Wire.carry_only`)."""
         sig = Sig(name, expr.width, width_name, vector)
-        self.body.append(Wire(sig, expr, comment))
+        self.body.append(Wire(sig, expr, comment, carry_only))
         return sig
 
     def param(

@@ -9,6 +9,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 __all__ = [
+    "HANDSHAKES",
     "DEFAULT_HDL",
     "DEFAULT_VLNV_LIBRARY",
     "DEFAULT_VLNV_VENDOR",
@@ -25,6 +26,10 @@ DEFAULT_VLNV_LIBRARY = "cores"
 HDLS = ("verilog", "vhdl")
 """The languages a core is written in: Verilog-2005 (``rtl/NAME.v``), VHDL-2008 (``rtl/NAME.vhd``)."""
 DEFAULT_HDL = ("verilog",)
+#: Stream handshakes: ``ready_valid`` (both streams; the consumer may stall the core) and
+#: ``valid_only`` (no ``out_ready``: for a sink that takes every sample; no output skid buffer,
+#: and a pipelined core, which then takes a sample every clock, has no ``in_ready`` either).
+HANDSHAKES = ("ready_valid", "valid_only")
 """The languages of a core whose config sets no ``hdl``."""
 RESET_STYLES = ("synchronous", "asynchronous")
 """When the reset acts: at a rising clock edge, or at once (the first is the default)."""
@@ -65,6 +70,7 @@ class CoreSpec:
         reset_polarity: ``active_high`` (port ``rst``) or ``active_low`` (port ``rst_n``).
         clock_enable: Add a ``clk_en`` input: while it is low every register of the core holds
             (a clock edge with ``clk_en`` low is no edge for the core).
+        handshake: One of :data:`HANDSHAKES`.
     """
 
     name: str
@@ -88,3 +94,4 @@ class CoreSpec:
     reset_style: str = RESET_STYLES[0]
     reset_polarity: str = RESET_POLARITIES[0]
     clock_enable: bool = False
+    handshake: str = "ready_valid"

@@ -129,7 +129,11 @@ def statement_lines(st: object, clocking: Clocking | None = None) -> list[str]:
     if isinstance(st, Comment):
         return [INDENT + "// " + line if line else "" for line in st.text.split("\n")] if st.text else [""]
     if isinstance(st, Wire):
-        return [f"{INDENT}wire {range_text(st.sig)}{st.sig.name} = {expr_text(st.expr)};{_comment(st.comment)}"]
+        line = f"{INDENT}wire {range_text(st.sig)}{st.sig.name} = {expr_text(st.expr)};{_comment(st.comment)}"
+        if st.carry_only:
+            # the low bits only carry into the kept ones: tell the linter they go unread on purpose
+            return [f"{INDENT}/* verilator lint_off UNUSEDSIGNAL */", line, f"{INDENT}/* verilator lint_on UNUSEDSIGNAL */"]
+        return [line]
     if isinstance(st, Reg):
         return [f"{INDENT}reg {range_text(st.sig)}{st.sig.name};{_comment(st.comment)}"]
     if isinstance(st, Decl):

@@ -427,6 +427,8 @@ FIX_CASES: list[tuple[str, dict[str, Any]]] = [
     ("name_missing", {"name": None}),
     ("function_missing", {"function": None}),
     ("function_typo", {"function": "sincoss"}),
+    ("handshake_typo", {"handshake": "valid"}),
+    ("handshake_bool", {"handshake": False}),
     ("unknown_field", {"data_wdith": 10}),
     ("unknown_table", {"extra": {"a": {"b": 1}}}),
     ("data_width_low", {"data_width": 0}),

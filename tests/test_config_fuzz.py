@@ -32,7 +32,7 @@ FUNCTIONS = ("sincos", "rotate", "atan2", "mul", "div", "sinhcosh", "exp", "atan
 FIELDS = (
     "name", "function", "architecture", "pipeline_depth", "iterations_per_cycle", "angle_width",
     "data_width", "iterations", "guard_bits", "rounding", "tag_width", "max_error_lsb", "gain",
-    "angle_unit", "vlnv_vendor", "vlnv_library",
+    "angle_unit", "vlnv_vendor", "vlnv_library", "handshake",
 )  # fmt: skip
 # Widths of valid configs stay small: sizing runs the model, and 12 bits keep each run short.
 SMALL_WIDTH = (3, 12)
@@ -53,6 +53,7 @@ VALID: dict[str, list[Any]] = {
     "angle_unit": ["turns", "radians"],
     "vlnv_vendor": ["benchgen", "acme.dsp", "Lab-7"],
     "vlnv_library": ["cores", "radio_ip", "1.x"],
+    "handshake": ["ready_valid", "valid_only"],
 }
 
 scalars = st.one_of(
@@ -92,7 +93,8 @@ def valid_configs(draw: st.DrawFn) -> dict[str, Any]:
         config["pipeline_depth"] = draw(st.sampled_from(VALID["pipeline_depth"]))
     if arch == "iterative" and draw(st.booleans()):
         config["iterations_per_cycle"] = draw(st.sampled_from(VALID["iterations_per_cycle"]))
-    for field in ("iterations", "guard_bits", "rounding", "tag_width", "max_error_lsb", "vlnv_vendor", "vlnv_library"):
+    for field in ("iterations", "guard_bits", "rounding", "tag_width", "max_error_lsb", "vlnv_vendor", "vlnv_library",
+                  "handshake"):
         if draw(st.booleans()):
             config[field] = draw(st.sampled_from(VALID[field]))
     return config

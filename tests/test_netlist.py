@@ -31,7 +31,7 @@ SMALL = {
     "sqrt": {"data_width": 9},
 }
 VARIANTS = {
-    "sincos": [{}, {"gain": "raw"}, {"angle_unit": "radians"}],
+    "sincos": [{}, {"gain": "raw"}, {"angle_unit": "radians"}, {"handshake": "valid_only"}],
     "rotate": [{}, {"gain": "raw", "angle_unit": "radians", "angle_width": 6}],
     "atan2": [{}, {"prenormalise": False}, {"gain": "raw", "angle_unit": "radians"}],
     "sinhcosh": [{}, {"gain": "raw"}],

@@ -10,6 +10,7 @@ from benchgen.design import build_design
 from benchgen.functions import FUNCTIONS, input_ports, output_ports
 from benchgen.hardware import build_core
 from benchgen.project import manifest_for
+from benchgen.rtl import render_core
 
 # Small cores, so sizing each one takes a moment.
 SMALL = {"sincos": 8, "rotate": 6, "atan2": 7, "mul": 7, "div": 7,
@@ -36,3 +37,25 @@ def test_the_core_declares_the_ports_its_design_lists(function: str, tag_width: 
     assert manifest["ports"] == {p.name: p.width for p in ports}
     assert manifest["formats"] == {p.name: p.doc for p in input_ports(dp) + output_ports(dp)}
     assert manifest["signed_outputs"] == [p.name for p in output_ports(dp) if p.signed]
+
+
+@pytest.mark.parametrize(
+    ("architecture", "handshake", "readies"),
+    [
+        ("pipelined", "ready_valid", {"in_ready", "out_ready"}),
+        ("iterative", "ready_valid", {"in_ready", "out_ready"}),
+        # a sink that takes every sample: no out_ready; a pipeline then takes a sample every clock
+        ("pipelined", "valid_only", set()),
+        ("iterative", "valid_only", {"in_ready"}),
+    ],
+)
+def test_the_handshake_decides_the_ready_ports(architecture: str, handshake: str, readies: set[str]) -> None:
+    values = {"name": "c", "function": "sincos", "data_width": 8, "angle_width": 8, "architecture": architecture,
+              "handshake": handshake}  # fmt: skip
+    design = build_design(parse_config(values))
+    assert {p.name for p in design.ports if p.name.endswith("_ready")} == readies
+    declared = {p.sig.name for p in build_core(design).ports}
+    assert {n for n in declared if n.endswith("_ready")} == readies
+    # the skid buffer's spare entry exists only where the consumer can stall the core
+    text = render_core(design)
+    assert ("spare_valid_reg" in text) == (handshake == "ready_valid")

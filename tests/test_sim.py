@@ -156,13 +156,16 @@ EDGE_CASES = {
     "one_guard_bit": {"function": "sincos", "data_width": 10, "angle_width": 12, "iterations": 11, "guard_bits": 1, "max_error_lsb": 8.0, "tag_width": 2},
     "no_guard_bits": {"function": "sincos", "data_width": 10, "angle_width": 9, "iterations": 10, "guard_bits": 0, "rounding": "half_up", "max_error_lsb": 8.0, "architecture": "iterative", "iterations_per_cycle": 3},
     "iter_truncate_tag": {"function": "sincos", "data_width": 12, "angle_width": 14, "rounding": "truncate", "max_error_lsb": 1.5, "tag_width": 7, "architecture": "iterative", "iterations_per_cycle": 13},
+    # the valid-only handshake: no out_ready (and pipelined, no in_ready), a plain output register
+    "valid_only_pipelined": {"function": "sincos", "data_width": 12, "angle_width": 12, "tag_width": 3, "pipeline_depth": 4, "handshake": "valid_only"},
+    "valid_only_iterative": {"function": "atan2", "data_width": 10, "architecture": "iterative", "iterations_per_cycle": 4, "handshake": "valid_only"},
 }
 
 
 @pytest.mark.sim
 @pytest.mark.parametrize("case", list(EDGE_CASES))
 def test_edge_configurations(case: str, tmp_path: Path) -> None:
-    simulator = "verilator" if case in ("tag_truncate", "no_guard_bits") else "icarus"
+    simulator = "verilator" if case in ("tag_truncate", "no_guard_bits", "valid_only_pipelined") else "icarus"
     require_simulator(simulator)
     project = make_project(tmp_path, case, EDGE_CASES[case])
     report = run_sim(project, simulator=simulator, samples=3000, seed=99)

@@ -222,7 +222,7 @@ async def test_bulk_gaps_and_stalls(dut: Any) -> None:
     tb.prepare(gaps_count(tb.samples))
     await tb.start(2)
     tally = tb.tally("bulk_gaps_and_stalls")
-    await tb.run(tally, gaps_plan(tb.function, tb.rng(2), tb.samples, tb.layout.block))
+    await tb.run(tally, gaps_plan(tb.function, tb.rng(2), tb.samples, tb.layout.block, stalls=tb.layout.out_ready))
     tb.finish(tally, full_rate=False)
 
 
@@ -235,5 +235,5 @@ async def test_bulk_exhaustive(dut: Any) -> None:
     tb.prepare(1 << bits)
     await tb.start(3)
     tally = tb.tally("bulk_exhaustive")
-    await tb.run(tally, exhaustive_plan(tb.function, tb.layout.block))
+    await tb.run(tally, exhaustive_plan(tb.function, tb.layout.block, stalls=tb.layout.out_ready))
     tb.finish(tally, full_rate=True)

@@ -40,6 +40,8 @@ __all__ = [
     "FAULT_ENV",
     "FIRST_COUNT_PROBLEMS",
     "GAP_PATTERNS",
+    "IDLE_PATTERNS",
+    "gap_patterns",
     "TABLE_MAX_BITS",
     "WORST_SAMPLES",
     "Block",
@@ -72,6 +74,15 @@ per sample then replaces the model's per-sample arithmetic, with the same bit-tr
 GAP_PATTERNS = ((0.0, 0.0), (0.5, 0.0), (0.0, 0.5), (0.3, 0.7))
 """(idle probability, stall probability) of the four segments of the gaps-and-stalls test, and of
 the exhaustive test's four shares of the input space (the first one at full rate)."""
+
+IDLE_PATTERNS = ((0.0, 0.0), (0.5, 0.0), (0.1, 0.0), (0.9, 0.0))
+"""The same for a core that cannot be stalled (valid-only handshake, no ``out_ready``): idle
+gaps of several densities alone."""
+
+
+def gap_patterns(stalls: bool) -> tuple[tuple[float, float], ...]:
+    """:data:`GAP_PATTERNS`, or :data:`IDLE_PATTERNS` for a core with no ``out_ready``."""
+    return GAP_PATTERNS if stalls else IDLE_PATTERNS
 
 EXHAUSTIVE_MIN_CHUNK = 256
 """Fewest samples in one exhaustive chunk. The input space is cut into chunks dealt to the four
@@ -255,9 +266,13 @@ def gaps_count(samples: int) -> int:
     return max(4000, samples // 4)
 
 
-def gaps_plan(fn: BulkFunction, rng: np.random.Generator, samples: int, block: int) -> list[Segment]:
-    """``bulk_gaps_and_stalls``: a quarter of the samples under each of :data:`GAP_PATTERNS`."""
-    per = gaps_count(samples) // len(GAP_PATTERNS)
+def gaps_plan(
+    fn: BulkFunction, rng: np.random.Generator, samples: int, block: int, *, stalls: bool = True
+) -> list[Segment]:
+    """``bulk_gaps_and_stalls``: a quarter of the samples under each of :func:`gap_patterns`
+    (``stalls``: whether the core has an ``out_ready`` to stall)."""
+    patterns = gap_patterns(stalls)
+    per = gaps_count(samples) // len(patterns)
     return [
         Segment(
             f"pattern {k} (idle {idle}, stall {stall}): ",
@@ -266,7 +281,7 @@ def gaps_plan(fn: BulkFunction, rng: np.random.Generator, samples: int, block: i
             stall=stall,
             pattern_check=True,
         )
-        for k, (idle, stall) in enumerate(GAP_PATTERNS)
+        for k, (idle, stall) in enumerate(patterns)
     ]
 
 
@@ -278,8 +293,9 @@ def _chunks(make: Callable[[int, int], Inputs], starts: range, chunk: int) -> Ca
     return gen
 
 
-def exhaustive_plan(fn: BulkFunction, block: int) -> list[Segment]:
-    """``bulk_exhaustive``: every input code, a share of them under each of :data:`GAP_PATTERNS`.
+def exhaustive_plan(fn: BulkFunction, block: int, *, stalls: bool = True) -> list[Segment]:
+    """``bulk_exhaustive``: every input code, a share of them under each of :func:`gap_patterns`
+    (``stalls``: whether the core has an ``out_ready`` to stall).
 
     A core that loses, repeats or reorders samples only when its consumer stalls (or its source
     idles) passes a run at full rate, so the space is cut into chunks of at least
@@ -289,19 +305,20 @@ def exhaustive_plan(fn: BulkFunction, block: int) -> list[Segment]:
     A space too small for four chunks runs whole under every pattern, repeated up to
     :data:`EXHAUSTIVE_MIN_CHUNK` samples, so each pattern has the clocks to show itself.
     """
+    patterns = gap_patterns(stalls)
     total = 1 << fn.space_bits
-    if total < len(GAP_PATTERNS) * EXHAUSTIVE_MIN_CHUNK:
+    if total < len(patterns) * EXHAUSTIVE_MIN_CHUNK:
         count = total * -(-EXHAUSTIVE_MIN_CHUNK // total)
 
         def cycled(start: int, n: int) -> Inputs:
             return fn._split(np.arange(start, start + n, dtype=np.int64) % total)
 
-        shares = [_blocks(cycled, count, block) for _ in GAP_PATTERNS]
+        shares = [_blocks(cycled, count, block) for _ in patterns]
     else:
         # Sixteen chunks or more, so each pattern's share spans the whole space.
-        chunk = max(EXHAUSTIVE_MIN_CHUNK, min(block, total // (4 * len(GAP_PATTERNS))))
-        step = len(GAP_PATTERNS) * chunk
-        shares = [_chunks(fn.enumerate, range(k * chunk, total, step), chunk) for k in range(len(GAP_PATTERNS))]
+        chunk = max(EXHAUSTIVE_MIN_CHUNK, min(block, total // (4 * len(patterns))))
+        step = len(patterns) * chunk
+        shares = [_chunks(fn.enumerate, range(k * chunk, total, step), chunk) for k in range(len(patterns))]
     return [
         Segment(
             f"pattern {k} (idle {idle}, stall {stall}): ",
@@ -311,7 +328,7 @@ def exhaustive_plan(fn: BulkFunction, block: int) -> list[Segment]:
             pattern_check=True,
             timed=not (idle or stall),
         )
-        for k, ((idle, stall), share) in enumerate(zip(GAP_PATTERNS, shares, strict=True))
+        for k, ((idle, stall), share) in enumerate(zip(patterns, shares, strict=True))
     ]
 
 

@@ -392,12 +392,12 @@ def run_native(
     build = build_native(project, manifest, layout, info, build_dir)
     run = NativeRun(build=build)
     if exhaustive:
-        tests = [_Test("bulk_exhaustive", 3, exhaustive_plan(fn, layout.block), True, 1 << fn.space_bits)]
+        tests = [_Test("bulk_exhaustive", 3, exhaustive_plan(fn, layout.block, stalls=layout.out_ready), True, 1 << fn.space_bits)]
     else:
         tests = [
             _Test("bulk_full_rate", 1, full_rate_plan(fn, bench.rng(1), samples, layout.block), True, samples),
             _Test(
-                "bulk_gaps_and_stalls", 2, gaps_plan(fn, bench.rng(2), samples, layout.block), False,
+                "bulk_gaps_and_stalls", 2, gaps_plan(fn, bench.rng(2), samples, layout.block, stalls=layout.out_ready), False,
                 gaps_count(samples),
             ),
         ]  # fmt: skip

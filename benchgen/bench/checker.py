@@ -170,11 +170,12 @@ class StreamDriver:
     Args:
         clk: The clock handle.
         valid: The valid handle to drive.
-        ready: The ready handle to watch.
+        ready: The ready handle to watch, or ``None`` for an input that takes a sample at every
+            edge where valid is high (a valid-only pipelined core).
         data: The data handles to drive, by the name of the values :meth:`send` takes.
     """
 
-    def __init__(self, clk: Any, valid: Any, ready: Any, data: Mapping[str, Any]) -> None:
+    def __init__(self, clk: Any, valid: Any, ready: Any | None, data: Mapping[str, Any]) -> None:
         self.clk = clk
         self.valid = valid
         self.ready = ready
@@ -217,7 +218,7 @@ class StreamDriver:
                 # ready as the design settles with this sample offered: what the next edge sees
                 # (a ready that depends on valid included).
                 await settled
-                taken = bool(self.ready.value)
+                taken = self.ready is None or bool(self.ready.value)
                 await edge
                 if taken:
                     break
@@ -292,12 +293,18 @@ class CoreChecker:
         self.in_ports = [p.name for p in ins if p.role == "data"]
         self.out_ports = [p.name for p in outs if p.role == "data"]
         self.tagged = any(p.role == "tag" for p in ins)
+        names = {p.name for p in ports}
+
+        def ready(name: str) -> Any | None:
+            # a valid-only core has no out_ready (and, pipelined, no in_ready): always ready
+            return handle(name) if name in names or name in found else None
+
         self.inputs = StreamMonitor(
-            self.clk, handle("in_valid"), handle("in_ready"), {p.name: handle(p.name) for p in ins},
+            self.clk, handle("in_valid"), ready("in_ready"), {p.name: handle(p.name) for p in ins},
             signed=tuple(p.name for p in ins if p.signed), name="core input",
         )  # fmt: skip
         self.outputs = StreamMonitor(
-            self.clk, handle("out_valid"), handle("out_ready"), {p.name: handle(p.name) for p in outs},
+            self.clk, handle("out_valid"), ready("out_ready"), {p.name: handle(p.name) for p in outs},
             signed=tuple(p.name for p in outs if p.signed), name="core output",
         )  # fmt: skip
         self.seed = int(cocotb.RANDOM_SEED)

@@ -87,8 +87,14 @@ class StreamBench:
         enable: str = "",
         enable_seed: int | list[int] = 0,
         enable_low: float = 0.3,
+        in_ready: bool = True,
+        out_ready: bool = True,
     ) -> None:
         self.dut = dut
+        # A valid-only core has no out_ready (the sink takes every sample) and, pipelined, no
+        # in_ready (it takes a sample at every edge where in_valid is high).
+        self.has_in_ready = in_ready
+        self.has_out_ready = out_ready
         self.inputs = inputs
         self.outputs = outputs
         self.signed = frozenset(signed)
@@ -133,7 +139,8 @@ class StreamBench:
         """
         dut = self.dut
         dut.in_valid.value = 0
-        dut.out_ready.value = 1
+        if self.has_out_ready:
+            dut.out_ready.value = 1
         cleared: bool | None = None
         if mid_clock:
             await FallingEdge(self.clk)
@@ -185,10 +192,18 @@ class StreamBench:
         handles_in = [getattr(dut, n) for n in names]
         handles_out = [getattr(dut, n) for n in self.outputs]
         signed_out = [n in self.signed for n in self.outputs]
-        in_valid, in_ready = dut.in_valid, dut.in_ready
-        out_valid, out_ready = dut.out_valid, dut.out_ready
+        in_valid = dut.in_valid
+        in_ready = dut.in_ready if self.has_in_ready else None
+        out_valid = dut.out_valid
         idle_pat = [bool(v) for v in idle] if idle is not None and len(idle) else [False]
         stall_pat = [bool(v) for v in stall] if stall is not None and len(stall) else [False]
+        if not self.has_out_ready and any(stall_pat):
+            raise ValueError("the core has no out_ready (valid-only handshake): it cannot be stalled")
+
+        class _AlwaysReady:
+            value = 1
+
+        out_ready = dut.out_ready if self.has_out_ready else _AlwaysReady()
         limit = max_cycles if max_cycles is not None else 100 * (count + 64)
 
         cap = Capture(in_values={n: [] for n in names}, out_values={n: [] for n in self.outputs})
@@ -211,7 +226,7 @@ class StreamBench:
         def snapshot() -> tuple[int, ...]:
             # What must hold through an edge with the enable low (X or Z read as -1).
             values = []
-            for h in (in_ready, out_valid, *handles_out):
+            for h in (*((in_ready,) if in_ready is not None else ()), out_valid, *handles_out):
                 try:
                     values.append(int(h.value))
                 except ValueError:
@@ -264,7 +279,7 @@ class StreamBench:
             self.cycle += 1
             clocks += 1
             # The handshake the core saw at this edge.
-            if offering and in_ready.value:
+            if offering and (in_ready is None or in_ready.value):
                 cap.in_cycles.append(self.cycle)
                 for n in names:
                     cap.in_values[n].append(values[n][sent])
@@ -303,7 +318,8 @@ class StreamBench:
         """Hold the consumer off (and the enable high) until ``out_valid`` is high, so a sample
         waits at the output; whether one did within ``max_cycles`` clocks."""
         self.dut.in_valid.value = 0
-        self.dut.out_ready.value = 0
+        if self.has_out_ready:
+            self.dut.out_ready.value = 0
         if self.enable_handle is not None:
             self.enable_handle.value = 1
         for _ in range(max_cycles):
@@ -318,7 +334,8 @@ class StreamBench:
         """Let the core run with no input and the consumer ready; return out_valid per clock."""
         seen = []
         self.dut.in_valid.value = 0
-        self.dut.out_ready.value = 1
+        if self.has_out_ready:
+            self.dut.out_ready.value = 1
         for _ in range(cycles):
             await RisingEdge(self.clk)
             self.edges += 1

@@ -156,13 +156,20 @@ def clocking_of(spec: CoreSpec) -> Clocking:
     )
 
 
-def core_ports(dp: Datapath, tag_width: int, clocking: Clocking | None = None) -> tuple[CorePort, ...]:
+def core_ports(
+    dp: Datapath,
+    tag_width: int,
+    clocking: Clocking | None = None,
+    handshake: str = "ready_valid",
+    architecture: str = "pipelined",
+) -> tuple[CorePort, ...]:
     """Every port of the core, in the order its module declares them.
 
     The function's data ports (:func:`input_ports`, :func:`output_ports`) with the ports the
     hardware adds around them: clock, reset (named by ``clocking``, ``rst`` by default), the
     clock enable where ``clocking`` has one, each stream's valid and ready, and the tag that
-    travels with each sample when ``tag_width`` is not 0.
+    travels with each sample when ``tag_width`` is not 0. A ``valid_only`` handshake has no
+    ``out_ready``, and a pipelined core then takes a sample every clock, so no ``in_ready``.
     """
     clocking = clocking or Clocking()
     enable = [CorePort(clocking.enable, 1, "in", "enable")] if clocking.enable else []
@@ -172,16 +179,19 @@ def core_ports(dp: Datapath, tag_width: int, clocking: Clocking | None = None) -
 
     tag_in = [CorePort("in_tag", tag_width, "in", "tag")] if tag_width else []
     tag_out = [CorePort("out_tag", tag_width, "out", "tag")] if tag_width else []
+    ready_valid = handshake == "ready_valid"
+    in_ready = [CorePort("in_ready", 1, "out", "handshake")] if ready_valid or architecture != "pipelined" else []
+    out_ready = [CorePort("out_ready", 1, "in", "handshake")] if ready_valid else []
     return (
         CorePort("clk", 1, "in", "clock"),
         CorePort(clocking.reset, 1, "in", "reset", active_low=clocking.active_low),
         *enable,
         CorePort("in_valid", 1, "in", "handshake"),
-        CorePort("in_ready", 1, "out", "handshake"),
+        *in_ready,
         *data(input_ports(dp), "in"),
         *tag_in,
         CorePort("out_valid", 1, "out", "handshake"),
-        CorePort("out_ready", 1, "in", "handshake"),
+        *out_ready,
         *data(output_ports(dp), "out"),
         *tag_out,
     )

@@ -298,6 +298,11 @@ class Function:
 
     # ---------------------------------------------------------------- hardware
 
+    def z_start_range(self, dp: Datapath) -> tuple[int, int] | None:
+        """Bounds of z as the iterations start (z codes), over every input, where the function
+        can state them for a rotation; None keeps z at its full width through the pipeline."""
+        return None
+
     def carries(self, dp: Datapath) -> tuple[bool, bool]:
         """Whether the core carries y and z at all."""
         return True, True

@@ -266,6 +266,25 @@ class CircularFunction(Function):
         z = to_signed(folded, n_bits) << (dp.z_width - n_bits)
         return z, fold
 
+    def z_start_range(self, dp: Datapath) -> tuple[int, int] | None:
+        """A rotation starts from the folded angle (sincos, rotate)."""
+        return self.fold_range(dp) if dp.mode == "rotation" else None  # type: ignore[arg-type]
+
+    @staticmethod
+    def fold_range(dp: CircularDatapath) -> tuple[int, int]:
+        """Bounds of z after :meth:`fold`, over every angle code (z codes)."""
+        a, zw = dp.angle_width, dp.z_width
+        if not dp.radians:
+            # the folded angle's top two bits are equal: within [-1/4, 1/4) turn
+            return -(1 << (zw - 2)), (1 << (zw - 2)) - (1 << (zw - a))
+        pad = dp.z_frac - dp.angle_frac
+        top, bottom = ((1 << (a - 1)) - 1) << pad, -(1 << (a - 1)) << pad
+        half_pi, pi = dp.pi_const >> 1, dp.pi_const
+        # kept within +-pi/2; above it moved down by pi, below it up by pi
+        lo = min(-half_pi, half_pi + 1 - pi, bottom + pi)
+        hi = max(half_pi, top - pi, -half_pi - 1 + pi)
+        return lo, hi
+
     @staticmethod
     def prescale(dp: CircularDatapath, values: npt.NDArray[Any]) -> npt.NDArray[Any]:
         """Input data at internal scale: times K_n with the guard bits (compensated), or

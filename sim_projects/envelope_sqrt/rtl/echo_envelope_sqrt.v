@@ -14,7 +14,7 @@
 // z is not needed (the result is x), so it is not built.
 // Worst error against the ideal, bit-true model: 0.9502 LSB (RMS 0.3298 LSB),
 // measured over every one of the 16384 input codes.
-// Timing: latency 5 clocks from input handshake to output handshake, one
+// Timing: latency 6 clocks from input handshake to output handshake, one
 // sample every 4 clock(s) at full rate.
 // Handshake: a sample moves when valid and ready are both high at a rising clock edge.
 // rst is synchronous and active high; it clears the control state, not the data path.
@@ -63,14 +63,18 @@ module echo_envelope_sqrt (
     wire [13:0] in_m = in_w << {in_half, 1'b0};
     // m times 1/A_n = 1.2074847754 at 6 guard bits; the 16 dropped bits round half up.
     wire [36:0] m_prod = {23'h000000, in_m} * 37'h00004d476e;
-    wire [20:0] m_scaled = m_prod[36:16] + {20'h00000, (m_prod[15:0] >= 16'h8000)};
+    /* verilator lint_off UNUSEDSIGNAL */
+    wire [36:0] m_scaled_biased = m_prod + 37'h0000008000;
+    /* verilator lint_on UNUSEDSIGNAL */
+    wire [20:0] m_scaled = m_scaled_biased[36:16];
     wire [22:0] m_wide = {2'h0, m_scaled};
     localparam [22:0] QUARTER = 23'h04d477;  // 1/4 times 1/A_n
     wire [XY_W-1:0] x_start = m_wide + QUARTER;
     wire [XY_W-1:0] y_start = m_wide - QUARTER;
 
     // One sample at a time: load the start values, then 4 clock(s) of
-    // 2 iteration(s); the last clock writes the rounded result to the output buffer.
+    // 2 iteration(s); the last clock hands the values to the output register, and
+    // the clock after rounds them into the output.
     reg busy_reg;
     reg [1:0] count_reg;
     wire last = (count_reg == 2'h3);
@@ -81,7 +85,8 @@ module echo_envelope_sqrt (
     reg [2:0] half_reg;
 
     wire accept;
-    wire fin_valid = busy_reg & last;
+    wire done = busy_reg & last;
+    wire advance;
 
     // shift and angle constant of iteration 0 of each clock
     reg [2:0] shift_j0;
@@ -121,18 +126,46 @@ module echo_envelope_sqrt (
     wire [XY_W-1:0] x_2 = x_1 + (dir_j1 ? ys_j1 : ~ys_j1) + {22'h000000, ~dir_j1};
     wire [XY_W-1:0] y_2 = y_1 + (dir_j1 ? xs_j1 : ~xs_j1) + {22'h000000, ~dir_j1};
 
+    // ---- output register: the last iteration's values, held so that rounding and
+    // saturation have a clock of their own ----
+    reg o_valid_reg;
+    reg [XY_W-1:0] o_x_reg;
+    reg [3:0] o_tag_reg;
+    reg [0:0] o_zero_reg;
+    reg [2:0] o_half_reg;
+
+    always @(posedge clk) begin
+        if (rst) begin
+            o_valid_reg <= 1'b0;
+        end else if (advance) begin
+            o_valid_reg <= done;
+        end
+    end
+
+    always @(posedge clk) begin
+        if (advance) begin
+            o_x_reg <= x_2;
+            o_tag_reg <= tag_reg;
+            o_zero_reg <= zero_reg;
+            o_half_reg <= half_reg;
+        end
+    end
+
     // ---- output: rounding, saturation, buffer ----
     // undo the normalisation: shift right by k with every bit kept, then round once
-    wire [28:0] sq_wide = $signed({x_2, 6'h00}) >>> half_reg;
+    wire [28:0] sq_wide = $signed({o_x_reg, 6'h00}) >>> o_half_reg;
     // sq: drop 12 bit(s), half_even
-    wire sq_inc = (sq_wide[11:0] > 12'h800) | ((sq_wide[11:0] == 12'h800) & sq_wide[12]);
-    wire [16:0] sq_q = sq_wide[28:12] + {16'h0000, sq_inc};
+    /* verilator lint_off UNUSEDSIGNAL */
+    wire [28:0] sq_biased = sq_wide + 29'h000007ff + {28'h0000000, sq_wide[12]};  // half_even: bias below the kept bits
+    /* verilator lint_on UNUSEDSIGNAL */
+    wire [16:0] sq_q = sq_biased[28:12];
     // clamp to [0, 16383]: the value is never negative; rounding can reach the top
     wire sq_value_neg = sq_q[16];
     wire sq_value_over = ~sq_value_neg & (sq_q[15:14] != 2'h0);
     wire [13:0] sq_value = sq_value_neg ? 14'h0000 : sq_value_over ? 14'h3fff : sq_q[13:0];
-    wire [13:0] fin_out_sqrt = zero_reg ? 14'h0000 : sq_value;
-    wire [3:0] fin_tag = tag_reg;
+    wire [13:0] fin_out_sqrt = o_zero_reg ? 14'h0000 : sq_value;
+    wire fin_valid = o_valid_reg;
+    wire [3:0] fin_tag = o_tag_reg;
 
     // Output buffer with two entries. out_ready reaches only this buffer and ready_reg; the
     // core advances while ready_reg is high. When the consumer stalls, the sample already on
@@ -192,7 +225,7 @@ module echo_envelope_sqrt (
     assign out_tag = out_tag_reg;
 
     // A new sample is taken when idle, or in the clock that hands the current one over.
-    assign in_ready = ~busy_reg | (last & ready_reg);
+    assign in_ready = ~busy_reg | (last & advance);
     assign accept = in_valid & in_ready;
 
     always @(posedge clk) begin
@@ -202,7 +235,7 @@ module echo_envelope_sqrt (
         end else begin
             if (accept) begin
                 busy_reg <= 1'b1;
-            end else if (fin_valid & ready_reg) begin
+            end else if (done & advance) begin
                 busy_reg <= 1'b0;
             end
             if (accept) begin
@@ -225,6 +258,8 @@ module echo_envelope_sqrt (
             y_reg <= y_2;
         end
     end
+
+    assign advance = ready_reg;
 
 endmodule
 
