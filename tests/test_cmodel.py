@@ -361,3 +361,22 @@ def test_project_writes_and_lists_the_c_model() -> None:
     assert {f"c/{name}.h", f"c/{name}.c"} <= set(manifest["files"]["generated"]) <= set(files)
     assert manifest["files"]["c_model"] == {"header": f"c/{name}.h", "source": f"c/{name}.c", "function": f"{name}_model"}
     assert f"void {name}_model(" in files[f"c/{name}.h"] and f"c/{name}.h" in files["README.md"]
+
+
+def test_docs_example_compiles_and_agrees(tmp_path: Path) -> None:
+    """docs/c_model.md's C example, built as the page says, prints the numpy model's codes."""
+    text = (Path(__file__).resolve().parent.parent / "docs" / "c_model.md").read_text()
+    example = re.search(r"```c\n(.*?)```", text, re.S)
+    assert example, "no C example in docs/c_model.md"
+    design = quick_design({"name": "nco_core", "function": "sincos", "data_width": 16, "angle_width": 16}, 18, 5)
+    _write(design, tmp_path)
+    (tmp_path / "main.c").write_text(example.group(1))
+    done = subprocess.run(
+        [c_compiler(), *STRICT, "-O2", "-I", str(tmp_path), str(tmp_path / "main.c"), str(tmp_path / "nco_core.c"),
+         "-o", str(tmp_path / "main")],
+        capture_output=True, text=True,
+    )
+    assert done.returncode == 0, done.stderr
+    printed = subprocess.run([str(tmp_path / "main")], capture_output=True, text=True, check=True).stdout.split()
+    want = evaluate(design.datapath, {"in_angle": np.array([8192])})
+    assert printed == [str(int(want["out_cos"][0])), str(int(want["out_sin"][0]))]
