@@ -25,7 +25,7 @@ from benchgen.hardware import build_core, header_lines
 from benchgen.netlist import Module
 from benchgen.rtl import template_environment, tidy_text
 
-__all__ = ["c_model_files", "c_model_paths", "model_function_name", "model_module"]
+__all__ = ["c_model_files", "c_model_paths", "model_function_name", "model_module", "render_c_model"]
 
 
 def model_function_name(design: Design) -> str:
@@ -111,30 +111,57 @@ def _header(design: Design, twin: bool, config_text: str, file_note: str) -> lis
     return [c_comment(line) for text in lines for line in text.split("\n")]
 
 
-def c_model_files(design: Design, *, config_text: str = "") -> dict[str, str]:
-    """The C model's header and source, by path inside the project."""
-    module, twin = model_module(design)
-    inputs, outputs = _ports(design)
-    name = model_function_name(design)
-    parts = function_parts(module, name, inputs, outputs)
-    header_path, source_path = c_model_paths(design)
+def render_c_model(
+    module: Module,
+    function: str,
+    inputs: list[CPort],
+    outputs: list[CPort],
+    *,
+    stem: str,
+    header: tuple[list[str], list[str]] = ([], []),
+    macros: list[str] | None = None,
+) -> tuple[str, str]:
+    """The header and source text of a model printed from ``module`` (feed-forward).
+
+    Args:
+        module: The description.
+        function: The C function's name.
+        inputs: Data inputs, in order.
+        outputs: Data outputs, in order.
+        stem: File name without extension (the source includes ``stem.h``).
+        header: Comment lines of the header file and of the source file.
+        macros: ``#define`` lines of the header.
+    """
+    parts = function_parts(module, function, inputs, outputs)
     env = template_environment()
-    guard = f"BENCHGEN_{design.spec.name.upper()}_MODEL_H"
-    macros = [f"#define {design.spec.name.upper()}_{p.name.upper()}_BITS {p.width}" for p in inputs + outputs]
+    guard = f"BENCHGEN_{stem.upper()}_MODEL_H"
     doc = [
         f"/* One sample: {', '.join(p.name for p in inputs)} in; "
         f"{', '.join('*' + p.name for p in outputs)} out (every pointer must be valid). */",
     ]
     h = env.get_template("model.h.j2").render(
-        header=_header(design, twin, config_text, "The header: include it, compile and link the source beside it."),
-        guard=guard,
-        macros=macros,
-        doc=doc,
-        prototype=parts["prototype"],
+        header=header[0], guard=guard, macros=macros or [], doc=doc, prototype=parts["prototype"]
     )
-    c = env.get_template("model.c.j2").render(
-        header=_header(design, twin, config_text, "The source: compile it with any C99 (or later) compiler."),
-        include=header_path.rsplit("/", 1)[-1],
-        **parts,
+    c = env.get_template("model.c.j2").render(header=header[1], include=f"{stem}.h", **parts)
+    return tidy_text(h), tidy_text(c)
+
+
+def c_model_files(design: Design, *, config_text: str = "") -> dict[str, str]:
+    """The C model's header and source, by path inside the project."""
+    module, twin = model_module(design)
+    inputs, outputs = _ports(design)
+    header_path, source_path = c_model_paths(design)
+    name = design.spec.name
+    h, c = render_c_model(
+        module,
+        model_function_name(design),
+        inputs,
+        outputs,
+        stem=name,
+        header=(
+            _header(design, twin, config_text, "The header: include it, compile and link the source beside it."),
+            _header(design, twin, config_text, "The source: compile it with any C99 (or later) compiler."),
+        ),
+        macros=[f"#define {name.upper()}_{p.name.upper()}_BITS {p.width}" for p in inputs + outputs],
     )
-    return {header_path: tidy_text(h), source_path: tidy_text(c)}
+    return {header_path: h, source_path: c}

@@ -380,3 +380,110 @@ def test_docs_example_compiles_and_agrees(tmp_path: Path) -> None:
     printed = subprocess.run([str(tmp_path / "main")], capture_output=True, text=True, check=True).stdout.split()
     want = evaluate(design.datapath, {"in_angle": np.array([8192])})
     assert printed == [str(int(want["out_cos"][0])), str(int(want["out_sin"][0]))]
+
+
+# ----------------------------------------------------------------------------- every node kind
+
+
+def _node_module(width: int) -> tuple[Any, list[Any], list[Any]]:
+    """A description that applies every kind of expression to two ``width``-bit values (built
+    from 64-bit input ports) and outputs each result in 64-bit pieces."""
+    from benchgen.cprinter import CPort
+    from benchgen.netlist import Add, And, Assign, Cat, Cmp, Const, Mul, Mux, Neg, Not, Or, Rep, Shl, Slice, Sra, Xor
+    from benchgen.netlist import Module as NetModule
+
+    def zeros_above(e: Any) -> Any:
+        return e if e.width == width else Cat((Const(0, width - e.width), e))
+
+    m = NetModule(name="nodes")
+    chunks = [min(64, width - lo) for lo in range(0, width, 64)]
+    inputs: list[CPort] = []
+
+    def value(tag: str) -> Any:
+        parts = []
+        for k, w in enumerate(chunks):
+            inputs.append(CPort(f"{tag}{k}", w, False))
+            parts.append(m.port(f"{tag}{k}", w, "in", vector=True))
+        return m.wire(f"{tag}_all", Cat(tuple(reversed(parts))) if len(parts) > 1 else parts[0])
+
+    a, b = value("a"), value("b")
+    inputs.append(CPort("amount", 8, False))
+    inputs.append(CPort("sel", 1, False))
+    amount, sel = m.port("amount", 8, "in", vector=True), m.port("sel", 1, "in")
+    half = max(1, width // 2)
+    results = {
+        "add": Add(a, b),
+        "addc": Add(a, b, sel),
+        "sub": Add(a, b, subtract=True),
+        "neg": Neg(a),
+        "mul": Mul(a, b),
+        "not": Not(a),
+        "and": And(a, b),
+        "or": Or(a, b),
+        "xor": Xor(a, b),
+        "mux": Mux(sel, a, b),
+        "shl": Shl(a, amount),
+        "sra": Sra(a, amount),
+        "top": zeros_above(Slice(a, width - 1, width - half)),
+        "mid": zeros_above(Slice(a, half, half - 2)) if width >= 4 else Not(a),
+        "rep": Rep(width, sel),
+        "rep2": zeros_above(Rep(width // 2, Slice(b, 1, 0))) if width >= 2 else Rep(1, b),
+        "const": Add(a, Const(-3, width)),
+    }
+    for op in ("==", "!=", "<", "<=", ">", ">="):
+        for signed in (False, True):
+            results[f"cmp{'s' if signed else 'u'}{len(results)}"] = zeros_above(Cmp(op, a, b, signed))
+    outputs: list[CPort] = []
+    for name, expr in results.items():
+        sig = m.wire(f"r_{name}", expr)
+        for k, w in enumerate(chunks):
+            port = m.port(f"o_{name}_{k}", w, "out", vector=True)
+            m.add(Assign(port, Slice(sig, 64 * k + w - 1, 64 * k)))
+            outputs.append(CPort(f"o_{name}_{k}", w, False))
+    return m, inputs, outputs
+
+
+@pytest.mark.parametrize("width", [1, 7, 63, 64, 65, 100, 139, 192])
+def test_every_node_kind_prints_as_the_evaluator_computes(width: int, tmp_path: Path) -> None:
+    """The printer against netlist.evaluate on random values and the edges (0, all ones, the
+    sign bit, shifts past the width), for widths on both sides of 64 and limb boundaries."""
+    from benchgen.cmodel import render_c_model
+    from benchgen.netlist import evaluate as run_netlist
+
+    module, inputs, outputs = _node_module(width)
+    h, c = render_c_model(module, "nodes_model", inputs, outputs, stem="nodes")
+    assert ("bg_wide" in c) == (width > 64)
+    (tmp_path / "nodes.h").write_text(h)
+    (tmp_path / "nodes.c").write_text(c)
+    args = [f"const uint64_t *{p.name}" for p in inputs] + [f"uint64_t *{p.name}" for p in outputs]
+    call = [f"({c_type(p.width, False)}){p.name}[i]" for p in inputs] + [f"&o_{p.name}" for p in outputs]
+    (tmp_path / "run.c").write_text(
+        '#include "nodes.h"\n'
+        f"void run_nodes(long n, {', '.join(args)});\n"
+        f"void run_nodes(long n, {', '.join(args)})\n{{\n    long i;\n    for (i = 0; i < n; i++) {{\n"
+        + "".join(f"        {c_type(p.width, False)} o_{p.name};\n" for p in outputs)
+        + f"        nodes_model({', '.join(call)});\n"
+        + "".join(f"        {p.name}[i] = o_{p.name};\n" for p in outputs)
+        + "    }\n}\n"
+    )
+    _compile([tmp_path / "nodes.c", tmp_path / "run.c"], tmp_path / "nodes.so")
+    lib = ctypes.CDLL(str(tmp_path / "nodes.so"))
+    rng = np.random.default_rng(width)
+    n = 3000
+    values: dict[str, list[int]] = {}
+    for p in inputs:
+        top = (1 << p.width) - 1
+        edges = [0, top, 1 << (p.width - 1), top >> 1, 1]
+        drawn = [int(x) << 2 | int(x) & 3 for x in rng.integers(0, 1 << 62, n, dtype=np.int64)]
+        # every fourth value an edge (zero, all ones, the sign bit alone, the largest positive)
+        values[p.name] = [edges[k // 4 % len(edges)] if k % 4 == 0 else x & top for k, x in enumerate(drawn)]
+    # Shift amounts around the width and 64, where C's own shifts would be undefined.
+    spread = [0, 1, 63, 64, 65, max(0, width - 1), width, min(255, width + 1), 255]
+    values["amount"] = [spread[k % len(spread)] if k % 2 else v for k, v in enumerate(values["amount"])]
+    arrays = {k: np.array(v, dtype=np.uint64) for k, v in values.items()}
+    outs = {p.name: np.zeros(n, dtype=np.uint64) for p in outputs}
+    ptrs = [ctypes.c_void_p(arrays[p.name].ctypes.data) for p in inputs] + [ctypes.c_void_p(outs[p.name].ctypes.data) for p in outputs]
+    lib.run_nodes(ctypes.c_long(n), *ptrs)
+    want = run_netlist(module, {k: np.array(v, dtype=object) for k, v in values.items()})
+    bad = [p.name for p in outputs if [int(x) for x in want[p.name]] != [int(x) for x in outs[p.name]]]
+    assert bad == []
