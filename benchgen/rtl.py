@@ -31,6 +31,7 @@ __all__ = [
     "render_vhdl_module",
     "template_dir",
     "template_environment",
+    "tidy_text",
     "verilog_literal",
 ]
 
@@ -82,6 +83,10 @@ def _tidy(text: str) -> str:
     while lines and not lines[-1]:
         lines.pop()
     return "\n".join(lines) + "\n"
+
+
+tidy_text = _tidy
+"""Generated text made byte-stable: one trailing newline, no trailing blanks, no blank runs."""
 
 
 def render_core(design: Design, *, config_text: str = "") -> str:

@@ -210,8 +210,11 @@ def test_regenerate_over_a_manifest_without_a_file_list(
     manifest = json.loads((out / "manifest.json").read_text())
     del manifest["files"]["generated"]
     (out / "manifest.json").write_text(json.dumps(manifest, indent=2, sort_keys=True) + "\n")
-    # Those versions wrote no FuseSoC core file either (it came with the file list).
+    # Those versions wrote no FuseSoC core file or C model either (they came with the file list).
     (out / "core_a.core").unlink()
+    for rel in ("c/core_a.c", "c/core_a.h"):
+        (out / rel).unlink()
+    (out / "c").rmdir()
     status, _ = run_cli(capsys, "generate", config(tmp_path, "c.toml", CONFIG_C), "-o", out)
     assert status == 0
     assert tree(out) == states["c"]
@@ -226,6 +229,9 @@ def test_a_users_own_core_file_in_a_project_without_a_file_list_is_kept(
     del manifest["files"]["generated"]
     (out / "manifest.json").write_text(json.dumps(manifest, indent=2, sort_keys=True) + "\n")
     (out / "core_a.core").write_text("CAPI=2:\nname: me:mine:core_a:1.0\n")
+    for rel in ("c/core_a.c", "c/core_a.h"):  # those versions wrote no C model
+        (out / rel).unlink()
+    (out / "c").rmdir()
     before = tree(out)
     status, err = run_cli(capsys, "generate", config(tmp_path, "a.toml", CONFIG_A), "-o", out)
     assert status == 2
@@ -611,7 +617,7 @@ def test_project_folders_get_the_mode_the_umask_gives(
     assert {rel: m for rel, m in modes.items() if rel not in folders} == {
         rel: file_mode for rel in modes if rel not in folders
     }
-    assert folders == {"", "rtl", "bench"}
+    assert folders == {"", "rtl", "bench", "c"}
 
 
 # ------------------------------------------------------------- 5. one generate at a time per folder
