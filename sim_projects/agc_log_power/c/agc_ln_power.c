@@ -8,7 +8,7 @@
  * It is the core's function, not its timing: no clock, latency, handshake or tag (the RTL's
  * result for an input leaves 5 clock(s) after it enters).
  * Printed from the same description of the core as the RTL.
- * Arithmetic: hyperbolic coordinates, vectoring mode, 15 iterations, 5 guard bits; x, y 24 bits, z 19 bits.
+ * Arithmetic: hyperbolic coordinates, vectoring mode, 16 iterations, 3 guard bits; x, y 22 bits, z 17 bits.
  *
  * Ports (formats)
  *   in_w           unsigned fixed point, 16 bits with 16 fraction bits, [0, 1)
@@ -39,22 +39,23 @@
  */
 #include "agc_ln_power.h"
 
-static const uint64_t Y_HALF = UINT64_C(0x800000); /* codes at or above this are y < 0 */
-static const uint64_t ATANH_0 = UINT64_C(0x1193f); /* atanh(2^-1) */
-static const uint64_t ATANH_1 = UINT64_C(0x82c5); /* atanh(2^-2) */
-static const uint64_t ATANH_2 = UINT64_C(0x4056); /* atanh(2^-3) */
-static const uint64_t ATANH_3 = UINT64_C(0x200b); /* atanh(2^-4) */
-static const uint64_t ATANH_4 = UINT64_C(0x200b); /* atanh(2^-4) */
-static const uint64_t ATANH_5 = UINT64_C(0x1001); /* atanh(2^-5) */
-static const uint64_t ATANH_6 = UINT64_C(0x800); /* atanh(2^-6) */
-static const uint64_t ATANH_7 = UINT64_C(0x400); /* atanh(2^-7) */
-static const uint64_t ATANH_8 = UINT64_C(0x200); /* atanh(2^-8) */
-static const uint64_t ATANH_9 = UINT64_C(0x100); /* atanh(2^-9) */
-static const uint64_t ATANH_10 = UINT64_C(0x80); /* atanh(2^-10) */
-static const uint64_t ATANH_11 = UINT64_C(0x40); /* atanh(2^-11) */
-static const uint64_t ATANH_12 = UINT64_C(0x20); /* atanh(2^-12) */
-static const uint64_t ATANH_13 = UINT64_C(0x10); /* atanh(2^-13) */
-static const uint64_t ATANH_14 = UINT64_C(0x10); /* atanh(2^-13) */
+static const uint64_t Y_HALF = UINT64_C(0x200000); /* codes at or above this are y < 0 */
+static const uint64_t ATANH_0 = UINT64_C(0x4650); /* atanh(2^-1) */
+static const uint64_t ATANH_1 = UINT64_C(0x20b1); /* atanh(2^-2) */
+static const uint64_t ATANH_2 = UINT64_C(0x1016); /* atanh(2^-3) */
+static const uint64_t ATANH_3 = UINT64_C(0x803); /* atanh(2^-4) */
+static const uint64_t ATANH_4 = UINT64_C(0x803); /* atanh(2^-4) */
+static const uint64_t ATANH_5 = UINT64_C(0x400); /* atanh(2^-5) */
+static const uint64_t ATANH_6 = UINT64_C(0x200); /* atanh(2^-6) */
+static const uint64_t ATANH_7 = UINT64_C(0x100); /* atanh(2^-7) */
+static const uint64_t ATANH_8 = UINT64_C(0x80); /* atanh(2^-8) */
+static const uint64_t ATANH_9 = UINT64_C(0x40); /* atanh(2^-9) */
+static const uint64_t ATANH_10 = UINT64_C(0x20); /* atanh(2^-10) */
+static const uint64_t ATANH_11 = UINT64_C(0x10); /* atanh(2^-11) */
+static const uint64_t ATANH_12 = UINT64_C(8); /* atanh(2^-12) */
+static const uint64_t ATANH_13 = UINT64_C(4); /* atanh(2^-13) */
+static const uint64_t ATANH_14 = UINT64_C(4); /* atanh(2^-13) */
+static const uint64_t ATANH_15 = UINT64_C(2); /* atanh(2^-14) */
 
 /* The low w bits set (w from 1 to 64). */
 static uint64_t bg_mask(unsigned w)
@@ -86,32 +87,39 @@ void agc_ln_power_model(uint16_t in_w, int16_t *out_ln, uint8_t *out_domain_erro
     const uint64_t in_bad = (uint64_t)(in_w_bits == UINT64_C(0));
     const uint64_t in_lz = ((in_w_bits >> 15) ? UINT64_C(0) : (((in_w_bits >> 14) & UINT64_C(1)) ? UINT64_C(1) : (((in_w_bits >> 13) & UINT64_C(1)) ? UINT64_C(2) : (((in_w_bits >> 12) & UINT64_C(1)) ? UINT64_C(3) : (((in_w_bits >> 11) & UINT64_C(1)) ? UINT64_C(4) : (((in_w_bits >> 10) & UINT64_C(1)) ? UINT64_C(5) : (((in_w_bits >> 9) & UINT64_C(1)) ? UINT64_C(6) : (((in_w_bits >> 8) & UINT64_C(1)) ? UINT64_C(7) : (((in_w_bits >> 7) & UINT64_C(1)) ? UINT64_C(8) : (((in_w_bits >> 6) & UINT64_C(1)) ? UINT64_C(9) : (((in_w_bits >> 5) & UINT64_C(1)) ? UINT64_C(0xa) : (((in_w_bits >> 4) & UINT64_C(1)) ? UINT64_C(0xb) : (((in_w_bits >> 3) & UINT64_C(1)) ? UINT64_C(0xc) : (((in_w_bits >> 2) & UINT64_C(1)) ? UINT64_C(0xd) : (((in_w_bits >> 1) & UINT64_C(1)) ? UINT64_C(0xe) : UINT64_C(0xf))))))))))))))));
     const uint64_t in_m = bg_shl(in_w_bits, in_lz, 16u);
-    const uint64_t x_start = ((((UINT64_C(1) << 16) | in_m) << 5) | UINT64_C(0));
-    const uint64_t y_start = ((((UINT64_C(7) << 16) | in_m) << 5) | UINT64_C(0));
+    const uint64_t x_start = ((((UINT64_C(1) << 16) | in_m) << 3) | UINT64_C(0));
+    const uint64_t y_start = ((((UINT64_C(7) << 16) | in_m) << 3) | UINT64_C(0));
     const uint64_t z_start = UINT64_C(0);
 
-    /* ---- stage 0: iterations 0 to 2 ---- */
+    /* ---- stage 0: iterations 0 to 3 ---- */
     /* iteration 0 (shift 1): turn counter-clockwise when y < 0 */
     const uint64_t dir_0 = (uint64_t)(y_start >= Y_HALF);
-    const uint64_t xs_0 = ((((x_start >> 23) ? UINT64_C(1) : UINT64_C(0)) << 23) | (x_start >> 1)); /* x >>> 1 */
-    const uint64_t ys_0 = ((((y_start >> 23) ? UINT64_C(1) : UINT64_C(0)) << 23) | (y_start >> 1)); /* y >>> 1 */
-    const uint64_t x_1 = ((x_start + (dir_0 ? ys_0 : ((~ys_0) & UINT64_C(0xffffff))) + ((~dir_0) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t y_1 = ((y_start + (dir_0 ? xs_0 : ((~xs_0) & UINT64_C(0xffffff))) + ((~dir_0) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t z_1 = ((z_start + (dir_0 ? ((~ATANH_0) & UINT64_C(0x7ffff)) : ATANH_0) + dir_0) & UINT64_C(0x7ffff));
+    const uint64_t xs_0 = ((((x_start >> 21) ? UINT64_C(1) : UINT64_C(0)) << 21) | (x_start >> 1)); /* x >>> 1 */
+    const uint64_t ys_0 = ((((y_start >> 21) ? UINT64_C(1) : UINT64_C(0)) << 21) | (y_start >> 1)); /* y >>> 1 */
+    const uint64_t x_1 = ((x_start + (dir_0 ? ys_0 : ((~ys_0) & UINT64_C(0x3fffff))) + ((~dir_0) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t y_1 = ((y_start + (dir_0 ? xs_0 : ((~xs_0) & UINT64_C(0x3fffff))) + ((~dir_0) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t z_1 = ((z_start + (dir_0 ? ((~ATANH_0) & UINT64_C(0x1ffff)) : ATANH_0) + dir_0) & UINT64_C(0x1ffff));
     /* iteration 1 (shift 2): turn counter-clockwise when y < 0 */
     const uint64_t dir_1 = (uint64_t)(y_1 >= Y_HALF);
-    const uint64_t xs_1 = ((((x_1 >> 23) ? UINT64_C(3) : UINT64_C(0)) << 22) | (x_1 >> 2)); /* x >>> 2 */
-    const uint64_t ys_1 = ((((y_1 >> 23) ? UINT64_C(3) : UINT64_C(0)) << 22) | (y_1 >> 2)); /* y >>> 2 */
-    const uint64_t x_2 = ((x_1 + (dir_1 ? ys_1 : ((~ys_1) & UINT64_C(0xffffff))) + ((~dir_1) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t y_2 = ((y_1 + (dir_1 ? xs_1 : ((~xs_1) & UINT64_C(0xffffff))) + ((~dir_1) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t z_2 = ((z_1 + (dir_1 ? ((~ATANH_1) & UINT64_C(0x7ffff)) : ATANH_1) + dir_1) & UINT64_C(0x7ffff));
+    const uint64_t xs_1 = ((((x_1 >> 21) ? UINT64_C(3) : UINT64_C(0)) << 20) | (x_1 >> 2)); /* x >>> 2 */
+    const uint64_t ys_1 = ((((y_1 >> 21) ? UINT64_C(3) : UINT64_C(0)) << 20) | (y_1 >> 2)); /* y >>> 2 */
+    const uint64_t x_2 = ((x_1 + (dir_1 ? ys_1 : ((~ys_1) & UINT64_C(0x3fffff))) + ((~dir_1) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t y_2 = ((y_1 + (dir_1 ? xs_1 : ((~xs_1) & UINT64_C(0x3fffff))) + ((~dir_1) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t z_2 = ((z_1 + (dir_1 ? ((~ATANH_1) & UINT64_C(0x1ffff)) : ATANH_1) + dir_1) & UINT64_C(0x1ffff));
     /* iteration 2 (shift 3): turn counter-clockwise when y < 0 */
     const uint64_t dir_2 = (uint64_t)(y_2 >= Y_HALF);
-    const uint64_t xs_2 = ((((x_2 >> 23) ? UINT64_C(7) : UINT64_C(0)) << 21) | (x_2 >> 3)); /* x >>> 3 */
-    const uint64_t ys_2 = ((((y_2 >> 23) ? UINT64_C(7) : UINT64_C(0)) << 21) | (y_2 >> 3)); /* y >>> 3 */
-    const uint64_t s0_x = ((x_2 + (dir_2 ? ys_2 : ((~ys_2) & UINT64_C(0xffffff))) + ((~dir_2) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t s0_y = ((y_2 + (dir_2 ? xs_2 : ((~xs_2) & UINT64_C(0xffffff))) + ((~dir_2) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t s0_z = ((z_2 + (dir_2 ? ((~ATANH_2) & UINT64_C(0x7ffff)) : ATANH_2) + dir_2) & UINT64_C(0x7ffff));
+    const uint64_t xs_2 = ((((x_2 >> 21) ? UINT64_C(7) : UINT64_C(0)) << 19) | (x_2 >> 3)); /* x >>> 3 */
+    const uint64_t ys_2 = ((((y_2 >> 21) ? UINT64_C(7) : UINT64_C(0)) << 19) | (y_2 >> 3)); /* y >>> 3 */
+    const uint64_t x_3 = ((x_2 + (dir_2 ? ys_2 : ((~ys_2) & UINT64_C(0x3fffff))) + ((~dir_2) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t y_3 = ((y_2 + (dir_2 ? xs_2 : ((~xs_2) & UINT64_C(0x3fffff))) + ((~dir_2) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t z_3 = ((z_2 + (dir_2 ? ((~ATANH_2) & UINT64_C(0x1ffff)) : ATANH_2) + dir_2) & UINT64_C(0x1ffff));
+    /* iteration 3 (shift 4): turn counter-clockwise when y < 0 */
+    const uint64_t dir_3 = (uint64_t)(y_3 >= Y_HALF);
+    const uint64_t xs_3 = ((((x_3 >> 21) ? UINT64_C(0xf) : UINT64_C(0)) << 18) | (x_3 >> 4)); /* x >>> 4 */
+    const uint64_t ys_3 = ((((y_3 >> 21) ? UINT64_C(0xf) : UINT64_C(0)) << 18) | (y_3 >> 4)); /* y >>> 4 */
+    const uint64_t s0_x = ((x_3 + (dir_3 ? ys_3 : ((~ys_3) & UINT64_C(0x3fffff))) + ((~dir_3) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t s0_y = ((y_3 + (dir_3 ? xs_3 : ((~xs_3) & UINT64_C(0x3fffff))) + ((~dir_3) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t s0_z = ((z_3 + (dir_3 ? ((~ATANH_3) & UINT64_C(0x1ffff)) : ATANH_3) + dir_3) & UINT64_C(0x1ffff));
 
     const uint64_t s0_x_reg = s0_x;  /* register, passed through */
     const uint64_t s0_y_reg = s0_y;  /* register, passed through */
@@ -119,35 +127,35 @@ void agc_ln_power_model(uint16_t in_w, int16_t *out_ln, uint8_t *out_domain_erro
     const uint64_t s0_bad_reg = in_bad;  /* register, passed through */
     const uint64_t s0_lz_reg = in_lz;  /* register, passed through */
 
-    /* ---- stage 1: iterations 3 to 6 ---- */
-    /* iteration 3 (shift 4): turn counter-clockwise when y < 0 */
-    const uint64_t dir_3 = (uint64_t)(s0_y_reg >= Y_HALF);
-    const uint64_t xs_3 = ((((s0_x_reg >> 23) ? UINT64_C(0xf) : UINT64_C(0)) << 20) | (s0_x_reg >> 4)); /* x >>> 4 */
-    const uint64_t ys_3 = ((((s0_y_reg >> 23) ? UINT64_C(0xf) : UINT64_C(0)) << 20) | (s0_y_reg >> 4)); /* y >>> 4 */
-    const uint64_t x_4 = ((s0_x_reg + (dir_3 ? ys_3 : ((~ys_3) & UINT64_C(0xffffff))) + ((~dir_3) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t y_4 = ((s0_y_reg + (dir_3 ? xs_3 : ((~xs_3) & UINT64_C(0xffffff))) + ((~dir_3) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t z_4 = ((s0_z_reg + (dir_3 ? ((~ATANH_3) & UINT64_C(0x7ffff)) : ATANH_3) + dir_3) & UINT64_C(0x7ffff));
+    /* ---- stage 1: iterations 4 to 7 ---- */
     /* iteration 4 (shift 4): turn counter-clockwise when y < 0 */
-    const uint64_t dir_4 = (uint64_t)(y_4 >= Y_HALF);
-    const uint64_t xs_4 = ((((x_4 >> 23) ? UINT64_C(0xf) : UINT64_C(0)) << 20) | (x_4 >> 4)); /* x >>> 4 */
-    const uint64_t ys_4 = ((((y_4 >> 23) ? UINT64_C(0xf) : UINT64_C(0)) << 20) | (y_4 >> 4)); /* y >>> 4 */
-    const uint64_t x_5 = ((x_4 + (dir_4 ? ys_4 : ((~ys_4) & UINT64_C(0xffffff))) + ((~dir_4) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t y_5 = ((y_4 + (dir_4 ? xs_4 : ((~xs_4) & UINT64_C(0xffffff))) + ((~dir_4) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t z_5 = ((z_4 + (dir_4 ? ((~ATANH_4) & UINT64_C(0x7ffff)) : ATANH_4) + dir_4) & UINT64_C(0x7ffff));
+    const uint64_t dir_4 = (uint64_t)(s0_y_reg >= Y_HALF);
+    const uint64_t xs_4 = ((((s0_x_reg >> 21) ? UINT64_C(0xf) : UINT64_C(0)) << 18) | (s0_x_reg >> 4)); /* x >>> 4 */
+    const uint64_t ys_4 = ((((s0_y_reg >> 21) ? UINT64_C(0xf) : UINT64_C(0)) << 18) | (s0_y_reg >> 4)); /* y >>> 4 */
+    const uint64_t x_5 = ((s0_x_reg + (dir_4 ? ys_4 : ((~ys_4) & UINT64_C(0x3fffff))) + ((~dir_4) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t y_5 = ((s0_y_reg + (dir_4 ? xs_4 : ((~xs_4) & UINT64_C(0x3fffff))) + ((~dir_4) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t z_5 = ((s0_z_reg + (dir_4 ? ((~ATANH_4) & UINT64_C(0x1ffff)) : ATANH_4) + dir_4) & UINT64_C(0x1ffff));
     /* iteration 5 (shift 5): turn counter-clockwise when y < 0 */
     const uint64_t dir_5 = (uint64_t)(y_5 >= Y_HALF);
-    const uint64_t xs_5 = ((((x_5 >> 23) ? UINT64_C(0x1f) : UINT64_C(0)) << 19) | (x_5 >> 5)); /* x >>> 5 */
-    const uint64_t ys_5 = ((((y_5 >> 23) ? UINT64_C(0x1f) : UINT64_C(0)) << 19) | (y_5 >> 5)); /* y >>> 5 */
-    const uint64_t x_6 = ((x_5 + (dir_5 ? ys_5 : ((~ys_5) & UINT64_C(0xffffff))) + ((~dir_5) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t y_6 = ((y_5 + (dir_5 ? xs_5 : ((~xs_5) & UINT64_C(0xffffff))) + ((~dir_5) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t z_6 = ((z_5 + (dir_5 ? ((~ATANH_5) & UINT64_C(0x7ffff)) : ATANH_5) + dir_5) & UINT64_C(0x7ffff));
+    const uint64_t xs_5 = ((((x_5 >> 21) ? UINT64_C(0x1f) : UINT64_C(0)) << 17) | (x_5 >> 5)); /* x >>> 5 */
+    const uint64_t ys_5 = ((((y_5 >> 21) ? UINT64_C(0x1f) : UINT64_C(0)) << 17) | (y_5 >> 5)); /* y >>> 5 */
+    const uint64_t x_6 = ((x_5 + (dir_5 ? ys_5 : ((~ys_5) & UINT64_C(0x3fffff))) + ((~dir_5) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t y_6 = ((y_5 + (dir_5 ? xs_5 : ((~xs_5) & UINT64_C(0x3fffff))) + ((~dir_5) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t z_6 = ((z_5 + (dir_5 ? ((~ATANH_5) & UINT64_C(0x1ffff)) : ATANH_5) + dir_5) & UINT64_C(0x1ffff));
     /* iteration 6 (shift 6): turn counter-clockwise when y < 0 */
     const uint64_t dir_6 = (uint64_t)(y_6 >= Y_HALF);
-    const uint64_t xs_6 = ((((x_6 >> 23) ? UINT64_C(0x3f) : UINT64_C(0)) << 18) | (x_6 >> 6)); /* x >>> 6 */
-    const uint64_t ys_6 = ((((y_6 >> 23) ? UINT64_C(0x3f) : UINT64_C(0)) << 18) | (y_6 >> 6)); /* y >>> 6 */
-    const uint64_t s1_x = ((x_6 + (dir_6 ? ys_6 : ((~ys_6) & UINT64_C(0xffffff))) + ((~dir_6) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t s1_y = ((y_6 + (dir_6 ? xs_6 : ((~xs_6) & UINT64_C(0xffffff))) + ((~dir_6) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t s1_z = ((z_6 + (dir_6 ? ((~ATANH_6) & UINT64_C(0x7ffff)) : ATANH_6) + dir_6) & UINT64_C(0x7ffff));
+    const uint64_t xs_6 = ((((x_6 >> 21) ? UINT64_C(0x3f) : UINT64_C(0)) << 16) | (x_6 >> 6)); /* x >>> 6 */
+    const uint64_t ys_6 = ((((y_6 >> 21) ? UINT64_C(0x3f) : UINT64_C(0)) << 16) | (y_6 >> 6)); /* y >>> 6 */
+    const uint64_t x_7 = ((x_6 + (dir_6 ? ys_6 : ((~ys_6) & UINT64_C(0x3fffff))) + ((~dir_6) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t y_7 = ((y_6 + (dir_6 ? xs_6 : ((~xs_6) & UINT64_C(0x3fffff))) + ((~dir_6) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t z_7 = ((z_6 + (dir_6 ? ((~ATANH_6) & UINT64_C(0x1ffff)) : ATANH_6) + dir_6) & UINT64_C(0x1ffff));
+    /* iteration 7 (shift 7): turn counter-clockwise when y < 0 */
+    const uint64_t dir_7 = (uint64_t)(y_7 >= Y_HALF);
+    const uint64_t xs_7 = ((((x_7 >> 21) ? UINT64_C(0x7f) : UINT64_C(0)) << 15) | (x_7 >> 7)); /* x >>> 7 */
+    const uint64_t ys_7 = ((((y_7 >> 21) ? UINT64_C(0x7f) : UINT64_C(0)) << 15) | (y_7 >> 7)); /* y >>> 7 */
+    const uint64_t s1_x = ((x_7 + (dir_7 ? ys_7 : ((~ys_7) & UINT64_C(0x3fffff))) + ((~dir_7) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t s1_y = ((y_7 + (dir_7 ? xs_7 : ((~xs_7) & UINT64_C(0x3fffff))) + ((~dir_7) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t s1_z = ((z_7 + (dir_7 ? ((~ATANH_7) & UINT64_C(0x1ffff)) : ATANH_7) + dir_7) & UINT64_C(0x1ffff));
 
     const uint64_t s1_x_reg = s1_x;  /* register, passed through */
     const uint64_t s1_y_reg = s1_y;  /* register, passed through */
@@ -155,35 +163,35 @@ void agc_ln_power_model(uint16_t in_w, int16_t *out_ln, uint8_t *out_domain_erro
     const uint64_t s1_bad_reg = s0_bad_reg;  /* register, passed through */
     const uint64_t s1_lz_reg = s0_lz_reg;  /* register, passed through */
 
-    /* ---- stage 2: iterations 7 to 10 ---- */
-    /* iteration 7 (shift 7): turn counter-clockwise when y < 0 */
-    const uint64_t dir_7 = (uint64_t)(s1_y_reg >= Y_HALF);
-    const uint64_t xs_7 = ((((s1_x_reg >> 23) ? UINT64_C(0x7f) : UINT64_C(0)) << 17) | (s1_x_reg >> 7)); /* x >>> 7 */
-    const uint64_t ys_7 = ((((s1_y_reg >> 23) ? UINT64_C(0x7f) : UINT64_C(0)) << 17) | (s1_y_reg >> 7)); /* y >>> 7 */
-    const uint64_t x_8 = ((s1_x_reg + (dir_7 ? ys_7 : ((~ys_7) & UINT64_C(0xffffff))) + ((~dir_7) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t y_8 = ((s1_y_reg + (dir_7 ? xs_7 : ((~xs_7) & UINT64_C(0xffffff))) + ((~dir_7) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t z_8 = ((s1_z_reg + (dir_7 ? ((~ATANH_7) & UINT64_C(0x7ffff)) : ATANH_7) + dir_7) & UINT64_C(0x7ffff));
+    /* ---- stage 2: iterations 8 to 11 ---- */
     /* iteration 8 (shift 8): turn counter-clockwise when y < 0 */
-    const uint64_t dir_8 = (uint64_t)(y_8 >= Y_HALF);
-    const uint64_t xs_8 = ((((x_8 >> 23) ? UINT64_C(0xff) : UINT64_C(0)) << 16) | (x_8 >> 8)); /* x >>> 8 */
-    const uint64_t ys_8 = ((((y_8 >> 23) ? UINT64_C(0xff) : UINT64_C(0)) << 16) | (y_8 >> 8)); /* y >>> 8 */
-    const uint64_t x_9 = ((x_8 + (dir_8 ? ys_8 : ((~ys_8) & UINT64_C(0xffffff))) + ((~dir_8) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t y_9 = ((y_8 + (dir_8 ? xs_8 : ((~xs_8) & UINT64_C(0xffffff))) + ((~dir_8) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t z_9 = ((z_8 + (dir_8 ? ((~ATANH_8) & UINT64_C(0x7ffff)) : ATANH_8) + dir_8) & UINT64_C(0x7ffff));
+    const uint64_t dir_8 = (uint64_t)(s1_y_reg >= Y_HALF);
+    const uint64_t xs_8 = ((((s1_x_reg >> 21) ? UINT64_C(0xff) : UINT64_C(0)) << 14) | (s1_x_reg >> 8)); /* x >>> 8 */
+    const uint64_t ys_8 = ((((s1_y_reg >> 21) ? UINT64_C(0xff) : UINT64_C(0)) << 14) | (s1_y_reg >> 8)); /* y >>> 8 */
+    const uint64_t x_9 = ((s1_x_reg + (dir_8 ? ys_8 : ((~ys_8) & UINT64_C(0x3fffff))) + ((~dir_8) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t y_9 = ((s1_y_reg + (dir_8 ? xs_8 : ((~xs_8) & UINT64_C(0x3fffff))) + ((~dir_8) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t z_9 = ((s1_z_reg + (dir_8 ? ((~ATANH_8) & UINT64_C(0x1ffff)) : ATANH_8) + dir_8) & UINT64_C(0x1ffff));
     /* iteration 9 (shift 9): turn counter-clockwise when y < 0 */
     const uint64_t dir_9 = (uint64_t)(y_9 >= Y_HALF);
-    const uint64_t xs_9 = ((((x_9 >> 23) ? UINT64_C(0x1ff) : UINT64_C(0)) << 15) | (x_9 >> 9)); /* x >>> 9 */
-    const uint64_t ys_9 = ((((y_9 >> 23) ? UINT64_C(0x1ff) : UINT64_C(0)) << 15) | (y_9 >> 9)); /* y >>> 9 */
-    const uint64_t x_10 = ((x_9 + (dir_9 ? ys_9 : ((~ys_9) & UINT64_C(0xffffff))) + ((~dir_9) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t y_10 = ((y_9 + (dir_9 ? xs_9 : ((~xs_9) & UINT64_C(0xffffff))) + ((~dir_9) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t z_10 = ((z_9 + (dir_9 ? ((~ATANH_9) & UINT64_C(0x7ffff)) : ATANH_9) + dir_9) & UINT64_C(0x7ffff));
+    const uint64_t xs_9 = ((((x_9 >> 21) ? UINT64_C(0x1ff) : UINT64_C(0)) << 13) | (x_9 >> 9)); /* x >>> 9 */
+    const uint64_t ys_9 = ((((y_9 >> 21) ? UINT64_C(0x1ff) : UINT64_C(0)) << 13) | (y_9 >> 9)); /* y >>> 9 */
+    const uint64_t x_10 = ((x_9 + (dir_9 ? ys_9 : ((~ys_9) & UINT64_C(0x3fffff))) + ((~dir_9) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t y_10 = ((y_9 + (dir_9 ? xs_9 : ((~xs_9) & UINT64_C(0x3fffff))) + ((~dir_9) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t z_10 = ((z_9 + (dir_9 ? ((~ATANH_9) & UINT64_C(0x1ffff)) : ATANH_9) + dir_9) & UINT64_C(0x1ffff));
     /* iteration 10 (shift 10): turn counter-clockwise when y < 0 */
     const uint64_t dir_10 = (uint64_t)(y_10 >= Y_HALF);
-    const uint64_t xs_10 = ((((x_10 >> 23) ? UINT64_C(0x3ff) : UINT64_C(0)) << 14) | (x_10 >> 10)); /* x >>> 10 */
-    const uint64_t ys_10 = ((((y_10 >> 23) ? UINT64_C(0x3ff) : UINT64_C(0)) << 14) | (y_10 >> 10)); /* y >>> 10 */
-    const uint64_t s2_x = ((x_10 + (dir_10 ? ys_10 : ((~ys_10) & UINT64_C(0xffffff))) + ((~dir_10) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t s2_y = ((y_10 + (dir_10 ? xs_10 : ((~xs_10) & UINT64_C(0xffffff))) + ((~dir_10) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t s2_z = ((z_10 + (dir_10 ? ((~ATANH_10) & UINT64_C(0x7ffff)) : ATANH_10) + dir_10) & UINT64_C(0x7ffff));
+    const uint64_t xs_10 = ((((x_10 >> 21) ? UINT64_C(0x3ff) : UINT64_C(0)) << 12) | (x_10 >> 10)); /* x >>> 10 */
+    const uint64_t ys_10 = ((((y_10 >> 21) ? UINT64_C(0x3ff) : UINT64_C(0)) << 12) | (y_10 >> 10)); /* y >>> 10 */
+    const uint64_t x_11 = ((x_10 + (dir_10 ? ys_10 : ((~ys_10) & UINT64_C(0x3fffff))) + ((~dir_10) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t y_11 = ((y_10 + (dir_10 ? xs_10 : ((~xs_10) & UINT64_C(0x3fffff))) + ((~dir_10) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t z_11 = ((z_10 + (dir_10 ? ((~ATANH_10) & UINT64_C(0x1ffff)) : ATANH_10) + dir_10) & UINT64_C(0x1ffff));
+    /* iteration 11 (shift 11): turn counter-clockwise when y < 0 */
+    const uint64_t dir_11 = (uint64_t)(y_11 >= Y_HALF);
+    const uint64_t xs_11 = ((((x_11 >> 21) ? UINT64_C(0x7ff) : UINT64_C(0)) << 11) | (x_11 >> 11)); /* x >>> 11 */
+    const uint64_t ys_11 = ((((y_11 >> 21) ? UINT64_C(0x7ff) : UINT64_C(0)) << 11) | (y_11 >> 11)); /* y >>> 11 */
+    const uint64_t s2_x = ((x_11 + (dir_11 ? ys_11 : ((~ys_11) & UINT64_C(0x3fffff))) + ((~dir_11) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t s2_y = ((y_11 + (dir_11 ? xs_11 : ((~xs_11) & UINT64_C(0x3fffff))) + ((~dir_11) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t s2_z = ((z_11 + (dir_11 ? ((~ATANH_11) & UINT64_C(0x1ffff)) : ATANH_11) + dir_11) & UINT64_C(0x1ffff));
 
     const uint64_t s2_x_reg = s2_x;  /* register, passed through */
     const uint64_t s2_y_reg = s2_y;  /* register, passed through */
@@ -191,31 +199,31 @@ void agc_ln_power_model(uint16_t in_w, int16_t *out_ln, uint8_t *out_domain_erro
     const uint64_t s2_bad_reg = s1_bad_reg;  /* register, passed through */
     const uint64_t s2_lz_reg = s1_lz_reg;  /* register, passed through */
 
-    /* ---- stage 3: iterations 11 to 14 ---- */
-    /* iteration 11 (shift 11): turn counter-clockwise when y < 0 */
-    const uint64_t dir_11 = (uint64_t)(s2_y_reg >= Y_HALF);
-    const uint64_t xs_11 = ((((s2_x_reg >> 23) ? UINT64_C(0x7ff) : UINT64_C(0)) << 13) | (s2_x_reg >> 11)); /* x >>> 11 */
-    const uint64_t ys_11 = ((((s2_y_reg >> 23) ? UINT64_C(0x7ff) : UINT64_C(0)) << 13) | (s2_y_reg >> 11)); /* y >>> 11 */
-    const uint64_t x_12 = ((s2_x_reg + (dir_11 ? ys_11 : ((~ys_11) & UINT64_C(0xffffff))) + ((~dir_11) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t y_12 = ((s2_y_reg + (dir_11 ? xs_11 : ((~xs_11) & UINT64_C(0xffffff))) + ((~dir_11) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t z_12 = ((s2_z_reg + (dir_11 ? ((~ATANH_11) & UINT64_C(0x7ffff)) : ATANH_11) + dir_11) & UINT64_C(0x7ffff));
+    /* ---- stage 3: iterations 12 to 15 ---- */
     /* iteration 12 (shift 12): turn counter-clockwise when y < 0 */
-    const uint64_t dir_12 = (uint64_t)(y_12 >= Y_HALF);
-    const uint64_t xs_12 = ((((x_12 >> 23) ? UINT64_C(0xfff) : UINT64_C(0)) << 12) | (x_12 >> 12)); /* x >>> 12 */
-    const uint64_t ys_12 = ((((y_12 >> 23) ? UINT64_C(0xfff) : UINT64_C(0)) << 12) | (y_12 >> 12)); /* y >>> 12 */
-    const uint64_t tx_12 = (dir_12 ? ys_12 : ((~ys_12) & UINT64_C(0xffffff)));
-    const uint64_t c_x_13 = (uint64_t)(((((UINT64_C(0) << 13) | (x_12 & UINT64_C(0x1fff))) + ((UINT64_C(0) << 13) | (tx_12 & UINT64_C(0x1fff))) + ((~dir_12) & UINT64_C(1))) & UINT64_C(0x3fff)) > ((UINT64_C(0) << 13) | UINT64_C(0x1fff)));
-    const uint64_t x_13_kept = (((x_12 >> 13) + (tx_12 >> 13) + c_x_13) & UINT64_C(0x7ff));
-    const uint64_t y_13 = ((y_12 + (dir_12 ? xs_12 : ((~xs_12) & UINT64_C(0xffffff))) + ((~dir_12) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t z_13 = ((z_12 + (dir_12 ? ((~ATANH_12) & UINT64_C(0x7ffff)) : ATANH_12) + dir_12) & UINT64_C(0x7ffff));
+    const uint64_t dir_12 = (uint64_t)(s2_y_reg >= Y_HALF);
+    const uint64_t xs_12 = ((((s2_x_reg >> 21) ? UINT64_C(0xfff) : UINT64_C(0)) << 10) | (s2_x_reg >> 12)); /* x >>> 12 */
+    const uint64_t ys_12 = ((((s2_y_reg >> 21) ? UINT64_C(0xfff) : UINT64_C(0)) << 10) | (s2_y_reg >> 12)); /* y >>> 12 */
+    const uint64_t x_13 = ((s2_x_reg + (dir_12 ? ys_12 : ((~ys_12) & UINT64_C(0x3fffff))) + ((~dir_12) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t y_13 = ((s2_y_reg + (dir_12 ? xs_12 : ((~xs_12) & UINT64_C(0x3fffff))) + ((~dir_12) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t z_13 = ((s2_z_reg + (dir_12 ? ((~ATANH_12) & UINT64_C(0x1ffff)) : ATANH_12) + dir_12) & UINT64_C(0x1ffff));
     /* iteration 13 (shift 13): turn counter-clockwise when y < 0 */
     const uint64_t dir_13 = (uint64_t)(y_13 >= Y_HALF);
-    const uint64_t xs_13 = ((((x_13_kept >> 10) ? UINT64_C(0x1fff) : UINT64_C(0)) << 11) | x_13_kept); /* x >>> 13 */
-    const uint64_t y_14 = ((y_13 + (dir_13 ? xs_13 : ((~xs_13) & UINT64_C(0xffffff))) + ((~dir_13) & UINT64_C(1))) & UINT64_C(0xffffff));
-    const uint64_t z_14 = ((z_13 + (dir_13 ? ((~ATANH_13) & UINT64_C(0x7ffff)) : ATANH_13) + dir_13) & UINT64_C(0x7ffff));
+    const uint64_t xs_13 = ((((x_13 >> 21) ? UINT64_C(0x1fff) : UINT64_C(0)) << 9) | (x_13 >> 13)); /* x >>> 13 */
+    const uint64_t ys_13 = ((((y_13 >> 21) ? UINT64_C(0x1fff) : UINT64_C(0)) << 9) | (y_13 >> 13)); /* y >>> 13 */
+    const uint64_t tx_13 = (dir_13 ? ys_13 : ((~ys_13) & UINT64_C(0x3fffff)));
+    const uint64_t c_x_14 = (uint64_t)(((((UINT64_C(0) << 13) | (x_13 & UINT64_C(0x1fff))) + ((UINT64_C(0) << 13) | (tx_13 & UINT64_C(0x1fff))) + ((~dir_13) & UINT64_C(1))) & UINT64_C(0x3fff)) > ((UINT64_C(0) << 13) | UINT64_C(0x1fff)));
+    const uint64_t x_14_kept = (((x_13 >> 13) + (tx_13 >> 13) + c_x_14) & UINT64_C(0x1ff));
+    const uint64_t y_14 = ((y_13 + (dir_13 ? xs_13 : ((~xs_13) & UINT64_C(0x3fffff))) + ((~dir_13) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t z_14 = ((z_13 + (dir_13 ? ((~ATANH_13) & UINT64_C(0x1ffff)) : ATANH_13) + dir_13) & UINT64_C(0x1ffff));
     /* iteration 14 (shift 13): turn counter-clockwise when y < 0 */
     const uint64_t dir_14 = (uint64_t)(y_14 >= Y_HALF);
-    const uint64_t s3_z = ((z_14 + (dir_14 ? ((~ATANH_14) & UINT64_C(0x7ffff)) : ATANH_14) + dir_14) & UINT64_C(0x7ffff));
+    const uint64_t xs_14 = ((((x_14_kept >> 8) ? UINT64_C(0x1fff) : UINT64_C(0)) << 9) | x_14_kept); /* x >>> 13 */
+    const uint64_t y_15 = ((y_14 + (dir_14 ? xs_14 : ((~xs_14) & UINT64_C(0x3fffff))) + ((~dir_14) & UINT64_C(1))) & UINT64_C(0x3fffff));
+    const uint64_t z_15 = ((z_14 + (dir_14 ? ((~ATANH_14) & UINT64_C(0x1ffff)) : ATANH_14) + dir_14) & UINT64_C(0x1ffff));
+    /* iteration 15 (shift 14): turn counter-clockwise when y < 0 */
+    const uint64_t dir_15 = (uint64_t)(y_15 >= Y_HALF);
+    const uint64_t s3_z = ((z_15 + (dir_15 ? ((~ATANH_15) & UINT64_C(0x1ffff)) : ATANH_15) + dir_15) & UINT64_C(0x1ffff));
 
     const uint64_t o_z_reg = s3_z;  /* register, passed through */
     const uint64_t o_bad_reg = s2_bad_reg;  /* register, passed through */
@@ -226,28 +234,28 @@ void agc_ln_power_model(uint16_t in_w, int16_t *out_ln, uint8_t *out_domain_erro
     uint64_t e_ln2 = UINT64_C(0);
     switch (o_lz_reg) {
     case UINT64_C(0): e_ln2 = UINT64_C(0); break; /* 0 ln 2 */
-    case UINT64_C(1): e_ln2 = UINT64_C(0x162e4); break; /* 1 ln 2 */
-    case UINT64_C(2): e_ln2 = UINT64_C(0x2c5c8); break; /* 2 ln 2 */
-    case UINT64_C(3): e_ln2 = UINT64_C(0x428ad); break; /* 3 ln 2 */
-    case UINT64_C(4): e_ln2 = UINT64_C(0x58b91); break; /* 4 ln 2 */
-    case UINT64_C(5): e_ln2 = UINT64_C(0x6ee75); break; /* 5 ln 2 */
-    case UINT64_C(6): e_ln2 = UINT64_C(0x85159); break; /* 6 ln 2 */
-    case UINT64_C(7): e_ln2 = UINT64_C(0x9b43d); break; /* 7 ln 2 */
-    case UINT64_C(8): e_ln2 = UINT64_C(0xb1721); break; /* 8 ln 2 */
-    case UINT64_C(9): e_ln2 = UINT64_C(0xc7a06); break; /* 9 ln 2 */
-    case UINT64_C(0xa): e_ln2 = UINT64_C(0xddcea); break; /* 10 ln 2 */
-    case UINT64_C(0xb): e_ln2 = UINT64_C(0xf3fce); break; /* 11 ln 2 */
-    case UINT64_C(0xc): e_ln2 = UINT64_C(0x10a2b2); break; /* 12 ln 2 */
-    case UINT64_C(0xd): e_ln2 = UINT64_C(0x120596); break; /* 13 ln 2 */
-    case UINT64_C(0xe): e_ln2 = UINT64_C(0x13687b); break; /* 14 ln 2 */
-    case UINT64_C(0xf): e_ln2 = UINT64_C(0x14cb5f); break; /* 15 ln 2 */
+    case UINT64_C(1): e_ln2 = UINT64_C(0x58b9); break; /* 1 ln 2 */
+    case UINT64_C(2): e_ln2 = UINT64_C(0xb172); break; /* 2 ln 2 */
+    case UINT64_C(3): e_ln2 = UINT64_C(0x10a2b); break; /* 3 ln 2 */
+    case UINT64_C(4): e_ln2 = UINT64_C(0x162e4); break; /* 4 ln 2 */
+    case UINT64_C(5): e_ln2 = UINT64_C(0x1bb9d); break; /* 5 ln 2 */
+    case UINT64_C(6): e_ln2 = UINT64_C(0x21456); break; /* 6 ln 2 */
+    case UINT64_C(7): e_ln2 = UINT64_C(0x26d0f); break; /* 7 ln 2 */
+    case UINT64_C(8): e_ln2 = UINT64_C(0x2c5c8); break; /* 8 ln 2 */
+    case UINT64_C(9): e_ln2 = UINT64_C(0x31e81); break; /* 9 ln 2 */
+    case UINT64_C(0xa): e_ln2 = UINT64_C(0x3773a); break; /* 10 ln 2 */
+    case UINT64_C(0xb): e_ln2 = UINT64_C(0x3cff4); break; /* 11 ln 2 */
+    case UINT64_C(0xc): e_ln2 = UINT64_C(0x428ad); break; /* 12 ln 2 */
+    case UINT64_C(0xd): e_ln2 = UINT64_C(0x48166); break; /* 13 ln 2 */
+    case UINT64_C(0xe): e_ln2 = UINT64_C(0x4da1f); break; /* 14 ln 2 */
+    case UINT64_C(0xf): e_ln2 = UINT64_C(0x532d8); break; /* 15 ln 2 */
     default: break;
     }
-    const uint64_t ln_twice = ((((((o_z_reg >> 18) ? UINT64_C(7) : UINT64_C(0)) << 19) | o_z_reg) << 1) | UINT64_C(0));
-    const uint64_t ln_sum = ((ln_twice - e_ln2) & UINT64_C(0x7fffff));
-    /* ln: drop 6 bit(s), half_even */
-    const uint64_t ln_inc = ((uint64_t)((ln_sum & UINT64_C(0x3f)) > UINT64_C(0x20)) | ((uint64_t)((ln_sum & UINT64_C(0x3f)) == UINT64_C(0x20)) & ((ln_sum >> 6) & UINT64_C(1))));
-    const uint64_t ln_q = (((ln_sum >> 6) + ((UINT64_C(0) << 1) | ln_inc)) & UINT64_C(0x1ffff));
+    const uint64_t ln_twice = ((((((o_z_reg >> 16) ? UINT64_C(7) : UINT64_C(0)) << 17) | o_z_reg) << 1) | UINT64_C(0));
+    const uint64_t ln_sum = ((ln_twice - e_ln2) & UINT64_C(0x1fffff));
+    /* ln: drop 4 bit(s), half_even */
+    const uint64_t ln_biased = ((ln_sum + UINT64_C(7) + ((ln_sum >> 4) & UINT64_C(1))) & UINT64_C(0x1fffff)); /* half_even: bias below the kept bits */
+    const uint64_t ln_q = (ln_biased >> 4);
     /* saturate to +-32767 */
     const uint64_t ln_over = (((~(ln_q >> 16)) & UINT64_C(1)) & ((ln_q >> 15) & UINT64_C(1)));
     const uint64_t ln_under = ((ln_q >> 16) & (((~((ln_q >> 15) & UINT64_C(1))) & UINT64_C(1)) | (uint64_t)((ln_q & UINT64_C(0xffff)) == UINT64_C(0x8000))));

@@ -8,7 +8,7 @@
  * It is the core's function, not its timing: no clock, latency, handshake or tag (the RTL's
  * result for an input leaves 5 clock(s) after it enters).
  * Printed from the same description of the core as the RTL.
- * Arithmetic: hyperbolic coordinates, vectoring mode, 15 iterations, 5 guard bits; x, y 24 bits, z 19 bits.
+ * Arithmetic: hyperbolic coordinates, vectoring mode, 16 iterations, 3 guard bits; x, y 22 bits, z 17 bits.
  *
  * Ports (formats)
  *   in_w           unsigned fixed point, 16 bits with 16 fraction bits, [0, 1)

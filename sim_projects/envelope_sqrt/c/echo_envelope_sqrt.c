@@ -6,7 +6,7 @@
  * Square root of a 14-bit unsigned fraction (normalised, hyperbolic vectoring), gain compensated.
  * echo_envelope_sqrt_model() maps one sample's input codes to its output codes exactly as the RTL does.
  * It is the core's function, not its timing: no clock, latency, handshake or tag (the RTL's
- * result for an input leaves 5 clock(s) after it enters).
+ * result for an input leaves 6 clock(s) after it enters).
  * Printed from the same description of the core as the RTL. This core iterates one sample over
  * 4 clocks, which one pass cannot print, so the model is printed from the pipelined core
  * of the same data path (the same iterations, constants and rounding: the same function).
@@ -76,7 +76,8 @@ void echo_envelope_sqrt_model(uint16_t in_w, uint16_t *out_sqrt)
     const uint64_t in_m = bg_shl(in_w_bits, ((in_half << 1) | UINT64_C(0)), 14u);
     /* m times 1/A_n = 1.2074847754 at 6 guard bits; the 16 dropped bits round half up. */
     const uint64_t m_prod = ((((UINT64_C(0) << 14) | in_m) * UINT64_C(0x4d476e)) & UINT64_C(0x1fffffffff));
-    const uint64_t m_scaled = (((m_prod >> 16) + ((UINT64_C(0) << 1) | (uint64_t)((m_prod & UINT64_C(0xffff)) >= UINT64_C(0x8000)))) & UINT64_C(0x1fffff));
+    const uint64_t m_scaled_biased = ((m_prod + UINT64_C(0x8000)) & UINT64_C(0x1fffffffff));
+    const uint64_t m_scaled = (m_scaled_biased >> 16);
     const uint64_t m_wide = ((UINT64_C(0) << 21) | m_scaled);
     const uint64_t x_start = ((m_wide + QUARTER) & UINT64_C(0x7fffff));
     const uint64_t y_start = ((m_wide - QUARTER) & UINT64_C(0x7fffff));
@@ -186,8 +187,8 @@ void echo_envelope_sqrt_model(uint16_t in_w, uint16_t *out_sqrt)
     /* undo the normalisation: shift right by k with every bit kept, then round once */
     const uint64_t sq_wide = bg_sra(((o_x_reg << 6) | UINT64_C(0)), o_half_reg, 29u);
     /* sq: drop 12 bit(s), half_even */
-    const uint64_t sq_inc = ((uint64_t)((sq_wide & UINT64_C(0xfff)) > UINT64_C(0x800)) | ((uint64_t)((sq_wide & UINT64_C(0xfff)) == UINT64_C(0x800)) & ((sq_wide >> 12) & UINT64_C(1))));
-    const uint64_t sq_q = (((sq_wide >> 12) + ((UINT64_C(0) << 1) | sq_inc)) & UINT64_C(0x1ffff));
+    const uint64_t sq_biased = ((sq_wide + UINT64_C(0x7ff) + ((sq_wide >> 12) & UINT64_C(1))) & UINT64_C(0x1fffffff)); /* half_even: bias below the kept bits */
+    const uint64_t sq_q = (sq_biased >> 12);
     /* clamp to [0, 16383]: the value is never negative; rounding can reach the top */
     const uint64_t sq_value_neg = (sq_q >> 16);
     const uint64_t sq_value_over = (((~sq_value_neg) & UINT64_C(1)) & (uint64_t)(((sq_q >> 14) & UINT64_C(3)) != UINT64_C(0)));

@@ -6,7 +6,7 @@
  * Square root of a 14-bit unsigned fraction (normalised, hyperbolic vectoring), gain compensated.
  * echo_envelope_sqrt_model() maps one sample's input codes to its output codes exactly as the RTL does.
  * It is the core's function, not its timing: no clock, latency, handshake or tag (the RTL's
- * result for an input leaves 5 clock(s) after it enters).
+ * result for an input leaves 6 clock(s) after it enters).
  * Printed from the same description of the core as the RTL. This core iterates one sample over
  * 4 clocks, which one pass cannot print, so the model is printed from the pipelined core
  * of the same data path (the same iterations, constants and rounding: the same function).

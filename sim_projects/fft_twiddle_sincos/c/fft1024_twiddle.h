@@ -8,8 +8,8 @@
  * It is the core's function, not its timing: no clock, latency, handshake or tag (the RTL's
  * result for an input leaves 5 clock(s) after it enters).
  * Printed from the same description of the core as the RTL.
- * Arithmetic: circular coordinates, rotation mode, 19 iterations, 5 guard bits; x, y 24 bits, z 25 bits.
- * Gain: compensated (K = 0.60725293501035403837, removed by the start value).
+ * Arithmetic: circular coordinates, rotation mode, 20 iterations, 4 guard bits; x, y 23 bits, z 24 bits.
+ * Gain: compensated (K = 0.60725293500924945172, removed by the start value).
  *
  * Ports (formats)
  *   in_angle       binary angle, 10 bits, 2^10 codes per turn
