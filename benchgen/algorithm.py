@@ -242,12 +242,15 @@ class Timing:
         latency_cycles: Clocks from the input handshake to the output handshake when
             ``out_ready`` is high.
         cycles_per_sample: Clocks between accepted inputs at full rate.
+        front: Pipelined: register stages of input logic before the first iteration (a
+            constant multiplier split into one adder level per stage), counted in the latency.
     """
 
     architecture: str
     stages: tuple[tuple[int, int], ...]
     latency_cycles: int
     cycles_per_sample: int
+    front: int = 0
 
     @property
     def depth(self) -> int:
@@ -255,8 +258,11 @@ class Timing:
         return len(self.stages)
 
 
-def make_timing(spec: CoreSpec, iterations: int) -> Timing:
+def make_timing(spec: CoreSpec, iterations: int, front: int = 0) -> Timing:
     """Spread the iterations over register stages (pipelined) or clocks (iterative).
+
+    ``front``: register stages the function's input logic takes in a pipeline (see
+    :meth:`benchgen.functions.base.Function.front_stages`; ignored by an iterative core).
 
     Raises:
         ConfigError: if the depth or iterations per cycle exceed the iterations.
@@ -272,9 +278,11 @@ def make_timing(spec: CoreSpec, iterations: int) -> Timing:
                 f"set pipeline_depth to at most {n}, or fix iterations to a larger number",
             )
         bounds = tuple((k * n // depth, (k + 1) * n // depth) for k in range(depth))
-        # depth stages of iterations, then the output register (rounding and saturation from
-        # a register of their own) into the output buffer: depth + 1 clocks.
-        return Timing(architecture="pipelined", stages=bounds, latency_cycles=depth + 1, cycles_per_sample=1)
+        # the input logic's stages, depth stages of iterations, then the output register
+        # (rounding and saturation from a register of their own) into the output buffer.
+        return Timing(
+            architecture="pipelined", stages=bounds, latency_cycles=front + depth + 1, cycles_per_sample=1, front=front
+        )
     per_cycle = spec.iterations_per_cycle or 1
     if per_cycle > n:
         raise ConfigError(
@@ -322,4 +330,22 @@ def signed_width(lo: int, hi: int) -> int:
     need_hi = hi.bit_length() + 1 if hi >= 0 else 1
     need_lo = (-lo - 1).bit_length() + 1 if lo < 0 else 1
     return max(need_hi, need_lo)
+
+
+def csd_terms(k: int) -> list[tuple[int, int]]:
+    """The canonical signed digits of ``k`` > 0 as (shift, sign) pairs, highest first:
+    k = sum(sign * 2^shift), no two digits adjacent, the fewest nonzero digits of any signed
+    binary form (Reitwiesner 1960), so the fewest adders for a multiply by the constant k."""
+    if k <= 0:
+        raise ValueError("csd_terms needs a positive constant")
+    terms = []
+    shift = 0
+    while k:
+        if k & 1:
+            digit = 2 - (k & 3)  # +1 where k = ...01, -1 where k = ...11
+            terms.append((shift, digit))
+            k -= digit
+        k >>= 1
+        shift += 1
+    return sorted(terms, reverse=True)
 

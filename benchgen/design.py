@@ -32,6 +32,7 @@ from benchgen.functions import (
     apply_gain,
     clocking_of,
     core_ports,
+    front_stages,
     function_of,
     corner_inputs,
     directed_inputs,
@@ -610,7 +611,7 @@ def build_design(spec: CoreSpec, *, progress: Progress | None = None) -> Design:
     n, g, stats, proof = _size(_arithmetic(spec), progress)
     dp = make_datapath(spec, n, g)
     try:
-        timing: Timing = make_timing(spec, n)
+        timing: Timing = make_timing(spec, n, front_stages(spec, dp))
     except ConfigError as exc:  # more stages than iterations: as many as there are is accepted
         raise ConfigError(exc.field, exc.value, exc.allowed, exc.fix, suggestion={exc.field: n}) from None
     auto = tuple(f for f, v in (("iterations", spec.iterations), ("guard_bits", spec.guard_bits)) if v is None)

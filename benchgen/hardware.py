@@ -495,11 +495,22 @@ class _Core:
             advance = b.known(Sig("advance", 1))
             m.add(Decl(advance), Assign(b.sig("in_ready"), advance))
         b.note()
+        # The input logic's own register stages (a split constant multiplier): the sample's
+        # valid and tag travel beside them.
+        self.front_valid: Expr = b.sig("in_valid")
+        self.front_tag: Expr | None = b.sig("in_tag") if self.tag else None
+        self.front_count = 0
+        b.front = lambda values: self.front_stage(values, advance)
         start = self.fn.hw_inputs(b, dp)
+        b.front = None
+        if self.front_count != self.design.timing.front:
+            raise AssertionError(
+                f"the input logic took {self.front_count} register stage(s); its timing says {self.design.timing.front}"
+            )
         src: tuple[Sig, Sig | None, Sig | None] = (start.x, start.y, start.z)  # type: ignore[assignment]
         x_low = 0
-        valid_prev: Expr = b.sig("in_valid")
-        tag_prev: Expr | None = b.sig("in_tag") if self.tag else None
+        valid_prev: Expr = self.front_valid
+        tag_prev: Expr | None = self.front_tag
         side_prev: dict[str, Expr] = dict(start.side)
         final = Final()
         for k, (first, end) in enumerate(bounds):
@@ -578,6 +589,34 @@ class _Core:
         self.output_stage(final, side_prev, valid_prev, tag_prev)
         if advance is not None:
             m.add(Assign(advance, b.sig("ready_reg")))
+
+    def front_stage(self, values: dict[str, Expr], advance: Sig | None) -> dict[str, Sig]:
+        """One register stage of the input logic: ``values`` (name -> value), the sample's valid
+        and tag, loaded together while the pipeline advances."""
+        b, m, k = self.b, self.module, self.front_count
+        self.front_count += 1
+        b.note()
+        b.note(f"---- input stage {k} ----")
+        valid = b.known(Sig(f"f{k}_valid_reg", 1))
+        m.add(Reg(valid))
+        loads: list[tuple[Sig, Expr]] = []
+        out: dict[str, Sig] = {}
+        for name, value in values.items():
+            reg = b.known(Sig(f"f{k}_{name}_reg", value.width, vector=value.width > 1 or isinstance(value, Slice)))
+            m.add(Reg(reg))
+            loads.append((reg, value))
+            out[name] = reg
+        if self.front_tag is not None:
+            tag = b.known(Sig(f"f{k}_tag_reg", self.design.spec.tag_width, vector=True))
+            m.add(Reg(tag))
+            loads.append((tag, self.front_tag))
+            self.front_tag = tag
+        b.note()
+        m.add(RegisterBlock(updates=(((advance, ((valid, self.front_valid),)),),), reset=((valid, Const(0, 1)),)))
+        b.note()
+        m.add(RegisterBlock(updates=(((advance, tuple(loads)),),)))
+        self.front_valid = valid
+        return out
 
     # ------------------------------------------------------------------ iterative
 

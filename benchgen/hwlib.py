@@ -10,6 +10,7 @@ function: the function modules (benchgen.functions) and the core assembler
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, field
 
 from benchgen.algorithm import Datapath
@@ -92,6 +93,9 @@ class Builder:
         self.rounding = dp.rounding
         self.signals: dict[str, Sig] = {}
         self.params: dict[str, Param] = {}
+        self.front: Callable[[dict[str, Expr]], dict[str, Sig]] | None = None
+        """Set by a pipeline while the function's input logic is built: registers values at a
+        stage boundary of that logic (:meth:`stage`)."""
 
     # ------------------------------------------------------------------- declaring
 
@@ -148,6 +152,14 @@ class Builder:
         """Record a signal declared elsewhere (a port, a register)."""
         self.signals[sig.name] = sig
         return sig
+
+    def stage(self, values: dict[str, Expr]) -> dict[str, Sig]:
+        """A register stage boundary inside the input logic: in a pipeline, every value the
+        logic after it reads (name -> value) is registered there (with the sample's valid and
+        tag); elsewhere the values pass as wires. Returns the signals to read after it."""
+        if self.front is not None:
+            return self.front(values)
+        return {n: v if isinstance(v, Sig) else self.wire(n, v) for n, v in values.items()}
 
     # ------------------------------------------------------------------- arithmetic pieces
 

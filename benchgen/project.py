@@ -38,7 +38,7 @@ from benchgen.algorithm import make_timing
 from benchgen.design import Design, Proof, build_design
 from benchgen.reference import ErrorStats
 from benchgen.errors import BenchgenError, ConfigError
-from benchgen.functions import function_of, make_datapath
+from benchgen.functions import front_stages, function_of, make_datapath
 from benchgen.cmodel import c_model_files, c_model_paths, model_function_name
 from benchgen.fusesoc import core_file_name, render_core_file, vlnv
 from benchgen.harness import bulk_project_files
@@ -860,10 +860,11 @@ def design_from_manifest(manifest: dict[str, Any]) -> Design:
         n, g = derived["iterations"], derived["guard_bits"]
         if not all(isinstance(v, int) and not isinstance(v, bool) for v in (n, g)):
             raise ProjectError(stale)
+        dp = make_datapath(spec, n, g)
         design = Design(
             spec=spec,
-            datapath=make_datapath(spec, n, g),
-            timing=make_timing(spec, n),
+            datapath=dp,
+            timing=make_timing(spec, n, front_stages(spec, dp)),
             accuracy=ErrorStats(
                 samples=budget["model_samples"],
                 max_error_lsb=budget["model_max_error_lsb"],

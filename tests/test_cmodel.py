@@ -35,6 +35,7 @@ from benchgen.functions import (
     directed_inputs,
     enumerate_inputs,
     evaluate,
+    front_stages,
     input_ports,
     input_space_bits,
     int64_model,
@@ -69,10 +70,11 @@ def quick_design(values: dict[str, Any], iterations: int, guard_bits: int) -> De
     """A design at a given size without its accuracy proof (the C model does not read it; the
     proof of a 64-bit core takes minutes)."""
     spec = parse_config(values)
+    dp = make_datapath(spec, iterations, guard_bits)
     return Design(
         spec=spec,
-        datapath=make_datapath(spec, iterations, guard_bits),
-        timing=make_timing(spec, iterations),
+        datapath=dp,
+        timing=make_timing(spec, iterations, front_stages(spec, dp)),
         accuracy=ErrorStats(samples=0, max_error_lsb=0.0, rms_error_lsb=0.0, bias_lsb=0.0),
         proof=Proof("sampled", 0),
         auto_fields=(),

@@ -44,6 +44,7 @@ __all__ = [
     "evaluate",
     "function_errors",
     "function_named",
+    "front_stages",
     "function_of",
     "ideal_outputs",
     "input_ports",
@@ -98,6 +99,13 @@ def function_named(name: str) -> Function:
 def function_of(dp: Datapath) -> Function:
     """The function a data path was built for."""
     return _BY_NAME[dp.function]
+
+
+def front_stages(spec: CoreSpec, dp: Datapath) -> int:
+    """Register stages of the input logic before the first iteration: the function's own count
+    (:meth:`Function.front_stages`) in a pipeline, none in an iterative core (whose input logic
+    loads a register of its own)."""
+    return function_of(dp).front_stages(dp) if spec.architecture == "pipelined" else 0
 
 
 def refused_fields(fn: Function) -> dict[str, str]:

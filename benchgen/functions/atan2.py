@@ -230,13 +230,15 @@ class Atan2(CircularFunction):
             y_ext = b.wire("y_in_ext", Cat((in_y[B - 1], in_y)))
         x_turned = b.wire("x_turned", Mux(neg, Neg(x_ext), x_ext))
         y_turned = b.wire("y_turned", Mux(neg, Neg(y_ext), y_ext))
-        x = self.hw_prescale(b, dp, "x_start", x_turned)
-        y = self.hw_prescale(b, dp, "y_start", y_turned)
         if dp.radians:
             z = b.wire("z_start", Mux(Not(neg), Const(0, ZW), Mux(in_y[B - 1], Const(-dp.pi_const, ZW), Const(dp.pi_const, ZW))), of="z")
         else:
             z = b.wire("z_start", Mux(neg, Const(1 << (ZW - 1), ZW), Const(0, ZW)), of="z")
-        return Start(x, y, z, side)
+        starts, carried = self.hw_prescale_staged(b, dp, {"x_src": x_turned, "y_src": y_turned}, {"z_start": z, **side})
+        return Start(starts["x_start"], starts["y_start"], carried["z_start"], {k: carried[k] for k in side})
+
+    def front_stages(self, dp: Datapath) -> int:
+        return self.prescale_front(dp)
 
     def hw_outputs(self, b: Builder, dp: Datapath, final: Final, side: Mapping[str, Any]) -> None:
         W, G, A = dp.xy_width, dp.guard_bits, dp.angle_width

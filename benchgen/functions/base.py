@@ -298,6 +298,12 @@ class Function:
 
     # ---------------------------------------------------------------- hardware
 
+    def front_stages(self, dp: Datapath) -> int:
+        """Register stages a pipeline gives this function's input logic (its hw_inputs then
+        calls ``Builder.stage`` that many times); 0 for input logic short enough to share the
+        first iteration's clock."""
+        return 0
+
     def z_start_range(self, dp: Datapath) -> tuple[int, int] | None:
         """Bounds of z as the iterations start (z codes), over every input, where the function
         can state them for a rotation; None keeps z at its full width through the pipeline."""

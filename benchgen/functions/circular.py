@@ -23,6 +23,7 @@ from benchgen.algorithm import (
     atan_turns,
     check_width,
     circular_gain,
+    csd_terms,
     pi_at,
 )
 from benchgen.functions.base import WIDE_ANGLE_BITS, WIDE_DATA_BITS, Function, below
@@ -335,6 +336,100 @@ class CircularFunction(Function):
         pad = ZW - A
         z = b.wire("z_start", b.pad(Cat((angle[A - 2], Slice(angle, A - 2, 0))), pad), of="z")
         return fold, z
+
+    @staticmethod
+    def prescale_levels(dp: CircularDatapath) -> int:
+        """Adder levels of the staged multiply by K_n: its signed digits and the rounding's
+        half-LSB summed pairwise."""
+        terms = len(csd_terms(dp.k_const)) + 1
+        return (terms - 1).bit_length()
+
+    def prescale_front(self, dp: Datapath) -> int:
+        """Register stages of a compensated core's input logic in a pipeline: one after the
+        input's own logic (fold or turn, prenormalisation), one after each adder level of the
+        multiply by K_n. A raw core's input logic shares the first iteration's clock."""
+        assert isinstance(dp, CircularDatapath)
+        return 1 + self.prescale_levels(dp) if dp.gain_mode == "compensated" else 0
+
+    def hw_prescale_staged(
+        self, b: Builder, dp: CircularDatapath, srcs: dict[str, Sig], carry: dict[str, Expr]
+    ) -> tuple[dict[str, Sig], dict[str, Sig]]:
+        """``x_start`` and ``y_start`` from the (b+1)-bit ``srcs`` (``x_src``, ``y_src``), times
+        K_n where compensated, and ``carry`` (values the logic after them reads), passed
+        through the same register stages.
+
+        In a pipeline the multiply is a tree of adders over the signed digits of K_n (plus the
+        rounding's half LSB as one more term), one adder level per register stage, so no path
+        is longer than one adder: the exact product as one multiplier forms it, rounded half up
+        as before. Elsewhere (iterative cores) it is the same arithmetic in one clock.
+        """
+        if dp.gain_mode != "compensated" or b.front is None:
+            starts = {
+                "x_start": self.hw_prescale(b, dp, "x_start", srcs["x_src"]),
+                "y_start": self.hw_prescale(b, dp, "y_start", srcs["y_src"]),
+            }
+            return starts, {n: v if isinstance(v, Sig) else b.wire(n, v) for n, v in carry.items()}
+        B, G, W = dp.data_width, dp.guard_bits, dp.xy_width
+        kw = dp.k_frac + 1
+        pw = (B + 1) + kw
+        drop = dp.k_frac - G
+        terms = csd_terms(dp.k_const)
+        b.note(
+            f"The inputs and what travels with them are registered before the multiply by K = {dp.gain[:12]}."
+        )
+        regs = b.stage({"x_turned": srcs["x_src"], "y_turned": srcs["y_src"], **carry})
+        carried = {n: regs[n] for n in carry}
+        b.note(
+            f"Times K at {G} guard bits: K's {len(terms)} signed digits ("
+            + " ".join(f"{'+' if sgn > 0 else '-'}2^{sh - dp.k_frac}" for sh, sgn in terms)
+            + f"),\nplus half an LSB of the {drop} dropped bits (round half up), summed pairwise, one adder\n"
+            "level per register stage: the exact product, rounded as one multiplier would."
+        )
+        items: dict[str, list[tuple[int, Expr]]] = {}
+        for c in ("x", "y"):
+            src = regs[f"{c}_turned"]
+            ext = b.wire(f"{c}_k_ext", Cat((Rep(pw - B - 1, src[B]), src)), f"{c} sign-extended to the product's {pw} bits")
+            shifted: list[tuple[int, Expr]] = []
+            for sh, sgn in terms:
+                shifted.append((sgn, ext if sh == 0 else Cat((Slice(ext, pw - 1 - sh, 0), Const(0, sh)))))
+            shifted.append((1, Const(1 << (drop - 1), pw)))
+            items[c] = shifted
+        level = 0
+        while len(items["x"]) > 1:
+            level += 1
+            last = len(items["x"]) == 2  # this level forms the product
+            staged: dict[str, Expr] = {}
+            for c in ("x", "y"):
+                new: list[tuple[int, Expr]] = []
+                row = items[c]
+                for j in range(0, len(row) - 1, 2):
+                    (s1, e1), (s2, e2) = row[j], row[j + 1]
+                    if s1 == s2:
+                        total, sign = Add(e1, e2), s1
+                    elif s1 > 0:
+                        total, sign = Add(e1, e2, subtract=True), 1
+                    else:
+                        total, sign = Add(e2, e1, subtract=True), 1
+                    # the product's dropped bits only carry into the kept ones
+                    new.append((sign, b.wire(f"{c}_k{level}_{j // 2}", total, carry_only=drop if last else 0)))
+                if len(row) % 2:
+                    new.append(row[-1])
+                items[c] = new
+            for c in ("x", "y"):
+                if last:
+                    sign, total = items[c][0]
+                    assert sign > 0, "K is positive: the tree ends with a sum, not a negated one"
+                    assert isinstance(total, Sig)
+                    staged[f"{c}_start"] = Slice(total, pw - 1, drop)
+                else:
+                    for j, (sign, e) in enumerate(items[c]):
+                        staged[f"{c}_k{level}_{j}_t"] = e
+            regs = b.stage({**staged, **carried})
+            carried = {n: regs[n] for n in carry}
+            if not last:
+                for c in ("x", "y"):
+                    items[c] = [(sign, regs[f"{c}_k{level}_{j}_t"]) for j, (sign, _) in enumerate(items[c])]
+        return {"x_start": regs["x_start"], "y_start": regs["y_start"]}, carried
 
     def hw_prescale(self, b: Builder, dp: CircularDatapath, name: str, src: Sig) -> Sig:
         """``name``: the (b+1)-bit ``src`` at internal scale, times K_n when compensated."""

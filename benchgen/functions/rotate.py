@@ -153,9 +153,11 @@ class Rotate(CircularFunction):
         y_ext = b.wire("y_in_ext", Cat((in_y[B - 1], in_y)))
         x_folded = b.wire("x_folded", Mux(fold, Neg(x_ext), x_ext))
         y_folded = b.wire("y_folded", Mux(fold, Neg(y_ext), y_ext))
-        x = self.hw_prescale(b, dp, "x_start", x_folded)
-        y = self.hw_prescale(b, dp, "y_start", y_folded)
-        return Start(x, y, z)
+        starts, carried = self.hw_prescale_staged(b, dp, {"x_src": x_folded, "y_src": y_folded}, {"z_start": z})
+        return Start(starts["x_start"], starts["y_start"], carried["z_start"])
+
+    def front_stages(self, dp: Datapath) -> int:
+        return self.prescale_front(dp)
 
     def hw_outputs(self, b: Builder, dp: Datapath, final: Final, side: Mapping[str, Any]) -> None:
         drops = self.drops(dp)
