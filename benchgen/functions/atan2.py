@@ -234,11 +234,15 @@ class Atan2(CircularFunction):
             z = b.wire("z_start", Mux(Not(neg), Const(0, ZW), Mux(in_y[B - 1], Const(-dp.pi_const, ZW), Const(dp.pi_const, ZW))), of="z")
         else:
             z = b.wire("z_start", Mux(neg, Const(1 << (ZW - 1), ZW), Const(0, ZW)), of="z")
-        starts, carried = self.hw_prescale_staged(b, dp, {"x_src": x_turned, "y_src": y_turned}, {"z_start": z, **side})
+        # the normaliser (a leading-sign count and two shifters) gets a clock of its own
+        starts, carried = self.hw_prescale_staged(
+            b, dp, {"x_src": x_turned, "y_src": y_turned}, {"z_start": z, **side}, input_stage=bool(dp.prenorm_max)
+        )
         return Start(starts["x_start"], starts["y_start"], carried["z_start"], {k: carried[k] for k in side})
 
     def front_stages(self, dp: Datapath) -> int:
-        return self.prescale_front(dp)
+        assert isinstance(dp, CircularDatapath)
+        return self.prescale_front(dp, input_stage=bool(dp.prenorm_max))
 
     def hw_outputs(self, b: Builder, dp: Datapath, final: Final, side: Mapping[str, Any]) -> None:
         W, G, A = dp.xy_width, dp.guard_bits, dp.angle_width

@@ -344,15 +344,24 @@ class CircularFunction(Function):
         terms = len(csd_terms(dp.k_const)) + 1
         return (terms - 1).bit_length()
 
-    def prescale_front(self, dp: Datapath) -> int:
-        """Register stages of a compensated core's input logic in a pipeline: one after the
-        input's own logic (fold or turn, prenormalisation), one after each adder level of the
-        multiply by K_n. A raw core's input logic shares the first iteration's clock."""
+    def prescale_front(self, dp: Datapath, input_stage: bool = False) -> int:
+        """Register stages of the input logic in a pipeline: one after the input's own logic
+        (fold or turn, prenormalisation) and one after each adder level of the multiply by K_n
+        where compensated; a raw core's input logic shares the first iteration's clock unless
+        ``input_stage`` (logic as long as an iteration of its own, such as a normaliser)."""
         assert isinstance(dp, CircularDatapath)
-        return 1 + self.prescale_levels(dp) if dp.gain_mode == "compensated" else 0
+        if dp.gain_mode == "compensated":
+            return 1 + self.prescale_levels(dp)
+        return 1 if input_stage else 0
 
     def hw_prescale_staged(
-        self, b: Builder, dp: CircularDatapath, srcs: dict[str, Sig], carry: dict[str, Expr]
+        self,
+        b: Builder,
+        dp: CircularDatapath,
+        srcs: dict[str, Sig],
+        carry: dict[str, Expr],
+        *,
+        input_stage: bool = False,
     ) -> tuple[dict[str, Sig], dict[str, Sig]]:
         """``x_start`` and ``y_start`` from the (b+1)-bit ``srcs`` (``x_src``, ``y_src``), times
         K_n where compensated, and ``carry`` (values the logic after them reads), passed
@@ -363,22 +372,27 @@ class CircularFunction(Function):
         is longer than one adder: the exact product as one multiplier forms it, rounded half up
         as before. Elsewhere (iterative cores) it is the same arithmetic in one clock.
         """
-        if dp.gain_mode != "compensated" or b.front is None:
+        compensated = dp.gain_mode == "compensated"
+        if b.front is None or not (compensated or input_stage):
             starts = {
                 "x_start": self.hw_prescale(b, dp, "x_start", srcs["x_src"]),
                 "y_start": self.hw_prescale(b, dp, "y_start", srcs["y_src"]),
             }
             return starts, {n: v if isinstance(v, Sig) else b.wire(n, v) for n, v in carry.items()}
-        B, G, W = dp.data_width, dp.guard_bits, dp.xy_width
+        b.note("The inputs, as the input logic leaves them, and what travels with them are registered.")
+        regs = b.stage({"x_turned": srcs["x_src"], "y_turned": srcs["y_src"], **carry})
+        carried = {n: regs[n] for n in carry}
+        if not compensated:
+            starts = {
+                "x_start": self.hw_prescale(b, dp, "x_start", regs["x_turned"]),
+                "y_start": self.hw_prescale(b, dp, "y_start", regs["y_turned"]),
+            }
+            return starts, carried
+        B, G = dp.data_width, dp.guard_bits
         kw = dp.k_frac + 1
         pw = (B + 1) + kw
         drop = dp.k_frac - G
         terms = csd_terms(dp.k_const)
-        b.note(
-            f"The inputs and what travels with them are registered before the multiply by K = {dp.gain[:12]}."
-        )
-        regs = b.stage({"x_turned": srcs["x_src"], "y_turned": srcs["y_src"], **carry})
-        carried = {n: regs[n] for n in carry}
         b.note(
             f"Times K at {G} guard bits: K's {len(terms)} signed digits ("
             + " ".join(f"{'+' if sgn > 0 else '-'}2^{sh - dp.k_frac}" for sh, sgn in terms)
