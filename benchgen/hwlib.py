@@ -164,13 +164,12 @@ class Builder:
     # ------------------------------------------------------------------- arithmetic pieces
 
     def kept_add(self, out: str, a: Sig, t: Sig, cin: Expr, width: int, drop: int) -> Sig:
-        """``a + t + cin`` of which only bits [width-1:drop] are formed: the low bits pass
-        their carry alone (``c_<out>``), so no formed bit goes unread. Returns ``<out>_kept``."""
-        one = Const(0, 1)
-        low = Add(Cat((one, Slice(a, drop - 1, 0))), Cat((one, Slice(t, drop - 1, 0))), cin)
-        carry = self.wire(f"c_{out}", Cmp(">", low, Cat((one, Const((1 << drop) - 1, drop)))))
-        kept = Add(Slice(a, width - 1, drop), Slice(t, width - 1, drop), carry)
-        return self.wire(f"{out}_kept", kept)
+        """``a + t + cin`` of which only bits [width-1:drop] are read: one full-width add
+        (``<out>_full``) whose low bits only pass their carry up (as in :meth:`round_q`, the
+        carry chain is the fast path; a separate add of the low bits and a compare feeding the
+        kept bits' carry-in made a longer one). Returns ``<out>_kept``."""
+        full = self.wire(f"{out}_full", Add(a, t, cin), f"bits {drop - 1}..0 only carry", carry_only=drop)
+        return self.wire(f"{out}_kept", Slice(full, width - 1, drop))
 
     def round_q(self, out: str, src: Sig | None, width: int, drop: int, kept: Sig | None = None) -> Sig:
         """``<out>_q``: ``src`` (``width`` bits) with ``drop`` low bits dropped by the rounding.

@@ -402,10 +402,11 @@ class CircularFunction(Function):
         items: dict[str, list[tuple[int, Expr]]] = {}
         for c in ("x", "y"):
             src = regs[f"{c}_turned"]
-            ext = b.wire(f"{c}_k_ext", Cat((Rep(pw - B - 1, src[B]), src)), f"{c} sign-extended to the product's {pw} bits")
             shifted: list[tuple[int, Expr]] = []
             for sh, sgn in terms:
-                shifted.append((sgn, ext if sh == 0 else Cat((Slice(ext, pw - 1 - sh, 0), Const(0, sh)))))
+                # src times 2^sh, sign-extended to the product's width (kw - sh >= 1 copies)
+                parts: tuple[Expr, ...] = (Rep(pw - B - 1 - sh, src[B]), src) + ((Const(0, sh),) if sh else ())
+                shifted.append((sgn, Cat(parts)))
             shifted.append((1, Const(1 << (drop - 1), pw)))
             items[c] = shifted
         level = 0

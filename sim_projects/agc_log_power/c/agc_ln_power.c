@@ -212,8 +212,8 @@ void agc_ln_power_model(uint16_t in_w, int16_t *out_ln, uint8_t *out_domain_erro
     const uint64_t xs_13 = ((((x_13 >> 21) ? UINT64_C(0x1fff) : UINT64_C(0)) << 9) | (x_13 >> 13)); /* x >>> 13 */
     const uint64_t ys_13 = ((((y_13 >> 21) ? UINT64_C(0x1fff) : UINT64_C(0)) << 9) | (y_13 >> 13)); /* y >>> 13 */
     const uint64_t tx_13 = (dir_13 ? ys_13 : ((~ys_13) & UINT64_C(0x3fffff)));
-    const uint64_t c_x_14 = (uint64_t)(((((UINT64_C(0) << 13) | (x_13 & UINT64_C(0x1fff))) + ((UINT64_C(0) << 13) | (tx_13 & UINT64_C(0x1fff))) + ((~dir_13) & UINT64_C(1))) & UINT64_C(0x3fff)) > ((UINT64_C(0) << 13) | UINT64_C(0x1fff)));
-    const uint64_t x_14_kept = (((x_13 >> 13) + (tx_13 >> 13) + c_x_14) & UINT64_C(0x1ff));
+    const uint64_t x_14_full = ((x_13 + tx_13 + ((~dir_13) & UINT64_C(1))) & UINT64_C(0x3fffff)); /* bits 12..0 only carry */
+    const uint64_t x_14_kept = (x_14_full >> 13);
     const uint64_t y_14 = ((y_13 + (dir_13 ? xs_13 : ((~xs_13) & UINT64_C(0x3fffff))) + ((~dir_13) & UINT64_C(1))) & UINT64_C(0x3fffff));
     const uint64_t z_14 = ((z_13 + (dir_13 ? ((~ATANH_13) & UINT64_C(0x1ffff)) : ATANH_13) + dir_13) & UINT64_C(0x1ffff));
     /* iteration 14 (shift 13): turn counter-clockwise when y < 0 */

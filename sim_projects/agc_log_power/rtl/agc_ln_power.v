@@ -264,8 +264,10 @@ module agc_ln_power (
     wire [XY_W-1:0] xs_13 = {{13{x_13[21]}}, x_13[21:13]};  // x >>> 13
     wire [XY_W-1:0] ys_13 = {{13{y_13[21]}}, y_13[21:13]};  // y >>> 13
     wire [21:0] tx_13 = dir_13 ? ys_13 : ~ys_13;
-    wire c_x_14 = (({1'b0, x_13[12:0]} + {1'b0, tx_13[12:0]} + {13'h0000, ~dir_13}) > {1'b0, 13'h1fff});
-    wire [8:0] x_14_kept = x_13[21:13] + tx_13[21:13] + {8'h00, c_x_14};
+    /* verilator lint_off UNUSEDSIGNAL */
+    wire [21:0] x_14_full = x_13 + tx_13 + {21'h000000, ~dir_13};  // bits 12..0 only carry
+    /* verilator lint_on UNUSEDSIGNAL */
+    wire [8:0] x_14_kept = x_14_full[21:13];
     wire [XY_W-1:0] y_14 = y_13 + (dir_13 ? xs_13 : ~xs_13) + {21'h000000, ~dir_13};
     wire [Z_W-1:0] z_14 = z_13 + (dir_13 ? ~ATANH_13 : ATANH_13) + {16'h0000, dir_13};
     // iteration 14 (shift 13): turn counter-clockwise when y < 0
