@@ -25,7 +25,7 @@ from typing import Any
 import mpmath
 import numpy as np
 import pytest
-from conftest import best_over_guard, run
+from conftest import run
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
@@ -38,7 +38,7 @@ from benchgen.algorithm import (
 )
 from benchgen.cli import main
 from benchgen.config import parse_config, spec_to_dict
-from benchgen.design import build_design
+from benchgen.design import MAX_AUTO_GUARD_BITS, build_design, sizing_cost
 from benchgen.errors import ConfigError
 from benchgen.functions import (
     corner_inputs,
@@ -500,7 +500,7 @@ def test_exp_exponent_is_floor_t_over_ln2_everywhere(width: int) -> None:
 @pytest.mark.parametrize("function", ["sqrt", "ln"])
 @pytest.mark.parametrize("width", [12, 16])
 def test_sizing_is_minimal(function: str, width: int) -> None:
-    """The chosen size meets max_error_lsb = 1.0 on every input; no smaller one does."""
+    """The chosen size meets max_error_lsb = 1.0 on every input; no cheaper one next to it does."""
     spec = parse_config({"name": "c", "function": function, "data_width": width})
     d = build_design(spec)
     n, g = d.datapath.iterations, d.datapath.guard_bits
@@ -517,7 +517,21 @@ def test_sizing_is_minimal(function: str, width: int) -> None:
     # Guard bits are chosen smallest first: every count below g misses.
     for fewer in range(g):
         assert measure(make_datapath(spec, n, fewer), inputs, ideal).max_error_lsb >= 1.0
-    assert best_over_guard(spec, n - 1, inputs, ideal) >= 1.0
+    # Sizing minimises adder bits (docs/config.md): one iteration fewer or more, every guard-bit
+    # count that would cost less misses. One iteration fewer may meet the budget at a higher
+    # cost (the 16-bit ln: 15/5 reaches 0.986 LSB with more adder bits than 16/3).
+    cost = sizing_cost(spec, d.datapath)
+    cheaper = 0
+    for m in (n - 1, n + 1):
+        for gg in range(MAX_AUTO_GUARD_BITS + 1):
+            try:
+                dp = make_datapath(spec, m, gg)
+            except ConfigError:
+                continue  # more iterations than this width holds
+            if sizing_cost(spec, dp) < cost:
+                cheaper += 1
+                assert measure(dp, inputs, ideal).max_error_lsb >= 1.0, (m, gg)
+    assert cheaper > 0  # the check above compared something
 
 
 # --- 6. The fast path equals the wrapping path ------------------------------------------
