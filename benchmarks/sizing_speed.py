@@ -27,8 +27,7 @@ import numpy as np
 import benchgen.design as design_mod
 from benchgen.config import parse_config
 from benchgen.design import build_design, clear_sizing_cache
-from benchgen.functions import enumerate_inputs, function_errors, input_space_bits
-from benchgen.model import evaluate_function
+from benchgen.functions import enumerate_inputs, evaluate, function_errors, input_space_bits
 
 CORES: dict[str, dict[str, Any]] = {
     "atan2": {"function": "atan2", "data_width": 12, "angle_width": 12},
@@ -59,7 +58,7 @@ def _every_input_worst(dp: Any) -> float:
     worst = 0.0
     for lo in range(0, total, 1 << 20):
         inputs = enumerate_inputs(dp, lo, min(total, lo + (1 << 20)))
-        for e in function_errors(dp, inputs, evaluate_function(dp, inputs)).values():
+        for e in function_errors(dp, inputs, evaluate(dp, inputs)).values():
             judged = np.abs(e[~np.isnan(e)])
             worst = max(worst, float(judged.max()) if judged.size else 0.0)
     return worst

@@ -42,6 +42,7 @@ from benchgen.design import build_design
 from benchgen.errors import ConfigError
 from benchgen.functions import (
     corner_inputs,
+    function_errors,
     ideal_outputs,
     measure,
     output_ports,
@@ -726,3 +727,42 @@ def test_z_only_functions_refuse_fewer_than_three_iterations(function: str) -> N
         build_design(parse_config({"name": "c", "function": function, "data_width": 8, "iterations": 2, "max_error_lsb": 1e6}))
     assert info.value.field == "iterations" and "at least 3" in str(info.value)
     assert build_design(parse_config({"name": "c", "function": function, "data_width": 8, "iterations": 3, "max_error_lsb": 1e6})).datapath.iterations == 3
+
+
+def test_64_bit_exp_ideal_keeps_ln2_exact() -> None:
+    # 64 bits: L = 6, t has 57 fraction bits. t just above -91 ln 2 (-63.076...): the exponent is
+    # -91 and the mantissa e^(t + 91 ln 2) just above 1.0, with 63 fraction bits. Reducing by a
+    # 53-bit ln 2 (mpmath's default precision) moves t + 91 ln 2 by about 91 * 2^-54 = 2^-47.5,
+    # about 2^15.5 output LSBs, and across the boundary it gives floor(t / ln 2) = -92 and a
+    # mantissa near 2.0: an error of 2^63 LSB against a correct output.
+    dp = make_datapath(parse_config({"name": "c", "function": "exp", "data_width": 64}), 60, 8)
+    assert dp.in_frac == 57 and dp.out_frac == 63
+    with mpmath.workdps(60):
+        ln2 = mpmath.log(2)
+        edge = int(mpmath.ceil(-91 * ln2 * mpmath.mpf(2) ** 57))  # the first code above -91 ln 2
+    codes = [edge, edge + 1, edge + 1000, (1 << 62) + 1, -(1 << 63)]
+    # Called at mpmath's default precision, as the sizer and the reports call it.
+    ideal = ideal_outputs(dp, {"in_t": np.array(codes, dtype=object)})["out_mantissa"]
+    with mpmath.workdps(60):
+        for code, got in zip(codes, ideal, strict=True):
+            t = mpmath.mpf(code) / mpmath.mpf(2) ** 57
+            q = mpmath.floor(t / ln2)
+            exact = mpmath.exp(t - q * ln2) * mpmath.mpf(2) ** 63
+            assert abs(got - exact) < mpmath.mpf(2) ** -8, (code, float(got - exact))
+    # Judged against that ideal, the model (60 iterations: last shift 57, residue about 2^6
+    # LSB at 63 fraction bits) is off by its residue and rounding, not by 2^63.
+    inputs = {"in_t": np.array(codes, dtype=object)}
+    err = function_errors(dp, inputs, run(dp, inputs["in_t"]))["out_mantissa"]
+    assert np.max(np.abs(err)) < 2**12, err
+
+
+def test_64_bit_exp_corners_hit_every_exponent_step() -> None:
+    # The corner set holds the code nearest each multiple q ln 2 (where the exponent steps).
+    # At 64 bits that code is q ln 2 2^57 ~ 2^63: computed at 53 bits it missed 90 of the 92 positive ones.
+    dp = make_datapath(parse_config({"name": "c", "function": "exp", "data_width": 64}), 60, 8)
+    codes = {int(v) for v in corner_inputs(dp)["in_t"]}
+    with mpmath.workdps(60):
+        steps = [mpmath.nint(q * mpmath.log(2) * mpmath.mpf(2) ** 57) for q in range(-92, 93)]
+        inside = [int(v) for v in steps if -(2**63) <= v < 2**63]
+    assert len(inside) == 185  # |q| <= 92: 92 ln 2 = 63.77 < 64 = 2^L
+    assert not [v for v in inside if v not in codes]

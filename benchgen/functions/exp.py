@@ -154,12 +154,13 @@ class Exp(HyperbolicFunction):
         # Multiples of ln 2 (where the exponent steps) and a code either side.
         scale = mpmath.mpf(2) ** dp.in_frac
         q = 0
-        while True:
-            v = int(mpmath.nint(q * mpmath.log(2) * scale))
-            if v > top:
-                break
-            codes.update({v - 1, v, v + 1, -v - 1, -v, -v + 1})
-            q += 1
+        with mpmath.workdps(IDEAL_DPS):  # past 53 bits, default precision misses the step's code
+            while True:
+                v = int(mpmath.nint(q * mpmath.log(2) * scale))
+                if v > top:
+                    break
+                codes.update({v - 1, v, v + 1, -v - 1, -v, -v + 1})
+                q += 1
         dtype: Any = np.int64 if b <= 62 else object
         return {"in_t": np.array(sorted(c for c in codes if lo <= c <= top), dtype=dtype)}
 
@@ -195,7 +196,8 @@ class Exp(HyperbolicFunction):
     def ideal(self, dp: Datapath, inputs: Inputs) -> Outputs:
         values, wide = self.values(dp, inputs)
         if wide:
-            ln2 = mpmath.log(2)
+            with mpmath.workdps(IDEAL_DPS):  # ln 2 at 53 bits would put q ln 2 off by 2^15 LSB at 64 bits
+                ln2 = mpmath.log(2)
             return {"out_mantissa": self.each(dp, values, lambda v: mpmath.exp(v - mpmath.floor(v / ln2) * ln2))}  # type: ignore[arg-type]
         v = np.asarray(values)
         q = np.floor(v / np.log(2.0))
