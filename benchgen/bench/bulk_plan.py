@@ -86,10 +86,11 @@ def bulk_run_args(
     names = bulk_files(manifest)
     # GHDL simulates the VHDL core in its VHDL harness; the others the Verilog pair.
     vhdl = simulator in _VHDL_ARGS
-    harness = project / (names.vhdl if vhdl else names.rtl)
+    rel = names.vhdl if vhdl else names.rtl
+    harness = project / rel
     if not harness.is_file():
         raise BulkError(
-            f"'{project}' has no bulk harness ({names.rtl}); regenerate it with: "
+            f"'{project}' has no bulk harness ({rel}); regenerate it with: "
             "benchgen generate config.toml -o ."
         )
     if exhaustive:
