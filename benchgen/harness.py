@@ -2,10 +2,11 @@
 
 Two harnesses share one layout of the core's data ports:
 
-* the bulk harness (Verilog, and its VHDL-2008 twin for GHDL; simulation only): a top level with its own clock that streams a block
-  of stimulus words from a file into the core at full clock rate, applies seeded idle gaps and
-  output stalls, captures every output word and writes the block back to a file. cocotb only
-  starts blocks and reads a few counters, so Python never runs once per clock.
+* the bulk harness (Verilog, and its VHDL-2008 twin for GHDL; simulation only): a top level with
+  its own clock that streams a block of stimulus words from a file into the core at full clock
+  rate, applies seeded idle gaps and output stalls, captures every output word and writes the
+  block back to a file. cocotb only starts blocks and reads a few counters, so Python never runs
+  once per clock.
 * the native harness (Verilator only): a variant of the bulk harness with the same stream rules,
   whose clock, controls and stimulus/result words are ports, and a generated C++ ``main`` that
   clocks it, reading stimulus blocks from a command stream and writing results to a reply stream
@@ -322,7 +323,10 @@ def bulk_files(manifest: dict[str, Any]) -> BulkFiles:
 
 def _bulk_files(core: str) -> BulkFiles:
     return BulkFiles(
-        rtl=f"rtl/{core}_bulk.v", toplevel=f"{core}_bulk", test_module=f"test_{core}_bulk", vhdl=f"rtl/{core}_bulk.vhd"
+        rtl=f"rtl/{core}_bulk.v",
+        toplevel=f"{core}_bulk",
+        test_module=f"test_{core}_bulk",
+        vhdl=f"rtl/{core}_bulk.vhd",
     )
 
 
