@@ -133,7 +133,7 @@ def _simulate(args: argparse.Namespace, project: Path) -> int:
         html = Path(args.html)
         csv_path = str(html.with_name(f".{html.name}.samples.csv"))
 
-    if args.mode == "auto" and args.simulator != "ghdl" and bulk_plan("auto", args.samples, args.exhaustive):
+    if args.mode == "auto" and bulk_plan("auto", args.samples, args.exhaustive):
         why = "--exhaustive" if args.exhaustive else f"{args.samples} samples (>= {BULK_FROM_SAMPLES})"
         print(f"{why}: using the bulk bench (HDL streams whole blocks, Python checks whole arrays)")
     report = run_sim(

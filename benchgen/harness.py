@@ -2,10 +2,11 @@
 
 Two harnesses share one layout of the core's data ports:
 
-* the bulk harness (Verilog, simulation only): a top level with its own clock that streams a block
-  of stimulus words from a file into the core at full clock rate, applies seeded idle gaps and
-  output stalls, captures every output word and writes the block back to a file. cocotb only
-  starts blocks and reads a few counters, so Python never runs once per clock.
+* the bulk harness (Verilog, and its VHDL-2008 twin for GHDL; simulation only): a top level with
+  its own clock that streams a block of stimulus words from a file into the core at full clock
+  rate, applies seeded idle gaps and output stalls, captures every output word and writes the
+  block back to a file. cocotb only starts blocks and reads a few counters, so Python never runs
+  once per clock.
 * the native harness (Verilator only): a variant of the bulk harness with the same stream rules,
   whose clock, controls and stimulus/result words are ports, and a generated C++ ``main`` that
   clocks it, reading stimulus blocks from a command stream and writing results to a reply stream
@@ -49,6 +50,7 @@ __all__ = [
     "render_native_harness",
     "render_native_main",
     "render_raw_harness",
+    "render_vhdl_bulk_harness",
 ]
 
 DEFAULT_BLOCK = 16384
@@ -57,6 +59,13 @@ DEFAULT_BLOCK = 16384
 WATCHDOG_CLOCKS = 1 << 22
 """Clocks the harness waits for a block request before it ends the simulation: Python never lets
 simulated time pass between blocks, so a long wait means the Python side is gone."""
+
+PARK_CLOCKS = 1024
+"""Clocks the VHDL harness's clock runs on with no block asked for before it parks (until cocotb
+resets the harness or asks for a block). Python lets no simulated time pass between blocks, and a
+core's stray outputs come within its latency, so they are still counted; a parked clock lets GHDL
+end the simulation after the last test, which cocotb cannot make it do."""
+
 
 @dataclass(frozen=True)
 class Slot:
@@ -79,6 +88,11 @@ class Slot:
         """Bit position of the port's least significant bit in the word."""
         return 8 * self.byte_offset
 
+    @property
+    def msb(self) -> int:
+        """Bit position of the port's most significant bit in the word."""
+        return self.lsb + self.width - 1
+
 
 @dataclass(frozen=True)
 class BulkLayout:
@@ -95,6 +109,7 @@ class BulkLayout:
         controls: The core's reset and clock enable as the harness connects them: the
             harness's own ``rst`` (active high) drives the core's reset at its level, and a
             clock enable is held high (the per-clock bench is the one that toggles it).
+        vhdl_controls: The same connections as VHDL-2008 port map associations.
         in_ready / out_ready: Whether the core has that port (a valid-only core has no
             ``out_ready``, and a pipelined one no ``in_ready`` either).
     """
@@ -107,6 +122,7 @@ class BulkLayout:
     in_bytes: int
     out_bytes: int
     controls: tuple[str, ...] = (".rst(rst)",)
+    vhdl_controls: tuple[str, ...] = ("rst => rst",)
     in_ready: bool = True
     out_ready: bool = True
 
@@ -156,11 +172,15 @@ def bulk_layout(core: str, ports: Sequence[CorePort], *, block: int = DEFAULT_BL
     inputs, in_bytes = _slots(_ordered(ports, "in"))
     outputs, out_bytes = _slots(_ordered(ports, "out"))
     controls: list[str] = []
+    vhdl_controls: list[str] = []
     for p in ports:
         if p.role == "reset":
             controls.append(f".{p.name}({'~rst' if p.active_low else 'rst'})")
+            # An expression as an actual is VHDL-2008 (IEEE 1076-2008 6.5.6.3).
+            vhdl_controls.append(f"{p.name} => {'not rst' if p.active_low else 'rst'}")
         elif p.role == "enable":
             controls.append(f".{p.name}(1'b1)")
+            vhdl_controls.append(f"{p.name} => '1'")
     return BulkLayout(
         core=core,
         module=f"{core}_bulk",
@@ -170,6 +190,7 @@ def bulk_layout(core: str, ports: Sequence[CorePort], *, block: int = DEFAULT_BL
         in_bytes=in_bytes,
         out_bytes=out_bytes,
         controls=tuple(controls),
+        vhdl_controls=tuple(vhdl_controls),
         in_ready=any(p.name == "in_ready" for p in ports),
         out_ready=any(p.name == "out_ready" for p in ports),
     )
@@ -214,6 +235,21 @@ def render_bulk_harness(layout: BulkLayout) -> str:
         "count_pad": 32 - iw,
     }
     return _clean(template_environment().get_template("bulk_harness.v.j2").render(ctx))
+
+
+def render_vhdl_bulk_harness(layout: BulkLayout) -> str:
+    """VHDL-2008 of the bulk harness entity (simulation only; GHDL): the Verilog one's twin."""
+    iw = layout.index_width
+    ctx = {
+        "version": __version__,
+        "L": layout,
+        "IN_W": 8 * layout.in_bytes,
+        "OUT_W": 8 * layout.out_bytes,
+        "IW": iw,
+        "park_after": PARK_CLOCKS,
+        "vhdl_controls": layout.vhdl_controls,
+    }
+    return _clean(template_environment().get_template("bulk_harness.vhd.j2").render(ctx))
 
 
 def native_names(layout: BulkLayout) -> tuple[str, str]:
@@ -270,12 +306,14 @@ class BulkFiles:
     Attributes:
         rtl: Harness source, relative to the project folder.
         toplevel: Harness module name (the simulation's top level in bulk mode).
+        vhdl: The VHDL harness (entity ``toplevel``), in projects with a VHDL core.
         test_module: cocotb test module name (in the project's ``bench/`` folder).
     """
 
     rtl: str
     toplevel: str
     test_module: str
+    vhdl: str = ""
 
 
 def bulk_files(manifest: dict[str, Any]) -> BulkFiles:
@@ -284,7 +322,12 @@ def bulk_files(manifest: dict[str, Any]) -> BulkFiles:
 
 
 def _bulk_files(core: str) -> BulkFiles:
-    return BulkFiles(rtl=f"rtl/{core}_bulk.v", toplevel=f"{core}_bulk", test_module=f"test_{core}_bulk")
+    return BulkFiles(
+        rtl=f"rtl/{core}_bulk.v",
+        toplevel=f"{core}_bulk",
+        test_module=f"test_{core}_bulk",
+        vhdl=f"rtl/{core}_bulk.vhd",
+    )
 
 
 _BULK_TEST_MODULE = '''"""Bulk cocotb tests for {core}: the checks live in benchgen.bench.bulk (generated file)."""
@@ -300,10 +343,14 @@ test_bulk_full_rate, test_bulk_gaps_and_stalls, test_bulk_exhaustive = bind(MANI
 
 
 def bulk_project_files(design: Design) -> dict[str, str]:
-    """The bulk harness and its thin test module, by path relative to the project folder."""
+    """The bulk harness in each language the project has, and the one thin test module that
+    drives either, by path relative to the project folder."""
     core = design.spec.name
     names = _bulk_files(core)
-    return {
-        names.rtl: render_bulk_harness(bulk_layout(core, design.ports)),
-        f"bench/{names.test_module}.py": _BULK_TEST_MODULE.format(core=core),
-    }
+    layout = bulk_layout(core, design.ports)
+    files = {f"bench/{names.test_module}.py": _BULK_TEST_MODULE.format(core=core)}
+    if "verilog" in design.spec.hdl:
+        files[names.rtl] = render_bulk_harness(layout)
+    if "vhdl" in design.spec.hdl:
+        files[names.vhdl] = render_vhdl_bulk_harness(layout)
+    return files

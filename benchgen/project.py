@@ -284,12 +284,13 @@ def render_project(design: Design, config_text: str) -> dict[str, str]:
     }
     if "verilog" in design.spec.hdl:
         files[f"rtl/{name}.v"] = render_core(design, config_text=config_text)
+        # The FuseSoC core file lists Verilog sources, so a VHDL-only project has none.
         files[core_file_name(design.spec)] = render_core_file(design, manifest["files"]["rtl"])
-        # The bulk harness wraps the unchanged core for volume runs (benchgen.harness); it and
-        # the FuseSoC core file are Verilog, so a VHDL-only project has neither.
-        files.update(bulk_project_files(design))
     if "vhdl" in design.spec.hdl:
         files[f"rtl/{name}.vhd"] = render_vhdl_core(design, config_text=config_text)
+    # The bulk harness wraps the unchanged core for volume runs (benchgen.harness), in each of
+    # the project's languages.
+    files.update(bulk_project_files(design))
     files.update(c_model_files(design, config_text=config_text))
     manifest["files"]["generated"] = sorted([*files, MANIFEST_NAME])
     files[MANIFEST_NAME] = json.dumps(manifest, indent=2, sort_keys=True) + "\n"

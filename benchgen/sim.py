@@ -258,11 +258,6 @@ def run_sim(
     if samples < 1:
         raise SimError(f"--samples {samples}: give a positive number of samples")
     bulk = bulk_plan(mode, samples, exhaustive)
-    if simulator in VHDL_SIMULATORS and bulk:
-        # The bulk harness is Verilog; a VHDL one is not written yet.
-        if exhaustive or mode == "bulk":
-            raise SimError(f"the bulk bench (and --exhaustive) does not run on {simulator} yet; use --mode per-clock")
-        bulk = False  # auto: the per-clock bench, at any sample count
     if bulk_engine not in BULK_ENGINES:
         raise SimError(f"bulk engine '{bulk_engine}': use one of {', '.join(BULK_ENGINES)}")
     if waves_window is not None:
@@ -348,7 +343,8 @@ def _check_waves_size(project: Path, manifest: dict[str, Any], design: Any, simu
     else:
         sources = [project / rel for rel in manifest["files"]["rtl"]]
     if bulk:
-        sources.append(project / bulk_files(manifest).rtl)
+        names = bulk_files(manifest)
+        sources.append(project / (names.vhdl if simulator in VHDL_SIMULATORS else names.rtl))
     bits = signal_bits([p for p in sources if p.is_file()])
     corners = len(next(iter(bench_corners(design.datapath).values())))
     clocks = estimate_clocks(

@@ -94,7 +94,7 @@ def test_both_languages_give_both_cores_from_one_description(tmp_path: Path) -> 
 def test_vhdl_only_writes_no_verilog_and_verilog_simulators_refuse_it(tmp_path: Path) -> None:
     out, manifest = _generate(tmp_path, "c", hdl="vhdl")
     assert manifest["files"]["rtl"] == []
-    assert sorted(p.name for p in (out / "rtl").iterdir()) == ["v_core.vhd"]
+    assert sorted(p.name for p in (out / "rtl").iterdir()) == ["v_core.vhd", "v_core_bulk.vhd"]
     assert not (out / "v_core.core").exists()  # the FuseSoC core file lists Verilog sources
     with pytest.raises(SimError, match='--simulator ghdl'):
         run_sim(out, simulator="icarus", samples=10)
@@ -104,12 +104,6 @@ def test_ghdl_refuses_a_project_without_vhdl(tmp_path: Path) -> None:
     out, _ = _generate(tmp_path, "d")
     with pytest.raises(SimError, match=r'hdl = \["verilog", "vhdl"\]'):
         run_sim(out, simulator="ghdl", samples=10)
-
-
-def test_ghdl_refuses_the_bulk_bench_rather_than_running_another(tmp_path: Path) -> None:
-    out, _ = _generate(tmp_path, "e", hdl="vhdl")
-    with pytest.raises(SimError, match="per-clock"):
-        run_sim(out, simulator="ghdl", samples=10, exhaustive=True)
 
 
 def test_regenerating_without_vhdl_removes_the_vhdl_it_wrote(tmp_path: Path) -> None:

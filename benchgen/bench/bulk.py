@@ -8,9 +8,10 @@ is kept: every sample is compared bit for bit (tags included), the first mismatc
 with their inputs and the seed, seeded idle gaps and output stalls can be switched on, the latency
 and the input spacing are measured, and nothing may be lost or duplicated.
 
-This is the engine for Icarus (and for Verilator with ``--timing`` when forced); Verilator normally
-runs the same tests with no cocotb at all (:mod:`benchgen.bench.bulk_native`). What is checked
-lives in :mod:`benchgen.bench.bulk_check`, shared by both.
+This is the engine for Icarus and for GHDL (whose harness is the VHDL-2008 twin of the Verilog one,
+with the same signals, stream rules and files), and for Verilator with ``--timing`` when forced;
+Verilator normally runs the same tests with no cocotb at all (:mod:`benchgen.bench.bulk_native`).
+What is checked lives in :mod:`benchgen.bench.bulk_check`, shared by both engines.
 
 Results go to the same JSON-lines records as the per-clock bench
 (:func:`benchgen.bench.scoreboard.record`), so ``benchgen sim`` pools them the same way.

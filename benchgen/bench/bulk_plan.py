@@ -35,6 +35,8 @@ FULL_RATE_TESTS = frozenset({"random_full_rate", "bulk_full_rate", "bulk_exhaust
 # the compiler flag empty). Only the harness's marked signals are public, which keeps the model
 # as fast as a plain Verilator build.
 _VERILATOR_ARGS = ("--timing", "-CFLAGS", "-std=c++20", "--no-public-flat-rw", "-O3")
+_VHDL_ARGS = {"ghdl": ("--std=08",)}
+"""Build arguments of the simulators that run the VHDL harness: the standard it is written in."""
 
 
 class BulkError(BenchgenError):
@@ -82,10 +84,13 @@ def bulk_run_args(
         BulkError: if the project has no bulk harness or the input space is too large.
     """
     names = bulk_files(manifest)
-    harness = project / names.rtl
+    # GHDL simulates the VHDL core in its VHDL harness; the others the Verilog pair.
+    vhdl = simulator in _VHDL_ARGS
+    rel = names.vhdl if vhdl else names.rtl
+    harness = project / rel
     if not harness.is_file():
         raise BulkError(
-            f"'{project}' has no bulk harness ({names.rtl}); regenerate it with: "
+            f"'{project}' has no bulk harness ({rel}); regenerate it with: "
             "benchgen generate config.toml -o ."
         )
     if exhaustive:
@@ -93,7 +98,8 @@ def bulk_run_args(
         from benchgen.project import design_from_manifest
 
         check_exhaustive(input_space_bits(design_from_manifest(manifest).datapath))
-    sources = [project / rel for rel in manifest["files"]["rtl"]] + [harness]
-    build_args = list(_VERILATOR_ARGS) if simulator == "verilator" else []
+    core_files = manifest["files"].get("vhdl", []) if vhdl else manifest["files"]["rtl"]
+    sources = [project / rel for rel in core_files] + [harness]
+    build_args = list(_VERILATOR_ARGS) if simulator == "verilator" else list(_VHDL_ARGS.get(simulator, ()))
     tests = ["test_bulk_exhaustive"] if exhaustive else ["test_bulk_full_rate", "test_bulk_gaps_and_stalls"]
     return sources, names.test_module, names.toplevel, build_args, tests
