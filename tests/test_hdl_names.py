@@ -26,5 +26,5 @@ def test_exp_declares_the_same_names_in_both_languages(arch: dict[str, object], 
     generate_project(config, tmp_path / "p")
     verilog_words = set(re.findall(r"\b\w+\b", (tmp_path / "p" / "rtl" / "exp_twin.v").read_text()))
     declared = _vhdl_declared((tmp_path / "p" / "rtl" / "exp_twin.vhd").read_text())
-    assert {"x_start", "z_start", "rem_first", "X_INIT"} <= declared
     assert sorted(declared - verilog_words) == []
+    assert {"x_start", "z_start", "rem_first", "X_INIT"} <= declared
