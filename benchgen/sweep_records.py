@@ -119,7 +119,7 @@ class DesignRecord(_Strict):
     config: CoreConfigRecord
     derived: DerivedRecord
     error_budget: ErrorBudgetRecord
-    rtl: Annotated[list[str], Field(min_length=1)]
+    rtl: list[str]  # the Verilog files: none for a VHDL-only core (hdl = "vhdl")
     ports: dict[str, PosInt] | None = None  # absent in results written before the report read it
 
 
@@ -155,7 +155,7 @@ class SimRunRecord(_Strict):
     itself fails a sample at ``>=`` the budget).
     """
 
-    simulator: Literal["icarus", "verilator"]
+    simulator: Literal["icarus", "verilator", "ghdl"]
     simulator_version: str
     mode: Literal["per-clock", "bulk", "bulk, exhaustive"]
     engine: Literal["cocotb", "C++ runner"]

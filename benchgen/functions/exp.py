@@ -252,14 +252,16 @@ class Exp(HyperbolicFunction):
         ln2 = b.param("LN2_Z", dp.ln2_const, ZW)
         t_low = b.wire("t_low", Cat((Slice(in_t, t_bits - 1, 0), Const(0, dp.z_frac - dp.in_frac))))
         q_ln2 = b.wire("q_ln2", Mul(Cat((Rep(ZW - qw, q_first[qw - 1]), q_first)), ln2))
-        rem = b.wire("rem", Add(t_low, q_ln2, subtract=True))
+        # Not `rem`: a VHDL reserved word; both printers keep the description's names.
+        rem = b.wire("rem_first", Add(t_low, q_ln2, subtract=True))
         rem_neg = b.wire("rem_neg", rem[ZW - 1])
         ew = dp.exp_width
         in_q = b.wire("in_q", Add(Slice(q_first, ew - 1, 0), Cat((Const(0, ew - 1), rem_neg)), subtract=True))
         z = b.wire("z_start", Add(rem, Mux(rem_neg, ln2, Const(0, ZW))), of="z")
         what = "1/A_n removes the gain" if dp.gain_mode == "compensated" else "1 (raw gain)"
         b.note(f"e^r by hyperbolic rotation of (x0, x0) by r: x0 = {what}.")
-        x0 = b.param("X_START", dp.x_start, W)
+        # Not X_START: VHDL ignores case, and the wire x_start below would hide it.
+        x0 = b.param("X_INIT", dp.x_start, W)
         x = b.wire("x_start", x0, of="xy")
         return Start(x, None, z, {"q": in_q})
 
