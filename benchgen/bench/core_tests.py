@@ -22,7 +22,7 @@ from cocotb.clock import Clock
 from benchgen.bench.scoreboard import SAMPLES_ENV, CheckResult, compare, record, write_csv_rows
 from benchgen.bench.stream import Capture, StreamBench
 from benchgen.design import Design
-from benchgen.functions import bench_corners, function_errors, ideal_outputs, random_inputs
+from benchgen.functions import bench_corners, function_errors, function_of, ideal_outputs, random_inputs
 from benchgen.functions import evaluate as evaluate_function
 from benchgen.project import design_from_manifest, load_manifest
 
@@ -81,6 +81,11 @@ class CoreBench:
             out_ready=any(p.name == "out_ready" for p in self.design.ports),
         )
         self.samples = int(os.environ.get(SAMPLES_ENV, DEFAULT_SAMPLES))
+        # A core with state from sample to sample (an NCO's phase accumulator): its model runs
+        # over every sample taken since the last reset, not over one capture alone.
+        self.stateful = function_of(self.dp).phase_front(self.dp) is not None
+        self._history: dict[str, npt.NDArray[Any]] = {}
+        self._history_resets = -1
 
     async def start(self) -> None:
         """Start the clock and reset the core."""
@@ -114,12 +119,30 @@ class CoreBench:
             out[name] = np.array(vals, dtype=object if wide else np.int64)
         return out
 
+    def _since_reset(self, inputs: dict[str, npt.NDArray[Any]]) -> tuple[dict[str, npt.NDArray[Any]], int]:
+        """The inputs the model runs on for a capture, and how many of them came before it.
+
+        A stateless core: the capture's own. A stateful one: every sample taken since the last
+        reset, this capture's last (the capture is remembered for the next check).
+        """
+        if not self.stateful:
+            return inputs, 0
+        if self._history_resets != self.stream.resets:
+            self._history = {k: v[:0] for k, v in inputs.items()}
+            self._history_resets = self.stream.resets
+        before = len(next(iter(self._history.values())))
+        dtype = {k: object if v.dtype == object or self._history[k].dtype == object else np.int64 for k, v in inputs.items()}
+        full = {k: np.concatenate([self._history[k].astype(dtype[k]), v.astype(dtype[k])]) for k, v in inputs.items()}
+        self._history = full
+        return full, before
+
     def check(self, name: str, cap: Capture, result: CheckResult | None = None) -> CheckResult:
         """Compare a capture with the model and the ideal; check order and tags."""
         result = result or CheckResult(test=name)
         inputs = self._inputs_of(cap)
         n = min(len(cap.in_cycles), len(cap.out_cycles))
-        expected = evaluate_function(self.dp, inputs)
+        model_inputs, before = self._since_reset(inputs)
+        expected = {k: v[before:] for k, v in evaluate_function(self.dp, model_inputs).items()}
         got = {p: cap.outputs(p) for p in self.out_ports}
         shown = dict(inputs)
         if self.tag_width:
@@ -127,7 +150,7 @@ class CoreBench:
             expected["out_tag"] = np.array(cap.in_values["in_tag"], dtype=got["out_tag"].dtype)
             shown["in_tag"] = expected["out_tag"]
         short = {k: v[:n] for k, v in inputs.items()}
-        ideal = ideal_outputs(self.dp, short)
+        ideal = {k: v[before : before + n] for k, v in ideal_outputs(self.dp, {k: v[: before + n] for k, v in model_inputs.items()}).items()}
         errors = function_errors(self.dp, short, {p: got[p][:n] for p in self.out_ports}, ideal)
         shown_before = len(result.first_mismatches)
         compare(
