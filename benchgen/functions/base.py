@@ -306,6 +306,16 @@ class Function:
         """The bit-true outputs for the inputs, by output port."""
         raise NotImplementedError
 
+    def initial_state(self, dp: Datapath) -> Any:
+        """The state a core holds from sample to sample, as after reset (None: it holds none,
+        and :meth:`model` maps each sample alone)."""
+        return None
+
+    def model_run(self, dp: Datapath, inputs: Inputs, state: Any) -> tuple[Outputs, Outputs, Any]:
+        """A stateful core's bit-true outputs, ideal and state after a run of samples that starts
+        in ``state`` (a bench checks a long stream block by block with it)."""
+        raise NotImplementedError(f"{self.name} holds no state")
+
     def tone(self, dp: Datapath, angles: npt.NDArray[Any]) -> npt.NDArray[Any]:
         """A spectral function's sinusoidal output for angle codes (see ``spectral``)."""
         raise NotImplementedError(f"{self.name} has no sinusoidal output")

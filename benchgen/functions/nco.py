@@ -32,7 +32,7 @@ from benchgen.functions.circular import CircularDatapath
 from benchgen.functions.sincos import FUNCTION as SINCOS
 from benchgen.functions.sincos import SinCos, ideal_sincos
 from benchgen.hwlib import Builder, Start
-from benchgen.lfsr import leap_map
+from benchgen.lfsr import leap_map, lfsr_states
 from benchgen.nco import Change, Nco, phase_path
 from benchgen.spec import CoreSpec
 
@@ -183,6 +183,30 @@ class NcoCore(SinCos):
         assert isinstance(dp, NcoDatapath)
         path = phase_of(dp, inputs)
         return SINCOS.model(dp.core(), {"in_angle": path.codes})
+
+    def initial_state(self, dp: Datapath) -> tuple[int, int]:
+        """``(accumulator, LFSR state)`` after reset."""
+        assert isinstance(dp, NcoDatapath)
+        return 0, dp.lfsr_seed
+
+    def model_run(self, dp: Datapath, inputs: Inputs, state: Any) -> tuple[Outputs, Outputs, Any]:
+        """benchgen.nco's model from a state: an accumulator ``acc0`` adds to every sample's
+        phase as an offset would (the accumulator's update does not read the offset), and the
+        LFSR starts from its state as from a seed."""
+        assert isinstance(dp, NcoDatapath)
+        acc0, s0 = state
+        mask = (1 << dp.acc_width) - 1
+        fw = [int(v) & mask for v in np.asarray(inputs[FREQ_PORT]).tolist()]
+        po = [(int(v) + acc0) & mask for v in np.asarray(inputs[PHASE_PORT]).tolist()]
+        dtype: Any = np.int64 if dp.acc_width <= 62 else object
+        there = replace(dp, lfsr_seed=s0)
+        path = phase_of(there, {FREQ_PORT: np.array(fw, dtype=dtype), PHASE_PORT: np.array(po, dtype=dtype)})
+        core = dp.core()
+        out = SINCOS.model(core, {"in_angle": path.codes})
+        cos, sin = ideal_sincos(core, path.codes)
+        acc_end = (acc0 + int(path.accumulator[-1]) + fw[-1]) & mask
+        s_end = int(lfsr_states(dp.lfsr_width, s0, len(fw) + 1, dp.dither_width)[-1]) if dp.dither_width else s0
+        return out, {"out_cos": cos, "out_sin": sin}, (acc_end, s_end)
 
     def tone(self, dp: Datapath, angles: npt.NDArray[Any]) -> npt.NDArray[Any]:
         assert isinstance(dp, NcoDatapath)
