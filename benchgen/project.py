@@ -256,16 +256,20 @@ if __name__ == "__main__":
 
 
 def _test_module(design: Design) -> str:
+    # A core with state from sample to sample (an NCO) gets the tone test too.
+    stateful = function_of(design.datapath).phase_front(design.datapath) is not None
+    names = "bind, bind_tone" if stateful else "bind"
+    tone = "test_tone = bind_tone(MANIFEST)\n" if stateful else ""
     return f'''"""cocotb tests for {design.spec.name}: the checks live in benchgen.bench (generated file)."""
 
 from pathlib import Path
 
-from benchgen.bench.core_tests import bind
+from benchgen.bench.core_tests import {names}
 
 MANIFEST = Path(__file__).resolve().parent.parent / "manifest.json"
 
 test_corners, test_random_full_rate, test_gaps_and_stalls, test_reset_mid_stream = bind(MANIFEST)
-'''
+{tone}'''
 
 
 def render_project(design: Design, config_text: str) -> dict[str, str]:
