@@ -238,6 +238,11 @@ or equivalently `benchgen sim . --simulator ghdl`."""
 def _readme_c_model(design: Design) -> str:
     """The README's paragraph on the bit-true C model."""
     header, source = c_model_paths(design)
+    if function_of(design.datapath).phase_front(design.datapath) is not None:
+        return f"""Bit-true C model: `{header}` and `{source}` (C99, `stdint.h` only), one function
+`{model_function_name(design)}()` of the sine/cosine core behind the phase accumulator: the phase code in,
+cosine and sine out, exactly as the RTL's core computes them. The accumulator and the dither hold
+state from sample to sample; form the code as docs/nco.md says (`benchgen.nco` does it in Python)."""
     return f"""Bit-true C model: `{header}` and `{source}` (C99, `stdint.h` only), one function
 `{model_function_name(design)}()` that maps one sample's input codes to its output codes exactly as the RTL
 does (no clock or latency), for C/C++ system simulations and HLS test benches; see docs/c_model.md."""
