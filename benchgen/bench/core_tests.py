@@ -44,7 +44,8 @@ DEFAULT_SAMPLES = 20_000
 CLOCK_NS = 10
 TONE_ENV = "BENCHGEN_TONE"
 """A stateful core's tone test: JSON ``{"freq_word", "phase_offset", "samples", "cycles"}``
-(every key optional; ``cycles`` is the carrier's FFT bin, for a coherent word)."""
+(every key optional; ``cycles``: carrier cycles per record, a whole number for a coherent word,
+measured through a window otherwise)."""
 DEFAULT_TONE_SAMPLES = 4096
 TONE_CHANGE_SAMPLES = 256
 
@@ -320,14 +321,18 @@ async def test_reset_mid_stream(dut: Any) -> None:
     tb.finish(result)
 
 
-def _tone_plan(tb: CoreBench) -> tuple[int, int, int, int]:
+def _tone_plan(tb: CoreBench) -> tuple[int, int, int, float]:
     """``(freq_word, phase_offset, samples, cycles)`` of the tone test, from ``BENCHGEN_TONE``
-    or by default a coherent word with an odd cycle count near a seventh of the record."""
+    or by default a coherent word with an odd cycle count near a seventh of the record.
+    ``cycles`` is the carrier's frequency in cycles per record (an integer for a coherent word;
+    otherwise the spectrum is measured through a window, benchgen.spectrum.measure_tone; 0: no
+    spectrum)."""
     dp: Any = tb.dp
     given = json.loads(os.environ.get(TONE_ENV) or "{}")
     n = int(given.get("samples", DEFAULT_TONE_SAMPLES))
     if "freq_word" in given:
-        return int(given["freq_word"]), int(given.get("phase_offset", 0)), n, int(given.get("cycles", 0))
+        cycles = float(given.get("cycles", 0))
+        return int(given["freq_word"]), int(given.get("phase_offset", 0)), n, int(cycles) if cycles.is_integer() else cycles
     cycles = (n // 7) | 1
     return coherent_word(dp.acc_width, n, cycles), int(given.get("phase_offset", 0)), n, cycles
 
@@ -364,6 +369,7 @@ async def test_tone(dut: Any) -> None:
             "phase_offset": offset,
             "samples": n,
             "cycles": cycles,
+            "window": m.window,
             "truncation_period": period,
             "sfdr_dbc": round(m.sfdr_db, 4),
             "snr_db": round(m.snr_db, 4),
