@@ -162,13 +162,23 @@ def test_evaluator_refuses_a_name_that_is_not_in_the_description() -> None:
 # Variants run bit for bit against the model (every test of the bench, the tone test's change of
 # word and offset mid-stream among them): the defaults with dither and a tag; an iterative core
 # with an asynchronous active-low reset, a clock enable and a 32-bit accumulator; a valid-only
-# pipeline of 3 stages with a dither over every dropped bit.
+# pipeline of 3 stages with a dither over every dropped bit; the VHDL of an iterative core.
 VARIANTS = {
     "default": {"tag_width": 4},
     "iterative_async_en": {"architecture": "iterative", "iterations_per_cycle": 2, "reset_style": "asynchronous",
                            "reset_polarity": "active_low", "clock_enable": True, "acc_width": 32, "dither_width": 0},
     "valid_only_full_dither": {"handshake": "valid_only", "pipeline_depth": 3, "dither_width": 14},
+    "vhdl_iterative": {"architecture": "iterative", "iterations_per_cycle": 3, "hdl": "vhdl"},
 }
+# (variant, simulator): Verilator builds cost ~25 s each, and the spectral test below runs the
+# whole bench on the default pipeline (undithered and fully dithered) there already.
+SIM_CASES = [
+    ("default", "icarus"),
+    ("iterative_async_en", "icarus"),
+    ("iterative_async_en", "verilator"),
+    ("valid_only_full_dither", "icarus"),
+    ("vhdl_iterative", "ghdl"),
+]
 
 
 def _project(tmp_path: Path, config: dict[str, Any]) -> Path:
@@ -179,14 +189,9 @@ def _project(tmp_path: Path, config: dict[str, Any]) -> Path:
 
 
 @pytest.mark.sim
-@pytest.mark.parametrize("simulator", ["icarus", "verilator"])
-@pytest.mark.parametrize("variant", list(VARIANTS))
+@pytest.mark.parametrize(("variant", "simulator"), SIM_CASES)
 def test_nco_matches_the_model_bit_for_bit_in_simulation(tmp_path: Path, simulator: str, variant: str, monkeypatch: pytest.MonkeyPatch) -> None:
     require_simulator(simulator)
-    if simulator == "verilator" and variant != "iterative_async_en":
-        # Verilator builds cost ~25 s each: the spectral test below runs the whole bench on the
-        # default pipeline (undithered and fully dithered) there already.
-        pytest.skip("covered on Verilator by test_spectra_in_simulation_meet_the_truncation_theory")
     monkeypatch.setenv("BENCHGEN_TONE", json.dumps({"samples": 1024}))
     report = run_sim(_project(tmp_path, {**BASE, **VARIANTS[variant]}), simulator=simulator, samples=1500, seed=14, mode="per-clock")
     assert report.passed, report.problems
@@ -249,3 +254,15 @@ def test_spectra_in_simulation_meet_the_truncation_theory(tmp_path: Path, simula
     from benchgen.spectrum import measure_tone
 
     assert measure_tone(model.complex(), worst.cycles).sfdr_db == pytest.approx(m["sfdr_dbc"], abs=1e-3)
+
+
+@pytest.mark.sim
+@pytest.mark.parametrize("simulator", ["icarus", "verilator"])
+def test_bulk_bench_carries_the_nco_state_from_block_to_block(tmp_path: Path, simulator: str) -> None:
+    """The bulk bench (cocotb on Icarus, the C++ runner on Verilator) checks a long stream
+    block by block: the model carries the accumulator and the LFSR across blocks and starts
+    again at each test's reset (Function.model_run), so every sample matches."""
+    require_simulator(simulator)
+    report = run_sim(_project(tmp_path, {**BASE, "tag_width": 2}), simulator=simulator, samples=30_000, seed=9, mode="bulk")
+    assert report.passed, report.problems
+    assert report.mode == "bulk" and report.mismatches == 0 and report.samples > 30_000
