@@ -99,7 +99,7 @@ class NcoCore(SinCos):
 
     name: ClassVar[str] = "nco"
     summary: ClassVar[str] = "numerically controlled oscillator: phase accumulator, optional dither, sine and cosine"
-    synonyms: ClassVar[tuple[str, ...]] = ("dds", "oscillator", "local_oscillator", "lo")
+    synonyms: ClassVar[tuple[str, ...]] = ("dds", "oscillator", "local_oscillator")
     options: ClassVar[tuple[str, ...]] = ("acc_width", "dither_width", "lfsr_width", "lfsr_seed")
     angle_signal: ClassVar[str] = CODE_WIRE
 
