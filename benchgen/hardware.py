@@ -531,7 +531,6 @@ class _Core:
         m.add(RegisterBlock(updates=(((take_sig, tuple(loads)),),), reset=tuple(reset)))
         b.note()
 
-
     # ------------------------------------------------------------------ pipelined
 
     def pipelined(self) -> None:
