@@ -182,6 +182,10 @@ _FIELDS: tuple[str, ...] = (
     "reset_polarity",
     "clock_enable",
     "handshake",
+    "acc_width",
+    "dither_width",
+    "lfsr_width",
+    "lfsr_seed",
 )
 # Fields left out of the manifest's config at their default, so a project that does not set
 # them keeps the manifest it had before they existed (same config, same bytes).
@@ -559,7 +563,13 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
                 suggestion={"iterations_per_cycle": iterations},
             )
 
-    return CoreSpec(
+    # The NCO's fields (the function refuses them elsewhere; its validate checks how they fit).
+    acc_width = _int_field(raw, "acc_width", 3, 64, default=32) if "acc_width" in raw else 32
+    dither_width = _int_field(raw, "dither_width", 0, 64, default=0) if "dither_width" in raw else 0
+    lfsr_width = _int_field(raw, "lfsr_width", 3, 64, default=32) if "lfsr_width" in raw else None
+    lfsr_seed = _int_field(raw, "lfsr_seed", 1, (1 << 63) - 1, default=1) if "lfsr_seed" in raw else None
+
+    spec = CoreSpec(
         name=name,
         function=function,
         architecture=arch,
@@ -582,7 +592,13 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
         reset_polarity=reset_polarity,
         clock_enable=clock_enable,
         handshake=handshake,
+        acc_width=acc_width if acc_width is not None else 32,
+        dither_width=dither_width if dither_width is not None else 0,
+        lfsr_width=lfsr_width,
+        lfsr_seed=lfsr_seed,
     )
+    fn.validate(spec)
+    return spec
 
 
 def load_config(path: str | Path) -> CoreSpec:

@@ -34,6 +34,7 @@ from benchgen.functions import (
     core_ports,
     front_stages,
     function_of,
+    function_named,
     corner_inputs,
     directed_inputs,
     enumerate_inputs,
@@ -579,6 +580,7 @@ def _arithmetic(spec: CoreSpec) -> CoreSpec:
     sizing run. The
     architecture stays (:func:`sizing_cost` weighs a pipeline and an iterative core apart), and
     an iterative core's iterations per clock."""
+    spec = function_named(spec.function).sizing_spec(spec)
     return replace(
         spec, name="core", pipeline_depth=None, tag_width=0, handshake="ready_valid", hdl=DEFAULT_HDL,
         vlnv_vendor=DEFAULT_VLNV_VENDOR, vlnv_library=DEFAULT_VLNV_LIBRARY,

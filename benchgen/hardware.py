@@ -20,6 +20,7 @@ from benchgen.netlist import (
     Add,
     And,
     Assign,
+    Cat,
     Cmp,
     Const,
     Decl,
@@ -34,6 +35,7 @@ from benchgen.netlist import (
     Slice,
     Sra,
     Table,
+    Xor,
 )
 
 __all__ = ["build_core", "header_lines", "MAX_HEADER_LINE"]
@@ -477,6 +479,58 @@ class _Core:
         for name, _ in ports:
             m.add(Assign(b.sig(name), regs[name][0]))
 
+    # ------------------------------------------------------------------ NCO front stage
+
+    def phase_front(self, take: Expr) -> None:
+        """The phase accumulator in front of the iterations, for a function that has one
+        (:meth:`benchgen.functions.base.Function.phase_front`; docs/nco.md, the checklist).
+
+        The sample taken at a clock edge (``take``) reads ``acc_reg + offset + dither`` and
+        keeps the top bits (the function's input logic reads them by name); the same edge loads
+        ``acc_reg + freq`` and advances the dither LFSR by its D-step map. Reset loads 0 and the
+        seed. The accumulator feeds itself, so the transparent evaluator (netlist.evaluate)
+        takes ``acc_reg`` and ``lfsr_reg`` as given values.
+        """
+        front = self.fn.phase_front(self.dp)
+        if front is None:
+            return
+        b, m = self.b, self.module
+        a, p, d, width = front.acc_width, front.angle_width, front.dither_width, front.lfsr_width
+        drop = a - p
+        b.note()
+        b.note(
+            f"---- phase accumulator: {a} bits, the top {p} kept (floor)"
+            + (f", {d} dither bits just below them ----" if d else " ----")
+        )
+        take_sig = b.wire("take", take, "a sample is taken at this edge")
+        acc = b.known(Sig("acc_reg", a, vector=True))
+        m.add(Reg(acc))
+        freq, offset = b.sig(front.freq_port), b.sig(front.phase_port)
+        total: Expr = Add(acc, offset)
+        loads: list[tuple[Sig, Expr]] = [(acc, b.wire("acc_next", Add(acc, freq), "the word acts from the next sample"))]
+        reset: list[tuple[Sig, Expr]] = [(acc, Const(0, a))]
+        if d:
+            lfsr = b.known(Sig("lfsr_reg", width, vector=True))
+            m.add(Reg(lfsr))
+            below = [Const(0, drop - d)] if drop > d else []
+            dither = b.wire("dither", Cat((Const(0, p), Slice(lfsr, d - 1, 0), *below)), f"low {d} LFSR bits, weight 2^{drop - d}")
+            total = Add(total, dither)
+            b.note(f"the LFSR ({width} bits, XOR feedback, shifting left) advanced by {d} step(s): one XOR per term")
+            bits: list[Expr] = []
+            for j in reversed(range(width)):
+                terms = [i for i, image in enumerate(front.lfsr_leap) if image >> j & 1]
+                e: Expr = Slice(lfsr, terms[0], terms[0])
+                for i in terms[1:]:
+                    e = Xor(e, Slice(lfsr, i, i))
+                bits.append(e)
+            loads.append((lfsr, b.wire("lfsr_next", Cat(tuple(bits)) if width > 1 else bits[0])))
+            reset.append((lfsr, Const(front.lfsr_seed, width)))
+        phase = b.wire("phase", total, "modulo 2^" + str(a), carry_only=drop)
+        b.wire(front.angle, Slice(phase, a - 1, drop) if drop else phase, "the core's angle", vector=True)
+        b.note()
+        m.add(RegisterBlock(updates=(((take_sig, tuple(loads)),),), reset=tuple(reset)))
+        b.note()
+
     # ------------------------------------------------------------------ pipelined
 
     def pipelined(self) -> None:
@@ -494,6 +548,7 @@ class _Core:
             b.note("The pipeline advances while the output buffer can take a sample.")
             advance = b.known(Sig("advance", 1))
             m.add(Decl(advance), Assign(b.sig("in_ready"), advance))
+        self.phase_front(b.sig("in_valid") if advance is None else And(b.sig("in_valid"), advance))
         b.note()
         # The input logic's own register stages (a split constant multiplier): the sample's
         # valid and tag travel beside them.
@@ -630,6 +685,7 @@ class _Core:
         count_width = max(1, (cycles - 1).bit_length())
         shift_width = max(1, max(dp.shifts).bit_length())
         self.constants(with_table=fixed)
+        self.phase_front(And(b.sig("in_valid"), b.sig("in_ready")))
         b.note()
         start = self.fn.hw_inputs(b, dp)
         b.note()

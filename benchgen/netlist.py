@@ -680,7 +680,10 @@ def evaluate(module: Module, inputs: dict[str, npt.ArrayLike], *, transparent: b
         module: The description.
         inputs: Unsigned (or signed: they are taken modulo 2**width) values per input port;
             control inputs that are absent are inactive (the reset) or 1 (every other one-bit
-            input, the clock enable among them).
+            input, the clock enable among them). A name that is not an input port names a
+            register (or wire) of the body, which then holds the given values instead of what
+            loads it: how a register that feeds itself (an NCO's accumulator) is evaluated,
+            given its value at each sample.
         transparent: Must be True (the only mode).
 
     Returns:
@@ -709,10 +712,21 @@ def evaluate(module: Module, inputs: dict[str, npt.ArrayLike], *, transparent: b
             )
     for p in module.params:
         env.values[p.name] = env.arr(p.value, p.width)
+    ports = {port.sig.name for port in module.ports}
+    given = {sig.name: sig for sig in declared(module) if sig.name in inputs and sig.name not in ports}
+    unknown = sorted(set(inputs) - ports - set(given))
+    if unknown:
+        raise ValueError(f"no signal named {unknown[0]} in the description")
+    for name, sig in given.items():
+        values = np.asarray(inputs[name])
+        mask = _mask(sig.width)
+        env.values[name] = _as(
+            np.array([int(v) & mask for v in values], dtype=object) if values.dtype == object else values & mask, sig.width
+        )
     for st in module.body:
         if isinstance(st, Local):
             env.values[st.param.name] = env.arr(st.param.value, st.param.width)
-    pending: list[Statement] = list(module.body)
+    pending: list[Statement] = [st for st in module.body if not (isinstance(st, Wire | Assign) and st.sig.name in given)]
     done: set[str] = set(env.values)
     # Statements are printed in dependency order except where a register feeds back; a few
     # passes settle a feed-forward description.

@@ -239,6 +239,11 @@ or equivalently `benchgen sim . --simulator ghdl`."""
 def _readme_c_model(design: Design) -> str:
     """The README's paragraph on the bit-true C model."""
     header, source = c_model_paths(design)
+    if function_of(design.datapath).phase_front(design.datapath) is not None:
+        return f"""Bit-true C model: `{header}` and `{source}` (C99, `stdint.h` only), one function
+`{model_function_name(design)}()` of the sine/cosine core behind the phase accumulator: the phase code in,
+cosine and sine out, exactly as the RTL's core computes them. The accumulator and the dither hold
+state from sample to sample; form the code as docs/nco.md says (`benchgen.nco` does it in Python)."""
     return f"""Bit-true C model: `{header}` and `{source}` (C99, `stdint.h` only), one function
 `{model_function_name(design)}()` that maps one sample's input codes to its output codes exactly as the RTL
 does (no clock or latency), for C/C++ system simulations and HLS test benches; see docs/c_model.md."""
@@ -281,16 +286,20 @@ def _runner(design: Design) -> str:
 
 
 def _test_module(design: Design) -> str:
+    # A core with state from sample to sample (an NCO) gets the tone test too.
+    stateful = function_of(design.datapath).phase_front(design.datapath) is not None
+    names = "bind, bind_tone" if stateful else "bind"
+    tone = "test_tone = bind_tone(MANIFEST)\n" if stateful else ""
     return f'''"""cocotb tests for {design.spec.name}: the checks live in benchgen.bench (generated file)."""
 
 from pathlib import Path
 
-from benchgen.bench.core_tests import bind
+from benchgen.bench.core_tests import {names}
 
 MANIFEST = Path(__file__).resolve().parent.parent / "manifest.json"
 
 test_corners, test_random_full_rate, test_gaps_and_stalls, test_reset_mid_stream = bind(MANIFEST)
-'''
+{tone}'''
 
 
 def render_project(design: Design, config_text: str) -> dict[str, str]:

@@ -71,6 +71,10 @@ class CoreSpec:
         clock_enable: Add a ``clk_en`` input: while it is low every register of the core holds
             (a clock edge with ``clk_en`` low is no edge for the core).
         handshake: One of :data:`HANDSHAKES`.
+        acc_width: NCO (function ``nco``): bits of the phase accumulator and its words.
+        dither_width: NCO: phase dither bits below the kept phase LSB (0: none).
+        lfsr_width: NCO: length of the dither LFSR (``None``: ``max(32, dither_width)``).
+        lfsr_seed: NCO: the dither LFSR's state after reset (``None``: all ones).
     """
 
     name: str
@@ -95,3 +99,7 @@ class CoreSpec:
     reset_polarity: str = RESET_POLARITIES[0]
     clock_enable: bool = False
     handshake: str = "ready_valid"
+    acc_width: int = 32
+    dither_width: int = 0
+    lfsr_width: int | None = None
+    lfsr_seed: int | None = None

@@ -14,7 +14,7 @@ from benchgen.rtl import render_core
 
 # Small cores, so sizing each one takes a moment.
 SMALL = {"sincos": 8, "rotate": 6, "atan2": 7, "mul": 7, "div": 7,
-         "sinhcosh": 9, "exp": 9, "atanh": 9, "ln": 9, "sqrt": 9}
+         "sinhcosh": 9, "exp": 9, "atanh": 9, "ln": 9, "sqrt": 9, "nco": 8}
 
 
 @pytest.mark.parametrize("tag_width", [0, 3])

@@ -54,6 +54,9 @@ FUNCTION_CASES = [
     {"function": "ln", "data_width": 8},
     {"function": "sqrt", "data_width": 10},
     {"function": "sqrt", "data_width": 9, "gain": "raw"},
+    # the phase accumulator in front: with dither (and an LFSR), and with no bit dropped
+    {"function": "nco", "data_width": 10, "angle_width": 11, "acc_width": 24, "dither_width": 3},
+    {"function": "nco", "data_width": 9, "angle_width": 10, "acc_width": 10},
 ]
 
 

@@ -103,6 +103,7 @@ class BulkBench:
         self.fault = parse_fault(os.environ.get(FAULT_ENV, ""), self.layout)
         self.done = 0
         self._extra = 0
+        self.function.restart()
         self._streams = 0
         self.work = Path.cwd()
 

@@ -25,6 +25,7 @@ from benchgen.design import Design
 from benchgen.functions import (
     bench_corners,
     function_errors,
+    function_of,
     ideal_outputs,
     input_ports,
     output_ports,
@@ -124,6 +125,14 @@ class BulkFunction:
         self.signed_outputs = tuple(p.name for p in out if p.signed)
         self.space_bits = sum(p.width for p in self._in)
         self._table: tuple[Inputs, Inputs] | None = None
+        # A core with state from sample to sample (an NCO): the model carries it from block to
+        # block, from the reset on (restart at each reset).
+        self._fn = function_of(self.dp)
+        self._state = self._fn.initial_state(self.dp)
+
+    def restart(self) -> None:
+        """The core was reset: a stateful model starts again from its reset state."""
+        self._state = self._fn.initial_state(self.dp)
 
     @property
     def tabulated(self) -> bool:
@@ -160,7 +169,7 @@ class BulkFunction:
 
     def tabulate(self) -> None:
         """Model and ideal over the whole input space, once (only for spaces of at most 2**20)."""
-        if self.space_bits > TABLE_MAX_BITS:
+        if self.space_bits > TABLE_MAX_BITS or self._state is not None:
             return
         every = self.enumerate(0, 1 << self.space_bits)
         model_in: dict[str, npt.ArrayLike] = dict(every)
@@ -173,6 +182,9 @@ class BulkFunction:
             model, ideal = self._table
             return {k: v[idx] for k, v in model.items()}, {k: v[idx] for k, v in ideal.items()}
         ins = {p: inputs[p] for p in self.inputs}
+        if self._state is not None:
+            model, ideal, self._state = self._fn.model_run(self.dp, ins, self._state)
+            return model, ideal
         model_in: dict[str, npt.ArrayLike] = dict(ins)
         return evaluate_function(self.dp, model_in), ideal_outputs(self.dp, ins)
 

@@ -308,6 +308,7 @@ class _NativeBench:
 
     def run_test(self, session: _Session, test: _Test) -> CheckResult:
         tally = Tally(CheckResult(test=test.name), self.seed, self.design.spec.max_error_lsb, csv=self.csv)
+        self.function.restart()  # the feeder resets the core before its first block
         if (1 << self.function.space_bits) <= 4 * test.prepare_total:
             self.function.tabulate()
         pending: queue.Queue[Any] = queue.Queue(maxsize=_QUEUE_BLOCKS)

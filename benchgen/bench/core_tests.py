@@ -10,6 +10,7 @@ default 20000), ``BENCHGEN_RESULTS`` (JSON-lines file for per-test results), ``B
 
 from __future__ import annotations
 
+import json
 import os
 from pathlib import Path
 from typing import Any
@@ -22,20 +23,31 @@ from cocotb.clock import Clock
 from benchgen.bench.scoreboard import SAMPLES_ENV, CheckResult, compare, record, write_csv_rows
 from benchgen.bench.stream import Capture, StreamBench
 from benchgen.design import Design
-from benchgen.functions import bench_corners, function_errors, ideal_outputs, random_inputs
+from benchgen.nco_theory import coherent_word, dithered_spur_dbc, truncation_period
+from benchgen.spectrum import measure_tone
+from benchgen.functions import bench_corners, function_errors, function_of, ideal_outputs, random_inputs
 from benchgen.functions import evaluate as evaluate_function
 from benchgen.project import design_from_manifest, load_manifest
 
 __all__ = [
+    "TONE_ENV",
     "bind",
+    "bind_tone",
     "test_corners",
     "test_gaps_and_stalls",
     "test_random_full_rate",
     "test_reset_mid_stream",
+    "test_tone",
 ]
 
 DEFAULT_SAMPLES = 20_000
 CLOCK_NS = 10
+TONE_ENV = "BENCHGEN_TONE"
+"""A stateful core's tone test: JSON ``{"freq_word", "phase_offset", "samples", "cycles"}``
+(every key optional; ``cycles``: carrier cycles per record, a whole number for a coherent word,
+measured through a window otherwise)."""
+DEFAULT_TONE_SAMPLES = 4096
+TONE_CHANGE_SAMPLES = 256
 
 _manifest_path: Path | None = None
 
@@ -45,6 +57,14 @@ def bind(manifest: Path) -> tuple[Any, Any, Any, Any]:
     global _manifest_path
     _manifest_path = Path(manifest)
     return test_corners, test_random_full_rate, test_gaps_and_stalls, test_reset_mid_stream
+
+
+def bind_tone(manifest: Path) -> Any:
+    """The tone test of a core that holds state from sample to sample (an NCO), for its test
+    module to expose beside the four of :func:`bind`."""
+    global _manifest_path
+    _manifest_path = Path(manifest)
+    return test_tone
 
 
 class CoreBench:
@@ -81,6 +101,11 @@ class CoreBench:
             out_ready=any(p.name == "out_ready" for p in self.design.ports),
         )
         self.samples = int(os.environ.get(SAMPLES_ENV, DEFAULT_SAMPLES))
+        # A core with state from sample to sample (an NCO's phase accumulator): its model runs
+        # over every sample taken since the last reset, not over one capture alone.
+        self.stateful = function_of(self.dp).phase_front(self.dp) is not None
+        self._history: dict[str, npt.NDArray[Any]] = {}
+        self._history_resets = -1
 
     async def start(self) -> None:
         """Start the clock and reset the core."""
@@ -114,12 +139,30 @@ class CoreBench:
             out[name] = np.array(vals, dtype=object if wide else np.int64)
         return out
 
+    def _since_reset(self, inputs: dict[str, npt.NDArray[Any]]) -> tuple[dict[str, npt.NDArray[Any]], int]:
+        """The inputs the model runs on for a capture, and how many of them came before it.
+
+        A stateless core: the capture's own. A stateful one: every sample taken since the last
+        reset, this capture's last (the capture is remembered for the next check).
+        """
+        if not self.stateful:
+            return inputs, 0
+        if self._history_resets != self.stream.resets:
+            self._history = {k: v[:0] for k, v in inputs.items()}
+            self._history_resets = self.stream.resets
+        before = len(next(iter(self._history.values())))
+        dtype = {k: object if v.dtype == object or self._history[k].dtype == object else np.int64 for k, v in inputs.items()}
+        full = {k: np.concatenate([self._history[k].astype(dtype[k]), v.astype(dtype[k])]) for k, v in inputs.items()}
+        self._history = full
+        return full, before
+
     def check(self, name: str, cap: Capture, result: CheckResult | None = None) -> CheckResult:
         """Compare a capture with the model and the ideal; check order and tags."""
         result = result or CheckResult(test=name)
         inputs = self._inputs_of(cap)
         n = min(len(cap.in_cycles), len(cap.out_cycles))
-        expected = evaluate_function(self.dp, inputs)
+        model_inputs, before = self._since_reset(inputs)
+        expected = {k: v[before:] for k, v in evaluate_function(self.dp, model_inputs).items()}
         got = {p: cap.outputs(p) for p in self.out_ports}
         shown = dict(inputs)
         if self.tag_width:
@@ -127,7 +170,7 @@ class CoreBench:
             expected["out_tag"] = np.array(cap.in_values["in_tag"], dtype=got["out_tag"].dtype)
             shown["in_tag"] = expected["out_tag"]
         short = {k: v[:n] for k, v in inputs.items()}
-        ideal = ideal_outputs(self.dp, short)
+        ideal = {k: v[before : before + n] for k, v in ideal_outputs(self.dp, {k: v[: before + n] for k, v in model_inputs.items()}).items()}
         errors = function_errors(self.dp, short, {p: got[p][:n] for p in self.out_ports}, ideal)
         shown_before = len(result.first_mismatches)
         compare(
@@ -276,3 +319,68 @@ async def test_reset_mid_stream(dut: Any) -> None:
     if not cap.complete:
         result.problems.append(f"after the reset: {len(cap.out_cycles)} of 500 samples came out")
     tb.finish(result)
+
+
+def _tone_plan(tb: CoreBench) -> tuple[int, int, int, float]:
+    """``(freq_word, phase_offset, samples, cycles)`` of the tone test, from ``BENCHGEN_TONE``
+    or by default a coherent word with an odd cycle count near a seventh of the record.
+    ``cycles`` is the carrier's frequency in cycles per record (an integer for a coherent word;
+    otherwise the spectrum is measured through a window, benchgen.spectrum.measure_tone; 0: no
+    spectrum)."""
+    dp: Any = tb.dp
+    given = json.loads(os.environ.get(TONE_ENV) or "{}")
+    n = int(given.get("samples", DEFAULT_TONE_SAMPLES))
+    if "freq_word" in given:
+        cycles = float(given.get("cycles", 0))
+        return int(given["freq_word"]), int(given.get("phase_offset", 0)), n, int(cycles) if cycles.is_integer() else cycles
+    cycles = (n // 7) | 1
+    return coherent_word(dp.acc_width, n, cycles), int(given.get("phase_offset", 0)), n, cycles
+
+
+@cocotb.test()
+async def test_tone(dut: Any) -> None:
+    """A steady tone from reset, then a change of frequency word and phase offset: every output
+    bit against the model; the steady part's spectrum (SFDR, SNR; IEEE Std 1241 coherent
+    sampling) is recorded beside the truncation theory's prediction."""
+    tb = CoreBench(dut)
+    await tb.start()
+    dp: Any = tb.dp
+    word, offset, n, cycles = _tone_plan(tb)
+    a = dp.acc_width
+    mask = (1 << a) - 1
+    dtype: Any = np.int64 if a <= 62 else object
+    # The change: another coherent word a quarter turn on, for the samples after the record.
+    new_word, new_offset = (word * 3 + (1 << (a - 3))) & mask, (offset + (1 << (a - 2))) & mask
+    stim = {
+        "in_freq_word": np.array([word] * n + [new_word] * TONE_CHANGE_SAMPLES, dtype=dtype),
+        "in_phase_offset": np.array([offset] * n + [new_offset] * TONE_CHANGE_SAMPLES, dtype=dtype),
+    }
+    cap = await tb.stream.run(tb.with_tags(stim))
+    result = tb.check("tone", cap)
+    if not cap.complete:
+        result.problems.append(f"tone: {len(cap.out_cycles)} of {n + TONE_CHANGE_SAMPLES} samples came out")
+    elif cycles:
+        cos = cap.outputs("out_cos")[:n].astype(np.float64)
+        sin = cap.outputs("out_sin")[:n].astype(np.float64)
+        m = measure_tone(cos + 1j * sin, cycles)
+        period = truncation_period(word, a, dp.angle_width)
+        result.extra["tone"] = {
+            "freq_word": word,
+            "phase_offset": offset,
+            "samples": n,
+            "cycles": cycles,
+            "window": m.window,
+            "truncation_period": period,
+            "sfdr_dbc": round(m.sfdr_db, 4),
+            "snr_db": round(m.snr_db, 4),
+            "noise_floor_dbc": round(m.noise_floor_dbc, 4) if np.isfinite(m.noise_floor_dbc) else None,
+            "spur_bin": m.spur_bin,
+            # first-order truncation spur of this word (Nicholas and Samueli 1987; with dither,
+            # docs/nco.md); None where none is predicted (an exact word, or one the dither covers)
+            "predicted_spur_dbc": _finite(dithered_spur_dbc(period, dp.angle_width, dp.dither_width)) if period > 1 else None,
+        }
+    tb.finish(result)
+
+
+def _finite(value: float) -> float | None:
+    return round(value, 4) if np.isfinite(value) else None

@@ -109,6 +109,9 @@ class StreamBench:
         self.enable_pattern = [bool(v) for v in self.rng.random(4091) >= enable_low] if enable else [True]
         self.edges = 0
         self.problems: list[str] = []
+        # Resets so far: a core with state across samples (an NCO's accumulator) starts again
+        # from its reset values after each.
+        self.resets = 0
 
     def _enabled_next(self) -> bool:
         """Drive the enable for the next edge from the pattern; whether it is high."""
@@ -141,6 +144,7 @@ class StreamBench:
         dut.in_valid.value = 0
         if self.has_out_ready:
             dut.out_ready.value = 1
+        self.resets += 1
         cleared: bool | None = None
         if mid_clock:
             await FallingEdge(self.clk)

@@ -15,7 +15,7 @@ import numpy as np
 import numpy.typing as npt
 
 from benchgen.algorithm import Datapath
-from benchgen.functions import atan2, atanh, div, exp, ln, mul, rotate, sincos, sinhcosh, sqrt
+from benchgen.functions import atan2, atanh, div, exp, ln, mul, nco, rotate, sincos, sinhcosh, sqrt
 from benchgen.functions.base import CorePort, Function, Inputs, Outputs, Port, uniform
 from benchgen.model import to_signed
 from benchgen.netlist import Clocking
@@ -70,6 +70,7 @@ FUNCTIONS: tuple[Function, ...] = (
     atanh.FUNCTION,
     ln.FUNCTION,
     sqrt.FUNCTION,
+    nco.FUNCTION,
 )
 """Every function, in the order the docs list them."""
 

@@ -33,6 +33,7 @@ __all__ = [
     "Function",
     "Inputs",
     "Outputs",
+    "PhaseFront",
     "Port",
     "below",
     "fixed_doc",
@@ -105,6 +106,39 @@ class CorePort:
         """Whether the port carries the sample itself (a data or tag port), not the clock, the
         reset or the handshake. Payload ports are vectors even at one bit."""
         return self.role in ("data", "tag")
+
+
+@dataclass(frozen=True)
+class PhaseFront:
+    """A phase accumulator in front of the iterations (an NCO; docs/nco.md gives the rules).
+
+    At every taken sample the core reads ``phase = acc + offset + dither * 2**(A - P - D)``
+    (modulo ``2**A``) and feeds its top ``P`` bits to the iterations as the angle; the same
+    clock edge loads ``acc + freq`` into the accumulator and advances the dither LFSR.
+
+    Attributes:
+        acc_width: ``A``, bits of the accumulator and of both words.
+        angle_width: ``P``, bits kept (the core's angle).
+        dither_width: ``D``, dither bits below the kept LSB (0: no LFSR is built).
+        lfsr_width: ``L``, the dither LFSR's length.
+        lfsr_seed: Its state after reset.
+        lfsr_leap: The LFSR's ``D``-step map, the image of each one-bit state
+            (benchgen.lfsr.leap_map): bit ``j`` of the next state is the XOR of the state bits
+            ``i`` whose image has bit ``j`` set.
+        freq_port: The input port of the frequency word.
+        phase_port: The input port of the phase offset.
+        angle: The name of the wire that carries the kept bits to the function's input logic.
+    """
+
+    acc_width: int
+    angle_width: int
+    dither_width: int
+    lfsr_width: int
+    lfsr_seed: int
+    lfsr_leap: tuple[int, ...]
+    freq_port: str
+    phase_port: str
+    angle: str
 
 
 def fixed_doc(width: int, frac: int, signed: bool) -> str:
@@ -190,6 +224,18 @@ class Function:
 
     # ---------------------------------------------------------------- config and data path
 
+    def validate(self, spec: CoreSpec) -> None:
+        """Check the fields only this function reads (its ``options``).
+
+        Raises:
+            ConfigError: naming the field, for a value the function cannot build.
+        """
+
+    def sizing_spec(self, spec: CoreSpec) -> CoreSpec:
+        """The spec the sizer sizes: the core's own, unless the function is another one's
+        iterations behind extra logic that adds no error (then that function's spec)."""
+        return spec
+
     def no_angle_reason(self) -> str:
         """Why ``angle_width`` and ``angle_unit`` do not apply (when they do not)."""
         return "its ports carry no angle"
@@ -260,6 +306,16 @@ class Function:
         """The bit-true outputs for the inputs, by output port."""
         raise NotImplementedError
 
+    def initial_state(self, dp: Datapath) -> Any:
+        """The state a core holds from sample to sample, as after reset (None: it holds none,
+        and :meth:`model` maps each sample alone)."""
+        return None
+
+    def model_run(self, dp: Datapath, inputs: Inputs, state: Any) -> tuple[Outputs, Outputs, Any]:
+        """A stateful core's bit-true outputs, ideal and state after a run of samples that starts
+        in ``state`` (a bench checks a long stream block by block with it)."""
+        raise NotImplementedError(f"{self.name} holds no state")
+
     def tone(self, dp: Datapath, angles: npt.NDArray[Any]) -> npt.NDArray[Any]:
         """A spectral function's sinusoidal output for angle codes (see ``spectral``)."""
         raise NotImplementedError(f"{self.name} has no sinusoidal output")
@@ -328,6 +384,10 @@ class Function:
         """Per-sample values that travel beside x, y, z: (name, width); the input logic forms
         ``in_<name>``."""
         return []
+
+    def phase_front(self, dp: Datapath) -> PhaseFront | None:
+        """The phase accumulator in front of the iterations, for a function that has one."""
+        return None
 
     def hw_constants(self, b: Builder, dp: Datapath) -> None:
         """Named constants declared before the iterations (beyond the atan table)."""

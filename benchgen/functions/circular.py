@@ -306,9 +306,13 @@ class CircularFunction(Function):
 
     # ---------------------------------------------------------------- hardware pieces
 
+    angle_signal: ClassVar[str] = "in_angle"
+    """The signal the fold reads: the angle port, or a wire that forms the angle (an NCO's
+    truncated phase)."""
+
     def hw_fold(self, b: Builder, dp: CircularDatapath) -> tuple[Sig, Sig]:
-        """The fold of ``in_angle``: (``in_fold``, ``z_start``)."""
-        angle = b.sig("in_angle")
+        """The fold of the angle (:attr:`angle_signal`): (``in_fold``, ``z_start``)."""
+        angle = b.sig(self.angle_signal)
         A, ZW = dp.angle_width, dp.z_width
         if dp.radians:
             b.note(

@@ -67,7 +67,7 @@ class SinCos(CircularFunction):
     name: ClassVar[str] = "sincos"
     mode: ClassVar[str] = "rotation"
     summary: ClassVar[str] = "cosine and sine of a binary or radian angle (circular rotation)"
-    synonyms: ClassVar[tuple[str, ...]] = ("sin", "cos", "sine", "cosine", "nco")
+    synonyms: ClassVar[tuple[str, ...]] = ("sin", "cos", "sine", "cosine")
     spectral: ClassVar[bool] = True
 
     def datapath(self, spec: CoreSpec, iterations: int, guard_bits: int) -> CircularDatapath:
