@@ -577,9 +577,8 @@ def _check_port_widths(spec: CoreSpec) -> None:
 def _arithmetic(spec: CoreSpec) -> CoreSpec:
     """The spec with every field that does not change the sizing set to one value: cores that
     differ only in name, pipeline depth, tag, handshake, reset, enable or language share one
-    sizing run. The
-    architecture stays (:func:`sizing_cost` weighs a pipeline and an iterative core apart), and
-    an iterative core's iterations per clock."""
+    sizing run. The architecture stays (:func:`sizing_cost` weighs a pipeline and an iterative
+    core apart), and an iterative core's iterations per clock."""
     spec = function_named(spec.function).sizing_spec(spec)
     return replace(
         spec, name="core", pipeline_depth=None, tag_width=0, handshake="ready_valid", hdl=DEFAULT_HDL,
