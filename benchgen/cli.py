@@ -87,6 +87,7 @@ def _output_file(option: str, path: str | None) -> None:
 
 
 def _generate(args: argparse.Namespace) -> int:
+    from benchgen.functions import function_of
     from benchgen.project import generate_project
 
     design = generate_project(args.config, args.output, progress=_Progress())
@@ -96,6 +97,9 @@ def _generate(args: argparse.Namespace) -> int:
         f"latency {timing.latency_cycles}, one sample per {timing.cycles_per_sample} clock(s), "
         f"worst error {design.accuracy.max_error_lsb:.4f} LSB (model vs ideal, over {design.proof.describe()})"
     )
+    note = function_of(dp).generate_note(design.spec, dp)
+    if note:
+        print(f"  {note}")
     return 0
 
 

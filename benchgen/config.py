@@ -186,6 +186,8 @@ _FIELDS: tuple[str, ...] = (
     "dither_width",
     "lfsr_width",
     "lfsr_seed",
+    "sfdr_dbc",
+    "snr_db",
 )
 # Fields left out of the manifest's config at their default, so a project that does not set
 # them keeps the manifest it had before they existed (same config, same bytes).
@@ -204,7 +206,7 @@ def spec_to_dict(spec: CoreSpec) -> dict[str, Any]:
     unused = set(refused_fields(function_named(spec.function)))
     out: dict[str, Any] = {}
     for key, value in asdict(spec).items():
-        if key in unused:
+        if key in unused or key not in _FIELDS:  # target_picks: the sizer's, not the user's
             continue
         if value is None:
             if key in ("iterations", "guard_bits"):
@@ -568,6 +570,14 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
     dither_width = _int_field(raw, "dither_width", 0, 64, default=0) if "dither_width" in raw else 0
     lfsr_width = _int_field(raw, "lfsr_width", 3, 64, default=32) if "lfsr_width" in raw else None
     lfsr_seed = _int_field(raw, "lfsr_seed", 1, (1 << 63) - 1, default=1) if "lfsr_seed" in raw else None
+    # The NCO's spectral target: the widths it is to pick are those the config leaves out.
+    sfdr_dbc = _decibel_field(raw, "sfdr_dbc") if "sfdr_dbc" in raw else None
+    snr_db = _decibel_field(raw, "snr_db") if "snr_db" in raw else None
+    picks = (
+        tuple(k for k in ("angle_width", "data_width") if k not in raw)
+        if sfdr_dbc is not None or snr_db is not None
+        else ()
+    )
 
     spec = CoreSpec(
         name=name,
@@ -596,9 +606,22 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
         dither_width=dither_width if dither_width is not None else 0,
         lfsr_width=lfsr_width,
         lfsr_seed=lfsr_seed,
+        sfdr_dbc=sfdr_dbc,
+        snr_db=snr_db,
+        target_picks=picks,
     )
     fn.validate(spec)
     return spec
+
+
+def _decibel_field(raw: Mapping[str, Any], key: str) -> float:
+    """A required level in dB: a positive, finite number (the function checks its upper limit)."""
+    value = raw[key]
+    if isinstance(value, bool) or not isinstance(value, int | float) or not 0 < float(value) < float("inf"):
+        raise ConfigError(
+            key, value, "a positive number of dB, e.g. 72.0", f"set {key} = 72.0", suggestion={key: 72.0}
+        )
+    return float(value)
 
 
 def load_config(path: str | Path) -> CoreSpec:

@@ -608,6 +608,9 @@ def build_design(spec: CoreSpec, *, progress: Progress | None = None) -> Design:
         ConfigError: if the sizes cannot meet the error target, or the architecture does not fit
             the iteration count.
     """
+    # A target of the function's own (the NCO's spectrum) picks widths first: each candidate
+    # is sized here like any core.
+    spec = function_named(spec.function).resolve_spec(spec, lambda s: build_design(s, progress=progress).datapath)
     _check_port_widths(spec)
     n, g, stats, proof = _size(_arithmetic(spec), progress)
     dp = make_datapath(spec, n, g)

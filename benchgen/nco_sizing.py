@@ -46,13 +46,19 @@ from typing import Any
 import numpy as np
 
 from benchgen.algorithm import Datapath
-from benchgen.config import MAX_WIDTH, MIN_DATA_WIDTH, parse_config
+from benchgen.config import parse_config
 from benchgen.design import Design, build_design
-from benchgen.errors import ConfigError
+from benchgen.functions.nco import (
+    MAX_SIZED_PHASE_BITS,
+    core_error_max_lsb,
+    phase_bits_for,
+    pick_sizes,
+    sfdr_bound_db,
+    snr_bound_db,
+)
+from benchgen.functions.sincos import FUNCTION as SINCOS
 from benchgen.nco import Nco, run
 from benchgen.nco_theory import truncation_word
-from benchgen.functions.sincos import FUNCTION as SINCOS
-from benchgen.functions.sincos import ideal_sincos
 from benchgen.spectrum import measure_tone
 
 __all__ = [
@@ -67,92 +73,9 @@ __all__ = [
     "spectrum_checks",
 ]
 
-MAX_SIZED_PHASE_BITS = 19
-"""Largest P the sizer picks: its worst word repeats every 2**(P+1) samples, and the proof
-measures a coherent record of that length (2**20 samples at most, about a second)."""
 _MIN_FFT_BITS = 14
 _LONG_FFT_BITS = 16
 _MAX_FFT_BITS = 20
-
-
-def _limits(phase_bits: int) -> tuple[float, float, float]:
-    """(c_min, s_max, r_max) of the truncated unit phasor over all truncation periods."""
-    delta = 2 * math.pi / 2**phase_bits
-    c_min = math.sin(delta / 2) / (delta / 2)
-    return c_min, math.sin(delta / 4), math.sqrt(1 - c_min**2)
-
-
-def sfdr_bound_db(phase_bits: int, amplitude: float, error_max: float) -> float:
-    """Guaranteed SFDR for every word (module docstring); amplitude and error in output LSBs."""
-    c_min, s_max, _ = _limits(phase_bits)
-    carrier = amplitude * c_min - error_max
-    return -math.inf if carrier <= 0 else 20 * math.log10(carrier / (amplitude * s_max + error_max))
-
-
-def snr_bound_db(phase_bits: int, amplitude: float, error_max: float) -> float:
-    """Guaranteed SNR for every word (module docstring)."""
-    c_min, _, r_max = _limits(phase_bits)
-    carrier = amplitude * c_min - error_max
-    return -math.inf if carrier <= 0 else 20 * math.log10(carrier / (amplitude * r_max + error_max))
-
-
-def _target(name: str, value: float | None) -> float | None:
-    if value is None:
-        return None
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value) or value <= 0:
-        raise ConfigError(name, value, "a positive number of dB", f"set {name} = 80.0", suggestion={name: 80.0})
-    return float(value)
-
-
-def phase_bits_for(sfdr_dbc: float | None = None, snr_db: float | None = None) -> int:
-    """The fewest phase bits whose truncation alone can meet the targets (an ideal amplitude).
-
-    Raises:
-        ConfigError: for a target beyond :data:`MAX_SIZED_PHASE_BITS`, or no target at all.
-    """
-    sfdr = _target("sfdr_dbc", sfdr_dbc)
-    snr = _target("snr_db", snr_db)
-    if sfdr is None and snr is None:
-        raise ConfigError(
-            "sfdr_dbc", None, "a required SFDR and/or SNR", "set sfdr_dbc = 80.0", suggestion={"sfdr_dbc": 80.0}
-        )
-    big = float(1 << 40)  # an amplitude so large the core's error does not count
-
-    def meets(p: int) -> bool:
-        return (sfdr is None or sfdr_bound_db(p, big, 0.0) > sfdr) and (snr is None or snr_bound_db(p, big, 0.0) > snr)
-
-    for p in range(3, MAX_SIZED_PHASE_BITS + 1):
-        if meets(p):
-            return p
-    top = MAX_SIZED_PHASE_BITS
-    if sfdr is not None and sfdr_bound_db(top, big, 0.0) <= sfdr:
-        field, value, limit = "sfdr_dbc", sfdr, sfdr_bound_db(top, big, 0.0)
-    else:
-        field, value, limit = "snr_db", snr, snr_bound_db(top, big, 0.0)
-    best = math.floor(limit * 10) / 10  # rounded down, so the suggestion is reachable
-    raise ConfigError(
-        field, value,
-        f"at most {best} dB: the sizer proves its result on a coherent record of 2**(P+1) samples, P <= {top}",
-        f"set {field} = {best}", suggestion={field: best},
-    )  # fmt: skip
-
-
-def core_error_max_lsb(dp: Datapath) -> float:
-    """Largest ``|e|`` of the quadrature output over every angle code, in output LSBs.
-
-    ``e = (cos - a cos t) + j (sin - a sin t)`` against the exact values (float64 ideal,
-    benchgen.reference); every one of the 2**P codes is evaluated.
-    """
-
-    worst = 0.0
-    step = 1 << 16
-    for lo in range(0, 1 << dp.angle_width, step):
-        codes = np.arange(lo, min(lo + step, 1 << dp.angle_width), dtype=np.int64)
-        out = SINCOS.model(dp, {"in_angle": codes})
-        ic, is_ = ideal_sincos(dp, codes)
-        e = np.hypot(out["out_cos"].astype(np.float64) - ic, out["out_sin"].astype(np.float64) - is_)
-        worst = max(worst, float(np.max(e)))
-    return worst
 
 
 @dataclass(frozen=True)
@@ -291,15 +214,9 @@ def size_nco(
     Raises:
         ConfigError: naming the field, for a target out of reach or a bad core field.
     """
-    p = phase_bits_for(sfdr_dbc, snr_db)
-    nco = Nco(acc_width=acc_width, angle_width=p)
-    for n in range(MIN_DATA_WIDTH, MAX_WIDTH + 1):
-        amp = float((1 << (n - 1)) - 1)
-        # No core errs by less than half an LSB per output, so skip widths even that cannot meet.
-        if (sfdr_dbc is not None and sfdr_bound_db(p, amp, 0.5) <= sfdr_dbc) or (
-            snr_db is not None and snr_bound_db(p, amp, 0.5) <= snr_db
-        ):
-            continue
+    built: dict[tuple[int, int], Design] = {}
+
+    def build(p: int, n: int) -> Datapath:
         config = {
             "name": name,
             "function": SINCOS.name,
@@ -309,22 +226,18 @@ def size_nco(
             "rounding": rounding,
             "max_error_lsb": max_error_lsb,
         }
-        design = build_design(parse_config(config))
-        dp = design.datapath
-        err = core_error_max_lsb(dp)
-        sfdr_b = sfdr_bound_db(p, dp.amplitude, err)
-        snr_b = snr_bound_db(p, dp.amplitude, err)
-        if (sfdr_dbc is None or sfdr_b >= sfdr_dbc) and (snr_db is None or snr_b >= snr_db):
-            return NcoSizing(
-                sfdr_dbc=sfdr_dbc,
-                snr_db=snr_db,
-                nco=nco,
-                design=design,
-                error_max_lsb=err,
-                sfdr_bound_db=sfdr_b,
-                snr_bound_db=snr_b,
-                checks=spectrum_checks(nco, dp),
-            )
-    raise ConfigError(  # pragma: no cover - a 64-bit output meets any target P <= 19 can
-        "sfdr_dbc", sfdr_dbc, "a target some output width up to 64 bits meets", "lower the target"
+        built[p, n] = build_design(parse_config(config))
+        return built[p, n].datapath
+
+    p, n, dp, err = pick_sizes(sfdr_dbc, snr_db, build)
+    nco = Nco(acc_width=acc_width, angle_width=p)
+    return NcoSizing(
+        sfdr_dbc=sfdr_dbc,
+        snr_db=snr_db,
+        nco=nco,
+        design=built[p, n],
+        error_max_lsb=err,
+        sfdr_bound_db=sfdr_bound_db(p, dp.amplitude, err),
+        snr_bound_db=snr_bound_db(p, dp.amplitude, err),
+        checks=spectrum_checks(nco, dp),
     )

@@ -75,6 +75,11 @@ class CoreSpec:
         dither_width: NCO: phase dither bits below the kept phase LSB (0: none).
         lfsr_width: NCO: length of the dither LFSR (``None``: ``max(32, dither_width)``).
         lfsr_seed: NCO: the dither LFSR's state after reset (``None``: all ones).
+        sfdr_dbc: NCO: required SFDR of the quadrature output in dBc (``None``: none); with
+            ``snr_db``, the spectral target the sizer picks the widths for (docs/nco.md).
+        snr_db: NCO: required SNR in dB (``None``: none).
+        target_picks: Not a config field: the widths (``angle_width``, ``data_width``) the
+            config left for the spectral target to pick; the sizer fills them in and empties this.
     """
 
     name: str
@@ -103,3 +108,6 @@ class CoreSpec:
     dither_width: int = 0
     lfsr_width: int | None = None
     lfsr_seed: int | None = None
+    sfdr_dbc: float | None = None
+    snr_db: float | None = None
+    target_picks: tuple[str, ...] = ()

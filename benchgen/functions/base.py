@@ -11,7 +11,7 @@ iterations, the handshake and the output buffer are generic (:mod:`benchgen.hard
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any, ClassVar
 
@@ -230,6 +230,16 @@ class Function:
         Raises:
             ConfigError: naming the field, for a value the function cannot build.
         """
+
+    def resolve_spec(self, spec: CoreSpec, build: Callable[[CoreSpec], Datapath]) -> CoreSpec:
+        """The spec with the sizes a target of the function's own picks filled in (the NCO's
+        spectral target picks its widths); ``build`` sizes a candidate spec and returns its
+        data path. Most functions have no such target: the spec as it is."""
+        return spec
+
+    def generate_note(self, spec: CoreSpec, dp: Datapath) -> str:
+        """A line ``benchgen generate`` prints after its summary (empty: none)."""
+        return ""
 
     def sizing_spec(self, spec: CoreSpec) -> CoreSpec:
         """The spec the sizer sizes: the core's own, unless the function is another one's

@@ -22,6 +22,9 @@ from collections.abc import Mapping
 from dataclasses import asdict, dataclass, fields, replace
 from typing import Any, ClassVar
 
+import math
+from collections.abc import Callable
+
 import numpy as np
 import numpy.typing as npt
 
@@ -36,11 +39,192 @@ from benchgen.lfsr import leap_map, lfsr_states
 from benchgen.nco import Change, Nco, phase_path
 from benchgen.spec import CoreSpec
 
-__all__ = ["NcoCore", "NcoDatapath", "phase_of"]
+__all__ = [
+    "MAX_SIZED_PHASE_BITS",
+    "NcoCore",
+    "NcoDatapath",
+    "TARGET_FIELDS",
+    "core_error_max_lsb",
+    "phase_bits_for",
+    "phase_of",
+    "pick_sizes",
+    "sfdr_bound_db",
+    "snr_bound_db",
+]
 
 FREQ_PORT = "in_freq_word"
 PHASE_PORT = "in_phase_offset"
 CODE_WIRE = "phase_code"
+TARGET_FIELDS = ("sfdr_dbc", "snr_db")
+"""The spectral target's config fields (docs/nco.md, "Sizing for a spectral target")."""
+PICKED_FIELDS = ("angle_width", "data_width")
+"""The widths a spectral target picks when the config leaves them out."""
+_DATA_WIDTHS = (3, 64)
+"""data_width's range (benchgen.config.MIN_DATA_WIDTH, MAX_WIDTH; config sits a layer above)."""
+
+
+# ---------------------------------------------------------------- sizing for a spectral target
+# The bound and the picking rule; benchgen.nco_sizing derives the bound, adds the spectral
+# measurement of the result and re-exports these (it sits above the sizer, this module below it).
+
+MAX_SIZED_PHASE_BITS = 19
+"""Largest P the sizer picks: its worst word repeats every 2**(P+1) samples, and the proof
+measures a coherent record of that length (2**20 samples at most, about a second)."""
+
+
+def _limits(phase_bits: int) -> tuple[float, float, float]:
+    """(c_min, s_max, r_max) of the truncated unit phasor over all truncation periods."""
+    delta = 2 * math.pi / 2**phase_bits
+    c_min = math.sin(delta / 2) / (delta / 2)
+    return c_min, math.sin(delta / 4), math.sqrt(1 - c_min**2)
+
+
+def sfdr_bound_db(phase_bits: int, amplitude: float, error_max: float) -> float:
+    """Guaranteed SFDR for every word (benchgen.nco_sizing derives it); amplitude and error in output LSBs."""
+    c_min, s_max, _ = _limits(phase_bits)
+    carrier = amplitude * c_min - error_max
+    return -math.inf if carrier <= 0 else 20 * math.log10(carrier / (amplitude * s_max + error_max))
+
+
+def snr_bound_db(phase_bits: int, amplitude: float, error_max: float) -> float:
+    """Guaranteed SNR for every word (benchgen.nco_sizing derives it)."""
+    c_min, _, r_max = _limits(phase_bits)
+    carrier = amplitude * c_min - error_max
+    return -math.inf if carrier <= 0 else 20 * math.log10(carrier / (amplitude * r_max + error_max))
+
+
+def _target(name: str, value: float | None) -> float | None:
+    if value is None:
+        return None
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value) or value <= 0:
+        raise ConfigError(name, value, "a positive number of dB", f"set {name} = 80.0", suggestion={name: 80.0})
+    return float(value)
+
+
+def phase_bits_for(sfdr_dbc: float | None = None, snr_db: float | None = None) -> int:
+    """The fewest phase bits whose truncation alone can meet the targets (an ideal amplitude).
+
+    Raises:
+        ConfigError: for a target beyond :data:`MAX_SIZED_PHASE_BITS`, or no target at all.
+    """
+    sfdr = _target("sfdr_dbc", sfdr_dbc)
+    snr = _target("snr_db", snr_db)
+    if sfdr is None and snr is None:
+        raise ConfigError(
+            "sfdr_dbc", None, "a required SFDR and/or SNR", "set sfdr_dbc = 80.0", suggestion={"sfdr_dbc": 80.0}
+        )
+    big = float(1 << 40)  # an amplitude so large the core's error does not count
+
+    def meets(p: int) -> bool:
+        return (sfdr is None or sfdr_bound_db(p, big, 0.0) > sfdr) and (snr is None or snr_bound_db(p, big, 0.0) > snr)
+
+    for p in range(3, MAX_SIZED_PHASE_BITS + 1):
+        if meets(p):
+            return p
+    top = MAX_SIZED_PHASE_BITS
+    if sfdr is not None and sfdr_bound_db(top, big, 0.0) <= sfdr:
+        field, value, limit = "sfdr_dbc", sfdr, sfdr_bound_db(top, big, 0.0)
+    else:
+        field, value, limit = "snr_db", snr, snr_bound_db(top, big, 0.0)
+    best = math.floor(limit * 10) / 10  # rounded down, so the suggestion is reachable
+    raise ConfigError(
+        field, value,
+        f"at most {best} dB: the sizer proves its result on a coherent record of 2**(P+1) samples, P <= {top}",
+        f"set {field} = {best}", suggestion={field: best},
+    )  # fmt: skip
+
+
+def core_error_max_lsb(dp: Datapath) -> float:
+    """Largest ``|e|`` of the quadrature output over every angle code, in output LSBs.
+
+    ``e = (cos - a cos t) + j (sin - a sin t)`` against the exact values (float64 ideal,
+    benchgen.reference); every one of the 2**P codes is evaluated.
+    """
+    if isinstance(dp, NcoDatapath):
+        dp = dp.core()
+    worst = 0.0
+    step = 1 << 16
+    for lo in range(0, 1 << dp.angle_width, step):
+        codes = np.arange(lo, min(lo + step, 1 << dp.angle_width), dtype=np.int64)
+        out = SINCOS.model(dp, {"in_angle": codes})
+        ic, is_ = ideal_sincos(dp, codes)
+        e = np.hypot(out["out_cos"].astype(np.float64) - ic, out["out_sin"].astype(np.float64) - is_)
+        worst = max(worst, float(np.max(e)))
+    return worst
+
+
+def _target_text(sfdr_dbc: float | None, snr_db: float | None) -> str:
+    parts = ([f"sfdr_dbc = {sfdr_dbc:g}"] if sfdr_dbc is not None else []) + (
+        [f"snr_db = {snr_db:g}"] if snr_db is not None else []
+    )
+    return " and ".join(parts)
+
+
+def _meets(p: int, amplitude: float, err: float, sfdr_dbc: float | None, snr_db: float | None) -> bool:
+    return (sfdr_dbc is None or sfdr_bound_db(p, amplitude, err) >= sfdr_dbc) and (
+        snr_db is None or snr_bound_db(p, amplitude, err) >= snr_db
+    )
+
+
+def pick_sizes(
+    sfdr_dbc: float | None,
+    snr_db: float | None,
+    build: Callable[[int, int], Datapath],
+    *,
+    angle_width: int | None = None,
+    data_width: int | None = None,
+) -> tuple[int, int, Datapath, float]:
+    """The phase bits ``P`` and output width ``N`` for a spectral target (benchgen.nco_sizing).
+
+    ``P`` is the fewest phase bits whose truncation alone can meet the target
+    (:func:`phase_bits_for`); ``N`` the fewest output bits for which the guaranteed bound meets
+    it, each candidate built (and its iterations and guard bits sized) by ``build``. A width
+    given (not ``None``) is kept, and refused if the target cannot be met with it.
+
+    Args:
+        sfdr_dbc: Required SFDR of the quadrature output, dBc (None: none).
+        snr_db: Required SNR, dB (None: none).
+        build: ``build(P, N)``: the sized core's data path at those widths.
+        angle_width: ``P`` fixed by the user (None: pick it).
+        data_width: ``N`` fixed by the user (None: pick it).
+
+    Returns:
+        ``(P, N, data path, E)``, ``E`` the core's largest complex error in output LSBs.
+
+    Raises:
+        ConfigError: naming the target or the fixed width, with a fix the tool accepts.
+    """
+    needed = phase_bits_for(sfdr_dbc, snr_db)
+    p = needed if angle_width is None else angle_width
+    if not needed <= p <= MAX_SIZED_PHASE_BITS:
+        raise ConfigError(
+            "angle_width", p,
+            f"{needed} to {MAX_SIZED_PHASE_BITS} with {_target_text(sfdr_dbc, snr_db)} (fewer phase bits miss "
+            "the target; the bound is proven over every one of the 2**angle_width codes)",
+            f"remove angle_width (the target then picks {needed})", suggestion={"angle_width": None},
+        )  # fmt: skip
+    lo, hi = _DATA_WIDTHS
+    for n in [data_width] if data_width is not None else range(lo, hi + 1):
+        amp = float((1 << (n - 1)) - 1)
+        # No core errs by less than half an LSB per output, so skip widths even that cannot meet.
+        if not _meets(p, amp, 0.5, sfdr_dbc, snr_db):
+            continue
+        dp = build(p, n)
+        err = core_error_max_lsb(dp)
+        if _meets(p, dp.amplitude, err, sfdr_dbc, snr_db):
+            return p, n, dp, err
+    if data_width is not None:
+        _, n_needed, _, _ = pick_sizes(sfdr_dbc, snr_db, build, angle_width=p)
+        raise ConfigError(
+            "data_width", data_width,
+            f"at least {n_needed} with angle_width = {p} for {_target_text(sfdr_dbc, snr_db)} (the guaranteed "
+            "bound, docs/nco.md)",
+            f"set data_width = {n_needed}", suggestion={"data_width": n_needed},
+        )  # fmt: skip
+    raise ConfigError(  # pragma: no cover - a 64-bit output meets any target P <= 19 can
+        TARGET_FIELDS[0], sfdr_dbc, "a target some output width up to 64 bits meets", "lower the target"
+    )
+
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -52,12 +236,28 @@ class NcoDatapath(CircularDatapath):
         dither_width: ``D``, phase dither bits (0: none).
         lfsr_width: ``L``, the dither LFSR's length.
         lfsr_seed: The LFSR's state after reset.
+        sfdr_dbc: The spectral target's SFDR, dBc (None: none).
+        snr_db: The spectral target's SNR, dB (None: none).
     """
 
     acc_width: int = 32
     dither_width: int = 0
     lfsr_width: int = 32
     lfsr_seed: int = (1 << 32) - 1
+    sfdr_dbc: float | None = None
+    snr_db: float | None = None
+
+    def target_bounds(self) -> tuple[float, float, float] | None:
+        """``(E, SFDR bound, SNR bound)`` of this core when it has a spectral target (else None):
+        the core's largest complex error over every code and what it guarantees for every word."""
+        if self.sfdr_dbc is None and self.snr_db is None:
+            return None
+        err = core_error_max_lsb(self.core())
+        return (
+            err,
+            sfdr_bound_db(self.angle_width, self.amplitude, err),
+            snr_bound_db(self.angle_width, self.amplitude, err),
+        )
 
     def core(self) -> CircularDatapath:
         """The sine/cosine core's own data path (what benchgen.model.sincos runs)."""
@@ -73,6 +273,10 @@ class NcoDatapath(CircularDatapath):
             acc_width=self.acc_width, angle_width=self.angle_width, dither_width=self.dither_width,
             lfsr_width=self.lfsr_width, lfsr_seed=self.lfsr_seed,
         )  # fmt: skip
+
+
+def _no_build(p: int, n: int) -> Datapath:  # pragma: no cover - pick_sizes refuses before it builds
+    raise AssertionError("validate only checks the phase bits")
 
 
 def _nco_of(spec: CoreSpec) -> Nco:
@@ -100,7 +304,7 @@ class NcoCore(SinCos):
     name: ClassVar[str] = "nco"
     summary: ClassVar[str] = "numerically controlled oscillator: phase accumulator, optional dither, sine and cosine"
     synonyms: ClassVar[tuple[str, ...]] = ("dds", "oscillator", "local_oscillator")
-    options: ClassVar[tuple[str, ...]] = ("acc_width", "dither_width", "lfsr_width", "lfsr_seed")
+    options: ClassVar[tuple[str, ...]] = ("acc_width", "dither_width", "lfsr_width", "lfsr_seed", *TARGET_FIELDS)
     angle_signal: ClassVar[str] = CODE_WIRE
 
     # ---------------------------------------------------------------- config and data path
@@ -111,11 +315,44 @@ class NcoCore(SinCos):
                 "angle_unit", spec.angle_unit, 'turns (the accumulator is a binary angle)', 'set angle_unit = "turns"',
                 suggestion={"angle_unit": "turns"},
             )  # fmt: skip
+        if spec.sfdr_dbc is not None or spec.snr_db is not None:
+            if spec.dither_width:
+                raise ConfigError(
+                    "dither_width", spec.dither_width,
+                    "0 with a spectral target (sfdr_dbc, snr_db): the sizing bound is the undithered NCO's",
+                    "remove dither_width (or remove the target and give angle_width and data_width)",
+                    suggestion={"dither_width": None},
+                )  # fmt: skip
+            needed = phase_bits_for(spec.sfdr_dbc, spec.snr_db)  # refuses a target out of reach
+            if "angle_width" in spec.target_picks:
+                spec = replace(spec, angle_width=needed)
+            elif not needed <= spec.angle_width <= MAX_SIZED_PHASE_BITS:
+                pick_sizes(spec.sfdr_dbc, spec.snr_db, _no_build, angle_width=spec.angle_width)  # raises
         _nco_of(spec)
 
     def sizing_spec(self, spec: CoreSpec) -> CoreSpec:
         # The truncated code is exact: the core's error is the sincos core's at that code.
-        return replace(spec, function=SINCOS.name, acc_width=32, dither_width=0, lfsr_width=None, lfsr_seed=None)
+        return replace(
+            spec, function=SINCOS.name, acc_width=32, dither_width=0, lfsr_width=None, lfsr_seed=None,
+            sfdr_dbc=None, snr_db=None, target_picks=(),
+        )  # fmt: skip
+
+    def resolve_spec(self, spec: CoreSpec, build: Callable[[CoreSpec], Datapath]) -> CoreSpec:
+        """The widths for the spectral target (:func:`pick_sizes`): those the config left out are
+        picked, those it gave are kept and refused if they miss it. ``target_picks`` stays, to
+        say which were picked; the config of the manifest holds the widths themselves."""
+        if spec.sfdr_dbc is None and spec.snr_db is None:
+            return spec
+
+        def candidate(p: int, n: int) -> Datapath:
+            return build(replace(spec, angle_width=p, data_width=n, sfdr_dbc=None, snr_db=None, target_picks=()))
+
+        p, n, _, _ = pick_sizes(
+            spec.sfdr_dbc, spec.snr_db, candidate,
+            angle_width=None if "angle_width" in spec.target_picks else spec.angle_width,
+            data_width=None if "data_width" in spec.target_picks else spec.data_width,
+        )  # fmt: skip
+        return replace(spec, angle_width=p, data_width=n)
 
     def datapath(self, spec: CoreSpec, iterations: int, guard_bits: int) -> NcoDatapath:
         base = SinCos.datapath(self, spec, iterations, guard_bits)
@@ -126,7 +363,7 @@ class NcoCore(SinCos):
         values["shifts"] = tuple(values["shifts"])
         return NcoDatapath(
             **values, acc_width=nco.acc_width, dither_width=nco.dither_width,
-            lfsr_width=nco.lfsr_width, lfsr_seed=nco.lfsr_seed,
+            lfsr_width=nco.lfsr_width, lfsr_seed=nco.lfsr_seed, sfdr_dbc=spec.sfdr_dbc, snr_db=spec.snr_db,
         )  # fmt: skip
 
     # ---------------------------------------------------------------- ports and documents
@@ -159,7 +396,29 @@ class NcoCore(SinCos):
                 f"dither         low {dp.dither_width} bits of a {dp.lfsr_width}-bit XOR LFSR (seed {dp.lfsr_seed:#x}), "
                 f"{dp.dither_width} steps per sample"
             )
+        bounds = dp.target_bounds()
+        if bounds is not None:
+            err, sfdr, snr = bounds
+            notes += [
+                f"target         {_target_text(dp.sfdr_dbc, dp.snr_db)}: {dp.angle_width} phase bits and {dp.data_width} output bits",
+                f"               guarantee SFDR >= {sfdr:.2f} dBc, SNR >= {snr:.2f} dB for every word and offset",
+                f"               (core error <= {err:.4f} LSB over every code; bound in docs/nco.md, no dither)",
+            ]
         return notes + super().header_notes(dp)
+
+    def generate_note(self, spec: CoreSpec, dp: Datapath) -> str:
+        assert isinstance(dp, NcoDatapath)
+        bounds = dp.target_bounds()
+        if bounds is None:
+            return ""
+        _, sfdr, snr = bounds
+        sizes = ", ".join(
+            f"{k} = {getattr(dp, k)}" + (" (picked)" if k in spec.target_picks else " (given)") for k in PICKED_FIELDS
+        )
+        return (
+            f"spectral target {_target_text(dp.sfdr_dbc, dp.snr_db)}: {sizes}, {dp.iterations} iterations, "
+            f"{dp.guard_bits} guard bits; guaranteed SFDR >= {sfdr:.2f} dBc, SNR >= {snr:.2f} dB for every word"
+        )
 
     def manifest_extras(self, dp: Datapath) -> dict[str, Any]:
         assert isinstance(dp, NcoDatapath)
@@ -170,6 +429,27 @@ class NcoCore(SinCos):
                 "lfsr_width": dp.lfsr_width,
                 "lfsr_seed": dp.lfsr_seed,
                 "judged": "each output against the exact cosine and sine of the phase code the core was given",
+                **self._target_extras(dp),
+            }
+        }
+
+    def _target_extras(self, dp: NcoDatapath) -> dict[str, Any]:
+        """The spectral target and what the core guarantees for it (only when there is one, so a
+        project without a target keeps its manifest)."""
+        bounds = dp.target_bounds()
+        if bounds is None:
+            return {}
+        err, sfdr, snr = bounds
+        return {
+            "target": {
+                "sfdr_dbc": dp.sfdr_dbc,
+                "snr_db": dp.snr_db,
+                "angle_width": dp.angle_width,
+                "data_width": dp.data_width,
+                "core_error_max_lsb": round(err, 6),
+                "sfdr_bound_dbc": round(sfdr, 4),
+                "snr_bound_db": round(snr, 4),
+                "bound": "for every frequency word and phase offset, no dither (docs/nco.md)",
             }
         }
 
