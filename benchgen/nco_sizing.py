@@ -43,8 +43,6 @@ import math
 from dataclasses import dataclass
 from typing import Any
 
-import numpy as np
-
 from benchgen.algorithm import Datapath
 from benchgen.config import parse_config
 from benchgen.design import Design, build_design

@@ -476,6 +476,17 @@ FIX_CASES: list[tuple[str, dict[str, Any]]] = [
     # the fixed config is sized in seconds (at 0.5 LSB the 63-bit search takes minutes and its
     # refusal is the budget_low case's).
     ("atan2_64", {"function": "atan2", "angle_width": 64, "data_width": 64, "max_error_lsb": 4.0}),
+    # The NCO's spectral target (docs/nco.md): a bad level, one beyond what can be proven (its
+    # fix, 110.4 dBc, sizes P = 19, N = 27 in a few seconds), GOOD's widths too few for it (the
+    # fix removes angle_width, then data_width is refused), a data width too few, a dither.
+    ("sfdr_for_sincos", {"sfdr_dbc": 60.0}),
+    ("nco_sfdr_negative", {"function": "nco", "sfdr_dbc": -3}),
+    ("nco_snr_text", {"function": "nco", "snr_db": "60"}),
+    ("nco_sfdr_high", {"function": "nco", "angle_width": None, "data_width": None, "sfdr_dbc": 200.0}),
+    ("nco_target_angle_short", {"function": "nco", "sfdr_dbc": 72.0}),
+    ("nco_target_data_short", {"function": "nco", "angle_width": 11, "sfdr_dbc": 60.0}),
+    ("nco_target_dither", {"function": "nco", "angle_width": None, "data_width": None, "sfdr_dbc": 60.0,
+                           "dither_width": 4}),
 ]
 
 

@@ -32,7 +32,7 @@ FUNCTIONS = ("sincos", "rotate", "atan2", "mul", "div", "sinhcosh", "exp", "atan
 FIELDS = (
     "name", "function", "architecture", "pipeline_depth", "iterations_per_cycle", "angle_width",
     "data_width", "iterations", "guard_bits", "rounding", "tag_width", "max_error_lsb", "gain",
-    "angle_unit", "vlnv_vendor", "vlnv_library", "handshake",
+    "angle_unit", "vlnv_vendor", "vlnv_library", "handshake", "sfdr_dbc", "snr_db",
 )  # fmt: skip
 # Widths of valid configs stay small: sizing runs the model, and 12 bits keep each run short.
 SMALL_WIDTH = (3, 12)
@@ -54,6 +54,9 @@ VALID: dict[str, list[Any]] = {
     "vlnv_vendor": ["benchgen", "acme.dsp", "Lab-7"],
     "vlnv_library": ["cores", "radio_ip", "1.x"],
     "handshake": ["ready_valid", "valid_only"],
+    # The NCO's spectral target: refused for every function drawn here (none is an NCO).
+    "sfdr_dbc": [40.0, 60, 72.5],
+    "snr_db": [40.0, 70],
 }
 
 scalars = st.one_of(
@@ -193,10 +196,12 @@ def accepted_configs(count: int, seed: int) -> list[dict[str, Any]]:
         config: dict[str, Any] = {"name": f"fuzz_core{len(found)}", "function": function, "data_width": rng.randint(6, 10)}
         if function in ANGLE_FUNCTIONS:
             config["angle_width"] = rng.randint(6, 10)
-        # The FuseSoC name changes no RTL: left out, so the seed draws the cores it always drew.
+        # The FuseSoC name changes no RTL, and the NCO's target applies to none of these functions:
+        # left out, so the seed draws the cores it always drew.
         others = [
             f for f in FIELDS
-            if f not in ("name", "function", "angle_width", "data_width", "vlnv_vendor", "vlnv_library")
+            if f not in ("name", "function", "angle_width", "data_width", "vlnv_vendor", "vlnv_library", "sfdr_dbc",
+                         "snr_db")
         ]  # fmt: skip
         for field in rng.sample(others, rng.randint(0, 5)):
             config[field] = rng.choice(VALID[field])
