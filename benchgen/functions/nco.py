@@ -247,6 +247,11 @@ class NcoDatapath(CircularDatapath):
     sfdr_dbc: float | None = None
     snr_db: float | None = None
 
+    def constants(self) -> dict[str, object]:
+        # The target is no constant of the core: the manifest states it with its bound
+        # (manifest_extras), and a core without one keeps the manifest it had.
+        return {k: v for k, v in super().constants().items() if k not in TARGET_FIELDS}
+
     def target_bounds(self) -> tuple[float, float, float] | None:
         """``(E, SFDR bound, SNR bound)`` of this core when it has a spectral target (else None):
         the core's largest complex error over every code and what it guarantees for every word."""
