@@ -610,7 +610,10 @@ def build_design(spec: CoreSpec, *, progress: Progress | None = None) -> Design:
     """
     # A target of the function's own (the NCO's spectrum) picks widths first: each candidate
     # is sized here like any core.
-    spec = function_named(spec.function).resolve_spec(spec, lambda s: build_design(s, progress=progress).datapath)
+    def candidate(s: CoreSpec) -> Datapath:
+        return build_design(s, progress=progress).datapath
+
+    spec = function_named(spec.function).resolve_spec(spec, candidate)
     _check_port_widths(spec)
     n, g, stats, proof = _size(_arithmetic(spec), progress)
     dp = make_datapath(spec, n, g)

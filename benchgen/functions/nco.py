@@ -404,8 +404,9 @@ class NcoCore(SinCos):
         bounds = dp.target_bounds()
         if bounds is not None:
             err, sfdr, snr = bounds
+            target = _target_text(dp.sfdr_dbc, dp.snr_db)
             notes += [
-                f"target         {_target_text(dp.sfdr_dbc, dp.snr_db)}: {dp.angle_width} phase bits and {dp.data_width} output bits",
+                f"target         {target}: {dp.angle_width} phase bits and {dp.data_width} output bits",
                 f"               guarantee SFDR >= {sfdr:.2f} dBc, SNR >= {snr:.2f} dB for every word and offset",
                 f"               (core error <= {err:.4f} LSB over every code; bound in docs/nco.md, no dither)",
             ]
