@@ -10,7 +10,7 @@ from pathlib import Path
 from typing import Any
 
 import pytest
-from conftest import require_simulator, write_config
+from conftest import write_config
 
 from benchgen.cli import main
 from benchgen.config import parse_config
@@ -115,57 +115,10 @@ def test_regenerating_without_vhdl_removes_the_vhdl_it_wrote(tmp_path: Path) -> 
 
 # ----------------------------------------------------------------------------- on GHDL
 
-# A few functions across the coordinate systems and both architectures (the per-clock bench:
-# corners, full-rate stream with latency and throughput, gaps x stalls, reset mid-stream);
-# the description's equality with the model is tested for every function without a
-# simulator (tests/test_netlist.py), and the printer's for every node kind in GHDL
-# (tests/test_vhdl.py).
-GHDL_CASES = {
-    "sincos_full_depth": {"function": "sincos", "angle_width": 12, "data_width": 12, "tag_width": 2},
-    "ln_iter3": {"function": "ln", "data_width": 12, "architecture": "iterative", "iterations_per_cycle": 3},
-    "exp_depth3": {"function": "exp", "data_width": 12, "pipeline_depth": 3, "rounding": "half_up"},
-    "atan2_iter3": {"function": "atan2", "data_width": 12, "angle_width": 12, "architecture": "iterative",
-                    "iterations_per_cycle": 3, "tag_width": 1},
-}
-GHDL_SAMPLES = 2_500
-
-
-@pytest.mark.sim
-@pytest.mark.parametrize("case", list(GHDL_CASES))
-def test_the_vhdl_core_matches_the_model_on_ghdl(case: str, tmp_path: Path) -> None:
-    require_simulator("ghdl")
-    values = {k: v for k, v in GOOD.items() if k == "name"} | GHDL_CASES[case]
-    out = tmp_path / case
-    generate_project(write_config(tmp_path / f"{case}.toml", {**values, "hdl": "vhdl"}), out)
-    manifest = json.loads((out / "manifest.json").read_text())
-    report = run_sim(out, simulator="ghdl", samples=GHDL_SAMPLES, seed=99)
-    assert report.passed, report.table()
-    assert report.tests == 4 and report.failed == 0 and report.mismatches == 0
-    assert report.samples >= GHDL_SAMPLES
-    assert report.max_error_lsb < manifest["error_budget"]["max_error_lsb"]
-    assert report.latency_cycles == manifest["derived"]["latency_cycles"]
-    assert report.cycles_per_sample == manifest["derived"]["cycles_per_sample"]
-
-
-@pytest.mark.sim
-def test_the_verilog_and_the_vhdl_core_give_the_same_stream(tmp_path: Path) -> None:
-    """One project with both languages, one seeded stimulus: the Verilog core on Icarus and the
-    VHDL core on GHDL write identical sample files (inputs, outputs, the model's outputs), so the
-    two printers' texts behave alike cycle by cycle, not only each against the model. Icarus
-    rather than Verilator: the same Verilog text, a build a few seconds shorter."""
-    require_simulator("icarus")
-    require_simulator("ghdl")
-    values = {"name": "twin", "function": "exp", "data_width": 11, "pipeline_depth": 3, "tag_width": 2}
-    out = tmp_path / "twin"
-    generate_project(write_config(tmp_path / "twin.toml", {**values, "hdl": ["verilog", "vhdl"]}), out)
-    streams = []
-    for simulator in ("icarus", "ghdl"):
-        csv = tmp_path / f"{simulator}.csv"
-        report = run_sim(out, simulator=simulator, samples=1_500, seed=21, csv_path=csv)
-        assert report.passed, report.table()
-        streams.append(csv.read_text())
-    assert streams[0].count("\n") > 1_500
-    assert streams[0] == streams[1]
+# The VHDL cores of every function on GHDL against the model (20,000 samples each), and the
+# Verilog and VHDL cores giving the same stream for each function, run in tests/test_sim.py
+# (test_functions_on_ghdl, test_verilog_on_verilator_and_vhdl_on_ghdl_give_the_same_stream);
+# the bulk bench on GHDL in tests/test_ghdl_bulk.py.
 
 
 def test_a_missing_or_old_ghdl_is_one_clear_line(tmp_path: Path, capsys: pytest.CaptureFixture[str],
