@@ -6,11 +6,11 @@ import math
 
 import numpy as np
 import pytest
+from conftest import cheaper_sizes_miss
 
 from benchgen.functions import make_datapath
 from benchgen.config import parse_config
-from benchgen.errors import ConfigError
-from benchgen.design import MAX_AUTO_GUARD_BITS, adder_bits, build_design
+from benchgen.design import MAX_AUTO_GUARD_BITS, build_design
 from benchgen.functions import measure, sizing_inputs
 
 
@@ -34,25 +34,12 @@ def test_sincos_sizing_is_minimal_in_adder_bits(width: int, rounding: str) -> No
     )
     design = build_design(spec)
     n, g = design.datapath.iterations, design.datapath.guard_bits
-    cost = adder_bits(design.datapath)
     inputs, exhaustive = sizing_inputs(design.datapath)
     assert exhaustive  # a 2^12 or 2^16 space is checked whole
     assert measure(make_datapath(spec, n, g), inputs).max_error_lsb < target
-    cheaper = []
-    for n2 in range(1, 4 * width):
-        for g2 in range(MAX_AUTO_GUARD_BITS + 1):
-            if n2 > spec.data_width + g2 + 1:
-                continue  # more iterations than the width holds
-            try:
-                dp = make_datapath(spec, n2, g2)
-            except ConfigError:
-                continue
-            if adder_bits(dp) < cost or (adder_bits(dp) == cost and n2 < n):
-                cheaper.append((n2, g2))
-    if g > 0:
-        assert (n, g - 1) in cheaper  # the neighbours are among the sizes judged
-    passing = [c for c in cheaper if measure(make_datapath(spec, *c), inputs).max_error_lsb < target]
-    assert passing == []
+    # every size of lower sizing cost (fewer adder bits, or as many with fewer iterations) misses
+    judged = cheaper_sizes_miss(spec, design, inputs, None, target)
+    assert judged >= g  # the smaller guard-bit counts at n are among the sizes judged
     # At 16 bits the cost rule takes more iterations than the fewest that can meet the target
     # (with fewer guard bits, fewer adder bits in all).
     if width == 16 and rounding == "half_even":
