@@ -169,6 +169,10 @@ class Datapath:
             schedule with its repeats (:func:`hyperbolic_shifts`).
         in_frac: Fraction bits of the data input (hyperbolic functions; 0 elsewhere).
         out_frac: Fraction bits of the main data output (hyperbolic functions; 0 elsewhere).
+        saturates: Whether the data outputs carry saturation logic (and x, y a headroom bit
+            above the outputs' range). False only where every input of the core was evaluated
+            and none drives a rounded output beyond +-out_max nor x, y out of the narrower
+            width (:func:`benchgen.functions.final_datapath`): the logic would never act.
     """
 
     function: str
@@ -193,6 +197,7 @@ class Datapath:
     shifts: tuple[int, ...] = ()
     in_frac: int = 0
     out_frac: int = 0
+    saturates: bool = True
 
     @property
     def radians(self) -> bool:

@@ -20,7 +20,7 @@ from benchgen import __version__
 from benchgen.algorithm import make_timing
 from benchgen.cprinter import CPort, c_comment, c_type, feeds_back, function_parts
 from benchgen.design import Design
-from benchgen.functions import front_stages, function_of, make_datapath
+from benchgen.functions import front_stages, function_of, final_datapath
 from benchgen.hardware import build_core, header_lines
 from benchgen.netlist import Module
 from benchgen.rtl import template_environment, tidy_text
@@ -57,7 +57,7 @@ def modelled(design: Design) -> tuple[Design, bool]:
     if fn.phase_front(dp) is None:
         return design, False
     spec = fn.sizing_spec(design.spec)
-    return replace(design, spec=spec, datapath=make_datapath(spec, dp.iterations, dp.guard_bits)), True
+    return replace(design, spec=spec, datapath=final_datapath(spec, dp.iterations, dp.guard_bits)), True
 
 
 def model_module(design: Design) -> tuple[Module, bool]:

@@ -45,6 +45,7 @@ from benchgen.functions import (
     input_space_bits,
     int64_model,
     join_inputs,
+    final_datapath,
     make_datapath,
     measure,
     output_ports,
@@ -616,7 +617,7 @@ def build_design(spec: CoreSpec, *, progress: Progress | None = None) -> Design:
     spec = function_named(spec.function).resolve_spec(spec, candidate)
     _check_port_widths(spec)
     n, g, stats, proof = _size(_arithmetic(spec), progress)
-    dp = make_datapath(spec, n, g)
+    dp = final_datapath(spec, n, g)
     try:
         timing: Timing = make_timing(spec, n, front_stages(spec, dp))
     except ConfigError as exc:  # more stages than iterations: as many as there are is accepted

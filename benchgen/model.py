@@ -9,6 +9,7 @@ int64 the arrays are int64; wider cores run on arrays of Python integers (exact,
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from typing import Any
 
 import numpy as np
@@ -151,20 +152,31 @@ BLOCK = 1 << 14
 """Inputs per block of the int64 iterations: they fit the cache."""
 
 
-def iterate(dp: Datapath, x: IntArray, y: IntArray, z: IntArray, dtype: Any) -> tuple[IntArray, IntArray, IntArray]:
-    """Circular iterations in the data path's mode; int64 arrays take the fast path."""
+#: Called after each iteration with its index and that block's x and y (unwrapped int64).
+StageVisitor = Callable[[int, IntArray, IntArray], None]
+
+
+def iterate(
+    dp: Datapath, x: IntArray, y: IntArray, z: IntArray, dtype: Any, *, each: StageVisitor | None = None
+) -> tuple[IntArray, IntArray, IntArray]:
+    """Circular iterations in the data path's mode; int64 arrays take the fast path.
+
+    ``each`` (fast path only) sees x and y after every iteration, before any wrap: how
+    :meth:`benchgen.functions.sincos.SinCos.proved_range` bounds every register.
+    """
     if dtype == object or x.dtype == object:
+        assert each is None, "the stage visitor runs on the int64 path only"
         return iterate_wrapping(dp, x, y, z, dtype)
     x = np.ascontiguousarray(x, dtype=np.int64).copy()
     y = np.ascontiguousarray(y, dtype=np.int64).copy()
     z = np.ascontiguousarray(z, dtype=np.int64).copy()
     for lo in range(0, x.size, BLOCK):
         sl = slice(lo, lo + BLOCK)
-        _iterate_block(dp, x[sl], y[sl], z[sl])
+        _iterate_block(dp, x[sl], y[sl], z[sl], each)
     return wrap(x, dp.xy_width), wrap(y, dp.xy_width), wrap(z, dp.z_width)
 
 
-def _iterate_block(dp: Datapath, x: IntArray, y: IntArray, z: IntArray) -> None:
+def _iterate_block(dp: Datapath, x: IntArray, y: IntArray, z: IntArray, each: StageVisitor | None = None) -> None:
     """In-place iterations on int64 without the per-register wrap (any coordinates).
 
     Leaving the wrap to the end changes no bit here. x and y never reach their register
@@ -207,6 +219,8 @@ def _iterate_block(dp: Datapath, x: IntArray, y: IntArray, z: IntArray) -> None:
             np.bitwise_xor(s, np.int64(step), out=ty)
             np.subtract(ty, s, out=ty)
             np.subtract(z, ty, out=z)
+        if each is not None:
+            each(i, x, y)
 
 
 def iterate_wrapping(dp: Datapath, x: IntArray, y: IntArray, z: IntArray, dtype: Any) -> tuple[IntArray, IntArray, IntArray]:

@@ -38,7 +38,7 @@ from benchgen.algorithm import make_timing
 from benchgen.design import Design, Proof, build_design
 from benchgen.reference import ErrorStats
 from benchgen.errors import BenchgenError, ConfigError
-from benchgen.functions import front_stages, function_of, make_datapath
+from benchgen.functions import final_datapath, front_stages, function_of
 from benchgen.cmodel import c_model_files, c_model_paths, model_function_name
 from benchgen.fusesoc import core_file_name, render_core_file, vlnv
 from benchgen.harness import bulk_project_files
@@ -101,6 +101,7 @@ def manifest_for(design: Design) -> dict[str, Any]:
             "guard_bits": dp.guard_bits,
             "auto_fields": list(design.auto_fields),
             "xy_width": dp.xy_width,
+            "saturates": dp.saturates,
             "z_width": dp.z_width,
             "amplitude": dp.amplitude,
             "gain": dp.gain,
@@ -898,7 +899,7 @@ def design_from_manifest(manifest: dict[str, Any]) -> Design:
         n, g = derived["iterations"], derived["guard_bits"]
         if not all(isinstance(v, int) and not isinstance(v, bool) for v in (n, g)):
             raise ProjectError(stale)
-        dp = make_datapath(spec, n, g)
+        dp = final_datapath(spec, n, g)
         design = Design(
             spec=spec,
             datapath=dp,

@@ -8,6 +8,8 @@ model, stimulus, ideal and judging.
 
 from __future__ import annotations
 
+import functools
+
 from collections.abc import Mapping
 from typing import Any
 
@@ -51,6 +53,7 @@ __all__ = [
     "input_space_bits",
     "int64_model",
     "join_inputs",
+    "final_datapath",
     "make_datapath",
     "measure",
     "output_ports",
@@ -133,6 +136,22 @@ def make_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Datapath:
         ConfigError: if the iterations do not fit the internal width.
     """
     return function_named(spec.function).datapath(spec, iterations, guard_bits)
+
+
+@functools.lru_cache(maxsize=64)
+def _proved(dp: Datapath) -> Datapath:
+    return function_of(dp).proved_range(dp)
+
+
+def final_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Datapath:
+    """The data path of the core that is shipped at a size: :func:`make_datapath`, then without
+    the logic that evaluating every input proves idle (a function's ``proved_range``: today the
+    sine/cosine core's saturation and x/y headroom bit, up to 2^20 angle codes).
+
+    Sizing judges candidates with :func:`make_datapath`; the narrower data path computes the
+    same bits on every input, so the accuracy proven there holds for it.
+    """
+    return _proved(make_datapath(spec, iterations, guard_bits))
 
 
 def input_ports(dp: Datapath) -> tuple[Port, ...]:

@@ -399,6 +399,15 @@ class Function:
         """The phase accumulator in front of the iterations, for a function that has one."""
         return None
 
+    def proved_range(self, dp: Datapath) -> Datapath:
+        """``dp`` without logic that no input can reach, where every input proves it so.
+
+        A function whose input space can be enumerated may return the data path without its
+        output saturation and x/y headroom bit (``saturates = False``), after evaluating every
+        input (:func:`benchgen.functions.final_datapath`). The default keeps both.
+        """
+        return dp
+
     def hw_constants(self, b: Builder, dp: Datapath) -> None:
         """Named constants declared before the iterations (beyond the atan table)."""
 

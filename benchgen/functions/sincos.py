@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from collections.abc import Mapping
+from dataclasses import replace
 from typing import Any, ClassVar
 
 import mpmath
@@ -58,6 +59,11 @@ def ideal_sincos(
     scale_f = 1.0 / 2.0**dp.angle_frac if dp.radians else 2.0 * np.pi / 2.0**n_bits
     t_arr = signed_arr.astype(np.float64) * scale_f
     return dp.amplitude * np.cos(t_arr), dp.amplitude * np.sin(t_arr)
+
+
+#: Angle widths up to which :meth:`SinCos.proved_range` evaluates every code (2^20 codes take
+#: about a second; the sizer's exhaustive proof reaches the same width on a slow model).
+RANGE_PROOF_BITS = 20
 
 
 class SinCos(CircularFunction):
@@ -116,7 +122,60 @@ class SinCos(CircularFunction):
         return f"Gain: {dp.gain_mode} (K = {dp.gain}, {how})."
 
     def header_notes(self, dp: Datapath) -> list[str]:
+        if not dp.saturates:
+            return [
+                f"rounding       {dp.rounding} where guard bits are dropped; no saturation: over every one of",
+                f"               the {1 << dp.angle_width} angle codes the outputs stay within +-{dp.out_max} and x, y within",
+                f"               {dp.xy_width} bits (evaluated when generated), so that logic would never act",
+            ]
         return [f"rounding       {dp.rounding} where guard bits are dropped; data outputs saturate to +-{dp.out_max}"]
+
+    # ---------------------------------------------------------------- range proof
+
+    def proved_range(self, dp: Datapath) -> Datapath:
+        """Without saturation and x/y's headroom bit when no angle code can need them.
+
+        Every angle code is run through the model's own iterations (int64, unwrapped) and the
+        extremes of x and y after every iteration are kept, with the rounded outputs. The
+        narrower data path is returned only if, for every code: x and y fit ``xy_width - 1``
+        bits after every iteration, so that no register wraps; the rounding add of the last
+        values (``v`` plus at most half an output LSB) does not reach the top of that width;
+        and the rounded outputs lie within ``+-out_max``, so saturation would pass them
+        unchanged. The narrower core then computes the same bits as the wider one for every
+        input (tests/test_range_proof.py holds the two models equal on every code).
+        """
+        assert isinstance(dp, CircularDatapath)
+        if (
+            not dp.saturates
+            or dp.angle_width > RANGE_PROOF_BITS
+            or dp.iterations > dp.xy_width - 1
+            or dtype_for(self.model_bits(dp)) == object  # the visitor runs on the int64 path
+        ):
+            return dp
+        narrow = replace(dp, xy_width=dp.xy_width - 1, saturates=False)
+        limit = 1 << (narrow.xy_width - 1)
+        drop = self.drops(dp)["x"]
+        slack = (1 << (drop - 1)) if drop and dp.rounding != "truncate" else 0
+        low, high = 0, 0
+
+        def each(_i: int, x: npt.NDArray[Any], y: npt.NDArray[Any]) -> None:
+            nonlocal low, high
+            low = min(low, int(x.min()), int(y.min()))
+            high = max(high, int(x.max()), int(y.max()))
+
+        out_w = dp.out_width + 1
+        for lo in range(0, 1 << dp.angle_width, BLOCK):
+            codes = np.arange(lo, min(lo + BLOCK, 1 << dp.angle_width), dtype=np.int64)
+            z, fold = self.fold(dp, codes)
+            x = np.where(fold, np.int64(-dp.x_start), np.int64(dp.x_start))
+            x, y, _ = iterate(dp, x, np.zeros_like(x), z, np.int64, each=each)
+            if low < -limit or high + slack >= limit:
+                return dp
+            for v in (x, y):
+                q = round_drop(v, dp.guard_bits, dp.rounding, out_w)
+                if int(q.min()) < -dp.out_max or int(q.max()) > dp.out_max:
+                    return dp
+        return narrow
 
     # ---------------------------------------------------------------- model
 
@@ -141,6 +200,11 @@ class SinCos(CircularFunction):
             z = z.astype(object)
         x, y, _ = iterate(dp, x, y, z, dtype)
         out_w = dp.out_width + 1
+        if not dp.saturates:  # proved: no code drives them beyond +-out_max (proved_range)
+            return {
+                "out_cos": round_drop(x, dp.guard_bits, dp.rounding, out_w),
+                "out_sin": round_drop(y, dp.guard_bits, dp.rounding, out_w),
+            }
         return {
             "out_cos": saturate(round_drop(x, dp.guard_bits, dp.rounding, out_w), dp.out_max),
             "out_sin": saturate(round_drop(y, dp.guard_bits, dp.rounding, out_w), dp.out_max),
@@ -193,7 +257,11 @@ class SinCos(CircularFunction):
             ("fin_out_sin", final.y, final.y_kept, drops["y"]),
         ):
             q = b.round_q(port, value, dp.xy_width, drop, kept)
-            b.saturate(port, q, dp.out_max)
+            if dp.saturates:
+                b.saturate(port, q, dp.out_max)
+            else:
+                assert q.width == dp.out_width
+                b.wire(port, q, "no saturation: every angle code stays within range (header)")
 
 
 FUNCTION = SinCos()

@@ -9,8 +9,10 @@
 //   in_angle       binary angle, 10 bits, 2^10 codes per turn
 //   out_cos        two's complement, 18 bits, amplitude 131071
 //   out_sin        two's complement, 18 bits, amplitude 131071
-//   rounding       half_up where guard bits are dropped; data outputs saturate to +-131071
-// Internal widths: x, y 23 bits (4 guard bits); z 24 bits (24 fraction bits of a turn).
+//   rounding       half_up where guard bits are dropped; no saturation: over every one of
+//                  the 1024 angle codes the outputs stay within +-131071 and x, y within
+//                  22 bits (evaluated when generated), so that logic would never act
+// Internal widths: x, y 22 bits (4 guard bits); z 24 bits (24 fraction bits of a turn).
 // Worst error against the ideal, bit-true model: 0.9349 LSB (RMS 0.3469 LSB),
 // measured over every one of the 1024 input codes.
 // Timing: latency 5 clocks from input handshake to output handshake, one
@@ -53,7 +55,7 @@ module fft1024_twiddle (
     output wire [8:0] out_tag
 );
 
-    localparam XY_W = 23;  // x and y: data bits plus 4 guard bits
+    localparam XY_W = 22;  // x and y: data bits plus 4 guard bits
     localparam Z_W = 24;  // z: 24 fraction bits
 
     // z narrows stage by stage: after iteration i it is within about +-atan(2^-i), so its top
@@ -83,8 +85,8 @@ module fft1024_twiddle (
     wire advance;
     assign in_ready = advance;
 
-    localparam [22:0] X_START_POS = 23'h136e94;  // amplitude times K, 4 guard bits
-    localparam [22:0] X_START_NEG = 23'h6c916c;  // the same, negated (fold)
+    localparam [21:0] X_START_POS = 22'h136e94;  // amplitude times K, 4 guard bits
+    localparam [21:0] X_START_NEG = 22'h2c916c;  // the same, negated (fold)
     // Quadrant fold: an angle in the left half-plane (top two bits differ) is turned by half a
     // turn, which flips its MSB and leaves the top two bits equal, and the vector starts
     // negated instead. What remains is within +-1/4 turn, inside the +-99.88 degree
@@ -92,41 +94,41 @@ module fft1024_twiddle (
     wire in_fold = in_angle[9] ^ in_angle[8];
     wire [Z_W-1:0] z_start = {in_angle[8], in_angle[8:0], 14'h0000};
     wire [XY_W-1:0] x_start = in_fold ? X_START_NEG : X_START_POS;
-    wire [XY_W-1:0] y_start = 23'h000000;
+    wire [XY_W-1:0] y_start = 22'h000000;
 
     // ---- stage 0: iterations 0 to 4 ----
     // iteration 0: turn counter-clockwise when the remaining angle is >= 0
     wire dir_0 = (z_start < 24'h800000);
-    wire [XY_W-1:0] x_1 = x_start + (dir_0 ? ~y_start : y_start) + {22'h000000, dir_0};
-    wire [XY_W-1:0] y_1 = y_start + (dir_0 ? x_start : ~x_start) + {22'h000000, ~dir_0};
+    wire [XY_W-1:0] x_1 = x_start + (dir_0 ? ~y_start : y_start) + {21'h000000, dir_0};
+    wire [XY_W-1:0] y_1 = y_start + (dir_0 ? x_start : ~x_start) + {21'h000000, ~dir_0};
     wire [21:0] z_1 = z_start[21:0] + (dir_0 ? ~ATAN_0 : ATAN_0) + {21'h000000, dir_0};
     // iteration 1: turn counter-clockwise when the remaining angle is >= 0
     wire dir_1 = (z_1 < 22'h200000);
-    wire [XY_W-1:0] xs_1 = {{1{x_1[22]}}, x_1[22:1]};  // x >>> 1
-    wire [XY_W-1:0] ys_1 = {{1{y_1[22]}}, y_1[22:1]};  // y >>> 1
-    wire [XY_W-1:0] x_2 = x_1 + (dir_1 ? ~ys_1 : ys_1) + {22'h000000, dir_1};
-    wire [XY_W-1:0] y_2 = y_1 + (dir_1 ? xs_1 : ~xs_1) + {22'h000000, ~dir_1};
+    wire [XY_W-1:0] xs_1 = {{1{x_1[21]}}, x_1[21:1]};  // x >>> 1
+    wire [XY_W-1:0] ys_1 = {{1{y_1[21]}}, y_1[21:1]};  // y >>> 1
+    wire [XY_W-1:0] x_2 = x_1 + (dir_1 ? ~ys_1 : ys_1) + {21'h000000, dir_1};
+    wire [XY_W-1:0] y_2 = y_1 + (dir_1 ? xs_1 : ~xs_1) + {21'h000000, ~dir_1};
     wire [21:0] z_2 = z_1 + (dir_1 ? ~ATAN_1 : ATAN_1) + {21'h000000, dir_1};
     // iteration 2: turn counter-clockwise when the remaining angle is >= 0
     wire dir_2 = (z_2 < 22'h200000);
-    wire [XY_W-1:0] xs_2 = {{2{x_2[22]}}, x_2[22:2]};  // x >>> 2
-    wire [XY_W-1:0] ys_2 = {{2{y_2[22]}}, y_2[22:2]};  // y >>> 2
-    wire [XY_W-1:0] x_3 = x_2 + (dir_2 ? ~ys_2 : ys_2) + {22'h000000, dir_2};
-    wire [XY_W-1:0] y_3 = y_2 + (dir_2 ? xs_2 : ~xs_2) + {22'h000000, ~dir_2};
+    wire [XY_W-1:0] xs_2 = {{2{x_2[21]}}, x_2[21:2]};  // x >>> 2
+    wire [XY_W-1:0] ys_2 = {{2{y_2[21]}}, y_2[21:2]};  // y >>> 2
+    wire [XY_W-1:0] x_3 = x_2 + (dir_2 ? ~ys_2 : ys_2) + {21'h000000, dir_2};
+    wire [XY_W-1:0] y_3 = y_2 + (dir_2 ? xs_2 : ~xs_2) + {21'h000000, ~dir_2};
     wire [20:0] z_3 = z_2[20:0] + (dir_2 ? ~ATAN_2 : ATAN_2) + {20'h00000, dir_2};
     // iteration 3: turn counter-clockwise when the remaining angle is >= 0
     wire dir_3 = (z_3 < 21'h100000);
-    wire [XY_W-1:0] xs_3 = {{3{x_3[22]}}, x_3[22:3]};  // x >>> 3
-    wire [XY_W-1:0] ys_3 = {{3{y_3[22]}}, y_3[22:3]};  // y >>> 3
-    wire [XY_W-1:0] x_4 = x_3 + (dir_3 ? ~ys_3 : ys_3) + {22'h000000, dir_3};
-    wire [XY_W-1:0] y_4 = y_3 + (dir_3 ? xs_3 : ~xs_3) + {22'h000000, ~dir_3};
+    wire [XY_W-1:0] xs_3 = {{3{x_3[21]}}, x_3[21:3]};  // x >>> 3
+    wire [XY_W-1:0] ys_3 = {{3{y_3[21]}}, y_3[21:3]};  // y >>> 3
+    wire [XY_W-1:0] x_4 = x_3 + (dir_3 ? ~ys_3 : ys_3) + {21'h000000, dir_3};
+    wire [XY_W-1:0] y_4 = y_3 + (dir_3 ? xs_3 : ~xs_3) + {21'h000000, ~dir_3};
     wire [19:0] z_4 = z_3[19:0] + (dir_3 ? ~ATAN_3 : ATAN_3) + {19'h00000, dir_3};
     // iteration 4: turn counter-clockwise when the remaining angle is >= 0
     wire dir_4 = (z_4 < 20'h80000);
-    wire [XY_W-1:0] xs_4 = {{4{x_4[22]}}, x_4[22:4]};  // x >>> 4
-    wire [XY_W-1:0] ys_4 = {{4{y_4[22]}}, y_4[22:4]};  // y >>> 4
-    wire [XY_W-1:0] s0_x = x_4 + (dir_4 ? ~ys_4 : ys_4) + {22'h000000, dir_4};
-    wire [XY_W-1:0] s0_y = y_4 + (dir_4 ? xs_4 : ~xs_4) + {22'h000000, ~dir_4};
+    wire [XY_W-1:0] xs_4 = {{4{x_4[21]}}, x_4[21:4]};  // x >>> 4
+    wire [XY_W-1:0] ys_4 = {{4{y_4[21]}}, y_4[21:4]};  // y >>> 4
+    wire [XY_W-1:0] s0_x = x_4 + (dir_4 ? ~ys_4 : ys_4) + {21'h000000, dir_4};
+    wire [XY_W-1:0] s0_y = y_4 + (dir_4 ? xs_4 : ~xs_4) + {21'h000000, ~dir_4};
     wire [18:0] s0_z = z_4[18:0] + (dir_4 ? ~ATAN_4 : ATAN_4) + {18'h00000, dir_4};
 
     reg s0_valid_reg;
@@ -155,38 +157,38 @@ module fft1024_twiddle (
     // ---- stage 1: iterations 5 to 9 ----
     // iteration 5: turn counter-clockwise when the remaining angle is >= 0
     wire dir_5 = (s0_z_reg < 19'h40000);
-    wire [XY_W-1:0] xs_5 = {{5{s0_x_reg[22]}}, s0_x_reg[22:5]};  // x >>> 5
-    wire [XY_W-1:0] ys_5 = {{5{s0_y_reg[22]}}, s0_y_reg[22:5]};  // y >>> 5
-    wire [XY_W-1:0] x_6 = s0_x_reg + (dir_5 ? ~ys_5 : ys_5) + {22'h000000, dir_5};
-    wire [XY_W-1:0] y_6 = s0_y_reg + (dir_5 ? xs_5 : ~xs_5) + {22'h000000, ~dir_5};
+    wire [XY_W-1:0] xs_5 = {{5{s0_x_reg[21]}}, s0_x_reg[21:5]};  // x >>> 5
+    wire [XY_W-1:0] ys_5 = {{5{s0_y_reg[21]}}, s0_y_reg[21:5]};  // y >>> 5
+    wire [XY_W-1:0] x_6 = s0_x_reg + (dir_5 ? ~ys_5 : ys_5) + {21'h000000, dir_5};
+    wire [XY_W-1:0] y_6 = s0_y_reg + (dir_5 ? xs_5 : ~xs_5) + {21'h000000, ~dir_5};
     wire [17:0] z_6 = s0_z_reg[17:0] + (dir_5 ? ~ATAN_5 : ATAN_5) + {17'h00000, dir_5};
     // iteration 6: turn counter-clockwise when the remaining angle is >= 0
     wire dir_6 = (z_6 < 18'h20000);
-    wire [XY_W-1:0] xs_6 = {{6{x_6[22]}}, x_6[22:6]};  // x >>> 6
-    wire [XY_W-1:0] ys_6 = {{6{y_6[22]}}, y_6[22:6]};  // y >>> 6
-    wire [XY_W-1:0] x_7 = x_6 + (dir_6 ? ~ys_6 : ys_6) + {22'h000000, dir_6};
-    wire [XY_W-1:0] y_7 = y_6 + (dir_6 ? xs_6 : ~xs_6) + {22'h000000, ~dir_6};
+    wire [XY_W-1:0] xs_6 = {{6{x_6[21]}}, x_6[21:6]};  // x >>> 6
+    wire [XY_W-1:0] ys_6 = {{6{y_6[21]}}, y_6[21:6]};  // y >>> 6
+    wire [XY_W-1:0] x_7 = x_6 + (dir_6 ? ~ys_6 : ys_6) + {21'h000000, dir_6};
+    wire [XY_W-1:0] y_7 = y_6 + (dir_6 ? xs_6 : ~xs_6) + {21'h000000, ~dir_6};
     wire [16:0] z_7 = z_6[16:0] + (dir_6 ? ~ATAN_6 : ATAN_6) + {16'h0000, dir_6};
     // iteration 7: turn counter-clockwise when the remaining angle is >= 0
     wire dir_7 = (z_7 < 17'h10000);
-    wire [XY_W-1:0] xs_7 = {{7{x_7[22]}}, x_7[22:7]};  // x >>> 7
-    wire [XY_W-1:0] ys_7 = {{7{y_7[22]}}, y_7[22:7]};  // y >>> 7
-    wire [XY_W-1:0] x_8 = x_7 + (dir_7 ? ~ys_7 : ys_7) + {22'h000000, dir_7};
-    wire [XY_W-1:0] y_8 = y_7 + (dir_7 ? xs_7 : ~xs_7) + {22'h000000, ~dir_7};
+    wire [XY_W-1:0] xs_7 = {{7{x_7[21]}}, x_7[21:7]};  // x >>> 7
+    wire [XY_W-1:0] ys_7 = {{7{y_7[21]}}, y_7[21:7]};  // y >>> 7
+    wire [XY_W-1:0] x_8 = x_7 + (dir_7 ? ~ys_7 : ys_7) + {21'h000000, dir_7};
+    wire [XY_W-1:0] y_8 = y_7 + (dir_7 ? xs_7 : ~xs_7) + {21'h000000, ~dir_7};
     wire [15:0] z_8 = z_7[15:0] + (dir_7 ? ~ATAN_7 : ATAN_7) + {15'h0000, dir_7};
     // iteration 8: turn counter-clockwise when the remaining angle is >= 0
     wire dir_8 = (z_8 < 16'h8000);
-    wire [XY_W-1:0] xs_8 = {{8{x_8[22]}}, x_8[22:8]};  // x >>> 8
-    wire [XY_W-1:0] ys_8 = {{8{y_8[22]}}, y_8[22:8]};  // y >>> 8
-    wire [XY_W-1:0] x_9 = x_8 + (dir_8 ? ~ys_8 : ys_8) + {22'h000000, dir_8};
-    wire [XY_W-1:0] y_9 = y_8 + (dir_8 ? xs_8 : ~xs_8) + {22'h000000, ~dir_8};
+    wire [XY_W-1:0] xs_8 = {{8{x_8[21]}}, x_8[21:8]};  // x >>> 8
+    wire [XY_W-1:0] ys_8 = {{8{y_8[21]}}, y_8[21:8]};  // y >>> 8
+    wire [XY_W-1:0] x_9 = x_8 + (dir_8 ? ~ys_8 : ys_8) + {21'h000000, dir_8};
+    wire [XY_W-1:0] y_9 = y_8 + (dir_8 ? xs_8 : ~xs_8) + {21'h000000, ~dir_8};
     wire [14:0] z_9 = z_8[14:0] + (dir_8 ? ~ATAN_8 : ATAN_8) + {14'h0000, dir_8};
     // iteration 9: turn counter-clockwise when the remaining angle is >= 0
     wire dir_9 = (z_9 < 15'h4000);
-    wire [XY_W-1:0] xs_9 = {{9{x_9[22]}}, x_9[22:9]};  // x >>> 9
-    wire [XY_W-1:0] ys_9 = {{9{y_9[22]}}, y_9[22:9]};  // y >>> 9
-    wire [XY_W-1:0] s1_x = x_9 + (dir_9 ? ~ys_9 : ys_9) + {22'h000000, dir_9};
-    wire [XY_W-1:0] s1_y = y_9 + (dir_9 ? xs_9 : ~xs_9) + {22'h000000, ~dir_9};
+    wire [XY_W-1:0] xs_9 = {{9{x_9[21]}}, x_9[21:9]};  // x >>> 9
+    wire [XY_W-1:0] ys_9 = {{9{y_9[21]}}, y_9[21:9]};  // y >>> 9
+    wire [XY_W-1:0] s1_x = x_9 + (dir_9 ? ~ys_9 : ys_9) + {21'h000000, dir_9};
+    wire [XY_W-1:0] s1_y = y_9 + (dir_9 ? xs_9 : ~xs_9) + {21'h000000, ~dir_9};
     wire [13:0] s1_z = z_9[13:0] + (dir_9 ? ~ATAN_9 : ATAN_9) + {13'h0000, dir_9};
 
     reg s1_valid_reg;
@@ -215,38 +217,38 @@ module fft1024_twiddle (
     // ---- stage 2: iterations 10 to 14 ----
     // iteration 10: turn counter-clockwise when the remaining angle is >= 0
     wire dir_10 = (s1_z_reg < 14'h2000);
-    wire [XY_W-1:0] xs_10 = {{10{s1_x_reg[22]}}, s1_x_reg[22:10]};  // x >>> 10
-    wire [XY_W-1:0] ys_10 = {{10{s1_y_reg[22]}}, s1_y_reg[22:10]};  // y >>> 10
-    wire [XY_W-1:0] x_11 = s1_x_reg + (dir_10 ? ~ys_10 : ys_10) + {22'h000000, dir_10};
-    wire [XY_W-1:0] y_11 = s1_y_reg + (dir_10 ? xs_10 : ~xs_10) + {22'h000000, ~dir_10};
+    wire [XY_W-1:0] xs_10 = {{10{s1_x_reg[21]}}, s1_x_reg[21:10]};  // x >>> 10
+    wire [XY_W-1:0] ys_10 = {{10{s1_y_reg[21]}}, s1_y_reg[21:10]};  // y >>> 10
+    wire [XY_W-1:0] x_11 = s1_x_reg + (dir_10 ? ~ys_10 : ys_10) + {21'h000000, dir_10};
+    wire [XY_W-1:0] y_11 = s1_y_reg + (dir_10 ? xs_10 : ~xs_10) + {21'h000000, ~dir_10};
     wire [12:0] z_11 = s1_z_reg[12:0] + (dir_10 ? ~ATAN_10 : ATAN_10) + {12'h000, dir_10};
     // iteration 11: turn counter-clockwise when the remaining angle is >= 0
     wire dir_11 = (z_11 < 13'h1000);
-    wire [XY_W-1:0] xs_11 = {{11{x_11[22]}}, x_11[22:11]};  // x >>> 11
-    wire [XY_W-1:0] ys_11 = {{11{y_11[22]}}, y_11[22:11]};  // y >>> 11
-    wire [XY_W-1:0] x_12 = x_11 + (dir_11 ? ~ys_11 : ys_11) + {22'h000000, dir_11};
-    wire [XY_W-1:0] y_12 = y_11 + (dir_11 ? xs_11 : ~xs_11) + {22'h000000, ~dir_11};
+    wire [XY_W-1:0] xs_11 = {{11{x_11[21]}}, x_11[21:11]};  // x >>> 11
+    wire [XY_W-1:0] ys_11 = {{11{y_11[21]}}, y_11[21:11]};  // y >>> 11
+    wire [XY_W-1:0] x_12 = x_11 + (dir_11 ? ~ys_11 : ys_11) + {21'h000000, dir_11};
+    wire [XY_W-1:0] y_12 = y_11 + (dir_11 ? xs_11 : ~xs_11) + {21'h000000, ~dir_11};
     wire [11:0] z_12 = z_11[11:0] + (dir_11 ? ~ATAN_11 : ATAN_11) + {11'h000, dir_11};
     // iteration 12: turn counter-clockwise when the remaining angle is >= 0
     wire dir_12 = (z_12 < 12'h800);
-    wire [XY_W-1:0] xs_12 = {{12{x_12[22]}}, x_12[22:12]};  // x >>> 12
-    wire [XY_W-1:0] ys_12 = {{12{y_12[22]}}, y_12[22:12]};  // y >>> 12
-    wire [XY_W-1:0] x_13 = x_12 + (dir_12 ? ~ys_12 : ys_12) + {22'h000000, dir_12};
-    wire [XY_W-1:0] y_13 = y_12 + (dir_12 ? xs_12 : ~xs_12) + {22'h000000, ~dir_12};
+    wire [XY_W-1:0] xs_12 = {{12{x_12[21]}}, x_12[21:12]};  // x >>> 12
+    wire [XY_W-1:0] ys_12 = {{12{y_12[21]}}, y_12[21:12]};  // y >>> 12
+    wire [XY_W-1:0] x_13 = x_12 + (dir_12 ? ~ys_12 : ys_12) + {21'h000000, dir_12};
+    wire [XY_W-1:0] y_13 = y_12 + (dir_12 ? xs_12 : ~xs_12) + {21'h000000, ~dir_12};
     wire [10:0] z_13 = z_12[10:0] + (dir_12 ? ~ATAN_12 : ATAN_12) + {10'h000, dir_12};
     // iteration 13: turn counter-clockwise when the remaining angle is >= 0
     wire dir_13 = (z_13 < 11'h400);
-    wire [XY_W-1:0] xs_13 = {{13{x_13[22]}}, x_13[22:13]};  // x >>> 13
-    wire [XY_W-1:0] ys_13 = {{13{y_13[22]}}, y_13[22:13]};  // y >>> 13
-    wire [XY_W-1:0] x_14 = x_13 + (dir_13 ? ~ys_13 : ys_13) + {22'h000000, dir_13};
-    wire [XY_W-1:0] y_14 = y_13 + (dir_13 ? xs_13 : ~xs_13) + {22'h000000, ~dir_13};
+    wire [XY_W-1:0] xs_13 = {{13{x_13[21]}}, x_13[21:13]};  // x >>> 13
+    wire [XY_W-1:0] ys_13 = {{13{y_13[21]}}, y_13[21:13]};  // y >>> 13
+    wire [XY_W-1:0] x_14 = x_13 + (dir_13 ? ~ys_13 : ys_13) + {21'h000000, dir_13};
+    wire [XY_W-1:0] y_14 = y_13 + (dir_13 ? xs_13 : ~xs_13) + {21'h000000, ~dir_13};
     wire [9:0] z_14 = z_13[9:0] + (dir_13 ? ~ATAN_13 : ATAN_13) + {9'h000, dir_13};
     // iteration 14: turn counter-clockwise when the remaining angle is >= 0
     wire dir_14 = (z_14 < 10'h200);
-    wire [XY_W-1:0] xs_14 = {{14{x_14[22]}}, x_14[22:14]};  // x >>> 14
-    wire [XY_W-1:0] ys_14 = {{14{y_14[22]}}, y_14[22:14]};  // y >>> 14
-    wire [XY_W-1:0] s2_x = x_14 + (dir_14 ? ~ys_14 : ys_14) + {22'h000000, dir_14};
-    wire [XY_W-1:0] s2_y = y_14 + (dir_14 ? xs_14 : ~xs_14) + {22'h000000, ~dir_14};
+    wire [XY_W-1:0] xs_14 = {{14{x_14[21]}}, x_14[21:14]};  // x >>> 14
+    wire [XY_W-1:0] ys_14 = {{14{y_14[21]}}, y_14[21:14]};  // y >>> 14
+    wire [XY_W-1:0] s2_x = x_14 + (dir_14 ? ~ys_14 : ys_14) + {21'h000000, dir_14};
+    wire [XY_W-1:0] s2_y = y_14 + (dir_14 ? xs_14 : ~xs_14) + {21'h000000, ~dir_14};
     wire [8:0] s2_z = z_14[8:0] + (dir_14 ? ~ATAN_14 : ATAN_14) + {8'h00, dir_14};
 
     reg s2_valid_reg;
@@ -275,38 +277,38 @@ module fft1024_twiddle (
     // ---- stage 3: iterations 15 to 19 ----
     // iteration 15: turn counter-clockwise when the remaining angle is >= 0
     wire dir_15 = (s2_z_reg < 9'h100);
-    wire [XY_W-1:0] xs_15 = {{15{s2_x_reg[22]}}, s2_x_reg[22:15]};  // x >>> 15
-    wire [XY_W-1:0] ys_15 = {{15{s2_y_reg[22]}}, s2_y_reg[22:15]};  // y >>> 15
-    wire [XY_W-1:0] x_16 = s2_x_reg + (dir_15 ? ~ys_15 : ys_15) + {22'h000000, dir_15};
-    wire [XY_W-1:0] y_16 = s2_y_reg + (dir_15 ? xs_15 : ~xs_15) + {22'h000000, ~dir_15};
+    wire [XY_W-1:0] xs_15 = {{15{s2_x_reg[21]}}, s2_x_reg[21:15]};  // x >>> 15
+    wire [XY_W-1:0] ys_15 = {{15{s2_y_reg[21]}}, s2_y_reg[21:15]};  // y >>> 15
+    wire [XY_W-1:0] x_16 = s2_x_reg + (dir_15 ? ~ys_15 : ys_15) + {21'h000000, dir_15};
+    wire [XY_W-1:0] y_16 = s2_y_reg + (dir_15 ? xs_15 : ~xs_15) + {21'h000000, ~dir_15};
     wire [7:0] z_16 = s2_z_reg[7:0] + (dir_15 ? ~ATAN_15 : ATAN_15) + {7'h00, dir_15};
     // iteration 16: turn counter-clockwise when the remaining angle is >= 0
     wire dir_16 = (z_16 < 8'h80);
-    wire [XY_W-1:0] xs_16 = {{16{x_16[22]}}, x_16[22:16]};  // x >>> 16
-    wire [XY_W-1:0] ys_16 = {{16{y_16[22]}}, y_16[22:16]};  // y >>> 16
-    wire [XY_W-1:0] x_17 = x_16 + (dir_16 ? ~ys_16 : ys_16) + {22'h000000, dir_16};
-    wire [XY_W-1:0] y_17 = y_16 + (dir_16 ? xs_16 : ~xs_16) + {22'h000000, ~dir_16};
+    wire [XY_W-1:0] xs_16 = {{16{x_16[21]}}, x_16[21:16]};  // x >>> 16
+    wire [XY_W-1:0] ys_16 = {{16{y_16[21]}}, y_16[21:16]};  // y >>> 16
+    wire [XY_W-1:0] x_17 = x_16 + (dir_16 ? ~ys_16 : ys_16) + {21'h000000, dir_16};
+    wire [XY_W-1:0] y_17 = y_16 + (dir_16 ? xs_16 : ~xs_16) + {21'h000000, ~dir_16};
     wire [6:0] z_17 = z_16[6:0] + (dir_16 ? ~ATAN_16 : ATAN_16) + {6'h00, dir_16};
     // iteration 17: turn counter-clockwise when the remaining angle is >= 0
     wire dir_17 = (z_17 < 7'h40);
-    wire [XY_W-1:0] xs_17 = {{17{x_17[22]}}, x_17[22:17]};  // x >>> 17
-    wire [XY_W-1:0] ys_17 = {{17{y_17[22]}}, y_17[22:17]};  // y >>> 17
-    wire [XY_W-1:0] x_18 = x_17 + (dir_17 ? ~ys_17 : ys_17) + {22'h000000, dir_17};
-    wire [XY_W-1:0] y_18 = y_17 + (dir_17 ? xs_17 : ~xs_17) + {22'h000000, ~dir_17};
+    wire [XY_W-1:0] xs_17 = {{17{x_17[21]}}, x_17[21:17]};  // x >>> 17
+    wire [XY_W-1:0] ys_17 = {{17{y_17[21]}}, y_17[21:17]};  // y >>> 17
+    wire [XY_W-1:0] x_18 = x_17 + (dir_17 ? ~ys_17 : ys_17) + {21'h000000, dir_17};
+    wire [XY_W-1:0] y_18 = y_17 + (dir_17 ? xs_17 : ~xs_17) + {21'h000000, ~dir_17};
     wire [5:0] z_18 = z_17[5:0] + (dir_17 ? ~ATAN_17 : ATAN_17) + {5'h00, dir_17};
     // iteration 18: turn counter-clockwise when the remaining angle is >= 0
     wire dir_18 = (z_18 < 6'h20);
-    wire [XY_W-1:0] xs_18 = {{18{x_18[22]}}, x_18[22:18]};  // x >>> 18
-    wire [XY_W-1:0] ys_18 = {{18{y_18[22]}}, y_18[22:18]};  // y >>> 18
-    wire [XY_W-1:0] x_19 = x_18 + (dir_18 ? ~ys_18 : ys_18) + {22'h000000, dir_18};
-    wire [XY_W-1:0] y_19 = y_18 + (dir_18 ? xs_18 : ~xs_18) + {22'h000000, ~dir_18};
+    wire [XY_W-1:0] xs_18 = {{18{x_18[21]}}, x_18[21:18]};  // x >>> 18
+    wire [XY_W-1:0] ys_18 = {{18{y_18[21]}}, y_18[21:18]};  // y >>> 18
+    wire [XY_W-1:0] x_19 = x_18 + (dir_18 ? ~ys_18 : ys_18) + {21'h000000, dir_18};
+    wire [XY_W-1:0] y_19 = y_18 + (dir_18 ? xs_18 : ~xs_18) + {21'h000000, ~dir_18};
     wire [4:0] z_19 = z_18[4:0] + (dir_18 ? ~ATAN_18 : ATAN_18) + {4'h0, dir_18};
     // iteration 19: turn counter-clockwise when the remaining angle is >= 0
     wire dir_19 = (z_19 < 5'h10);
-    wire [XY_W-1:0] xs_19 = {{19{x_19[22]}}, x_19[22:19]};  // x >>> 19
-    wire [XY_W-1:0] ys_19 = {{19{y_19[22]}}, y_19[22:19]};  // y >>> 19
-    wire [XY_W-1:0] s3_x = x_19 + (dir_19 ? ~ys_19 : ys_19) + {22'h000000, dir_19};
-    wire [XY_W-1:0] s3_y = y_19 + (dir_19 ? xs_19 : ~xs_19) + {22'h000000, ~dir_19};
+    wire [XY_W-1:0] xs_19 = {{19{x_19[21]}}, x_19[21:19]};  // x >>> 19
+    wire [XY_W-1:0] ys_19 = {{19{y_19[21]}}, y_19[21:19]};  // y >>> 19
+    wire [XY_W-1:0] s3_x = x_19 + (dir_19 ? ~ys_19 : ys_19) + {21'h000000, dir_19};
+    wire [XY_W-1:0] s3_y = y_19 + (dir_19 ? xs_19 : ~xs_19) + {21'h000000, ~dir_19};
 
     // ---- output register: the last iteration's values, held so that rounding and
     // saturation have a clock of their own ----
@@ -334,22 +336,16 @@ module fft1024_twiddle (
     // ---- output: rounding, saturation, buffer ----
     // fin_out_cos: drop 4 bit(s), half_up
     /* verilator lint_off UNUSEDSIGNAL */
-    wire [22:0] fin_out_cos_biased = o_x_reg + 23'h000008;  // half_up: bias below the kept bits
+    wire [21:0] fin_out_cos_biased = o_x_reg + 22'h000008;  // half_up: bias below the kept bits
     /* verilator lint_on UNUSEDSIGNAL */
-    wire [18:0] fin_out_cos_q = fin_out_cos_biased[22:4];
-    // saturate to +-131071
-    wire fin_out_cos_over = ~fin_out_cos_q[18] & fin_out_cos_q[17];
-    wire fin_out_cos_under = fin_out_cos_q[18] & (~fin_out_cos_q[17] | (fin_out_cos_q[17:0] == 18'h20000));
-    wire [17:0] fin_out_cos = fin_out_cos_over ? 18'h1ffff : fin_out_cos_under ? 18'h20001 : fin_out_cos_q[17:0];
+    wire [17:0] fin_out_cos_q = fin_out_cos_biased[21:4];
+    wire [17:0] fin_out_cos = fin_out_cos_q;  // no saturation: every angle code stays within range (header)
     // fin_out_sin: drop 4 bit(s), half_up
     /* verilator lint_off UNUSEDSIGNAL */
-    wire [22:0] fin_out_sin_biased = o_y_reg + 23'h000008;  // half_up: bias below the kept bits
+    wire [21:0] fin_out_sin_biased = o_y_reg + 22'h000008;  // half_up: bias below the kept bits
     /* verilator lint_on UNUSEDSIGNAL */
-    wire [18:0] fin_out_sin_q = fin_out_sin_biased[22:4];
-    // saturate to +-131071
-    wire fin_out_sin_over = ~fin_out_sin_q[18] & fin_out_sin_q[17];
-    wire fin_out_sin_under = fin_out_sin_q[18] & (~fin_out_sin_q[17] | (fin_out_sin_q[17:0] == 18'h20000));
-    wire [17:0] fin_out_sin = fin_out_sin_over ? 18'h1ffff : fin_out_sin_under ? 18'h20001 : fin_out_sin_q[17:0];
+    wire [17:0] fin_out_sin_q = fin_out_sin_biased[21:4];
+    wire [17:0] fin_out_sin = fin_out_sin_q;  // no saturation: every angle code stays within range (header)
     wire fin_valid = o_valid_reg;
     wire [8:0] fin_tag = o_tag_reg;
 

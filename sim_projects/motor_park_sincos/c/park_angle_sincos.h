@@ -10,14 +10,16 @@
  * Printed from the same description of the core as the RTL. This core iterates one sample over
  * 8 clocks, which one pass cannot print, so the model is printed from the pipelined core
  * of the same data path (the same iterations, constants and rounding: the same function).
- * Arithmetic: circular coordinates, rotation mode, 16 iterations, 4 guard bits; x, y 19 bits, z 20 bits.
+ * Arithmetic: circular coordinates, rotation mode, 16 iterations, 4 guard bits; x, y 18 bits, z 20 bits.
  * Gain: compensated (K = 0.60725293510313931731, removed by the start value).
  *
  * Ports (formats)
  *   in_angle       binary angle, 12 bits, 2^12 codes per turn
  *   out_cos        two's complement, 14 bits, amplitude 8191
  *   out_sin        two's complement, 14 bits, amplitude 8191
- *   rounding       half_even where guard bits are dropped; data outputs saturate to +-8191
+ *   rounding       half_even where guard bits are dropped; no saturation: over every one of
+ *                  the 4096 angle codes the outputs stay within +-8191 and x, y within
+ *                  18 bits (evaluated when generated), so that logic would never act
  *
  * Codes: each argument holds a port's code, two's complement where the port is signed
  * (in_angle uint16_t, out_cos int16_t, out_sin int16_t);

@@ -9,8 +9,10 @@
 //   in_angle       binary angle, 16 bits, 2^16 codes per turn
 //   out_cos        two's complement, 16 bits, amplitude 32767
 //   out_sin        two's complement, 16 bits, amplitude 32767
-//   rounding       half_even where guard bits are dropped; data outputs saturate to +-32767
-// Internal widths: x, y 22 bits (5 guard bits); z 23 bits (23 fraction bits of a turn).
+//   rounding       half_even where guard bits are dropped; no saturation: over every one of
+//                  the 65536 angle codes the outputs stay within +-32767 and x, y within
+//                  21 bits (evaluated when generated), so that logic would never act
+// Internal widths: x, y 21 bits (5 guard bits); z 23 bits (23 fraction bits of a turn).
 // Worst error against the ideal, bit-true model: 0.8835 LSB (RMS 0.3143 LSB),
 // measured over every one of the 65536 input codes.
 // Timing: latency 19 clocks from input handshake to output handshake, one
@@ -51,7 +53,7 @@ module ddc_nco_sincos (
     output wire [3:0] out_tag
 );
 
-    localparam XY_W = 22;  // x and y: data bits plus 5 guard bits
+    localparam XY_W = 21;  // x and y: data bits plus 5 guard bits
     localparam Z_W = 23;  // z: 23 fraction bits
 
     // z narrows stage by stage: after iteration i it is within about +-atan(2^-i), so its top
@@ -79,8 +81,8 @@ module ddc_nco_sincos (
     wire advance;
     assign in_ready = advance;
 
-    localparam [21:0] X_START_POS = 22'h09b73b;  // amplitude times K, 5 guard bits
-    localparam [21:0] X_START_NEG = 22'h3648c5;  // the same, negated (fold)
+    localparam [20:0] X_START_POS = 21'h09b73b;  // amplitude times K, 5 guard bits
+    localparam [20:0] X_START_NEG = 21'h1648c5;  // the same, negated (fold)
     // Quadrant fold: an angle in the left half-plane (top two bits differ) is turned by half a
     // turn, which flips its MSB and leaves the top two bits equal, and the vector starts
     // negated instead. What remains is within +-1/4 turn, inside the +-99.88 degree
@@ -88,13 +90,13 @@ module ddc_nco_sincos (
     wire in_fold = in_angle[15] ^ in_angle[14];
     wire [Z_W-1:0] z_start = {in_angle[14], in_angle[14:0], 7'h00};
     wire [XY_W-1:0] x_start = in_fold ? X_START_NEG : X_START_POS;
-    wire [XY_W-1:0] y_start = 22'h000000;
+    wire [XY_W-1:0] y_start = 21'h000000;
 
     // ---- stage 0: iteration 0 ----
     // iteration 0: turn counter-clockwise when the remaining angle is >= 0
     wire dir_0 = (z_start < 23'h400000);
-    wire [XY_W-1:0] s0_x = x_start + (dir_0 ? ~y_start : y_start) + {21'h000000, dir_0};
-    wire [XY_W-1:0] s0_y = y_start + (dir_0 ? x_start : ~x_start) + {21'h000000, ~dir_0};
+    wire [XY_W-1:0] s0_x = x_start + (dir_0 ? ~y_start : y_start) + {20'h00000, dir_0};
+    wire [XY_W-1:0] s0_y = y_start + (dir_0 ? x_start : ~x_start) + {20'h00000, ~dir_0};
     wire [20:0] s0_z = z_start[20:0] + (dir_0 ? ~ATAN_0 : ATAN_0) + {20'h00000, dir_0};
 
     reg s0_valid_reg;
@@ -123,10 +125,10 @@ module ddc_nco_sincos (
     // ---- stage 1: iteration 1 ----
     // iteration 1: turn counter-clockwise when the remaining angle is >= 0
     wire dir_1 = (s0_z_reg < 21'h100000);
-    wire [XY_W-1:0] xs_1 = {{1{s0_x_reg[21]}}, s0_x_reg[21:1]};  // x >>> 1
-    wire [XY_W-1:0] ys_1 = {{1{s0_y_reg[21]}}, s0_y_reg[21:1]};  // y >>> 1
-    wire [XY_W-1:0] s1_x = s0_x_reg + (dir_1 ? ~ys_1 : ys_1) + {21'h000000, dir_1};
-    wire [XY_W-1:0] s1_y = s0_y_reg + (dir_1 ? xs_1 : ~xs_1) + {21'h000000, ~dir_1};
+    wire [XY_W-1:0] xs_1 = {{1{s0_x_reg[20]}}, s0_x_reg[20:1]};  // x >>> 1
+    wire [XY_W-1:0] ys_1 = {{1{s0_y_reg[20]}}, s0_y_reg[20:1]};  // y >>> 1
+    wire [XY_W-1:0] s1_x = s0_x_reg + (dir_1 ? ~ys_1 : ys_1) + {20'h00000, dir_1};
+    wire [XY_W-1:0] s1_y = s0_y_reg + (dir_1 ? xs_1 : ~xs_1) + {20'h00000, ~dir_1};
     wire [20:0] s1_z = s0_z_reg + (dir_1 ? ~ATAN_1 : ATAN_1) + {20'h00000, dir_1};
 
     reg s1_valid_reg;
@@ -155,10 +157,10 @@ module ddc_nco_sincos (
     // ---- stage 2: iteration 2 ----
     // iteration 2: turn counter-clockwise when the remaining angle is >= 0
     wire dir_2 = (s1_z_reg < 21'h100000);
-    wire [XY_W-1:0] xs_2 = {{2{s1_x_reg[21]}}, s1_x_reg[21:2]};  // x >>> 2
-    wire [XY_W-1:0] ys_2 = {{2{s1_y_reg[21]}}, s1_y_reg[21:2]};  // y >>> 2
-    wire [XY_W-1:0] s2_x = s1_x_reg + (dir_2 ? ~ys_2 : ys_2) + {21'h000000, dir_2};
-    wire [XY_W-1:0] s2_y = s1_y_reg + (dir_2 ? xs_2 : ~xs_2) + {21'h000000, ~dir_2};
+    wire [XY_W-1:0] xs_2 = {{2{s1_x_reg[20]}}, s1_x_reg[20:2]};  // x >>> 2
+    wire [XY_W-1:0] ys_2 = {{2{s1_y_reg[20]}}, s1_y_reg[20:2]};  // y >>> 2
+    wire [XY_W-1:0] s2_x = s1_x_reg + (dir_2 ? ~ys_2 : ys_2) + {20'h00000, dir_2};
+    wire [XY_W-1:0] s2_y = s1_y_reg + (dir_2 ? xs_2 : ~xs_2) + {20'h00000, ~dir_2};
     wire [19:0] s2_z = s1_z_reg[19:0] + (dir_2 ? ~ATAN_2 : ATAN_2) + {19'h00000, dir_2};
 
     reg s2_valid_reg;
@@ -187,10 +189,10 @@ module ddc_nco_sincos (
     // ---- stage 3: iteration 3 ----
     // iteration 3: turn counter-clockwise when the remaining angle is >= 0
     wire dir_3 = (s2_z_reg < 20'h80000);
-    wire [XY_W-1:0] xs_3 = {{3{s2_x_reg[21]}}, s2_x_reg[21:3]};  // x >>> 3
-    wire [XY_W-1:0] ys_3 = {{3{s2_y_reg[21]}}, s2_y_reg[21:3]};  // y >>> 3
-    wire [XY_W-1:0] s3_x = s2_x_reg + (dir_3 ? ~ys_3 : ys_3) + {21'h000000, dir_3};
-    wire [XY_W-1:0] s3_y = s2_y_reg + (dir_3 ? xs_3 : ~xs_3) + {21'h000000, ~dir_3};
+    wire [XY_W-1:0] xs_3 = {{3{s2_x_reg[20]}}, s2_x_reg[20:3]};  // x >>> 3
+    wire [XY_W-1:0] ys_3 = {{3{s2_y_reg[20]}}, s2_y_reg[20:3]};  // y >>> 3
+    wire [XY_W-1:0] s3_x = s2_x_reg + (dir_3 ? ~ys_3 : ys_3) + {20'h00000, dir_3};
+    wire [XY_W-1:0] s3_y = s2_y_reg + (dir_3 ? xs_3 : ~xs_3) + {20'h00000, ~dir_3};
     wire [18:0] s3_z = s2_z_reg[18:0] + (dir_3 ? ~ATAN_3 : ATAN_3) + {18'h00000, dir_3};
 
     reg s3_valid_reg;
@@ -219,10 +221,10 @@ module ddc_nco_sincos (
     // ---- stage 4: iteration 4 ----
     // iteration 4: turn counter-clockwise when the remaining angle is >= 0
     wire dir_4 = (s3_z_reg < 19'h40000);
-    wire [XY_W-1:0] xs_4 = {{4{s3_x_reg[21]}}, s3_x_reg[21:4]};  // x >>> 4
-    wire [XY_W-1:0] ys_4 = {{4{s3_y_reg[21]}}, s3_y_reg[21:4]};  // y >>> 4
-    wire [XY_W-1:0] s4_x = s3_x_reg + (dir_4 ? ~ys_4 : ys_4) + {21'h000000, dir_4};
-    wire [XY_W-1:0] s4_y = s3_y_reg + (dir_4 ? xs_4 : ~xs_4) + {21'h000000, ~dir_4};
+    wire [XY_W-1:0] xs_4 = {{4{s3_x_reg[20]}}, s3_x_reg[20:4]};  // x >>> 4
+    wire [XY_W-1:0] ys_4 = {{4{s3_y_reg[20]}}, s3_y_reg[20:4]};  // y >>> 4
+    wire [XY_W-1:0] s4_x = s3_x_reg + (dir_4 ? ~ys_4 : ys_4) + {20'h00000, dir_4};
+    wire [XY_W-1:0] s4_y = s3_y_reg + (dir_4 ? xs_4 : ~xs_4) + {20'h00000, ~dir_4};
     wire [17:0] s4_z = s3_z_reg[17:0] + (dir_4 ? ~ATAN_4 : ATAN_4) + {17'h00000, dir_4};
 
     reg s4_valid_reg;
@@ -251,10 +253,10 @@ module ddc_nco_sincos (
     // ---- stage 5: iteration 5 ----
     // iteration 5: turn counter-clockwise when the remaining angle is >= 0
     wire dir_5 = (s4_z_reg < 18'h20000);
-    wire [XY_W-1:0] xs_5 = {{5{s4_x_reg[21]}}, s4_x_reg[21:5]};  // x >>> 5
-    wire [XY_W-1:0] ys_5 = {{5{s4_y_reg[21]}}, s4_y_reg[21:5]};  // y >>> 5
-    wire [XY_W-1:0] s5_x = s4_x_reg + (dir_5 ? ~ys_5 : ys_5) + {21'h000000, dir_5};
-    wire [XY_W-1:0] s5_y = s4_y_reg + (dir_5 ? xs_5 : ~xs_5) + {21'h000000, ~dir_5};
+    wire [XY_W-1:0] xs_5 = {{5{s4_x_reg[20]}}, s4_x_reg[20:5]};  // x >>> 5
+    wire [XY_W-1:0] ys_5 = {{5{s4_y_reg[20]}}, s4_y_reg[20:5]};  // y >>> 5
+    wire [XY_W-1:0] s5_x = s4_x_reg + (dir_5 ? ~ys_5 : ys_5) + {20'h00000, dir_5};
+    wire [XY_W-1:0] s5_y = s4_y_reg + (dir_5 ? xs_5 : ~xs_5) + {20'h00000, ~dir_5};
     wire [16:0] s5_z = s4_z_reg[16:0] + (dir_5 ? ~ATAN_5 : ATAN_5) + {16'h0000, dir_5};
 
     reg s5_valid_reg;
@@ -283,10 +285,10 @@ module ddc_nco_sincos (
     // ---- stage 6: iteration 6 ----
     // iteration 6: turn counter-clockwise when the remaining angle is >= 0
     wire dir_6 = (s5_z_reg < 17'h10000);
-    wire [XY_W-1:0] xs_6 = {{6{s5_x_reg[21]}}, s5_x_reg[21:6]};  // x >>> 6
-    wire [XY_W-1:0] ys_6 = {{6{s5_y_reg[21]}}, s5_y_reg[21:6]};  // y >>> 6
-    wire [XY_W-1:0] s6_x = s5_x_reg + (dir_6 ? ~ys_6 : ys_6) + {21'h000000, dir_6};
-    wire [XY_W-1:0] s6_y = s5_y_reg + (dir_6 ? xs_6 : ~xs_6) + {21'h000000, ~dir_6};
+    wire [XY_W-1:0] xs_6 = {{6{s5_x_reg[20]}}, s5_x_reg[20:6]};  // x >>> 6
+    wire [XY_W-1:0] ys_6 = {{6{s5_y_reg[20]}}, s5_y_reg[20:6]};  // y >>> 6
+    wire [XY_W-1:0] s6_x = s5_x_reg + (dir_6 ? ~ys_6 : ys_6) + {20'h00000, dir_6};
+    wire [XY_W-1:0] s6_y = s5_y_reg + (dir_6 ? xs_6 : ~xs_6) + {20'h00000, ~dir_6};
     wire [15:0] s6_z = s5_z_reg[15:0] + (dir_6 ? ~ATAN_6 : ATAN_6) + {15'h0000, dir_6};
 
     reg s6_valid_reg;
@@ -315,10 +317,10 @@ module ddc_nco_sincos (
     // ---- stage 7: iteration 7 ----
     // iteration 7: turn counter-clockwise when the remaining angle is >= 0
     wire dir_7 = (s6_z_reg < 16'h8000);
-    wire [XY_W-1:0] xs_7 = {{7{s6_x_reg[21]}}, s6_x_reg[21:7]};  // x >>> 7
-    wire [XY_W-1:0] ys_7 = {{7{s6_y_reg[21]}}, s6_y_reg[21:7]};  // y >>> 7
-    wire [XY_W-1:0] s7_x = s6_x_reg + (dir_7 ? ~ys_7 : ys_7) + {21'h000000, dir_7};
-    wire [XY_W-1:0] s7_y = s6_y_reg + (dir_7 ? xs_7 : ~xs_7) + {21'h000000, ~dir_7};
+    wire [XY_W-1:0] xs_7 = {{7{s6_x_reg[20]}}, s6_x_reg[20:7]};  // x >>> 7
+    wire [XY_W-1:0] ys_7 = {{7{s6_y_reg[20]}}, s6_y_reg[20:7]};  // y >>> 7
+    wire [XY_W-1:0] s7_x = s6_x_reg + (dir_7 ? ~ys_7 : ys_7) + {20'h00000, dir_7};
+    wire [XY_W-1:0] s7_y = s6_y_reg + (dir_7 ? xs_7 : ~xs_7) + {20'h00000, ~dir_7};
     wire [14:0] s7_z = s6_z_reg[14:0] + (dir_7 ? ~ATAN_7 : ATAN_7) + {14'h0000, dir_7};
 
     reg s7_valid_reg;
@@ -347,10 +349,10 @@ module ddc_nco_sincos (
     // ---- stage 8: iteration 8 ----
     // iteration 8: turn counter-clockwise when the remaining angle is >= 0
     wire dir_8 = (s7_z_reg < 15'h4000);
-    wire [XY_W-1:0] xs_8 = {{8{s7_x_reg[21]}}, s7_x_reg[21:8]};  // x >>> 8
-    wire [XY_W-1:0] ys_8 = {{8{s7_y_reg[21]}}, s7_y_reg[21:8]};  // y >>> 8
-    wire [XY_W-1:0] s8_x = s7_x_reg + (dir_8 ? ~ys_8 : ys_8) + {21'h000000, dir_8};
-    wire [XY_W-1:0] s8_y = s7_y_reg + (dir_8 ? xs_8 : ~xs_8) + {21'h000000, ~dir_8};
+    wire [XY_W-1:0] xs_8 = {{8{s7_x_reg[20]}}, s7_x_reg[20:8]};  // x >>> 8
+    wire [XY_W-1:0] ys_8 = {{8{s7_y_reg[20]}}, s7_y_reg[20:8]};  // y >>> 8
+    wire [XY_W-1:0] s8_x = s7_x_reg + (dir_8 ? ~ys_8 : ys_8) + {20'h00000, dir_8};
+    wire [XY_W-1:0] s8_y = s7_y_reg + (dir_8 ? xs_8 : ~xs_8) + {20'h00000, ~dir_8};
     wire [13:0] s8_z = s7_z_reg[13:0] + (dir_8 ? ~ATAN_8 : ATAN_8) + {13'h0000, dir_8};
 
     reg s8_valid_reg;
@@ -379,10 +381,10 @@ module ddc_nco_sincos (
     // ---- stage 9: iteration 9 ----
     // iteration 9: turn counter-clockwise when the remaining angle is >= 0
     wire dir_9 = (s8_z_reg < 14'h2000);
-    wire [XY_W-1:0] xs_9 = {{9{s8_x_reg[21]}}, s8_x_reg[21:9]};  // x >>> 9
-    wire [XY_W-1:0] ys_9 = {{9{s8_y_reg[21]}}, s8_y_reg[21:9]};  // y >>> 9
-    wire [XY_W-1:0] s9_x = s8_x_reg + (dir_9 ? ~ys_9 : ys_9) + {21'h000000, dir_9};
-    wire [XY_W-1:0] s9_y = s8_y_reg + (dir_9 ? xs_9 : ~xs_9) + {21'h000000, ~dir_9};
+    wire [XY_W-1:0] xs_9 = {{9{s8_x_reg[20]}}, s8_x_reg[20:9]};  // x >>> 9
+    wire [XY_W-1:0] ys_9 = {{9{s8_y_reg[20]}}, s8_y_reg[20:9]};  // y >>> 9
+    wire [XY_W-1:0] s9_x = s8_x_reg + (dir_9 ? ~ys_9 : ys_9) + {20'h00000, dir_9};
+    wire [XY_W-1:0] s9_y = s8_y_reg + (dir_9 ? xs_9 : ~xs_9) + {20'h00000, ~dir_9};
     wire [12:0] s9_z = s8_z_reg[12:0] + (dir_9 ? ~ATAN_9 : ATAN_9) + {12'h000, dir_9};
 
     reg s9_valid_reg;
@@ -411,10 +413,10 @@ module ddc_nco_sincos (
     // ---- stage 10: iteration 10 ----
     // iteration 10: turn counter-clockwise when the remaining angle is >= 0
     wire dir_10 = (s9_z_reg < 13'h1000);
-    wire [XY_W-1:0] xs_10 = {{10{s9_x_reg[21]}}, s9_x_reg[21:10]};  // x >>> 10
-    wire [XY_W-1:0] ys_10 = {{10{s9_y_reg[21]}}, s9_y_reg[21:10]};  // y >>> 10
-    wire [XY_W-1:0] s10_x = s9_x_reg + (dir_10 ? ~ys_10 : ys_10) + {21'h000000, dir_10};
-    wire [XY_W-1:0] s10_y = s9_y_reg + (dir_10 ? xs_10 : ~xs_10) + {21'h000000, ~dir_10};
+    wire [XY_W-1:0] xs_10 = {{10{s9_x_reg[20]}}, s9_x_reg[20:10]};  // x >>> 10
+    wire [XY_W-1:0] ys_10 = {{10{s9_y_reg[20]}}, s9_y_reg[20:10]};  // y >>> 10
+    wire [XY_W-1:0] s10_x = s9_x_reg + (dir_10 ? ~ys_10 : ys_10) + {20'h00000, dir_10};
+    wire [XY_W-1:0] s10_y = s9_y_reg + (dir_10 ? xs_10 : ~xs_10) + {20'h00000, ~dir_10};
     wire [11:0] s10_z = s9_z_reg[11:0] + (dir_10 ? ~ATAN_10 : ATAN_10) + {11'h000, dir_10};
 
     reg s10_valid_reg;
@@ -443,10 +445,10 @@ module ddc_nco_sincos (
     // ---- stage 11: iteration 11 ----
     // iteration 11: turn counter-clockwise when the remaining angle is >= 0
     wire dir_11 = (s10_z_reg < 12'h800);
-    wire [XY_W-1:0] xs_11 = {{11{s10_x_reg[21]}}, s10_x_reg[21:11]};  // x >>> 11
-    wire [XY_W-1:0] ys_11 = {{11{s10_y_reg[21]}}, s10_y_reg[21:11]};  // y >>> 11
-    wire [XY_W-1:0] s11_x = s10_x_reg + (dir_11 ? ~ys_11 : ys_11) + {21'h000000, dir_11};
-    wire [XY_W-1:0] s11_y = s10_y_reg + (dir_11 ? xs_11 : ~xs_11) + {21'h000000, ~dir_11};
+    wire [XY_W-1:0] xs_11 = {{11{s10_x_reg[20]}}, s10_x_reg[20:11]};  // x >>> 11
+    wire [XY_W-1:0] ys_11 = {{11{s10_y_reg[20]}}, s10_y_reg[20:11]};  // y >>> 11
+    wire [XY_W-1:0] s11_x = s10_x_reg + (dir_11 ? ~ys_11 : ys_11) + {20'h00000, dir_11};
+    wire [XY_W-1:0] s11_y = s10_y_reg + (dir_11 ? xs_11 : ~xs_11) + {20'h00000, ~dir_11};
     wire [10:0] s11_z = s10_z_reg[10:0] + (dir_11 ? ~ATAN_11 : ATAN_11) + {10'h000, dir_11};
 
     reg s11_valid_reg;
@@ -475,10 +477,10 @@ module ddc_nco_sincos (
     // ---- stage 12: iteration 12 ----
     // iteration 12: turn counter-clockwise when the remaining angle is >= 0
     wire dir_12 = (s11_z_reg < 11'h400);
-    wire [XY_W-1:0] xs_12 = {{12{s11_x_reg[21]}}, s11_x_reg[21:12]};  // x >>> 12
-    wire [XY_W-1:0] ys_12 = {{12{s11_y_reg[21]}}, s11_y_reg[21:12]};  // y >>> 12
-    wire [XY_W-1:0] s12_x = s11_x_reg + (dir_12 ? ~ys_12 : ys_12) + {21'h000000, dir_12};
-    wire [XY_W-1:0] s12_y = s11_y_reg + (dir_12 ? xs_12 : ~xs_12) + {21'h000000, ~dir_12};
+    wire [XY_W-1:0] xs_12 = {{12{s11_x_reg[20]}}, s11_x_reg[20:12]};  // x >>> 12
+    wire [XY_W-1:0] ys_12 = {{12{s11_y_reg[20]}}, s11_y_reg[20:12]};  // y >>> 12
+    wire [XY_W-1:0] s12_x = s11_x_reg + (dir_12 ? ~ys_12 : ys_12) + {20'h00000, dir_12};
+    wire [XY_W-1:0] s12_y = s11_y_reg + (dir_12 ? xs_12 : ~xs_12) + {20'h00000, ~dir_12};
     wire [9:0] s12_z = s11_z_reg[9:0] + (dir_12 ? ~ATAN_12 : ATAN_12) + {9'h000, dir_12};
 
     reg s12_valid_reg;
@@ -507,10 +509,10 @@ module ddc_nco_sincos (
     // ---- stage 13: iteration 13 ----
     // iteration 13: turn counter-clockwise when the remaining angle is >= 0
     wire dir_13 = (s12_z_reg < 10'h200);
-    wire [XY_W-1:0] xs_13 = {{13{s12_x_reg[21]}}, s12_x_reg[21:13]};  // x >>> 13
-    wire [XY_W-1:0] ys_13 = {{13{s12_y_reg[21]}}, s12_y_reg[21:13]};  // y >>> 13
-    wire [XY_W-1:0] s13_x = s12_x_reg + (dir_13 ? ~ys_13 : ys_13) + {21'h000000, dir_13};
-    wire [XY_W-1:0] s13_y = s12_y_reg + (dir_13 ? xs_13 : ~xs_13) + {21'h000000, ~dir_13};
+    wire [XY_W-1:0] xs_13 = {{13{s12_x_reg[20]}}, s12_x_reg[20:13]};  // x >>> 13
+    wire [XY_W-1:0] ys_13 = {{13{s12_y_reg[20]}}, s12_y_reg[20:13]};  // y >>> 13
+    wire [XY_W-1:0] s13_x = s12_x_reg + (dir_13 ? ~ys_13 : ys_13) + {20'h00000, dir_13};
+    wire [XY_W-1:0] s13_y = s12_y_reg + (dir_13 ? xs_13 : ~xs_13) + {20'h00000, ~dir_13};
     wire [8:0] s13_z = s12_z_reg[8:0] + (dir_13 ? ~ATAN_13 : ATAN_13) + {8'h00, dir_13};
 
     reg s13_valid_reg;
@@ -539,10 +541,10 @@ module ddc_nco_sincos (
     // ---- stage 14: iteration 14 ----
     // iteration 14: turn counter-clockwise when the remaining angle is >= 0
     wire dir_14 = (s13_z_reg < 9'h100);
-    wire [XY_W-1:0] xs_14 = {{14{s13_x_reg[21]}}, s13_x_reg[21:14]};  // x >>> 14
-    wire [XY_W-1:0] ys_14 = {{14{s13_y_reg[21]}}, s13_y_reg[21:14]};  // y >>> 14
-    wire [XY_W-1:0] s14_x = s13_x_reg + (dir_14 ? ~ys_14 : ys_14) + {21'h000000, dir_14};
-    wire [XY_W-1:0] s14_y = s13_y_reg + (dir_14 ? xs_14 : ~xs_14) + {21'h000000, ~dir_14};
+    wire [XY_W-1:0] xs_14 = {{14{s13_x_reg[20]}}, s13_x_reg[20:14]};  // x >>> 14
+    wire [XY_W-1:0] ys_14 = {{14{s13_y_reg[20]}}, s13_y_reg[20:14]};  // y >>> 14
+    wire [XY_W-1:0] s14_x = s13_x_reg + (dir_14 ? ~ys_14 : ys_14) + {20'h00000, dir_14};
+    wire [XY_W-1:0] s14_y = s13_y_reg + (dir_14 ? xs_14 : ~xs_14) + {20'h00000, ~dir_14};
     wire [7:0] s14_z = s13_z_reg[7:0] + (dir_14 ? ~ATAN_14 : ATAN_14) + {7'h00, dir_14};
 
     reg s14_valid_reg;
@@ -571,10 +573,10 @@ module ddc_nco_sincos (
     // ---- stage 15: iteration 15 ----
     // iteration 15: turn counter-clockwise when the remaining angle is >= 0
     wire dir_15 = (s14_z_reg < 8'h80);
-    wire [XY_W-1:0] xs_15 = {{15{s14_x_reg[21]}}, s14_x_reg[21:15]};  // x >>> 15
-    wire [XY_W-1:0] ys_15 = {{15{s14_y_reg[21]}}, s14_y_reg[21:15]};  // y >>> 15
-    wire [XY_W-1:0] s15_x = s14_x_reg + (dir_15 ? ~ys_15 : ys_15) + {21'h000000, dir_15};
-    wire [XY_W-1:0] s15_y = s14_y_reg + (dir_15 ? xs_15 : ~xs_15) + {21'h000000, ~dir_15};
+    wire [XY_W-1:0] xs_15 = {{15{s14_x_reg[20]}}, s14_x_reg[20:15]};  // x >>> 15
+    wire [XY_W-1:0] ys_15 = {{15{s14_y_reg[20]}}, s14_y_reg[20:15]};  // y >>> 15
+    wire [XY_W-1:0] s15_x = s14_x_reg + (dir_15 ? ~ys_15 : ys_15) + {20'h00000, dir_15};
+    wire [XY_W-1:0] s15_y = s14_y_reg + (dir_15 ? xs_15 : ~xs_15) + {20'h00000, ~dir_15};
     wire [6:0] s15_z = s14_z_reg[6:0] + (dir_15 ? ~ATAN_15 : ATAN_15) + {6'h00, dir_15};
 
     reg s15_valid_reg;
@@ -603,10 +605,10 @@ module ddc_nco_sincos (
     // ---- stage 16: iteration 16 ----
     // iteration 16: turn counter-clockwise when the remaining angle is >= 0
     wire dir_16 = (s15_z_reg < 7'h40);
-    wire [XY_W-1:0] xs_16 = {{16{s15_x_reg[21]}}, s15_x_reg[21:16]};  // x >>> 16
-    wire [XY_W-1:0] ys_16 = {{16{s15_y_reg[21]}}, s15_y_reg[21:16]};  // y >>> 16
-    wire [XY_W-1:0] s16_x = s15_x_reg + (dir_16 ? ~ys_16 : ys_16) + {21'h000000, dir_16};
-    wire [XY_W-1:0] s16_y = s15_y_reg + (dir_16 ? xs_16 : ~xs_16) + {21'h000000, ~dir_16};
+    wire [XY_W-1:0] xs_16 = {{16{s15_x_reg[20]}}, s15_x_reg[20:16]};  // x >>> 16
+    wire [XY_W-1:0] ys_16 = {{16{s15_y_reg[20]}}, s15_y_reg[20:16]};  // y >>> 16
+    wire [XY_W-1:0] s16_x = s15_x_reg + (dir_16 ? ~ys_16 : ys_16) + {20'h00000, dir_16};
+    wire [XY_W-1:0] s16_y = s15_y_reg + (dir_16 ? xs_16 : ~xs_16) + {20'h00000, ~dir_16};
     wire [5:0] s16_z = s15_z_reg[5:0] + (dir_16 ? ~ATAN_16 : ATAN_16) + {5'h00, dir_16};
 
     reg s16_valid_reg;
@@ -635,10 +637,10 @@ module ddc_nco_sincos (
     // ---- stage 17: iteration 17 ----
     // iteration 17: turn counter-clockwise when the remaining angle is >= 0
     wire dir_17 = (s16_z_reg < 6'h20);
-    wire [XY_W-1:0] xs_17 = {{17{s16_x_reg[21]}}, s16_x_reg[21:17]};  // x >>> 17
-    wire [XY_W-1:0] ys_17 = {{17{s16_y_reg[21]}}, s16_y_reg[21:17]};  // y >>> 17
-    wire [XY_W-1:0] s17_x = s16_x_reg + (dir_17 ? ~ys_17 : ys_17) + {21'h000000, dir_17};
-    wire [XY_W-1:0] s17_y = s16_y_reg + (dir_17 ? xs_17 : ~xs_17) + {21'h000000, ~dir_17};
+    wire [XY_W-1:0] xs_17 = {{17{s16_x_reg[20]}}, s16_x_reg[20:17]};  // x >>> 17
+    wire [XY_W-1:0] ys_17 = {{17{s16_y_reg[20]}}, s16_y_reg[20:17]};  // y >>> 17
+    wire [XY_W-1:0] s17_x = s16_x_reg + (dir_17 ? ~ys_17 : ys_17) + {20'h00000, dir_17};
+    wire [XY_W-1:0] s17_y = s16_y_reg + (dir_17 ? xs_17 : ~xs_17) + {20'h00000, ~dir_17};
 
     // ---- output register: the last iteration's values, held so that rounding and
     // saturation have a clock of their own ----
@@ -666,22 +668,16 @@ module ddc_nco_sincos (
     // ---- output: rounding, saturation, buffer ----
     // fin_out_cos: drop 5 bit(s), half_even
     /* verilator lint_off UNUSEDSIGNAL */
-    wire [21:0] fin_out_cos_biased = o_x_reg + 22'h00000f + {21'h000000, o_x_reg[5]};  // half_even: bias below the kept bits
+    wire [20:0] fin_out_cos_biased = o_x_reg + 21'h00000f + {20'h00000, o_x_reg[5]};  // half_even: bias below the kept bits
     /* verilator lint_on UNUSEDSIGNAL */
-    wire [16:0] fin_out_cos_q = fin_out_cos_biased[21:5];
-    // saturate to +-32767
-    wire fin_out_cos_over = ~fin_out_cos_q[16] & fin_out_cos_q[15];
-    wire fin_out_cos_under = fin_out_cos_q[16] & (~fin_out_cos_q[15] | (fin_out_cos_q[15:0] == 16'h8000));
-    wire [15:0] fin_out_cos = fin_out_cos_over ? 16'h7fff : fin_out_cos_under ? 16'h8001 : fin_out_cos_q[15:0];
+    wire [15:0] fin_out_cos_q = fin_out_cos_biased[20:5];
+    wire [15:0] fin_out_cos = fin_out_cos_q;  // no saturation: every angle code stays within range (header)
     // fin_out_sin: drop 5 bit(s), half_even
     /* verilator lint_off UNUSEDSIGNAL */
-    wire [21:0] fin_out_sin_biased = o_y_reg + 22'h00000f + {21'h000000, o_y_reg[5]};  // half_even: bias below the kept bits
+    wire [20:0] fin_out_sin_biased = o_y_reg + 21'h00000f + {20'h00000, o_y_reg[5]};  // half_even: bias below the kept bits
     /* verilator lint_on UNUSEDSIGNAL */
-    wire [16:0] fin_out_sin_q = fin_out_sin_biased[21:5];
-    // saturate to +-32767
-    wire fin_out_sin_over = ~fin_out_sin_q[16] & fin_out_sin_q[15];
-    wire fin_out_sin_under = fin_out_sin_q[16] & (~fin_out_sin_q[15] | (fin_out_sin_q[15:0] == 16'h8000));
-    wire [15:0] fin_out_sin = fin_out_sin_over ? 16'h7fff : fin_out_sin_under ? 16'h8001 : fin_out_sin_q[15:0];
+    wire [15:0] fin_out_sin_q = fin_out_sin_biased[20:5];
+    wire [15:0] fin_out_sin = fin_out_sin_q;  // no saturation: every angle code stays within range (header)
     wire fin_valid = o_valid_reg;
     wire [3:0] fin_tag = o_tag_reg;
 
