@@ -44,6 +44,9 @@ MAX_HEADER_LINE = 200
 """Characters of a config line copied into the RTL header; a longer line is cut there. Icarus
 Verilog 11 stops with "input buffer overflow" on a line of about 16 KiB (16,382 bytes passed,
 16,383 failed, measured here); config.toml in the project keeps every line whole."""
+#: Iterations a sine/cosine pipeline forms x and y for from a table (:meth:`_Core.table_head`):
+#: 3 makes a 4-input function of the fold and three directions, one LUT4 per bit.
+TABLE_HEAD_ITERATIONS = 3
 
 
 def header_lines(config_text: str) -> list[str]:
@@ -224,14 +227,18 @@ class _Core:
         x_low: int = 0,
         skip_x: bool = False,
         x_keep_low: int = 0,
+        z_alone: bool = False,
     ) -> tuple[Sig | None, Sig | None, Sig | None, Final]:
         """One iteration; returns the values it formed for the next one (x, y, z; x's kept bits
-        where only those are formed) and, as a :class:`Final`, what the output logic reads."""
+        where only those are formed) and, as a :class:`Final`, what the output logic reads.
+        ``z_alone``: only the direction and z (the table head forms x and y later)."""
         dp, b, W, ZW = self.dp, self.b, self.b.W, self.b.ZW
         x_in, y_in, z_in = src
         x_out, y_out, z_out = dst
         if final:
             x_out, y_out, z_out = (n if keep else "" for n, keep in zip(dst, self.final_needs, strict=True))
+        if z_alone:
+            x_out = y_out = ""
         if skip_x:
             x_out = ""
         if not self.has_y:
@@ -556,8 +563,15 @@ class _Core:
         self.front_tag: Expr | None = b.sig("in_tag") if self.tag else None
         self.front_count = 0
         b.front = lambda values: self.front_stage(values, advance)
+        head = self.table_head()
+        b.start_table = head > 0
         start = self.fn.hw_inputs(b, dp)
+        b.start_table = False
         b.front = None
+        head_bits: list[Expr] = []
+        if head:
+            assert start.select is not None and len(start.vectors) == 2
+            head_bits.append(start.select)
         if self.front_count != self.design.timing.front:
             raise AssertionError(
                 f"the input logic took {self.front_count} register stage(s); its timing says {self.design.timing.front}"
@@ -580,7 +594,16 @@ class _Core:
                 fx, fy, fz, final = self.iteration(
                     _Step(f"{i}", i, dp.shifts[i], self.angle(i)), src, dst,
                     final=i == n - 1, x_low=x_low, skip_x=z_only and i == n - 2, x_keep_low=keep_low,
+                    z_alone=i < head,
                 )
+                if i < head:
+                    head_bits.append(b.sig(f"dir_{i}"))
+                    if i == head - 1:
+                        tx, ty = self.head_table(start.vectors, head_bits, dst)
+                        src = (tx, ty, fz)
+                    else:
+                        src = (None, None, fz)
+                    continue
                 if keep_low:
                     assert fx is not None
                     src = (fx, fy, fz)
@@ -590,7 +613,10 @@ class _Core:
             if k == len(bounds) - 1:
                 break
             x_reg_width, x_reg_src = W, src[0]
-            if linear:
+            in_head = src[0] is None and head > 0  # the fold and directions travel, not x and y
+            if in_head:
+                x_reg_width = 0
+            elif linear:
                 # x is held: the next stages shift it by at least their first index, so only the
                 # bits from there up travel on; a last stage that holds only the final vectoring
                 # iteration (which forms z alone) needs no x at all.
@@ -613,11 +639,19 @@ class _Core:
                 m.add(Reg(xr))
                 loads.append((xr, x_reg_src))  # type: ignore[arg-type]
                 new_src[0] = xr
-            if self.has_y:
+            if self.has_y and not in_head:
                 yr = b.reg(f"s{k}_y_reg", W, of="xy")
                 m.add(Reg(yr))
                 loads.append((yr, src[1]))  # type: ignore[arg-type]
                 new_src[1] = yr
+            if in_head:
+                held: list[Expr] = []
+                for j, bit in enumerate(head_bits):
+                    r = b.known(Sig(f"s{k}_fold_reg" if j == 0 else f"s{k}_dir{j - 1}_reg", 1))
+                    m.add(Reg(r))
+                    loads.append((r, bit))
+                    held.append(r)
+                head_bits = held
             if self.has_z:
                 zr = b.reg(f"s{k}_z_reg", src[2].width, of="z")  # type: ignore[union-attr]
                 m.add(Reg(zr))
@@ -644,6 +678,57 @@ class _Core:
         self.output_stage(final, side_prev, valid_prev, tag_prev)
         if advance is not None:
             m.add(Assign(advance, b.sig("ready_reg")))
+
+    def table_head(self) -> int:
+        """How many first iterations a pipeline forms x and y for from a table (0: none).
+
+        In rotation mode z alone decides every direction, so when the start vector is one of
+        two constants (the sine/cosine fold) the x and y after iteration h are a function of
+        h + 1 bits: the fold and the first h directions. With h = TABLE_HEAD_ITERATIONS that is
+        a 4-input function, one LUT4 per bit, in place of h iterations' adders and registers;
+        the table holds what those iterations compute, in their own arithmetic, so every bit
+        is the same (tests/test_netlist.py evaluates every input of small cores).
+        """
+        dp = self.dp
+        if not (self.fn.start_table and dp.mode == "rotation" and dp.coordinates == "circular"):
+            return 0
+        return max(0, min(TABLE_HEAD_ITERATIONS, dp.iterations - 2))
+
+    def head_table(self, vectors: tuple[tuple[int, int], ...], bits: list[Expr], dst: tuple[str, str, str]) -> tuple[Sig, Sig]:
+        """x and y after the head's iterations, picked by the fold and its directions."""
+        dp, b, W = self.dp, self.b, self.b.W
+        h = len(bits) - 1
+        mask = (1 << W) - 1
+        xs: list[int] = []
+        ys: list[int] = []
+        for code in range(1 << (h + 1)):
+            x, y = vectors[code & 1]
+            for i in range(h):
+                s = dp.shifts[i]
+                # counter-clockwise (the direction bit set, z >= 0): x - y/2^s, y + x/2^s
+                if code >> (i + 1) & 1:
+                    x, y = x - (y >> s), y + (x >> s)
+                else:
+                    x, y = x + (y >> s), y - (x >> s)
+            xs.append(x & mask)
+            ys.append(y & mask)
+
+        def tree(values: list[int], j: int) -> Expr:
+            if len(set(values)) == 1:
+                return Const(values[0], W)
+            ones = [v for c, v in enumerate(values) if c >> j & 1]
+            zeros = [v for c, v in enumerate(values) if not c >> j & 1]
+            return Mux(bits[j], tree(ones, j - 1), tree(zeros, j - 1))
+
+        b.note(
+            f"x and y after iteration {h - 1} depend only on the fold and the directions of iterations\n"
+            f"0 to {h - 1} (z alone decides them): read from a table of the {1 << (h + 1)} cases, computed\n"
+            "with the iterations' own arithmetic, instead of adding."
+        )
+        # tree() reads bit j of the case index as bits[j]: fold first, then each direction
+        tx = b.wire(dst[0], tree(xs, h), of="xy")
+        ty = b.wire(dst[1], tree(ys, h), of="xy")
+        return tx, ty
 
     def front_stage(self, values: dict[str, Expr], advance: Sig | None) -> dict[str, Sig]:
         """One register stage of the input logic: ``values`` (name -> value), the sample's valid

@@ -39,12 +39,20 @@ __all__ = ["Builder", "Final", "Start", "sign_shift"]
 @dataclass
 class Start:
     """What the input logic hands the iterations: the start values (x, y, z) and the values
-    that travel with the sample (name -> the signal that forms it)."""
+    that travel with the sample (name -> the signal that forms it).
 
-    x: Expr
+    A start vector that is one of a few constants (sine/cosine: (+-x_start, 0) by the fold)
+    may instead be given as the bit that picks it (``select``) and the constant vectors
+    (``vectors[select]``), with ``x`` and ``y`` None: when the builder asked for that
+    (:attr:`Builder.start_table`), a pipeline forms the first iterations' x and y from a table.
+    """
+
+    x: Expr | None
     y: Expr | None
     z: Expr | None
     side: dict[str, Expr] = field(default_factory=dict)
+    select: Expr | None = None
+    vectors: tuple[tuple[int, int], ...] = ()
 
 
 @dataclass
@@ -94,6 +102,10 @@ class Builder:
         self.signals: dict[str, Sig] = {}
         self.params: dict[str, Param] = {}
         self.front: Callable[[dict[str, Expr]], dict[str, Sig]] | None = None
+        self.start_table = False
+        """Set by a pipeline that forms its first iterations' x and y from a table: a function
+        whose start vector is one of a few constants hands back the select and the vectors
+        (:class:`Start`) instead of forming the vector."""
         """Set by a pipeline while the function's input logic is built: registers values at a
         stage boundary of that logic (:meth:`stage`)."""
 

@@ -35,7 +35,10 @@ SMALL = {
     "nco": {"data_width": 8, "angle_width": 8, "acc_width": 12, "dither_width": 2},
 }
 VARIANTS = {
-    "sincos": [{}, {"gain": "raw"}, {"angle_unit": "radians"}, {"handshake": "valid_only"}],
+    # depths 2 and 5: the table head (the first iterations' x and y read from a table) inside
+    # one stage, and crossing stage registers that hold the fold and the directions
+    "sincos": [{}, {"gain": "raw"}, {"angle_unit": "radians"}, {"handshake": "valid_only"}, {"pipeline_depth": 2},
+               {"pipeline_depth": 5}],
     "rotate": [{}, {"gain": "raw", "angle_unit": "radians", "angle_width": 6}],
     "atan2": [{}, {"prenormalise": False}, {"gain": "raw", "angle_unit": "radians"}],
     "sinhcosh": [{}, {"gain": "raw"}],

@@ -399,6 +399,11 @@ class Function:
         """The phase accumulator in front of the iterations, for a function that has one."""
         return None
 
+    #: Whether the start vector is one of a few constants that the input logic can hand back
+    #: as a select and its vectors (:class:`benchgen.hwlib.Start`), so that a pipeline reads
+    #: the first iterations' x and y from a table (sine/cosine).
+    start_table: ClassVar[bool] = False
+
     def proved_range(self, dp: Datapath) -> Datapath:
         """``dp`` without logic that no input can reach, where every input proves it so.
 

@@ -74,6 +74,7 @@ class SinCos(CircularFunction):
     mode: ClassVar[str] = "rotation"
     summary: ClassVar[str] = "cosine and sine of a binary or radian angle (circular rotation)"
     synonyms: ClassVar[tuple[str, ...]] = ("sin", "cos", "sine", "cosine")
+    start_table: ClassVar[bool] = True
     spectral: ClassVar[bool] = True
 
     def datapath(self, spec: CoreSpec, iterations: int, guard_bits: int) -> CircularDatapath:
@@ -242,6 +243,9 @@ class SinCos(CircularFunction):
     def hw_inputs(self, b: Builder, dp: Datapath) -> Start:
         assert isinstance(dp, CircularDatapath)
         W = dp.xy_width
+        if b.start_table:
+            fold, z = self.hw_fold(b, dp)
+            return Start(None, None, z, select=fold, vectors=((dp.x_start, 0), (-dp.x_start, 0)))
         what = " times K" if dp.gain_mode == "compensated" else " (raw gain)"
         pos = b.param("X_START_POS", dp.x_start, W, f"amplitude{what}, {dp.guard_bits} guard bits")
         neg = b.param("X_START_NEG", -dp.x_start, W, "the same, negated (fold)")

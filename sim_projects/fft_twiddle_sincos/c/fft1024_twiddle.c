@@ -61,8 +61,6 @@ static const uint64_t ATAN_15 = UINT64_C(0x51); /* atan(2^-15) in turns */
 static const uint64_t ATAN_16 = UINT64_C(0x29); /* atan(2^-16) in turns */
 static const uint64_t ATAN_17 = UINT64_C(0x14); /* atan(2^-17) in turns */
 static const uint64_t ATAN_18 = UINT64_C(0xa); /* atan(2^-18) in turns */
-static const uint64_t X_START_POS = UINT64_C(0x136e94); /* amplitude times K, 4 guard bits */
-static const uint64_t X_START_NEG = UINT64_C(0x2c916c); /* the same, negated (fold) */
 
 /* The w-bit two's complement code v as a number (no implementation-defined conversion). */
 static int64_t bg_signed(uint64_t v, unsigned w)
@@ -83,29 +81,22 @@ void fft1024_twiddle_model(uint16_t in_angle, int32_t *out_cos, int32_t *out_sin
     /* convergence range. */
     const uint64_t in_fold = ((in_angle_bits >> 9) ^ ((in_angle_bits >> 8) & UINT64_C(1)));
     const uint64_t z_start = ((((((in_angle_bits >> 8) & UINT64_C(1)) << 9) | (in_angle_bits & UINT64_C(0x1ff))) << 14) | UINT64_C(0));
-    const uint64_t x_start = (in_fold ? X_START_NEG : X_START_POS);
-    const uint64_t y_start = UINT64_C(0);
 
     /* ---- stage 0: iterations 0 to 4 ---- */
     /* iteration 0: turn counter-clockwise when the remaining angle is >= 0 */
     const uint64_t dir_0 = (uint64_t)(z_start < UINT64_C(0x800000));
-    const uint64_t x_1 = ((x_start + (dir_0 ? ((~y_start) & UINT64_C(0x3fffff)) : y_start) + dir_0) & UINT64_C(0x3fffff));
-    const uint64_t y_1 = ((y_start + (dir_0 ? x_start : ((~x_start) & UINT64_C(0x3fffff))) + ((~dir_0) & UINT64_C(1))) & UINT64_C(0x3fffff));
     const uint64_t z_1 = (((z_start & UINT64_C(0x3fffff)) + (dir_0 ? ((~ATAN_0) & UINT64_C(0x3fffff)) : ATAN_0) + dir_0) & UINT64_C(0x3fffff));
     /* iteration 1: turn counter-clockwise when the remaining angle is >= 0 */
     const uint64_t dir_1 = (uint64_t)(z_1 < UINT64_C(0x200000));
-    const uint64_t xs_1 = ((((x_1 >> 21) ? UINT64_C(1) : UINT64_C(0)) << 21) | (x_1 >> 1)); /* x >>> 1 */
-    const uint64_t ys_1 = ((((y_1 >> 21) ? UINT64_C(1) : UINT64_C(0)) << 21) | (y_1 >> 1)); /* y >>> 1 */
-    const uint64_t x_2 = ((x_1 + (dir_1 ? ((~ys_1) & UINT64_C(0x3fffff)) : ys_1) + dir_1) & UINT64_C(0x3fffff));
-    const uint64_t y_2 = ((y_1 + (dir_1 ? xs_1 : ((~xs_1) & UINT64_C(0x3fffff))) + ((~dir_1) & UINT64_C(1))) & UINT64_C(0x3fffff));
     const uint64_t z_2 = ((z_1 + (dir_1 ? ((~ATAN_1) & UINT64_C(0x3fffff)) : ATAN_1) + dir_1) & UINT64_C(0x3fffff));
     /* iteration 2: turn counter-clockwise when the remaining angle is >= 0 */
     const uint64_t dir_2 = (uint64_t)(z_2 < UINT64_C(0x200000));
-    const uint64_t xs_2 = ((((x_2 >> 21) ? UINT64_C(3) : UINT64_C(0)) << 20) | (x_2 >> 2)); /* x >>> 2 */
-    const uint64_t ys_2 = ((((y_2 >> 21) ? UINT64_C(3) : UINT64_C(0)) << 20) | (y_2 >> 2)); /* y >>> 2 */
-    const uint64_t x_3 = ((x_2 + (dir_2 ? ((~ys_2) & UINT64_C(0x3fffff)) : ys_2) + dir_2) & UINT64_C(0x3fffff));
-    const uint64_t y_3 = ((y_2 + (dir_2 ? xs_2 : ((~xs_2) & UINT64_C(0x3fffff))) + ((~dir_2) & UINT64_C(1))) & UINT64_C(0x3fffff));
     const uint64_t z_3 = (((z_2 & UINT64_C(0x1fffff)) + (dir_2 ? ((~ATAN_2) & UINT64_C(0x1fffff)) : ATAN_2) + dir_2) & UINT64_C(0x1fffff));
+    /* x and y after iteration 2 depend only on the fold and the directions of iterations */
+    /* 0 to 2 (z alone decides them): read from a table of the 16 cases, computed */
+    /* with the iterations' own arithmetic, instead of adding. */
+    const uint64_t x_3 = (dir_2 ? (dir_1 ? (dir_0 ? (in_fold ? UINT64_C(0x3d922e) : UINT64_C(0x26dd3)) : (in_fold ? UINT64_C(0x206c50) : UINT64_C(0x1f93b1))) : (dir_0 ? (in_fold ? UINT64_C(0x2547f5) : UINT64_C(0x1ab80c)) : (in_fold ? UINT64_C(0x2eff3f) : UINT64_C(0x1100c2)))) : (dir_1 ? (dir_0 ? (in_fold ? UINT64_C(0x2eff3e) : UINT64_C(0x1100c1)) : (in_fold ? UINT64_C(0x2547f4) : UINT64_C(0x1ab80b))) : (dir_0 ? (in_fold ? UINT64_C(0x206c4f) : UINT64_C(0x1f93b0)) : (in_fold ? UINT64_C(0x3d922d) : UINT64_C(0x26dd2)))));
+    const uint64_t y_3 = (dir_2 ? (dir_1 ? (dir_0 ? (in_fold ? UINT64_C(0x206c4f) : UINT64_C(0x1f93b0)) : (in_fold ? UINT64_C(0x26dd2) : UINT64_C(0x3d922d))) : (dir_0 ? (in_fold ? UINT64_C(0x2eff3e) : UINT64_C(0x1100c1)) : (in_fold ? UINT64_C(0x1ab80b) : UINT64_C(0x2547f4)))) : (dir_1 ? (dir_0 ? (in_fold ? UINT64_C(0x2547f5) : UINT64_C(0x1ab80c)) : (in_fold ? UINT64_C(0x1100c2) : UINT64_C(0x2eff3f))) : (dir_0 ? (in_fold ? UINT64_C(0x3d922e) : UINT64_C(0x26dd3)) : (in_fold ? UINT64_C(0x1f93b1) : UINT64_C(0x206c50)))));
     /* iteration 3: turn counter-clockwise when the remaining angle is >= 0 */
     const uint64_t dir_3 = (uint64_t)(z_3 < UINT64_C(0x100000));
     const uint64_t xs_3 = ((((x_3 >> 21) ? UINT64_C(7) : UINT64_C(0)) << 19) | (x_3 >> 3)); /* x >>> 3 */

@@ -85,37 +85,28 @@ module fft1024_twiddle (
     wire advance;
     assign in_ready = advance;
 
-    localparam [21:0] X_START_POS = 22'h136e94;  // amplitude times K, 4 guard bits
-    localparam [21:0] X_START_NEG = 22'h2c916c;  // the same, negated (fold)
     // Quadrant fold: an angle in the left half-plane (top two bits differ) is turned by half a
     // turn, which flips its MSB and leaves the top two bits equal, and the vector starts
     // negated instead. What remains is within +-1/4 turn, inside the +-99.88 degree
     // convergence range.
     wire in_fold = in_angle[9] ^ in_angle[8];
     wire [Z_W-1:0] z_start = {in_angle[8], in_angle[8:0], 14'h0000};
-    wire [XY_W-1:0] x_start = in_fold ? X_START_NEG : X_START_POS;
-    wire [XY_W-1:0] y_start = 22'h000000;
 
     // ---- stage 0: iterations 0 to 4 ----
     // iteration 0: turn counter-clockwise when the remaining angle is >= 0
     wire dir_0 = (z_start < 24'h800000);
-    wire [XY_W-1:0] x_1 = x_start + (dir_0 ? ~y_start : y_start) + {21'h000000, dir_0};
-    wire [XY_W-1:0] y_1 = y_start + (dir_0 ? x_start : ~x_start) + {21'h000000, ~dir_0};
     wire [21:0] z_1 = z_start[21:0] + (dir_0 ? ~ATAN_0 : ATAN_0) + {21'h000000, dir_0};
     // iteration 1: turn counter-clockwise when the remaining angle is >= 0
     wire dir_1 = (z_1 < 22'h200000);
-    wire [XY_W-1:0] xs_1 = {{1{x_1[21]}}, x_1[21:1]};  // x >>> 1
-    wire [XY_W-1:0] ys_1 = {{1{y_1[21]}}, y_1[21:1]};  // y >>> 1
-    wire [XY_W-1:0] x_2 = x_1 + (dir_1 ? ~ys_1 : ys_1) + {21'h000000, dir_1};
-    wire [XY_W-1:0] y_2 = y_1 + (dir_1 ? xs_1 : ~xs_1) + {21'h000000, ~dir_1};
     wire [21:0] z_2 = z_1 + (dir_1 ? ~ATAN_1 : ATAN_1) + {21'h000000, dir_1};
     // iteration 2: turn counter-clockwise when the remaining angle is >= 0
     wire dir_2 = (z_2 < 22'h200000);
-    wire [XY_W-1:0] xs_2 = {{2{x_2[21]}}, x_2[21:2]};  // x >>> 2
-    wire [XY_W-1:0] ys_2 = {{2{y_2[21]}}, y_2[21:2]};  // y >>> 2
-    wire [XY_W-1:0] x_3 = x_2 + (dir_2 ? ~ys_2 : ys_2) + {21'h000000, dir_2};
-    wire [XY_W-1:0] y_3 = y_2 + (dir_2 ? xs_2 : ~xs_2) + {21'h000000, ~dir_2};
     wire [20:0] z_3 = z_2[20:0] + (dir_2 ? ~ATAN_2 : ATAN_2) + {20'h00000, dir_2};
+    // x and y after iteration 2 depend only on the fold and the directions of iterations
+    // 0 to 2 (z alone decides them): read from a table of the 16 cases, computed
+    // with the iterations' own arithmetic, instead of adding.
+    wire [XY_W-1:0] x_3 = dir_2 ? dir_1 ? dir_0 ? in_fold ? 22'h3d922e : 22'h026dd3 : in_fold ? 22'h206c50 : 22'h1f93b1 : dir_0 ? in_fold ? 22'h2547f5 : 22'h1ab80c : in_fold ? 22'h2eff3f : 22'h1100c2 : dir_1 ? dir_0 ? in_fold ? 22'h2eff3e : 22'h1100c1 : in_fold ? 22'h2547f4 : 22'h1ab80b : dir_0 ? in_fold ? 22'h206c4f : 22'h1f93b0 : in_fold ? 22'h3d922d : 22'h026dd2;
+    wire [XY_W-1:0] y_3 = dir_2 ? dir_1 ? dir_0 ? in_fold ? 22'h206c4f : 22'h1f93b0 : in_fold ? 22'h026dd2 : 22'h3d922d : dir_0 ? in_fold ? 22'h2eff3e : 22'h1100c1 : in_fold ? 22'h1ab80b : 22'h2547f4 : dir_1 ? dir_0 ? in_fold ? 22'h2547f5 : 22'h1ab80c : in_fold ? 22'h1100c2 : 22'h2eff3f : dir_0 ? in_fold ? 22'h3d922e : 22'h026dd3 : in_fold ? 22'h1f93b1 : 22'h206c50;
     // iteration 3: turn counter-clockwise when the remaining angle is >= 0
     wire dir_3 = (z_3 < 21'h100000);
     wire [XY_W-1:0] xs_3 = {{3{x_3[21]}}, x_3[21:3]};  // x >>> 3

@@ -59,8 +59,6 @@ static const uint64_t ATAN_11 = UINT64_C(0x51); /* atan(2^-11) in turns */
 static const uint64_t ATAN_12 = UINT64_C(0x29); /* atan(2^-12) in turns */
 static const uint64_t ATAN_13 = UINT64_C(0x14); /* atan(2^-13) in turns */
 static const uint64_t ATAN_14 = UINT64_C(0xa); /* atan(2^-14) in turns */
-static const uint64_t X_START_POS = UINT64_C(0x136e0); /* amplitude times K, 4 guard bits */
-static const uint64_t X_START_NEG = UINT64_C(0x2c920); /* the same, negated (fold) */
 
 /* The w-bit two's complement code v as a number (no implementation-defined conversion). */
 static int64_t bg_signed(uint64_t v, unsigned w)
@@ -81,41 +79,35 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
     /* convergence range. */
     const uint64_t in_fold = ((in_angle_bits >> 11) ^ ((in_angle_bits >> 10) & UINT64_C(1)));
     const uint64_t z_start = ((((((in_angle_bits >> 10) & UINT64_C(1)) << 11) | (in_angle_bits & UINT64_C(0x7ff))) << 8) | UINT64_C(0));
-    const uint64_t x_start = (in_fold ? X_START_NEG : X_START_POS);
-    const uint64_t y_start = UINT64_C(0);
 
     /* ---- stage 0: iteration 0 ---- */
     /* iteration 0: turn counter-clockwise when the remaining angle is >= 0 */
     const uint64_t dir_0 = (uint64_t)(z_start < UINT64_C(0x80000));
-    const uint64_t s0_x = ((x_start + (dir_0 ? ((~y_start) & UINT64_C(0x3ffff)) : y_start) + dir_0) & UINT64_C(0x3ffff));
-    const uint64_t s0_y = ((y_start + (dir_0 ? x_start : ((~x_start) & UINT64_C(0x3ffff))) + ((~dir_0) & UINT64_C(1))) & UINT64_C(0x3ffff));
     const uint64_t s0_z = (((z_start & UINT64_C(0x3ffff)) + (dir_0 ? ((~ATAN_0) & UINT64_C(0x3ffff)) : ATAN_0) + dir_0) & UINT64_C(0x3ffff));
 
-    const uint64_t s0_x_reg = s0_x;  /* register, passed through */
-    const uint64_t s0_y_reg = s0_y;  /* register, passed through */
+    const uint64_t s0_fold_reg = in_fold;  /* register, passed through */
+    const uint64_t s0_dir0_reg = dir_0;  /* register, passed through */
     const uint64_t s0_z_reg = s0_z;  /* register, passed through */
 
     /* ---- stage 1: iteration 1 ---- */
     /* iteration 1: turn counter-clockwise when the remaining angle is >= 0 */
     const uint64_t dir_1 = (uint64_t)(s0_z_reg < UINT64_C(0x20000));
-    const uint64_t xs_1 = ((((s0_x_reg >> 17) ? UINT64_C(1) : UINT64_C(0)) << 17) | (s0_x_reg >> 1)); /* x >>> 1 */
-    const uint64_t ys_1 = ((((s0_y_reg >> 17) ? UINT64_C(1) : UINT64_C(0)) << 17) | (s0_y_reg >> 1)); /* y >>> 1 */
-    const uint64_t s1_x = ((s0_x_reg + (dir_1 ? ((~ys_1) & UINT64_C(0x3ffff)) : ys_1) + dir_1) & UINT64_C(0x3ffff));
-    const uint64_t s1_y = ((s0_y_reg + (dir_1 ? xs_1 : ((~xs_1) & UINT64_C(0x3ffff))) + ((~dir_1) & UINT64_C(1))) & UINT64_C(0x3ffff));
     const uint64_t s1_z = ((s0_z_reg + (dir_1 ? ((~ATAN_1) & UINT64_C(0x3ffff)) : ATAN_1) + dir_1) & UINT64_C(0x3ffff));
 
-    const uint64_t s1_x_reg = s1_x;  /* register, passed through */
-    const uint64_t s1_y_reg = s1_y;  /* register, passed through */
+    const uint64_t s1_fold_reg = s0_fold_reg;  /* register, passed through */
+    const uint64_t s1_dir0_reg = s0_dir0_reg;  /* register, passed through */
+    const uint64_t s1_dir1_reg = dir_1;  /* register, passed through */
     const uint64_t s1_z_reg = s1_z;  /* register, passed through */
 
     /* ---- stage 2: iteration 2 ---- */
     /* iteration 2: turn counter-clockwise when the remaining angle is >= 0 */
     const uint64_t dir_2 = (uint64_t)(s1_z_reg < UINT64_C(0x20000));
-    const uint64_t xs_2 = ((((s1_x_reg >> 17) ? UINT64_C(3) : UINT64_C(0)) << 16) | (s1_x_reg >> 2)); /* x >>> 2 */
-    const uint64_t ys_2 = ((((s1_y_reg >> 17) ? UINT64_C(3) : UINT64_C(0)) << 16) | (s1_y_reg >> 2)); /* y >>> 2 */
-    const uint64_t s2_x = ((s1_x_reg + (dir_2 ? ((~ys_2) & UINT64_C(0x3ffff)) : ys_2) + dir_2) & UINT64_C(0x3ffff));
-    const uint64_t s2_y = ((s1_y_reg + (dir_2 ? xs_2 : ((~xs_2) & UINT64_C(0x3ffff))) + ((~dir_2) & UINT64_C(1))) & UINT64_C(0x3ffff));
     const uint64_t s2_z = (((s1_z_reg & UINT64_C(0x1ffff)) + (dir_2 ? ((~ATAN_2) & UINT64_C(0x1ffff)) : ATAN_2) + dir_2) & UINT64_C(0x1ffff));
+    /* x and y after iteration 2 depend only on the fold and the directions of iterations */
+    /* 0 to 2 (z alone decides them): read from a table of the 16 cases, computed */
+    /* with the iterations' own arithmetic, instead of adding. */
+    const uint64_t s2_x = (dir_2 ? (s1_dir1_reg ? (s1_dir0_reg ? (s1_fold_reg ? UINT64_C(0x3d924) : UINT64_C(0x26dc)) : (s1_fold_reg ? UINT64_C(0x206d4) : UINT64_C(0x1f92c))) : (s1_dir0_reg ? (s1_fold_reg ? UINT64_C(0x2548c) : UINT64_C(0x1ab74)) : (s1_fold_reg ? UINT64_C(0x2effc) : UINT64_C(0x11004)))) : (s1_dir1_reg ? (s1_dir0_reg ? (s1_fold_reg ? UINT64_C(0x2effc) : UINT64_C(0x11004)) : (s1_fold_reg ? UINT64_C(0x2548c) : UINT64_C(0x1ab74))) : (s1_dir0_reg ? (s1_fold_reg ? UINT64_C(0x206d4) : UINT64_C(0x1f92c)) : (s1_fold_reg ? UINT64_C(0x3d924) : UINT64_C(0x26dc)))));
+    const uint64_t s2_y = (dir_2 ? (s1_dir1_reg ? (s1_dir0_reg ? (s1_fold_reg ? UINT64_C(0x206d4) : UINT64_C(0x1f92c)) : (s1_fold_reg ? UINT64_C(0x26dc) : UINT64_C(0x3d924))) : (s1_dir0_reg ? (s1_fold_reg ? UINT64_C(0x2effc) : UINT64_C(0x11004)) : (s1_fold_reg ? UINT64_C(0x1ab74) : UINT64_C(0x2548c)))) : (s1_dir1_reg ? (s1_dir0_reg ? (s1_fold_reg ? UINT64_C(0x2548c) : UINT64_C(0x1ab74)) : (s1_fold_reg ? UINT64_C(0x11004) : UINT64_C(0x2effc))) : (s1_dir0_reg ? (s1_fold_reg ? UINT64_C(0x3d924) : UINT64_C(0x26dc)) : (s1_fold_reg ? UINT64_C(0x1f92c) : UINT64_C(0x206d4)))));
 
     const uint64_t s2_x_reg = s2_x;  /* register, passed through */
     const uint64_t s2_y_reg = s2_y;  /* register, passed through */

@@ -81,27 +81,21 @@ module ddc_nco_sincos (
     wire advance;
     assign in_ready = advance;
 
-    localparam [20:0] X_START_POS = 21'h09b73b;  // amplitude times K, 5 guard bits
-    localparam [20:0] X_START_NEG = 21'h1648c5;  // the same, negated (fold)
     // Quadrant fold: an angle in the left half-plane (top two bits differ) is turned by half a
     // turn, which flips its MSB and leaves the top two bits equal, and the vector starts
     // negated instead. What remains is within +-1/4 turn, inside the +-99.88 degree
     // convergence range.
     wire in_fold = in_angle[15] ^ in_angle[14];
     wire [Z_W-1:0] z_start = {in_angle[14], in_angle[14:0], 7'h00};
-    wire [XY_W-1:0] x_start = in_fold ? X_START_NEG : X_START_POS;
-    wire [XY_W-1:0] y_start = 21'h000000;
 
     // ---- stage 0: iteration 0 ----
     // iteration 0: turn counter-clockwise when the remaining angle is >= 0
     wire dir_0 = (z_start < 23'h400000);
-    wire [XY_W-1:0] s0_x = x_start + (dir_0 ? ~y_start : y_start) + {20'h00000, dir_0};
-    wire [XY_W-1:0] s0_y = y_start + (dir_0 ? x_start : ~x_start) + {20'h00000, ~dir_0};
     wire [20:0] s0_z = z_start[20:0] + (dir_0 ? ~ATAN_0 : ATAN_0) + {20'h00000, dir_0};
 
     reg s0_valid_reg;
-    reg [XY_W-1:0] s0_x_reg;
-    reg [XY_W-1:0] s0_y_reg;
+    reg s0_fold_reg;
+    reg s0_dir0_reg;
     reg [20:0] s0_z_reg;
     reg [3:0] s0_tag_reg;
 
@@ -115,8 +109,8 @@ module ddc_nco_sincos (
 
     always @(posedge clk) begin
         if (advance) begin
-            s0_x_reg <= s0_x;
-            s0_y_reg <= s0_y;
+            s0_fold_reg <= in_fold;
+            s0_dir0_reg <= dir_0;
             s0_z_reg <= s0_z;
             s0_tag_reg <= in_tag;
         end
@@ -125,15 +119,12 @@ module ddc_nco_sincos (
     // ---- stage 1: iteration 1 ----
     // iteration 1: turn counter-clockwise when the remaining angle is >= 0
     wire dir_1 = (s0_z_reg < 21'h100000);
-    wire [XY_W-1:0] xs_1 = {{1{s0_x_reg[20]}}, s0_x_reg[20:1]};  // x >>> 1
-    wire [XY_W-1:0] ys_1 = {{1{s0_y_reg[20]}}, s0_y_reg[20:1]};  // y >>> 1
-    wire [XY_W-1:0] s1_x = s0_x_reg + (dir_1 ? ~ys_1 : ys_1) + {20'h00000, dir_1};
-    wire [XY_W-1:0] s1_y = s0_y_reg + (dir_1 ? xs_1 : ~xs_1) + {20'h00000, ~dir_1};
     wire [20:0] s1_z = s0_z_reg + (dir_1 ? ~ATAN_1 : ATAN_1) + {20'h00000, dir_1};
 
     reg s1_valid_reg;
-    reg [XY_W-1:0] s1_x_reg;
-    reg [XY_W-1:0] s1_y_reg;
+    reg s1_fold_reg;
+    reg s1_dir0_reg;
+    reg s1_dir1_reg;
     reg [20:0] s1_z_reg;
     reg [3:0] s1_tag_reg;
 
@@ -147,8 +138,9 @@ module ddc_nco_sincos (
 
     always @(posedge clk) begin
         if (advance) begin
-            s1_x_reg <= s1_x;
-            s1_y_reg <= s1_y;
+            s1_fold_reg <= s0_fold_reg;
+            s1_dir0_reg <= s0_dir0_reg;
+            s1_dir1_reg <= dir_1;
             s1_z_reg <= s1_z;
             s1_tag_reg <= s0_tag_reg;
         end
@@ -157,11 +149,12 @@ module ddc_nco_sincos (
     // ---- stage 2: iteration 2 ----
     // iteration 2: turn counter-clockwise when the remaining angle is >= 0
     wire dir_2 = (s1_z_reg < 21'h100000);
-    wire [XY_W-1:0] xs_2 = {{2{s1_x_reg[20]}}, s1_x_reg[20:2]};  // x >>> 2
-    wire [XY_W-1:0] ys_2 = {{2{s1_y_reg[20]}}, s1_y_reg[20:2]};  // y >>> 2
-    wire [XY_W-1:0] s2_x = s1_x_reg + (dir_2 ? ~ys_2 : ys_2) + {20'h00000, dir_2};
-    wire [XY_W-1:0] s2_y = s1_y_reg + (dir_2 ? xs_2 : ~xs_2) + {20'h00000, ~dir_2};
     wire [19:0] s2_z = s1_z_reg[19:0] + (dir_2 ? ~ATAN_2 : ATAN_2) + {19'h00000, dir_2};
+    // x and y after iteration 2 depend only on the fold and the directions of iterations
+    // 0 to 2 (z alone decides them): read from a table of the 16 cases, computed
+    // with the iterations' own arithmetic, instead of adding.
+    wire [XY_W-1:0] s2_x = dir_2 ? s1_dir1_reg ? s1_dir0_reg ? s1_fold_reg ? 21'h1ec91a : 21'h0136e8 : s1_fold_reg ? 21'h103641 : 21'h0fc9c1 : s1_dir0_reg ? s1_fold_reg ? 21'h12a40f : 21'h0d5bf1 : s1_fold_reg ? 21'h177fac : 21'h088053 : s1_dir1_reg ? s1_dir0_reg ? s1_fold_reg ? 21'h177fac : 21'h088054 : s1_fold_reg ? 21'h12a40f : 21'h0d5bf1 : s1_dir0_reg ? s1_fold_reg ? 21'h10363f : 21'h0fc9bf : s1_fold_reg ? 21'h1ec918 : 21'h0136e7;
+    wire [XY_W-1:0] s2_y = dir_2 ? s1_dir1_reg ? s1_dir0_reg ? s1_fold_reg ? 21'h10363f : 21'h0fc9bf : s1_fold_reg ? 21'h0136e7 : 21'h1ec918 : s1_dir0_reg ? s1_fold_reg ? 21'h177fac : 21'h088054 : s1_fold_reg ? 21'h0d5bf1 : 21'h12a40f : s1_dir1_reg ? s1_dir0_reg ? s1_fold_reg ? 21'h12a40f : 21'h0d5bf1 : s1_fold_reg ? 21'h088053 : 21'h177fac : s1_dir0_reg ? s1_fold_reg ? 21'h1ec91a : 21'h0136e8 : s1_fold_reg ? 21'h0fc9c1 : 21'h103641;
 
     reg s2_valid_reg;
     reg [XY_W-1:0] s2_x_reg;
