@@ -357,7 +357,8 @@ def _sfdr_phase_bits_figure(tones: list[dict[str, Any]]) -> Any:
     ax.set_title("SFDR against phase bits (whole NCO: accumulator, truncation, dither, core; "
                  "coherent, IEEE Std 1241)", fontsize=9)
     ax.grid(True, alpha=0.3)
-    ax.legend(fontsize=7, loc="upper left")
+    # Below the line on the right: the points rise with P, so that corner stays empty.
+    ax.legend(fontsize=7, loc="lower right")
     return fig
 
 
