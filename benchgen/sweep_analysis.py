@@ -150,6 +150,22 @@ def _error_grid(core: Mapping[str, Any], design: Design, its: list[int], gbs: li
     return curves
 
 
+def _bins(dbc: np.ndarray, start: int) -> dict[str, list[Any]]:
+    """A spectrum kept in :data:`SPECTRUM_BINS` bins, each its lowest and highest level.
+
+    ``start`` is the FFT bin of ``dbc[0]`` (negative for the lower half of a complex spectrum).
+    """
+    edges = np.linspace(0, dbc.size, min(SPECTRUM_BINS, dbc.size) + 1).astype(np.int64)
+    lows = np.minimum.reduceat(dbc, edges[:-1])
+    highs = np.maximum.reduceat(dbc, edges[:-1])
+    return {
+        "bin_start": [int(e) + start for e in edges[:-1]],
+        # Levels to 0.001 dB: far finer than a plot shows, and short in JSON.
+        "bin_low_dbc": [round(float(v), 3) for v in lows],
+        "bin_high_dbc": [round(float(v), 3) for v in highs],
+    }
+
+
 def _tone(design: Design) -> dict[str, Any]:
     dp = design.datapath
     n_fft = min(SPECTRUM_FFT, 1 << dp.angle_width)
@@ -165,22 +181,6 @@ def _tone(design: Design) -> dict[str, Any]:
         "n_fft": n_fft,
         "cycles": cycles,
         **_bins(spec.dbc, 0),
-    }
-
-
-def _bins(dbc: np.ndarray, start: int) -> dict[str, list[Any]]:
-    """A spectrum kept in :data:`SPECTRUM_BINS` bins, each its lowest and highest level.
-
-    ``start`` is the FFT bin of ``dbc[0]`` (negative for the lower half of a complex spectrum).
-    """
-    edges = np.linspace(0, dbc.size, min(SPECTRUM_BINS, dbc.size) + 1).astype(np.int64)
-    lows = np.minimum.reduceat(dbc, edges[:-1])
-    highs = np.maximum.reduceat(dbc, edges[:-1])
-    return {
-        "bin_start": [int(e) + start for e in edges[:-1]],
-        # Levels to 0.001 dB: far finer than a plot shows, and short in JSON.
-        "bin_low_dbc": [round(float(v), 3) for v in lows],
-        "bin_high_dbc": [round(float(v), 3) for v in highs],
     }
 
 
