@@ -97,6 +97,8 @@ class ReportData:
         ignored: One line per result file left out as invalid: the file and its fault.
         error_grids: The model's error curves, one per function and output width (``model_analysis.json``).
         tones: The model's coherent tones, one per distinct data path (``model_analysis.json``).
+        nco_tones: The NCO model's words, one entry per distinct NCO (``model_analysis.json``;
+            empty for a sweep without an NCO).
     """
 
     name: str
@@ -110,6 +112,7 @@ class ReportData:
     ignored: list[str] = field(default_factory=list)
     error_grids: list[dict[str, Any]] = field(default_factory=list)
     tones: list[dict[str, Any]] = field(default_factory=list)
+    nco_tones: list[dict[str, Any]] = field(default_factory=list)
 
     @property
     def passed(self) -> int:
@@ -120,6 +123,11 @@ class ReportData:
         """The tones of data paths whose RTL a simulation verified: a core with a passed point."""
         passed = {r["core_id"] for r in one_per_core(self.rows) if r["status"] == "passed"}
         return [t for t in self.tones if passed & set(t["core_ids"])]
+
+    def verified_nco_tones(self) -> list[dict[str, Any]]:
+        """The NCO tones of cores a simulation verified (a core with a passed point)."""
+        passed = {r["core_id"] for r in one_per_core(self.rows) if r["status"] == "passed"}
+        return [t for t in self.nco_tones if passed & set(t["core_ids"])]
 
 
 def collect(out_dir: str | Path) -> ReportData:
@@ -185,6 +193,9 @@ def collect(out_dir: str | Path) -> ReportData:
         if tid in results and results[tid]["kind"] == "synth":
             timing[tid] = {"seconds": results[tid].get("seconds"), "cached": results[tid].get("cached", False)}
     _mark_pareto(rows, targets)
+    nco_tones = analysis.get("nco_tones", [])
+    if nco_tones:
+        _nco_columns(rows, nco_tones)
     return ReportData(
         name=spec["name"],
         digest=sweep["digest"],
@@ -197,7 +208,31 @@ def collect(out_dir: str | Path) -> ReportData:
         ignored=[ignored[t] for t in sorted(ignored)],
         error_grids=analysis["error_grids"],
         tones=analysis["tones"],
+        nco_tones=nco_tones,
     )
+
+
+#: The NCO's own columns, in a sweep that has an NCO (a sweep without one keeps its columns):
+#: the whole NCO model at its worst truncation word, phase path included, beside the
+#: Nicholas-Samueli prediction (or, dithered, the predicted noise peak).
+NCO_COLUMNS = ("nco_worst_word_sfdr_dbc", "nco_predicted_sfdr_dbc", "nco_worst_word_snr_db")
+
+
+def _nco_columns(rows: list[dict[str, Any]], nco_tones: list[dict[str, Any]]) -> None:
+    """Give each NCO point its NCO's worst-word SFDR and SNR, where a simulation of the core
+    passed (as the tone tables, which show only verified data paths)."""
+    passed = {r["core_id"] for r in one_per_core(rows) if r["status"] == "passed"}
+    worst = {}
+    for t in nco_tones:
+        word = next((w for w in t["words"] if w["word"] == "worst"), None)
+        for cid in t["core_ids"]:
+            if word is not None and cid in passed:
+                worst[cid] = word
+    for r in rows:
+        w = worst.get(r["core_id"])
+        r["nco_worst_word_sfdr_dbc"] = None if w is None else w["sfdr_db"]
+        r["nco_predicted_sfdr_dbc"] = None if w is None else w["predicted_sfdr_db"]
+        r["nco_worst_word_snr_db"] = None if w is None else w["snr_db"]
 
 
 def _row(point: dict[str, Any], res: dict[str, Any] | None, targets: list[str],
@@ -373,6 +408,9 @@ def _summary_columns(data: ReportData) -> list[tuple[str, str]]:
             cols.append((f"{t}_mux", f"{t} mux"))
         cols += [(f"{t}_ffs", f"{t} FF"), (f"{t}_carry", f"{t} carry"),
                  (f"{t}_bram", f"{t} BRAM"), (f"{t}_dsp", f"{t} DSP"), (f"{t}_fmax_mhz", f"{t} Fmax MHz")]
+    if data.nco_tones:
+        cols += [("nco_worst_word_sfdr_dbc", "NCO SFDR dBc (phase path incl.)"),
+                 ("nco_predicted_sfdr_dbc", "predicted SFDR dBc")]
     cols += [("pareto", "Pareto")]
     return cols
 
@@ -385,6 +423,8 @@ def _cell(row: dict[str, Any], key: str) -> str:
         return f"{v:g}"
     if key.endswith("fmax_mhz") or key == "error_dbfs":
         return _fmt(v, 1)
+    if key in NCO_COLUMNS:
+        return _fmt(v, 2)
     return _fmt(v)
 
 
@@ -421,7 +461,10 @@ def _csv_columns(data: ReportData) -> list[str]:
     cols = list(COLUMNS)
     for t in data.targets:
         cols += [f"{t}_{k}" for k in RESOURCE_KEYS]
-    return cols + ["latency_ns", "throughput_msps", "area", "pareto", "problems"]
+    cols += ["latency_ns", "throughput_msps", "area", "pareto"]
+    if data.nco_tones:
+        cols += list(NCO_COLUMNS)
+    return cols + ["problems"]
 
 
 def to_csv(data: ReportData) -> str:
@@ -440,6 +483,44 @@ def _tone_summary(tones: list[dict[str, Any]]) -> list[dict[str, Any]]:
     return [{k: t[k] for k in keys} for t in tones]
 
 
+def _nco_summary(tones: list[dict[str, Any]]) -> list[dict[str, Any]]:
+    keys = ("label", "bits", "phase_bits", "acc_width", "dither_width", "nicholas_samueli_sfdr_db",
+            "ideal_snr_db", "freq_resolution", "words")
+    return [{k: t[k] for k in keys} for t in tones]
+
+
+#: What the NCO tables say of their numbers, with the source of each check.
+NCO_NOTE = (
+    "The whole NCO model (accumulator, truncation to P phase bits, dither, core; verified bit for bit "
+    "against the RTL by the simulations above) at two coherent words (IEEE Std 1241: rectangular window, "
+    "complex FFT of cos + j sin): the worst truncation word (period M = 2), whose spur Nicholas and "
+    "Samueli 1987 predict at -(6.02 P - 3.92) dBc, and an exact word (no bit dropped: the core's amplitude "
+    "quantisation alone, SNR predicted from the core's RMS error; 6.02 N + 1.76 dB is the ideal, Kester "
+    "MT-001). With dither the predicted SFDR is the noise peak of the dithered floor and 'without dither' "
+    "is the same word through the same NCO with no dither (both derived in docs/nco.md). Frequency error: "
+    "measured mean frequency less the word's exact one, in units of f_clk (the resolution is f_clk / 2^A)."
+)
+
+
+def _nco_rows(tones: list[dict[str, Any]]) -> list[list[str]]:
+    out = []
+    for t in tones:
+        for w in t["words"]:
+            predicted = "-" if w["predicted_sfdr_db"] is None else f"{w['predicted_sfdr_db']:.2f} ({w['sfdr_source']})"
+            plain = ("-" if w["undithered_sfdr_db"] is None
+                     else f"{w['undithered_sfdr_db']:.2f} / {w['undithered_snr_db']:.2f}")
+            out.append([
+                t["label"], f"{w['word']} (M = {w['period']})", f"{w['n_fft']} samples, bin {w['cycles']}",
+                f"{w['sfdr_db']:.2f}", predicted, f"{w['snr_db']:.2f}", f"{w['predicted_snr_db']:.2f}", plain,
+                f"{w['freq_error']:.3g}",
+            ])
+    return out
+
+
+NCO_HEADER = ["NCO", "word", "record", "SFDR dBc (NCO, phase path incl.)", "predicted SFDR dBc (source)",
+              "SNR dB", "predicted SNR dB", "without dither SFDR / SNR", "freq. error (f_clk)"]
+
+
 def to_json(data: ReportData) -> str:
     """The rows, the counts, the sine quality and (separately) the time each task took."""
     doc = {
@@ -455,6 +536,8 @@ def to_json(data: ReportData) -> str:
         "sine_quality": _tone_summary(data.verified_tones()),
         "timing": {"tasks": data.timing},
     }
+    if data.nco_tones:
+        doc["nco_spectrum"] = _nco_summary(data.verified_nco_tones())
     return json.dumps(doc, indent=1, sort_keys=True) + "\n"
 
 
@@ -494,6 +577,10 @@ def to_markdown(data: ReportData, plots: dict[str, str] | None = None) -> str:
              for s in spectra],
         ))
         parts.append("")
+    nco = data.verified_nco_tones()
+    if nco:
+        parts += ["## NCO spectrum (whole NCO, bit-true model)", "", NCO_NOTE, "",
+                  _md_table(NCO_HEADER, _nco_rows(nco)), ""]
     if plots:
         parts += ["## Plots", ""]
         for title, path in plots.items():
@@ -605,6 +692,9 @@ def to_html(data: ReportData, plots: dict[str, bytes]) -> str:
                   _html_table(["core", "N (bits)", "SNR dB", "ideal SNR dB", "SFDR dBc"],
                               [[s["label"], str(s["bits"]), f"{s['snr_db']:.2f}", f"{s['ideal_snr_db']:.2f}",
                                 f"{s['sfdr_db']:.2f}"] for s in spectra])]
+    nco = data.verified_nco_tones()
+    if nco:
+        parts += ["<h2>NCO spectrum</h2>", f"<p>{html.escape(NCO_NOTE)}</p>", _html_table(NCO_HEADER, _nco_rows(nco))]
     if plots:
         parts.append("<h2>Plots</h2>")
         for title, png in plots.items():
@@ -666,7 +756,8 @@ def write_reports(
     if "junit" in formats:
         put("junit.xml", to_junit(data))
     if "md" in formats or "html" in formats:
-        plots = make_plots(data.rows, data.targets, data.axes, data.error_grids, data.verified_tones())
+        plots = make_plots(data.rows, data.targets, data.axes, data.error_grids, data.verified_tones(),
+                           data.verified_nco_tones())
         names = {title: f"plots/{_file_name(title)}.png" for title in plots}
         if "md" in formats:
             for title, png in plots.items():

@@ -268,8 +268,107 @@ def _spectrum_plot(tones: list[dict[str, Any]]) -> bytes | None:
     return _png(fig)
 
 
+# ----------------------------------------------------------------------------- NCO spectrum
+
+#: NCO spectra drawn (one panel each); every measured NCO is a point of the SFDR plot.
+MAX_NCO_SPECTRA = 4
+
+
+def _word(tone: dict[str, Any], which: str) -> dict[str, Any] | None:
+    return next((w for w in tone["words"] if w["word"] == which), None)
+
+
+def _nco_spectrum_plot(tones: list[dict[str, Any]]) -> bytes | None:
+    """Each NCO's complex spectrum at its worst truncation word, with the prediction beside it."""
+    if not tones:
+        return None
+    shown = tones[:MAX_NCO_SPECTRA]
+    fig, axes = _figure(len(shown), 1, width=11, height=3.2)
+    for ax_row, t in zip(axes, shown, strict=True):
+        ax = ax_row[0]
+        w = _word(t, t["spectrum_word"])
+        assert w is not None  # the record's schema holds the spectrum's word
+        low, high = np.asarray(t["bin_low_dbc"]), np.asarray(t["bin_high_dbc"])
+        floor = max(float(np.min(low)), -200.0)
+        f = np.asarray(t["bin_start"] + [w["n_fft"] // 2], dtype=np.float64) / w["n_fft"]
+        ax.fill_between(f, np.maximum(np.append(low, low[-1]), floor), np.maximum(np.append(high, high[-1]), floor),
+                        step="post", linewidth=0.5, color="C0")
+        ax.axhline(-w["sfdr_db"], color="red", linestyle="--", linewidth=1,
+                   label=f"largest spur: SFDR {w['sfdr_db']:.2f} dBc (measured)")
+        if w["predicted_sfdr_db"] is not None:
+            ax.axhline(-w["predicted_sfdr_db"], color="green", linestyle=":", linewidth=1.5,
+                       label=f"predicted {w['predicted_sfdr_db']:.2f} dBc: {w['sfdr_source']}")
+        ax.set_ylim(floor - 5, 5)
+        ax.set_xlim(-0.5, 0.5)
+        ax.set_xlabel("frequency (fraction of f_clk; cos + j sin, complex FFT)")
+        ax.set_ylabel("dBc")
+        what = "worst truncation word (M = 2)" if w["word"] == "worst" else "exact word (no bit dropped)"
+        ax.set_title(f"NCO, {t['label']}: {what}, bin {w['cycles']} of {w['n_fft']}", fontsize=10)
+        lines = [f"SNR {w['snr_db']:.2f} dB (predicted {w['predicted_snr_db']:.2f})"]
+        if w["undithered_sfdr_db"] is not None:
+            lines.append(f"without dither: SFDR {w['undithered_sfdr_db']:.2f} dBc, SNR {w['undithered_snr_db']:.2f} dB")
+        exact = _word(t, "exact")
+        if exact is not None and w["word"] != "exact":
+            lines.append(f"exact word: SFDR {exact['sfdr_db']:.2f} dBc, SNR {exact['snr_db']:.2f} dB "
+                         f"(ideal 6.02 N + 1.76 = {t['ideal_snr_db']:.2f}, Kester MT-001)")
+        lines.append(f"frequency error {w['freq_error']:.3g} f_clk (resolution f_clk / 2^{t['acc_width']})")
+        ax.text(0.99, 0.95, "\n".join(lines), transform=ax.transAxes, ha="right", va="top", fontsize=7,
+                bbox={"facecolor": "white", "alpha": 0.85, "edgecolor": "#ccc"})
+        ax.grid(True, alpha=0.3)
+        ax.legend(fontsize=7, loc="lower left")
+    return _png(fig)
+
+
+def _sfdr_phase_bits_figure(tones: list[dict[str, Any]]) -> Any:
+    """Measured worst-word SFDR of each NCO against its phase bits, beside Nicholas-Samueli.
+
+    Undithered and dithered NCOs are marked apart; a dithered one's prediction (its noise peak)
+    is drawn as a hollow marker; the exact words show the core's own ceiling. None when no NCO
+    has a worst word measured.
+    """
+    worst = [(t, _word(t, "worst")) for t in tones]
+    measured = [(t, w) for t, w in worst if w is not None]
+    if not measured:
+        return None
+    fig, axes = _figure(1, 1, width=9, height=5.5)
+    ax = axes[0][0]
+    ps = sorted({t["phase_bits"] for t, _ in measured})
+    line = np.linspace(ps[0] - 0.5, ps[-1] + 0.5, 50)
+    ax.plot(line, 6.02 * line - 3.92, color="black", linestyle="--", linewidth=1, gid="nicholas_samueli",
+            label="-(6.02 P - 3.92) dBc, worst truncation spur (Nicholas and Samueli 1987)")
+    plain = [(t["phase_bits"], w["sfdr_db"]) for t, w in measured if t["dither_width"] == 0]
+    dithered = [(t["phase_bits"], w["sfdr_db"], w["predicted_sfdr_db"]) for t, w in measured if t["dither_width"]]
+    if plain:
+        ax.scatter([p for p, _ in plain], [v for _, v in plain], marker="o", s=50, color="C0", zorder=4,
+                   gid="measured_undithered", label="measured, worst word (M = 2), no dither")
+    if dithered:
+        ax.scatter([p for p, _, _ in dithered], [v for _, v, _ in dithered], marker="^", s=60, color="C1",
+                   zorder=4, gid="measured_dithered", label="measured, worst word (M = 2), with dither")
+        ax.scatter([p for p, _, _ in dithered], [v for _, _, v in dithered], marker="^", s=110, facecolors="none",
+                   edgecolors="C1", zorder=3, gid="predicted_dithered",
+                   label="predicted with dither: noise peak (derived here, docs/nco.md)")
+    exact = [(t["phase_bits"], w["sfdr_db"]) for t in tones for w in [_word(t, "exact")] if w is not None]
+    if exact:
+        ax.scatter([p for p, _ in exact], [v for _, v in exact], marker="x", s=40, color="grey", zorder=2,
+                   gid="exact", label="exact word (no bit dropped): the core's amplitude spurs")
+    ax.set_xticks(ps)
+    ax.set_xlabel("phase bits P kept from the accumulator (angle_width)")
+    ax.set_ylabel("SFDR (dBc), bit-true NCO model")
+    ax.set_title("SFDR against phase bits (whole NCO: accumulator, truncation, dither, core; "
+                 "coherent, IEEE Std 1241)", fontsize=9)
+    ax.grid(True, alpha=0.3)
+    # Below the line on the right: the points rise with P, so that corner stays empty.
+    ax.legend(fontsize=7, loc="lower right")
+    return fig
+
+
+def _sfdr_phase_bits_plot(tones: list[dict[str, Any]]) -> bytes | None:
+    fig = _sfdr_phase_bits_figure(tones)
+    return None if fig is None else _png(fig)
+
+
 def make_plots(rows: list[Row], targets: list[str], axis_names: list[str], grids: list[dict[str, Any]],
-               tones: list[dict[str, Any]]) -> dict[str, bytes]:
+               tones: list[dict[str, Any]], nco_tones: list[dict[str, Any]] | None = None) -> dict[str, bytes]:
     """Every plot that has something to show, by title.
 
     Args:
@@ -278,12 +377,17 @@ def make_plots(rows: list[Row], targets: list[str], axis_names: list[str], grids
         axis_names: The fields the sweep varies (they label the Pareto points).
         grids: The model's error grids, one per function and output width.
         tones: The tones to show (their spectra, one panel each).
+        nco_tones: The NCOs to show (a spectrum panel each, the first four, and a point each in
+            the SFDR-against-phase-bits plot).
     """
+    nco = nco_tones or []
     plots: dict[str, bytes | None] = {
         "Error against iterations and guard bits": _error_plot(rows, grids),
         "Latency and throughput against pipeline depth": _latency_plot(rows),
         "Resources and Fmax against pipeline depth": _resource_plot(rows, targets),
         "Pareto front": _pareto_plot(rows, targets, axis_names),
         "Spectrum of a coherent tone": _spectrum_plot(tones),
+        "Spectrum of the NCO at its worst truncation word": _nco_spectrum_plot(nco),
+        "SFDR against phase bits": _sfdr_phase_bits_plot(nco),
     }
     return {k: v for k, v in plots.items() if v is not None}

@@ -395,12 +395,87 @@ class ToneRecord(_Strict):
         return self
 
 
+class NcoWordRecord(_Strict):
+    """One coherent word through the whole NCO model: measured beside its prediction.
+
+    ``word`` is ``"worst"`` (truncation period 2, the Nicholas-Samueli case) or ``"exact"`` (no
+    bit dropped). The predictions name their source (``sfdr_source``, ``snr_source``); the exact
+    word has no SFDR prediction. ``undithered_*`` is the same word through the same NCO without
+    its dither (a dithered NCO's worst word only). ``freq_error`` is the measured mean frequency
+    less the word's exact one, in cycles per sample (times f_clk for Hz).
+    """
+
+    word: Literal["worst", "exact"]
+    freq_word: NonNegInt
+    period: Literal[1, 2]
+    n_fft: PosInt
+    cycles: PosInt
+    sfdr_db: float
+    snr_db: float
+    freq_error: float
+    predicted_sfdr_db: float | None
+    sfdr_source: str | None
+    predicted_snr_db: float
+    snr_source: str
+    undithered_sfdr_db: float | None
+    undithered_snr_db: float | None
+
+    @model_validator(mode="after")
+    def _word(self) -> NcoWordRecord:
+        if self.period != (2 if self.word == "worst" else 1):
+            raise ValueError(f"the {self.word} word has truncation period {self.period}")
+        if (self.predicted_sfdr_db is None) != (self.sfdr_source is None):
+            raise ValueError("an SFDR prediction needs its source, and a source its prediction")
+        return self
+
+
+class NcoToneRecord(_Strict):
+    """An NCO's spectrum with its phase path (:func:`benchgen.sweep_analysis.nco_tone`).
+
+    The bins are those of the complex spectrum of ``spectrum_word``'s record, from ``-n_fft/2``
+    (``bin_start`` may be negative).
+    """
+
+    label: str
+    bits: PosInt
+    phase_bits: PosInt
+    acc_width: PosInt
+    dither_width: NonNegInt
+    nicholas_samueli_sfdr_db: float
+    ideal_snr_db: float
+    freq_resolution: PosFloat
+    words: Annotated[list[NcoWordRecord], Field(min_length=1, max_length=2)]
+    spectrum_word: Literal["worst", "exact"]
+    bin_start: Annotated[list[int], Field(min_length=1)]
+    bin_low_dbc: list[float]
+    bin_high_dbc: list[float]
+    core_ids: Annotated[list[str], Field(min_length=1)]
+
+    @model_validator(mode="after")
+    def _consistent(self) -> NcoToneRecord:
+        n = len(self.bin_start)
+        if len(self.bin_low_dbc) != n or len(self.bin_high_dbc) != n:
+            raise ValueError(f"{n} bins but {len(self.bin_low_dbc)} low and {len(self.bin_high_dbc)} high levels")
+        if any(lo > hi for lo, hi in zip(self.bin_low_dbc, self.bin_high_dbc, strict=True)):
+            raise ValueError("a bin's low level is above its high level")
+        kinds = [w.word for w in self.words]
+        if len(set(kinds)) != len(kinds):
+            raise ValueError("a word is measured twice")
+        if self.spectrum_word not in kinds:
+            raise ValueError(f"the spectrum is the {self.spectrum_word} word's, which was not measured")
+        return self
+
+
 class ModelAnalysisRecord(_Strict):
-    """``model_analysis.json`` (:func:`benchgen.sweep_analysis.analyse_models`, with the sweep's digest)."""
+    """``model_analysis.json`` (:func:`benchgen.sweep_analysis.analyse_models`, with the sweep's digest).
+
+    ``nco_tones`` is there only when the sweep has an NCO.
+    """
 
     digest: str
     error_grids: list[ErrorGridRecord]
     tones: list[ToneRecord]
+    nco_tones: list[NcoToneRecord] = []
 
 
 # ----------------------------------------------------------------------------- checking
