@@ -286,6 +286,18 @@ def _runner(design: Design) -> str:
 
 
 def _test_module(design: Design) -> str:
+    if function_of(design.datapath).free_running(design.datapath):
+        # No input stream: the free-running bench drives the load port per clock.
+        return f'''"""cocotb tests for {design.spec.name}: the checks live in benchgen.bench (generated file)."""
+
+from pathlib import Path
+
+from benchgen.bench.free_running import bind
+
+MANIFEST = Path(__file__).resolve().parent.parent / "manifest.json"
+
+test_loads_full_rate, test_reset_mid_run, test_tone = bind(MANIFEST)
+'''
     # A core with state from sample to sample (an NCO) gets the tone test too.
     stateful = function_of(design.datapath).phase_front(design.datapath) is not None
     names = "bind, bind_tone" if stateful else "bind"
