@@ -166,7 +166,9 @@ class _Core:
         )
         lines += _wrap("measured over " + design.proof.describe() + ".", 92)
         lines += [
-            f"Timing: latency {timing.latency_cycles} clocks from input handshake to output handshake, one",
+            f"Timing: latency {timing.latency_cycles} clocks from "
+            + ("the clock that takes a sample to the clock it shows" if self.free_running else "input handshake to output handshake")
+            + ", one",
             f"sample every {timing.cycles_per_sample} clock(s) at full rate.",
             *self.handshake_lines(),
             *self.module.clocking.describe(),
