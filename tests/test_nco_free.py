@@ -233,3 +233,15 @@ def test_the_bench_catches_a_load_that_acts_through_the_register_only(tmp_path: 
     report = run_sim(project, simulator="icarus", samples=600, seed=14)
     assert not report.passed and report.mismatches > 0
     shutil.rmtree(project / "build", ignore_errors=True)
+
+
+def test_the_core_checker_refuses_a_free_running_core_in_one_line(tmp_path: Path) -> None:
+    """CoreChecker pairs each output with an accepted input; a free-running core has none, so
+    it says so instead of failing on a missing in_valid."""
+    from benchgen.bench.checker import CoreChecker
+    from benchgen.project import ProjectError
+
+    project = _project(tmp_path, FREE)
+    with pytest.raises(ProjectError, match="free-running") as err:
+        CoreChecker(None, project)
+    assert "\n" not in str(err.value)
