@@ -495,10 +495,10 @@ class _Core:
         (:meth:`benchgen.functions.base.Function.phase_front`; docs/nco.md, the checklist).
 
         The sample taken at a clock edge (``take``; None: every edge, a free-running core)
-        reads ``acc_reg + offset + dither`` and
-        keeps the top bits (the function's input logic reads them by name); the same edge loads
-        ``acc_reg + freq`` and advances the dither LFSR by its D-step map. Reset loads 0 and the
-        seed. The accumulator feeds itself, so the transparent evaluator (netlist.evaluate)
+        reads ``acc_reg + offset + dither`` and keeps the top bits (the function's input logic
+        reads them by name); the same edge loads ``acc_reg + freq`` and advances the dither LFSR
+        by its D-step map. Reset loads 0 and the seed. A free-running core's words come from
+        ``fw_reg``/``po_reg``, or from the ports in the clock of a load (which also loads them). The accumulator feeds itself, so the transparent evaluator (netlist.evaluate)
         takes ``acc_reg`` and ``lfsr_reg`` as given values.
         """
         front = self.fn.phase_front(self.dp)
@@ -577,8 +577,8 @@ class _Core:
         in_valid: Expr | None = None if self.free_running else b.sig("in_valid")
         self.phase_front(in_valid if advance is None or in_valid is None else And(in_valid, advance))
         b.note()
-        # The input logic's own register stages (a split constant multiplier): the sample's
-        # valid and tag travel beside them.
+        # The input logic's own register stages (a split constant multiplier, an NCO's phase
+        # code): the sample's valid and tag travel beside them.
         self.front_valid: Expr = Const(1, 1) if in_valid is None else in_valid
         self.front_tag: Expr | None = b.sig("in_tag") if self.tag else None
         self.front_count = 0

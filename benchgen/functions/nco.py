@@ -10,6 +10,12 @@ sample ``n`` itself and its frequency word the accumulator update after it. The 
 the dither LFSR advance once per accepted token; idle clocks and output stalls advance neither.
 A user who wants a steady tone sends the same words in every token.
 
+With ``nco_mode = "free_running"`` the core has no input stream: it takes a sample at every
+(enabled) clock from reset, its words held in registers loaded through a ``load`` port, and a
+load acts through a select in its own clock (``benchgen.nco.run``'s changes; docs/nco.md).
+The per-sample model below still reads one token per sample: the words in force at each
+sample, which is what a free-running record amounts to.
+
 The iterations are the sincos core's, sized as sincos (the phase path adds no error to the
 core's own: the truncated code is exact), so a sized NCO has the iterations and guard bits of
 the sincos core of the same angle and data widths. Outputs are judged against the exact sine
@@ -35,9 +41,9 @@ from benchgen.functions.circular import CircularDatapath
 from benchgen.functions.sincos import FUNCTION as SINCOS
 from benchgen.functions.sincos import SinCos, ideal_sincos
 from benchgen.hwlib import Builder, Start
-from benchgen.netlist import Const, Mux
 from benchgen.lfsr import leap_map, lfsr_states
 from benchgen.nco import Change, Nco, phase_path
+from benchgen.netlist import Const, Mux
 from benchgen.spec import NCO_MODES, CoreSpec
 
 __all__ = [
