@@ -30,6 +30,7 @@ import numpy as np
 import numpy.typing as npt
 from cocotb.clock import Clock
 from cocotb.triggers import FallingEdge, RisingEdge, Timer
+from cocotb.utils import get_sim_time
 
 from benchgen.bench.core_tests import CLOCK_NS, TONE_CHANGE_SAMPLES, tone_plan, tone_record
 from benchgen.bench.scoreboard import SAMPLES_ENV, CheckResult, compare, record, write_csv_rows
@@ -207,7 +208,7 @@ class FreeRunningBench:
                 if valid:
                     if not out.first_valid:
                         out.first_valid = k
-                    out.out_times.append(int(cocotb.utils.get_sim_time("ns")))
+                    out.out_times.append(int(get_sim_time("ns")))
                     for h, p in zip(handles, self.out_ports, strict=True):
                         out.outputs[p].append(h.value.to_signed())
                 elif out.first_valid and len(out.problems) < 10:
