@@ -57,7 +57,10 @@ def modelled(design: Design) -> tuple[Design, bool]:
     if fn.phase_front(dp) is None:
         return design, False
     spec = fn.sizing_spec(design.spec)
-    return replace(design, spec=spec, datapath=final_datapath(spec, dp.iterations, dp.guard_bits)), True
+    core = final_datapath(spec, dp.iterations, dp.guard_bits)
+    # The core's timing (its latency is the NCO's) without the phase path's own register stage.
+    timing = replace(design.timing, front=front_stages(spec, core))
+    return replace(design, spec=spec, datapath=core, timing=timing), True
 
 
 def model_module(design: Design) -> tuple[Module, bool]:

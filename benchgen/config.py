@@ -23,6 +23,7 @@ from benchgen.spec import (
     DEFAULT_VLNV_VENDOR,
     HANDSHAKES,
     HDLS,
+    NCO_MODES,
     RESET_POLARITIES,
     RESET_STYLES,
     CoreSpec,
@@ -71,6 +72,10 @@ SYNONYMS: dict[str, dict[str, str]] = {
     "architecture": {
         "pipeline": "pipelined", "pipelined_core": "pipelined", "unrolled": "pipelined",
         "iteration": "iterative", "iterate": "iterative", "sequential": "iterative", "folded": "iterative",
+    },
+    "nco_mode": {
+        "free": "free_running", "freerunning": "free_running", "free_run": "free_running",
+        "continuous": "free_running", "stream": "streamed", "streaming": "streamed", "tokens": "streamed",
     },
 }
 MIN_ANGLE_WIDTH = 3
@@ -188,6 +193,7 @@ _FIELDS: tuple[str, ...] = (
     "lfsr_seed",
     "sfdr_dbc",
     "snr_db",
+    "nco_mode",
 )
 # Fields left out of the manifest's config at their default, so a project that does not set
 # them keeps the manifest it had before they existed (same config, same bytes).
@@ -197,6 +203,7 @@ _QUIET_DEFAULTS: dict[str, object] = {
     "reset_polarity": RESET_POLARITIES[0],
     "clock_enable": False,
     "handshake": "ready_valid",
+    "nco_mode": NCO_MODES[0],
 }
 
 
@@ -448,7 +455,10 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
     tag_width = _int_field(raw, "tag_width", 0, MAX_TAG_WIDTH, default=0) if "tag_width" in raw else 0
     gain = _choice_field(raw, "gain", GAIN_MODES) if "gain" in raw else "compensated"
     angle_unit = _choice_field(raw, "angle_unit", ANGLE_UNITS) if "angle_unit" in raw else "turns"
-    handshake = _choice_field(raw, "handshake", HANDSHAKES) if "handshake" in raw else "ready_valid"
+    nco_mode = _choice_field(raw, "nco_mode", NCO_MODES) if "nco_mode" in raw else NCO_MODES[0]
+    # A free-running NCO has no input stream and no out_ready: the sink takes every sample.
+    quiet_handshake = "valid_only" if nco_mode == "free_running" else "ready_valid"
+    handshake = _choice_field(raw, "handshake", HANDSHAKES) if "handshake" in raw else quiet_handshake
     fn = function_named(function)
     for key, why in refused_fields(fn).items():
         # A field the function does not use: a value set here would mislead.
@@ -608,6 +618,7 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
         lfsr_seed=lfsr_seed,
         sfdr_dbc=sfdr_dbc,
         snr_db=snr_db,
+        nco_mode=nco_mode,
         target_picks=picks,
     )
     fn.validate(spec)

@@ -14,7 +14,7 @@ from dataclasses import dataclass
 from benchgen import __version__
 from benchgen.algorithm import rotation_z_ranges, signed_width
 from benchgen.design import Design
-from benchgen.functions import clocking_of, function_of
+from benchgen.functions import LOAD_PORT, clocking_of, function_of
 from benchgen.hwlib import Builder, Final, Start, sign_shift
 from benchgen.netlist import (
     Add,
@@ -108,6 +108,7 @@ class _Core:
         self.tag = design.spec.tag_width > 0
         self.truncating = dp.rounding == "truncate"
         self.valid_only = design.spec.handshake == "valid_only"
+        self.free_running = self.fn.free_running(self.dp)
         # z narrowed stage by stage: the width of z formed by each iteration (None: full width)
         self.z_widths: list[int] | None = None
         start = self.fn.z_start_range(dp)
@@ -168,7 +169,9 @@ class _Core:
         )
         lines += _wrap("measured over " + design.proof.describe() + ".", 92)
         lines += [
-            f"Timing: latency {timing.latency_cycles} clocks from input handshake to output handshake, one",
+            f"Timing: latency {timing.latency_cycles} clocks from "
+            + ("the clock that takes a sample to the clock it shows" if self.free_running else "input handshake to output handshake")
+            + ", one",
             f"sample every {timing.cycles_per_sample} clock(s) at full rate.",
             *self.handshake_lines(),
             *self.module.clocking.describe(),
@@ -179,6 +182,12 @@ class _Core:
         self.module.header = lines
 
     def handshake_lines(self) -> list[str]:
+        if self.free_running:
+            return [
+                "No input stream: a sample is taken at every clock from reset (every enabled clock). The",
+                "sink takes every sample: out_valid rises when the first leaves the pipeline and stays",
+                "high; load at a clock edge loads the words on the data inputs.",
+            ]
         if not self.valid_only:
             return ["Handshake: a sample moves when valid and ready are both high at a rising clock edge."]
         lines = ["Handshake: valid only. The sink takes every sample: out_valid is high for one clock per"]
@@ -192,7 +201,7 @@ class _Core:
     def ports(self) -> None:
         """Declare the ports the design lists (the one port description, Design.ports)."""
         m, b = self.module, self.b
-        groups = {"in_valid": "input stream", "out_valid": "output stream"}
+        groups = {"in_valid": "input stream", "out_valid": "output stream", LOAD_PORT: "words, loaded on load"}
         for p in self.design.ports:
             b.known(m.port(p.name, p.width, p.direction, groups.get(p.name, ""), vector=p.payload))
 
@@ -488,14 +497,15 @@ class _Core:
 
     # ------------------------------------------------------------------ NCO front stage
 
-    def phase_front(self, take: Expr) -> None:
+    def phase_front(self, take: Expr | None) -> None:
         """The phase accumulator in front of the iterations, for a function that has one
         (:meth:`benchgen.functions.base.Function.phase_front`; docs/nco.md, the checklist).
 
-        The sample taken at a clock edge (``take``) reads ``acc_reg + offset + dither`` and
-        keeps the top bits (the function's input logic reads them by name); the same edge loads
-        ``acc_reg + freq`` and advances the dither LFSR by its D-step map. Reset loads 0 and the
-        seed. The accumulator feeds itself, so the transparent evaluator (netlist.evaluate)
+        The sample taken at a clock edge (``take``; None: every edge, a free-running core)
+        reads ``acc_reg + offset + dither`` and keeps the top bits (the function's input logic
+        reads them by name); the same edge loads ``acc_reg + freq`` and advances the dither LFSR
+        by its D-step map. Reset loads 0 and the seed. A free-running core's words come from
+        ``fw_reg``/``po_reg``, or from the ports in the clock of a load (which also loads them). The accumulator feeds itself, so the transparent evaluator (netlist.evaluate)
         takes ``acc_reg`` and ``lfsr_reg`` as given values.
         """
         front = self.fn.phase_front(self.dp)
@@ -509,10 +519,22 @@ class _Core:
             f"---- phase accumulator: {a} bits, the top {p} kept (floor)"
             + (f", {d} dither bits just below them ----" if d else " ----")
         )
-        take_sig = b.wire("take", take, "a sample is taken at this edge")
         acc = b.known(Sig("acc_reg", a, vector=True))
         m.add(Reg(acc))
-        freq, offset = b.sig(front.freq_port), b.sig(front.phase_port)
+        freq: Expr = b.sig(front.freq_port)
+        offset: Expr = b.sig(front.phase_port)
+        word_loads: tuple[tuple[Sig, Expr], ...] = ()
+        if front.load_port:
+            # Free-running: the words live in registers of their own; a load acts through the
+            # select in its own clock (the new offset moves this sample, the new word the next).
+            load = b.sig(front.load_port)
+            fw_reg = b.known(Sig("fw_reg", a, vector=True))
+            po_reg = b.known(Sig("po_reg", a, vector=True))
+            m.add(Reg(fw_reg), Reg(po_reg))
+            freq = b.wire("fw", Mux(load, freq, fw_reg), "the word in force: the port's in the clock of a load")
+            offset = b.wire("po", Mux(load, offset, po_reg), "the offset in force, likewise")
+            word_loads = ((fw_reg, b.sig(front.freq_port)), (po_reg, b.sig(front.phase_port)))
+        take_sig = b.wire("take", take, "a sample is taken at this edge") if take is not None else None
         total: Expr = Add(acc, offset)
         loads: list[tuple[Sig, Expr]] = [(acc, b.wire("acc_next", Add(acc, freq), "the word acts from the next sample"))]
         reset: list[tuple[Sig, Expr]] = [(acc, Const(0, a))]
@@ -535,6 +557,9 @@ class _Core:
         phase = b.wire("phase", total, "modulo 2^" + str(a), carry_only=drop)
         b.wire(front.angle, Slice(phase, a - 1, drop) if drop else phase, "the core's angle", vector=True)
         b.note()
+        if word_loads:
+            m.add(RegisterBlock(updates=(((load, word_loads),),), reset=tuple((r, Const(0, a)) for r, _ in word_loads)))
+            b.note()
         m.add(RegisterBlock(updates=(((take_sig, tuple(loads)),),), reset=tuple(reset)))
         b.note()
 
@@ -555,11 +580,13 @@ class _Core:
             b.note("The pipeline advances while the output buffer can take a sample.")
             advance = b.known(Sig("advance", 1))
             m.add(Decl(advance), Assign(b.sig("in_ready"), advance))
-        self.phase_front(b.sig("in_valid") if advance is None else And(b.sig("in_valid"), advance))
+        # A free-running core has no input stream: a sample is taken at every clock from reset.
+        in_valid: Expr | None = None if self.free_running else b.sig("in_valid")
+        self.phase_front(in_valid if advance is None or in_valid is None else And(in_valid, advance))
         b.note()
-        # The input logic's own register stages (a split constant multiplier): the sample's
-        # valid and tag travel beside them.
-        self.front_valid: Expr = b.sig("in_valid")
+        # The input logic's own register stages (a split constant multiplier, an NCO's phase
+        # code): the sample's valid and tag travel beside them.
+        self.front_valid: Expr = Const(1, 1) if in_valid is None else in_valid
         self.front_tag: Expr | None = b.sig("in_tag") if self.tag else None
         self.front_count = 0
         b.front = lambda values: self.front_stage(values, advance)

@@ -31,7 +31,7 @@ from typing import TYPE_CHECKING, Any
 
 from benchgen import __version__
 from benchgen.config import MAX_PORT_WIDTH
-from benchgen.functions import CorePort
+from benchgen.functions import CorePort, function_of
 from benchgen.rtl import template_environment
 
 if TYPE_CHECKING:
@@ -346,6 +346,8 @@ def bulk_project_files(design: Design) -> dict[str, str]:
     """The bulk harness in each language the project has, and the one thin test module that
     drives either, by path relative to the project folder."""
     core = design.spec.name
+    if function_of(design.datapath).free_running(design.datapath):
+        return {}  # no input stream for the harness to feed (benchgen sim refuses bulk runs)
     names = _bulk_files(core)
     layout = bulk_layout(core, design.ports)
     files = {f"bench/{names.test_module}.py": _BULK_TEST_MODULE.format(core=core)}

@@ -23,6 +23,7 @@ from typing import Any
 from benchgen.bench.bulk_plan import FULL_RATE_TESTS, bulk_plan, bulk_run_args
 from benchgen.bench.scoreboard import CSV_ENV, RESULTS_ENV, SAMPLES_ENV
 from benchgen.errors import BenchgenError
+from benchgen.functions import function_of
 from benchgen.harness import bulk_files, bulk_layout
 from benchgen.project import ProjectError, design_from_manifest, load_manifest
 from benchgen.simulators import SIMULATORS, VHDL_SIMULATORS, SimulatorMissing, find_simulator, simulator_env
@@ -275,6 +276,13 @@ def run_sim(
     manifest = load_manifest(project)
     design = design_from_manifest(manifest)
     _check_language(manifest, simulator)
+    if bulk and function_of(design.datapath).free_running(design.datapath):
+        if mode != "auto" or exhaustive:
+            raise SimError(
+                f"--mode {mode}{' --exhaustive' if exhaustive else ''}: a free-running core has no input stream "
+                "for the bulk harness to feed; use --mode per-clock (docs/nco.md)"
+            )
+        bulk = native = False  # auto: the per-clock bench, the only one a free-running core has
     if waves_window is not None and simulator in VHDL_SIMULATORS:
         raise no_window(simulator)
     if waves:

@@ -10,6 +10,7 @@ from dataclasses import dataclass
 
 __all__ = [
     "HANDSHAKES",
+    "NCO_MODES",
     "DEFAULT_HDL",
     "DEFAULT_VLNV_LIBRARY",
     "DEFAULT_VLNV_VENDOR",
@@ -31,6 +32,10 @@ DEFAULT_HDL = ("verilog",)
 #: and a pipelined core, which then takes a sample every clock, has no ``in_ready`` either).
 HANDSHAKES = ("ready_valid", "valid_only")
 """The languages of a core whose config sets no ``hdl``."""
+#: How an NCO takes its words: ``streamed`` (one sample per accepted input token, the token
+#: carrying both words) or ``free_running`` (no input stream: one sample per clock from reset,
+#: the words loaded through a ``load`` port; docs/nco.md).
+NCO_MODES = ("streamed", "free_running")
 RESET_STYLES = ("synchronous", "asynchronous")
 """When the reset acts: at a rising clock edge, or at once (the first is the default)."""
 RESET_POLARITIES = ("active_high", "active_low")
@@ -78,6 +83,7 @@ class CoreSpec:
         sfdr_dbc: NCO: required SFDR of the quadrature output in dBc (``None``: none); with
             ``snr_db``, the spectral target the sizer picks the widths for (docs/nco.md).
         snr_db: NCO: required SNR in dB (``None``: none).
+        nco_mode: NCO: one of :data:`NCO_MODES`.
         target_picks: Not a config field: the widths (``angle_width``, ``data_width``) the
             config left for the spectral target to pick; the sizer fills them in and empties this.
     """
@@ -110,4 +116,5 @@ class CoreSpec:
     lfsr_seed: int | None = None
     sfdr_dbc: float | None = None
     snr_db: float | None = None
+    nco_mode: str = NCO_MODES[0]
     target_picks: tuple[str, ...] = ()

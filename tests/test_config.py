@@ -152,8 +152,9 @@ def test_every_synonym_points_at_a_value_its_field_accepts() -> None:
     """The trade-name table (functions' own ``synonyms`` included) offers only accepted values,
     and never shadows a real one."""
     from benchgen.config import ARCHITECTURES, FUNCTIONS, ROUNDING_MODES, SYNONYMS
+    from benchgen.spec import NCO_MODES
 
-    choices = {"function": FUNCTIONS, "rounding": ROUNDING_MODES, "architecture": ARCHITECTURES}
+    choices = {"function": FUNCTIONS, "rounding": ROUNDING_MODES, "architecture": ARCHITECTURES, "nco_mode": NCO_MODES}
     assert set(SYNONYMS) == set(choices)
     for field, table in SYNONYMS.items():
         assert table and set(table.values()) <= set(choices[field]), field

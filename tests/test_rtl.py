@@ -86,6 +86,15 @@ def cases() -> list[dict[str, object]]:
         if cfg.get("iterations_per_cycle") == 13 and "iterations" in cfg:
             cfg["iterations_per_cycle"] = 7
         out.append(cfg)
+    # free-running NCOs (a load port, no input stream): with dither and a clock enable and an
+    # asynchronous active-low reset, and a 64-bit accumulator with no dither in 2 stages
+    out += [
+        {"name": "free_0", "function": "nco", "nco_mode": "free_running", "data_width": 10, "angle_width": 11,
+         "acc_width": 24, "dither_width": 3, "clock_enable": True, "reset_style": "asynchronous",
+         "reset_polarity": "active_low"},
+        {"name": "free_1", "function": "nco", "nco_mode": "free_running", "data_width": 12, "angle_width": 12,
+         "acc_width": 64, "pipeline_depth": 2, "rounding": "truncate", "max_error_lsb": 1.5},
+    ]
     return out
 
 

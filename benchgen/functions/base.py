@@ -29,6 +29,7 @@ if TYPE_CHECKING:
 
 __all__ = [
     "IDEAL_DPS",
+    "LOAD_PORT",
     "CorePort",
     "Function",
     "Inputs",
@@ -73,6 +74,10 @@ class Port:
     doc: str
 
 
+LOAD_PORT = "load"
+"""A free-running core's load strobe: high at a clock edge, the data inputs are loaded."""
+
+
 @dataclass(frozen=True)
 class CorePort:
     """A port of a core's module: the one description of its interface.
@@ -87,7 +92,8 @@ class CorePort:
         width: Bits.
         direction: ``in`` or ``out``.
         role: ``clock``, ``reset``, ``enable`` (the clock enable, where the config asks for
-            one), ``handshake``, ``data`` (the function's) or ``tag``.
+            one), ``handshake``, ``load`` (a free-running core's load strobe), ``data`` (the
+            function's) or ``tag``.
         signed: Read as two's complement (data ports only).
         doc: The data port's format, for headers and manifests (empty for the others).
         active_low: The reset acts while the port is low (the reset port only).
@@ -128,6 +134,9 @@ class PhaseFront:
         freq_port: The input port of the frequency word.
         phase_port: The input port of the phase offset.
         angle: The name of the wire that carries the kept bits to the function's input logic.
+        load_port: Free-running: the port whose high level at a clock edge loads both words
+            into registers of their own (they act at once through a select, docs/nco.md); empty:
+            streamed, every taken sample reads the words from its own input token.
     """
 
     acc_width: int
@@ -139,6 +148,7 @@ class PhaseFront:
     freq_port: str
     phase_port: str
     angle: str
+    load_port: str = ""
 
 
 def fixed_doc(width: int, frac: int, signed: bool) -> str:
@@ -412,6 +422,11 @@ class Function:
         input (:func:`benchgen.functions.final_datapath`). The default keeps both.
         """
         return dp
+
+    def free_running(self, dp: Datapath) -> bool:
+        """Whether the core has no input stream: it makes one sample per (enabled) clock from
+        reset and its data inputs are loaded through a ``load`` port (a free-running NCO)."""
+        return False
 
     def hw_constants(self, b: Builder, dp: Datapath) -> None:
         """Named constants declared before the iterations (beyond the atan table)."""

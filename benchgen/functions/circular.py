@@ -310,9 +310,10 @@ class CircularFunction(Function):
     """The signal the fold reads: the angle port, or a wire that forms the angle (an NCO's
     truncated phase)."""
 
-    def hw_fold(self, b: Builder, dp: CircularDatapath) -> tuple[Sig, Sig]:
-        """The fold of the angle (:attr:`angle_signal`): (``in_fold``, ``z_start``)."""
-        angle = b.sig(self.angle_signal)
+    def hw_fold(self, b: Builder, dp: CircularDatapath, angle: Sig | None = None) -> tuple[Sig, Sig]:
+        """The fold of the angle (``angle``, default the signal :attr:`angle_signal`):
+        (``in_fold``, ``z_start``)."""
+        angle = b.sig(self.angle_signal) if angle is None else angle
         A, ZW = dp.angle_width, dp.z_width
         if dp.radians:
             b.note(

@@ -10,6 +10,12 @@ sample ``n`` itself and its frequency word the accumulator update after it. The 
 the dither LFSR advance once per accepted token; idle clocks and output stalls advance neither.
 A user who wants a steady tone sends the same words in every token.
 
+With ``nco_mode = "free_running"`` the core has no input stream: it takes a sample at every
+(enabled) clock from reset, its words held in registers loaded through a ``load`` port, and a
+load acts through a select in its own clock (``benchgen.nco.run``'s changes; docs/nco.md).
+The per-sample model below still reads one token per sample: the words in force at each
+sample, which is what a free-running record amounts to.
+
 The iterations are the sincos core's, sized as sincos (the phase path adds no error to the
 core's own: the truncated code is exact), so a sized NCO has the iterations and guard bits of
 the sincos core of the same angle and data widths. Outputs are judged against the exact sine
@@ -30,14 +36,15 @@ import numpy.typing as npt
 
 from benchgen.algorithm import Datapath
 from benchgen.errors import ConfigError
-from benchgen.functions.base import Inputs, Outputs, PhaseFront, Port
+from benchgen.functions.base import LOAD_PORT, Inputs, Outputs, PhaseFront, Port
 from benchgen.functions.circular import CircularDatapath
 from benchgen.functions.sincos import FUNCTION as SINCOS
 from benchgen.functions.sincos import SinCos, ideal_sincos
 from benchgen.hwlib import Builder, Start
 from benchgen.lfsr import leap_map, lfsr_states
 from benchgen.nco import Change, Nco, phase_path
-from benchgen.spec import CoreSpec
+from benchgen.netlist import Const, Mux
+from benchgen.spec import NCO_MODES, CoreSpec
 
 __all__ = [
     "MAX_SIZED_PHASE_BITS",
@@ -238,6 +245,7 @@ class NcoDatapath(CircularDatapath):
         lfsr_seed: The LFSR's state after reset.
         sfdr_dbc: The spectral target's SFDR, dBc (None: none).
         snr_db: The spectral target's SNR, dB (None: none).
+        nco_mode: ``streamed`` or ``free_running`` (benchgen.spec.NCO_MODES).
     """
 
     acc_width: int = 32
@@ -246,11 +254,21 @@ class NcoDatapath(CircularDatapath):
     lfsr_seed: int = (1 << 32) - 1
     sfdr_dbc: float | None = None
     snr_db: float | None = None
+    nco_mode: str = NCO_MODES[0]
 
     def constants(self) -> dict[str, object]:
         # The target is no constant of the core: the manifest states it with its bound
-        # (manifest_extras), and a core without one keeps the manifest it had.
-        return {k: v for k, v in super().constants().items() if k not in TARGET_FIELDS}
+        # (manifest_extras), and a core without one keeps the manifest it had; likewise the
+        # mode, stated only where it is not the default.
+        out = {k: v for k, v in super().constants().items() if k not in TARGET_FIELDS}
+        if self.nco_mode == NCO_MODES[0]:
+            del out["nco_mode"]
+        return out
+
+    @property
+    def free_running(self) -> bool:
+        """Whether the NCO runs free: one sample per clock, the words loaded through a port."""
+        return self.nco_mode == "free_running"
 
     def target_bounds(self) -> tuple[float, float, float] | None:
         """``(E, SFDR bound, SNR bound)`` of this core when it has a spectral target (else None):
@@ -292,6 +310,30 @@ def _nco_of(spec: CoreSpec) -> Nco:
     )  # fmt: skip
 
 
+def _check_free_running(spec: CoreSpec) -> None:
+    """Refuse what a free-running NCO cannot be (raises ConfigError naming the field)."""
+    mode = 'with nco_mode = "free_running"'
+    if spec.architecture != "pipelined":
+        raise ConfigError(
+            "architecture", spec.architecture,
+            f'"pipelined" {mode} (one sample every clock; an iterative core takes one every few clocks)',
+            'set architecture = "pipelined" and remove iterations_per_cycle (or set nco_mode = "streamed")',
+            suggestion={"architecture": "pipelined", "iterations_per_cycle": None},
+        )  # fmt: skip
+    if spec.handshake != "valid_only":
+        raise ConfigError(
+            "handshake", spec.handshake,
+            f'"valid_only" {mode} (no out_ready: the sink takes the sample of every clock)',
+            'set handshake = "valid_only" (or remove it: the free-running default)',
+            suggestion={"handshake": "valid_only"},
+        )  # fmt: skip
+    if spec.tag_width:
+        raise ConfigError(
+            "tag_width", spec.tag_width, f"0 {mode} (there is no input stream to carry a tag)",
+            "remove tag_width", suggestion={"tag_width": None},
+        )  # fmt: skip
+
+
 def phase_of(dp: NcoDatapath, inputs: Mapping[str, npt.ArrayLike]) -> Any:
     """The phase path's registers for a stream of tokens from reset (benchgen.nco.PhasePath):
     every token loads both words at its own index."""
@@ -309,7 +351,9 @@ class NcoCore(SinCos):
     name: ClassVar[str] = "nco"
     summary: ClassVar[str] = "numerically controlled oscillator: phase accumulator, optional dither, sine and cosine"
     synonyms: ClassVar[tuple[str, ...]] = ("dds", "oscillator", "local_oscillator")
-    options: ClassVar[tuple[str, ...]] = ("acc_width", "dither_width", "lfsr_width", "lfsr_seed", *TARGET_FIELDS)
+    options: ClassVar[tuple[str, ...]] = (
+        "acc_width", "dither_width", "lfsr_width", "lfsr_seed", *TARGET_FIELDS, "nco_mode",
+    )  # fmt: skip
     angle_signal: ClassVar[str] = CODE_WIRE
 
     # ---------------------------------------------------------------- config and data path
@@ -334,12 +378,14 @@ class NcoCore(SinCos):
             elif not needed <= spec.angle_width <= MAX_SIZED_PHASE_BITS:
                 pick_sizes(spec.sfdr_dbc, spec.snr_db, _no_build, angle_width=spec.angle_width)  # raises
         _nco_of(spec)
+        if spec.nco_mode == "free_running":
+            _check_free_running(spec)
 
     def sizing_spec(self, spec: CoreSpec) -> CoreSpec:
         # The truncated code is exact: the core's error is the sincos core's at that code.
         return replace(
             spec, function=SINCOS.name, acc_width=32, dither_width=0, lfsr_width=None, lfsr_seed=None,
-            sfdr_dbc=None, snr_db=None, target_picks=(),
+            sfdr_dbc=None, snr_db=None, target_picks=(), nco_mode=NCO_MODES[0],
         )  # fmt: skip
 
     def resolve_spec(self, spec: CoreSpec, build: Callable[[CoreSpec], Datapath]) -> CoreSpec:
@@ -369,6 +415,7 @@ class NcoCore(SinCos):
         return NcoDatapath(
             **values, acc_width=nco.acc_width, dither_width=nco.dither_width,
             lfsr_width=nco.lfsr_width, lfsr_seed=nco.lfsr_seed, sfdr_dbc=spec.sfdr_dbc, snr_db=spec.snr_db,
+            nco_mode=spec.nco_mode,
         )  # fmt: skip
 
     # ---------------------------------------------------------------- ports and documents
@@ -376,26 +423,45 @@ class NcoCore(SinCos):
     def input_ports(self, dp: Datapath) -> tuple[Port, ...]:
         assert isinstance(dp, NcoDatapath)
         a = dp.acc_width
+        if dp.free_running:
+            return (
+                Port(FREQ_PORT, a, False, f"unsigned, {a} bits: phase step per clock, f = word f_clk / 2^{a}; loaded on load"),
+                Port(PHASE_PORT, a, False, f"unsigned, {a} bits: phase offset, in 2^-{a} turn; loaded on load"),
+            )
         return (
             Port(FREQ_PORT, a, False, f"unsigned, {a} bits: phase step per sample, f = word f_clk / 2^{a}"),
             Port(PHASE_PORT, a, False, f"unsigned, {a} bits: phase offset of this sample, in 2^-{a} turn"),
         )
 
+    def free_running(self, dp: Datapath) -> bool:
+        assert isinstance(dp, NcoDatapath)
+        return dp.free_running
+
     def describe(self, dp: Datapath) -> str:
         assert isinstance(dp, NcoDatapath)
         dither = f", {dp.dither_width} dither bits" if dp.dither_width else ", no dither"
+        free = "free-running " if dp.free_running else ""
         return (
-            f"NCO: {dp.acc_width}-bit phase accumulator{dither}, phase truncated to {dp.angle_width} bits, "
+            f"{free}NCO: {dp.acc_width}-bit phase accumulator{dither}, phase truncated to {dp.angle_width} bits, "
             f"{dp.data_width}-bit cosine and sine"
         )
 
     def header_notes(self, dp: Datapath) -> list[str]:
         assert isinstance(dp, NcoDatapath)
         b = dp.acc_width - dp.angle_width
-        notes = [
-            f"phase          acc + in_phase_offset + dither * 2^{b - dp.dither_width}, top {dp.angle_width} of {dp.acc_width} bits kept",
-            "               (floor); acc <= acc + in_freq_word at each taken sample (docs/nco.md)",
-        ]
+        if dp.free_running:
+            notes = [
+                "load           high at a clock edge: in_freq_word and in_phase_offset are loaded (and act",
+                "               at that edge's sample already); no input stream, one sample per clock",
+                f"phase          acc + po + dither * 2^{b - dp.dither_width}, top {dp.angle_width} of {dp.acc_width} bits kept (floor);",
+                "               acc <= acc + fw at every clock; fw, po the loaded words or, in the clock",
+                "               of a load, the ports' (docs/nco.md)",
+            ]
+        else:
+            notes = [
+                f"phase          acc + in_phase_offset + dither * 2^{b - dp.dither_width}, top {dp.angle_width} of {dp.acc_width} bits kept",
+                "               (floor); acc <= acc + in_freq_word at each taken sample (docs/nco.md)",
+            ]
         if dp.dither_width:
             notes.append(
                 f"dither         low {dp.dither_width} bits of a {dp.lfsr_width}-bit XOR LFSR (seed {dp.lfsr_seed:#x}), "
@@ -545,11 +611,20 @@ class NcoCore(SinCos):
             acc_width=dp.acc_width, angle_width=dp.angle_width, dither_width=dp.dither_width,
             lfsr_width=dp.lfsr_width, lfsr_seed=dp.lfsr_seed, lfsr_leap=leap,
             freq_port=FREQ_PORT, phase_port=PHASE_PORT, angle=CODE_WIRE,
+            load_port=LOAD_PORT if dp.free_running else "",
         )  # fmt: skip
 
+    def front_stages(self, dp: Datapath) -> int:
+        # The A-bit sum acc + offset + dither is a long carry chain: in a pipeline the phase
+        # code gets a register of its own instead of sharing the first iteration's clock.
+        return 1
+
     def hw_inputs(self, b: Builder, dp: Datapath) -> Start:
-        # The front stage (benchgen.hardware) has formed the phase code; the fold reads it.
-        return SinCos.hw_inputs(self, b, dp)
+        # The front stage (benchgen.hardware) has formed the phase code; it is registered here
+        # in a pipeline (a wire elsewhere), and the fold reads the register.
+        assert isinstance(dp, CircularDatapath)
+        code = b.stage({CODE_WIRE: b.sig(CODE_WIRE)})[CODE_WIRE]
+        return self.hw_start(b, dp, code)
 
 
 FUNCTION = NcoCore()

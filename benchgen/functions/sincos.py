@@ -15,7 +15,7 @@ from benchgen.functions.base import Inputs, Outputs, Port, octave, pack
 from benchgen.functions.circular import CircularDatapath, CircularFunction
 from benchgen.hwlib import Builder, Final, Start
 from benchgen.model import BLOCK, dtype_for, iterate, round_drop, saturate, to_signed
-from benchgen.netlist import Const, Mux
+from benchgen.netlist import Const, Mux, Sig
 from benchgen.reference import FLOAT64_MAX_DATA_WIDTH
 from benchgen.spec import CoreSpec
 
@@ -241,15 +241,21 @@ class SinCos(CircularFunction):
     # ---------------------------------------------------------------- hardware
 
     def hw_inputs(self, b: Builder, dp: Datapath) -> Start:
+        return self.hw_start(b, dp)
+
+    def hw_start(self, b: Builder, dp: Datapath, angle: Sig | None = None) -> Start:
+        """The fold of ``angle`` (the angle port when None) and the start vector (+-x_start, 0);
+        or, where the pipeline asks for it (:attr:`Builder.start_table`), the fold and the two
+        vectors for its table."""
         assert isinstance(dp, CircularDatapath)
         W = dp.xy_width
         if b.start_table:
-            fold, z = self.hw_fold(b, dp)
+            fold, z = self.hw_fold(b, dp, angle)
             return Start(None, None, z, select=fold, vectors=((dp.x_start, 0), (-dp.x_start, 0)))
         what = " times K" if dp.gain_mode == "compensated" else " (raw gain)"
         pos = b.param("X_START_POS", dp.x_start, W, f"amplitude{what}, {dp.guard_bits} guard bits")
         neg = b.param("X_START_NEG", -dp.x_start, W, "the same, negated (fold)")
-        fold, z = self.hw_fold(b, dp)
+        fold, z = self.hw_fold(b, dp, angle)
         x = b.wire("x_start", Mux(fold, neg, pos), of="xy")
         y = b.wire("y_start", Const(0, W), of="xy")
         return Start(x, y, z)

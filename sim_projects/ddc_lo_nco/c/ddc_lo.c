@@ -9,7 +9,7 @@
  * sample to sample; form the code as docs/nco.md's table says (benchgen.nco does).
  * ddc_lo_model() maps one sample's input codes to its output codes exactly as the RTL does.
  * It is the core's function, not its timing: no clock, latency, handshake or tag (the RTL's
- * result for an input leaves 19 clock(s) after it enters).
+ * result for an input leaves 20 clock(s) after it enters).
  * Printed from the same description of the core as the RTL.
  * Arithmetic: circular coordinates, rotation mode, 18 iterations, 5 guard bits; x, y 21 bits, z 23 bits.
  * Gain: compensated (K = 0.60725293501477238499, removed by the start value).

@@ -18,7 +18,7 @@
 // Internal widths: x, y 21 bits (5 guard bits); z 23 bits (23 fraction bits of a turn).
 // Worst error against the ideal, bit-true model: 0.8473 LSB (RMS 0.3211 LSB),
 // measured over every one of the 8192 input codes.
-// Timing: latency 19 clocks from input handshake to output handshake, one
+// Timing: latency 20 clocks from input handshake to output handshake, one
 // sample every 1 clock(s) at full rate.
 // Handshake: valid only. The sink takes every sample: out_valid is high for one clock per
 // result; a sample is taken at every rising edge where in_valid is high.
@@ -84,8 +84,8 @@ module ddc_lo (
     // The pipeline moves at every clock: the sink takes every sample.
 
     // ---- phase accumulator: 32 bits, the top 13 kept (floor) ----
-    wire take = in_valid;  // a sample is taken at this edge
     reg [31:0] acc_reg;
+    wire take = in_valid;  // a sample is taken at this edge
     wire [31:0] acc_next = acc_reg + in_freq_word;  // the word acts from the next sample
     /* verilator lint_off UNUSEDSIGNAL */
     wire [31:0] phase = acc_reg + in_phase_offset;  // modulo 2^32
@@ -100,12 +100,27 @@ module ddc_lo (
         end
     end
 
+    // ---- input stage 0 ----
+    reg f0_valid_reg;
+    reg [12:0] f0_phase_code_reg;
+
+    always @(posedge clk) begin
+        if (rst) begin
+            f0_valid_reg <= 1'b0;
+        end else begin
+            f0_valid_reg <= in_valid;
+        end
+    end
+
+    always @(posedge clk) begin
+        f0_phase_code_reg <= phase_code;
+    end
     // Quadrant fold: an angle in the left half-plane (top two bits differ) is turned by half a
     // turn, which flips its MSB and leaves the top two bits equal, and the vector starts
     // negated instead. What remains is within +-1/4 turn, inside the +-99.88 degree
     // convergence range.
-    wire in_fold = phase_code[12] ^ phase_code[11];
-    wire [Z_W-1:0] z_start = {phase_code[11], phase_code[11:0], 10'h000};
+    wire in_fold = f0_phase_code_reg[12] ^ f0_phase_code_reg[11];
+    wire [Z_W-1:0] z_start = {f0_phase_code_reg[11], f0_phase_code_reg[11:0], 10'h000};
 
     // ---- stage 0: iteration 0 ----
     // iteration 0: turn counter-clockwise when the remaining angle is >= 0
@@ -121,7 +136,7 @@ module ddc_lo (
         if (rst) begin
             s0_valid_reg <= 1'b0;
         end else begin
-            s0_valid_reg <= in_valid;
+            s0_valid_reg <= f0_valid_reg;
         end
     end
 
