@@ -661,22 +661,23 @@ def function_parts(module: Module, function: str, inputs: list[CPort], outputs: 
     pending = [st for st in module.body if _defines(st, needed)]
     comments: dict[int, list[str]] = _comments_before(module.body)
     first_pass = True
+    # Each target of a statement is defined once what it reads is there: a register block's
+    # targets may read one another (the output buffer's ready_reg reads its valid bits).
     while pending:
         left = []
+        progress = False
         for st in pending:
-            targets = [t for t in _targets(st, first) if t in needed]
-            exprs = [e for t in targets for e in reads(t)]
-            if not all(n in done for n in signals_used(exprs)):
-                left.append(st)
-                continue
-            if first_pass:
+            targets = [t for t in _targets(st, first) if t in needed and t not in done]
+            ready = [t for t in targets if all(n in done for n in signals_used(reads(t)))]
+            if first_pass and ready:
                 body += comments.get(id(st), [])
-            for target in targets:
-                if target not in needed or target in done:
-                    continue
+            for target in ready:
                 body += _define(printer, target, st, first, widths=widths)
                 done.add(target)
-        if len(left) == len(pending):  # pragma: no cover - feeds_back rules this out
+                progress = True
+            if len(ready) < len(targets):
+                left.append(st)
+        if left and not progress:  # pragma: no cover - feeds_back rules this out
             raise ValueError("the description has an undriven signal")
         pending, first_pass = left, False
 

@@ -479,15 +479,16 @@ class _Core:
         )
         b.note()
         fin = {name: b.sig("fin_tag" if name == "out_tag" else f"fin_{name}") for name, _ in ports}
+        # The output register loads in either case, and which source it loads is ready_reg
+        # alone (take_to_out has it high, spare_to_out low): one enable and a two-input mux per
+        # bit, where an if / else-if on the two conditions synthesised to a three-way choice
+        # (ECP5: 32 LUT4 and 32 PFUMX more for a 16/16 sincos; docs/hardware.md).
+        # (The spare entry's block comes first: the output register's mux reads it.)
+        load_out = b.wire("load_out", Or(take_to_out, spare_to_out))
+        m.add(RegisterBlock(updates=(((take_to_spare, tuple((regs[n][1], fin[n]) for n, _ in ports)),),)))
         m.add(
             RegisterBlock(
-                updates=(
-                    (
-                        (take_to_out, tuple((regs[n][0], fin[n]) for n, _ in ports)),
-                        (spare_to_out, tuple((regs[n][0], regs[n][1]) for n, _ in ports)),
-                    ),
-                    ((take_to_spare, tuple((regs[n][1], fin[n]) for n, _ in ports)),),
-                )
+                updates=(((load_out, tuple((regs[n][0], Mux(ready, fin[n], regs[n][1])) for n, _ in ports)),),)
             )
         )
         b.note()

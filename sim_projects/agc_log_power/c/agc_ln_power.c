@@ -81,6 +81,8 @@ static int64_t bg_signed(uint64_t v, unsigned w)
 void agc_ln_power_model(uint16_t in_w, int16_t *out_ln, uint8_t *out_domain_error)
 {
     const uint64_t in_w_bits = (uint64_t)in_w & UINT64_C(0xffff);
+    const uint64_t in_valid = UINT64_C(1);
+    const uint64_t out_ready = UINT64_C(1);
 
     /* Normalise: w = m 2^-e with m in [1/2, 1) (e = leading zeros), then hyperbolic vectoring */
     /* of (m + 1, m - 1) gives z = atanh((m - 1)/(m + 1)) = ln(m) / 2 (Walther 1971). */
@@ -121,6 +123,8 @@ void agc_ln_power_model(uint16_t in_w, int16_t *out_ln, uint8_t *out_domain_erro
     const uint64_t s0_y = ((y_3 + (dir_3 ? xs_3 : ((~xs_3) & UINT64_C(0x3fffff))) + ((~dir_3) & UINT64_C(1))) & UINT64_C(0x3fffff));
     const uint64_t s0_z = ((z_3 + (dir_3 ? ((~ATANH_3) & UINT64_C(0x1ffff)) : ATANH_3) + dir_3) & UINT64_C(0x1ffff));
 
+    const uint64_t s0_valid_reg = in_valid;  /* register, passed through */
+
     const uint64_t s0_x_reg = s0_x;  /* register, passed through */
     const uint64_t s0_y_reg = s0_y;  /* register, passed through */
     const uint64_t s0_z_reg = s0_z;  /* register, passed through */
@@ -156,6 +160,8 @@ void agc_ln_power_model(uint16_t in_w, int16_t *out_ln, uint8_t *out_domain_erro
     const uint64_t s1_x = ((x_7 + (dir_7 ? ys_7 : ((~ys_7) & UINT64_C(0x3fffff))) + ((~dir_7) & UINT64_C(1))) & UINT64_C(0x3fffff));
     const uint64_t s1_y = ((y_7 + (dir_7 ? xs_7 : ((~xs_7) & UINT64_C(0x3fffff))) + ((~dir_7) & UINT64_C(1))) & UINT64_C(0x3fffff));
     const uint64_t s1_z = ((z_7 + (dir_7 ? ((~ATANH_7) & UINT64_C(0x1ffff)) : ATANH_7) + dir_7) & UINT64_C(0x1ffff));
+
+    const uint64_t s1_valid_reg = s0_valid_reg;  /* register, passed through */
 
     const uint64_t s1_x_reg = s1_x;  /* register, passed through */
     const uint64_t s1_y_reg = s1_y;  /* register, passed through */
@@ -193,6 +199,8 @@ void agc_ln_power_model(uint16_t in_w, int16_t *out_ln, uint8_t *out_domain_erro
     const uint64_t s2_y = ((y_11 + (dir_11 ? xs_11 : ((~xs_11) & UINT64_C(0x3fffff))) + ((~dir_11) & UINT64_C(1))) & UINT64_C(0x3fffff));
     const uint64_t s2_z = ((z_11 + (dir_11 ? ((~ATANH_11) & UINT64_C(0x1ffff)) : ATANH_11) + dir_11) & UINT64_C(0x1ffff));
 
+    const uint64_t s2_valid_reg = s1_valid_reg;  /* register, passed through */
+
     const uint64_t s2_x_reg = s2_x;  /* register, passed through */
     const uint64_t s2_y_reg = s2_y;  /* register, passed through */
     const uint64_t s2_z_reg = s2_z;  /* register, passed through */
@@ -224,6 +232,11 @@ void agc_ln_power_model(uint16_t in_w, int16_t *out_ln, uint8_t *out_domain_erro
     /* iteration 15 (shift 14): turn counter-clockwise when y < 0 */
     const uint64_t dir_15 = (uint64_t)(y_15 >= Y_HALF);
     const uint64_t s3_z = ((z_15 + (dir_15 ? ((~ATANH_15) & UINT64_C(0x1ffff)) : ATANH_15) + dir_15) & UINT64_C(0x1ffff));
+
+    /* ---- output register: the last iteration's values, held so that rounding and */
+    /* saturation have a clock of their own ---- */
+
+    const uint64_t o_valid_reg = s2_valid_reg;  /* register, passed through */
 
     const uint64_t o_z_reg = s3_z;  /* register, passed through */
     const uint64_t o_bad_reg = s2_bad_reg;  /* register, passed through */
@@ -262,9 +275,16 @@ void agc_ln_power_model(uint16_t in_w, int16_t *out_ln, uint8_t *out_domain_erro
     const uint64_t ln = (ln_over ? UINT64_C(0x7fff) : (ln_under ? UINT64_C(0x8001) : (ln_q & UINT64_C(0xffff))));
     const uint64_t fin_out_ln = (o_bad_reg ? UINT64_C(0) : ln);
     const uint64_t fin_out_domain_error = o_bad_reg;
+    const uint64_t fin_valid = o_valid_reg;
 
-    const uint64_t out_ln_reg = fin_out_ln;  /* register, passed through */
-    const uint64_t out_domain_error_reg = fin_out_domain_error;  /* register, passed through */
+    const uint64_t out_valid_reg = fin_valid;  /* register, passed through */
+    const uint64_t spare_valid_reg = fin_valid;  /* register, passed through */
+    const uint64_t spare_out_ln_reg = fin_out_ln;  /* register, passed through */
+    const uint64_t spare_out_domain_error_reg = fin_out_domain_error;  /* register, passed through */
+    const uint64_t ready_next = (out_ready | (((~spare_valid_reg) & UINT64_C(1)) & (((~out_valid_reg) & UINT64_C(1)) | ((~fin_valid) & UINT64_C(1)))));
+    const uint64_t ready_reg = ready_next;  /* register, passed through */
+    const uint64_t out_ln_reg = (ready_reg ? fin_out_ln : spare_out_ln_reg);  /* register, passed through */
+    const uint64_t out_domain_error_reg = (ready_reg ? fin_out_domain_error : spare_out_domain_error_reg);  /* register, passed through */
     const uint64_t out_ln_bits = out_ln_reg;
     const uint64_t out_domain_error_bits = out_domain_error_reg;
     *out_ln = (int16_t)bg_signed(out_ln_bits, 16u);

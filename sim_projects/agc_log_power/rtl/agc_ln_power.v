@@ -379,17 +379,17 @@ module agc_ln_power (
         end
     end
 
+    wire load_out = take_to_out | spare_to_out;
     always @(posedge clk) begin
-        if (take_to_out) begin
-            out_ln_reg <= fin_out_ln;
-            out_domain_error_reg <= fin_out_domain_error;
-        end else if (spare_to_out) begin
-            out_ln_reg <= spare_out_ln_reg;
-            out_domain_error_reg <= spare_out_domain_error_reg;
-        end
         if (take_to_spare) begin
             spare_out_ln_reg <= fin_out_ln;
             spare_out_domain_error_reg <= fin_out_domain_error;
+        end
+    end
+    always @(posedge clk) begin
+        if (load_out) begin
+            out_ln_reg <= ready_reg ? fin_out_ln : spare_out_ln_reg;
+            out_domain_error_reg <= ready_reg ? fin_out_domain_error : spare_out_domain_error_reg;
         end
     end
 

@@ -68,6 +68,8 @@ static uint64_t bg_sra(uint64_t v, uint64_t s, unsigned w)
 void echo_envelope_sqrt_model(uint16_t in_w, uint16_t *out_sqrt)
 {
     const uint64_t in_w_bits = (uint64_t)in_w & UINT64_C(0x3fff);
+    const uint64_t in_valid = UINT64_C(1);
+    const uint64_t out_ready = UINT64_C(1);
 
     /* Normalise by an even shift 2k: m = w 2^2k in [1/4, 1), then hyperbolic vectoring of */
     /* (m + 1/4, m - 1/4) gives x = A_n sqrt(m) (Walther 1971); sqrt(w) = sqrt(m) 2^-k. */
@@ -90,6 +92,8 @@ void echo_envelope_sqrt_model(uint16_t in_w, uint16_t *out_sqrt)
     const uint64_t s0_x = ((x_start + (dir_0 ? ys_0 : ((~ys_0) & UINT64_C(0x7fffff))) + ((~dir_0) & UINT64_C(1))) & UINT64_C(0x7fffff));
     const uint64_t s0_y = ((y_start + (dir_0 ? xs_0 : ((~xs_0) & UINT64_C(0x7fffff))) + ((~dir_0) & UINT64_C(1))) & UINT64_C(0x7fffff));
 
+    const uint64_t s0_valid_reg = in_valid;  /* register, passed through */
+
     const uint64_t s0_x_reg = s0_x;  /* register, passed through */
     const uint64_t s0_y_reg = s0_y;  /* register, passed through */
     const uint64_t s0_zero_reg = in_zero;  /* register, passed through */
@@ -102,6 +106,8 @@ void echo_envelope_sqrt_model(uint16_t in_w, uint16_t *out_sqrt)
     const uint64_t ys_1 = ((((s0_y_reg >> 22) ? UINT64_C(3) : UINT64_C(0)) << 21) | (s0_y_reg >> 2)); /* y >>> 2 */
     const uint64_t s1_x = ((s0_x_reg + (dir_1 ? ys_1 : ((~ys_1) & UINT64_C(0x7fffff))) + ((~dir_1) & UINT64_C(1))) & UINT64_C(0x7fffff));
     const uint64_t s1_y = ((s0_y_reg + (dir_1 ? xs_1 : ((~xs_1) & UINT64_C(0x7fffff))) + ((~dir_1) & UINT64_C(1))) & UINT64_C(0x7fffff));
+
+    const uint64_t s1_valid_reg = s0_valid_reg;  /* register, passed through */
 
     const uint64_t s1_x_reg = s1_x;  /* register, passed through */
     const uint64_t s1_y_reg = s1_y;  /* register, passed through */
@@ -116,6 +122,8 @@ void echo_envelope_sqrt_model(uint16_t in_w, uint16_t *out_sqrt)
     const uint64_t s2_x = ((s1_x_reg + (dir_2 ? ys_2 : ((~ys_2) & UINT64_C(0x7fffff))) + ((~dir_2) & UINT64_C(1))) & UINT64_C(0x7fffff));
     const uint64_t s2_y = ((s1_y_reg + (dir_2 ? xs_2 : ((~xs_2) & UINT64_C(0x7fffff))) + ((~dir_2) & UINT64_C(1))) & UINT64_C(0x7fffff));
 
+    const uint64_t s2_valid_reg = s1_valid_reg;  /* register, passed through */
+
     const uint64_t s2_x_reg = s2_x;  /* register, passed through */
     const uint64_t s2_y_reg = s2_y;  /* register, passed through */
     const uint64_t s2_zero_reg = s1_zero_reg;  /* register, passed through */
@@ -128,6 +136,8 @@ void echo_envelope_sqrt_model(uint16_t in_w, uint16_t *out_sqrt)
     const uint64_t ys_3 = ((((s2_y_reg >> 22) ? UINT64_C(0xf) : UINT64_C(0)) << 19) | (s2_y_reg >> 4)); /* y >>> 4 */
     const uint64_t s3_x = ((s2_x_reg + (dir_3 ? ys_3 : ((~ys_3) & UINT64_C(0x7fffff))) + ((~dir_3) & UINT64_C(1))) & UINT64_C(0x7fffff));
     const uint64_t s3_y = ((s2_y_reg + (dir_3 ? xs_3 : ((~xs_3) & UINT64_C(0x7fffff))) + ((~dir_3) & UINT64_C(1))) & UINT64_C(0x7fffff));
+
+    const uint64_t s3_valid_reg = s2_valid_reg;  /* register, passed through */
 
     const uint64_t s3_x_reg = s3_x;  /* register, passed through */
     const uint64_t s3_y_reg = s3_y;  /* register, passed through */
@@ -142,6 +152,8 @@ void echo_envelope_sqrt_model(uint16_t in_w, uint16_t *out_sqrt)
     const uint64_t s4_x = ((s3_x_reg + (dir_4 ? ys_4 : ((~ys_4) & UINT64_C(0x7fffff))) + ((~dir_4) & UINT64_C(1))) & UINT64_C(0x7fffff));
     const uint64_t s4_y = ((s3_y_reg + (dir_4 ? xs_4 : ((~xs_4) & UINT64_C(0x7fffff))) + ((~dir_4) & UINT64_C(1))) & UINT64_C(0x7fffff));
 
+    const uint64_t s4_valid_reg = s3_valid_reg;  /* register, passed through */
+
     const uint64_t s4_x_reg = s4_x;  /* register, passed through */
     const uint64_t s4_y_reg = s4_y;  /* register, passed through */
     const uint64_t s4_zero_reg = s3_zero_reg;  /* register, passed through */
@@ -154,6 +166,8 @@ void echo_envelope_sqrt_model(uint16_t in_w, uint16_t *out_sqrt)
     const uint64_t ys_5 = ((((s4_y_reg >> 22) ? UINT64_C(0x1f) : UINT64_C(0)) << 18) | (s4_y_reg >> 5)); /* y >>> 5 */
     const uint64_t s5_x = ((s4_x_reg + (dir_5 ? ys_5 : ((~ys_5) & UINT64_C(0x7fffff))) + ((~dir_5) & UINT64_C(1))) & UINT64_C(0x7fffff));
     const uint64_t s5_y = ((s4_y_reg + (dir_5 ? xs_5 : ((~xs_5) & UINT64_C(0x7fffff))) + ((~dir_5) & UINT64_C(1))) & UINT64_C(0x7fffff));
+
+    const uint64_t s5_valid_reg = s4_valid_reg;  /* register, passed through */
 
     const uint64_t s5_x_reg = s5_x;  /* register, passed through */
     const uint64_t s5_y_reg = s5_y;  /* register, passed through */
@@ -168,6 +182,8 @@ void echo_envelope_sqrt_model(uint16_t in_w, uint16_t *out_sqrt)
     const uint64_t s6_x = ((s5_x_reg + (dir_6 ? ys_6 : ((~ys_6) & UINT64_C(0x7fffff))) + ((~dir_6) & UINT64_C(1))) & UINT64_C(0x7fffff));
     const uint64_t s6_y = ((s5_y_reg + (dir_6 ? xs_6 : ((~xs_6) & UINT64_C(0x7fffff))) + ((~dir_6) & UINT64_C(1))) & UINT64_C(0x7fffff));
 
+    const uint64_t s6_valid_reg = s5_valid_reg;  /* register, passed through */
+
     const uint64_t s6_x_reg = s6_x;  /* register, passed through */
     const uint64_t s6_y_reg = s6_y;  /* register, passed through */
     const uint64_t s6_zero_reg = s5_zero_reg;  /* register, passed through */
@@ -178,6 +194,11 @@ void echo_envelope_sqrt_model(uint16_t in_w, uint16_t *out_sqrt)
     const uint64_t dir_7 = (uint64_t)(s6_y_reg >= Y_HALF);
     const uint64_t ys_7 = ((((s6_y_reg >> 22) ? UINT64_C(0x7f) : UINT64_C(0)) << 16) | (s6_y_reg >> 7)); /* y >>> 7 */
     const uint64_t s7_x = ((s6_x_reg + (dir_7 ? ys_7 : ((~ys_7) & UINT64_C(0x7fffff))) + ((~dir_7) & UINT64_C(1))) & UINT64_C(0x7fffff));
+
+    /* ---- output register: the last iteration's values, held so that rounding and */
+    /* saturation have a clock of their own ---- */
+
+    const uint64_t o_valid_reg = s6_valid_reg;  /* register, passed through */
 
     const uint64_t o_x_reg = s7_x;  /* register, passed through */
     const uint64_t o_zero_reg = s6_zero_reg;  /* register, passed through */
@@ -194,8 +215,14 @@ void echo_envelope_sqrt_model(uint16_t in_w, uint16_t *out_sqrt)
     const uint64_t sq_value_over = (((~sq_value_neg) & UINT64_C(1)) & (uint64_t)(((sq_q >> 14) & UINT64_C(3)) != UINT64_C(0)));
     const uint64_t sq_value = (sq_value_neg ? UINT64_C(0) : (sq_value_over ? UINT64_C(0x3fff) : (sq_q & UINT64_C(0x3fff))));
     const uint64_t fin_out_sqrt = (o_zero_reg ? UINT64_C(0) : sq_value);
+    const uint64_t fin_valid = o_valid_reg;
 
-    const uint64_t out_sqrt_reg = fin_out_sqrt;  /* register, passed through */
+    const uint64_t out_valid_reg = fin_valid;  /* register, passed through */
+    const uint64_t spare_valid_reg = fin_valid;  /* register, passed through */
+    const uint64_t spare_out_sqrt_reg = fin_out_sqrt;  /* register, passed through */
+    const uint64_t ready_next = (out_ready | (((~spare_valid_reg) & UINT64_C(1)) & (((~out_valid_reg) & UINT64_C(1)) | ((~fin_valid) & UINT64_C(1)))));
+    const uint64_t ready_reg = ready_next;  /* register, passed through */
+    const uint64_t out_sqrt_reg = (ready_reg ? fin_out_sqrt : spare_out_sqrt_reg);  /* register, passed through */
     const uint64_t out_sqrt_bits = out_sqrt_reg;
     *out_sqrt = (uint16_t)out_sqrt_bits;
 }

@@ -206,17 +206,17 @@ module echo_envelope_sqrt (
         end
     end
 
+    wire load_out = take_to_out | spare_to_out;
     always @(posedge clk) begin
-        if (take_to_out) begin
-            out_sqrt_reg <= fin_out_sqrt;
-            out_tag_reg <= fin_tag;
-        end else if (spare_to_out) begin
-            out_sqrt_reg <= spare_out_sqrt_reg;
-            out_tag_reg <= spare_tag_reg;
-        end
         if (take_to_spare) begin
             spare_out_sqrt_reg <= fin_out_sqrt;
             spare_tag_reg <= fin_tag;
+        end
+    end
+    always @(posedge clk) begin
+        if (load_out) begin
+            out_sqrt_reg <= ready_reg ? fin_out_sqrt : spare_out_sqrt_reg;
+            out_tag_reg <= ready_reg ? fin_tag : spare_tag_reg;
         end
     end
 

@@ -74,6 +74,8 @@ static int64_t bg_signed(uint64_t v, unsigned w)
 void fft1024_twiddle_model(uint16_t in_angle, int32_t *out_cos, int32_t *out_sin)
 {
     const uint64_t in_angle_bits = (uint64_t)in_angle & UINT64_C(0x3ff);
+    const uint64_t in_valid = UINT64_C(1);
+    const uint64_t out_ready = UINT64_C(1);
 
     /* Quadrant fold: an angle in the left half-plane (top two bits differ) is turned by half a */
     /* turn, which flips its MSB and leaves the top two bits equal, and the vector starts */
@@ -111,6 +113,8 @@ void fft1024_twiddle_model(uint16_t in_angle, int32_t *out_cos, int32_t *out_sin
     const uint64_t s0_x = ((x_4 + (dir_4 ? ((~ys_4) & UINT64_C(0x3fffff)) : ys_4) + dir_4) & UINT64_C(0x3fffff));
     const uint64_t s0_y = ((y_4 + (dir_4 ? xs_4 : ((~xs_4) & UINT64_C(0x3fffff))) + ((~dir_4) & UINT64_C(1))) & UINT64_C(0x3fffff));
     const uint64_t s0_z = (((z_4 & UINT64_C(0x7ffff)) + (dir_4 ? ((~ATAN_4) & UINT64_C(0x7ffff)) : ATAN_4) + dir_4) & UINT64_C(0x7ffff));
+
+    const uint64_t s0_valid_reg = in_valid;  /* register, passed through */
 
     const uint64_t s0_x_reg = s0_x;  /* register, passed through */
     const uint64_t s0_y_reg = s0_y;  /* register, passed through */
@@ -153,6 +157,8 @@ void fft1024_twiddle_model(uint16_t in_angle, int32_t *out_cos, int32_t *out_sin
     const uint64_t s1_y = ((y_9 + (dir_9 ? xs_9 : ((~xs_9) & UINT64_C(0x3fffff))) + ((~dir_9) & UINT64_C(1))) & UINT64_C(0x3fffff));
     const uint64_t s1_z = (((z_9 & UINT64_C(0x3fff)) + (dir_9 ? ((~ATAN_9) & UINT64_C(0x3fff)) : ATAN_9) + dir_9) & UINT64_C(0x3fff));
 
+    const uint64_t s1_valid_reg = s0_valid_reg;  /* register, passed through */
+
     const uint64_t s1_x_reg = s1_x;  /* register, passed through */
     const uint64_t s1_y_reg = s1_y;  /* register, passed through */
     const uint64_t s1_z_reg = s1_z;  /* register, passed through */
@@ -194,6 +200,8 @@ void fft1024_twiddle_model(uint16_t in_angle, int32_t *out_cos, int32_t *out_sin
     const uint64_t s2_y = ((y_14 + (dir_14 ? xs_14 : ((~xs_14) & UINT64_C(0x3fffff))) + ((~dir_14) & UINT64_C(1))) & UINT64_C(0x3fffff));
     const uint64_t s2_z = (((z_14 & UINT64_C(0x1ff)) + (dir_14 ? ((~ATAN_14) & UINT64_C(0x1ff)) : ATAN_14) + dir_14) & UINT64_C(0x1ff));
 
+    const uint64_t s2_valid_reg = s1_valid_reg;  /* register, passed through */
+
     const uint64_t s2_x_reg = s2_x;  /* register, passed through */
     const uint64_t s2_y_reg = s2_y;  /* register, passed through */
     const uint64_t s2_z_reg = s2_z;  /* register, passed through */
@@ -234,6 +242,11 @@ void fft1024_twiddle_model(uint16_t in_angle, int32_t *out_cos, int32_t *out_sin
     const uint64_t s3_x = ((x_19 + (dir_19 ? ((~ys_19) & UINT64_C(0x3fffff)) : ys_19) + dir_19) & UINT64_C(0x3fffff));
     const uint64_t s3_y = ((y_19 + (dir_19 ? xs_19 : ((~xs_19) & UINT64_C(0x3fffff))) + ((~dir_19) & UINT64_C(1))) & UINT64_C(0x3fffff));
 
+    /* ---- output register: the last iteration's values, held so that rounding and */
+    /* saturation have a clock of their own ---- */
+
+    const uint64_t o_valid_reg = s2_valid_reg;  /* register, passed through */
+
     const uint64_t o_x_reg = s3_x;  /* register, passed through */
     const uint64_t o_y_reg = s3_y;  /* register, passed through */
 
@@ -246,9 +259,16 @@ void fft1024_twiddle_model(uint16_t in_angle, int32_t *out_cos, int32_t *out_sin
     const uint64_t fin_out_sin_biased = ((o_y_reg + UINT64_C(8)) & UINT64_C(0x3fffff)); /* half_up: bias below the kept bits */
     const uint64_t fin_out_sin_q = (fin_out_sin_biased >> 4);
     const uint64_t fin_out_sin = fin_out_sin_q; /* no saturation: every angle code stays within range (header) */
+    const uint64_t fin_valid = o_valid_reg;
 
-    const uint64_t out_cos_reg = fin_out_cos;  /* register, passed through */
-    const uint64_t out_sin_reg = fin_out_sin;  /* register, passed through */
+    const uint64_t out_valid_reg = fin_valid;  /* register, passed through */
+    const uint64_t spare_valid_reg = fin_valid;  /* register, passed through */
+    const uint64_t spare_out_cos_reg = fin_out_cos;  /* register, passed through */
+    const uint64_t spare_out_sin_reg = fin_out_sin;  /* register, passed through */
+    const uint64_t ready_next = (out_ready | (((~spare_valid_reg) & UINT64_C(1)) & (((~out_valid_reg) & UINT64_C(1)) | ((~fin_valid) & UINT64_C(1)))));
+    const uint64_t ready_reg = ready_next;  /* register, passed through */
+    const uint64_t out_cos_reg = (ready_reg ? fin_out_cos : spare_out_cos_reg);  /* register, passed through */
+    const uint64_t out_sin_reg = (ready_reg ? fin_out_sin : spare_out_sin_reg);  /* register, passed through */
     const uint64_t out_cos_bits = out_cos_reg;
     const uint64_t out_sin_bits = out_sin_reg;
     *out_cos = (int32_t)bg_signed(out_cos_bits, 18u);

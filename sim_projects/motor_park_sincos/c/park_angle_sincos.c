@@ -72,6 +72,8 @@ static int64_t bg_signed(uint64_t v, unsigned w)
 void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
 {
     const uint64_t in_angle_bits = (uint64_t)in_angle & UINT64_C(0xfff);
+    const uint64_t in_valid = UINT64_C(1);
+    const uint64_t out_ready = UINT64_C(1);
 
     /* Quadrant fold: an angle in the left half-plane (top two bits differ) is turned by half a */
     /* turn, which flips its MSB and leaves the top two bits equal, and the vector starts */
@@ -85,6 +87,8 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
     const uint64_t dir_0 = (uint64_t)(z_start < UINT64_C(0x80000));
     const uint64_t s0_z = (((z_start & UINT64_C(0x3ffff)) + (dir_0 ? ((~ATAN_0) & UINT64_C(0x3ffff)) : ATAN_0) + dir_0) & UINT64_C(0x3ffff));
 
+    const uint64_t s0_valid_reg = in_valid;  /* register, passed through */
+
     const uint64_t s0_fold_reg = in_fold;  /* register, passed through */
     const uint64_t s0_dir0_reg = dir_0;  /* register, passed through */
     const uint64_t s0_z_reg = s0_z;  /* register, passed through */
@@ -93,6 +97,8 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
     /* iteration 1: turn counter-clockwise when the remaining angle is >= 0 */
     const uint64_t dir_1 = (uint64_t)(s0_z_reg < UINT64_C(0x20000));
     const uint64_t s1_z = ((s0_z_reg + (dir_1 ? ((~ATAN_1) & UINT64_C(0x3ffff)) : ATAN_1) + dir_1) & UINT64_C(0x3ffff));
+
+    const uint64_t s1_valid_reg = s0_valid_reg;  /* register, passed through */
 
     const uint64_t s1_fold_reg = s0_fold_reg;  /* register, passed through */
     const uint64_t s1_dir0_reg = s0_dir0_reg;  /* register, passed through */
@@ -109,6 +115,8 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
     const uint64_t s2_x = (dir_2 ? (s1_dir1_reg ? (s1_dir0_reg ? (s1_fold_reg ? UINT64_C(0x3d924) : UINT64_C(0x26dc)) : (s1_fold_reg ? UINT64_C(0x206d4) : UINT64_C(0x1f92c))) : (s1_dir0_reg ? (s1_fold_reg ? UINT64_C(0x2548c) : UINT64_C(0x1ab74)) : (s1_fold_reg ? UINT64_C(0x2effc) : UINT64_C(0x11004)))) : (s1_dir1_reg ? (s1_dir0_reg ? (s1_fold_reg ? UINT64_C(0x2effc) : UINT64_C(0x11004)) : (s1_fold_reg ? UINT64_C(0x2548c) : UINT64_C(0x1ab74))) : (s1_dir0_reg ? (s1_fold_reg ? UINT64_C(0x206d4) : UINT64_C(0x1f92c)) : (s1_fold_reg ? UINT64_C(0x3d924) : UINT64_C(0x26dc)))));
     const uint64_t s2_y = (dir_2 ? (s1_dir1_reg ? (s1_dir0_reg ? (s1_fold_reg ? UINT64_C(0x206d4) : UINT64_C(0x1f92c)) : (s1_fold_reg ? UINT64_C(0x26dc) : UINT64_C(0x3d924))) : (s1_dir0_reg ? (s1_fold_reg ? UINT64_C(0x2effc) : UINT64_C(0x11004)) : (s1_fold_reg ? UINT64_C(0x1ab74) : UINT64_C(0x2548c)))) : (s1_dir1_reg ? (s1_dir0_reg ? (s1_fold_reg ? UINT64_C(0x2548c) : UINT64_C(0x1ab74)) : (s1_fold_reg ? UINT64_C(0x11004) : UINT64_C(0x2effc))) : (s1_dir0_reg ? (s1_fold_reg ? UINT64_C(0x3d924) : UINT64_C(0x26dc)) : (s1_fold_reg ? UINT64_C(0x1f92c) : UINT64_C(0x206d4)))));
 
+    const uint64_t s2_valid_reg = s1_valid_reg;  /* register, passed through */
+
     const uint64_t s2_x_reg = s2_x;  /* register, passed through */
     const uint64_t s2_y_reg = s2_y;  /* register, passed through */
     const uint64_t s2_z_reg = s2_z;  /* register, passed through */
@@ -121,6 +129,8 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
     const uint64_t s3_x = ((s2_x_reg + (dir_3 ? ((~ys_3) & UINT64_C(0x3ffff)) : ys_3) + dir_3) & UINT64_C(0x3ffff));
     const uint64_t s3_y = ((s2_y_reg + (dir_3 ? xs_3 : ((~xs_3) & UINT64_C(0x3ffff))) + ((~dir_3) & UINT64_C(1))) & UINT64_C(0x3ffff));
     const uint64_t s3_z = (((s2_z_reg & UINT64_C(0xffff)) + (dir_3 ? ((~ATAN_3) & UINT64_C(0xffff)) : ATAN_3) + dir_3) & UINT64_C(0xffff));
+
+    const uint64_t s3_valid_reg = s2_valid_reg;  /* register, passed through */
 
     const uint64_t s3_x_reg = s3_x;  /* register, passed through */
     const uint64_t s3_y_reg = s3_y;  /* register, passed through */
@@ -135,6 +145,8 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
     const uint64_t s4_y = ((s3_y_reg + (dir_4 ? xs_4 : ((~xs_4) & UINT64_C(0x3ffff))) + ((~dir_4) & UINT64_C(1))) & UINT64_C(0x3ffff));
     const uint64_t s4_z = (((s3_z_reg & UINT64_C(0x7fff)) + (dir_4 ? ((~ATAN_4) & UINT64_C(0x7fff)) : ATAN_4) + dir_4) & UINT64_C(0x7fff));
 
+    const uint64_t s4_valid_reg = s3_valid_reg;  /* register, passed through */
+
     const uint64_t s4_x_reg = s4_x;  /* register, passed through */
     const uint64_t s4_y_reg = s4_y;  /* register, passed through */
     const uint64_t s4_z_reg = s4_z;  /* register, passed through */
@@ -147,6 +159,8 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
     const uint64_t s5_x = ((s4_x_reg + (dir_5 ? ((~ys_5) & UINT64_C(0x3ffff)) : ys_5) + dir_5) & UINT64_C(0x3ffff));
     const uint64_t s5_y = ((s4_y_reg + (dir_5 ? xs_5 : ((~xs_5) & UINT64_C(0x3ffff))) + ((~dir_5) & UINT64_C(1))) & UINT64_C(0x3ffff));
     const uint64_t s5_z = (((s4_z_reg & UINT64_C(0x3fff)) + (dir_5 ? ((~ATAN_5) & UINT64_C(0x3fff)) : ATAN_5) + dir_5) & UINT64_C(0x3fff));
+
+    const uint64_t s5_valid_reg = s4_valid_reg;  /* register, passed through */
 
     const uint64_t s5_x_reg = s5_x;  /* register, passed through */
     const uint64_t s5_y_reg = s5_y;  /* register, passed through */
@@ -161,6 +175,8 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
     const uint64_t s6_y = ((s5_y_reg + (dir_6 ? xs_6 : ((~xs_6) & UINT64_C(0x3ffff))) + ((~dir_6) & UINT64_C(1))) & UINT64_C(0x3ffff));
     const uint64_t s6_z = (((s5_z_reg & UINT64_C(0x1fff)) + (dir_6 ? ((~ATAN_6) & UINT64_C(0x1fff)) : ATAN_6) + dir_6) & UINT64_C(0x1fff));
 
+    const uint64_t s6_valid_reg = s5_valid_reg;  /* register, passed through */
+
     const uint64_t s6_x_reg = s6_x;  /* register, passed through */
     const uint64_t s6_y_reg = s6_y;  /* register, passed through */
     const uint64_t s6_z_reg = s6_z;  /* register, passed through */
@@ -173,6 +189,8 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
     const uint64_t s7_x = ((s6_x_reg + (dir_7 ? ((~ys_7) & UINT64_C(0x3ffff)) : ys_7) + dir_7) & UINT64_C(0x3ffff));
     const uint64_t s7_y = ((s6_y_reg + (dir_7 ? xs_7 : ((~xs_7) & UINT64_C(0x3ffff))) + ((~dir_7) & UINT64_C(1))) & UINT64_C(0x3ffff));
     const uint64_t s7_z = (((s6_z_reg & UINT64_C(0xfff)) + (dir_7 ? ((~ATAN_7) & UINT64_C(0xfff)) : ATAN_7) + dir_7) & UINT64_C(0xfff));
+
+    const uint64_t s7_valid_reg = s6_valid_reg;  /* register, passed through */
 
     const uint64_t s7_x_reg = s7_x;  /* register, passed through */
     const uint64_t s7_y_reg = s7_y;  /* register, passed through */
@@ -187,6 +205,8 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
     const uint64_t s8_y = ((s7_y_reg + (dir_8 ? xs_8 : ((~xs_8) & UINT64_C(0x3ffff))) + ((~dir_8) & UINT64_C(1))) & UINT64_C(0x3ffff));
     const uint64_t s8_z = (((s7_z_reg & UINT64_C(0x7ff)) + (dir_8 ? ((~ATAN_8) & UINT64_C(0x7ff)) : ATAN_8) + dir_8) & UINT64_C(0x7ff));
 
+    const uint64_t s8_valid_reg = s7_valid_reg;  /* register, passed through */
+
     const uint64_t s8_x_reg = s8_x;  /* register, passed through */
     const uint64_t s8_y_reg = s8_y;  /* register, passed through */
     const uint64_t s8_z_reg = s8_z;  /* register, passed through */
@@ -199,6 +219,8 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
     const uint64_t s9_x = ((s8_x_reg + (dir_9 ? ((~ys_9) & UINT64_C(0x3ffff)) : ys_9) + dir_9) & UINT64_C(0x3ffff));
     const uint64_t s9_y = ((s8_y_reg + (dir_9 ? xs_9 : ((~xs_9) & UINT64_C(0x3ffff))) + ((~dir_9) & UINT64_C(1))) & UINT64_C(0x3ffff));
     const uint64_t s9_z = (((s8_z_reg & UINT64_C(0x3ff)) + (dir_9 ? ((~ATAN_9) & UINT64_C(0x3ff)) : ATAN_9) + dir_9) & UINT64_C(0x3ff));
+
+    const uint64_t s9_valid_reg = s8_valid_reg;  /* register, passed through */
 
     const uint64_t s9_x_reg = s9_x;  /* register, passed through */
     const uint64_t s9_y_reg = s9_y;  /* register, passed through */
@@ -213,6 +235,8 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
     const uint64_t s10_y = ((s9_y_reg + (dir_10 ? xs_10 : ((~xs_10) & UINT64_C(0x3ffff))) + ((~dir_10) & UINT64_C(1))) & UINT64_C(0x3ffff));
     const uint64_t s10_z = (((s9_z_reg & UINT64_C(0x1ff)) + (dir_10 ? ((~ATAN_10) & UINT64_C(0x1ff)) : ATAN_10) + dir_10) & UINT64_C(0x1ff));
 
+    const uint64_t s10_valid_reg = s9_valid_reg;  /* register, passed through */
+
     const uint64_t s10_x_reg = s10_x;  /* register, passed through */
     const uint64_t s10_y_reg = s10_y;  /* register, passed through */
     const uint64_t s10_z_reg = s10_z;  /* register, passed through */
@@ -225,6 +249,8 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
     const uint64_t s11_x = ((s10_x_reg + (dir_11 ? ((~ys_11) & UINT64_C(0x3ffff)) : ys_11) + dir_11) & UINT64_C(0x3ffff));
     const uint64_t s11_y = ((s10_y_reg + (dir_11 ? xs_11 : ((~xs_11) & UINT64_C(0x3ffff))) + ((~dir_11) & UINT64_C(1))) & UINT64_C(0x3ffff));
     const uint64_t s11_z = (((s10_z_reg & UINT64_C(0xff)) + (dir_11 ? ((~ATAN_11) & UINT64_C(0xff)) : ATAN_11) + dir_11) & UINT64_C(0xff));
+
+    const uint64_t s11_valid_reg = s10_valid_reg;  /* register, passed through */
 
     const uint64_t s11_x_reg = s11_x;  /* register, passed through */
     const uint64_t s11_y_reg = s11_y;  /* register, passed through */
@@ -239,6 +265,8 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
     const uint64_t s12_y = ((s11_y_reg + (dir_12 ? xs_12 : ((~xs_12) & UINT64_C(0x3ffff))) + ((~dir_12) & UINT64_C(1))) & UINT64_C(0x3ffff));
     const uint64_t s12_z = (((s11_z_reg & UINT64_C(0x7f)) + (dir_12 ? ((~ATAN_12) & UINT64_C(0x7f)) : ATAN_12) + dir_12) & UINT64_C(0x7f));
 
+    const uint64_t s12_valid_reg = s11_valid_reg;  /* register, passed through */
+
     const uint64_t s12_x_reg = s12_x;  /* register, passed through */
     const uint64_t s12_y_reg = s12_y;  /* register, passed through */
     const uint64_t s12_z_reg = s12_z;  /* register, passed through */
@@ -251,6 +279,8 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
     const uint64_t s13_x = ((s12_x_reg + (dir_13 ? ((~ys_13) & UINT64_C(0x3ffff)) : ys_13) + dir_13) & UINT64_C(0x3ffff));
     const uint64_t s13_y = ((s12_y_reg + (dir_13 ? xs_13 : ((~xs_13) & UINT64_C(0x3ffff))) + ((~dir_13) & UINT64_C(1))) & UINT64_C(0x3ffff));
     const uint64_t s13_z = (((s12_z_reg & UINT64_C(0x3f)) + (dir_13 ? ((~ATAN_13) & UINT64_C(0x3f)) : ATAN_13) + dir_13) & UINT64_C(0x3f));
+
+    const uint64_t s13_valid_reg = s12_valid_reg;  /* register, passed through */
 
     const uint64_t s13_x_reg = s13_x;  /* register, passed through */
     const uint64_t s13_y_reg = s13_y;  /* register, passed through */
@@ -265,6 +295,8 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
     const uint64_t s14_y = ((s13_y_reg + (dir_14 ? xs_14 : ((~xs_14) & UINT64_C(0x3ffff))) + ((~dir_14) & UINT64_C(1))) & UINT64_C(0x3ffff));
     const uint64_t s14_z = (((s13_z_reg & UINT64_C(0x1f)) + (dir_14 ? ((~ATAN_14) & UINT64_C(0x1f)) : ATAN_14) + dir_14) & UINT64_C(0x1f));
 
+    const uint64_t s14_valid_reg = s13_valid_reg;  /* register, passed through */
+
     const uint64_t s14_x_reg = s14_x;  /* register, passed through */
     const uint64_t s14_y_reg = s14_y;  /* register, passed through */
     const uint64_t s14_z_reg = s14_z;  /* register, passed through */
@@ -276,6 +308,11 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
     const uint64_t ys_15 = ((((s14_y_reg >> 17) ? UINT64_C(0x7fff) : UINT64_C(0)) << 3) | (s14_y_reg >> 15)); /* y >>> 15 */
     const uint64_t s15_x = ((s14_x_reg + (dir_15 ? ((~ys_15) & UINT64_C(0x3ffff)) : ys_15) + dir_15) & UINT64_C(0x3ffff));
     const uint64_t s15_y = ((s14_y_reg + (dir_15 ? xs_15 : ((~xs_15) & UINT64_C(0x3ffff))) + ((~dir_15) & UINT64_C(1))) & UINT64_C(0x3ffff));
+
+    /* ---- output register: the last iteration's values, held so that rounding and */
+    /* saturation have a clock of their own ---- */
+
+    const uint64_t o_valid_reg = s14_valid_reg;  /* register, passed through */
 
     const uint64_t o_x_reg = s15_x;  /* register, passed through */
     const uint64_t o_y_reg = s15_y;  /* register, passed through */
@@ -289,9 +326,16 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
     const uint64_t fin_out_sin_biased = ((o_y_reg + UINT64_C(7) + ((o_y_reg >> 4) & UINT64_C(1))) & UINT64_C(0x3ffff)); /* half_even: bias below the kept bits */
     const uint64_t fin_out_sin_q = (fin_out_sin_biased >> 4);
     const uint64_t fin_out_sin = fin_out_sin_q; /* no saturation: every angle code stays within range (header) */
+    const uint64_t fin_valid = o_valid_reg;
 
-    const uint64_t out_cos_reg = fin_out_cos;  /* register, passed through */
-    const uint64_t out_sin_reg = fin_out_sin;  /* register, passed through */
+    const uint64_t out_valid_reg = fin_valid;  /* register, passed through */
+    const uint64_t spare_valid_reg = fin_valid;  /* register, passed through */
+    const uint64_t spare_out_cos_reg = fin_out_cos;  /* register, passed through */
+    const uint64_t spare_out_sin_reg = fin_out_sin;  /* register, passed through */
+    const uint64_t ready_next = (out_ready | (((~spare_valid_reg) & UINT64_C(1)) & (((~out_valid_reg) & UINT64_C(1)) | ((~fin_valid) & UINT64_C(1)))));
+    const uint64_t ready_reg = ready_next;  /* register, passed through */
+    const uint64_t out_cos_reg = (ready_reg ? fin_out_cos : spare_out_cos_reg);  /* register, passed through */
+    const uint64_t out_sin_reg = (ready_reg ? fin_out_sin : spare_out_sin_reg);  /* register, passed through */
     const uint64_t out_cos_bits = out_cos_reg;
     const uint64_t out_sin_bits = out_sin_reg;
     *out_cos = (int16_t)bg_signed(out_cos_bits, 14u);

@@ -208,17 +208,17 @@ module park_angle_sincos (
         end
     end
 
+    wire load_out = take_to_out | spare_to_out;
     always @(posedge clk) begin
-        if (take_to_out) begin
-            out_cos_reg <= fin_out_cos;
-            out_sin_reg <= fin_out_sin;
-        end else if (spare_to_out) begin
-            out_cos_reg <= spare_out_cos_reg;
-            out_sin_reg <= spare_out_sin_reg;
-        end
         if (take_to_spare) begin
             spare_out_cos_reg <= fin_out_cos;
             spare_out_sin_reg <= fin_out_sin;
+        end
+    end
+    always @(posedge clk) begin
+        if (load_out) begin
+            out_cos_reg <= ready_reg ? fin_out_cos : spare_out_cos_reg;
+            out_sin_reg <= ready_reg ? fin_out_sin : spare_out_sin_reg;
         end
     end
 

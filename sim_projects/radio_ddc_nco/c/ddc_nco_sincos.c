@@ -70,6 +70,8 @@ static int64_t bg_signed(uint64_t v, unsigned w)
 void ddc_nco_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
 {
     const uint64_t in_angle_bits = (uint64_t)in_angle & UINT64_C(0xffff);
+    const uint64_t in_valid = UINT64_C(1);
+    const uint64_t out_ready = UINT64_C(1);
 
     /* Quadrant fold: an angle in the left half-plane (top two bits differ) is turned by half a */
     /* turn, which flips its MSB and leaves the top two bits equal, and the vector starts */
@@ -83,6 +85,8 @@ void ddc_nco_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
     const uint64_t dir_0 = (uint64_t)(z_start < UINT64_C(0x400000));
     const uint64_t s0_z = (((z_start & UINT64_C(0x1fffff)) + (dir_0 ? ((~ATAN_0) & UINT64_C(0x1fffff)) : ATAN_0) + dir_0) & UINT64_C(0x1fffff));
 
+    const uint64_t s0_valid_reg = in_valid;  /* register, passed through */
+
     const uint64_t s0_fold_reg = in_fold;  /* register, passed through */
     const uint64_t s0_dir0_reg = dir_0;  /* register, passed through */
     const uint64_t s0_z_reg = s0_z;  /* register, passed through */
@@ -91,6 +95,8 @@ void ddc_nco_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
     /* iteration 1: turn counter-clockwise when the remaining angle is >= 0 */
     const uint64_t dir_1 = (uint64_t)(s0_z_reg < UINT64_C(0x100000));
     const uint64_t s1_z = ((s0_z_reg + (dir_1 ? ((~ATAN_1) & UINT64_C(0x1fffff)) : ATAN_1) + dir_1) & UINT64_C(0x1fffff));
+
+    const uint64_t s1_valid_reg = s0_valid_reg;  /* register, passed through */
 
     const uint64_t s1_fold_reg = s0_fold_reg;  /* register, passed through */
     const uint64_t s1_dir0_reg = s0_dir0_reg;  /* register, passed through */
@@ -107,6 +113,8 @@ void ddc_nco_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
     const uint64_t s2_x = (dir_2 ? (s1_dir1_reg ? (s1_dir0_reg ? (s1_fold_reg ? UINT64_C(0x1ec91a) : UINT64_C(0x136e8)) : (s1_fold_reg ? UINT64_C(0x103641) : UINT64_C(0xfc9c1))) : (s1_dir0_reg ? (s1_fold_reg ? UINT64_C(0x12a40f) : UINT64_C(0xd5bf1)) : (s1_fold_reg ? UINT64_C(0x177fac) : UINT64_C(0x88053)))) : (s1_dir1_reg ? (s1_dir0_reg ? (s1_fold_reg ? UINT64_C(0x177fac) : UINT64_C(0x88054)) : (s1_fold_reg ? UINT64_C(0x12a40f) : UINT64_C(0xd5bf1))) : (s1_dir0_reg ? (s1_fold_reg ? UINT64_C(0x10363f) : UINT64_C(0xfc9bf)) : (s1_fold_reg ? UINT64_C(0x1ec918) : UINT64_C(0x136e7)))));
     const uint64_t s2_y = (dir_2 ? (s1_dir1_reg ? (s1_dir0_reg ? (s1_fold_reg ? UINT64_C(0x10363f) : UINT64_C(0xfc9bf)) : (s1_fold_reg ? UINT64_C(0x136e7) : UINT64_C(0x1ec918))) : (s1_dir0_reg ? (s1_fold_reg ? UINT64_C(0x177fac) : UINT64_C(0x88054)) : (s1_fold_reg ? UINT64_C(0xd5bf1) : UINT64_C(0x12a40f)))) : (s1_dir1_reg ? (s1_dir0_reg ? (s1_fold_reg ? UINT64_C(0x12a40f) : UINT64_C(0xd5bf1)) : (s1_fold_reg ? UINT64_C(0x88053) : UINT64_C(0x177fac))) : (s1_dir0_reg ? (s1_fold_reg ? UINT64_C(0x1ec91a) : UINT64_C(0x136e8)) : (s1_fold_reg ? UINT64_C(0xfc9c1) : UINT64_C(0x103641)))));
 
+    const uint64_t s2_valid_reg = s1_valid_reg;  /* register, passed through */
+
     const uint64_t s2_x_reg = s2_x;  /* register, passed through */
     const uint64_t s2_y_reg = s2_y;  /* register, passed through */
     const uint64_t s2_z_reg = s2_z;  /* register, passed through */
@@ -119,6 +127,8 @@ void ddc_nco_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
     const uint64_t s3_x = ((s2_x_reg + (dir_3 ? ((~ys_3) & UINT64_C(0x1fffff)) : ys_3) + dir_3) & UINT64_C(0x1fffff));
     const uint64_t s3_y = ((s2_y_reg + (dir_3 ? xs_3 : ((~xs_3) & UINT64_C(0x1fffff))) + ((~dir_3) & UINT64_C(1))) & UINT64_C(0x1fffff));
     const uint64_t s3_z = (((s2_z_reg & UINT64_C(0x7ffff)) + (dir_3 ? ((~ATAN_3) & UINT64_C(0x7ffff)) : ATAN_3) + dir_3) & UINT64_C(0x7ffff));
+
+    const uint64_t s3_valid_reg = s2_valid_reg;  /* register, passed through */
 
     const uint64_t s3_x_reg = s3_x;  /* register, passed through */
     const uint64_t s3_y_reg = s3_y;  /* register, passed through */
@@ -133,6 +143,8 @@ void ddc_nco_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
     const uint64_t s4_y = ((s3_y_reg + (dir_4 ? xs_4 : ((~xs_4) & UINT64_C(0x1fffff))) + ((~dir_4) & UINT64_C(1))) & UINT64_C(0x1fffff));
     const uint64_t s4_z = (((s3_z_reg & UINT64_C(0x3ffff)) + (dir_4 ? ((~ATAN_4) & UINT64_C(0x3ffff)) : ATAN_4) + dir_4) & UINT64_C(0x3ffff));
 
+    const uint64_t s4_valid_reg = s3_valid_reg;  /* register, passed through */
+
     const uint64_t s4_x_reg = s4_x;  /* register, passed through */
     const uint64_t s4_y_reg = s4_y;  /* register, passed through */
     const uint64_t s4_z_reg = s4_z;  /* register, passed through */
@@ -145,6 +157,8 @@ void ddc_nco_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
     const uint64_t s5_x = ((s4_x_reg + (dir_5 ? ((~ys_5) & UINT64_C(0x1fffff)) : ys_5) + dir_5) & UINT64_C(0x1fffff));
     const uint64_t s5_y = ((s4_y_reg + (dir_5 ? xs_5 : ((~xs_5) & UINT64_C(0x1fffff))) + ((~dir_5) & UINT64_C(1))) & UINT64_C(0x1fffff));
     const uint64_t s5_z = (((s4_z_reg & UINT64_C(0x1ffff)) + (dir_5 ? ((~ATAN_5) & UINT64_C(0x1ffff)) : ATAN_5) + dir_5) & UINT64_C(0x1ffff));
+
+    const uint64_t s5_valid_reg = s4_valid_reg;  /* register, passed through */
 
     const uint64_t s5_x_reg = s5_x;  /* register, passed through */
     const uint64_t s5_y_reg = s5_y;  /* register, passed through */
@@ -159,6 +173,8 @@ void ddc_nco_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
     const uint64_t s6_y = ((s5_y_reg + (dir_6 ? xs_6 : ((~xs_6) & UINT64_C(0x1fffff))) + ((~dir_6) & UINT64_C(1))) & UINT64_C(0x1fffff));
     const uint64_t s6_z = (((s5_z_reg & UINT64_C(0xffff)) + (dir_6 ? ((~ATAN_6) & UINT64_C(0xffff)) : ATAN_6) + dir_6) & UINT64_C(0xffff));
 
+    const uint64_t s6_valid_reg = s5_valid_reg;  /* register, passed through */
+
     const uint64_t s6_x_reg = s6_x;  /* register, passed through */
     const uint64_t s6_y_reg = s6_y;  /* register, passed through */
     const uint64_t s6_z_reg = s6_z;  /* register, passed through */
@@ -171,6 +187,8 @@ void ddc_nco_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
     const uint64_t s7_x = ((s6_x_reg + (dir_7 ? ((~ys_7) & UINT64_C(0x1fffff)) : ys_7) + dir_7) & UINT64_C(0x1fffff));
     const uint64_t s7_y = ((s6_y_reg + (dir_7 ? xs_7 : ((~xs_7) & UINT64_C(0x1fffff))) + ((~dir_7) & UINT64_C(1))) & UINT64_C(0x1fffff));
     const uint64_t s7_z = (((s6_z_reg & UINT64_C(0x7fff)) + (dir_7 ? ((~ATAN_7) & UINT64_C(0x7fff)) : ATAN_7) + dir_7) & UINT64_C(0x7fff));
+
+    const uint64_t s7_valid_reg = s6_valid_reg;  /* register, passed through */
 
     const uint64_t s7_x_reg = s7_x;  /* register, passed through */
     const uint64_t s7_y_reg = s7_y;  /* register, passed through */
@@ -185,6 +203,8 @@ void ddc_nco_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
     const uint64_t s8_y = ((s7_y_reg + (dir_8 ? xs_8 : ((~xs_8) & UINT64_C(0x1fffff))) + ((~dir_8) & UINT64_C(1))) & UINT64_C(0x1fffff));
     const uint64_t s8_z = (((s7_z_reg & UINT64_C(0x3fff)) + (dir_8 ? ((~ATAN_8) & UINT64_C(0x3fff)) : ATAN_8) + dir_8) & UINT64_C(0x3fff));
 
+    const uint64_t s8_valid_reg = s7_valid_reg;  /* register, passed through */
+
     const uint64_t s8_x_reg = s8_x;  /* register, passed through */
     const uint64_t s8_y_reg = s8_y;  /* register, passed through */
     const uint64_t s8_z_reg = s8_z;  /* register, passed through */
@@ -197,6 +217,8 @@ void ddc_nco_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
     const uint64_t s9_x = ((s8_x_reg + (dir_9 ? ((~ys_9) & UINT64_C(0x1fffff)) : ys_9) + dir_9) & UINT64_C(0x1fffff));
     const uint64_t s9_y = ((s8_y_reg + (dir_9 ? xs_9 : ((~xs_9) & UINT64_C(0x1fffff))) + ((~dir_9) & UINT64_C(1))) & UINT64_C(0x1fffff));
     const uint64_t s9_z = (((s8_z_reg & UINT64_C(0x1fff)) + (dir_9 ? ((~ATAN_9) & UINT64_C(0x1fff)) : ATAN_9) + dir_9) & UINT64_C(0x1fff));
+
+    const uint64_t s9_valid_reg = s8_valid_reg;  /* register, passed through */
 
     const uint64_t s9_x_reg = s9_x;  /* register, passed through */
     const uint64_t s9_y_reg = s9_y;  /* register, passed through */
@@ -211,6 +233,8 @@ void ddc_nco_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
     const uint64_t s10_y = ((s9_y_reg + (dir_10 ? xs_10 : ((~xs_10) & UINT64_C(0x1fffff))) + ((~dir_10) & UINT64_C(1))) & UINT64_C(0x1fffff));
     const uint64_t s10_z = (((s9_z_reg & UINT64_C(0xfff)) + (dir_10 ? ((~ATAN_10) & UINT64_C(0xfff)) : ATAN_10) + dir_10) & UINT64_C(0xfff));
 
+    const uint64_t s10_valid_reg = s9_valid_reg;  /* register, passed through */
+
     const uint64_t s10_x_reg = s10_x;  /* register, passed through */
     const uint64_t s10_y_reg = s10_y;  /* register, passed through */
     const uint64_t s10_z_reg = s10_z;  /* register, passed through */
@@ -223,6 +247,8 @@ void ddc_nco_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
     const uint64_t s11_x = ((s10_x_reg + (dir_11 ? ((~ys_11) & UINT64_C(0x1fffff)) : ys_11) + dir_11) & UINT64_C(0x1fffff));
     const uint64_t s11_y = ((s10_y_reg + (dir_11 ? xs_11 : ((~xs_11) & UINT64_C(0x1fffff))) + ((~dir_11) & UINT64_C(1))) & UINT64_C(0x1fffff));
     const uint64_t s11_z = (((s10_z_reg & UINT64_C(0x7ff)) + (dir_11 ? ((~ATAN_11) & UINT64_C(0x7ff)) : ATAN_11) + dir_11) & UINT64_C(0x7ff));
+
+    const uint64_t s11_valid_reg = s10_valid_reg;  /* register, passed through */
 
     const uint64_t s11_x_reg = s11_x;  /* register, passed through */
     const uint64_t s11_y_reg = s11_y;  /* register, passed through */
@@ -237,6 +263,8 @@ void ddc_nco_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
     const uint64_t s12_y = ((s11_y_reg + (dir_12 ? xs_12 : ((~xs_12) & UINT64_C(0x1fffff))) + ((~dir_12) & UINT64_C(1))) & UINT64_C(0x1fffff));
     const uint64_t s12_z = (((s11_z_reg & UINT64_C(0x3ff)) + (dir_12 ? ((~ATAN_12) & UINT64_C(0x3ff)) : ATAN_12) + dir_12) & UINT64_C(0x3ff));
 
+    const uint64_t s12_valid_reg = s11_valid_reg;  /* register, passed through */
+
     const uint64_t s12_x_reg = s12_x;  /* register, passed through */
     const uint64_t s12_y_reg = s12_y;  /* register, passed through */
     const uint64_t s12_z_reg = s12_z;  /* register, passed through */
@@ -249,6 +277,8 @@ void ddc_nco_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
     const uint64_t s13_x = ((s12_x_reg + (dir_13 ? ((~ys_13) & UINT64_C(0x1fffff)) : ys_13) + dir_13) & UINT64_C(0x1fffff));
     const uint64_t s13_y = ((s12_y_reg + (dir_13 ? xs_13 : ((~xs_13) & UINT64_C(0x1fffff))) + ((~dir_13) & UINT64_C(1))) & UINT64_C(0x1fffff));
     const uint64_t s13_z = (((s12_z_reg & UINT64_C(0x1ff)) + (dir_13 ? ((~ATAN_13) & UINT64_C(0x1ff)) : ATAN_13) + dir_13) & UINT64_C(0x1ff));
+
+    const uint64_t s13_valid_reg = s12_valid_reg;  /* register, passed through */
 
     const uint64_t s13_x_reg = s13_x;  /* register, passed through */
     const uint64_t s13_y_reg = s13_y;  /* register, passed through */
@@ -263,6 +293,8 @@ void ddc_nco_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
     const uint64_t s14_y = ((s13_y_reg + (dir_14 ? xs_14 : ((~xs_14) & UINT64_C(0x1fffff))) + ((~dir_14) & UINT64_C(1))) & UINT64_C(0x1fffff));
     const uint64_t s14_z = (((s13_z_reg & UINT64_C(0xff)) + (dir_14 ? ((~ATAN_14) & UINT64_C(0xff)) : ATAN_14) + dir_14) & UINT64_C(0xff));
 
+    const uint64_t s14_valid_reg = s13_valid_reg;  /* register, passed through */
+
     const uint64_t s14_x_reg = s14_x;  /* register, passed through */
     const uint64_t s14_y_reg = s14_y;  /* register, passed through */
     const uint64_t s14_z_reg = s14_z;  /* register, passed through */
@@ -275,6 +307,8 @@ void ddc_nco_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
     const uint64_t s15_x = ((s14_x_reg + (dir_15 ? ((~ys_15) & UINT64_C(0x1fffff)) : ys_15) + dir_15) & UINT64_C(0x1fffff));
     const uint64_t s15_y = ((s14_y_reg + (dir_15 ? xs_15 : ((~xs_15) & UINT64_C(0x1fffff))) + ((~dir_15) & UINT64_C(1))) & UINT64_C(0x1fffff));
     const uint64_t s15_z = (((s14_z_reg & UINT64_C(0x7f)) + (dir_15 ? ((~ATAN_15) & UINT64_C(0x7f)) : ATAN_15) + dir_15) & UINT64_C(0x7f));
+
+    const uint64_t s15_valid_reg = s14_valid_reg;  /* register, passed through */
 
     const uint64_t s15_x_reg = s15_x;  /* register, passed through */
     const uint64_t s15_y_reg = s15_y;  /* register, passed through */
@@ -289,6 +323,8 @@ void ddc_nco_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
     const uint64_t s16_y = ((s15_y_reg + (dir_16 ? xs_16 : ((~xs_16) & UINT64_C(0x1fffff))) + ((~dir_16) & UINT64_C(1))) & UINT64_C(0x1fffff));
     const uint64_t s16_z = (((s15_z_reg & UINT64_C(0x3f)) + (dir_16 ? ((~ATAN_16) & UINT64_C(0x3f)) : ATAN_16) + dir_16) & UINT64_C(0x3f));
 
+    const uint64_t s16_valid_reg = s15_valid_reg;  /* register, passed through */
+
     const uint64_t s16_x_reg = s16_x;  /* register, passed through */
     const uint64_t s16_y_reg = s16_y;  /* register, passed through */
     const uint64_t s16_z_reg = s16_z;  /* register, passed through */
@@ -300,6 +336,11 @@ void ddc_nco_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
     const uint64_t ys_17 = ((((s16_y_reg >> 20) ? UINT64_C(0x1ffff) : UINT64_C(0)) << 4) | (s16_y_reg >> 17)); /* y >>> 17 */
     const uint64_t s17_x = ((s16_x_reg + (dir_17 ? ((~ys_17) & UINT64_C(0x1fffff)) : ys_17) + dir_17) & UINT64_C(0x1fffff));
     const uint64_t s17_y = ((s16_y_reg + (dir_17 ? xs_17 : ((~xs_17) & UINT64_C(0x1fffff))) + ((~dir_17) & UINT64_C(1))) & UINT64_C(0x1fffff));
+
+    /* ---- output register: the last iteration's values, held so that rounding and */
+    /* saturation have a clock of their own ---- */
+
+    const uint64_t o_valid_reg = s16_valid_reg;  /* register, passed through */
 
     const uint64_t o_x_reg = s17_x;  /* register, passed through */
     const uint64_t o_y_reg = s17_y;  /* register, passed through */
@@ -313,9 +354,16 @@ void ddc_nco_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
     const uint64_t fin_out_sin_biased = ((o_y_reg + UINT64_C(0xf) + ((o_y_reg >> 5) & UINT64_C(1))) & UINT64_C(0x1fffff)); /* half_even: bias below the kept bits */
     const uint64_t fin_out_sin_q = (fin_out_sin_biased >> 5);
     const uint64_t fin_out_sin = fin_out_sin_q; /* no saturation: every angle code stays within range (header) */
+    const uint64_t fin_valid = o_valid_reg;
 
-    const uint64_t out_cos_reg = fin_out_cos;  /* register, passed through */
-    const uint64_t out_sin_reg = fin_out_sin;  /* register, passed through */
+    const uint64_t out_valid_reg = fin_valid;  /* register, passed through */
+    const uint64_t spare_valid_reg = fin_valid;  /* register, passed through */
+    const uint64_t spare_out_cos_reg = fin_out_cos;  /* register, passed through */
+    const uint64_t spare_out_sin_reg = fin_out_sin;  /* register, passed through */
+    const uint64_t ready_next = (out_ready | (((~spare_valid_reg) & UINT64_C(1)) & (((~out_valid_reg) & UINT64_C(1)) | ((~fin_valid) & UINT64_C(1)))));
+    const uint64_t ready_reg = ready_next;  /* register, passed through */
+    const uint64_t out_cos_reg = (ready_reg ? fin_out_cos : spare_out_cos_reg);  /* register, passed through */
+    const uint64_t out_sin_reg = (ready_reg ? fin_out_sin : spare_out_sin_reg);  /* register, passed through */
     const uint64_t out_cos_bits = out_cos_reg;
     const uint64_t out_sin_bits = out_sin_reg;
     *out_cos = (int16_t)bg_signed(out_cos_bits, 16u);
