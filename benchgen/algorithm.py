@@ -169,10 +169,13 @@ class Datapath:
             schedule with its repeats (:func:`hyperbolic_shifts`).
         in_frac: Fraction bits of the data input (hyperbolic functions; 0 elsewhere).
         out_frac: Fraction bits of the main data output (hyperbolic functions; 0 elsewhere).
-        saturates: Whether the data outputs carry saturation logic (and x, y a headroom bit
-            above the outputs' range). False only where every input of the core was evaluated
-            and none drives a rounded output beyond +-out_max nor x, y out of the narrower
-            width (:func:`benchgen.functions.final_datapath`): the logic would never act.
+        saturates: Whether the data outputs carry saturation logic: False only where every
+            input of the core was evaluated and none drives a rounded output beyond +-out_max
+            (:func:`benchgen.functions.final_datapath`): the logic would never act.
+        xy_narrowed: Whether x and y lack the headroom bit above the outputs' range, shown
+            unneeded the same way (no value of x or y, and no rounding add, reaches it). A
+            narrowed core's rounded output is out_width bits, so the most negative code is the
+            only one saturation can meet: it moves to -out_max.
     """
 
     function: str
@@ -198,6 +201,7 @@ class Datapath:
     in_frac: int = 0
     out_frac: int = 0
     saturates: bool = True
+    xy_narrowed: bool = False
 
     @property
     def radians(self) -> bool:

@@ -221,6 +221,15 @@ class Builder:
         body = Slice(q, qw - 2, 0)
         return self.wire(out, Mux(over, Const(limit, qw - 1), Mux(under, Const(-limit, qw - 1), body)))
 
+    def most_negative_up(self, out: str, q: Sig) -> Sig:
+        """``out``: ``q`` with its most negative code moved up by one, the only code of a
+        symmetric range (+-(2^(w-1) - 1)) that ``q`` can leave: setting the LSB where ``q`` is
+        that code, one gate after the compare."""
+        w = q.width
+        self.note(f"the code -{1 << (w - 1)} becomes -{(1 << (w - 1)) - 1}: the only one beyond the symmetric range")
+        low = self.wire(f"{out}_min", Cmp("==", q, Const(1 << (w - 1), w)))
+        return self.wire(out, Cat((Slice(q, w - 1, 1), Or(q[0], low))) if w > 1 else Or(q[0], low))
+
     def clamp(self, out: str, src: Sig, limit: int, bits: int) -> Sig:
         """``out``: the never-negative ``src`` clamped to [0, ``limit``] (``bits`` wide)."""
         qw = src.width

@@ -102,6 +102,7 @@ def manifest_for(design: Design) -> dict[str, Any]:
             "auto_fields": list(design.auto_fields),
             "xy_width": dp.xy_width,
             "saturates": dp.saturates,
+            "xy_narrowed": dp.xy_narrowed,
             "z_width": dp.z_width,
             "amplitude": dp.amplitude,
             "gain": dp.gain,

@@ -123,38 +123,47 @@ class SinCos(CircularFunction):
         return f"Gain: {dp.gain_mode} (K = {dp.gain}, {how})."
 
     def header_notes(self, dp: Datapath) -> list[str]:
+        if not dp.xy_narrowed:
+            return [f"rounding       {dp.rounding} where guard bits are dropped; data outputs saturate to +-{dp.out_max}"]
+        n = 1 << dp.angle_width
         if not dp.saturates:
             return [
-                f"rounding       {dp.rounding} where guard bits are dropped; no saturation: over every one of",
-                f"               the {1 << dp.angle_width} angle codes the outputs stay within +-{dp.out_max} and x, y within",
-                f"               {dp.xy_width} bits (evaluated when generated), so that logic would never act",
+                f"rounding       {dp.rounding} where guard bits are dropped; no saturation: over every one of the",
+                f"               {n} angle codes (evaluated when generated) the outputs stay within +-{dp.out_max}",
+                f"               and x, y within {dp.xy_width} bits",
             ]
-        return [f"rounding       {dp.rounding} where guard bits are dropped; data outputs saturate to +-{dp.out_max}"]
+        return [
+            f"rounding       {dp.rounding} where guard bits are dropped; x, y stay within {dp.xy_width} bits over every one",
+            f"               of the {n} angle codes (evaluated when generated), so only the code -{dp.out_max + 1}",
+            f"               can leave +-{dp.out_max}: it moves to -{dp.out_max}",
+        ]
 
     # ---------------------------------------------------------------- range proof
 
     def proved_range(self, dp: Datapath) -> Datapath:
-        """Without saturation and x/y's headroom bit when no angle code can need them.
+        """Without x/y's headroom bit, and without saturation, where no angle code needs them.
 
         Every angle code is run through the model's own iterations (int64, unwrapped) and the
-        extremes of x and y after every iteration are kept, with the rounded outputs. The
-        narrower data path is returned only if, for every code: x and y fit ``xy_width - 1``
-        bits after every iteration, so that no register wraps; the rounding add of the last
-        values (``v`` plus at most half an output LSB) does not reach the top of that width;
-        and the rounded outputs lie within ``+-out_max``, so saturation would pass them
-        unchanged. The narrower core then computes the same bits as the wider one for every
-        input (tests/test_range_proof.py holds the two models equal on every code).
+        extremes of x and y after every iteration are kept, with the rounded outputs. x and y
+        lose their headroom bit (``xy_narrowed``) only if, for every code, they fit
+        ``xy_width - 1`` bits after every iteration (no register wraps) and the rounding add of
+        the last values (plus at most half an output LSB) stays below the top of that width;
+        the rounded output then fits ``out_width`` bits, and saturation can meet only the most
+        negative code. Saturation is dropped too (``saturates = False``) if no code rounds
+        beyond ``+-out_max``. Either way the core computes the same bits as the wide one on
+        every input (tests/test_range_proof.py holds the models equal on every code).
         """
         assert isinstance(dp, CircularDatapath)
         if (
-            not dp.saturates
+            dp.xy_narrowed
+            or not dp.saturates
             or dp.angle_width > RANGE_PROOF_BITS
             or dp.iterations > dp.xy_width - 1
+            or dp.out_max != (1 << (dp.out_width - 1)) - 1
             or dtype_for(self.model_bits(dp)) == object  # the visitor runs on the int64 path
         ):
             return dp
-        narrow = replace(dp, xy_width=dp.xy_width - 1, saturates=False)
-        limit = 1 << (narrow.xy_width - 1)
+        limit = 1 << (dp.xy_width - 2)  # the narrower width's signed range: -limit .. limit - 1
         drop = self.drops(dp)["x"]
         slack = (1 << (drop - 1)) if drop and dp.rounding != "truncate" else 0
         low, high = 0, 0
@@ -165,6 +174,7 @@ class SinCos(CircularFunction):
             high = max(high, int(x.max()), int(y.max()))
 
         out_w = dp.out_width + 1
+        beyond = False  # a rounded output beyond +-out_max
         for lo in range(0, 1 << dp.angle_width, BLOCK):
             codes = np.arange(lo, min(lo + BLOCK, 1 << dp.angle_width), dtype=np.int64)
             z, fold = self.fold(dp, codes)
@@ -174,9 +184,8 @@ class SinCos(CircularFunction):
                 return dp
             for v in (x, y):
                 q = round_drop(v, dp.guard_bits, dp.rounding, out_w)
-                if int(q.min()) < -dp.out_max or int(q.max()) > dp.out_max:
-                    return dp
-        return narrow
+                beyond = beyond or int(q.min()) < -dp.out_max or int(q.max()) > dp.out_max
+        return replace(dp, xy_width=dp.xy_width - 1, xy_narrowed=True, saturates=beyond)
 
     # ---------------------------------------------------------------- model
 
@@ -267,8 +276,10 @@ class SinCos(CircularFunction):
             ("fin_out_sin", final.y, final.y_kept, drops["y"]),
         ):
             q = b.round_q(port, value, dp.xy_width, drop, kept)
-            if dp.saturates:
+            if not dp.xy_narrowed:
                 b.saturate(port, q, dp.out_max)
+            elif dp.saturates:
+                b.most_negative_up(port, q)
             else:
                 assert q.width == dp.out_width
                 b.wire(port, q, "no saturation: every angle code stays within range (header)")
