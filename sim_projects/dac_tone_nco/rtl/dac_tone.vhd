@@ -16,9 +16,9 @@
 --                  acc <= acc + fw at every clock; fw, po the loaded words or, in the clock
 --                  of a load, the ports' (docs/nco.md)
 --   dither         low 4 bits of a 32-bit XOR LFSR (seed 0xffffffff), 4 steps per sample
---   rounding       half_even where guard bits are dropped; no saturation: over every one of
---                  the 16384 angle codes the outputs stay within +-32767 and x, y within
---                  21 bits (evaluated when generated), so that logic would never act
+--   rounding       half_even where guard bits are dropped; no saturation: over every one of the
+--                  16384 angle codes (evaluated when generated) the outputs stay within +-32767
+--                  and x, y within 21 bits
 -- Internal widths: x, y 21 bits (5 guard bits); z 23 bits (23 fraction bits of a turn).
 -- Worst error against the ideal, bit-true model: 0.8473 LSB (RMS 0.3172 LSB),
 -- measured over every one of the 16384 input codes.

@@ -18,9 +18,9 @@
  *   in_angle       binary angle, 13 bits, 2^13 codes per turn
  *   out_cos        two's complement, 16 bits, amplitude 32767
  *   out_sin        two's complement, 16 bits, amplitude 32767
- *   rounding       half_even where guard bits are dropped; no saturation: over every one of
- *                  the 8192 angle codes the outputs stay within +-32767 and x, y within
- *                  21 bits (evaluated when generated), so that logic would never act
+ *   rounding       half_even where guard bits are dropped; no saturation: over every one of the
+ *                  8192 angle codes (evaluated when generated) the outputs stay within +-32767
+ *                  and x, y within 21 bits
  *
  * Codes: each argument holds a port's code, two's complement where the port is signed
  * (in_angle uint16_t, out_cos int16_t, out_sin int16_t);

@@ -12,9 +12,9 @@
 //   out_sin        two's complement, 16 bits, amplitude 32767
 //   phase          acc + in_phase_offset + dither * 2^19, top 13 of 32 bits kept
 //                  (floor); acc <= acc + in_freq_word at each taken sample (docs/nco.md)
-//   rounding       half_even where guard bits are dropped; no saturation: over every one of
-//                  the 8192 angle codes the outputs stay within +-32767 and x, y within
-//                  21 bits (evaluated when generated), so that logic would never act
+//   rounding       half_even where guard bits are dropped; no saturation: over every one of the
+//                  8192 angle codes (evaluated when generated) the outputs stay within +-32767
+//                  and x, y within 21 bits
 // Internal widths: x, y 21 bits (5 guard bits); z 23 bits (23 fraction bits of a turn).
 // Worst error against the ideal, bit-true model: 0.8473 LSB (RMS 0.3211 LSB),
 // measured over every one of the 8192 input codes.

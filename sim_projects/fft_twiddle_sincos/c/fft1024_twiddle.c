@@ -15,9 +15,9 @@
  *   in_angle       binary angle, 10 bits, 2^10 codes per turn
  *   out_cos        two's complement, 18 bits, amplitude 131071
  *   out_sin        two's complement, 18 bits, amplitude 131071
- *   rounding       half_up where guard bits are dropped; no saturation: over every one of
- *                  the 1024 angle codes the outputs stay within +-131071 and x, y within
- *                  22 bits (evaluated when generated), so that logic would never act
+ *   rounding       half_up where guard bits are dropped; no saturation: over every one of the
+ *                  1024 angle codes (evaluated when generated) the outputs stay within +-131071
+ *                  and x, y within 22 bits
  *
  * Codes: each argument holds a port's code, two's complement where the port is signed
  * (in_angle uint16_t, out_cos int32_t, out_sin int32_t);

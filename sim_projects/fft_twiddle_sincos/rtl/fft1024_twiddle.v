@@ -9,9 +9,9 @@
 //   in_angle       binary angle, 10 bits, 2^10 codes per turn
 //   out_cos        two's complement, 18 bits, amplitude 131071
 //   out_sin        two's complement, 18 bits, amplitude 131071
-//   rounding       half_up where guard bits are dropped; no saturation: over every one of
-//                  the 1024 angle codes the outputs stay within +-131071 and x, y within
-//                  22 bits (evaluated when generated), so that logic would never act
+//   rounding       half_up where guard bits are dropped; no saturation: over every one of the
+//                  1024 angle codes (evaluated when generated) the outputs stay within +-131071
+//                  and x, y within 22 bits
 // Internal widths: x, y 22 bits (4 guard bits); z 24 bits (24 fraction bits of a turn).
 // Worst error against the ideal, bit-true model: 0.9349 LSB (RMS 0.3469 LSB),
 // measured over every one of the 1024 input codes.

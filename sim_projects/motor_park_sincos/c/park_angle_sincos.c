@@ -17,9 +17,9 @@
  *   in_angle       binary angle, 12 bits, 2^12 codes per turn
  *   out_cos        two's complement, 14 bits, amplitude 8191
  *   out_sin        two's complement, 14 bits, amplitude 8191
- *   rounding       half_even where guard bits are dropped; no saturation: over every one of
- *                  the 4096 angle codes the outputs stay within +-8191 and x, y within
- *                  18 bits (evaluated when generated), so that logic would never act
+ *   rounding       half_even where guard bits are dropped; no saturation: over every one of the
+ *                  4096 angle codes (evaluated when generated) the outputs stay within +-8191
+ *                  and x, y within 18 bits
  *
  * Codes: each argument holds a port's code, two's complement where the port is signed
  * (in_angle uint16_t, out_cos int16_t, out_sin int16_t);

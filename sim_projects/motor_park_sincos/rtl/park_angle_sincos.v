@@ -9,9 +9,9 @@
 //   in_angle       binary angle, 12 bits, 2^12 codes per turn
 //   out_cos        two's complement, 14 bits, amplitude 8191
 //   out_sin        two's complement, 14 bits, amplitude 8191
-//   rounding       half_even where guard bits are dropped; no saturation: over every one of
-//                  the 4096 angle codes the outputs stay within +-8191 and x, y within
-//                  18 bits (evaluated when generated), so that logic would never act
+//   rounding       half_even where guard bits are dropped; no saturation: over every one of the
+//                  4096 angle codes (evaluated when generated) the outputs stay within +-8191
+//                  and x, y within 18 bits
 // Internal widths: x, y 18 bits (4 guard bits); z 20 bits (20 fraction bits of a turn).
 // Worst error against the ideal, bit-true model: 0.9447 LSB (RMS 0.3427 LSB),
 // measured over every one of the 4096 input codes.

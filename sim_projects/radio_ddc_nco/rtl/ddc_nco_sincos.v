@@ -9,9 +9,9 @@
 //   in_angle       binary angle, 16 bits, 2^16 codes per turn
 //   out_cos        two's complement, 16 bits, amplitude 32767
 //   out_sin        two's complement, 16 bits, amplitude 32767
-//   rounding       half_even where guard bits are dropped; no saturation: over every one of
-//                  the 65536 angle codes the outputs stay within +-32767 and x, y within
-//                  21 bits (evaluated when generated), so that logic would never act
+//   rounding       half_even where guard bits are dropped; no saturation: over every one of the
+//                  65536 angle codes (evaluated when generated) the outputs stay within +-32767
+//                  and x, y within 21 bits
 // Internal widths: x, y 21 bits (5 guard bits); z 23 bits (23 fraction bits of a turn).
 // Worst error against the ideal, bit-true model: 0.8835 LSB (RMS 0.3143 LSB),
 // measured over every one of the 65536 input codes.
