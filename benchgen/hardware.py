@@ -506,8 +506,9 @@ class _Core:
         reads ``acc_reg + offset + dither`` and keeps the top bits (the function's input logic
         reads them by name); the same edge loads ``acc_reg + freq`` and advances the dither LFSR
         by its D-step map. Reset loads 0 and the seed. A free-running core's words come from
-        ``fw_reg``/``po_reg``, or from the ports in the clock of a load (which also loads them). The accumulator feeds itself, so the transparent evaluator (netlist.evaluate)
-        takes ``acc_reg`` and ``lfsr_reg`` as given values.
+        ``fw_reg``/``po_reg``, or from the ports in the clock of a load (which also loads them).
+        The accumulator feeds itself, so the transparent evaluator (netlist.evaluate) takes
+        ``acc_reg`` and ``lfsr_reg`` as given values.
         """
         front = self.fn.phase_front(self.dp)
         if front is None:
