@@ -39,7 +39,6 @@ more phase bits than the minimum this picks; the minimum is what the target need
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 from typing import Any
 
@@ -56,7 +55,7 @@ from benchgen.functions.nco import (
 )
 from benchgen.functions.sincos import FUNCTION as SINCOS
 from benchgen.nco import Nco, run
-from benchgen.nco_theory import truncation_word
+from benchgen.nco_theory import word_near_seventh
 from benchgen.spectrum import measure_tone
 
 __all__ = [
@@ -101,13 +100,6 @@ class SpectrumCheck:
     snr_db: float
 
 
-def _prime_near(x: int) -> int:
-    c = max(3, x) | 1
-    while any(c % d == 0 for d in range(3, math.isqrt(c) + 1, 2)):
-        c += 2
-    return c
-
-
 def spectrum_checks(nco: Nco, dp: Datapath) -> tuple[SpectrumCheck, ...]:
     """Measure the quadrature spectrum of the model at the words that stress phase truncation.
 
@@ -128,10 +120,7 @@ def spectrum_checks(nco: Nco, dp: Datapath) -> tuple[SpectrumCheck, ...]:
     checks = []
     for label, bits, period, offset in plans:
         n_fft = 1 << bits
-        # odd * n_fft / (M 2**P) cycles: pick the odd factor so the carrier lands near n_fft / 7.
-        per_odd = max(1, n_fft // (period << p)) if period > 1 else max(1, n_fft >> p)
-        odd = _prime_near(max(3, n_fft // 7 // per_odd))
-        word = truncation_word(a, p, n_fft, period, odd)
+        word = word_near_seventh(a, p, n_fft, period)
         out = run(nco, dp, n_fft, freq_word=word.freq_word, phase_offset=offset)
         m = measure_tone(out.complex(), word.cycles)
         checks.append(

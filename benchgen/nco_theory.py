@@ -67,6 +67,7 @@ __all__ = [
     "truncation_snr_db",
     "truncation_spur_dbc",
     "truncation_word",
+    "word_near_seventh",
 ]
 
 
@@ -225,6 +226,22 @@ def truncation_word(acc_width: int, phase_bits: int, n_fft: int, period: int, od
         raise ValueError(f"odd = {odd} puts the carrier outside the {n_fft}-point record")
     word = coherent_word(acc_width, n_fft, cycles)
     return WordChoice(freq_word=word, cycles=cycles, period=truncation_period(word, acc_width, phase_bits))
+
+
+def _prime_at_least(x: int) -> int:
+    """The smallest odd prime at or above ``x`` (at least 3): an odd carrier bin that no
+    sub-multiple of the record repeats (IEEE Std 1241)."""
+    c = max(3, x) | 1
+    while any(c % d == 0 for d in range(3, math.isqrt(c) + 1, 2)):
+        c += 2
+    return c
+
+
+def word_near_seventh(acc_width: int, phase_bits: int, n_fft: int, period: int) -> WordChoice:
+    """:func:`truncation_word` with its carrier near f_clk / 7, away from DC, Nyquist and their
+    images: the odd factor is the prime at or above the one that puts it there."""
+    per_odd = max(1, n_fft // (period << phase_bits)) if period > 1 else max(1, n_fft >> phase_bits)
+    return truncation_word(acc_width, phase_bits, n_fft, period, _prime_at_least(n_fft // 7 // per_odd))
 
 
 def freq_word_for(frequency: Fraction | float, f_clk: Fraction | float, acc_width: int) -> tuple[int, Fraction]:

@@ -47,7 +47,7 @@ from benchgen.nco_theory import (
     expected_max_noise_bin_db,
     nicholas_samueli_worst_dbc,
     truncation_snr_db,
-    truncation_word,
+    word_near_seventh,
 )
 from benchgen.spectrum import analyse_tone, coherent_phase_codes, ideal_snr_db, measure_frequency, measure_tone
 
@@ -184,15 +184,6 @@ def _tone(design: Design) -> dict[str, Any]:
     }
 
 
-def _prime_near(x: int) -> int:
-    """The smallest odd prime at or above ``x`` (at least 3): an odd carrier bin that no
-    sub-multiple of the record repeats (IEEE Std 1241)."""
-    c = max(3, x) | 1
-    while any(c % d == 0 for d in range(3, math.isqrt(c) + 1, 2)):
-        c += 2
-    return c
-
-
 def _short(value: float) -> float:
     """A measured frequency error kept to 6 significant digits: short in JSON, and the same bytes
     from run to run."""
@@ -221,10 +212,7 @@ def _nco_word(nco: Nco, design: Design, which: str) -> dict[str, Any] | None:
     if bits > NCO_MAX_FFT_BITS:
         return None
     n = 1 << bits
-    # odd * n / (M 2^P) cycles (odd * max(1, n / 2^P) for an exact word): pick the odd factor so
-    # the carrier lands near f_clk / 7, away from DC, Nyquist and their images.
-    per_odd = max(1, n // (period << p)) if period > 1 else max(1, n >> p)
-    word = truncation_word(a, p, n, period, _prime_near(n // 7 // per_odd))
+    word = word_near_seventh(a, p, n, period)
     out = run(nco, core, n, freq_word=word.freq_word)
     samples = out.complex()
     m = measure_tone(samples, word.cycles)
