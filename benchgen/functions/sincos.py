@@ -209,16 +209,12 @@ class SinCos(CircularFunction):
         if dtype == object:
             z = z.astype(object)
         x, y, _ = iterate(dp, x, y, z, dtype)
-        out_w = dp.out_width + 1
-        if not dp.saturates:  # proved: no code drives them beyond +-out_max (proved_range)
-            return {
-                "out_cos": round_drop(x, dp.guard_bits, dp.rounding, out_w),
-                "out_sin": round_drop(y, dp.guard_bits, dp.rounding, out_w),
-            }
-        return {
-            "out_cos": saturate(round_drop(x, dp.guard_bits, dp.rounding, out_w), dp.out_max),
-            "out_sin": saturate(round_drop(y, dp.guard_bits, dp.rounding, out_w), dp.out_max),
-        }
+        out: Outputs = {}
+        for port, v in (("out_cos", x), ("out_sin", y)):
+            q = round_drop(v, dp.guard_bits, dp.rounding, dp.out_width + 1)
+            # without saturation only where every code was shown to stay in range (proved_range)
+            out[port] = saturate(q, dp.out_max) if dp.saturates else q
+        return out
 
     def tone(self, dp: Datapath, angles: npt.NDArray[Any]) -> npt.NDArray[Any]:
         """The sine output for the angle codes."""
