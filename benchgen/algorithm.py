@@ -267,11 +267,13 @@ class Timing:
         return len(self.stages)
 
 
-def make_timing(spec: CoreSpec, iterations: int, front: int = 0) -> Timing:
+def make_timing(spec: CoreSpec, iterations: int, front: int = 0, head: int = 0) -> Timing:
     """Spread the iterations over register stages (pipelined) or clocks (iterative).
 
     ``front``: register stages the function's input logic takes in a pipeline (see
     :meth:`benchgen.functions.base.Function.front_stages`; ignored by an iterative core).
+    ``head``: iterative cores: the first iterations, formed by table in the clock that loads
+    a sample (:func:`benchgen.functions.table_head`); the clocks iterate over the rest.
 
     Raises:
         ConfigError: if the depth or iterations per cycle exceed the iterations.
@@ -300,12 +302,14 @@ def make_timing(spec: CoreSpec, iterations: int, front: int = 0) -> Timing:
             f"from 1 to the number of iterations ({n}, sized automatically)",
             f"set iterations_per_cycle to at most {n}, or fix iterations to a larger number",
         )
-    cycles = -(-n // per_cycle)
-    bounds = tuple((c * per_cycle, min(n, (c + 1) * per_cycle)) for c in range(cycles))
-    # One clock loads the folded start values, `cycles` clocks iterate (the last of them
-    # writes the output register of the last iteration's values), and one more rounds and
-    # saturates from that register into the output: cycles + 2. A new sample loads in the last
-    # iteration's clock, so one sample every `cycles` clocks.
+    looped = n - head
+    per_cycle = min(per_cycle, looped)
+    cycles = -(-looped // per_cycle)
+    bounds = tuple((head + c * per_cycle, min(n, head + (c + 1) * per_cycle)) for c in range(cycles))
+    # One clock loads the folded start values (and the head's iterations), `cycles` clocks
+    # iterate (the last of them writes the output register of the last iteration's values), and
+    # one more rounds and saturates from that register into the output: cycles + 2. A new
+    # sample loads in the last iteration's clock, so one sample every `cycles` clocks.
     return Timing(
         architecture="iterative", stages=bounds, latency_cycles=cycles + 2, cycles_per_sample=cycles
     )

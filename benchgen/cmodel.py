@@ -17,10 +17,9 @@ from __future__ import annotations
 from dataclasses import replace
 
 from benchgen import __version__
-from benchgen.algorithm import make_timing
 from benchgen.cprinter import CPort, c_comment, c_type, feeds_back, function_parts
 from benchgen.design import Design
-from benchgen.functions import front_stages, function_of, final_datapath
+from benchgen.functions import core_timing, final_datapath, front_stages, function_of
 from benchgen.hardware import build_core, header_lines
 from benchgen.netlist import Module
 from benchgen.rtl import template_environment, tidy_text
@@ -75,9 +74,7 @@ def model_module(design: Design) -> tuple[Module, bool]:
     if not feeds_back(module, [p.name for p in outputs]):
         return module, False
     spec = replace(design.spec, architecture="pipelined", pipeline_depth=None, iterations_per_cycle=None)
-    twin = replace(
-        design, spec=spec, timing=make_timing(spec, design.datapath.iterations, front_stages(spec, design.datapath))
-    )
+    twin = replace(design, spec=spec, timing=core_timing(spec, design.datapath))
     return build_core(twin), True
 
 

@@ -17,7 +17,7 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
-from benchgen.algorithm import MIN_Z_ONLY_ITERATIONS, Datapath, Timing, make_timing, rotation_z_ranges, signed_width
+from benchgen.algorithm import MIN_Z_ONLY_ITERATIONS, Datapath, Timing, rotation_z_ranges, signed_width
 from benchgen.config import MAX_ITERATIONS, MAX_PORT_WIDTH, CoreSpec
 from benchgen.spec import DEFAULT_HDL, DEFAULT_VLNV_LIBRARY, DEFAULT_VLNV_VENDOR, RESET_POLARITIES, RESET_STYLES
 from benchgen.errors import ConfigError
@@ -32,7 +32,7 @@ from benchgen.functions import (
     apply_gain,
     clocking_of,
     core_ports,
-    front_stages,
+    core_timing,
     function_of,
     function_named,
     corner_inputs,
@@ -43,6 +43,7 @@ from benchgen.functions import (
     ideal_outputs,
     input_ports,
     input_space_bits,
+    table_head,
     int64_model,
     join_inputs,
     final_datapath,
@@ -376,9 +377,10 @@ def sizing_cost(spec: CoreSpec, dp: Datapath) -> tuple[int, ...]:
     """
     if spec.architecture == "pipelined":
         return adder_bits(dp), dp.iterations
-    per_cycle = spec.iterations_per_cycle or 1
-    cycles = -(-dp.iterations // per_cycle)
-    return cycles, min(per_cycle, dp.iterations) * iteration_bits(dp), dp.iterations
+    looped = dp.iterations - table_head(dp, "iterative")  # the head's iterations come from a table
+    per_cycle = min(spec.iterations_per_cycle or 1, looped)
+    cycles = -(-looped // per_cycle)
+    return cycles, per_cycle * iteration_bits(dp), dp.iterations
 
 
 def _size(spec: CoreSpec, progress: Progress | None = None) -> tuple[int, int, ErrorStats, Proof]:
@@ -619,7 +621,7 @@ def build_design(spec: CoreSpec, *, progress: Progress | None = None) -> Design:
     n, g, stats, proof = _size(_arithmetic(spec), progress)
     dp = final_datapath(spec, n, g)
     try:
-        timing: Timing = make_timing(spec, n, front_stages(spec, dp))
+        timing: Timing = core_timing(spec, dp)
     except ConfigError as exc:  # more stages than iterations: as many as there are is accepted
         raise ConfigError(exc.field, exc.value, exc.allowed, exc.fix, suggestion={exc.field: n}) from None
     auto = tuple(f for f, v in (("iterations", spec.iterations), ("guard_bits", spec.guard_bits)) if v is None)

@@ -14,7 +14,7 @@ from dataclasses import dataclass
 from benchgen import __version__
 from benchgen.algorithm import rotation_z_ranges, signed_width
 from benchgen.design import Design
-from benchgen.functions import LOAD_PORT, clocking_of, function_of
+from benchgen.functions import LOAD_PORT, clocking_of, function_of, table_head
 from benchgen.hwlib import Builder, Final, Start, sign_shift
 from benchgen.netlist import (
     Add,
@@ -44,10 +44,6 @@ MAX_HEADER_LINE = 200
 """Characters of a config line copied into the RTL header; a longer line is cut there. Icarus
 Verilog 11 stops with "input buffer overflow" on a line of about 16 KiB (16,382 bytes passed,
 16,383 failed, measured here); config.toml in the project keeps every line whole."""
-#: Iterations a sine/cosine pipeline forms x and y for from a table (:meth:`_Core.table_head`):
-#: 3 makes a 4-input function of the fold and three directions, one LUT4 per bit.
-TABLE_HEAD_ITERATIONS = 3
-
 
 def header_lines(config_text: str) -> list[str]:
     """The config text as the RTL header shows it: no byte-order mark, no trailing blanks, long
@@ -109,6 +105,9 @@ class _Core:
         self.truncating = dp.rounding == "truncate"
         self.valid_only = design.spec.handshake == "valid_only"
         self.free_running = self.fn.free_running(self.dp)
+        # an iterative core with clocks to spare between results: one output register, no skid
+        # buffer (set by iterative())
+        self.single_output = False
         # z narrowed stage by stage: the width of z formed by each iteration (None: full width)
         self.z_widths: list[int] | None = None
         start = self.fn.z_start_range(dp)
@@ -340,11 +339,18 @@ class _Core:
     # ------------------------------------------------------------------ output stage
 
     def output_register(
-        self, final: Final, side: dict[str, Expr], valid: Expr, tag: Expr | None, advance: Sig | None
+        self,
+        final: Final,
+        side: dict[str, Expr],
+        valid: Expr,
+        tag: Expr | None,
+        advance: Expr | None,
+        release: Expr | None = None,
     ) -> tuple[Final, dict[str, Expr], Expr, Expr | None]:
         """Register what the last iteration formed (and what travels with it), so rounding and
         saturation start from a register instead of sharing a clock with an iteration's adder.
-        Returns the registered values in the same shape."""
+        ``release``: where the register loads only when empty (``advance``), the condition
+        that empties it. Returns the registered values in the same shape."""
         b, m = self.b, self.module
         b.note()
         b.note(
@@ -375,7 +381,10 @@ class _Core:
             loads.append((reg, side[name]))
             side_regs[name] = reg
         b.note()
-        m.add(RegisterBlock(updates=(((advance, ((valid_reg, valid),)),),), reset=((valid_reg, Const(0, 1)),)))
+        chain: list = [(advance, ((valid_reg, valid),))]
+        if release is not None:
+            chain.append((release, ((valid_reg, Const(0, 1)),)))
+        m.add(RegisterBlock(updates=(tuple(chain),), reset=((valid_reg, Const(0, 1)),)))
         b.note()
         m.add(RegisterBlock(updates=(((advance, tuple(loads)),),)))
         return held, side_regs, valid_reg, tag_reg
@@ -399,7 +408,8 @@ class _Core:
     def output_stage(self, final: Final, side: dict[str, Expr], fin_valid: Expr, fin_tag: Expr | None) -> None:
         b = self.b
         b.note()
-        b.note(f"---- output: rounding, saturation, {'register' if self.valid_only else 'buffer'} ----")
+        one = self.valid_only or self.single_output
+        b.note(f"---- output: rounding, saturation, {'register' if one else 'buffer'} ----")
         self.fn.hw_outputs(b, self.dp, final, side)
         if "fin_valid" not in b.signals:
             b.wire("fin_valid", fin_valid)
@@ -408,6 +418,8 @@ class _Core:
         b.note()
         if self.valid_only:
             self.output_plain()
+        elif self.single_output:
+            self.output_single()
         else:
             self.output_buffer()
 
@@ -431,6 +443,43 @@ class _Core:
         b.note()
         fin = {name: b.sig("fin_tag" if name == "out_tag" else f"fin_{name}") for name, _ in ports}
         m.add(RegisterBlock(updates=(((fin_valid, tuple((regs[n], fin[n]) for n, _ in ports)),),)))
+        b.note()
+        m.add(Assign(b.sig("out_valid"), out_valid))
+        for name, _ in ports:
+            m.add(Assign(b.sig(name), regs[name]))
+
+    def output_single(self) -> None:
+        """An iterative core's output under the ready/valid handshake: one register. A result
+        arrives at most every other clock, so the register need not take one while it is being
+        emptied: it loads when it is free or the consumer takes its sample (``o_to_out``), and
+        the held result waits in ``o_*_reg`` (the core stalls in its last clock) until then."""
+        b, m = self.b, self.module
+        b.note(
+            "Output register: loaded when it is free or the consumer takes its sample now; a result\n"
+            "that finds it full waits in the output register of iteration values until then."
+        )
+        out_valid = b.known(Sig("out_valid_reg", 1))
+        m.add(Reg(out_valid))
+        ports = [(p.name, p.width) for p in self.design.ports if p.direction == "out" and p.payload]
+        regs: dict[str, Sig] = {}
+        for name, width in ports:
+            regs[name] = b.known(Sig(f"{name}_reg", width, vector=True))
+            m.add(Reg(regs[name]))
+        b.note()
+        out_ready, fin_valid = b.sig("out_ready"), b.sig("fin_valid")
+        out_free = b.wire("out_free", Or(out_ready, Not(out_valid)))
+        o_to_out = b.sig("o_to_out")
+        m.add(Assign(o_to_out, And(fin_valid, out_free)))
+        b.note()
+        m.add(
+            RegisterBlock(
+                updates=(((o_to_out, ((out_valid, Const(1, 1)),)), (out_ready, ((out_valid, Const(0, 1)),))),),
+                reset=((out_valid, Const(0, 1)),),
+            )
+        )
+        b.note()
+        fin = {name: b.sig("fin_tag" if name == "out_tag" else f"fin_{name}") for name, _ in ports}
+        m.add(RegisterBlock(updates=(((o_to_out, tuple((regs[n], fin[n]) for n, _ in ports)),),)))
         b.note()
         m.add(Assign(b.sig("out_valid"), out_valid))
         for name, _ in ports:
@@ -709,19 +758,9 @@ class _Core:
             m.add(Assign(advance, b.sig("ready_reg")))
 
     def table_head(self) -> int:
-        """How many first iterations a pipeline forms x and y for from a table (0: none).
-
-        In rotation mode z alone decides every direction, so when the start vector is one of
-        two constants (the sine/cosine fold) the x and y after iteration h are a function of
-        h + 1 bits: the fold and the first h directions. With h = TABLE_HEAD_ITERATIONS that is
-        a 4-input function, one LUT4 per bit, in place of h iterations' adders and registers;
-        the table holds what those iterations compute, in their own arithmetic, so every bit
-        is the same (tests/test_netlist.py evaluates every input of small cores).
-        """
-        dp = self.dp
-        if not (self.fn.start_table and dp.mode == "rotation" and dp.coordinates == "circular"):
-            return 0
-        return max(0, min(TABLE_HEAD_ITERATIONS, dp.iterations - 2))
+        """How many first iterations this core forms x and y for from a table (0: none;
+        :func:`benchgen.functions.table_head`)."""
+        return table_head(self.dp, self.design.timing.architecture)
 
     def head_table(self, vectors: tuple[tuple[int, int], ...], bits: list[Expr], dst: tuple[str, str, str]) -> tuple[Sig, Sig]:
         """x and y after the head's iterations, picked by the fold and its directions."""
@@ -795,18 +834,35 @@ class _Core:
         cycles = len(groups)
         per_cycle = groups[0][1] - groups[0][0]
         n = dp.iterations
+        head = groups[0][0]  # the first iterations, formed by table in the clock that loads
         fixed = cycles == 1
         count_width = max(1, (cycles - 1).bit_length())
         shift_width = max(1, max(dp.shifts).bit_length())
+        # Where the looped iterations' shifts run on by one (no repeated shift) and a clock does
+        # a power of two of them, iteration j of clock c shifts by base + j + c * per_cycle: a
+        # fixed shift, then one by the count's own bits, with no table between count and shifter.
+        looped = dp.shifts[head:]
+        by_count = (
+            not fixed
+            and per_cycle & (per_cycle - 1) == 0
+            and all(s == looped[0] + k for k, s in enumerate(looped))
+        )
+        # One result every `cycles` >= 2 clocks: one output register is enough (output_single).
+        self.single_output = not self.valid_only and not fixed
         self.constants(with_table=fixed)
         self.phase_front(And(b.sig("in_valid"), b.sig("in_ready")))
         b.note()
+        b.start_table = head > 0
         start = self.fn.hw_inputs(b, dp)
+        b.start_table = False
+        if head:
+            start = self.load_head(start, head)
         b.note()
         b.note(
-            f"One sample at a time: load the start values, then {cycles} clock(s) of\n"
-            f"{per_cycle} iteration(s); the last clock hands the values to the output register, and\n"
-            "the clock after rounds them into the output."
+            (f"One sample at a time: load the start values (iterations 0 to {head - 1} included), then\n"
+             if head else "One sample at a time: load the start values, then\n")
+            + f"{cycles} clock(s) of {per_cycle} iteration(s); the last clock hands the values to the output\n"
+            "register, and the clock after rounds them into the output."
         )
         busy = b.known(Sig("busy_reg", 1))
         m.add(Reg(busy))
@@ -839,11 +895,24 @@ class _Core:
         m.add(Decl(accept))
         done = b.wire("done", And(busy, last))
         ready: Sig | None = None
+        o_to_out: Sig | None = None
         if not self.valid_only:
-            # the output side moves while the output buffer can take a sample (always, under
-            # the valid-only handshake)
+            # the iterations hand a result over while the output side can take it (always,
+            # under the valid-only handshake)
             ready = b.known(Sig("advance", 1))
             m.add(Decl(ready))
+        if self.single_output:
+            o_to_out = b.known(Sig("o_to_out", 1))
+            m.add(Decl(o_to_out, "the held result moves to the output register"))
+        amount: Sig | None = None
+        if by_count:
+            assert count is not None
+            low = (per_cycle - 1).bit_length()
+            b.note()
+            amount = (
+                b.wire("count_shift", Cat((count, Const(0, low))), f"count * {per_cycle}: the shift added by the clock")
+                if low else count
+            )
         steps: list[_Step] = []
         for j in range(per_cycle):
             rows = []
@@ -852,31 +921,35 @@ class _Core:
                 rows.append((c, dp.shifts[i] if i < end else 0, dp.atan_table[i] if i < end else 0, i < end))
             needs_active = not all(r[3] for r in rows)
             if fixed:
-                steps.append(_Step(f"j{j}", j, dp.shifts[j], self.angle(j)))
+                steps.append(_Step(f"j{j}", head + j, dp.shifts[head + j], self.angle(head + j)))
                 continue
             assert count is not None
-            b.note()
-            b.note(f"shift and angle constant of iteration {j} of each clock")
-            sigs = [b.known(Sig(f"shift_j{j}", shift_width))]
+            sigs = []
+            if not by_count:
+                sigs.append(b.known(Sig(f"shift_j{j}", shift_width)))
             if self.has_z:
                 sigs.append(b.reg(f"atan_j{j}", dp.z_width, of="z"))
             if needs_active:
                 sigs.append(b.known(Sig(f"active_j{j}", 1)))
-            for sig in sigs:
-                m.add(Reg(sig))
+            if sigs:
+                b.note()
+                what = "angle constant" if by_count else "shift and angle constant"
+                b.note(f"{what} of iteration {j} of each clock" if self.has_z else f"shift of iteration {j} of each clock")
+                for sig in sigs:
+                    m.add(Reg(sig))
 
-            def values(r: tuple[int, int, int, bool]) -> tuple[int, ...]:
-                vals = [r[1]]
-                if self.has_z:
-                    vals.append(r[2])
+                def values(r: tuple[int, int, int, bool], needs_active: bool = needs_active) -> tuple[int, ...]:
+                    vals = [] if by_count else [r[1]]
+                    if self.has_z:
+                        vals.append(r[2])
+                    if needs_active:
+                        vals.append(int(r[3]))
+                    return tuple(vals)
+
+                default = list(values(rows[0]))
                 if needs_active:
-                    vals.append(int(r[3]))
-                return tuple(vals)
-
-            default = list(values(rows[0]))
-            if needs_active:
-                default[-1] = 0
-            m.add(Table(tuple(sigs), count, tuple((r[0], values(r), "") for r in rows), tuple(default)))
+                    default[-1] = 0
+                m.add(Table(tuple(sigs), count, tuple((r[0], values(r), "") for r in rows), tuple(default)))
             steps.append(
                 _Step(
                     f"j{j}", j, None,
@@ -889,19 +962,28 @@ class _Core:
         final = Final()
         z_only_x = fixed and self.z_only_vectoring()
         for j, step in enumerate(steps):
+            i = head + j
             dst = (f"x_{j + 1}", f"y_{j + 1}", f"z_{j + 1}")
-            keep_low = dp.shifts[n - 2] if z_only_x and dp.coordinates != "linear" and j == n - 3 else 0
+            keep_low = dp.shifts[n - 2] if z_only_x and dp.coordinates != "linear" and i == n - 3 else 0
             b.note()
             if not fixed:
-                shift = b.sig(f"shift_j{j}")
-                b.wire(f"xs_j{j}", Sra(src[0], shift), of="xy")
+                names = [("xs", src[0])]
                 if dp.coordinates != "linear" and self.has_y:
                     assert src[1] is not None
-                    b.wire(f"ys_j{j}", Sra(src[1], shift), of="xy")
+                    names.append(("ys", src[1]))
+                for name, value in names:
+                    if by_count:
+                        assert amount is not None
+                        fixed_part = sign_shift(value, looped[0] + j, W)
+                        if not isinstance(fixed_part, Sig):
+                            fixed_part = b.wire(f"{name[0]}p_j{j}", fixed_part, f"{name[0]} >>> {looped[0] + j}", of="xy")
+                        b.wire(f"{name}_j{j}", Sra(fixed_part, amount), of="xy")
+                    else:
+                        b.wire(f"{name}_j{j}", Sra(value, b.sig(f"shift_j{j}")), of="xy")
             fx, fy, fz, final = self.iteration(
                 step, src, dst,
                 final=fixed and j == per_cycle - 1, x_low=x_low,
-                skip_x=z_only_x and j == n - 2, x_keep_low=keep_low,
+                skip_x=z_only_x and i == n - 2, x_keep_low=keep_low,
             )
             if keep_low:
                 assert fx is not None
@@ -911,7 +993,7 @@ class _Core:
                 src = (src[0] if dp.coordinates == "linear" else fx, fy, fz)  # type: ignore[assignment]
         if not fixed:
             final = self.output_view(final)
-        held, held_side, held_valid, held_tag = self.output_register(final, side_regs, done, tag_reg, ready)
+        held, held_side, held_valid, held_tag = self.output_register(final, side_regs, done, tag_reg, ready, o_to_out)
         self.output_stage(held, held_side, held_valid, held_tag)
         in_ready, in_valid = b.sig("in_ready"), b.sig("in_valid")
         b.note()
@@ -931,7 +1013,7 @@ class _Core:
             reset.append((count, Const(0, count_width)))
         m.add(RegisterBlock(updates=tuple(control), reset=tuple(reset)))
         b.note()
-        loads: list[tuple[Sig, Expr]] = [(x_reg, start.x)]
+        loads: list[tuple[Sig, Expr]] = [(x_reg, start.x)]  # type: ignore[list-item]
         if y_reg is not None:
             loads.append((y_reg, start.y))  # type: ignore[arg-type]
         if z_reg is not None:
@@ -951,7 +1033,33 @@ class _Core:
         m.add(RegisterBlock(updates=(tuple(chain),)))
         if ready is not None:
             b.note()
-            m.add(Assign(ready, b.sig("ready_reg")))
+            if self.single_output:
+                # the held result leaves for the output register in the clock after it lands
+                # (results come at most every other clock): load it only when it is empty
+                m.add(Assign(ready, Not(b.sig("o_valid_reg"))))
+            else:
+                m.add(Assign(ready, b.sig("ready_reg")))
+
+    def load_head(self, start: Start, head: int) -> Start:
+        """The first ``head`` iterations in the clock that loads a sample: z steps by the angle
+        constants, and x and y come from the table of the fold and the directions
+        (:meth:`head_table`), so the looped clocks start at iteration ``head``."""
+        dp, b = self.dp, self.b
+        assert start.select is not None and start.z is not None and len(start.vectors) == 2
+        z: Expr = start.z
+        bits: list[Expr] = [start.select]
+        for i in range(head):
+            name = self.angle_name(i)
+            if name not in b.params:
+                b.param(name, dp.atan_table[i], dp.z_width, self.fn.atan_comment(dp, i), here=True, of="z")
+            atan = b.p(name)
+            b.note(f"iteration {i}, in the load clock: turn counter-clockwise when the remaining angle is >= 0")
+            d = b.wire(f"dir_h{i}", Cmp("<", z, b.p("Z_HALF")))
+            z = b.wire(f"z_h{i + 1}", Add(z, Mux(d, Not(atan), atan), d), of="z")
+            bits.append(d)
+        b.note()
+        x, y = self.head_table(start.vectors, bits, ("x_start", "y_start", ""))
+        return Start(x, y, z, side=dict(start.side))
 
 
 def build_core(design: Design, *, config_text: str = "") -> Module:

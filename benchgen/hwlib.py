@@ -44,7 +44,8 @@ class Start:
     A start vector that is one of a few constants (sine/cosine: (+-x_start, 0) by the fold)
     may instead be given as the bit that picks it (``select``) and the constant vectors
     (``vectors[select]``), with ``x`` and ``y`` None: when the builder asked for that
-    (:attr:`Builder.start_table`), a pipeline forms the first iterations' x and y from a table.
+    (:attr:`Builder.start_table`), the core forms the first iterations' x and y from a table (a
+    pipeline in place of their stages, an iterative core in the clock that loads a sample).
     """
 
     x: Expr | None

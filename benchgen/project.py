@@ -34,11 +34,10 @@ except ImportError:  # pragma: no cover - not a supported platform for the simul
 
 from benchgen import __version__
 from benchgen.config import CoreSpec, load_config, parse_config, spec_to_dict
-from benchgen.algorithm import make_timing
 from benchgen.design import Design, Proof, build_design
 from benchgen.reference import ErrorStats
 from benchgen.errors import BenchgenError, ConfigError
-from benchgen.functions import final_datapath, front_stages, function_of
+from benchgen.functions import core_timing, final_datapath, function_of
 from benchgen.cmodel import c_model_files, c_model_paths, model_function_name
 from benchgen.fusesoc import core_file_name, render_core_file, vlnv
 from benchgen.harness import bulk_project_files
@@ -920,7 +919,7 @@ def design_from_manifest(manifest: dict[str, Any]) -> Design:
         design = Design(
             spec=spec,
             datapath=dp,
-            timing=make_timing(spec, n, front_stages(spec, dp)),
+            timing=core_timing(spec, dp),
             accuracy=ErrorStats(
                 samples=budget["model_samples"],
                 max_error_lsb=budget["model_max_error_lsb"],

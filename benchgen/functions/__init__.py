@@ -16,7 +16,7 @@ from typing import Any
 import numpy as np
 import numpy.typing as npt
 
-from benchgen.algorithm import Datapath
+from benchgen.algorithm import Datapath, Timing, make_timing
 from benchgen.functions import atan2, atanh, div, exp, ln, mul, nco, rotate, sincos, sinhcosh, sqrt
 from benchgen.functions.base import LOAD_PORT, CorePort, Function, Inputs, Outputs, Port, uniform
 from benchgen.model import to_signed
@@ -48,6 +48,10 @@ __all__ = [
     "function_errors",
     "function_named",
     "front_stages",
+    "core_timing",
+    "table_head",
+    "TABLE_HEAD_ITERATIONS",
+    "ITERATIVE_TABLE_HEAD_ITERATIONS",
     "function_of",
     "ideal_outputs",
     "input_ports",
@@ -111,6 +115,40 @@ def front_stages(spec: CoreSpec, dp: Datapath) -> int:
     (:meth:`Function.front_stages`) in a pipeline, none in an iterative core (whose input logic
     loads a register of its own)."""
     return function_of(dp).front_stages(dp) if spec.architecture == "pipelined" else 0
+
+
+#: Iterations a sine/cosine pipeline forms x and y for from a table (:func:`table_head`): 3
+#: makes a 4-input function of the fold and three directions, one LUT4 per bit.
+TABLE_HEAD_ITERATIONS = 3
+#: The same for an iterative core, whose table sits in the clock that loads a sample, behind
+#: the fold and the head's chained z additions: 3 there made that load path the core's longest
+#: (HX8K 84 -> 48 MHz for a 16/16 sincos, docs/hardware.md step 4), 2 keeps it shorter than a
+#: looped iteration.
+ITERATIVE_TABLE_HEAD_ITERATIONS = 2
+
+
+def table_head(dp: Datapath, architecture: str) -> int:
+    """How many first iterations a core forms x and y for from a table (0: none).
+
+    In rotation mode z alone decides every direction, so when the start vector is one of two
+    constants (the sine/cosine fold) the x and y after iteration h are a function of h + 1 bits:
+    the fold and the first h directions. The table holds what those iterations compute, in their
+    own arithmetic, so every bit is the same (tests/test_netlist.py evaluates every input of
+    small cores). A pipeline puts it in place of h stages' adders; an iterative core forms it in
+    the clock that loads a sample, so the sample needs fewer clocks of iteration.
+    """
+    fn = function_of(dp)
+    if not (fn.start_table and dp.mode == "rotation" and dp.coordinates == "circular"):
+        return 0
+    h = TABLE_HEAD_ITERATIONS if architecture == "pipelined" else ITERATIVE_TABLE_HEAD_ITERATIONS
+    return max(0, min(h, dp.iterations - 2))
+
+
+def core_timing(spec: CoreSpec, dp: Datapath) -> Timing:
+    """The core's timing: its iterations spread over stages or clocks, with the input logic's
+    own register stages and (iterative) the iterations its load clock forms by table."""
+    head = table_head(dp, spec.architecture) if spec.architecture == "iterative" else 0
+    return make_timing(spec, dp.iterations, front_stages(spec, dp), head)
 
 
 def refused_fields(fn: Function) -> dict[str, str]:
