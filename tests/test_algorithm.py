@@ -125,3 +125,30 @@ def test_timing_spreads_iterations_evenly() -> None:
     # the load, 5 clocks of iterations, the output register
     assert it.cycles_per_sample == 5 and it.latency_cycles == 5 + 2
     assert it.stages[-1] == (16, 17)
+
+
+def test_iterative_timing_starts_after_the_table_head() -> None:
+    # two iterations formed by table in the load clock: 15 looped iterations, 4 per clock
+    it = make_timing(spec(architecture="iterative", iterations_per_cycle=4), 17, head=2)
+    assert it.stages == ((2, 6), (6, 10), (10, 14), (14, 17))
+    assert it.cycles_per_sample == 4 and it.latency_cycles == 4 + 2
+    # more iterations per clock than are looped: one clock does them all
+    one = make_timing(spec(architecture="iterative", iterations_per_cycle=17), 17, head=2)
+    assert one.stages == ((2, 17),) and one.cycles_per_sample == 1
+
+
+def test_only_an_iterative_sine_cosine_takes_a_table_head() -> None:
+    from benchgen.config import parse_config
+    from benchgen.design import build_design
+    from benchgen.functions import ITERATIVE_TABLE_HEAD_ITERATIONS, table_head
+
+    def design(**fields: object):  # type: ignore[no-untyped-def]
+        values = {"name": "c", "data_width": 10, "angle_width": 10, "architecture": "iterative", **fields}
+        return build_design(parse_config(values))
+
+    sc = design(function="sincos")
+    assert table_head(sc.datapath, "iterative") == ITERATIVE_TABLE_HEAD_ITERATIONS
+    assert sc.timing.stages[0][0] == ITERATIVE_TABLE_HEAD_ITERATIONS
+    assert sc.timing.cycles_per_sample == sc.datapath.iterations - ITERATIVE_TABLE_HEAD_ITERATIONS
+    at = design(function="atan2", data_width=10)
+    assert table_head(at.datapath, "iterative") == 0 and at.timing.cycles_per_sample == at.datapath.iterations

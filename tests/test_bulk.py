@@ -460,6 +460,32 @@ def test_exhaustive_run_fails_a_core_that_loses_samples_when_stalled(
     assert lost and all("stall" in p for p in record["problems"] if "came out" in p)
 
 
+def test_exhaustive_run_fails_an_iterative_core_whose_output_register_is_overwritten(tmp_path: Path) -> None:
+    """An iterative core's single output register (no skid buffer) must not take a result while
+    the consumer stalls: the unmutated core passes every code under stalls, and a core whose
+    output register loads whatever the iterations hand over loses samples and fails."""
+    import shutil
+
+    from benchgen.cli import main
+
+    require_simulator("verilator")
+    (tmp_path / "good").mkdir()
+    project = _project(tmp_path / "good", angle_width=10, data_width=10, tag_width=0, architecture="iterative")
+    assert main(["sim", str(project), "--simulator", "verilator", "--exhaustive", "--seed", "3"]) == 0
+    mutated = tmp_path / "mutated"
+    shutil.copytree(project, mutated, ignore=shutil.ignore_patterns("build"))
+    rtl = mutated / "rtl" / "bulk_core.v"
+    good = "assign o_to_out = fin_valid & out_free;"
+    text = rtl.read_text()
+    assert text.count(good) == 1 and "spare_valid_reg" not in text
+    rtl.write_text(text.replace(good, "assign o_to_out = fin_valid;"))
+    out = tmp_path / "report.json"
+    status = main(["sim", str(mutated), "--simulator", "verilator", "--exhaustive", "--seed", "3", "--json", str(out)])
+    assert status == 1
+    (record,) = json.loads(out.read_text())["per_test"]
+    assert record["mismatches"] > 0
+
+
 # ---- memory flat in the sample count ----
 
 

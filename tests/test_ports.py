@@ -56,6 +56,10 @@ def test_the_handshake_decides_the_ready_ports(architecture: str, handshake: str
     assert {p.name for p in design.ports if p.name.endswith("_ready")} == readies
     declared = {p.sig.name for p in build_core(design).ports}
     assert {n for n in declared if n.endswith("_ready")} == readies
-    # the skid buffer's spare entry exists only where the consumer can stall the core
+    # the skid buffer's spare entry exists only where the consumer can stall a core that
+    # hands over a result every clock; an iterative core (one every few clocks) has a single
+    # output register, and every core has its out_valid register
     text = render_core(design)
-    assert ("spare_valid_reg" in text) == (handshake == "ready_valid")
+    assert ("spare_valid_reg" in text) == (handshake == "ready_valid" and architecture == "pipelined")
+    assert "out_valid_reg" in text
+    assert ("o_to_out" in text) == (handshake == "ready_valid" and architecture == "iterative")
