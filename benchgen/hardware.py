@@ -204,7 +204,9 @@ class _Core:
         for p in self.design.ports:
             b.known(m.port(p.name, p.width, p.direction, groups.get(p.name, ""), vector=p.payload))
 
-    def constants(self, with_table: bool) -> None:
+    def constants(self, with_table: bool, first: int = 0) -> None:
+        """The core's named constants; ``with_table``: the angle constants of iterations
+        ``first`` on (an iterative core's load clock declares its own)."""
         dp, b = self.dp, self.b
         if dp.mode == "vectoring":
             b.param("Y_HALF", 1 << (dp.xy_width - 1), dp.xy_width, "codes at or above this are y < 0", here=True, of="xy")
@@ -219,7 +221,7 @@ class _Core:
                     "constant has the width of the z its iteration forms."
                 )
             count = dp.iterations if dp.mode == "vectoring" else dp.iterations - 1
-            for i in range(count):
+            for i in range(first, count):
                 width = dp.z_width if self.z_widths is None else self.z_widths[i]
                 b.param(self.angle_name(i), dp.atan_table[i], width, self.fn.atan_comment(dp, i), here=True, of="z")
 
@@ -849,7 +851,7 @@ class _Core:
         )
         # One result every `cycles` >= 2 clocks: one output register is enough (output_single).
         self.single_output = not self.valid_only and not fixed
-        self.constants(with_table=fixed)
+        self.constants(with_table=fixed, first=head)
         self.phase_front(And(b.sig("in_valid"), b.sig("in_ready")))
         b.note()
         b.start_table = head > 0
@@ -1043,20 +1045,45 @@ class _Core:
     def load_head(self, start: Start, head: int) -> Start:
         """The first ``head`` iterations in the clock that loads a sample: z steps by the angle
         constants, and x and y come from the table of the fold and the directions
-        (:meth:`head_table`), so the looped clocks start at iteration ``head``."""
-        dp, b = self.dp, self.b
+        (:meth:`head_table`), so the looped clocks start at iteration ``head``.
+
+        Only the directions chain (each reads the z before it); z after the head is the start
+        z plus a sum of constants picked by them, formed as two sums beside the last direction's
+        adder and chosen by it, so one carry chain, not ``head`` of them, sits between the
+        input and the registers (HX8K 67 -> 80 MHz for a 16/16 sincos, docs/hardware.md)."""
+        dp, b, ZW = self.dp, self.b, self.b.ZW
         assert start.select is not None and start.z is not None and len(start.vectors) == 2
-        z: Expr = start.z
+        z0: Expr = start.z
+        z: Expr = z0
         bits: list[Expr] = [start.select]
+        atans: list[int] = []
         for i in range(head):
-            name = self.angle_name(i)
-            if name not in b.params:
-                b.param(name, dp.atan_table[i], dp.z_width, self.fn.atan_comment(dp, i), here=True, of="z")
-            atan = b.p(name)
+            atans.append(dp.atan_table[i])
             b.note(f"iteration {i}, in the load clock: turn counter-clockwise when the remaining angle is >= 0")
             d = b.wire(f"dir_h{i}", Cmp("<", z, b.p("Z_HALF")))
-            z = b.wire(f"z_h{i + 1}", Add(z, Mux(d, Not(atan), atan), d), of="z")
             bits.append(d)
+            if i < head - 1 or head == 1:
+                atan = b.param(self.angle_name(i), atans[i], dp.z_width, self.fn.atan_comment(dp, i), here=True, of="z")
+                z = b.wire(f"z_h{i + 1}", Add(z, Mux(d, Not(atan), atan), d), of="z")
+        if head > 1:
+            mask = (1 << ZW) - 1
+
+            def step_sum(last: int, j: int, taken: int) -> Expr:
+                """The head's constant steps summed (mod 2^ZW) for the last direction ``last``:
+                a tree over the earlier directions, from ``j`` down (``taken``: their bits)."""
+                if j < 0:
+                    dirs = [taken >> i & 1 for i in range(head - 1)] + [last]
+                    return Const(sum(-a if di else a for a, di in zip(atans, dirs, strict=True)) & mask, ZW)
+                return Mux(bits[j + 1], step_sum(last, j - 1, taken | 1 << j), step_sum(last, j - 1, taken))
+
+            b.note(
+                f"z after iteration {head - 1}: the start z plus the head's steps, both sums for the last\n"
+                "direction formed beside it and picked by it"
+            )
+            last = head - 1
+            z_cw = b.wire(f"z_h{head}_cw", Add(z0, step_sum(0, head - 2, 0)), f"if iteration {last} turns clockwise (adds its angle)", of="z")
+            z_ccw = b.wire(f"z_h{head}_ccw", Add(z0, step_sum(1, head - 2, 0)), "if it turns counter-clockwise (subtracts it)", of="z")
+            z = b.wire(f"z_h{head}", Mux(bits[head], z_ccw, z_cw), of="z")
         b.note()
         x, y = self.head_table(start.vectors, bits, ("x_start", "y_start", ""))
         return Start(x, y, z, side=dict(start.side))
