@@ -72,9 +72,9 @@ module echo_envelope_sqrt (
     wire [XY_W-1:0] x_start = m_wide + QUARTER;
     wire [XY_W-1:0] y_start = m_wide - QUARTER;
 
-    // One sample at a time: load the start values, then 4 clock(s) of
-    // 2 iteration(s); the last clock hands the values to the output register, and
-    // the clock after rounds them into the output.
+    // One sample at a time: load the start values, then
+    // 4 clock(s) of 2 iteration(s); the last clock hands the values to the output
+    // register, and the clock after rounds them into the output.
     reg busy_reg;
     reg [1:0] count_reg;
     wire last = (count_reg == 2'h3);
@@ -87,8 +87,9 @@ module echo_envelope_sqrt (
     wire accept;
     wire done = busy_reg & last;
     wire advance;
+    wire o_to_out;  // the held result moves to the output register
 
-    // shift and angle constant of iteration 0 of each clock
+    // shift of iteration 0 of each clock
     reg [2:0] shift_j0;
     always @* begin
         case (count_reg)
@@ -100,7 +101,7 @@ module echo_envelope_sqrt (
         endcase
     end
 
-    // shift and angle constant of iteration 1 of each clock
+    // shift of iteration 1 of each clock
     reg [2:0] shift_j1;
     always @* begin
         case (count_reg)
@@ -139,6 +140,8 @@ module echo_envelope_sqrt (
             o_valid_reg <= 1'b0;
         end else if (advance) begin
             o_valid_reg <= done;
+        end else if (o_to_out) begin
+            o_valid_reg <= 1'b0;
         end
     end
 
@@ -151,7 +154,7 @@ module echo_envelope_sqrt (
         end
     end
 
-    // ---- output: rounding, saturation, buffer ----
+    // ---- output: rounding, saturation, register ----
     // undo the normalisation: shift right by k with every bit kept, then round once
     wire [28:0] sq_wide = $signed({o_x_reg, 6'h00}) >>> o_half_reg;
     // sq: drop 12 bit(s), half_even
@@ -167,56 +170,29 @@ module echo_envelope_sqrt (
     wire fin_valid = o_valid_reg;
     wire [3:0] fin_tag = o_tag_reg;
 
-    // Output buffer with two entries. out_ready reaches only this buffer and ready_reg; the
-    // core advances while ready_reg is high. When the consumer stalls, the sample already on
-    // its way lands in the spare entry, and ready_reg falls for the next clock.
-    reg ready_reg;
+    // Output register: loaded when it is free or the consumer takes its sample now; a result
+    // that finds it full waits in the output register of iteration values until then.
     reg out_valid_reg;
-    reg spare_valid_reg;
     reg [13:0] out_sqrt_reg;
-    reg [13:0] spare_out_sqrt_reg;
     reg [3:0] out_tag_reg;
-    reg [3:0] spare_tag_reg;
 
     wire out_free = out_ready | ~out_valid_reg;
-    wire take_to_out = ready_reg & out_free;
-    wire take_to_spare = ready_reg & ~out_free;
-    wire spare_to_out = ~ready_reg & out_ready;
-    // Ready next clock if the consumer takes a sample now, or if the spare entry is empty and
-    // the output register and the arriving sample are not both occupied.
-    wire ready_next = out_ready | (~spare_valid_reg & (~out_valid_reg | ~fin_valid));
+    assign o_to_out = fin_valid & out_free;
 
     always @(posedge clk) begin
         if (rst) begin
-            ready_reg <= 1'b0;
             out_valid_reg <= 1'b0;
-            spare_valid_reg <= 1'b0;
-        end else begin
-            ready_reg <= ready_next;
-            if (take_to_out) begin
-                out_valid_reg <= fin_valid;
-            end else if (spare_to_out) begin
-                out_valid_reg <= spare_valid_reg;
-            end
-            if (take_to_spare) begin
-                spare_valid_reg <= fin_valid;
-            end else if (spare_to_out) begin
-                spare_valid_reg <= 1'b0;
-            end
+        end else if (o_to_out) begin
+            out_valid_reg <= 1'b1;
+        end else if (out_ready) begin
+            out_valid_reg <= 1'b0;
         end
     end
 
-    wire load_out = take_to_out | spare_to_out;
     always @(posedge clk) begin
-        if (take_to_spare) begin
-            spare_out_sqrt_reg <= fin_out_sqrt;
-            spare_tag_reg <= fin_tag;
-        end
-    end
-    always @(posedge clk) begin
-        if (load_out) begin
-            out_sqrt_reg <= ready_reg ? fin_out_sqrt : spare_out_sqrt_reg;
-            out_tag_reg <= ready_reg ? fin_tag : spare_tag_reg;
+        if (o_to_out) begin
+            out_sqrt_reg <= fin_out_sqrt;
+            out_tag_reg <= fin_tag;
         end
     end
 
@@ -259,7 +235,7 @@ module echo_envelope_sqrt (
         end
     end
 
-    assign advance = ready_reg;
+    assign advance = ~o_valid_reg;
 
 endmodule
 

@@ -6,9 +6,9 @@
  * Sine and cosine of a 12-bit angle (turns), 14-bit outputs.
  * park_angle_sincos_model() maps one sample's input codes to its output codes exactly as the RTL does.
  * It is the core's function, not its timing: no clock, latency, handshake or tag (the RTL's
- * result for an input leaves 10 clock(s) after it enters).
+ * result for an input leaves 9 clock(s) after it enters).
  * Printed from the same description of the core as the RTL. This core iterates one sample over
- * 8 clocks, which one pass cannot print, so the model is printed from the pipelined core
+ * 7 clocks, which one pass cannot print, so the model is printed from the pipelined core
  * of the same data path (the same iterations, constants and rounding: the same function).
  * Arithmetic: circular coordinates, rotation mode, 16 iterations, 4 guard bits; x, y 18 bits, z 20 bits.
  * Gain: compensated (K = 0.60725293510313931731, removed by the start value).

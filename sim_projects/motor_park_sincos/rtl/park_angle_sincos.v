@@ -15,8 +15,8 @@
 // Internal widths: x, y 18 bits (4 guard bits); z 20 bits (20 fraction bits of a turn).
 // Worst error against the ideal, bit-true model: 0.9447 LSB (RMS 0.3427 LSB),
 // measured over every one of the 4096 input codes.
-// Timing: latency 10 clocks from input handshake to output handshake, one
-// sample every 8 clock(s) at full rate.
+// Timing: latency 9 clocks from input handshake to output handshake, one
+// sample every 7 clock(s) at full rate.
 // Handshake: a sample moves when valid and ready are both high at a rising clock edge.
 // rst is synchronous and active high; it clears the control state, not the data path.
 //
@@ -58,23 +58,36 @@ module park_angle_sincos (
 
     localparam [Z_W-1:0] Z_HALF = 20'h80000;  // codes below this are angles >= 0
 
-    localparam [17:0] X_START_POS = 18'h136e0;  // amplitude times K, 4 guard bits
-    localparam [17:0] X_START_NEG = 18'h2c920;  // the same, negated (fold)
     // Quadrant fold: an angle in the left half-plane (top two bits differ) is turned by half a
     // turn, which flips its MSB and leaves the top two bits equal, and the vector starts
     // negated instead. What remains is within +-1/4 turn, inside the +-99.88 degree
     // convergence range.
     wire in_fold = in_angle[11] ^ in_angle[10];
     wire [Z_W-1:0] z_start = {in_angle[10], in_angle[10:0], 8'h00};
-    wire [XY_W-1:0] x_start = in_fold ? X_START_NEG : X_START_POS;
-    wire [XY_W-1:0] y_start = 18'h00000;
+    // iteration 0, in the load clock: turn counter-clockwise when the remaining angle is >= 0
+    wire dir_h0 = (z_start < Z_HALF);
+    localparam [Z_W-1:0] ATAN_0 = 20'h20000;  // atan(2^-0) in turns
+    wire [Z_W-1:0] z_h1 = z_start + (dir_h0 ? ~ATAN_0 : ATAN_0) + {19'h00000, dir_h0};
+    // iteration 1, in the load clock: turn counter-clockwise when the remaining angle is >= 0
+    wire dir_h1 = (z_h1 < Z_HALF);
+    // z after iteration 1: the start z plus the head's steps, both sums for the last
+    // direction formed beside it and picked by it
+    wire [Z_W-1:0] z_h2_cw = z_start + (dir_h0 ? 20'hf2e40 : 20'h32e40);  // if iteration 1 turns clockwise (adds its angle)
+    wire [Z_W-1:0] z_h2_ccw = z_start + (dir_h0 ? 20'hcd1c0 : 20'h0d1c0);  // if it turns counter-clockwise (subtracts it)
+    wire [Z_W-1:0] z_h2 = dir_h1 ? z_h2_ccw : z_h2_cw;
 
-    // One sample at a time: load the start values, then 8 clock(s) of
-    // 2 iteration(s); the last clock hands the values to the output register, and
-    // the clock after rounds them into the output.
+    // x and y after iteration 1 depend only on the fold and the directions of iterations
+    // 0 to 1 (z alone decides them): read from a table of the 8 cases, computed
+    // with the iterations' own arithmetic, instead of adding.
+    wire [XY_W-1:0] x_start = dir_h1 ? dir_h0 ? in_fold ? 18'h36490 : 18'h09b70 : in_fold ? 18'h22db0 : 18'h1d250 : dir_h0 ? in_fold ? 18'h22db0 : 18'h1d250 : in_fold ? 18'h36490 : 18'h09b70;
+    wire [XY_W-1:0] y_start = dir_h1 ? dir_h0 ? in_fold ? 18'h22db0 : 18'h1d250 : in_fold ? 18'h09b70 : 18'h36490 : dir_h0 ? in_fold ? 18'h36490 : 18'h09b70 : in_fold ? 18'h1d250 : 18'h22db0;
+
+    // One sample at a time: load the start values (iterations 0 to 1 included), then
+    // 7 clock(s) of 2 iteration(s); the last clock hands the values to the output
+    // register, and the clock after rounds them into the output.
     reg busy_reg;
     reg [2:0] count_reg;
-    wire last = (count_reg == 3'h7);
+    wire last = (count_reg == 3'h6);
     reg [XY_W-1:0] x_reg;
     reg [XY_W-1:0] y_reg;
     reg [Z_W-1:0] z_reg;
@@ -82,51 +95,54 @@ module park_angle_sincos (
     wire accept;
     wire done = busy_reg & last;
     wire advance;
+    wire o_to_out;  // the held result moves to the output register
 
-    // shift and angle constant of iteration 0 of each clock
-    reg [3:0] shift_j0;
+    wire [3:0] count_shift = {count_reg, 1'b0};  // count * 2: the shift added by the clock
+
+    // angle constant of iteration 0 of each clock
     reg [Z_W-1:0] atan_j0;
     always @* begin
         case (count_reg)
-            3'h0: begin shift_j0 = 4'h0; atan_j0 = 20'h20000; end
-            3'h1: begin shift_j0 = 4'h2; atan_j0 = 20'h09fb4; end
-            3'h2: begin shift_j0 = 4'h4; atan_j0 = 20'h028b1; end
-            3'h3: begin shift_j0 = 4'h6; atan_j0 = 20'h00a2f; end
-            3'h4: begin shift_j0 = 4'h8; atan_j0 = 20'h0028c; end
-            3'h5: begin shift_j0 = 4'ha; atan_j0 = 20'h000a3; end
-            3'h6: begin shift_j0 = 4'hc; atan_j0 = 20'h00029; end
-            3'h7: begin shift_j0 = 4'he; atan_j0 = 20'h0000a; end
-            default: begin shift_j0 = 4'h0; atan_j0 = 20'h20000; end
+            3'h0: atan_j0 = 20'h09fb4;
+            3'h1: atan_j0 = 20'h028b1;
+            3'h2: atan_j0 = 20'h00a2f;
+            3'h3: atan_j0 = 20'h0028c;
+            3'h4: atan_j0 = 20'h000a3;
+            3'h5: atan_j0 = 20'h00029;
+            3'h6: atan_j0 = 20'h0000a;
+            default: atan_j0 = 20'h09fb4;
         endcase
     end
 
-    // shift and angle constant of iteration 1 of each clock
-    reg [3:0] shift_j1;
+    // angle constant of iteration 1 of each clock
     reg [Z_W-1:0] atan_j1;
     always @* begin
         case (count_reg)
-            3'h0: begin shift_j1 = 4'h1; atan_j1 = 20'h12e40; end
-            3'h1: begin shift_j1 = 4'h3; atan_j1 = 20'h05111; end
-            3'h2: begin shift_j1 = 4'h5; atan_j1 = 20'h0145d; end
-            3'h3: begin shift_j1 = 4'h7; atan_j1 = 20'h00518; end
-            3'h4: begin shift_j1 = 4'h9; atan_j1 = 20'h00146; end
-            3'h5: begin shift_j1 = 4'hb; atan_j1 = 20'h00051; end
-            3'h6: begin shift_j1 = 4'hd; atan_j1 = 20'h00014; end
-            3'h7: begin shift_j1 = 4'hf; atan_j1 = 20'h00005; end
-            default: begin shift_j1 = 4'h1; atan_j1 = 20'h12e40; end
+            3'h0: atan_j1 = 20'h05111;
+            3'h1: atan_j1 = 20'h0145d;
+            3'h2: atan_j1 = 20'h00518;
+            3'h3: atan_j1 = 20'h00146;
+            3'h4: atan_j1 = 20'h00051;
+            3'h5: atan_j1 = 20'h00014;
+            3'h6: atan_j1 = 20'h00005;
+            default: atan_j1 = 20'h05111;
         endcase
     end
 
-    wire [XY_W-1:0] xs_j0 = $signed(x_reg) >>> shift_j0;
-    wire [XY_W-1:0] ys_j0 = $signed(y_reg) >>> shift_j0;
+    wire [XY_W-1:0] xp_j0 = {{2{x_reg[17]}}, x_reg[17:2]};  // x >>> 2
+    wire [XY_W-1:0] xs_j0 = $signed(xp_j0) >>> count_shift;
+    wire [XY_W-1:0] yp_j0 = {{2{y_reg[17]}}, y_reg[17:2]};  // y >>> 2
+    wire [XY_W-1:0] ys_j0 = $signed(yp_j0) >>> count_shift;
     // iteration 0: turn counter-clockwise when the remaining angle is >= 0
     wire dir_j0 = (z_reg < Z_HALF);
     wire [XY_W-1:0] x_1 = x_reg + (dir_j0 ? ~ys_j0 : ys_j0) + {17'h00000, dir_j0};
     wire [XY_W-1:0] y_1 = y_reg + (dir_j0 ? xs_j0 : ~xs_j0) + {17'h00000, ~dir_j0};
     wire [Z_W-1:0] z_1 = z_reg + (dir_j0 ? ~atan_j0 : atan_j0) + {19'h00000, dir_j0};
 
-    wire [XY_W-1:0] xs_j1 = $signed(x_1) >>> shift_j1;
-    wire [XY_W-1:0] ys_j1 = $signed(y_1) >>> shift_j1;
+    wire [XY_W-1:0] xp_j1 = {{3{x_1[17]}}, x_1[17:3]};  // x >>> 3
+    wire [XY_W-1:0] xs_j1 = $signed(xp_j1) >>> count_shift;
+    wire [XY_W-1:0] yp_j1 = {{3{y_1[17]}}, y_1[17:3]};  // y >>> 3
+    wire [XY_W-1:0] ys_j1 = $signed(yp_j1) >>> count_shift;
     // iteration 1: turn counter-clockwise when the remaining angle is >= 0
     wire dir_j1 = (z_1 < Z_HALF);
     wire [XY_W-1:0] x_2 = x_1 + (dir_j1 ? ~ys_j1 : ys_j1) + {17'h00000, dir_j1};
@@ -144,6 +160,8 @@ module park_angle_sincos (
             o_valid_reg <= 1'b0;
         end else if (advance) begin
             o_valid_reg <= done;
+        end else if (o_to_out) begin
+            o_valid_reg <= 1'b0;
         end
     end
 
@@ -154,7 +172,7 @@ module park_angle_sincos (
         end
     end
 
-    // ---- output: rounding, saturation, buffer ----
+    // ---- output: rounding, saturation, register ----
     // fin_out_cos: drop 4 bit(s), half_even
     /* verilator lint_off UNUSEDSIGNAL */
     wire [17:0] fin_out_cos_biased = o_x_reg + 18'h00007 + {17'h00000, o_x_reg[4]};  // half_even: bias below the kept bits
@@ -169,56 +187,29 @@ module park_angle_sincos (
     wire [13:0] fin_out_sin = fin_out_sin_q;  // no saturation: every angle code stays within range (header)
     wire fin_valid = o_valid_reg;
 
-    // Output buffer with two entries. out_ready reaches only this buffer and ready_reg; the
-    // core advances while ready_reg is high. When the consumer stalls, the sample already on
-    // its way lands in the spare entry, and ready_reg falls for the next clock.
-    reg ready_reg;
+    // Output register: loaded when it is free or the consumer takes its sample now; a result
+    // that finds it full waits in the output register of iteration values until then.
     reg out_valid_reg;
-    reg spare_valid_reg;
     reg [13:0] out_cos_reg;
-    reg [13:0] spare_out_cos_reg;
     reg [13:0] out_sin_reg;
-    reg [13:0] spare_out_sin_reg;
 
     wire out_free = out_ready | ~out_valid_reg;
-    wire take_to_out = ready_reg & out_free;
-    wire take_to_spare = ready_reg & ~out_free;
-    wire spare_to_out = ~ready_reg & out_ready;
-    // Ready next clock if the consumer takes a sample now, or if the spare entry is empty and
-    // the output register and the arriving sample are not both occupied.
-    wire ready_next = out_ready | (~spare_valid_reg & (~out_valid_reg | ~fin_valid));
+    assign o_to_out = fin_valid & out_free;
 
     always @(posedge clk) begin
         if (rst) begin
-            ready_reg <= 1'b0;
             out_valid_reg <= 1'b0;
-            spare_valid_reg <= 1'b0;
-        end else begin
-            ready_reg <= ready_next;
-            if (take_to_out) begin
-                out_valid_reg <= fin_valid;
-            end else if (spare_to_out) begin
-                out_valid_reg <= spare_valid_reg;
-            end
-            if (take_to_spare) begin
-                spare_valid_reg <= fin_valid;
-            end else if (spare_to_out) begin
-                spare_valid_reg <= 1'b0;
-            end
+        end else if (o_to_out) begin
+            out_valid_reg <= 1'b1;
+        end else if (out_ready) begin
+            out_valid_reg <= 1'b0;
         end
     end
 
-    wire load_out = take_to_out | spare_to_out;
     always @(posedge clk) begin
-        if (take_to_spare) begin
-            spare_out_cos_reg <= fin_out_cos;
-            spare_out_sin_reg <= fin_out_sin;
-        end
-    end
-    always @(posedge clk) begin
-        if (load_out) begin
-            out_cos_reg <= ready_reg ? fin_out_cos : spare_out_cos_reg;
-            out_sin_reg <= ready_reg ? fin_out_sin : spare_out_sin_reg;
+        if (o_to_out) begin
+            out_cos_reg <= fin_out_cos;
+            out_sin_reg <= fin_out_sin;
         end
     end
 
@@ -252,7 +243,7 @@ module park_angle_sincos (
         if (accept) begin
             x_reg <= x_start;
             y_reg <= y_start;
-            z_reg <= z_start;
+            z_reg <= z_h2;
         end else if (busy_reg & ~last) begin
             x_reg <= x_2;
             y_reg <= y_2;
@@ -260,7 +251,7 @@ module park_angle_sincos (
         end
     end
 
-    assign advance = ready_reg;
+    assign advance = ~o_valid_reg;
 
 endmodule
 
