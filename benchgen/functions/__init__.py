@@ -120,10 +120,10 @@ def front_stages(spec: CoreSpec, dp: Datapath) -> int:
 #: Iterations a sine/cosine pipeline forms x and y for from a table (:func:`table_head`): 3
 #: makes a 4-input function of the fold and three directions, one LUT4 per bit.
 TABLE_HEAD_ITERATIONS = 3
-#: The same for an iterative core, whose table sits in the clock that loads a sample, behind
-#: the fold and the head's chained z additions: 3 there made that load path the core's longest
-#: (HX8K 84 -> 48 MHz for a 16/16 sincos, docs/hardware.md step 4), 2 keeps it shorter than a
-#: looped iteration.
+#: The same for an iterative core, whose table sits in the clock that loads a sample: there
+#: each direction but the first waits for a z adder, so 2 puts one carry chain in that clock
+#: (z after the head is one of two sums picked by the last direction) and 3 would put two,
+#: making the load path the core's longest (docs/hardware.md step 4).
 ITERATIVE_TABLE_HEAD_ITERATIONS = 2
 
 
