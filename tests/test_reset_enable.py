@@ -312,8 +312,10 @@ def test_the_bench_catches_a_register_that_ignores_the_enable_and_a_reset_of_the
     project = _project(tmp_path, "ce_bad", SIM_CASES["async_low_ce_iter"][0])
     rtl = project / "rtl/ce_bad.v"
     good = rtl.read_text()
-    # the block that drives out_valid: ungated, out_valid moves on an edge with clk_en low
-    first = good.rindex("if (clk_en) begin", 0, good.index("out_valid_reg <= fin_valid"))
+    # the block that drives out_valid (an iterative core's single output register, set when a
+    # result moves in): ungated, out_valid moves on an edge with clk_en low
+    assert good.count("out_valid_reg <= 1'b1") == 1
+    first = good.rindex("if (clk_en) begin", 0, good.index("out_valid_reg <= 1'b1"))
     rtl.write_text(good[:first] + good[first:].replace("if (clk_en) begin", "if (1'b1) begin", 1))
     report = run_sim(project, simulator="icarus", samples=500, seed=9, mode="per-clock")
     assert not report.passed
