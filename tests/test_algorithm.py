@@ -152,3 +152,7 @@ def test_only_an_iterative_sine_cosine_takes_a_table_head() -> None:
     assert sc.timing.cycles_per_sample == sc.datapath.iterations - ITERATIVE_TABLE_HEAD_ITERATIONS
     at = design(function="atan2", data_width=10)
     assert table_head(at.datapath, "iterative") == 0 and at.timing.cycles_per_sample == at.datapath.iterations
+    # an NCO's load clock holds the phase sum: no head there (a pipelined NCO keeps its own)
+    nco = design(function="nco", acc_width=16)
+    assert table_head(nco.datapath, "iterative") == 0 and nco.timing.cycles_per_sample == nco.datapath.iterations
+    assert table_head(nco.datapath, "pipelined") > 0
