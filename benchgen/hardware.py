@@ -1049,8 +1049,9 @@ class _Core:
 
         Only the directions chain (each reads the z before it); z after the head is the start
         z plus a sum of constants picked by them, formed as two sums beside the last direction's
-        adder and chosen by it, so one carry chain, not ``head`` of them, sits between the
-        input and the registers (HX8K 67 -> 80 MHz for a 16/16 sincos, docs/hardware.md)."""
+        adder and chosen by it, so ``head - 1`` carry chains, not ``head``, sit between the input
+        and the registers: one for the two-iteration head (HX8K 67 -> 80 MHz for a 16/16
+        sincos, docs/hardware.md)."""
         dp, b, ZW = self.dp, self.b, self.b.ZW
         assert start.select is not None and start.z is not None and len(start.vectors) == 2
         z0: Expr = start.z
