@@ -418,20 +418,30 @@ class _Core:
         if fin_tag is not None:
             b.wire("fin_tag", fin_tag, vector=True)
         b.note()
-        if self.valid_only:
-            self.output_plain()
-        elif self.single_output:
+        if self.valid_only or self.single_output:
             self.output_single()
         else:
             self.output_buffer()
 
-    def output_plain(self) -> None:
-        """The valid-only handshake's output: one register, loaded with each result."""
+    def output_single(self) -> None:
+        """One output register, loaded with each result.
+
+        Valid only: the sink takes every sample, so the register loads each result as it comes.
+        Ready/valid (an iterative core with two or more clocks per sample): a result arrives at
+        most every other clock, so the register need not take one while it is being emptied:
+        it loads when it is free or the consumer takes its sample (``o_to_out``), and the held
+        result waits in ``o_*_reg`` (the core stalls in its last clock) until then."""
         b, m = self.b, self.module
-        b.note(
-            "Output register: the sink takes every sample, so no buffer; out_valid is high for one\n"
-            "clock per result, and the outputs hold it until the next one."
-        )
+        if self.valid_only:
+            b.note(
+                "Output register: the sink takes every sample, so no buffer; out_valid is high for one\n"
+                "clock per result, and the outputs hold it until the next one."
+            )
+        else:
+            b.note(
+                "Output register: loaded when it is free or the consumer takes its sample now; a result\n"
+                "that finds it full waits in the output register of iteration values until then."
+            )
         out_valid = b.known(Sig("out_valid_reg", 1))
         m.add(Reg(out_valid))
         ports = [(p.name, p.width) for p in self.design.ports if p.direction == "out" and p.payload]
@@ -441,47 +451,19 @@ class _Core:
             m.add(Reg(regs[name]))
         b.note()
         fin_valid = b.sig("fin_valid")
-        m.add(RegisterBlock(updates=(((None, ((out_valid, fin_valid),)),),), reset=((out_valid, Const(0, 1)),)))
+        load: Expr = fin_valid
+        valid_chain: tuple = ((None, ((out_valid, fin_valid),)),)
+        if not self.valid_only:
+            out_ready = b.sig("out_ready")
+            out_free = b.wire("out_free", Or(out_ready, Not(out_valid)))
+            load = b.sig("o_to_out")
+            m.add(Assign(load, And(fin_valid, out_free)))  # type: ignore[arg-type]
+            b.note()
+            valid_chain = ((load, ((out_valid, Const(1, 1)),)), (out_ready, ((out_valid, Const(0, 1)),)))
+        m.add(RegisterBlock(updates=(valid_chain,), reset=((out_valid, Const(0, 1)),)))
         b.note()
         fin = {name: b.sig("fin_tag" if name == "out_tag" else f"fin_{name}") for name, _ in ports}
-        m.add(RegisterBlock(updates=(((fin_valid, tuple((regs[n], fin[n]) for n, _ in ports)),),)))
-        b.note()
-        m.add(Assign(b.sig("out_valid"), out_valid))
-        for name, _ in ports:
-            m.add(Assign(b.sig(name), regs[name]))
-
-    def output_single(self) -> None:
-        """An iterative core's output under the ready/valid handshake: one register. A result
-        arrives at most every other clock, so the register need not take one while it is being
-        emptied: it loads when it is free or the consumer takes its sample (``o_to_out``), and
-        the held result waits in ``o_*_reg`` (the core stalls in its last clock) until then."""
-        b, m = self.b, self.module
-        b.note(
-            "Output register: loaded when it is free or the consumer takes its sample now; a result\n"
-            "that finds it full waits in the output register of iteration values until then."
-        )
-        out_valid = b.known(Sig("out_valid_reg", 1))
-        m.add(Reg(out_valid))
-        ports = [(p.name, p.width) for p in self.design.ports if p.direction == "out" and p.payload]
-        regs: dict[str, Sig] = {}
-        for name, width in ports:
-            regs[name] = b.known(Sig(f"{name}_reg", width, vector=True))
-            m.add(Reg(regs[name]))
-        b.note()
-        out_ready, fin_valid = b.sig("out_ready"), b.sig("fin_valid")
-        out_free = b.wire("out_free", Or(out_ready, Not(out_valid)))
-        o_to_out = b.sig("o_to_out")
-        m.add(Assign(o_to_out, And(fin_valid, out_free)))
-        b.note()
-        m.add(
-            RegisterBlock(
-                updates=(((o_to_out, ((out_valid, Const(1, 1)),)), (out_ready, ((out_valid, Const(0, 1)),))),),
-                reset=((out_valid, Const(0, 1)),),
-            )
-        )
-        b.note()
-        fin = {name: b.sig("fin_tag" if name == "out_tag" else f"fin_{name}") for name, _ in ports}
-        m.add(RegisterBlock(updates=(((o_to_out, tuple((regs[n], fin[n]) for n, _ in ports)),),)))
+        m.add(RegisterBlock(updates=(((load, tuple((regs[n], fin[n]) for n, _ in ports)),),)))
         b.note()
         m.add(Assign(b.sig("out_valid"), out_valid))
         for name, _ in ports:
