@@ -460,6 +460,7 @@ def test_exhaustive_run_fails_a_core_that_loses_samples_when_stalled(
     assert lost and all("stall" in p for p in record["problems"] if "came out" in p)
 
 
+@pytest.mark.sim
 def test_exhaustive_run_fails_an_iterative_core_whose_output_register_is_overwritten(tmp_path: Path) -> None:
     """An iterative core's single output register (no skid buffer) must not take a result while
     the consumer stalls: the unmutated core passes every code under stalls, and a core whose
