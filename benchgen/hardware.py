@@ -418,7 +418,7 @@ class _Core:
         if fin_tag is not None:
             b.wire("fin_tag", fin_tag, vector=True)
         b.note()
-        if self.valid_only or self.single_output:
+        if one:
             self.output_single()
         else:
             self.output_buffer()
@@ -916,9 +916,11 @@ class _Core:
             if needs_active:
                 sigs.append(b.known(Sig(f"active_j{j}", 1)))
             if sigs:
+                held = ([] if by_count else ["shift"]) + (["angle constant"] if self.has_z else [])
+                held += ["whether it runs"] if needs_active else []
                 b.note()
-                what = "angle constant" if by_count else "shift and angle constant"
-                b.note(f"{what} of iteration {j} of each clock" if self.has_z else f"shift of iteration {j} of each clock")
+                what = held[0] if len(held) == 1 else f"{', '.join(held[:-1])} and {held[-1]}"
+                b.note(f"iteration {j} of each clock: its {what}")
                 for sig in sigs:
                     m.add(Reg(sig))
 

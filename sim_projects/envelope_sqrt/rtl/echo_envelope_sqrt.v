@@ -89,7 +89,7 @@ module echo_envelope_sqrt (
     wire advance;
     wire o_to_out;  // the held result moves to the output register
 
-    // shift of iteration 0 of each clock
+    // iteration 0 of each clock: its shift
     reg [2:0] shift_j0;
     always @* begin
         case (count_reg)
@@ -101,7 +101,7 @@ module echo_envelope_sqrt (
         endcase
     end
 
-    // shift of iteration 1 of each clock
+    // iteration 1 of each clock: its shift
     reg [2:0] shift_j1;
     always @* begin
         case (count_reg)

@@ -99,7 +99,7 @@ module park_angle_sincos (
 
     wire [3:0] count_shift = {count_reg, 1'b0};  // count * 2: the shift added by the clock
 
-    // angle constant of iteration 0 of each clock
+    // iteration 0 of each clock: its angle constant
     reg [Z_W-1:0] atan_j0;
     always @* begin
         case (count_reg)
@@ -114,7 +114,7 @@ module park_angle_sincos (
         endcase
     end
 
-    // angle constant of iteration 1 of each clock
+    // iteration 1 of each clock: its angle constant
     reg [Z_W-1:0] atan_j1;
     always @* begin
         case (count_reg)
