@@ -266,6 +266,14 @@ class Timing:
         """Pipelined: register stages. Iterative: clocks of iteration per sample."""
         return len(self.stages)
 
+    def describe(self) -> str:
+        """The arrangement in words, as the RTL header, the C model and the README give it."""
+        if self.architecture == "pipelined":
+            return f"pipelined, {self.depth} register stage(s)"
+        first, end = self.stages[0]
+        head = f", iterations 0 to {first - 1} in the load clock" if first else ""
+        return f"iterative, {end - first} iteration(s) per clock{head}"
+
 
 def make_timing(spec: CoreSpec, iterations: int, front: int = 0, head: int = 0) -> Timing:
     """Spread the iterations over register stages (pipelined) or clocks (iterative).

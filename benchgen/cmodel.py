@@ -83,11 +83,7 @@ def _header(design: Design, twin: bool, config_text: str, file_note: str, behind
     fn = function_of(dp)
     inputs, outputs = _ports(design)
     name = model_function_name(design)
-    arch = (
-        f"pipelined, {timing.depth} register stage(s)"
-        if timing.architecture == "pipelined"
-        else f"iterative, {timing.stages[0][1] - timing.stages[0][0]} iteration(s) per clock"
-    )
+    arch = timing.describe()
     lines = [
         f"{spec.name}: bit-true C model of the core {spec.name} ({dp.function}; the RTL is {arch}).",
         file_note,

@@ -132,11 +132,7 @@ class _Core:
     def header(self) -> None:
         dp, design, fn = self.dp, self.design, self.fn
         timing = design.timing
-        arch = (
-            f"pipelined, {timing.depth} register stage(s)"
-            if timing.architecture == "pipelined"
-            else f"iterative, {timing.stages[0][1] - timing.stages[0][0]} iteration(s) per clock"
-        )
+        arch = timing.describe()
         lines = [
             f"{design.spec.name}: {dp.function}, {arch}",
             "",

@@ -155,12 +155,7 @@ def _source_files(design: Design) -> dict[str, Any]:
 
 def _readme(design: Design, manifest: dict[str, Any]) -> str:
     spec, dp, timing = design.spec, design.datapath, design.timing
-    d = manifest["derived"]
-    arch = (
-        f"pipelined, {timing.depth} register stage(s)"
-        if timing.architecture == "pipelined"
-        else f"iterative, {d['iterations_per_cycle']} iteration(s) per clock"
-    )
+    arch = timing.describe()
     what = function_of(dp).describe(dp)
     ports = "\n".join(f"| `{p.name}` | {p.doc} |" for p in design.ports if p.role == "data")
     free = function_of(dp).free_running(dp)
