@@ -153,6 +153,8 @@ class Datapath:
         data_width: Bits of the data ports.
         iterations: Number of iterations.
         guard_bits: Fraction bits kept below the data LSB inside the data path.
+        angle_guard_bits: Where the function sizes them apart (an angle input): the guard bits
+            of z, which set ``z_frac``; ``None`` where z's fraction bits follow ``guard_bits``.
         rounding: How the guard bits are dropped (``truncate``, ``half_up``, ``half_even``).
         xy_width: Width of the internal x and y.
         z_width: Width of the internal angle.
@@ -202,6 +204,14 @@ class Datapath:
     out_frac: int = 0
     saturates: bool = True
     xy_narrowed: bool = False
+    angle_guard_bits: int | None = None
+
+    def guard_text(self) -> str:
+        """The guard bits in words: x and y's, and z's where they are sized apart and differ."""
+        text = f"{self.guard_bits} guard bits"
+        if self.angle_guard_bits is None or self.angle_guard_bits == self.guard_bits:
+            return text
+        return f"{text} ({self.angle_guard_bits} for z)"
 
     @property
     def radians(self) -> bool:

@@ -145,6 +145,12 @@ class Core:
         return self.design.datapath.guard_bits
 
     @property
+    def angle_guard_bits(self) -> int | None:
+        """z's guard bits where the function sizes them apart from x and y's (an angle input:
+        sincos, rotate, nco); ``None`` where z's fraction bits follow :attr:`guard_bits`."""
+        return self.design.datapath.angle_guard_bits
+
+    @property
     def latency_cycles(self) -> int:
         """Clocks from an input handshake to its output handshake."""
         return self.design.timing.latency_cycles

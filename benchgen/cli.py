@@ -93,7 +93,7 @@ def _generate(args: argparse.Namespace) -> int:
     design = generate_project(args.config, args.output, progress=_Progress())
     dp, timing = design.datapath, design.timing
     print(
-        f"wrote {args.output}: {design.spec.name}, {dp.iterations} iterations, {dp.guard_bits} guard bits, "
+        f"wrote {args.output}: {design.spec.name}, {dp.iterations} iterations, {dp.guard_text()}, "
         f"latency {timing.latency_cycles}, one sample per {timing.cycles_per_sample} clock(s), "
         f"worst error {design.accuracy.max_error_lsb:.4f} LSB (model vs ideal, over {design.proof.describe()})"
     )

@@ -56,7 +56,7 @@ def modelled(design: Design) -> tuple[Design, bool]:
     if fn.phase_front(dp) is None:
         return design, False
     spec = fn.sizing_spec(design.spec)
-    core = final_datapath(spec, dp.iterations, dp.guard_bits)
+    core = final_datapath(spec, dp.iterations, dp.guard_bits, dp.angle_guard_bits)
     # The core's timing (its latency is the NCO's) without the phase path's own register stage.
     timing = replace(design.timing, front=front_stages(spec, core))
     return replace(design, spec=spec, datapath=core, timing=timing), True
@@ -103,7 +103,7 @@ def _header(design: Design, twin: bool, config_text: str, file_note: str, behind
             else ""
         ),
         f"Arithmetic: {dp.coordinates} coordinates, {dp.mode} mode, {dp.iterations} iterations, "
-        f"{dp.guard_bits} guard bits; x, y {dp.xy_width} bits, z {dp.z_width} bits.",
+        f"{dp.guard_text()}; x, y {dp.xy_width} bits, z {dp.z_width} bits.",
     ]
     gain = fn.header_gain(dp)
     if gain:

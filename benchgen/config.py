@@ -174,6 +174,7 @@ _FIELDS: tuple[str, ...] = (
     "data_width",
     "iterations",
     "guard_bits",
+    "angle_guard_bits",
     "rounding",
     "tag_width",
     "max_error_lsb",
@@ -216,7 +217,7 @@ def spec_to_dict(spec: CoreSpec) -> dict[str, Any]:
         if key in unused or key not in _FIELDS:  # target_picks: the sizer's, not the user's
             continue
         if value is None:
-            if key in ("iterations", "guard_bits"):
+            if key in ("iterations", "guard_bits"):  # angle_guard_bits: left out, as before it existed
                 out[key] = "auto"
             continue
         if key in _QUIET_DEFAULTS and value == _QUIET_DEFAULTS[key]:
@@ -451,6 +452,9 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
     )
     iterations = _int_field(raw, "iterations", 1, MAX_ITERATIONS, auto=True) if "iterations" in raw else None
     guard_bits = _int_field(raw, "guard_bits", 0, 16, auto=True) if "guard_bits" in raw else None
+    angle_guard_bits = (
+        _int_field(raw, "angle_guard_bits", 0, 16, auto=True) if "angle_guard_bits" in raw else None
+    )
     rounding = _choice_field(raw, "rounding", ROUNDING_MODES) if "rounding" in raw else "half_even"
     tag_width = _int_field(raw, "tag_width", 0, MAX_TAG_WIDTH, default=0) if "tag_width" in raw else 0
     gain = _choice_field(raw, "gain", GAIN_MODES) if "gain" in raw else "compensated"
@@ -599,6 +603,7 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
         data_width=data_width,
         iterations=iterations,
         guard_bits=guard_bits,
+        angle_guard_bits=angle_guard_bits,
         rounding=rounding,
         tag_width=tag_width,
         max_error_lsb=float(max_error),

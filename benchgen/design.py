@@ -22,6 +22,7 @@ from benchgen.config import MAX_ITERATIONS, MAX_PORT_WIDTH, CoreSpec
 from benchgen.spec import DEFAULT_HDL, DEFAULT_VLNV_LIBRARY, DEFAULT_VLNV_VENDOR, RESET_POLARITIES, RESET_STYLES
 from benchgen.errors import ConfigError
 from benchgen.functions import (
+    ANGLE_GUARD_FIELD,
     CorePort,
     EXHAUSTIVE_LIMIT_BITS,
     EXHAUSTIVE_SLOW_MODEL_BITS,
@@ -51,6 +52,7 @@ from benchgen.functions import (
     measure,
     output_ports,
     random_inputs,
+    sizes_angle_guard,
 )
 from benchgen.model import to_signed
 from benchgen.reference import ErrorStats
@@ -383,9 +385,11 @@ def sizing_cost(spec: CoreSpec, dp: Datapath) -> tuple[int, ...]:
     return cycles, per_cycle * iteration_bits(dp), dp.iterations
 
 
-def _size(spec: CoreSpec, progress: Progress | None = None) -> tuple[int, int, ErrorStats, Proof]:
-    """The (iterations, guard bits) of least :func:`sizing_cost` that meet the target over the
-    full check (fields fixed by the spec stay).
+def _size(spec: CoreSpec, progress: Progress | None = None) -> _Sized:
+    """The (iterations, guard bits, angle guard bits) of least :func:`sizing_cost` that meet the
+    target over the full check (fields fixed by the spec stay). The angle guard bits (z's, where
+    the function sizes them apart: :func:`benchgen.functions.sizes_angle_guard`) are ``None``
+    where z follows the guard bits.
 
     Raises:
         ConfigError: if no size meets the target, with a fix (``suggestion``) that is accepted:
@@ -397,17 +401,27 @@ def _size(spec: CoreSpec, progress: Progress | None = None) -> tuple[int, int, E
     prover = _prover(spec, progress)
     budget = spec.max_error_lsb
     g_top = spec.guard_bits if spec.guard_bits is not None else MAX_AUTO_GUARD_BITS
+    g_range = [spec.guard_bits] if spec.guard_bits is not None else list(range(MAX_AUTO_GUARD_BITS + 1))
+    # z's guard bits: searched on their own where the function sizes them apart and the spec
+    # leaves them auto; else one value (None: the spec's, or the guard bits).
+    zg_range: list[int | None] = (
+        list(range(MAX_AUTO_GUARD_BITS + 1))
+        if sizes_angle_guard(spec) and spec.angle_guard_bits is None
+        else [None]
+    )
 
-    def candidate(n: int, g: int) -> Datapath | None:
+    def candidate(n: int, g: int, zg: int | None) -> Datapath | None:
         try:
-            return make_datapath(spec, n, g)
+            return make_datapath(spec, n, g, zg)
         except ConfigError:
             return None  # more iterations than this width holds
 
-    g_range = [spec.guard_bits] if spec.guard_bits is not None else list(range(MAX_AUTO_GUARD_BITS + 1))
-
     def passes_search(n: int) -> bool:
-        return any(dp is not None and not prover.rejects(dp, budget) for dp in (candidate(n, g) for g in g_range))
+        # z at its most guard bits: the fewest iterations any z width allows
+        return any(
+            dp is not None and not prover.rejects(dp, budget)
+            for dp in (candidate(n, g, zg_range[-1]) for g in g_range)
+        )
 
     if spec.iterations is not None:
         # Iterations that no allowed guard-bit count can hold are refused with the width
@@ -430,37 +444,52 @@ def _size(spec: CoreSpec, progress: Progress | None = None) -> tuple[int, int, E
             while n < MAX_ITERATIONS and not passes_search(n):
                 n += 1
         n_range = list(range(n, MAX_ITERATIONS + 1))
-    # cost, n, g, its check's statistics and what that check covered (inputs learned from later
+    # cost, size, its check's statistics and what that check covered (inputs learned from later
     # candidates' failures were not part of it)
-    best: tuple[tuple[int, ...], int, int, ErrorStats, Proof] | None = None
+    best: tuple[tuple[int, ...], _Sized] | None = None
     for n in n_range:
-        if best is not None:
-            # Past the first size that passes, a count is worth trying only while its cheapest
-            # data path (the fewest guard bits that fit) costs less than the best so far: the
-            # cost grows with iterations and with guard bits.
-            cheapest = next((dp for dp in (candidate(n, g) for g in g_range) if dp is not None), None)
-            if cheapest is None or sizing_cost(spec, cheapest) >= best[0]:
-                break
+        # The cost grows with iterations, guard bits and z's guard bits: past the first size
+        # that passes, a count (and at a count, a guard-bit count) is worth trying only while
+        # its cheapest data path (the fewest bits that fit) costs less than the best so far.
+        cheapest = next((dp for dp in (candidate(n, g, zg_range[0]) for g in g_range) if dp is not None), None)
+        if best is not None and (cheapest is None or sizing_cost(spec, cheapest) >= best[0]):
+            break
         for g in g_range:
-            dp = candidate(n, g)
-            if dp is None:
+            floor = candidate(n, g, zg_range[0])
+            if floor is None:
                 continue
-            if best is not None and sizing_cost(spec, dp) >= best[0]:
+            if best is not None and sizing_cost(spec, floor) >= best[0]:
                 break  # more guard bits only cost more
-            if prover.rejects(dp, budget):
-                continue
-            stats = prover.check(dp, budget)
-            if stats is not None:
-                best = (sizing_cost(spec, dp), n, g, stats, prover.proof())
-                break  # the fewest guard bits at this count
+            for zg in zg_range:
+                dp = candidate(n, g, zg)
+                if dp is None:
+                    continue
+                if best is not None and sizing_cost(spec, dp) >= best[0]:
+                    break  # more z bits only cost more
+                if prover.rejects(dp, budget):
+                    continue
+                stats = prover.check(dp, budget)
+                if stats is not None:
+                    best = (sizing_cost(spec, dp), _Sized(n, g, zg, stats, prover.proof()))
+                    break  # the fewest z guard bits at this (n, g)
     if best is None:
         raise _missed_budget(spec, prover)
-    result = (best[1], best[2], best[3], best[4])
-    _SIZES[spec] = result
-    return result
+    _SIZES[spec] = best[1]
+    return best[1]
 
 
-_SIZES: dict[CoreSpec, tuple[int, int, ErrorStats, Proof]] = {}
+@dataclass(frozen=True)
+class _Sized:
+    """What sizing picked: the size and its check."""
+
+    iterations: int
+    guard_bits: int
+    angle_guard_bits: int | None
+    stats: ErrorStats
+    proof: Proof
+
+
+_SIZES: dict[CoreSpec, _Sized] = {}
 
 
 def _feasible(spec: CoreSpec, n: int, g: int) -> bool:
@@ -528,15 +557,17 @@ def _missed_budget(spec: CoreSpec, prover: _Prover) -> ConfigError:
     """No size meets ``max_error_lsb``: say how close the largest size gets, and what is accepted."""
     g = spec.guard_bits if spec.guard_bits is not None else MAX_AUTO_GUARD_BITS
     n = spec.iterations if spec.iterations is not None else _largest_n(spec, g)
+    zg = MAX_AUTO_GUARD_BITS if sizes_angle_guard(spec) and spec.angle_guard_bits is None else None
     achieved = float("inf")
     if n is not None:
-        achieved = prover.worst(make_datapath(spec, n, g))
+        achieved = prover.worst(make_datapath(spec, n, g, zg))
     # (n, g) lies inside the search space the sizer walks, and this is the full check's measure
     # of it, so any budget above `achieved` is met there: the budget fix needs no second run.
     budget = _budget_above(max(achieved, spec.max_error_lsb))
     fixes: list[tuple[str, dict[str, object]]] = []
-    fixed = [f for f in ("iterations", "guard_bits") if getattr(spec, f) is not None]
-    for fields in [[f] for f in fixed] + ([fixed] if len(fixed) == 2 else []):
+    sized = ("iterations", "guard_bits", ANGLE_GUARD_FIELD) if sizes_angle_guard(spec) else ("iterations", "guard_bits")
+    fixed = [f for f in sized if getattr(spec, f) is not None]
+    for fields in [[f] for f in fixed] + ([fixed] if len(fixed) >= 2 else []):
         change: dict[str, object] = {f: "auto" for f in fields}
         if _accepted(spec, change):
             text = " and ".join(f'{f} = "auto"' for f in fields)
@@ -618,18 +649,22 @@ def build_design(spec: CoreSpec, *, progress: Progress | None = None) -> Design:
 
     spec = function_named(spec.function).resolve_spec(spec, candidate)
     _check_port_widths(spec)
-    n, g, stats, proof = _size(_arithmetic(spec), progress)
-    dp = final_datapath(spec, n, g)
+    sized = _size(_arithmetic(spec), progress)
+    n = sized.iterations
+    dp = final_datapath(spec, n, sized.guard_bits, sized.angle_guard_bits)
     try:
         timing: Timing = core_timing(spec, dp)
     except ConfigError as exc:  # more stages than iterations: as many as there are is accepted
         raise ConfigError(exc.field, exc.value, exc.allowed, exc.fix, suggestion={exc.field: n}) from None
-    auto = tuple(f for f, v in (("iterations", spec.iterations), ("guard_bits", spec.guard_bits)) if v is None)
+    sized_fields = [("iterations", spec.iterations), ("guard_bits", spec.guard_bits)]
+    if sizes_angle_guard(spec):
+        sized_fields.append((ANGLE_GUARD_FIELD, spec.angle_guard_bits))
+    auto = tuple(f for f, v in sized_fields if v is None)
     return Design(
         spec=spec,
         datapath=dp,
         timing=timing,
-        accuracy=stats,
-        proof=proof,
+        accuracy=sized.stats,
+        proof=sized.proof,
         auto_fields=auto,
     )

@@ -172,6 +172,7 @@ class NcoSizing:
             "data_width": dp.data_width,
             "iterations": dp.iterations,
             "guard_bits": dp.guard_bits,
+            "angle_guard_bits": dp.angle_guard_bits,
             "rounding": dp.rounding,
             "max_error_lsb": self.design.spec.max_error_lsb,
         }

@@ -57,6 +57,9 @@ class CoreSpec:
         data_width: Bits of each signed output.
         iterations: Rotation iterations, or ``None`` for auto sizing.
         guard_bits: Extra fraction bits inside the data path, or ``None`` for auto sizing.
+        angle_guard_bits: Where the function offers it (an angle input: its module lists
+            ``angle_guard_bits`` in its options): the guard bits of the internal angle z, sized
+            apart from x and y's; ``None`` for auto sizing.
         rounding: How the guard bits are dropped at the output.
         tag_width: Width of the user tag carried with each sample; 0 means no tag ports.
         max_error_lsb: Worst error the core may have against the ideal, in output LSBs.
@@ -97,6 +100,7 @@ class CoreSpec:
     data_width: int = 16
     iterations: int | None = None
     guard_bits: int | None = None
+    angle_guard_bits: int | None = None
     rounding: str = "half_even"
     tag_width: int = 0
     max_error_lsb: float = 1.0

@@ -80,7 +80,7 @@ SPECTRUM_BINS = 1024
 GRID_INPUTS = 1 << 16
 #: Fields that size or shape a core without changing its arithmetic: the grid varies the first
 #: two itself, and the model is the same at every depth and architecture.
-_SIZING_FIELDS = ("iterations", "guard_bits", "pipeline_depth", "iterations_per_cycle", "architecture")
+_SIZING_FIELDS = ("iterations", "guard_bits", "angle_guard_bits", "pipeline_depth", "iterations_per_cycle", "architecture")
 
 
 def _coherent_cycles(n_fft: int) -> int:
@@ -123,7 +123,7 @@ def _error_grid(core: Mapping[str, Any], design: Design, its: list[int], gbs: li
         # sizer measures it so (benchgen.design). Measured the same way here, on the core's own
         # inputs; the whole NCO's model over 2^16 tokens would take seconds per curve point.
         spec = sized
-        inputs, _ = sizing_inputs(make_datapath(spec, design.datapath.iterations, design.datapath.guard_bits))
+        inputs, _ = sizing_inputs(make_datapath(spec, design.datapath.iterations, design.datapath.guard_bits, design.datapath.angle_guard_bits))
     else:
         # The core's own inputs: which ones the sizing uses does not depend on the size.
         inputs, _ = sizing_inputs(design.datapath)

@@ -68,32 +68,37 @@ def best_over_guard(spec: Any, n: int, inputs: Any, ideal: Any) -> float:
 
 
 def cheaper_sizes_miss(spec: Any, design: Any, inputs: Any, ideal: Any, target: float = 1.0) -> int:
-    """Assert that every (iterations, guard bits) of lower sizing cost than ``design``'s
-    (benchgen.design.sizing_cost: fewer adder bits) misses ``target`` on ``inputs``; return how
-    many were judged. The cost grows with both, so the search is finite."""
+    """Assert that every (iterations, guard bits, z's guard bits where the function sizes them
+    apart) of lower sizing cost than ``design``'s (benchgen.design.sizing_cost: fewer adder
+    bits) misses ``target`` on ``inputs``; return how many were judged. The cost grows with
+    each, so the search is finite."""
     from benchgen.design import MAX_AUTO_GUARD_BITS, sizing_cost, sizing_evidence
     from benchgen.errors import ConfigError
-    from benchgen.functions import ideal_outputs, make_datapath, measure
+    from benchgen.functions import ideal_outputs, make_datapath, measure, sizes_angle_guard
 
     cost = sizing_cost(spec, design.datapath)
     # A size that misses on the sizer's own search set (corners, directed worst cases, inputs
     # that failed) misses, full stop; only the rest are measured on all of ``inputs``.
     evidence = sizing_evidence(spec)
     evidence_ideal = ideal_outputs(design.datapath, evidence, with_gain=False)
+    z_guards = (
+        list(range(MAX_AUTO_GUARD_BITS + 1)) if sizes_angle_guard(spec) and spec.angle_guard_bits is None else [None]
+    )
     judged = 0
     for n in range(1, 4 * spec.data_width + 8):
         for g in range(MAX_AUTO_GUARD_BITS + 1):
-            try:
-                dp = make_datapath(spec, n, g)
-            except ConfigError:
-                continue  # more iterations than this width holds
-            if sizing_cost(spec, dp) >= cost:
-                break
-            judged += 1
-            if measure(dp, evidence, evidence_ideal).max_error_lsb >= target:
-                continue
-            worst = measure(dp, inputs, ideal).max_error_lsb
-            assert worst >= target, f"{n} iterations, {g} guard bits cost less and reach {worst} LSB"
+            for zg in z_guards:
+                try:
+                    dp = make_datapath(spec, n, g, zg)
+                except ConfigError:
+                    continue  # more iterations than this width holds
+                if sizing_cost(spec, dp) >= cost:
+                    break
+                judged += 1
+                if measure(dp, evidence, evidence_ideal).max_error_lsb >= target:
+                    continue
+                worst = measure(dp, inputs, ideal).max_error_lsb
+                assert worst >= target, f"{n} iterations, {g} guard bits, z {zg} cost less and reach {worst} LSB"
     return judged
 
 

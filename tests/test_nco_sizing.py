@@ -76,7 +76,7 @@ def test_output_width_is_the_fewest_that_the_bound_allows() -> None:
     dp = s.design.datapath
     p, n = dp.angle_width, dp.data_width
     assert sfdr_bound_db(p, dp.amplitude, s.error_max_lsb) >= 60.0
-    smaller = build_design(parse_config(s.core_config() | {"data_width": n - 1, "iterations": "auto", "guard_bits": "auto"}))
+    smaller = build_design(parse_config(s.core_config() | {"data_width": n - 1, "iterations": "auto", "guard_bits": "auto", "angle_guard_bits": "auto"}))
     assert sfdr_bound_db(p, smaller.datapath.amplitude, core_error_max_lsb(smaller.datapath)) < 60.0
 
 

@@ -102,7 +102,8 @@ def test_raw_gain_and_wide_angles_keep_their_saturation() -> None:
         ({"handshake": "ready_valid"}, False),
         ({"handshake": "valid_only"}, False),
         # truncation (floor) reaches the most negative code: narrowed, that code moved up
-        ({"iterations": 10, "guard_bits": 2, "rounding": "truncate", "max_error_lsb": 4.0}, True),
+        ({"iterations": 10, "guard_bits": 2, "angle_guard_bits": 2, "rounding": "truncate", "max_error_lsb": 4.0},
+         True),
     ],
 )
 def test_narrowed_description_equals_the_model_on_every_code(extra: dict[str, Any], saturates: bool) -> None:

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 import numpy as np
 import pytest
@@ -11,6 +12,7 @@ from conftest import cheaper_sizes_miss
 from benchgen.functions import make_datapath
 from benchgen.config import parse_config
 from benchgen.design import MAX_AUTO_GUARD_BITS, build_design
+from benchgen.errors import ConfigError
 from benchgen.functions import measure, sizing_inputs
 
 
@@ -68,8 +70,13 @@ def test_explicit_sizes_are_measured_and_kept() -> None:
     )
     design = build_design(spec)
     assert (design.datapath.iterations, design.datapath.guard_bits) == (16, 5)
-    assert design.auto_fields == ()
+    assert design.auto_fields == ("angle_guard_bits",)  # z's guard bits are still sized
     assert design.accuracy.max_error_lsb < 1.0
+    fixed = build_design(replace(spec, angle_guard_bits=7))
+    assert fixed.auto_fields == ()
+    assert fixed.datapath.angle_guard_bits == 7
+    assert fixed.datapath.z_frac == 12 + 2 + 7  # turns: data bits + 2 + z's guard bits
+    assert fixed.accuracy.max_error_lsb < 1.0
 
 
 def test_large_angle_space_is_sampled_not_exhaustive() -> None:
@@ -78,3 +85,35 @@ def test_large_angle_space_is_sampled_not_exhaustive() -> None:
     angles = inputs["in_angle"]
     assert not exhaustive and len(angles) > 1_000_000
     assert len(np.unique(angles)) > 900_000
+
+
+def test_angle_guard_bits_are_sized_on_their_own() -> None:
+    """z's guard bits are a third sized dimension: the iterative 16-bit core keeps 8 guard bits
+    in x and y but needs fewer in z, and one fewer in z misses the budget on some input of the
+    whole space (its z is then narrower than a z that follows x and y's guard bits)."""
+    spec = parse_config(
+        {"name": "c", "function": "sincos", "data_width": 16, "angle_width": 16, "architecture": "iterative"}
+    )
+    design = build_design(spec)
+    dp = design.datapath
+    n, g, zg = dp.iterations, dp.guard_bits, dp.angle_guard_bits
+    assert zg is not None and zg < g
+    assert dp.z_frac == 16 + 2 + zg  # turns: data bits + 2 + z's guard bits
+    assert "angle_guard_bits" in design.auto_fields
+    inputs, exhaustive = sizing_inputs(dp)
+    assert exhaustive
+    assert measure(make_datapath(spec, n, g, zg), inputs).max_error_lsb < 1.0
+    assert measure(make_datapath(spec, n, g, zg - 1), inputs).max_error_lsb >= 1.0
+    assert make_datapath(spec, n, g).z_width > dp.z_width  # z following the guard bits
+
+
+def test_angle_guard_bits_apply_only_where_the_angle_is_an_input() -> None:
+    """atan2's z is its result, sized with guard_bits: the field is refused, naming the fix."""
+    with pytest.raises(ConfigError) as err:
+        parse_config({"name": "c", "function": "atan2", "angle_guard_bits": 3})
+    assert err.value.field == "angle_guard_bits" and err.value.value == 3
+    assert "remove angle_guard_bits" in err.value.fix
+    assert '"sincos"' in err.value.allowed
+    for fn in ("sincos", "rotate", "nco"):
+        spec = parse_config({"name": "c", "function": fn, "angle_guard_bits": 3})
+        assert spec.angle_guard_bits == 3

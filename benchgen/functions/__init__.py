@@ -11,6 +11,7 @@ from __future__ import annotations
 import functools
 
 from collections.abc import Mapping
+from dataclasses import replace
 from typing import Any
 
 import numpy as np
@@ -59,6 +60,8 @@ __all__ = [
     "int64_model",
     "join_inputs",
     "final_datapath",
+    "sizes_angle_guard",
+    "ANGLE_GUARD_FIELD",
     "make_datapath",
     "measure",
     "output_ports",
@@ -174,12 +177,24 @@ def refused_fields(fn: Function) -> dict[str, str]:
     return out
 
 
-def make_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Datapath:
-    """The data path of a core at a size.
+def sizes_angle_guard(spec: CoreSpec) -> bool:
+    """Whether the function takes ``angle_guard_bits`` (z's guard bits apart from x and y's)."""
+    return ANGLE_GUARD_FIELD in function_named(spec.function).options
+
+
+ANGLE_GUARD_FIELD = "angle_guard_bits"
+
+
+def make_datapath(spec: CoreSpec, iterations: int, guard_bits: int, angle_guard_bits: int | None = None) -> Datapath:
+    """The data path of a core at a size: ``iterations``, ``guard_bits`` and, where the function
+    sizes z's guard bits apart (:func:`sizes_angle_guard`), ``angle_guard_bits`` (``None``: the
+    spec's, and where the spec leaves them auto, ``guard_bits``).
 
     Raises:
         ConfigError: if the iterations do not fit the internal width.
     """
+    if angle_guard_bits is not None and sizes_angle_guard(spec):
+        spec = replace(spec, angle_guard_bits=angle_guard_bits)
     return function_named(spec.function).datapath(spec, iterations, guard_bits)
 
 
@@ -188,7 +203,9 @@ def _proved(dp: Datapath) -> Datapath:
     return function_of(dp).proved_range(dp)
 
 
-def final_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Datapath:
+def final_datapath(
+    spec: CoreSpec, iterations: int, guard_bits: int, angle_guard_bits: int | None = None
+) -> Datapath:
     """The data path of the core that is shipped at a size: :func:`make_datapath`, then without
     the logic that evaluating every input proves idle (a function's ``proved_range``: today the
     sine/cosine core's saturation and x/y headroom bit, up to 2^20 angle codes).
@@ -196,7 +213,7 @@ def final_datapath(spec: CoreSpec, iterations: int, guard_bits: int) -> Datapath
     Sizing judges candidates with :func:`make_datapath`; the narrower data path computes the
     same bits on every input, so the accuracy proven there holds for it.
     """
-    return _proved(make_datapath(spec, iterations, guard_bits))
+    return _proved(make_datapath(spec, iterations, guard_bits, angle_guard_bits))
 
 
 def input_ports(dp: Datapath) -> tuple[Port, ...]:

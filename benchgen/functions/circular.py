@@ -80,6 +80,7 @@ class CircularFunction(Function):
         out_width: int,
         out_max: int,
         z_frac: int,
+        angle_guard_bits: int | None = None,
         x_start: int = 0,
         k_frac: int = 0,
         prenorm: bool = False,
@@ -116,6 +117,7 @@ class CircularFunction(Function):
             k_const=k_const,
             k_frac=k_frac,
             pi_const=pi_at(z_frac) if radians else 0,
+            angle_guard_bits=angle_guard_bits,
             atan_table=table,
             gain=mpmath.nstr(gain, 20),
             out_width=out_width,
@@ -126,13 +128,20 @@ class CircularFunction(Function):
         )
 
     @staticmethod
+    def angle_guard(spec: CoreSpec, guard_bits: int) -> int:
+        """z's guard bits where the angle is an input: the config's ``angle_guard_bits`` (set,
+        or picked by the sizer), else x and y's ``guard_bits``."""
+        return guard_bits if spec.angle_guard_bits is None else spec.angle_guard_bits
+
+    @staticmethod
     def angle_z_frac(spec: CoreSpec, guard_bits: int) -> int:
         """Fraction bits of z when the angle is an input: one output LSB is 1/amplitude rad,
         about 2^-(b-1) rad or 2^-(b + 1.65) turn, so b (radians) or b + 2 (turns) fraction
-        bits plus the guard bits resolve it as finely as the output."""
+        bits plus z's guard bits (:meth:`angle_guard`) resolve it as finely as the output."""
+        zg = CircularFunction.angle_guard(spec, guard_bits)
         if spec.angle_unit == "radians":
-            return max(spec.angle_width - RADIAN_INT_BITS, spec.data_width + guard_bits)
-        return max(spec.angle_width, spec.data_width + 2 + guard_bits)
+            return max(spec.angle_width - RADIAN_INT_BITS, spec.data_width + zg)
+        return max(spec.angle_width, spec.data_width + 2 + zg)
 
     # ---------------------------------------------------------------- documents
 

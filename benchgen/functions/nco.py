@@ -352,7 +352,7 @@ class NcoCore(SinCos):
     summary: ClassVar[str] = "numerically controlled oscillator: phase accumulator, optional dither, sine and cosine"
     synonyms: ClassVar[tuple[str, ...]] = ("dds", "oscillator", "local_oscillator")
     options: ClassVar[tuple[str, ...]] = (
-        "acc_width", "dither_width", "lfsr_width", "lfsr_seed", *TARGET_FIELDS, "nco_mode",
+        "acc_width", "dither_width", "lfsr_width", "lfsr_seed", *TARGET_FIELDS, "nco_mode", "angle_guard_bits",
     )  # fmt: skip
     angle_signal: ClassVar[str] = CODE_WIRE
 
@@ -489,7 +489,7 @@ class NcoCore(SinCos):
         )
         return (
             f"spectral target {_target_text(dp.sfdr_dbc, dp.snr_db)}: {sizes}, {dp.iterations} iterations, "
-            f"{dp.guard_bits} guard bits; guaranteed SFDR >= {sfdr:.2f} dBc, SNR >= {snr:.2f} dB for every word"
+            f"{dp.guard_text()}; guaranteed SFDR >= {sfdr:.2f} dBc, SNR >= {snr:.2f} dB for every word"
         )
 
     def manifest_extras(self, dp: Datapath) -> dict[str, Any]:

@@ -29,6 +29,7 @@ class Rotate(CircularFunction):
     name: ClassVar[str] = "rotate"
     mode: ClassVar[str] = "rotation"
     summary: ClassVar[str] = "a vector (x, y) turned by an angle (circular rotation)"
+    options: ClassVar[tuple[str, ...]] = ("angle_guard_bits",)
 
     def datapath(self, spec: CoreSpec, iterations: int, guard_bits: int) -> CircularDatapath:
         b, g = spec.data_width, guard_bits
@@ -39,6 +40,7 @@ class Rotate(CircularFunction):
         return self.circular_datapath(
             spec, iterations, g, xy_width=out_width + 1 + g, out_width=out_width,
             out_max=(1 << (out_width - 1)) - 1, z_frac=self.angle_z_frac(spec, g),
+            angle_guard_bits=self.angle_guard(spec, g),
             k_frac=b + g + 2 if spec.gain == "compensated" else 0,
         )
 

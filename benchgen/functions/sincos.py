@@ -76,6 +76,7 @@ class SinCos(CircularFunction):
     synonyms: ClassVar[tuple[str, ...]] = ("sin", "cos", "sine", "cosine")
     start_table: ClassVar[bool] = True
     spectral: ClassVar[bool] = True
+    options: ClassVar[tuple[str, ...]] = ("angle_guard_bits",)
 
     def datapath(self, spec: CoreSpec, iterations: int, guard_bits: int) -> CircularDatapath:
         b, g = spec.data_width, guard_bits
@@ -96,7 +97,8 @@ class SinCos(CircularFunction):
             x_start = int(mpmath.nint(start * amplitude * mpmath.mpf(2) ** g))
         return self.circular_datapath(
             spec, iterations, guard_bits, xy_width=xy_width, out_width=out_width, out_max=out_max,
-            z_frac=self.angle_z_frac(spec, guard_bits), x_start=x_start,
+            z_frac=self.angle_z_frac(spec, guard_bits), angle_guard_bits=self.angle_guard(spec, guard_bits),
+            x_start=x_start,
         )
 
     # ---------------------------------------------------------------- ports and documents
