@@ -95,7 +95,8 @@ def expr_text(e: Expr) -> str:  # noqa: C901 - one case per node kind
             return f"{_operand(e.a)} - {_operand(e.b)}"
         text = f"{_operand(e.a)} + {_operand(e.b)}"
         if e.carry is not None:
-            text += " + {" + literal(0, e.width - 1) + ", " + expr_text(e.carry) + "}"
+            # the carry-in at the sum's width (a one-bit sum takes it as it is: no zero-width pad)
+            text += " + " + (_operand(e.carry) if e.width == 1 else "{" + literal(0, e.width - 1) + ", " + expr_text(e.carry) + "}")
         return text
     if isinstance(e, Neg):
         return "-" + _operand(e.of)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import itertools
+import re
 import subprocess
 from pathlib import Path
 
@@ -99,7 +100,24 @@ def cases() -> list[dict[str, object]]:
         {"name": "free_1", "function": "nco", "nco_mode": "free_running", "data_width": 12, "angle_width": 12,
          "acc_width": 64, "pipeline_depth": 2, "rounding": "truncate", "max_error_lsb": 1.5},
     ]
+    out.append(ONE_BIT_Z)
     return out
+
+
+# More iterations than z's fraction bits resolve (z's guard bits sized on their own, here 3):
+# z narrows to one bit in the last stages, whose sums take the carry-in without a pad.
+ONE_BIT_Z: dict[str, object] = {
+    "name": "one_bit_z", "function": "sincos", "angle_width": 16, "data_width": 12, "iterations": 20,
+    "guard_bits": 7, "pipeline_depth": 1,
+}
+
+
+def test_a_one_bit_sum_takes_its_carry_without_a_zero_width_pad() -> None:
+    """A zero-width literal (0'h0) is illegal Verilog (Yosys refuses it); the sweep found one in
+    the one-bit z stages of the config above."""
+    text = render_core(build_design(parse_config(ONE_BIT_Z)))
+    assert re.search(r"^\s*wire z_\d+ = .* \+ dir_\d+;", text, re.MULTILINE), "no one-bit z stage left to test"
+    assert not re.search(r"\b0'", text)
 
 
 @pytest.fixture(scope="module")
