@@ -134,7 +134,7 @@ def frequency_table() -> None:
 
 
 def sizing_table() -> None:
-    print("| target | P | N | iterations / guard | E (LSB) | SFDR / SNR bound | measured min SFDR / SNR | P - 1: worst-word SFDR / long-word SNR |")
+    print("| target | P | N | iterations / guard (x, y / z) | E (LSB) | SFDR / SNR bound | measured min SFDR / SNR | P - 1: worst-word SFDR / long-word SNR |")
     print("|---|---|---|---|---|---|---|---|")
     for sfdr, snr in ((60.0, None), (72.0, None), (84.0, None), (96.0, None), (None, 70.0), (90.0, 80.0)):
         s = size_nco(sfdr_dbc=sfdr, snr_db=snr)
@@ -150,7 +150,7 @@ def sizing_table() -> None:
         noisy = measure_tone(run(nco, fewer.datapath, long_size, freq_word=w.freq_word).complex(), w.cycles)
         label = " and ".join(x for x in (f"SFDR {sfdr:g} dBc" if sfdr else "", f"SNR {snr:g} dB" if snr else "") if x)
         print(
-            f"| {label} | {p} | {dp.data_width} | {dp.iterations} / {dp.guard_bits} | {s.error_max_lsb:.3f} | "
+            f"| {label} | {p} | {dp.data_width} | {dp.iterations} / {dp.guard_bits} / {dp.angle_guard_bits} | {s.error_max_lsb:.3f} | "
             f"{s.sfdr_bound_db:.2f} / {s.snr_bound_db:.2f} | {min(c.sfdr_db for c in s.checks):.2f} / "
             f"{min(c.snr_db for c in s.checks):.2f} | {worst.sfdr_db:.2f} / {noisy.snr_db:.2f} |"
         )
