@@ -322,7 +322,7 @@ def test_spur_depends_on_the_word_only_through_the_gcd(period: int) -> None:
 def test_exact_words_have_no_truncation_error_and_meet_the_quantisation_law() -> None:
     """A word that is a multiple of 2**(A-P) never drops a bit: the codes are exact, and the
     SNR is that of the core's amplitude quantisation. Kester MT-001 / IEEE Std 1241: an ideal
-    N-bit rounding gives 6.02 N + 1.76 dB; the core's rounding (RMS about 0.35 LSB, not 0.289)
+    N-bit rounding gives 6.02 N + 1.76 dB; the core's rounding (RMS 0.31 to 0.32 LSB, not 0.289)
     costs up to 2 dB of that. Predicted from the core's own RMS error within 0.5 dB."""
     a, p, n, cycles = 32, 16, 1 << 16, 4099  # FACTS.md's [mp] record: 2**16 points, 4099 cycles
     nco = Nco(acc_width=a, angle_width=p)
