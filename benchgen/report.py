@@ -68,7 +68,7 @@ def estimate_note(targets: Iterable[str]) -> str:
 
 COLUMNS = (
     "point", "status", "simulator", "function", "architecture", "pipeline_depth", "iterations_per_cycle",
-    "angle_width", "data_width", "iterations", "guard_bits", "rounding", "samples", "mismatches",
+    "angle_width", "data_width", "iterations", "guard_bits", "angle_guard_bits", "rounding", "samples", "mismatches",
     "max_error_lsb", "rms_error_lsb", "budget_lsb", "model_max_error_lsb", "worst_port", "worst_port_width",
     "error_dbfs", "latency_cycles", "expected_latency_cycles", "cycles_per_sample",
 )
@@ -257,6 +257,7 @@ def _row(point: dict[str, Any], res: dict[str, Any] | None, targets: list[str],
         data_width=cfg.get("data_width"),
         iterations=derived.get("iterations", cfg.get("iterations")),
         guard_bits=derived.get("guard_bits", cfg.get("guard_bits")),
+        angle_guard_bits=derived.get("angle_guard_bits", cfg.get("angle_guard_bits")),
         rounding=cfg.get("rounding", "half_even"),
         expected_latency_cycles=derived.get("latency_cycles"),
         budget_lsb=design["error_budget"]["max_error_lsb"] if design else cfg.get("max_error_lsb"),

@@ -96,6 +96,7 @@ class DerivedRecord(_Open):
 
     iterations: PosInt
     guard_bits: NonNegInt
+    angle_guard_bits: NonNegInt | None = None
     architecture: Literal["pipelined", "iterative"]
     pipeline_depth: PosInt | None
     iterations_per_cycle: PosInt | None
