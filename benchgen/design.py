@@ -559,8 +559,12 @@ def _missed_budget(spec: CoreSpec, prover: _Prover) -> ConfigError:
     n = spec.iterations if spec.iterations is not None else _largest_n(spec, g)
     zg = MAX_AUTO_GUARD_BITS if sizes_angle_guard(spec) and spec.angle_guard_bits is None else None
     achieved = float("inf")
+    where = ""
     if n is not None:
-        achieved = prover.worst(make_datapath(spec, n, g, zg))
+        largest = make_datapath(spec, n, g, zg)
+        achieved = prover.worst(largest)
+        z_guard = "" if largest.angle_guard_bits in (None, g) else f", {largest.angle_guard_bits} for z"
+        where = f" ({n} iterations, {g} guard bits{z_guard})"
     # (n, g) lies inside the search space the sizer walks, and this is the full check's measure
     # of it, so any budget above `achieved` is met there: the budget fix needs no second run.
     budget = _budget_above(max(achieved, spec.max_error_lsb))
@@ -576,7 +580,6 @@ def _missed_budget(spec: CoreSpec, prover: _Prover) -> ConfigError:
     if budget is not None:
         fixes.append((f"set max_error_lsb = {budget:.2f} to accept this accuracy", {"max_error_lsb": budget}))
     field, value = (fixed[0], getattr(spec, fixed[0])) if fixed else ("max_error_lsb", spec.max_error_lsb)
-    where = f" ({n} iterations, {g} guard bits)" if n is not None else ""
     return ConfigError(
         field,
         value,
