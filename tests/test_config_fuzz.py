@@ -31,7 +31,7 @@ from benchgen.simulators import find_simulator, simulator_env
 FUNCTIONS = ("sincos", "rotate", "atan2", "mul", "div", "sinhcosh", "exp", "atanh", "ln", "sqrt")
 FIELDS = (
     "name", "function", "architecture", "pipeline_depth", "iterations_per_cycle", "angle_width",
-    "data_width", "iterations", "guard_bits", "rounding", "tag_width", "max_error_lsb", "gain",
+    "data_width", "iterations", "guard_bits", "angle_guard_bits", "rounding", "tag_width", "max_error_lsb", "gain",
     "angle_unit", "vlnv_vendor", "vlnv_library", "handshake", "sfdr_dbc", "snr_db",
 )  # fmt: skip
 # Widths of valid configs stay small: sizing runs the model, and 12 bits keep each run short.
@@ -46,6 +46,8 @@ VALID: dict[str, list[Any]] = {
     "iterations_per_cycle": [1, 2, 3],
     "iterations": ["auto", 4, 8, 12],
     "guard_bits": ["auto", 0, 2, 4],
+    # z's own guard bits: sincos and rotate only (the functions drawn here with an angle input)
+    "angle_guard_bits": ["auto", 0, 2, 5],
     "rounding": ["truncate", "half_up", "half_even"],
     "tag_width": [0, 1, 5],
     "max_error_lsb": [1.0, 1.5, 2.0, 4.0, 1e6],
@@ -90,6 +92,8 @@ def valid_configs(draw: st.DrawFn) -> dict[str, Any]:
         config["angle_width"] = draw(st.integers(6 if config["angle_unit"] == "radians" else 3, SMALL_WIDTH[1]))
     if function in GAIN_FUNCTIONS:
         config["gain"] = draw(st.sampled_from(VALID["gain"]))
+    if function in ("sincos", "rotate") and draw(st.booleans()):
+        config["angle_guard_bits"] = draw(st.sampled_from(VALID["angle_guard_bits"]))
     arch = draw(st.sampled_from(VALID["architecture"]))
     config["architecture"] = arch
     if arch == "pipelined" and draw(st.booleans()):
