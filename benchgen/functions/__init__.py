@@ -177,12 +177,13 @@ def refused_fields(fn: Function) -> dict[str, str]:
     return out
 
 
+ANGLE_GUARD_FIELD = "angle_guard_bits"
+"""The config field of z's own guard bits, listed in the options of the functions that take it."""
+
+
 def sizes_angle_guard(spec: CoreSpec) -> bool:
     """Whether the function takes ``angle_guard_bits`` (z's guard bits apart from x and y's)."""
     return ANGLE_GUARD_FIELD in function_named(spec.function).options
-
-
-ANGLE_GUARD_FIELD = "angle_guard_bits"
 
 
 def make_datapath(spec: CoreSpec, iterations: int, guard_bits: int, angle_guard_bits: int | None = None) -> Datapath:
