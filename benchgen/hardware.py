@@ -16,6 +16,7 @@ from benchgen.algorithm import rotation_z_ranges, signed_width
 from benchgen.design import Design
 from benchgen.functions import LOAD_PORT, clocking_of, function_of, table_head
 from benchgen.hwlib import Builder, Final, Start, sign_shift
+from benchgen.model import shifted_term
 from benchgen.netlist import (
     Add,
     And,
@@ -142,6 +143,8 @@ class _Core:
         ]
         if dp.coordinates == "hyperbolic":
             lines.append(f"Shifts: {', '.join(str(s) for s in dp.shifts)} (4, 13, 40, ... done twice: Walther 1971).")
+        if dp.rounded_shifts:
+            lines.append("Shifted terms rounded half up: the bit below each shift enters its adder's carry-in.")
         gain = fn.header_gain(dp)
         if gain:
             lines.append(gain)
@@ -297,22 +300,36 @@ class _Core:
                 # exp carries no y: y is x all the way
                 ys = shifted("ys", y_in) if self.has_y and y_in is not None else xs
         hyperbolic = dp.coordinates == "hyperbolic"
+        # The carry-ins: 1 where the term is subtracted (a - t = a + ~t + 1). Where the shifted
+        # terms are rounded half up (dp.rounded_shifts), the bit just below the shift joins
+        # them: a + t + r, or a - t - r = a + ~t + ~r, so the carry-in is (subtract) XOR r and
+        # rounding costs no adder.
+        x_cin: Expr = Not(d) if hyperbolic else d
+        y_cin: Expr = Not(d)
+        if dp.rounded_shifts and step.shift:
+            assert step.shift is not None and not x_low, "rounded shifts: fixed shifts of whole values"
+            if ys is not None and y_in is not None and self.has_y:
+                x_cin = Xor(x_cin, y_in[step.shift - 1])
+            elif ys is not None:
+                x_cin = Xor(x_cin, x_in[step.shift - 1])  # no y: y is x all the way
+            if xs is not None:
+                y_cin = Xor(y_cin, x_in[step.shift - 1])
         out = Final()
         nxt: list[Sig | None] = [None, None, None]
         if x_out:
             if kept["x"]:
                 t = b.wire(f"tx_{step.index}", Mux(d, ys, Not(ys)) if hyperbolic else Mux(d, Not(ys), ys))
-                out.x_kept = nxt[0] = b.kept_add(x_out, x_in, t, Not(d) if hyperbolic else d, W, kept["x"])
+                out.x_kept = nxt[0] = b.kept_add(x_out, x_in, t, x_cin, W, kept["x"])
             else:
-                new = Add(x_in, Mux(d, ys, Not(ys)), Not(d)) if hyperbolic else Add(x_in, Mux(d, Not(ys), ys), d)
+                new = Add(x_in, Mux(d, ys, Not(ys)), x_cin) if hyperbolic else Add(x_in, Mux(d, Not(ys), ys), x_cin)
                 out.x = nxt[0] = b.wire(x_out, Mux(step.active, new, x_in) if step.active is not None else new, of="xy")
         if y_out:
             assert y_in is not None
             if kept["y"]:
                 t = b.wire(f"ty_{step.index}", Mux(d, xs, Not(xs)))
-                out.y_kept = nxt[1] = b.kept_add(y_out, y_in, t, Not(d), W, kept["y"])
+                out.y_kept = nxt[1] = b.kept_add(y_out, y_in, t, y_cin, W, kept["y"])
             else:
-                new = Add(y_in, Mux(d, xs, Not(xs)), Not(d))
+                new = Add(y_in, Mux(d, xs, Not(xs)), y_cin)
                 out.y = nxt[1] = b.wire(y_out, Mux(step.active, new, y_in) if step.active is not None else new, of="xy")
         if z_out:
             assert z_in is not None
@@ -752,12 +769,13 @@ class _Core:
         for code in range(1 << (h + 1)):
             x, y = vectors[code & 1]
             for i in range(h):
-                s = dp.shifts[i]
+                s, r = dp.shifts[i], dp.rounded_shifts
+                tx, ty = shifted_term(x, s, r), shifted_term(y, s, r)
                 # counter-clockwise (the direction bit set, z >= 0): x - y/2^s, y + x/2^s
                 if code >> (i + 1) & 1:
-                    x, y = x - (y >> s), y + (x >> s)
+                    x, y = x - ty, y + tx
                 else:
-                    x, y = x + (y >> s), y - (x >> s)
+                    x, y = x + ty, y - tx
             xs.append(x & mask)
             ys.append(y & mask)
 

@@ -196,6 +196,7 @@ def _iterate_block(dp: Datapath, x: IntArray, y: IntArray, z: IntArray, each: St
     vectoring = dp.mode == "vectoring"
     linear = dp.coordinates == "linear"
     hyperbolic = dp.coordinates == "hyperbolic"
+    rounded = dp.rounded_shifts
     for i, (shift, step) in enumerate(zip(dp.shifts, dp.atan_table, strict=True)):
         # s = -1 where the turn is clockwise, else 0; (v ^ s) - s negates v where s = -1.
         if vectoring:
@@ -204,9 +205,13 @@ def _iterate_block(dp: Datapath, x: IntArray, y: IntArray, z: IntArray, each: St
         else:
             np.right_shift(z, 63, out=s)
         np.right_shift(y, shift, out=ty)
+        np.right_shift(x, shift, out=tx)
+        if rounded and shift > 0:
+            # half up: the bit below the shift (the RTL's carry-in)
+            ty += (y >> (shift - 1)) & 1
+            tx += (x >> (shift - 1)) & 1
         np.bitwise_xor(ty, s, out=ty)
         np.subtract(ty, s, out=ty)
-        np.right_shift(x, shift, out=tx)
         np.bitwise_xor(tx, s, out=tx)
         np.subtract(tx, s, out=tx)
         if hyperbolic:
@@ -223,13 +228,23 @@ def _iterate_block(dp: Datapath, x: IntArray, y: IntArray, z: IntArray, each: St
             each(i, x, y)
 
 
+def shifted_term(value: Any, shift: int, rounded: bool) -> Any:
+    """``value / 2^shift`` as an iteration forms it (an int or an integer array): floored, or
+    rounded half up where the data path rounds its shifted terms
+    (:attr:`benchgen.algorithm.Datapath.rounded_shifts`)."""
+    if rounded and shift > 0:
+        return (value >> shift) + (value >> (shift - 1) & 1)
+    return value >> shift
+
+
 def iterate_wrapping(dp: Datapath, x: IntArray, y: IntArray, z: IntArray, dtype: Any) -> tuple[IntArray, IntArray, IntArray]:
     """Circular iterations in the data path's mode, wrapping at every register width.
 
     Rotation mode turns counter-clockwise where z >= 0; vectoring mode where y < 0 (driving y
     to 0 with x > 0). Either way: x - d y/2^i, y + d x/2^i, z - d atan 2^-i (Walther 1971);
     in linear coordinates x stays and z steps by 2^-i; in hyperbolic coordinates x + d y/2^s,
-    z - d atanh 2^-s, with the shift s of each iteration from ``dp.shifts``.
+    z - d atanh 2^-s, with the shift s of each iteration from ``dp.shifts``. Where
+    ``dp.rounded_shifts``, x/2^s and y/2^s are rounded half up (the bit below the shift added).
     The values the last iteration does not need (z in rotation, y in vectoring) are left as
     they were, as the RTL does not form them.
     """
@@ -238,8 +253,8 @@ def iterate_wrapping(dp: Datapath, x: IntArray, y: IntArray, z: IntArray, dtype:
     for i, (shift, step) in enumerate(zip(dp.shifts, dp.atan_table, strict=True)):
         turn = (y < 0) if vectoring else (z >= 0)
         sign = turn.astype(dtype) * 2 - 1
-        xs = x >> shift
-        ys = y >> shift
+        xs = shifted_term(x, shift, dp.rounded_shifts)
+        ys = shifted_term(y, shift, dp.rounded_shifts)
         if dp.coordinates == "linear":
             new_x = x
         elif dp.coordinates == "hyperbolic":

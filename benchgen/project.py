@@ -114,6 +114,7 @@ def manifest_for(design: Design) -> dict[str, Any]:
             "out_width": dp.out_width,
             "coordinates": dp.coordinates,
             "shifts": list(dp.shifts),
+            "rounded_shifts": dp.rounded_shifts,
             "architecture": timing.architecture,
             "pipeline_depth": timing.depth if timing.architecture == "pipelined" else None,
             "iterations_per_cycle": (

@@ -131,18 +131,22 @@ def test_auto_sized_cores_meet_the_budget_everywhere(data_width: int, angle_widt
     guard_bits=st.integers(0, 10),
     extra_iterations=st.integers(-2, 6),
     seed=st.integers(0, 2**32 - 1),
+    rounded=st.booleans(),
 )
 def test_fast_path_equals_the_wrapping_path(
-    data_width: int, angle_width: int, guard_bits: int, extra_iterations: int, seed: int
+    data_width: int, angle_width: int, guard_bits: int, extra_iterations: int, seed: int, rounded: bool
 ) -> None:
-    """The int64 path leaves out the per-register wrap; it must agree with the path that wraps."""
+    """The int64 path leaves out the per-register wrap; it must agree with the path that wraps,
+    with the shifted terms floored and rounded."""
+    from dataclasses import replace
+
     from benchgen.functions import make_datapath
     from benchgen.functions.sincos import FUNCTION
     from benchgen.model import iterate, iterate_wrapping
 
     spec = parse_config({"name": "c", "function": "sincos", "data_width": data_width, "angle_width": angle_width})
     n = max(1, min(data_width + extra_iterations, data_width + guard_bits + 1))
-    dp = make_datapath(spec, n, guard_bits)
+    dp = replace(make_datapath(spec, n, guard_bits), rounded_shifts=rounded)
     rng = np.random.default_rng(seed)
     codes = np.concatenate([rng.integers(0, 1 << angle_width, size=2000), np.arange(min(1 << angle_width, 4096))]).astype(np.int64)
     z, fold = FUNCTION.fold(dp, codes)
@@ -151,6 +155,23 @@ def test_fast_path_equals_the_wrapping_path(
     x_fast, y_fast, _ = iterate(dp, x, y, z, np.int64)
     x_slow, y_slow, _ = iterate_wrapping(dp, x, y, z, np.int64)
     assert np.array_equal(x_slow, x_fast) and np.array_equal(y_slow, y_fast)
+
+
+def test_shifted_terms_round_half_up_or_floor() -> None:
+    """An iteration's y / 2^s: floored, or rounded half up (ties toward +infinity) where the data
+    path rounds its shifted terms; judged against exact rational arithmetic."""
+    from fractions import Fraction
+    from math import floor
+
+    from benchgen.model import shifted_term
+
+    for v in range(-300, 301):
+        for s in range(0, 7):
+            exact = Fraction(v, 1 << s)
+            assert shifted_term(v, s, False) == floor(exact)
+            assert shifted_term(v, s, True) == floor(exact + Fraction(1, 2))
+    values = np.arange(-300, 301, dtype=np.int64)
+    assert np.array_equal(shifted_term(values, 3, True), [shifted_term(int(v), 3, True) for v in values])
 
 
 def test_input_codes_keep_only_the_ports_width() -> None:

@@ -87,6 +87,34 @@ def test_large_angle_space_is_sampled_not_exhaustive() -> None:
     assert len(np.unique(angles)) > 900_000
 
 
+def test_rounded_shifted_terms_follow_rounding_and_buy_a_guard_bit() -> None:
+    """A pipelined sincos or NCO that rounds its outputs rounds its shifted terms; a truncating
+    or iterative one floors them. At the 16-bit core's sized size the rounded terms meet the
+    budget over every angle and floored ones miss it: one guard bit fewer than floored terms need."""
+    base = {"name": "c", "function": "sincos", "data_width": 16, "angle_width": 16}
+    design = build_design(parse_config(base))
+    dp = design.datapath
+    assert dp.rounded_shifts
+    inputs, exhaustive = sizing_inputs(dp)
+    assert exhaustive
+    assert design.accuracy.max_error_lsb < 1.0
+    spec = design.spec
+    floored = replace(make_datapath(spec, dp.iterations, dp.guard_bits, dp.angle_guard_bits), rounded_shifts=False)
+    assert measure(floored, inputs).max_error_lsb >= 1.0
+    # the floored size that meets the budget needs a guard bit more at these iterations
+    more = replace(make_datapath(spec, dp.iterations, dp.guard_bits + 1), rounded_shifts=False)
+    assert measure(more, inputs).max_error_lsb < 1.0
+    for change, rounded in (
+        ({"rounding": "truncate", "max_error_lsb": 3.0}, False),
+        ({"rounding": "half_up"}, True),
+        ({"architecture": "iterative"}, False),
+    ):
+        assert make_datapath(parse_config(base | change), 16, 4).rounded_shifts is rounded, change
+    nco = {"name": "c", "function": "nco", "data_width": 16, "angle_width": 12}
+    assert make_datapath(parse_config(nco), 16, 4).rounded_shifts
+    assert not make_datapath(parse_config(nco | {"rounding": "truncate", "max_error_lsb": 3.0}), 16, 4).rounded_shifts
+
+
 def test_angle_guard_bits_are_sized_on_their_own() -> None:
     """z's guard bits are a third sized dimension: the iterative 16-bit core keeps 8 guard bits
     in x and y but needs fewer in z, and one fewer in z misses the budget on some input of the

@@ -84,6 +84,7 @@ class CircularFunction(Function):
         x_start: int = 0,
         k_frac: int = 0,
         prenorm: bool = False,
+        rounded_shifts: bool = False,
     ) -> CircularDatapath:
         """The data path of a circular core whose widths the function module chose."""
         a, b = spec.angle_width, spec.data_width
@@ -125,6 +126,7 @@ class CircularFunction(Function):
             shifts=tuple(range(iterations)),
             prenorm_max=b - 2 if prenorm else 0,
             prenorm_width=(b - 2).bit_length() if prenorm else 0,
+            rounded_shifts=rounded_shifts,
         )
 
     @staticmethod

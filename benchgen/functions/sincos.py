@@ -98,8 +98,19 @@ class SinCos(CircularFunction):
         return self.circular_datapath(
             spec, iterations, guard_bits, xy_width=xy_width, out_width=out_width, out_max=out_max,
             z_frac=self.angle_z_frac(spec, guard_bits), angle_guard_bits=self.angle_guard(spec, guard_bits),
-            x_start=x_start,
+            x_start=x_start, rounded_shifts=self.rounds_shifts(spec),
         )
+
+    def rounds_shifts(self, spec: CoreSpec) -> bool:
+        """Whether the core rounds its shifted terms (:attr:`Datapath.rounded_shifts`).
+
+        ``rounding`` says how the core treats the bits it drops: a core that rounds its outputs
+        rounds its shifted terms too (half up, through each adder's carry-in: one XOR per
+        adder, no adder bits), which reaches 1 LSB at 16 bits with x and y one bit narrower
+        (docs/hardware.md step 6); a truncating core, the cheapest by choice, floors both. An
+        iterative core shifts by a count, and the bit below a variable shift is one more
+        shifter: not yet."""
+        return spec.architecture == "pipelined" and spec.rounding != "truncate"
 
     # ---------------------------------------------------------------- ports and documents
 
