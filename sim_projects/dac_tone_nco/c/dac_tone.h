@@ -11,7 +11,7 @@
  * It is the core's function, not its timing: no clock, latency, handshake or tag (the RTL's
  * result for an input leaves 20 clock(s) after it enters).
  * Printed from the same description of the core as the RTL.
- * Arithmetic: circular coordinates, rotation mode, 18 iterations, 4 guard bits (6 for z); x, y 20 bits, z 24 bits.
+ * Arithmetic: circular coordinates, rotation mode, 18 iterations, 4 guard bits (3 for z); x, y 20 bits, z 21 bits.
  * Gain: compensated (K = 0.60725293501477238499, removed by the start value).
  *
  * Ports (formats)

@@ -8,8 +8,8 @@
  * It is the core's function, not its timing: no clock, latency, handshake or tag (the RTL's
  * result for an input leaves 5 clock(s) after it enters).
  * Printed from the same description of the core as the RTL.
- * Arithmetic: circular coordinates, rotation mode, 19 iterations, 5 guard bits (3 for z); x, y 23 bits, z 23 bits.
- * Gain: compensated (K = 0.60725293501035403837, removed by the start value).
+ * Arithmetic: circular coordinates, rotation mode, 20 iterations, 3 guard bits; x, y 21 bits, z 23 bits.
+ * Gain: compensated (K = 0.60725293500924945172, removed by the start value).
  *
  * Ports (formats)
  *   in_angle       binary angle, 10 bits, 2^10 codes per turn
@@ -17,7 +17,7 @@
  *   out_sin        two's complement, 18 bits, amplitude 131071
  *   rounding       half_up where guard bits are dropped; no saturation: over every one of the
  *                  1024 angle codes (evaluated when generated) the outputs stay within +-131071
- *                  and x, y within 23 bits
+ *                  and x, y within 21 bits
  *
  * Codes: each argument holds a port's code, two's complement where the port is signed
  * (in_angle uint16_t, out_cos int32_t, out_sin int32_t);

@@ -8,7 +8,7 @@
  * It is the core's function, not its timing: no clock, latency, handshake or tag (the RTL's
  * result for an input leaves 19 clock(s) after it enters).
  * Printed from the same description of the core as the RTL.
- * Arithmetic: circular coordinates, rotation mode, 18 iterations, 5 guard bits; x, y 21 bits, z 23 bits.
+ * Arithmetic: circular coordinates, rotation mode, 18 iterations, 4 guard bits; x, y 20 bits, z 22 bits.
  * Gain: compensated (K = 0.60725293501477238499, removed by the start value).
  *
  * Ports (formats)
@@ -17,7 +17,7 @@
  *   out_sin        two's complement, 16 bits, amplitude 32767
  *   rounding       half_even where guard bits are dropped; no saturation: over every one of the
  *                  65536 angle codes (evaluated when generated) the outputs stay within +-32767
- *                  and x, y within 21 bits
+ *                  and x, y within 20 bits
  *
  * Codes: each argument holds a port's code, two's complement where the port is signed
  * (in_angle uint16_t, out_cos int16_t, out_sin int16_t);
