@@ -6,6 +6,7 @@ Run: python scripts/error_tables.py   (a few minutes on a 2-core machine: it siz
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 from typing import Any
 
 import numpy as np
@@ -84,21 +85,26 @@ def sources_table() -> None:
     sized = build_design(spec).datapath
     inputs, _ = sizing_inputs(sized)
     ns = _widest(spec, sized.iterations)
-    print("| iterations | guard bits | worst / RMS error (LSB) | what dominates |")
-    print("|---|---|---|---|")
-    for n, g, note in (
-        (12, 16, "angle residue after 12 iterations (guard bits make rounding negligible)"),
-        (16, 16, "angle residue after 16 iterations"),
-        (20, 16, "final rounding only (residue and internal rounding negligible)"),
-        (ns, 0, f"rounding of the {ns} intermediate x, y with no guard bits"),
-        (ns, 3, "intermediate rounding with 3 guard bits"),
-        (17, 8, "the fewest iterations that stay below 1 LSB, with the guard bits they need"),
-        (sized.iterations, sized.guard_bits, "the auto-sized core (fewest adder bits): all sources below 1 LSB together"),
+    print("| iterations | guard bits | shifted terms | worst / RMS error (LSB) | what dominates |")
+    print("|---|---|---|---|---|")
+    sized_size = (sized.iterations, sized.guard_bits)
+    for n, g, rounded, note in (
+        (12, 16, True, "angle residue after 12 iterations (guard bits make rounding negligible)"),
+        (16, 16, True, "angle residue after 16 iterations"),
+        (20, 16, True, "final rounding only (residue and internal rounding negligible)"),
+        (ns, 0, True, f"rounding of the {ns} intermediate x, y with no guard bits"),
+        (ns, 0, False, "the same, floored: each term's error is biased by -1/2 LSB of x, y"),
+        (ns, 3, True, "intermediate rounding with 3 guard bits"),
+        (ns, 3, False, "the same, floored"),
+        (*sized_size, False, "the auto-sized core's size with floored terms: one guard bit short"),
+        (sized.iterations, sized.guard_bits + 1, False, "floored terms need one guard bit more"),
+        (*sized_size, True, "the auto-sized core (fewest adder bits): all sources below 1 LSB together"),
     ):
-        # z follows the guard bits, but the sized core's row is the sized core (z's own guard bits)
-        zg = sized.angle_guard_bits if (n, g) == (sized.iterations, sized.guard_bits) else None
-        s = measure(make_datapath(spec, n, g, zg), inputs)
-        print(f"| {n} | {g} | {s.max_error_lsb:.3f} / {s.rms_error_lsb:.3f} | {note} |")
+        # z follows the guard bits, but the sized core's rows are at the sized core's z guard bits
+        zg = sized.angle_guard_bits if (n, g) == sized_size else None
+        s = measure(replace(make_datapath(spec, n, g, zg), rounded_shifts=rounded), inputs)
+        what = "rounded" if rounded else "floored"
+        print(f"| {n} | {g} | {what} | {s.max_error_lsb:.3f} / {s.rms_error_lsb:.3f} | {note} |")
 
 
 def small_vector_table() -> None:
