@@ -26,6 +26,7 @@ from benchgen.spec import (
     NCO_MODES,
     RESET_POLARITIES,
     RESET_STYLES,
+    SHIFTED_TERMS,
     CoreSpec,
 )
 from benchgen.vhdl import RESERVED_WORDS as VHDL_RESERVED_WORDS
@@ -188,6 +189,7 @@ _FIELDS: tuple[str, ...] = (
     "reset_polarity",
     "clock_enable",
     "handshake",
+    "shifted_terms",
     "acc_width",
     "dither_width",
     "lfsr_width",
@@ -463,6 +465,9 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
     # A free-running NCO has no input stream and no out_ready: the sink takes every sample.
     quiet_handshake = "valid_only" if nco_mode == "free_running" else "ready_valid"
     handshake = _choice_field(raw, "handshake", HANDSHAKES) if "handshake" in raw else quiet_handshake
+    shifted_terms = (
+        _choice_field(raw, "shifted_terms", SHIFTED_TERMS) if raw.get("shifted_terms", "auto") != "auto" else None
+    )
     fn = function_named(function)
     for key, why in refused_fields(fn).items():
         # A field the function does not use: a value set here would mislead.
@@ -617,6 +622,7 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
         reset_polarity=reset_polarity,
         clock_enable=clock_enable,
         handshake=handshake,
+        shifted_terms=shifted_terms,
         acc_width=acc_width if acc_width is not None else 32,
         dither_width=dither_width if dither_width is not None else 0,
         lfsr_width=lfsr_width,

@@ -174,6 +174,7 @@ class NcoSizing:
             "guard_bits": dp.guard_bits,
             "angle_guard_bits": dp.angle_guard_bits,
             "rounding": dp.rounding,
+            "shifted_terms": "rounded" if dp.rounded_shifts else "floored",
             "max_error_lsb": self.design.spec.max_error_lsb,
         }
 

@@ -17,6 +17,7 @@ __all__ = [
     "HDLS",
     "RESET_POLARITIES",
     "RESET_STYLES",
+    "SHIFTED_TERMS",
     "CoreSpec",
 ]
 
@@ -27,11 +28,15 @@ DEFAULT_VLNV_LIBRARY = "cores"
 HDLS = ("verilog", "vhdl")
 """The languages a core is written in: Verilog-2005 (``rtl/NAME.v``), VHDL-2008 (``rtl/NAME.vhd``)."""
 DEFAULT_HDL = ("verilog",)
+"""The languages of a core whose config sets no ``hdl``."""
 #: Stream handshakes: ``ready_valid`` (both streams; the consumer may stall the core) and
 #: ``valid_only`` (no ``out_ready``: for a sink that takes every sample; no output skid buffer,
 #: and a pipelined core, which then takes a sample every clock, has no ``in_ready`` either).
 HANDSHAKES = ("ready_valid", "valid_only")
-"""The languages of a core whose config sets no ``hdl``."""
+#: How each iteration forms y / 2^i and x / 2^i: ``rounded`` half up (the bit below the shift
+#: through the adder's carry-in) or ``floored`` (the arithmetic shift alone). Unset, a pipelined
+#: sincos or NCO rounds them where ``rounding`` rounds the outputs (docs/config.md).
+SHIFTED_TERMS = ("rounded", "floored")
 #: How an NCO takes its words: ``streamed`` (one sample per accepted input token, the token
 #: carrying both words) or ``free_running`` (no input stream: one sample per clock from reset,
 #: the words loaded through a ``load`` port; docs/nco.md).
@@ -79,6 +84,8 @@ class CoreSpec:
         clock_enable: Add a ``clk_en`` input: while it is low every register of the core holds
             (a clock edge with ``clk_en`` low is no edge for the core).
         handshake: One of :data:`HANDSHAKES`.
+        shifted_terms: Where the function offers it (sincos, nco): one of
+            :data:`SHIFTED_TERMS`, or ``None`` to follow ``rounding`` and the architecture.
         acc_width: NCO (function ``nco``): bits of the phase accumulator and its words.
         dither_width: NCO: phase dither bits below the kept phase LSB (0: none).
         lfsr_width: NCO: length of the dither LFSR (``None``: ``max(32, dither_width)``).
@@ -114,6 +121,7 @@ class CoreSpec:
     reset_polarity: str = RESET_POLARITIES[0]
     clock_enable: bool = False
     handshake: str = "ready_valid"
+    shifted_terms: str | None = None
     acc_width: int = 32
     dither_width: int = 0
     lfsr_width: int | None = None

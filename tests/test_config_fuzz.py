@@ -32,7 +32,7 @@ FUNCTIONS = ("sincos", "rotate", "atan2", "mul", "div", "sinhcosh", "exp", "atan
 FIELDS = (
     "name", "function", "architecture", "pipeline_depth", "iterations_per_cycle", "angle_width",
     "data_width", "iterations", "guard_bits", "angle_guard_bits", "rounding", "tag_width", "max_error_lsb", "gain",
-    "angle_unit", "vlnv_vendor", "vlnv_library", "handshake", "sfdr_dbc", "snr_db",
+    "angle_unit", "vlnv_vendor", "vlnv_library", "handshake", "sfdr_dbc", "snr_db", "shifted_terms",
 )  # fmt: skip
 # Widths of valid configs stay small: sizing runs the model, and 12 bits keep each run short.
 SMALL_WIDTH = (3, 12)
@@ -56,6 +56,8 @@ VALID: dict[str, list[Any]] = {
     "vlnv_vendor": ["benchgen", "acme.dsp", "Lab-7"],
     "vlnv_library": ["cores", "radio_ip", "1.x"],
     "handshake": ["ready_valid", "valid_only"],
+    # sincos only here (nco is not drawn); "rounded" in pipelined cores only
+    "shifted_terms": ["auto", "rounded", "floored"],
     # The NCO's spectral target: refused for every function drawn here (none is an NCO).
     "sfdr_dbc": [40.0, 60, 72.5],
     "snr_db": [40.0, 70],
@@ -100,6 +102,9 @@ def valid_configs(draw: st.DrawFn) -> dict[str, Any]:
         config["pipeline_depth"] = draw(st.sampled_from(VALID["pipeline_depth"]))
     if arch == "iterative" and draw(st.booleans()):
         config["iterations_per_cycle"] = draw(st.sampled_from(VALID["iterations_per_cycle"]))
+    if function == "sincos" and draw(st.booleans()):
+        terms = VALID["shifted_terms"] if arch == "pipelined" else ["auto", "floored"]
+        config["shifted_terms"] = draw(st.sampled_from(terms))
     for field in ("iterations", "guard_bits", "rounding", "tag_width", "max_error_lsb", "vlnv_vendor", "vlnv_library",
                   "handshake"):
         if draw(st.booleans()):

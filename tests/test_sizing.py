@@ -115,6 +115,30 @@ def test_rounded_shifted_terms_follow_rounding_and_buy_a_guard_bit() -> None:
     assert not make_datapath(parse_config(nco | {"rounding": "truncate", "max_error_lsb": 3.0}), 16, 4).rounded_shifts
 
 
+def test_shifted_terms_field_overrides_the_rule_and_sizes_by_it() -> None:
+    """``shifted_terms`` sets the rule either way; floored terms size the 16-bit core as before
+    rounded ones existed (18 iterations, 5 guard bits), and its data path equals the rounded
+    core's at that size but for the flag."""
+    base = {"name": "c", "function": "sincos", "data_width": 16, "angle_width": 16}
+    floored = build_design(parse_config(base | {"shifted_terms": "floored"}))
+    dp = floored.datapath
+    assert not dp.rounded_shifts and (dp.iterations, dp.guard_bits) == (18, 5)
+    assert floored.accuracy.max_error_lsb < 1.0
+    rounded = make_datapath(parse_config(base | {"shifted_terms": "rounded", "rounding": "truncate"}), 16, 4)
+    assert rounded.rounded_shifts  # the field wins over the rounding rule
+    assert parse_config(base | {"shifted_terms": "auto"}).shifted_terms is None
+    # refused: rounded terms in an iterative core, and the field where no function reads it
+    with pytest.raises(ConfigError) as exc:
+        parse_config(base | {"architecture": "iterative", "shifted_terms": "rounded"})
+    assert exc.value.field == "shifted_terms" and exc.value.suggestion == {"shifted_terms": "floored"}
+    with pytest.raises(ConfigError) as exc:
+        parse_config({"name": "c", "function": "atan2", "shifted_terms": "floored"})
+    assert exc.value.field == "shifted_terms"
+    with pytest.raises(ConfigError) as exc:
+        parse_config(base | {"shifted_terms": "round"})
+    assert exc.value.suggestion == {"shifted_terms": "rounded"}
+
+
 def test_angle_guard_bits_are_sized_on_their_own() -> None:
     """z's guard bits are a third sized dimension: the iterative 16-bit core keeps 8 guard bits
     in x and y but needs fewer in z, and one fewer in z misses the budget on some input of the

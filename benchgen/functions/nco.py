@@ -353,12 +353,14 @@ class NcoCore(SinCos):
     synonyms: ClassVar[tuple[str, ...]] = ("dds", "oscillator", "local_oscillator")
     options: ClassVar[tuple[str, ...]] = (
         "acc_width", "dither_width", "lfsr_width", "lfsr_seed", *TARGET_FIELDS, "nco_mode", "angle_guard_bits",
+        "shifted_terms",
     )  # fmt: skip
     angle_signal: ClassVar[str] = CODE_WIRE
 
     # ---------------------------------------------------------------- config and data path
 
     def validate(self, spec: CoreSpec) -> None:
+        SinCos.validate(self, spec)
         if spec.angle_unit != "turns":
             raise ConfigError(
                 "angle_unit", spec.angle_unit, 'turns (the accumulator is a binary angle)', 'set angle_unit = "turns"',
