@@ -465,9 +465,8 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
     # A free-running NCO has no input stream and no out_ready: the sink takes every sample.
     quiet_handshake = "valid_only" if nco_mode == "free_running" else "ready_valid"
     handshake = _choice_field(raw, "handshake", HANDSHAKES) if "handshake" in raw else quiet_handshake
-    shifted_terms = (
-        _choice_field(raw, "shifted_terms", SHIFTED_TERMS) if raw.get("shifted_terms", "auto") != "auto" else None
-    )
+    terms = _choice_field(raw, "shifted_terms", (*SHIFTED_TERMS, "auto")) if "shifted_terms" in raw else "auto"
+    shifted_terms = None if terms == "auto" else terms
     fn = function_named(function)
     for key, why in refused_fields(fn).items():
         # A field the function does not use: a value set here would mislead.
