@@ -35,7 +35,7 @@ DEFAULT_HDL = ("verilog",)
 HANDSHAKES = ("ready_valid", "valid_only")
 #: How each iteration forms y / 2^i and x / 2^i: ``rounded`` half up (the bit below the shift
 #: through the adder's carry-in) or ``floored`` (the arithmetic shift alone). Unset, a pipelined
-#: sincos or NCO rounds them where ``rounding`` rounds the outputs (docs/config.md).
+#: sincos, rotate or NCO rounds them where ``rounding`` rounds the outputs (docs/config.md).
 SHIFTED_TERMS = ("rounded", "floored")
 #: How an NCO takes its words: ``streamed`` (one sample per accepted input token, the token
 #: carrying both words) or ``free_running`` (no input stream: one sample per clock from reset,
@@ -84,7 +84,7 @@ class CoreSpec:
         clock_enable: Add a ``clk_en`` input: while it is low every register of the core holds
             (a clock edge with ``clk_en`` low is no edge for the core).
         handshake: One of :data:`HANDSHAKES`.
-        shifted_terms: Where the function offers it (sincos, nco): one of
+        shifted_terms: Where the function offers it (sincos, rotate, nco): one of
             :data:`SHIFTED_TERMS`, or ``None`` to follow ``rounding`` and the architecture.
         acc_width: NCO (function ``nco``): bits of the phase accumulator and its words.
         dither_width: NCO: phase dither bits below the kept phase LSB (0: none).

@@ -56,7 +56,7 @@ VALID: dict[str, list[Any]] = {
     "vlnv_vendor": ["benchgen", "acme.dsp", "Lab-7"],
     "vlnv_library": ["cores", "radio_ip", "1.x"],
     "handshake": ["ready_valid", "valid_only"],
-    # sincos only here (nco is not drawn); "rounded" in pipelined cores only
+    # sincos and rotate here (nco is not drawn); "rounded" in pipelined cores only
     "shifted_terms": ["auto", "rounded", "floored"],
     # The NCO's spectral target: refused for every function drawn here (none is an NCO).
     "sfdr_dbc": [40.0, 60, 72.5],
@@ -102,7 +102,7 @@ def valid_configs(draw: st.DrawFn) -> dict[str, Any]:
         config["pipeline_depth"] = draw(st.sampled_from(VALID["pipeline_depth"]))
     if arch == "iterative" and draw(st.booleans()):
         config["iterations_per_cycle"] = draw(st.sampled_from(VALID["iterations_per_cycle"]))
-    if function == "sincos" and draw(st.booleans()):
+    if function in ("sincos", "rotate") and draw(st.booleans()):
         terms = VALID["shifted_terms"] if arch == "pipelined" else ["auto", "floored"]
         config["shifted_terms"] = draw(st.sampled_from(terms))
     for field in ("iterations", "guard_bits", "rounding", "tag_width", "max_error_lsb", "vlnv_vendor", "vlnv_library",

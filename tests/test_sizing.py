@@ -110,6 +110,9 @@ def test_rounded_shifted_terms_follow_rounding_and_buy_a_guard_bit() -> None:
         ({"architecture": "iterative"}, False),
     ):
         assert make_datapath(parse_config(base | change), 16, 4).rounded_shifts is rounded, change
+    rotate = {"name": "c", "function": "rotate", "data_width": 12, "angle_width": 12}
+    assert make_datapath(parse_config(rotate), 14, 4).rounded_shifts
+    assert not make_datapath(parse_config(rotate | {"architecture": "iterative"}), 14, 4).rounded_shifts
     nco = {"name": "c", "function": "nco", "data_width": 16, "angle_width": 12}
     assert make_datapath(parse_config(nco), 16, 4).rounded_shifts
     assert not make_datapath(parse_config(nco | {"rounding": "truncate", "max_error_lsb": 3.0}), 16, 4).rounded_shifts

@@ -30,6 +30,7 @@ from benchgen.functions.base import WIDE_ANGLE_BITS, WIDE_DATA_BITS, Function, b
 from benchgen.hwlib import Builder
 from benchgen.model import INT64_MODEL_BITS, to_signed
 from benchgen.netlist import Add, Cat, Cmp, Const, Expr, Mul, Mux, Or, Rep, Sig, Slice, Xor
+from benchgen.errors import ConfigError
 from benchgen.spec import CoreSpec
 
 INT64_PRODUCT_BITS = 58
@@ -128,6 +129,30 @@ class CircularFunction(Function):
             prenorm_width=(b - 2).bit_length() if prenorm else 0,
             rounded_shifts=rounded_shifts,
         )
+
+    def rounds_shifts(self, spec: CoreSpec) -> bool:
+        """Whether the core rounds its shifted terms (:attr:`Datapath.rounded_shifts`).
+
+        As ``shifted_terms`` says; unset, as ``rounding`` treats the bits the core drops: a core
+        that rounds its outputs rounds its shifted terms too (half up, through each adder's
+        carry-in: one XOR per adder, no adder bits), which reaches 1 LSB at 16 bits with x and
+        y one bit narrower (docs/hardware.md step 6); a truncating core, the cheapest by choice,
+        floors both. An iterative core shifts by a count, and the bit below a variable shift is
+        one more shifter: it floors them (:meth:`validate` refuses ``rounded`` there). A
+        function that offers ``shifted_terms`` passes this to :meth:`circular_datapath`."""
+        if spec.shifted_terms is not None:
+            return spec.shifted_terms == "rounded"
+        return spec.architecture == "pipelined" and spec.rounding != "truncate"
+
+    def validate(self, spec: CoreSpec) -> None:
+        if spec.shifted_terms == "rounded" and spec.architecture != "pipelined":
+            raise ConfigError(
+                "shifted_terms", spec.shifted_terms,
+                '"floored" in an iterative core (its shifts vary by clock; rounded terms are built '
+                "in pipelines only)",
+                'set shifted_terms = "floored" (or remove it), or architecture = "pipelined"',
+                suggestion={"shifted_terms": "floored"},
+            )  # fmt: skip
 
     @staticmethod
     def angle_guard(spec: CoreSpec, guard_bits: int) -> int:

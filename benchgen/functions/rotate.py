@@ -29,7 +29,7 @@ class Rotate(CircularFunction):
     name: ClassVar[str] = "rotate"
     mode: ClassVar[str] = "rotation"
     summary: ClassVar[str] = "a vector (x, y) turned by an angle (circular rotation)"
-    options: ClassVar[tuple[str, ...]] = ("angle_guard_bits",)
+    options: ClassVar[tuple[str, ...]] = ("angle_guard_bits", "shifted_terms")
 
     def datapath(self, spec: CoreSpec, iterations: int, guard_bits: int) -> CircularDatapath:
         b, g = spec.data_width, guard_bits
@@ -41,7 +41,7 @@ class Rotate(CircularFunction):
             spec, iterations, g, xy_width=out_width + 1 + g, out_width=out_width,
             out_max=(1 << (out_width - 1)) - 1, z_frac=self.angle_z_frac(spec, g),
             angle_guard_bits=self.angle_guard(spec, g),
-            k_frac=b + g + 2 if spec.gain == "compensated" else 0,
+            k_frac=b + g + 2 if spec.gain == "compensated" else 0, rounded_shifts=self.rounds_shifts(spec),
         )
 
     def input_ports(self, dp: Datapath) -> tuple[Port, ...]:

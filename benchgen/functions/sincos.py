@@ -11,7 +11,6 @@ import numpy as np
 import numpy.typing as npt
 
 from benchgen.algorithm import MP_DIGITS, Datapath
-from benchgen.errors import ConfigError
 from benchgen.functions.base import Inputs, Outputs, Port, octave, pack
 from benchgen.functions.circular import CircularDatapath, CircularFunction
 from benchgen.hwlib import Builder, Final, Start
@@ -101,29 +100,6 @@ class SinCos(CircularFunction):
             z_frac=self.angle_z_frac(spec, guard_bits), angle_guard_bits=self.angle_guard(spec, guard_bits),
             x_start=x_start, rounded_shifts=self.rounds_shifts(spec),
         )
-
-    def rounds_shifts(self, spec: CoreSpec) -> bool:
-        """Whether the core rounds its shifted terms (:attr:`Datapath.rounded_shifts`).
-
-        As ``shifted_terms`` says; unset, as ``rounding`` treats the bits the core drops: a core
-        that rounds its outputs rounds its shifted terms too (half up, through each adder's
-        carry-in: one XOR per adder, no adder bits), which reaches 1 LSB at 16 bits with x and
-        y one bit narrower (docs/hardware.md step 6); a truncating core, the cheapest by choice,
-        floors both. An iterative core shifts by a count, and the bit below a variable shift is
-        one more shifter: it floors them (:meth:`validate` refuses ``rounded`` there)."""
-        if spec.shifted_terms is not None:
-            return spec.shifted_terms == "rounded"
-        return spec.architecture == "pipelined" and spec.rounding != "truncate"
-
-    def validate(self, spec: CoreSpec) -> None:
-        if spec.shifted_terms == "rounded" and spec.architecture != "pipelined":
-            raise ConfigError(
-                "shifted_terms", spec.shifted_terms,
-                '"floored" in an iterative core (its shifts vary by clock; rounded terms are built '
-                "in pipelines only)",
-                'set shifted_terms = "floored" (or remove it), or architecture = "pipelined"',
-                suggestion={"shifted_terms": "floored"},
-            )  # fmt: skip
 
     # ---------------------------------------------------------------- ports and documents
 
