@@ -308,10 +308,9 @@ class _Core:
         y_cin: Expr = Not(d)
         if dp.rounded_shifts and step.shift:
             assert step.shift is not None and not x_low, "rounded shifts: fixed shifts of whole values"
-            if ys is not None and y_in is not None and self.has_y:
+            assert self.has_y, "rounded shifts: functions that carry y"
+            if ys is not None and y_in is not None:
                 x_cin = Xor(x_cin, y_in[step.shift - 1])
-            elif ys is not None:
-                x_cin = Xor(x_cin, x_in[step.shift - 1])  # no y: y is x all the way
             if xs is not None:
                 y_cin = Xor(y_cin, x_in[step.shift - 1])
         out = Final()

@@ -26,11 +26,11 @@ from benchgen.algorithm import (
     csd_terms,
     pi_at,
 )
+from benchgen.errors import ConfigError
 from benchgen.functions.base import WIDE_ANGLE_BITS, WIDE_DATA_BITS, Function, below
 from benchgen.hwlib import Builder
 from benchgen.model import INT64_MODEL_BITS, to_signed
 from benchgen.netlist import Add, Cat, Cmp, Const, Expr, Mul, Mux, Or, Rep, Sig, Slice, Xor
-from benchgen.errors import ConfigError
 from benchgen.spec import CoreSpec
 
 INT64_PRODUCT_BITS = 58
@@ -85,7 +85,6 @@ class CircularFunction(Function):
         x_start: int = 0,
         k_frac: int = 0,
         prenorm: bool = False,
-        rounded_shifts: bool = False,
     ) -> CircularDatapath:
         """The data path of a circular core whose widths the function module chose."""
         a, b = spec.angle_width, spec.data_width
@@ -127,7 +126,7 @@ class CircularFunction(Function):
             shifts=tuple(range(iterations)),
             prenorm_max=b - 2 if prenorm else 0,
             prenorm_width=(b - 2).bit_length() if prenorm else 0,
-            rounded_shifts=rounded_shifts,
+            rounded_shifts="shifted_terms" in self.options and self.rounds_shifts(spec),
         )
 
     def rounds_shifts(self, spec: CoreSpec) -> bool:
@@ -138,8 +137,8 @@ class CircularFunction(Function):
         carry-in: one XOR per adder, no adder bits), which reaches 1 LSB at 16 bits with x and
         y one bit narrower (docs/hardware.md step 6); a truncating core, the cheapest by choice,
         floors both. An iterative core shifts by a count, and the bit below a variable shift is
-        one more shifter: it floors them (:meth:`validate` refuses ``rounded`` there). A
-        function that offers ``shifted_terms`` passes this to :meth:`circular_datapath`."""
+        one more shifter: it floors them (:meth:`validate` refuses ``rounded`` there).
+        :meth:`circular_datapath` asks it for the functions that offer ``shifted_terms``."""
         if spec.shifted_terms is not None:
             return spec.shifted_terms == "rounded"
         return spec.architecture == "pipelined" and spec.rounding != "truncate"

@@ -360,7 +360,7 @@ class NcoCore(SinCos):
     # ---------------------------------------------------------------- config and data path
 
     def validate(self, spec: CoreSpec) -> None:
-        SinCos.validate(self, spec)
+        super().validate(spec)
         if spec.angle_unit != "turns":
             raise ConfigError(
                 "angle_unit", spec.angle_unit, 'turns (the accumulator is a binary angle)', 'set angle_unit = "turns"',

@@ -41,7 +41,7 @@ class Rotate(CircularFunction):
             spec, iterations, g, xy_width=out_width + 1 + g, out_width=out_width,
             out_max=(1 << (out_width - 1)) - 1, z_frac=self.angle_z_frac(spec, g),
             angle_guard_bits=self.angle_guard(spec, g),
-            k_frac=b + g + 2 if spec.gain == "compensated" else 0, rounded_shifts=self.rounds_shifts(spec),
+            k_frac=b + g + 2 if spec.gain == "compensated" else 0,
         )
 
     def input_ports(self, dp: Datapath) -> tuple[Port, ...]:

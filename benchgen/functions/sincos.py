@@ -98,7 +98,7 @@ class SinCos(CircularFunction):
         return self.circular_datapath(
             spec, iterations, guard_bits, xy_width=xy_width, out_width=out_width, out_max=out_max,
             z_frac=self.angle_z_frac(spec, guard_bits), angle_guard_bits=self.angle_guard(spec, guard_bits),
-            x_start=x_start, rounded_shifts=self.rounds_shifts(spec),
+            x_start=x_start,
         )
 
     # ---------------------------------------------------------------- ports and documents
