@@ -111,11 +111,44 @@ class _Core:
         self.single_output = False
         # z narrowed stage by stage: the width of z formed by each iteration (None: full width)
         self.z_widths: list[int] | None = None
+        # the iterations whose z in carries one sign copy more than its range needs, so that
+        # x's and y's directions read different bits (see split_directions)
+        self.split_dirs: set[int] = set()
         start = self.fn.z_start_range(dp)
         if design.timing.architecture == "pipelined" and self.has_z and dp.mode == "rotation" and start is not None:
             ranges = rotation_z_ranges(dp, start)
             self.z_widths = [min(dp.z_width, signed_width(*r)) for r in ranges[1:]]
+            self.split_dirs = self.split_directions(ranges)
+            for j in self.split_dirs:
+                self.z_widths[j - 1] += 1
         self.b.width_name("xy", dp.xy_width)  # declared first, whatever uses it first
+
+    def split_directions(self, ranges: list[tuple[int, int]]) -> set[int]:
+        """The iterations (of a pipelined rotation that narrows z) whose x and y directions read
+        two different copies of z's sign.
+
+        An iteration's direction drives every bit of its x, y and z add/subtract: about 2W + ZW
+        loads on one net, the longest wire of the stage (ECP5 critical path: the direction's
+        fanout into the x adder's operand logic, docs/hardware.md step 7). The z before such an
+        iteration is formed one bit wider than its range needs, so its top two bits are equal
+        sign copies from two different adder outputs, which synthesis cannot merge; x and z
+        read the top bit, y the one below, and each net carries half the loads. Only where the
+        wider z is exact: its range fits z's full width (no wrap-around), and the iteration
+        forms both x and y (not the table head's, whose directions only pick a table entry).
+        """
+        dp = self.dp
+        if not self.has_y or dp.coordinates == "linear":
+            return set()
+        head = self.table_head()
+        n = dp.iterations
+        both_final = self.final_needs[0] and self.final_needs[1]
+        out = set()
+        for j in range(max(head, 1), n):
+            if j == n - 1 and not both_final:
+                continue
+            if signed_width(*ranges[j]) < dp.z_width:
+                out.add(j)
+        return out
 
     def angle_name(self, i: int) -> str:
         """The name of iteration i's angle constant: atan(2^-s) in circular coordinates,
@@ -219,6 +252,11 @@ class _Core:
                     "bits are copies of its sign and are not formed (bounds over every input); each angle\n"
                     "constant has the width of the z its iteration forms."
                 )
+                if self.split_dirs:
+                    b.note(
+                        "Where z feeds x and y adders it keeps one sign copy more: x's and z's direction\n"
+                        "reads the top bit, y's (dir_y_*) the one below, so each drives half the loads."
+                    )
             count = dp.iterations if dp.mode == "vectoring" else dp.iterations - 1
             for i in range(first, count):
                 width = dp.z_width if self.z_widths is None else self.z_widths[i]
@@ -277,6 +315,11 @@ class _Core:
                 d = b.wire(f"dir_{label}", Cmp("<", z_in, Const(1 << (z_in.width - 1), z_in.width)))
             else:
                 d = b.wire(f"dir_{label}", Cmp("<", z_in, b.p("Z_HALF")))
+        d_y: Expr = d  # y's direction: the same bit, or its own copy (split_directions)
+        if step.index in self.split_dirs:
+            assert z_in is not None
+            w = z_in.width - 1
+            d_y = b.wire(f"dir_y_{label}", Cmp("<", Slice(z_in, w - 1, 0), Const(1 << (w - 1), w)))
         # x and y shifted by the iteration's shift (formed only where a value reads them).
         xs: Expr | None = None
         ys: Expr | None = None
@@ -305,7 +348,7 @@ class _Core:
         # them: a + t + r, or a - t - r = a + ~t + ~r, so the carry-in is (subtract) XOR r and
         # rounding costs no adder.
         x_cin: Expr = Not(d) if hyperbolic else d
-        y_cin: Expr = Not(d)
+        y_cin: Expr = Not(d_y)
         if dp.rounded_shifts and step.shift:
             assert step.shift is not None and not x_low, "rounded shifts: fixed shifts of whole values"
             assert self.has_y, "rounded shifts: functions that carry y"
@@ -325,10 +368,10 @@ class _Core:
         if y_out:
             assert y_in is not None
             if kept["y"]:
-                t = b.wire(f"ty_{step.index}", Mux(d, xs, Not(xs)))
+                t = b.wire(f"ty_{step.index}", Mux(d_y, xs, Not(xs)))
                 out.y_kept = nxt[1] = b.kept_add(y_out, y_in, t, y_cin, W, kept["y"])
             else:
-                new = Add(y_in, Mux(d, xs, Not(xs)), y_cin)
+                new = Add(y_in, Mux(d_y, xs, Not(xs)), y_cin)
                 out.y = nxt[1] = b.wire(y_out, Mux(step.active, new, y_in) if step.active is not None else new, of="xy")
         if z_out:
             assert z_in is not None

@@ -157,3 +157,38 @@ def test_printer_rules() -> None:
     assert expr_text(Sra(a, d)) == "$signed(a) >>> d"
     with pytest.raises(ValueError, match="named signal"):
         expr_text(Slice(Add(a, a), 3, 0))
+
+
+def test_directions_split_over_two_sign_copies_of_z() -> None:
+    """A pipelined rotation forms z one bit wider than its range needs before each iteration
+    with x and y adders: x's direction reads the top bit and y's the one below, two copies of
+    the sign from different adder outputs, so each net drives half the loads. The model knows
+    nothing of it: the description still equals it on every input (the test above), and here
+    the wiring is checked against the range bounds (benchgen.algorithm.rotation_z_ranges)."""
+    from benchgen.algorithm import rotation_z_ranges, signed_width
+    from benchgen.functions import table_head
+
+    design = build_design(parse_config({"name": "c", "function": "sincos", "angle_width": 16, "data_width": 16}))
+    dp = design.datapath
+    module = build_core(design)
+    wires = {st.sig.name: st for st in module.body if isinstance(st, Wire)}
+    ranges = rotation_z_ranges(dp, function_of(dp).z_start_range(dp))  # type: ignore[arg-type]
+    head = table_head(dp, "pipelined")
+    assert head > 0
+    for j in range(dp.iterations):
+        if j < head:
+            assert f"dir_y_{j}" not in wires, "the table head's directions pick a table entry: no split"
+            continue
+        top, below = wires[f"dir_{j}"].expr, wires[f"dir_y_{j}"].expr
+        assert isinstance(top, Cmp) and isinstance(below, Cmp) and isinstance(top.b, Const) and isinstance(below.b, Const)
+        z_in = top.a
+        assert z_in.width == signed_width(*ranges[j]) + 1 <= dp.z_width, f"iteration {j}: one sign copy more"
+        assert top.b.value == 1 << (z_in.width - 1)
+        assert isinstance(below.a, Slice) and below.a.of is z_in and below.a.hi == z_in.width - 2 and below.a.lo == 0
+        assert below.b.value == 1 << (z_in.width - 2)
+        # y's adder reads y's direction (carry-in too), x's adder x's
+        texts = [expr_text(w.expr) for w in wires.values()]
+        y_sum = [t for t in texts if f"(dir_y_{j} ? xs_{j} : ~xs_{j})" in t]
+        x_sum = [t for t in texts if f"(dir_{j} ? ~ys_{j} : ys_{j})" in t]
+        assert len(y_sum) == len(x_sum) == 1, f"iteration {j}"
+        assert f"~dir_y_{j} ^" in y_sum[0] and f"dir_{j} ^" in x_sum[0]

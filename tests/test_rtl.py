@@ -12,7 +12,9 @@ from conftest import require_simulator
 
 from benchgen.config import parse_config
 from benchgen.design import build_design
+from benchgen.netlist import Add, Mux, Not, Sig
 from benchgen.rtl import render_core, verilog_literal
+from benchgen.verilog import expr_text
 from benchgen.simulators import find_simulator, simulator_env
 
 VARIANTS = [
@@ -105,7 +107,8 @@ def cases() -> list[dict[str, object]]:
 
 
 # More iterations than z's fraction bits resolve (z's guard bits sized on their own, here 3):
-# z narrows to one bit in the last stages, whose sums take the carry-in without a pad.
+# z narrows to its sign in the last stages (plus the second sign copy that splits the
+# directions' fanout: two bits), whose sums take the carry-in with a one-bit pad.
 ONE_BIT_Z: dict[str, object] = {
     "name": "one_bit_z", "function": "sincos", "angle_width": 16, "data_width": 12, "iterations": 20,
     "guard_bits": 7, "pipeline_depth": 1,
@@ -114,10 +117,12 @@ ONE_BIT_Z: dict[str, object] = {
 
 def test_a_one_bit_sum_takes_its_carry_without_a_zero_width_pad() -> None:
     """A zero-width literal (0'h0) is illegal Verilog (Yosys refuses it); the sweep found one in
-    the one-bit z stages of the config above."""
+    the one-bit z stages of the config above, before z kept a second sign copy."""
     text = render_core(build_design(parse_config(ONE_BIT_Z)))
-    assert re.search(r"^\s*wire z_\d+ = .* \+ dir_\d+;", text, re.MULTILINE), "no one-bit z stage left to test"
+    assert re.search(r"^\s*wire \[1:0\] z_\d+ = .* \+ \{1'b0, dir_\d+\};", text, re.MULTILINE), "no sign-only z stage"
     assert not re.search(r"\b0'", text)
+    a, d = Sig("a", 1), Sig("d", 1)
+    assert expr_text(Add(a, Mux(d, Not(a), a), d)) == "a + (d ? ~a : a) + d"
 
 
 @pytest.fixture(scope="module")

@@ -93,21 +93,21 @@ architecture rtl of dac_tone is
 
     constant ATAN_0 : unsigned(18 downto 0) := 19x"40000";  -- atan(2^-0) in turns
     constant ATAN_1 : unsigned(18 downto 0) := 19x"25c81";  -- atan(2^-1) in turns
-    constant ATAN_2 : unsigned(17 downto 0) := 18x"13f67";  -- atan(2^-2) in turns
-    constant ATAN_3 : unsigned(16 downto 0) := 17x"0a222";  -- atan(2^-3) in turns
-    constant ATAN_4 : unsigned(15 downto 0) := 16x"5162";  -- atan(2^-4) in turns
-    constant ATAN_5 : unsigned(14 downto 0) := 15x"28bb";  -- atan(2^-5) in turns
-    constant ATAN_6 : unsigned(13 downto 0) := 14x"145f";  -- atan(2^-6) in turns
-    constant ATAN_7 : unsigned(12 downto 0) := 13x"0a30";  -- atan(2^-7) in turns
-    constant ATAN_8 : unsigned(11 downto 0) := 12x"518";  -- atan(2^-8) in turns
-    constant ATAN_9 : unsigned(10 downto 0) := 11x"28c";  -- atan(2^-9) in turns
-    constant ATAN_10 : unsigned(9 downto 0) := 10x"146";  -- atan(2^-10) in turns
-    constant ATAN_11 : unsigned(8 downto 0) := 9x"0a3";  -- atan(2^-11) in turns
-    constant ATAN_12 : unsigned(7 downto 0) := 8x"51";  -- atan(2^-12) in turns
-    constant ATAN_13 : unsigned(6 downto 0) := 7x"29";  -- atan(2^-13) in turns
-    constant ATAN_14 : unsigned(5 downto 0) := 6x"14";  -- atan(2^-14) in turns
-    constant ATAN_15 : unsigned(4 downto 0) := 5x"0a";  -- atan(2^-15) in turns
-    constant ATAN_16 : unsigned(3 downto 0) := 4x"5";  -- atan(2^-16) in turns
+    constant ATAN_2 : unsigned(18 downto 0) := 19x"13f67";  -- atan(2^-2) in turns
+    constant ATAN_3 : unsigned(17 downto 0) := 18x"0a222";  -- atan(2^-3) in turns
+    constant ATAN_4 : unsigned(16 downto 0) := 17x"05162";  -- atan(2^-4) in turns
+    constant ATAN_5 : unsigned(15 downto 0) := 16x"28bb";  -- atan(2^-5) in turns
+    constant ATAN_6 : unsigned(14 downto 0) := 15x"145f";  -- atan(2^-6) in turns
+    constant ATAN_7 : unsigned(13 downto 0) := 14x"0a30";  -- atan(2^-7) in turns
+    constant ATAN_8 : unsigned(12 downto 0) := 13x"0518";  -- atan(2^-8) in turns
+    constant ATAN_9 : unsigned(11 downto 0) := 12x"28c";  -- atan(2^-9) in turns
+    constant ATAN_10 : unsigned(10 downto 0) := 11x"146";  -- atan(2^-10) in turns
+    constant ATAN_11 : unsigned(9 downto 0) := 10x"0a3";  -- atan(2^-11) in turns
+    constant ATAN_12 : unsigned(8 downto 0) := 9x"051";  -- atan(2^-12) in turns
+    constant ATAN_13 : unsigned(7 downto 0) := 8x"29";  -- atan(2^-13) in turns
+    constant ATAN_14 : unsigned(6 downto 0) := 7x"14";  -- atan(2^-14) in turns
+    constant ATAN_15 : unsigned(5 downto 0) := 6x"0a";  -- atan(2^-15) in turns
+    constant ATAN_16 : unsigned(4 downto 0) := 5x"05";  -- atan(2^-16) in turns
 
     -- ---- phase accumulator: 32 bits, the top 14 kept (floor), 4 dither bits just below them ----
     signal acc_reg : unsigned(31 downto 0);
@@ -147,184 +147,199 @@ architecture rtl of dac_tone is
 
     -- ---- stage 2: iteration 2 ----
     signal dir_2 : std_logic;
-    signal s2_z : unsigned(17 downto 0);
+    signal s2_z : unsigned(18 downto 0);
     signal s2_x : unsigned(XY_W - 1 downto 0);
     signal s2_y : unsigned(XY_W - 1 downto 0);
     signal s2_valid_reg : std_logic;
     signal s2_x_reg : unsigned(XY_W - 1 downto 0);
     signal s2_y_reg : unsigned(XY_W - 1 downto 0);
-    signal s2_z_reg : unsigned(17 downto 0);
+    signal s2_z_reg : unsigned(18 downto 0);
 
     -- ---- stage 3: iteration 3 ----
     signal dir_3 : std_logic;
+    signal dir_y_3 : std_logic;
     signal xs_3 : unsigned(XY_W - 1 downto 0);
     signal ys_3 : unsigned(XY_W - 1 downto 0);
     signal s3_x : unsigned(XY_W - 1 downto 0);
     signal s3_y : unsigned(XY_W - 1 downto 0);
-    signal s3_z : unsigned(16 downto 0);
+    signal s3_z : unsigned(17 downto 0);
     signal s3_valid_reg : std_logic;
     signal s3_x_reg : unsigned(XY_W - 1 downto 0);
     signal s3_y_reg : unsigned(XY_W - 1 downto 0);
-    signal s3_z_reg : unsigned(16 downto 0);
+    signal s3_z_reg : unsigned(17 downto 0);
 
     -- ---- stage 4: iteration 4 ----
     signal dir_4 : std_logic;
+    signal dir_y_4 : std_logic;
     signal xs_4 : unsigned(XY_W - 1 downto 0);
     signal ys_4 : unsigned(XY_W - 1 downto 0);
     signal s4_x : unsigned(XY_W - 1 downto 0);
     signal s4_y : unsigned(XY_W - 1 downto 0);
-    signal s4_z : unsigned(15 downto 0);
+    signal s4_z : unsigned(16 downto 0);
     signal s4_valid_reg : std_logic;
     signal s4_x_reg : unsigned(XY_W - 1 downto 0);
     signal s4_y_reg : unsigned(XY_W - 1 downto 0);
-    signal s4_z_reg : unsigned(15 downto 0);
+    signal s4_z_reg : unsigned(16 downto 0);
 
     -- ---- stage 5: iteration 5 ----
     signal dir_5 : std_logic;
+    signal dir_y_5 : std_logic;
     signal xs_5 : unsigned(XY_W - 1 downto 0);
     signal ys_5 : unsigned(XY_W - 1 downto 0);
     signal s5_x : unsigned(XY_W - 1 downto 0);
     signal s5_y : unsigned(XY_W - 1 downto 0);
-    signal s5_z : unsigned(14 downto 0);
+    signal s5_z : unsigned(15 downto 0);
     signal s5_valid_reg : std_logic;
     signal s5_x_reg : unsigned(XY_W - 1 downto 0);
     signal s5_y_reg : unsigned(XY_W - 1 downto 0);
-    signal s5_z_reg : unsigned(14 downto 0);
+    signal s5_z_reg : unsigned(15 downto 0);
 
     -- ---- stage 6: iteration 6 ----
     signal dir_6 : std_logic;
+    signal dir_y_6 : std_logic;
     signal xs_6 : unsigned(XY_W - 1 downto 0);
     signal ys_6 : unsigned(XY_W - 1 downto 0);
     signal s6_x : unsigned(XY_W - 1 downto 0);
     signal s6_y : unsigned(XY_W - 1 downto 0);
-    signal s6_z : unsigned(13 downto 0);
+    signal s6_z : unsigned(14 downto 0);
     signal s6_valid_reg : std_logic;
     signal s6_x_reg : unsigned(XY_W - 1 downto 0);
     signal s6_y_reg : unsigned(XY_W - 1 downto 0);
-    signal s6_z_reg : unsigned(13 downto 0);
+    signal s6_z_reg : unsigned(14 downto 0);
 
     -- ---- stage 7: iteration 7 ----
     signal dir_7 : std_logic;
+    signal dir_y_7 : std_logic;
     signal xs_7 : unsigned(XY_W - 1 downto 0);
     signal ys_7 : unsigned(XY_W - 1 downto 0);
     signal s7_x : unsigned(XY_W - 1 downto 0);
     signal s7_y : unsigned(XY_W - 1 downto 0);
-    signal s7_z : unsigned(12 downto 0);
+    signal s7_z : unsigned(13 downto 0);
     signal s7_valid_reg : std_logic;
     signal s7_x_reg : unsigned(XY_W - 1 downto 0);
     signal s7_y_reg : unsigned(XY_W - 1 downto 0);
-    signal s7_z_reg : unsigned(12 downto 0);
+    signal s7_z_reg : unsigned(13 downto 0);
 
     -- ---- stage 8: iteration 8 ----
     signal dir_8 : std_logic;
+    signal dir_y_8 : std_logic;
     signal xs_8 : unsigned(XY_W - 1 downto 0);
     signal ys_8 : unsigned(XY_W - 1 downto 0);
     signal s8_x : unsigned(XY_W - 1 downto 0);
     signal s8_y : unsigned(XY_W - 1 downto 0);
-    signal s8_z : unsigned(11 downto 0);
+    signal s8_z : unsigned(12 downto 0);
     signal s8_valid_reg : std_logic;
     signal s8_x_reg : unsigned(XY_W - 1 downto 0);
     signal s8_y_reg : unsigned(XY_W - 1 downto 0);
-    signal s8_z_reg : unsigned(11 downto 0);
+    signal s8_z_reg : unsigned(12 downto 0);
 
     -- ---- stage 9: iteration 9 ----
     signal dir_9 : std_logic;
+    signal dir_y_9 : std_logic;
     signal xs_9 : unsigned(XY_W - 1 downto 0);
     signal ys_9 : unsigned(XY_W - 1 downto 0);
     signal s9_x : unsigned(XY_W - 1 downto 0);
     signal s9_y : unsigned(XY_W - 1 downto 0);
-    signal s9_z : unsigned(10 downto 0);
+    signal s9_z : unsigned(11 downto 0);
     signal s9_valid_reg : std_logic;
     signal s9_x_reg : unsigned(XY_W - 1 downto 0);
     signal s9_y_reg : unsigned(XY_W - 1 downto 0);
-    signal s9_z_reg : unsigned(10 downto 0);
+    signal s9_z_reg : unsigned(11 downto 0);
 
     -- ---- stage 10: iteration 10 ----
     signal dir_10 : std_logic;
+    signal dir_y_10 : std_logic;
     signal xs_10 : unsigned(XY_W - 1 downto 0);
     signal ys_10 : unsigned(XY_W - 1 downto 0);
     signal s10_x : unsigned(XY_W - 1 downto 0);
     signal s10_y : unsigned(XY_W - 1 downto 0);
-    signal s10_z : unsigned(9 downto 0);
+    signal s10_z : unsigned(10 downto 0);
     signal s10_valid_reg : std_logic;
     signal s10_x_reg : unsigned(XY_W - 1 downto 0);
     signal s10_y_reg : unsigned(XY_W - 1 downto 0);
-    signal s10_z_reg : unsigned(9 downto 0);
+    signal s10_z_reg : unsigned(10 downto 0);
 
     -- ---- stage 11: iteration 11 ----
     signal dir_11 : std_logic;
+    signal dir_y_11 : std_logic;
     signal xs_11 : unsigned(XY_W - 1 downto 0);
     signal ys_11 : unsigned(XY_W - 1 downto 0);
     signal s11_x : unsigned(XY_W - 1 downto 0);
     signal s11_y : unsigned(XY_W - 1 downto 0);
-    signal s11_z : unsigned(8 downto 0);
+    signal s11_z : unsigned(9 downto 0);
     signal s11_valid_reg : std_logic;
     signal s11_x_reg : unsigned(XY_W - 1 downto 0);
     signal s11_y_reg : unsigned(XY_W - 1 downto 0);
-    signal s11_z_reg : unsigned(8 downto 0);
+    signal s11_z_reg : unsigned(9 downto 0);
 
     -- ---- stage 12: iteration 12 ----
     signal dir_12 : std_logic;
+    signal dir_y_12 : std_logic;
     signal xs_12 : unsigned(XY_W - 1 downto 0);
     signal ys_12 : unsigned(XY_W - 1 downto 0);
     signal s12_x : unsigned(XY_W - 1 downto 0);
     signal s12_y : unsigned(XY_W - 1 downto 0);
-    signal s12_z : unsigned(7 downto 0);
+    signal s12_z : unsigned(8 downto 0);
     signal s12_valid_reg : std_logic;
     signal s12_x_reg : unsigned(XY_W - 1 downto 0);
     signal s12_y_reg : unsigned(XY_W - 1 downto 0);
-    signal s12_z_reg : unsigned(7 downto 0);
+    signal s12_z_reg : unsigned(8 downto 0);
 
     -- ---- stage 13: iteration 13 ----
     signal dir_13 : std_logic;
+    signal dir_y_13 : std_logic;
     signal xs_13 : unsigned(XY_W - 1 downto 0);
     signal ys_13 : unsigned(XY_W - 1 downto 0);
     signal s13_x : unsigned(XY_W - 1 downto 0);
     signal s13_y : unsigned(XY_W - 1 downto 0);
-    signal s13_z : unsigned(6 downto 0);
+    signal s13_z : unsigned(7 downto 0);
     signal s13_valid_reg : std_logic;
     signal s13_x_reg : unsigned(XY_W - 1 downto 0);
     signal s13_y_reg : unsigned(XY_W - 1 downto 0);
-    signal s13_z_reg : unsigned(6 downto 0);
+    signal s13_z_reg : unsigned(7 downto 0);
 
     -- ---- stage 14: iteration 14 ----
     signal dir_14 : std_logic;
+    signal dir_y_14 : std_logic;
     signal xs_14 : unsigned(XY_W - 1 downto 0);
     signal ys_14 : unsigned(XY_W - 1 downto 0);
     signal s14_x : unsigned(XY_W - 1 downto 0);
     signal s14_y : unsigned(XY_W - 1 downto 0);
-    signal s14_z : unsigned(5 downto 0);
+    signal s14_z : unsigned(6 downto 0);
     signal s14_valid_reg : std_logic;
     signal s14_x_reg : unsigned(XY_W - 1 downto 0);
     signal s14_y_reg : unsigned(XY_W - 1 downto 0);
-    signal s14_z_reg : unsigned(5 downto 0);
+    signal s14_z_reg : unsigned(6 downto 0);
 
     -- ---- stage 15: iteration 15 ----
     signal dir_15 : std_logic;
+    signal dir_y_15 : std_logic;
     signal xs_15 : unsigned(XY_W - 1 downto 0);
     signal ys_15 : unsigned(XY_W - 1 downto 0);
     signal s15_x : unsigned(XY_W - 1 downto 0);
     signal s15_y : unsigned(XY_W - 1 downto 0);
-    signal s15_z : unsigned(4 downto 0);
+    signal s15_z : unsigned(5 downto 0);
     signal s15_valid_reg : std_logic;
     signal s15_x_reg : unsigned(XY_W - 1 downto 0);
     signal s15_y_reg : unsigned(XY_W - 1 downto 0);
-    signal s15_z_reg : unsigned(4 downto 0);
+    signal s15_z_reg : unsigned(5 downto 0);
 
     -- ---- stage 16: iteration 16 ----
     signal dir_16 : std_logic;
+    signal dir_y_16 : std_logic;
     signal xs_16 : unsigned(XY_W - 1 downto 0);
     signal ys_16 : unsigned(XY_W - 1 downto 0);
     signal s16_x : unsigned(XY_W - 1 downto 0);
     signal s16_y : unsigned(XY_W - 1 downto 0);
-    signal s16_z : unsigned(3 downto 0);
+    signal s16_z : unsigned(4 downto 0);
     signal s16_valid_reg : std_logic;
     signal s16_x_reg : unsigned(XY_W - 1 downto 0);
     signal s16_y_reg : unsigned(XY_W - 1 downto 0);
-    signal s16_z_reg : unsigned(3 downto 0);
+    signal s16_z_reg : unsigned(4 downto 0);
 
     -- ---- stage 17: iteration 17 ----
     signal dir_17 : std_logic;
+    signal dir_y_17 : std_logic;
     signal xs_17 : unsigned(XY_W - 1 downto 0);
     signal ys_17 : unsigned(XY_W - 1 downto 0);
     signal s17_x : unsigned(XY_W - 1 downto 0);
@@ -353,6 +368,8 @@ begin
     -- z narrows stage by stage: after iteration i it is within about +-atan(2^-i), so its top
     -- bits are copies of its sign and are not formed (bounds over every input); each angle
     -- constant has the width of the z its iteration forms.
+    -- Where z feeds x and y adders it keeps one sign copy more: x's and z's direction
+    -- reads the top bit, y's (dir_y_*) the one below, so each drives half the loads.
 
     -- The pipeline moves at every clock: the sink takes every sample.
 
@@ -469,7 +486,7 @@ begin
     -- ---- stage 2: iteration 2 ----
     -- iteration 2: turn counter-clockwise when the remaining angle is >= 0
     dir_2 <= '1' when s1_z_reg < 19x"40000" else '0';
-    s2_z <= s1_z_reg(17 downto 0) + choose(dir_2, not ATAN_2, ATAN_2) + dir_2;
+    s2_z <= s1_z_reg + choose(dir_2, not ATAN_2, ATAN_2) + dir_2;
     -- x and y after iteration 2 depend only on the fold and the directions of iterations
     -- 0 to 2 (z alone decides them): read from a table of the 16 cases, computed
     -- with the iterations' own arithmetic, instead of adding.
@@ -505,12 +522,13 @@ begin
 
     -- ---- stage 3: iteration 3 ----
     -- iteration 3: turn counter-clockwise when the remaining angle is >= 0
-    dir_3 <= '1' when s2_z_reg < 18x"20000" else '0';
+    dir_3 <= '1' when s2_z_reg < 19x"40000" else '0';
+    dir_y_3 <= '1' when s2_z_reg(17 downto 0) < 18x"20000" else '0';
     xs_3 <= unsigned'(2 downto 0 => s2_x_reg(19)) & s2_x_reg(19 downto 3);  -- x >>> 3
     ys_3 <= unsigned'(2 downto 0 => s2_y_reg(19)) & s2_y_reg(19 downto 3);  -- y >>> 3
     s3_x <= s2_x_reg + choose(dir_3, not ys_3, ys_3) + (dir_3 xor s2_y_reg(2));
-    s3_y <= s2_y_reg + choose(dir_3, xs_3, not xs_3) + ((not dir_3) xor s2_x_reg(2));
-    s3_z <= s2_z_reg(16 downto 0) + choose(dir_3, not ATAN_3, ATAN_3) + dir_3;
+    s3_y <= s2_y_reg + choose(dir_y_3, xs_3, not xs_3) + ((not dir_y_3) xor s2_x_reg(2));
+    s3_z <= s2_z_reg(17 downto 0) + choose(dir_3, not ATAN_3, ATAN_3) + dir_3;
 
     p_s3_valid_reg : process (clk)
     begin
@@ -533,12 +551,13 @@ begin
 
     -- ---- stage 4: iteration 4 ----
     -- iteration 4: turn counter-clockwise when the remaining angle is >= 0
-    dir_4 <= '1' when s3_z_reg < 17x"10000" else '0';
+    dir_4 <= '1' when s3_z_reg < 18x"20000" else '0';
+    dir_y_4 <= '1' when s3_z_reg(16 downto 0) < 17x"10000" else '0';
     xs_4 <= unsigned'(3 downto 0 => s3_x_reg(19)) & s3_x_reg(19 downto 4);  -- x >>> 4
     ys_4 <= unsigned'(3 downto 0 => s3_y_reg(19)) & s3_y_reg(19 downto 4);  -- y >>> 4
     s4_x <= s3_x_reg + choose(dir_4, not ys_4, ys_4) + (dir_4 xor s3_y_reg(3));
-    s4_y <= s3_y_reg + choose(dir_4, xs_4, not xs_4) + ((not dir_4) xor s3_x_reg(3));
-    s4_z <= s3_z_reg(15 downto 0) + choose(dir_4, not ATAN_4, ATAN_4) + dir_4;
+    s4_y <= s3_y_reg + choose(dir_y_4, xs_4, not xs_4) + ((not dir_y_4) xor s3_x_reg(3));
+    s4_z <= s3_z_reg(16 downto 0) + choose(dir_4, not ATAN_4, ATAN_4) + dir_4;
 
     p_s4_valid_reg : process (clk)
     begin
@@ -561,12 +580,13 @@ begin
 
     -- ---- stage 5: iteration 5 ----
     -- iteration 5: turn counter-clockwise when the remaining angle is >= 0
-    dir_5 <= '1' when s4_z_reg < 16x"8000" else '0';
+    dir_5 <= '1' when s4_z_reg < 17x"10000" else '0';
+    dir_y_5 <= '1' when s4_z_reg(15 downto 0) < 16x"8000" else '0';
     xs_5 <= unsigned'(4 downto 0 => s4_x_reg(19)) & s4_x_reg(19 downto 5);  -- x >>> 5
     ys_5 <= unsigned'(4 downto 0 => s4_y_reg(19)) & s4_y_reg(19 downto 5);  -- y >>> 5
     s5_x <= s4_x_reg + choose(dir_5, not ys_5, ys_5) + (dir_5 xor s4_y_reg(4));
-    s5_y <= s4_y_reg + choose(dir_5, xs_5, not xs_5) + ((not dir_5) xor s4_x_reg(4));
-    s5_z <= s4_z_reg(14 downto 0) + choose(dir_5, not ATAN_5, ATAN_5) + dir_5;
+    s5_y <= s4_y_reg + choose(dir_y_5, xs_5, not xs_5) + ((not dir_y_5) xor s4_x_reg(4));
+    s5_z <= s4_z_reg(15 downto 0) + choose(dir_5, not ATAN_5, ATAN_5) + dir_5;
 
     p_s5_valid_reg : process (clk)
     begin
@@ -589,12 +609,13 @@ begin
 
     -- ---- stage 6: iteration 6 ----
     -- iteration 6: turn counter-clockwise when the remaining angle is >= 0
-    dir_6 <= '1' when s5_z_reg < 15x"4000" else '0';
+    dir_6 <= '1' when s5_z_reg < 16x"8000" else '0';
+    dir_y_6 <= '1' when s5_z_reg(14 downto 0) < 15x"4000" else '0';
     xs_6 <= unsigned'(5 downto 0 => s5_x_reg(19)) & s5_x_reg(19 downto 6);  -- x >>> 6
     ys_6 <= unsigned'(5 downto 0 => s5_y_reg(19)) & s5_y_reg(19 downto 6);  -- y >>> 6
     s6_x <= s5_x_reg + choose(dir_6, not ys_6, ys_6) + (dir_6 xor s5_y_reg(5));
-    s6_y <= s5_y_reg + choose(dir_6, xs_6, not xs_6) + ((not dir_6) xor s5_x_reg(5));
-    s6_z <= s5_z_reg(13 downto 0) + choose(dir_6, not ATAN_6, ATAN_6) + dir_6;
+    s6_y <= s5_y_reg + choose(dir_y_6, xs_6, not xs_6) + ((not dir_y_6) xor s5_x_reg(5));
+    s6_z <= s5_z_reg(14 downto 0) + choose(dir_6, not ATAN_6, ATAN_6) + dir_6;
 
     p_s6_valid_reg : process (clk)
     begin
@@ -617,12 +638,13 @@ begin
 
     -- ---- stage 7: iteration 7 ----
     -- iteration 7: turn counter-clockwise when the remaining angle is >= 0
-    dir_7 <= '1' when s6_z_reg < 14x"2000" else '0';
+    dir_7 <= '1' when s6_z_reg < 15x"4000" else '0';
+    dir_y_7 <= '1' when s6_z_reg(13 downto 0) < 14x"2000" else '0';
     xs_7 <= unsigned'(6 downto 0 => s6_x_reg(19)) & s6_x_reg(19 downto 7);  -- x >>> 7
     ys_7 <= unsigned'(6 downto 0 => s6_y_reg(19)) & s6_y_reg(19 downto 7);  -- y >>> 7
     s7_x <= s6_x_reg + choose(dir_7, not ys_7, ys_7) + (dir_7 xor s6_y_reg(6));
-    s7_y <= s6_y_reg + choose(dir_7, xs_7, not xs_7) + ((not dir_7) xor s6_x_reg(6));
-    s7_z <= s6_z_reg(12 downto 0) + choose(dir_7, not ATAN_7, ATAN_7) + dir_7;
+    s7_y <= s6_y_reg + choose(dir_y_7, xs_7, not xs_7) + ((not dir_y_7) xor s6_x_reg(6));
+    s7_z <= s6_z_reg(13 downto 0) + choose(dir_7, not ATAN_7, ATAN_7) + dir_7;
 
     p_s7_valid_reg : process (clk)
     begin
@@ -645,12 +667,13 @@ begin
 
     -- ---- stage 8: iteration 8 ----
     -- iteration 8: turn counter-clockwise when the remaining angle is >= 0
-    dir_8 <= '1' when s7_z_reg < 13x"1000" else '0';
+    dir_8 <= '1' when s7_z_reg < 14x"2000" else '0';
+    dir_y_8 <= '1' when s7_z_reg(12 downto 0) < 13x"1000" else '0';
     xs_8 <= unsigned'(7 downto 0 => s7_x_reg(19)) & s7_x_reg(19 downto 8);  -- x >>> 8
     ys_8 <= unsigned'(7 downto 0 => s7_y_reg(19)) & s7_y_reg(19 downto 8);  -- y >>> 8
     s8_x <= s7_x_reg + choose(dir_8, not ys_8, ys_8) + (dir_8 xor s7_y_reg(7));
-    s8_y <= s7_y_reg + choose(dir_8, xs_8, not xs_8) + ((not dir_8) xor s7_x_reg(7));
-    s8_z <= s7_z_reg(11 downto 0) + choose(dir_8, not ATAN_8, ATAN_8) + dir_8;
+    s8_y <= s7_y_reg + choose(dir_y_8, xs_8, not xs_8) + ((not dir_y_8) xor s7_x_reg(7));
+    s8_z <= s7_z_reg(12 downto 0) + choose(dir_8, not ATAN_8, ATAN_8) + dir_8;
 
     p_s8_valid_reg : process (clk)
     begin
@@ -673,12 +696,13 @@ begin
 
     -- ---- stage 9: iteration 9 ----
     -- iteration 9: turn counter-clockwise when the remaining angle is >= 0
-    dir_9 <= '1' when s8_z_reg < 12x"800" else '0';
+    dir_9 <= '1' when s8_z_reg < 13x"1000" else '0';
+    dir_y_9 <= '1' when s8_z_reg(11 downto 0) < 12x"800" else '0';
     xs_9 <= unsigned'(8 downto 0 => s8_x_reg(19)) & s8_x_reg(19 downto 9);  -- x >>> 9
     ys_9 <= unsigned'(8 downto 0 => s8_y_reg(19)) & s8_y_reg(19 downto 9);  -- y >>> 9
     s9_x <= s8_x_reg + choose(dir_9, not ys_9, ys_9) + (dir_9 xor s8_y_reg(8));
-    s9_y <= s8_y_reg + choose(dir_9, xs_9, not xs_9) + ((not dir_9) xor s8_x_reg(8));
-    s9_z <= s8_z_reg(10 downto 0) + choose(dir_9, not ATAN_9, ATAN_9) + dir_9;
+    s9_y <= s8_y_reg + choose(dir_y_9, xs_9, not xs_9) + ((not dir_y_9) xor s8_x_reg(8));
+    s9_z <= s8_z_reg(11 downto 0) + choose(dir_9, not ATAN_9, ATAN_9) + dir_9;
 
     p_s9_valid_reg : process (clk)
     begin
@@ -701,12 +725,13 @@ begin
 
     -- ---- stage 10: iteration 10 ----
     -- iteration 10: turn counter-clockwise when the remaining angle is >= 0
-    dir_10 <= '1' when s9_z_reg < 11x"400" else '0';
+    dir_10 <= '1' when s9_z_reg < 12x"800" else '0';
+    dir_y_10 <= '1' when s9_z_reg(10 downto 0) < 11x"400" else '0';
     xs_10 <= unsigned'(9 downto 0 => s9_x_reg(19)) & s9_x_reg(19 downto 10);  -- x >>> 10
     ys_10 <= unsigned'(9 downto 0 => s9_y_reg(19)) & s9_y_reg(19 downto 10);  -- y >>> 10
     s10_x <= s9_x_reg + choose(dir_10, not ys_10, ys_10) + (dir_10 xor s9_y_reg(9));
-    s10_y <= s9_y_reg + choose(dir_10, xs_10, not xs_10) + ((not dir_10) xor s9_x_reg(9));
-    s10_z <= s9_z_reg(9 downto 0) + choose(dir_10, not ATAN_10, ATAN_10) + dir_10;
+    s10_y <= s9_y_reg + choose(dir_y_10, xs_10, not xs_10) + ((not dir_y_10) xor s9_x_reg(9));
+    s10_z <= s9_z_reg(10 downto 0) + choose(dir_10, not ATAN_10, ATAN_10) + dir_10;
 
     p_s10_valid_reg : process (clk)
     begin
@@ -729,12 +754,13 @@ begin
 
     -- ---- stage 11: iteration 11 ----
     -- iteration 11: turn counter-clockwise when the remaining angle is >= 0
-    dir_11 <= '1' when s10_z_reg < 10x"200" else '0';
+    dir_11 <= '1' when s10_z_reg < 11x"400" else '0';
+    dir_y_11 <= '1' when s10_z_reg(9 downto 0) < 10x"200" else '0';
     xs_11 <= unsigned'(10 downto 0 => s10_x_reg(19)) & s10_x_reg(19 downto 11);  -- x >>> 11
     ys_11 <= unsigned'(10 downto 0 => s10_y_reg(19)) & s10_y_reg(19 downto 11);  -- y >>> 11
     s11_x <= s10_x_reg + choose(dir_11, not ys_11, ys_11) + (dir_11 xor s10_y_reg(10));
-    s11_y <= s10_y_reg + choose(dir_11, xs_11, not xs_11) + ((not dir_11) xor s10_x_reg(10));
-    s11_z <= s10_z_reg(8 downto 0) + choose(dir_11, not ATAN_11, ATAN_11) + dir_11;
+    s11_y <= s10_y_reg + choose(dir_y_11, xs_11, not xs_11) + ((not dir_y_11) xor s10_x_reg(10));
+    s11_z <= s10_z_reg(9 downto 0) + choose(dir_11, not ATAN_11, ATAN_11) + dir_11;
 
     p_s11_valid_reg : process (clk)
     begin
@@ -757,12 +783,13 @@ begin
 
     -- ---- stage 12: iteration 12 ----
     -- iteration 12: turn counter-clockwise when the remaining angle is >= 0
-    dir_12 <= '1' when s11_z_reg < 9x"100" else '0';
+    dir_12 <= '1' when s11_z_reg < 10x"200" else '0';
+    dir_y_12 <= '1' when s11_z_reg(8 downto 0) < 9x"100" else '0';
     xs_12 <= unsigned'(11 downto 0 => s11_x_reg(19)) & s11_x_reg(19 downto 12);  -- x >>> 12
     ys_12 <= unsigned'(11 downto 0 => s11_y_reg(19)) & s11_y_reg(19 downto 12);  -- y >>> 12
     s12_x <= s11_x_reg + choose(dir_12, not ys_12, ys_12) + (dir_12 xor s11_y_reg(11));
-    s12_y <= s11_y_reg + choose(dir_12, xs_12, not xs_12) + ((not dir_12) xor s11_x_reg(11));
-    s12_z <= s11_z_reg(7 downto 0) + choose(dir_12, not ATAN_12, ATAN_12) + dir_12;
+    s12_y <= s11_y_reg + choose(dir_y_12, xs_12, not xs_12) + ((not dir_y_12) xor s11_x_reg(11));
+    s12_z <= s11_z_reg(8 downto 0) + choose(dir_12, not ATAN_12, ATAN_12) + dir_12;
 
     p_s12_valid_reg : process (clk)
     begin
@@ -785,12 +812,13 @@ begin
 
     -- ---- stage 13: iteration 13 ----
     -- iteration 13: turn counter-clockwise when the remaining angle is >= 0
-    dir_13 <= '1' when s12_z_reg < 8x"80" else '0';
+    dir_13 <= '1' when s12_z_reg < 9x"100" else '0';
+    dir_y_13 <= '1' when s12_z_reg(7 downto 0) < 8x"80" else '0';
     xs_13 <= unsigned'(12 downto 0 => s12_x_reg(19)) & s12_x_reg(19 downto 13);  -- x >>> 13
     ys_13 <= unsigned'(12 downto 0 => s12_y_reg(19)) & s12_y_reg(19 downto 13);  -- y >>> 13
     s13_x <= s12_x_reg + choose(dir_13, not ys_13, ys_13) + (dir_13 xor s12_y_reg(12));
-    s13_y <= s12_y_reg + choose(dir_13, xs_13, not xs_13) + ((not dir_13) xor s12_x_reg(12));
-    s13_z <= s12_z_reg(6 downto 0) + choose(dir_13, not ATAN_13, ATAN_13) + dir_13;
+    s13_y <= s12_y_reg + choose(dir_y_13, xs_13, not xs_13) + ((not dir_y_13) xor s12_x_reg(12));
+    s13_z <= s12_z_reg(7 downto 0) + choose(dir_13, not ATAN_13, ATAN_13) + dir_13;
 
     p_s13_valid_reg : process (clk)
     begin
@@ -813,12 +841,13 @@ begin
 
     -- ---- stage 14: iteration 14 ----
     -- iteration 14: turn counter-clockwise when the remaining angle is >= 0
-    dir_14 <= '1' when s13_z_reg < 7x"40" else '0';
+    dir_14 <= '1' when s13_z_reg < 8x"80" else '0';
+    dir_y_14 <= '1' when s13_z_reg(6 downto 0) < 7x"40" else '0';
     xs_14 <= unsigned'(13 downto 0 => s13_x_reg(19)) & s13_x_reg(19 downto 14);  -- x >>> 14
     ys_14 <= unsigned'(13 downto 0 => s13_y_reg(19)) & s13_y_reg(19 downto 14);  -- y >>> 14
     s14_x <= s13_x_reg + choose(dir_14, not ys_14, ys_14) + (dir_14 xor s13_y_reg(13));
-    s14_y <= s13_y_reg + choose(dir_14, xs_14, not xs_14) + ((not dir_14) xor s13_x_reg(13));
-    s14_z <= s13_z_reg(5 downto 0) + choose(dir_14, not ATAN_14, ATAN_14) + dir_14;
+    s14_y <= s13_y_reg + choose(dir_y_14, xs_14, not xs_14) + ((not dir_y_14) xor s13_x_reg(13));
+    s14_z <= s13_z_reg(6 downto 0) + choose(dir_14, not ATAN_14, ATAN_14) + dir_14;
 
     p_s14_valid_reg : process (clk)
     begin
@@ -841,12 +870,13 @@ begin
 
     -- ---- stage 15: iteration 15 ----
     -- iteration 15: turn counter-clockwise when the remaining angle is >= 0
-    dir_15 <= '1' when s14_z_reg < 6x"20" else '0';
+    dir_15 <= '1' when s14_z_reg < 7x"40" else '0';
+    dir_y_15 <= '1' when s14_z_reg(5 downto 0) < 6x"20" else '0';
     xs_15 <= unsigned'(14 downto 0 => s14_x_reg(19)) & s14_x_reg(19 downto 15);  -- x >>> 15
     ys_15 <= unsigned'(14 downto 0 => s14_y_reg(19)) & s14_y_reg(19 downto 15);  -- y >>> 15
     s15_x <= s14_x_reg + choose(dir_15, not ys_15, ys_15) + (dir_15 xor s14_y_reg(14));
-    s15_y <= s14_y_reg + choose(dir_15, xs_15, not xs_15) + ((not dir_15) xor s14_x_reg(14));
-    s15_z <= s14_z_reg(4 downto 0) + choose(dir_15, not ATAN_15, ATAN_15) + dir_15;
+    s15_y <= s14_y_reg + choose(dir_y_15, xs_15, not xs_15) + ((not dir_y_15) xor s14_x_reg(14));
+    s15_z <= s14_z_reg(5 downto 0) + choose(dir_15, not ATAN_15, ATAN_15) + dir_15;
 
     p_s15_valid_reg : process (clk)
     begin
@@ -869,12 +899,13 @@ begin
 
     -- ---- stage 16: iteration 16 ----
     -- iteration 16: turn counter-clockwise when the remaining angle is >= 0
-    dir_16 <= '1' when s15_z_reg < 5x"10" else '0';
+    dir_16 <= '1' when s15_z_reg < 6x"20" else '0';
+    dir_y_16 <= '1' when s15_z_reg(4 downto 0) < 5x"10" else '0';
     xs_16 <= unsigned'(15 downto 0 => s15_x_reg(19)) & s15_x_reg(19 downto 16);  -- x >>> 16
     ys_16 <= unsigned'(15 downto 0 => s15_y_reg(19)) & s15_y_reg(19 downto 16);  -- y >>> 16
     s16_x <= s15_x_reg + choose(dir_16, not ys_16, ys_16) + (dir_16 xor s15_y_reg(15));
-    s16_y <= s15_y_reg + choose(dir_16, xs_16, not xs_16) + ((not dir_16) xor s15_x_reg(15));
-    s16_z <= s15_z_reg(3 downto 0) + choose(dir_16, not ATAN_16, ATAN_16) + dir_16;
+    s16_y <= s15_y_reg + choose(dir_y_16, xs_16, not xs_16) + ((not dir_y_16) xor s15_x_reg(15));
+    s16_z <= s15_z_reg(4 downto 0) + choose(dir_16, not ATAN_16, ATAN_16) + dir_16;
 
     p_s16_valid_reg : process (clk)
     begin
@@ -897,11 +928,12 @@ begin
 
     -- ---- stage 17: iteration 17 ----
     -- iteration 17: turn counter-clockwise when the remaining angle is >= 0
-    dir_17 <= '1' when s16_z_reg < 4x"8" else '0';
+    dir_17 <= '1' when s16_z_reg < 5x"10" else '0';
+    dir_y_17 <= '1' when s16_z_reg(3 downto 0) < 4x"8" else '0';
     xs_17 <= unsigned'(16 downto 0 => s16_x_reg(19)) & s16_x_reg(19 downto 17);  -- x >>> 17
     ys_17 <= unsigned'(16 downto 0 => s16_y_reg(19)) & s16_y_reg(19 downto 17);  -- y >>> 17
     s17_x <= s16_x_reg + choose(dir_17, not ys_17, ys_17) + (dir_17 xor s16_y_reg(16));
-    s17_y <= s16_y_reg + choose(dir_17, xs_17, not xs_17) + ((not dir_17) xor s16_x_reg(16));
+    s17_y <= s16_y_reg + choose(dir_y_17, xs_17, not xs_17) + ((not dir_y_17) xor s16_x_reg(16));
 
     -- ---- output register: the last iteration's values, held so that rounding and
     -- saturation have a clock of their own ----

@@ -79,6 +79,8 @@ void ddc_lo_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
     /* z narrows stage by stage: after iteration i it is within about +-atan(2^-i), so its top */
     /* bits are copies of its sign and are not formed (bounds over every input); each angle */
     /* constant has the width of the z its iteration forms. */
+    /* Where z feeds x and y adders it keeps one sign copy more: x's and z's direction */
+    /* reads the top bit, y's (dir_y_*) the one below, so each drives half the loads. */
 
     /* The pipeline moves at every clock: the sink takes every sample. */
 
@@ -111,7 +113,7 @@ void ddc_lo_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
     /* ---- stage 2: iteration 2 ---- */
     /* iteration 2: turn counter-clockwise when the remaining angle is >= 0 */
     const uint64_t dir_2 = (uint64_t)(s1_z_reg < UINT64_C(0x40000));
-    const uint64_t s2_z = (((s1_z_reg & UINT64_C(0x3ffff)) + (dir_2 ? ((~ATAN_2) & UINT64_C(0x3ffff)) : ATAN_2) + dir_2) & UINT64_C(0x3ffff));
+    const uint64_t s2_z = ((s1_z_reg + (dir_2 ? ((~ATAN_2) & UINT64_C(0x7ffff)) : ATAN_2) + dir_2) & UINT64_C(0x7ffff));
     /* x and y after iteration 2 depend only on the fold and the directions of iterations */
     /* 0 to 2 (z alone decides them): read from a table of the 16 cases, computed */
     /* with the iterations' own arithmetic, instead of adding. */
@@ -124,12 +126,13 @@ void ddc_lo_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
 
     /* ---- stage 3: iteration 3 ---- */
     /* iteration 3: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_3 = (uint64_t)(s2_z_reg < UINT64_C(0x20000));
+    const uint64_t dir_3 = (uint64_t)(s2_z_reg < UINT64_C(0x40000));
+    const uint64_t dir_y_3 = (uint64_t)((s2_z_reg & UINT64_C(0x3ffff)) < UINT64_C(0x20000));
     const uint64_t xs_3 = ((((s2_x_reg >> 19) ? UINT64_C(7) : UINT64_C(0)) << 17) | (s2_x_reg >> 3)); /* x >>> 3 */
     const uint64_t ys_3 = ((((s2_y_reg >> 19) ? UINT64_C(7) : UINT64_C(0)) << 17) | (s2_y_reg >> 3)); /* y >>> 3 */
     const uint64_t s3_x = ((s2_x_reg + (dir_3 ? ((~ys_3) & UINT64_C(0xfffff)) : ys_3) + (dir_3 ^ ((s2_y_reg >> 2) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s3_y = ((s2_y_reg + (dir_3 ? xs_3 : ((~xs_3) & UINT64_C(0xfffff))) + (((~dir_3) & UINT64_C(1)) ^ ((s2_x_reg >> 2) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s3_z = (((s2_z_reg & UINT64_C(0x1ffff)) + (dir_3 ? ((~ATAN_3) & UINT64_C(0x1ffff)) : ATAN_3) + dir_3) & UINT64_C(0x1ffff));
+    const uint64_t s3_y = ((s2_y_reg + (dir_y_3 ? xs_3 : ((~xs_3) & UINT64_C(0xfffff))) + (((~dir_y_3) & UINT64_C(1)) ^ ((s2_x_reg >> 2) & UINT64_C(1)))) & UINT64_C(0xfffff));
+    const uint64_t s3_z = (((s2_z_reg & UINT64_C(0x3ffff)) + (dir_3 ? ((~ATAN_3) & UINT64_C(0x3ffff)) : ATAN_3) + dir_3) & UINT64_C(0x3ffff));
 
     const uint64_t s3_x_reg = s3_x;  /* register, passed through */
     const uint64_t s3_y_reg = s3_y;  /* register, passed through */
@@ -137,12 +140,13 @@ void ddc_lo_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
 
     /* ---- stage 4: iteration 4 ---- */
     /* iteration 4: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_4 = (uint64_t)(s3_z_reg < UINT64_C(0x10000));
+    const uint64_t dir_4 = (uint64_t)(s3_z_reg < UINT64_C(0x20000));
+    const uint64_t dir_y_4 = (uint64_t)((s3_z_reg & UINT64_C(0x1ffff)) < UINT64_C(0x10000));
     const uint64_t xs_4 = ((((s3_x_reg >> 19) ? UINT64_C(0xf) : UINT64_C(0)) << 16) | (s3_x_reg >> 4)); /* x >>> 4 */
     const uint64_t ys_4 = ((((s3_y_reg >> 19) ? UINT64_C(0xf) : UINT64_C(0)) << 16) | (s3_y_reg >> 4)); /* y >>> 4 */
     const uint64_t s4_x = ((s3_x_reg + (dir_4 ? ((~ys_4) & UINT64_C(0xfffff)) : ys_4) + (dir_4 ^ ((s3_y_reg >> 3) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s4_y = ((s3_y_reg + (dir_4 ? xs_4 : ((~xs_4) & UINT64_C(0xfffff))) + (((~dir_4) & UINT64_C(1)) ^ ((s3_x_reg >> 3) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s4_z = (((s3_z_reg & UINT64_C(0xffff)) + (dir_4 ? ((~ATAN_4) & UINT64_C(0xffff)) : ATAN_4) + dir_4) & UINT64_C(0xffff));
+    const uint64_t s4_y = ((s3_y_reg + (dir_y_4 ? xs_4 : ((~xs_4) & UINT64_C(0xfffff))) + (((~dir_y_4) & UINT64_C(1)) ^ ((s3_x_reg >> 3) & UINT64_C(1)))) & UINT64_C(0xfffff));
+    const uint64_t s4_z = (((s3_z_reg & UINT64_C(0x1ffff)) + (dir_4 ? ((~ATAN_4) & UINT64_C(0x1ffff)) : ATAN_4) + dir_4) & UINT64_C(0x1ffff));
 
     const uint64_t s4_x_reg = s4_x;  /* register, passed through */
     const uint64_t s4_y_reg = s4_y;  /* register, passed through */
@@ -150,12 +154,13 @@ void ddc_lo_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
 
     /* ---- stage 5: iteration 5 ---- */
     /* iteration 5: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_5 = (uint64_t)(s4_z_reg < UINT64_C(0x8000));
+    const uint64_t dir_5 = (uint64_t)(s4_z_reg < UINT64_C(0x10000));
+    const uint64_t dir_y_5 = (uint64_t)((s4_z_reg & UINT64_C(0xffff)) < UINT64_C(0x8000));
     const uint64_t xs_5 = ((((s4_x_reg >> 19) ? UINT64_C(0x1f) : UINT64_C(0)) << 15) | (s4_x_reg >> 5)); /* x >>> 5 */
     const uint64_t ys_5 = ((((s4_y_reg >> 19) ? UINT64_C(0x1f) : UINT64_C(0)) << 15) | (s4_y_reg >> 5)); /* y >>> 5 */
     const uint64_t s5_x = ((s4_x_reg + (dir_5 ? ((~ys_5) & UINT64_C(0xfffff)) : ys_5) + (dir_5 ^ ((s4_y_reg >> 4) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s5_y = ((s4_y_reg + (dir_5 ? xs_5 : ((~xs_5) & UINT64_C(0xfffff))) + (((~dir_5) & UINT64_C(1)) ^ ((s4_x_reg >> 4) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s5_z = (((s4_z_reg & UINT64_C(0x7fff)) + (dir_5 ? ((~ATAN_5) & UINT64_C(0x7fff)) : ATAN_5) + dir_5) & UINT64_C(0x7fff));
+    const uint64_t s5_y = ((s4_y_reg + (dir_y_5 ? xs_5 : ((~xs_5) & UINT64_C(0xfffff))) + (((~dir_y_5) & UINT64_C(1)) ^ ((s4_x_reg >> 4) & UINT64_C(1)))) & UINT64_C(0xfffff));
+    const uint64_t s5_z = (((s4_z_reg & UINT64_C(0xffff)) + (dir_5 ? ((~ATAN_5) & UINT64_C(0xffff)) : ATAN_5) + dir_5) & UINT64_C(0xffff));
 
     const uint64_t s5_x_reg = s5_x;  /* register, passed through */
     const uint64_t s5_y_reg = s5_y;  /* register, passed through */
@@ -163,12 +168,13 @@ void ddc_lo_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
 
     /* ---- stage 6: iteration 6 ---- */
     /* iteration 6: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_6 = (uint64_t)(s5_z_reg < UINT64_C(0x4000));
+    const uint64_t dir_6 = (uint64_t)(s5_z_reg < UINT64_C(0x8000));
+    const uint64_t dir_y_6 = (uint64_t)((s5_z_reg & UINT64_C(0x7fff)) < UINT64_C(0x4000));
     const uint64_t xs_6 = ((((s5_x_reg >> 19) ? UINT64_C(0x3f) : UINT64_C(0)) << 14) | (s5_x_reg >> 6)); /* x >>> 6 */
     const uint64_t ys_6 = ((((s5_y_reg >> 19) ? UINT64_C(0x3f) : UINT64_C(0)) << 14) | (s5_y_reg >> 6)); /* y >>> 6 */
     const uint64_t s6_x = ((s5_x_reg + (dir_6 ? ((~ys_6) & UINT64_C(0xfffff)) : ys_6) + (dir_6 ^ ((s5_y_reg >> 5) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s6_y = ((s5_y_reg + (dir_6 ? xs_6 : ((~xs_6) & UINT64_C(0xfffff))) + (((~dir_6) & UINT64_C(1)) ^ ((s5_x_reg >> 5) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s6_z = (((s5_z_reg & UINT64_C(0x3fff)) + (dir_6 ? ((~ATAN_6) & UINT64_C(0x3fff)) : ATAN_6) + dir_6) & UINT64_C(0x3fff));
+    const uint64_t s6_y = ((s5_y_reg + (dir_y_6 ? xs_6 : ((~xs_6) & UINT64_C(0xfffff))) + (((~dir_y_6) & UINT64_C(1)) ^ ((s5_x_reg >> 5) & UINT64_C(1)))) & UINT64_C(0xfffff));
+    const uint64_t s6_z = (((s5_z_reg & UINT64_C(0x7fff)) + (dir_6 ? ((~ATAN_6) & UINT64_C(0x7fff)) : ATAN_6) + dir_6) & UINT64_C(0x7fff));
 
     const uint64_t s6_x_reg = s6_x;  /* register, passed through */
     const uint64_t s6_y_reg = s6_y;  /* register, passed through */
@@ -176,12 +182,13 @@ void ddc_lo_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
 
     /* ---- stage 7: iteration 7 ---- */
     /* iteration 7: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_7 = (uint64_t)(s6_z_reg < UINT64_C(0x2000));
+    const uint64_t dir_7 = (uint64_t)(s6_z_reg < UINT64_C(0x4000));
+    const uint64_t dir_y_7 = (uint64_t)((s6_z_reg & UINT64_C(0x3fff)) < UINT64_C(0x2000));
     const uint64_t xs_7 = ((((s6_x_reg >> 19) ? UINT64_C(0x7f) : UINT64_C(0)) << 13) | (s6_x_reg >> 7)); /* x >>> 7 */
     const uint64_t ys_7 = ((((s6_y_reg >> 19) ? UINT64_C(0x7f) : UINT64_C(0)) << 13) | (s6_y_reg >> 7)); /* y >>> 7 */
     const uint64_t s7_x = ((s6_x_reg + (dir_7 ? ((~ys_7) & UINT64_C(0xfffff)) : ys_7) + (dir_7 ^ ((s6_y_reg >> 6) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s7_y = ((s6_y_reg + (dir_7 ? xs_7 : ((~xs_7) & UINT64_C(0xfffff))) + (((~dir_7) & UINT64_C(1)) ^ ((s6_x_reg >> 6) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s7_z = (((s6_z_reg & UINT64_C(0x1fff)) + (dir_7 ? ((~ATAN_7) & UINT64_C(0x1fff)) : ATAN_7) + dir_7) & UINT64_C(0x1fff));
+    const uint64_t s7_y = ((s6_y_reg + (dir_y_7 ? xs_7 : ((~xs_7) & UINT64_C(0xfffff))) + (((~dir_y_7) & UINT64_C(1)) ^ ((s6_x_reg >> 6) & UINT64_C(1)))) & UINT64_C(0xfffff));
+    const uint64_t s7_z = (((s6_z_reg & UINT64_C(0x3fff)) + (dir_7 ? ((~ATAN_7) & UINT64_C(0x3fff)) : ATAN_7) + dir_7) & UINT64_C(0x3fff));
 
     const uint64_t s7_x_reg = s7_x;  /* register, passed through */
     const uint64_t s7_y_reg = s7_y;  /* register, passed through */
@@ -189,12 +196,13 @@ void ddc_lo_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
 
     /* ---- stage 8: iteration 8 ---- */
     /* iteration 8: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_8 = (uint64_t)(s7_z_reg < UINT64_C(0x1000));
+    const uint64_t dir_8 = (uint64_t)(s7_z_reg < UINT64_C(0x2000));
+    const uint64_t dir_y_8 = (uint64_t)((s7_z_reg & UINT64_C(0x1fff)) < UINT64_C(0x1000));
     const uint64_t xs_8 = ((((s7_x_reg >> 19) ? UINT64_C(0xff) : UINT64_C(0)) << 12) | (s7_x_reg >> 8)); /* x >>> 8 */
     const uint64_t ys_8 = ((((s7_y_reg >> 19) ? UINT64_C(0xff) : UINT64_C(0)) << 12) | (s7_y_reg >> 8)); /* y >>> 8 */
     const uint64_t s8_x = ((s7_x_reg + (dir_8 ? ((~ys_8) & UINT64_C(0xfffff)) : ys_8) + (dir_8 ^ ((s7_y_reg >> 7) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s8_y = ((s7_y_reg + (dir_8 ? xs_8 : ((~xs_8) & UINT64_C(0xfffff))) + (((~dir_8) & UINT64_C(1)) ^ ((s7_x_reg >> 7) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s8_z = (((s7_z_reg & UINT64_C(0xfff)) + (dir_8 ? ((~ATAN_8) & UINT64_C(0xfff)) : ATAN_8) + dir_8) & UINT64_C(0xfff));
+    const uint64_t s8_y = ((s7_y_reg + (dir_y_8 ? xs_8 : ((~xs_8) & UINT64_C(0xfffff))) + (((~dir_y_8) & UINT64_C(1)) ^ ((s7_x_reg >> 7) & UINT64_C(1)))) & UINT64_C(0xfffff));
+    const uint64_t s8_z = (((s7_z_reg & UINT64_C(0x1fff)) + (dir_8 ? ((~ATAN_8) & UINT64_C(0x1fff)) : ATAN_8) + dir_8) & UINT64_C(0x1fff));
 
     const uint64_t s8_x_reg = s8_x;  /* register, passed through */
     const uint64_t s8_y_reg = s8_y;  /* register, passed through */
@@ -202,12 +210,13 @@ void ddc_lo_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
 
     /* ---- stage 9: iteration 9 ---- */
     /* iteration 9: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_9 = (uint64_t)(s8_z_reg < UINT64_C(0x800));
+    const uint64_t dir_9 = (uint64_t)(s8_z_reg < UINT64_C(0x1000));
+    const uint64_t dir_y_9 = (uint64_t)((s8_z_reg & UINT64_C(0xfff)) < UINT64_C(0x800));
     const uint64_t xs_9 = ((((s8_x_reg >> 19) ? UINT64_C(0x1ff) : UINT64_C(0)) << 11) | (s8_x_reg >> 9)); /* x >>> 9 */
     const uint64_t ys_9 = ((((s8_y_reg >> 19) ? UINT64_C(0x1ff) : UINT64_C(0)) << 11) | (s8_y_reg >> 9)); /* y >>> 9 */
     const uint64_t s9_x = ((s8_x_reg + (dir_9 ? ((~ys_9) & UINT64_C(0xfffff)) : ys_9) + (dir_9 ^ ((s8_y_reg >> 8) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s9_y = ((s8_y_reg + (dir_9 ? xs_9 : ((~xs_9) & UINT64_C(0xfffff))) + (((~dir_9) & UINT64_C(1)) ^ ((s8_x_reg >> 8) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s9_z = (((s8_z_reg & UINT64_C(0x7ff)) + (dir_9 ? ((~ATAN_9) & UINT64_C(0x7ff)) : ATAN_9) + dir_9) & UINT64_C(0x7ff));
+    const uint64_t s9_y = ((s8_y_reg + (dir_y_9 ? xs_9 : ((~xs_9) & UINT64_C(0xfffff))) + (((~dir_y_9) & UINT64_C(1)) ^ ((s8_x_reg >> 8) & UINT64_C(1)))) & UINT64_C(0xfffff));
+    const uint64_t s9_z = (((s8_z_reg & UINT64_C(0xfff)) + (dir_9 ? ((~ATAN_9) & UINT64_C(0xfff)) : ATAN_9) + dir_9) & UINT64_C(0xfff));
 
     const uint64_t s9_x_reg = s9_x;  /* register, passed through */
     const uint64_t s9_y_reg = s9_y;  /* register, passed through */
@@ -215,12 +224,13 @@ void ddc_lo_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
 
     /* ---- stage 10: iteration 10 ---- */
     /* iteration 10: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_10 = (uint64_t)(s9_z_reg < UINT64_C(0x400));
+    const uint64_t dir_10 = (uint64_t)(s9_z_reg < UINT64_C(0x800));
+    const uint64_t dir_y_10 = (uint64_t)((s9_z_reg & UINT64_C(0x7ff)) < UINT64_C(0x400));
     const uint64_t xs_10 = ((((s9_x_reg >> 19) ? UINT64_C(0x3ff) : UINT64_C(0)) << 10) | (s9_x_reg >> 10)); /* x >>> 10 */
     const uint64_t ys_10 = ((((s9_y_reg >> 19) ? UINT64_C(0x3ff) : UINT64_C(0)) << 10) | (s9_y_reg >> 10)); /* y >>> 10 */
     const uint64_t s10_x = ((s9_x_reg + (dir_10 ? ((~ys_10) & UINT64_C(0xfffff)) : ys_10) + (dir_10 ^ ((s9_y_reg >> 9) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s10_y = ((s9_y_reg + (dir_10 ? xs_10 : ((~xs_10) & UINT64_C(0xfffff))) + (((~dir_10) & UINT64_C(1)) ^ ((s9_x_reg >> 9) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s10_z = (((s9_z_reg & UINT64_C(0x3ff)) + (dir_10 ? ((~ATAN_10) & UINT64_C(0x3ff)) : ATAN_10) + dir_10) & UINT64_C(0x3ff));
+    const uint64_t s10_y = ((s9_y_reg + (dir_y_10 ? xs_10 : ((~xs_10) & UINT64_C(0xfffff))) + (((~dir_y_10) & UINT64_C(1)) ^ ((s9_x_reg >> 9) & UINT64_C(1)))) & UINT64_C(0xfffff));
+    const uint64_t s10_z = (((s9_z_reg & UINT64_C(0x7ff)) + (dir_10 ? ((~ATAN_10) & UINT64_C(0x7ff)) : ATAN_10) + dir_10) & UINT64_C(0x7ff));
 
     const uint64_t s10_x_reg = s10_x;  /* register, passed through */
     const uint64_t s10_y_reg = s10_y;  /* register, passed through */
@@ -228,12 +238,13 @@ void ddc_lo_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
 
     /* ---- stage 11: iteration 11 ---- */
     /* iteration 11: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_11 = (uint64_t)(s10_z_reg < UINT64_C(0x200));
+    const uint64_t dir_11 = (uint64_t)(s10_z_reg < UINT64_C(0x400));
+    const uint64_t dir_y_11 = (uint64_t)((s10_z_reg & UINT64_C(0x3ff)) < UINT64_C(0x200));
     const uint64_t xs_11 = ((((s10_x_reg >> 19) ? UINT64_C(0x7ff) : UINT64_C(0)) << 9) | (s10_x_reg >> 11)); /* x >>> 11 */
     const uint64_t ys_11 = ((((s10_y_reg >> 19) ? UINT64_C(0x7ff) : UINT64_C(0)) << 9) | (s10_y_reg >> 11)); /* y >>> 11 */
     const uint64_t s11_x = ((s10_x_reg + (dir_11 ? ((~ys_11) & UINT64_C(0xfffff)) : ys_11) + (dir_11 ^ ((s10_y_reg >> 10) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s11_y = ((s10_y_reg + (dir_11 ? xs_11 : ((~xs_11) & UINT64_C(0xfffff))) + (((~dir_11) & UINT64_C(1)) ^ ((s10_x_reg >> 10) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s11_z = (((s10_z_reg & UINT64_C(0x1ff)) + (dir_11 ? ((~ATAN_11) & UINT64_C(0x1ff)) : ATAN_11) + dir_11) & UINT64_C(0x1ff));
+    const uint64_t s11_y = ((s10_y_reg + (dir_y_11 ? xs_11 : ((~xs_11) & UINT64_C(0xfffff))) + (((~dir_y_11) & UINT64_C(1)) ^ ((s10_x_reg >> 10) & UINT64_C(1)))) & UINT64_C(0xfffff));
+    const uint64_t s11_z = (((s10_z_reg & UINT64_C(0x3ff)) + (dir_11 ? ((~ATAN_11) & UINT64_C(0x3ff)) : ATAN_11) + dir_11) & UINT64_C(0x3ff));
 
     const uint64_t s11_x_reg = s11_x;  /* register, passed through */
     const uint64_t s11_y_reg = s11_y;  /* register, passed through */
@@ -241,12 +252,13 @@ void ddc_lo_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
 
     /* ---- stage 12: iteration 12 ---- */
     /* iteration 12: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_12 = (uint64_t)(s11_z_reg < UINT64_C(0x100));
+    const uint64_t dir_12 = (uint64_t)(s11_z_reg < UINT64_C(0x200));
+    const uint64_t dir_y_12 = (uint64_t)((s11_z_reg & UINT64_C(0x1ff)) < UINT64_C(0x100));
     const uint64_t xs_12 = ((((s11_x_reg >> 19) ? UINT64_C(0xfff) : UINT64_C(0)) << 8) | (s11_x_reg >> 12)); /* x >>> 12 */
     const uint64_t ys_12 = ((((s11_y_reg >> 19) ? UINT64_C(0xfff) : UINT64_C(0)) << 8) | (s11_y_reg >> 12)); /* y >>> 12 */
     const uint64_t s12_x = ((s11_x_reg + (dir_12 ? ((~ys_12) & UINT64_C(0xfffff)) : ys_12) + (dir_12 ^ ((s11_y_reg >> 11) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s12_y = ((s11_y_reg + (dir_12 ? xs_12 : ((~xs_12) & UINT64_C(0xfffff))) + (((~dir_12) & UINT64_C(1)) ^ ((s11_x_reg >> 11) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s12_z = (((s11_z_reg & UINT64_C(0xff)) + (dir_12 ? ((~ATAN_12) & UINT64_C(0xff)) : ATAN_12) + dir_12) & UINT64_C(0xff));
+    const uint64_t s12_y = ((s11_y_reg + (dir_y_12 ? xs_12 : ((~xs_12) & UINT64_C(0xfffff))) + (((~dir_y_12) & UINT64_C(1)) ^ ((s11_x_reg >> 11) & UINT64_C(1)))) & UINT64_C(0xfffff));
+    const uint64_t s12_z = (((s11_z_reg & UINT64_C(0x1ff)) + (dir_12 ? ((~ATAN_12) & UINT64_C(0x1ff)) : ATAN_12) + dir_12) & UINT64_C(0x1ff));
 
     const uint64_t s12_x_reg = s12_x;  /* register, passed through */
     const uint64_t s12_y_reg = s12_y;  /* register, passed through */
@@ -254,12 +266,13 @@ void ddc_lo_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
 
     /* ---- stage 13: iteration 13 ---- */
     /* iteration 13: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_13 = (uint64_t)(s12_z_reg < UINT64_C(0x80));
+    const uint64_t dir_13 = (uint64_t)(s12_z_reg < UINT64_C(0x100));
+    const uint64_t dir_y_13 = (uint64_t)((s12_z_reg & UINT64_C(0xff)) < UINT64_C(0x80));
     const uint64_t xs_13 = ((((s12_x_reg >> 19) ? UINT64_C(0x1fff) : UINT64_C(0)) << 7) | (s12_x_reg >> 13)); /* x >>> 13 */
     const uint64_t ys_13 = ((((s12_y_reg >> 19) ? UINT64_C(0x1fff) : UINT64_C(0)) << 7) | (s12_y_reg >> 13)); /* y >>> 13 */
     const uint64_t s13_x = ((s12_x_reg + (dir_13 ? ((~ys_13) & UINT64_C(0xfffff)) : ys_13) + (dir_13 ^ ((s12_y_reg >> 12) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s13_y = ((s12_y_reg + (dir_13 ? xs_13 : ((~xs_13) & UINT64_C(0xfffff))) + (((~dir_13) & UINT64_C(1)) ^ ((s12_x_reg >> 12) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s13_z = (((s12_z_reg & UINT64_C(0x7f)) + (dir_13 ? ((~ATAN_13) & UINT64_C(0x7f)) : ATAN_13) + dir_13) & UINT64_C(0x7f));
+    const uint64_t s13_y = ((s12_y_reg + (dir_y_13 ? xs_13 : ((~xs_13) & UINT64_C(0xfffff))) + (((~dir_y_13) & UINT64_C(1)) ^ ((s12_x_reg >> 12) & UINT64_C(1)))) & UINT64_C(0xfffff));
+    const uint64_t s13_z = (((s12_z_reg & UINT64_C(0xff)) + (dir_13 ? ((~ATAN_13) & UINT64_C(0xff)) : ATAN_13) + dir_13) & UINT64_C(0xff));
 
     const uint64_t s13_x_reg = s13_x;  /* register, passed through */
     const uint64_t s13_y_reg = s13_y;  /* register, passed through */
@@ -267,12 +280,13 @@ void ddc_lo_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
 
     /* ---- stage 14: iteration 14 ---- */
     /* iteration 14: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_14 = (uint64_t)(s13_z_reg < UINT64_C(0x40));
+    const uint64_t dir_14 = (uint64_t)(s13_z_reg < UINT64_C(0x80));
+    const uint64_t dir_y_14 = (uint64_t)((s13_z_reg & UINT64_C(0x7f)) < UINT64_C(0x40));
     const uint64_t xs_14 = ((((s13_x_reg >> 19) ? UINT64_C(0x3fff) : UINT64_C(0)) << 6) | (s13_x_reg >> 14)); /* x >>> 14 */
     const uint64_t ys_14 = ((((s13_y_reg >> 19) ? UINT64_C(0x3fff) : UINT64_C(0)) << 6) | (s13_y_reg >> 14)); /* y >>> 14 */
     const uint64_t s14_x = ((s13_x_reg + (dir_14 ? ((~ys_14) & UINT64_C(0xfffff)) : ys_14) + (dir_14 ^ ((s13_y_reg >> 13) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s14_y = ((s13_y_reg + (dir_14 ? xs_14 : ((~xs_14) & UINT64_C(0xfffff))) + (((~dir_14) & UINT64_C(1)) ^ ((s13_x_reg >> 13) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s14_z = (((s13_z_reg & UINT64_C(0x3f)) + (dir_14 ? ((~ATAN_14) & UINT64_C(0x3f)) : ATAN_14) + dir_14) & UINT64_C(0x3f));
+    const uint64_t s14_y = ((s13_y_reg + (dir_y_14 ? xs_14 : ((~xs_14) & UINT64_C(0xfffff))) + (((~dir_y_14) & UINT64_C(1)) ^ ((s13_x_reg >> 13) & UINT64_C(1)))) & UINT64_C(0xfffff));
+    const uint64_t s14_z = (((s13_z_reg & UINT64_C(0x7f)) + (dir_14 ? ((~ATAN_14) & UINT64_C(0x7f)) : ATAN_14) + dir_14) & UINT64_C(0x7f));
 
     const uint64_t s14_x_reg = s14_x;  /* register, passed through */
     const uint64_t s14_y_reg = s14_y;  /* register, passed through */
@@ -280,12 +294,13 @@ void ddc_lo_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
 
     /* ---- stage 15: iteration 15 ---- */
     /* iteration 15: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_15 = (uint64_t)(s14_z_reg < UINT64_C(0x20));
+    const uint64_t dir_15 = (uint64_t)(s14_z_reg < UINT64_C(0x40));
+    const uint64_t dir_y_15 = (uint64_t)((s14_z_reg & UINT64_C(0x3f)) < UINT64_C(0x20));
     const uint64_t xs_15 = ((((s14_x_reg >> 19) ? UINT64_C(0x7fff) : UINT64_C(0)) << 5) | (s14_x_reg >> 15)); /* x >>> 15 */
     const uint64_t ys_15 = ((((s14_y_reg >> 19) ? UINT64_C(0x7fff) : UINT64_C(0)) << 5) | (s14_y_reg >> 15)); /* y >>> 15 */
     const uint64_t s15_x = ((s14_x_reg + (dir_15 ? ((~ys_15) & UINT64_C(0xfffff)) : ys_15) + (dir_15 ^ ((s14_y_reg >> 14) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s15_y = ((s14_y_reg + (dir_15 ? xs_15 : ((~xs_15) & UINT64_C(0xfffff))) + (((~dir_15) & UINT64_C(1)) ^ ((s14_x_reg >> 14) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s15_z = (((s14_z_reg & UINT64_C(0x1f)) + (dir_15 ? ((~ATAN_15) & UINT64_C(0x1f)) : ATAN_15) + dir_15) & UINT64_C(0x1f));
+    const uint64_t s15_y = ((s14_y_reg + (dir_y_15 ? xs_15 : ((~xs_15) & UINT64_C(0xfffff))) + (((~dir_y_15) & UINT64_C(1)) ^ ((s14_x_reg >> 14) & UINT64_C(1)))) & UINT64_C(0xfffff));
+    const uint64_t s15_z = (((s14_z_reg & UINT64_C(0x3f)) + (dir_15 ? ((~ATAN_15) & UINT64_C(0x3f)) : ATAN_15) + dir_15) & UINT64_C(0x3f));
 
     const uint64_t s15_x_reg = s15_x;  /* register, passed through */
     const uint64_t s15_y_reg = s15_y;  /* register, passed through */
@@ -293,12 +308,13 @@ void ddc_lo_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
 
     /* ---- stage 16: iteration 16 ---- */
     /* iteration 16: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_16 = (uint64_t)(s15_z_reg < UINT64_C(0x10));
+    const uint64_t dir_16 = (uint64_t)(s15_z_reg < UINT64_C(0x20));
+    const uint64_t dir_y_16 = (uint64_t)((s15_z_reg & UINT64_C(0x1f)) < UINT64_C(0x10));
     const uint64_t xs_16 = ((((s15_x_reg >> 19) ? UINT64_C(0xffff) : UINT64_C(0)) << 4) | (s15_x_reg >> 16)); /* x >>> 16 */
     const uint64_t ys_16 = ((((s15_y_reg >> 19) ? UINT64_C(0xffff) : UINT64_C(0)) << 4) | (s15_y_reg >> 16)); /* y >>> 16 */
     const uint64_t s16_x = ((s15_x_reg + (dir_16 ? ((~ys_16) & UINT64_C(0xfffff)) : ys_16) + (dir_16 ^ ((s15_y_reg >> 15) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s16_y = ((s15_y_reg + (dir_16 ? xs_16 : ((~xs_16) & UINT64_C(0xfffff))) + (((~dir_16) & UINT64_C(1)) ^ ((s15_x_reg >> 15) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s16_z = (((s15_z_reg & UINT64_C(0xf)) + (dir_16 ? ((~ATAN_16) & UINT64_C(0xf)) : ATAN_16) + dir_16) & UINT64_C(0xf));
+    const uint64_t s16_y = ((s15_y_reg + (dir_y_16 ? xs_16 : ((~xs_16) & UINT64_C(0xfffff))) + (((~dir_y_16) & UINT64_C(1)) ^ ((s15_x_reg >> 15) & UINT64_C(1)))) & UINT64_C(0xfffff));
+    const uint64_t s16_z = (((s15_z_reg & UINT64_C(0x1f)) + (dir_16 ? ((~ATAN_16) & UINT64_C(0x1f)) : ATAN_16) + dir_16) & UINT64_C(0x1f));
 
     const uint64_t s16_x_reg = s16_x;  /* register, passed through */
     const uint64_t s16_y_reg = s16_y;  /* register, passed through */
@@ -306,11 +322,12 @@ void ddc_lo_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_sin)
 
     /* ---- stage 17: iteration 17 ---- */
     /* iteration 17: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_17 = (uint64_t)(s16_z_reg < UINT64_C(8));
+    const uint64_t dir_17 = (uint64_t)(s16_z_reg < UINT64_C(0x10));
+    const uint64_t dir_y_17 = (uint64_t)((s16_z_reg & UINT64_C(0xf)) < UINT64_C(8));
     const uint64_t xs_17 = ((((s16_x_reg >> 19) ? UINT64_C(0x1ffff) : UINT64_C(0)) << 3) | (s16_x_reg >> 17)); /* x >>> 17 */
     const uint64_t ys_17 = ((((s16_y_reg >> 19) ? UINT64_C(0x1ffff) : UINT64_C(0)) << 3) | (s16_y_reg >> 17)); /* y >>> 17 */
     const uint64_t s17_x = ((s16_x_reg + (dir_17 ? ((~ys_17) & UINT64_C(0xfffff)) : ys_17) + (dir_17 ^ ((s16_y_reg >> 16) & UINT64_C(1)))) & UINT64_C(0xfffff));
-    const uint64_t s17_y = ((s16_y_reg + (dir_17 ? xs_17 : ((~xs_17) & UINT64_C(0xfffff))) + (((~dir_17) & UINT64_C(1)) ^ ((s16_x_reg >> 16) & UINT64_C(1)))) & UINT64_C(0xfffff));
+    const uint64_t s17_y = ((s16_y_reg + (dir_y_17 ? xs_17 : ((~xs_17) & UINT64_C(0xfffff))) + (((~dir_y_17) & UINT64_C(1)) ^ ((s16_x_reg >> 16) & UINT64_C(1)))) & UINT64_C(0xfffff));
 
     const uint64_t o_x_reg = s17_x;  /* register, passed through */
     const uint64_t o_y_reg = s17_y;  /* register, passed through */

@@ -93,26 +93,28 @@ void fft1024_twiddle_model(uint16_t in_angle, int32_t *out_cos, int32_t *out_sin
     const uint64_t z_2 = ((z_1 + (dir_1 ? ((~ATAN_1) & UINT64_C(0x1fffff)) : ATAN_1) + dir_1) & UINT64_C(0x1fffff));
     /* iteration 2: turn counter-clockwise when the remaining angle is >= 0 */
     const uint64_t dir_2 = (uint64_t)(z_2 < UINT64_C(0x100000));
-    const uint64_t z_3 = (((z_2 & UINT64_C(0xfffff)) + (dir_2 ? ((~ATAN_2) & UINT64_C(0xfffff)) : ATAN_2) + dir_2) & UINT64_C(0xfffff));
+    const uint64_t z_3 = ((z_2 + (dir_2 ? ((~ATAN_2) & UINT64_C(0x1fffff)) : ATAN_2) + dir_2) & UINT64_C(0x1fffff));
     /* x and y after iteration 2 depend only on the fold and the directions of iterations */
     /* 0 to 2 (z alone decides them): read from a table of the 16 cases, computed */
     /* with the iterations' own arithmetic, instead of adding. */
     const uint64_t x_3 = (dir_2 ? (dir_1 ? (dir_0 ? (in_fold ? UINT64_C(0x1ec917) : UINT64_C(0x136e9)) : (in_fold ? UINT64_C(0x103628) : UINT64_C(0xfc9d8))) : (dir_0 ? (in_fold ? UINT64_C(0x12a3fa) : UINT64_C(0xd5c06)) : (in_fold ? UINT64_C(0x177f9f) : UINT64_C(0x88061)))) : (dir_1 ? (dir_0 ? (in_fold ? UINT64_C(0x177f9f) : UINT64_C(0x88061)) : (in_fold ? UINT64_C(0x12a3fa) : UINT64_C(0xd5c06))) : (dir_0 ? (in_fold ? UINT64_C(0x103628) : UINT64_C(0xfc9d8)) : (in_fold ? UINT64_C(0x1ec917) : UINT64_C(0x136e9)))));
     const uint64_t y_3 = (dir_2 ? (dir_1 ? (dir_0 ? (in_fold ? UINT64_C(0x103628) : UINT64_C(0xfc9d8)) : (in_fold ? UINT64_C(0x136e9) : UINT64_C(0x1ec917))) : (dir_0 ? (in_fold ? UINT64_C(0x177f9f) : UINT64_C(0x88061)) : (in_fold ? UINT64_C(0xd5c06) : UINT64_C(0x12a3fa)))) : (dir_1 ? (dir_0 ? (in_fold ? UINT64_C(0x12a3fa) : UINT64_C(0xd5c06)) : (in_fold ? UINT64_C(0x88061) : UINT64_C(0x177f9f))) : (dir_0 ? (in_fold ? UINT64_C(0x1ec917) : UINT64_C(0x136e9)) : (in_fold ? UINT64_C(0xfc9d8) : UINT64_C(0x103628)))));
     /* iteration 3: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_3 = (uint64_t)(z_3 < UINT64_C(0x80000));
+    const uint64_t dir_3 = (uint64_t)(z_3 < UINT64_C(0x100000));
+    const uint64_t dir_y_3 = (uint64_t)((z_3 & UINT64_C(0xfffff)) < UINT64_C(0x80000));
     const uint64_t xs_3 = ((((x_3 >> 20) ? UINT64_C(7) : UINT64_C(0)) << 18) | (x_3 >> 3)); /* x >>> 3 */
     const uint64_t ys_3 = ((((y_3 >> 20) ? UINT64_C(7) : UINT64_C(0)) << 18) | (y_3 >> 3)); /* y >>> 3 */
     const uint64_t x_4 = ((x_3 + (dir_3 ? ((~ys_3) & UINT64_C(0x1fffff)) : ys_3) + (dir_3 ^ ((y_3 >> 2) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t y_4 = ((y_3 + (dir_3 ? xs_3 : ((~xs_3) & UINT64_C(0x1fffff))) + (((~dir_3) & UINT64_C(1)) ^ ((x_3 >> 2) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t z_4 = (((z_3 & UINT64_C(0x7ffff)) + (dir_3 ? ((~ATAN_3) & UINT64_C(0x7ffff)) : ATAN_3) + dir_3) & UINT64_C(0x7ffff));
+    const uint64_t y_4 = ((y_3 + (dir_y_3 ? xs_3 : ((~xs_3) & UINT64_C(0x1fffff))) + (((~dir_y_3) & UINT64_C(1)) ^ ((x_3 >> 2) & UINT64_C(1)))) & UINT64_C(0x1fffff));
+    const uint64_t z_4 = (((z_3 & UINT64_C(0xfffff)) + (dir_3 ? ((~ATAN_3) & UINT64_C(0xfffff)) : ATAN_3) + dir_3) & UINT64_C(0xfffff));
     /* iteration 4: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_4 = (uint64_t)(z_4 < UINT64_C(0x40000));
+    const uint64_t dir_4 = (uint64_t)(z_4 < UINT64_C(0x80000));
+    const uint64_t dir_y_4 = (uint64_t)((z_4 & UINT64_C(0x7ffff)) < UINT64_C(0x40000));
     const uint64_t xs_4 = ((((x_4 >> 20) ? UINT64_C(0xf) : UINT64_C(0)) << 17) | (x_4 >> 4)); /* x >>> 4 */
     const uint64_t ys_4 = ((((y_4 >> 20) ? UINT64_C(0xf) : UINT64_C(0)) << 17) | (y_4 >> 4)); /* y >>> 4 */
     const uint64_t s0_x = ((x_4 + (dir_4 ? ((~ys_4) & UINT64_C(0x1fffff)) : ys_4) + (dir_4 ^ ((y_4 >> 3) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t s0_y = ((y_4 + (dir_4 ? xs_4 : ((~xs_4) & UINT64_C(0x1fffff))) + (((~dir_4) & UINT64_C(1)) ^ ((x_4 >> 3) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t s0_z = (((z_4 & UINT64_C(0x3ffff)) + (dir_4 ? ((~ATAN_4) & UINT64_C(0x3ffff)) : ATAN_4) + dir_4) & UINT64_C(0x3ffff));
+    const uint64_t s0_y = ((y_4 + (dir_y_4 ? xs_4 : ((~xs_4) & UINT64_C(0x1fffff))) + (((~dir_y_4) & UINT64_C(1)) ^ ((x_4 >> 3) & UINT64_C(1)))) & UINT64_C(0x1fffff));
+    const uint64_t s0_z = (((z_4 & UINT64_C(0x7ffff)) + (dir_4 ? ((~ATAN_4) & UINT64_C(0x7ffff)) : ATAN_4) + dir_4) & UINT64_C(0x7ffff));
 
     const uint64_t s0_valid_reg = in_valid;  /* register, passed through */
 
@@ -122,40 +124,45 @@ void fft1024_twiddle_model(uint16_t in_angle, int32_t *out_cos, int32_t *out_sin
 
     /* ---- stage 1: iterations 5 to 9 ---- */
     /* iteration 5: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_5 = (uint64_t)(s0_z_reg < UINT64_C(0x20000));
+    const uint64_t dir_5 = (uint64_t)(s0_z_reg < UINT64_C(0x40000));
+    const uint64_t dir_y_5 = (uint64_t)((s0_z_reg & UINT64_C(0x3ffff)) < UINT64_C(0x20000));
     const uint64_t xs_5 = ((((s0_x_reg >> 20) ? UINT64_C(0x1f) : UINT64_C(0)) << 16) | (s0_x_reg >> 5)); /* x >>> 5 */
     const uint64_t ys_5 = ((((s0_y_reg >> 20) ? UINT64_C(0x1f) : UINT64_C(0)) << 16) | (s0_y_reg >> 5)); /* y >>> 5 */
     const uint64_t x_6 = ((s0_x_reg + (dir_5 ? ((~ys_5) & UINT64_C(0x1fffff)) : ys_5) + (dir_5 ^ ((s0_y_reg >> 4) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t y_6 = ((s0_y_reg + (dir_5 ? xs_5 : ((~xs_5) & UINT64_C(0x1fffff))) + (((~dir_5) & UINT64_C(1)) ^ ((s0_x_reg >> 4) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t z_6 = (((s0_z_reg & UINT64_C(0x1ffff)) + (dir_5 ? ((~ATAN_5) & UINT64_C(0x1ffff)) : ATAN_5) + dir_5) & UINT64_C(0x1ffff));
+    const uint64_t y_6 = ((s0_y_reg + (dir_y_5 ? xs_5 : ((~xs_5) & UINT64_C(0x1fffff))) + (((~dir_y_5) & UINT64_C(1)) ^ ((s0_x_reg >> 4) & UINT64_C(1)))) & UINT64_C(0x1fffff));
+    const uint64_t z_6 = (((s0_z_reg & UINT64_C(0x3ffff)) + (dir_5 ? ((~ATAN_5) & UINT64_C(0x3ffff)) : ATAN_5) + dir_5) & UINT64_C(0x3ffff));
     /* iteration 6: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_6 = (uint64_t)(z_6 < UINT64_C(0x10000));
+    const uint64_t dir_6 = (uint64_t)(z_6 < UINT64_C(0x20000));
+    const uint64_t dir_y_6 = (uint64_t)((z_6 & UINT64_C(0x1ffff)) < UINT64_C(0x10000));
     const uint64_t xs_6 = ((((x_6 >> 20) ? UINT64_C(0x3f) : UINT64_C(0)) << 15) | (x_6 >> 6)); /* x >>> 6 */
     const uint64_t ys_6 = ((((y_6 >> 20) ? UINT64_C(0x3f) : UINT64_C(0)) << 15) | (y_6 >> 6)); /* y >>> 6 */
     const uint64_t x_7 = ((x_6 + (dir_6 ? ((~ys_6) & UINT64_C(0x1fffff)) : ys_6) + (dir_6 ^ ((y_6 >> 5) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t y_7 = ((y_6 + (dir_6 ? xs_6 : ((~xs_6) & UINT64_C(0x1fffff))) + (((~dir_6) & UINT64_C(1)) ^ ((x_6 >> 5) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t z_7 = (((z_6 & UINT64_C(0xffff)) + (dir_6 ? ((~ATAN_6) & UINT64_C(0xffff)) : ATAN_6) + dir_6) & UINT64_C(0xffff));
+    const uint64_t y_7 = ((y_6 + (dir_y_6 ? xs_6 : ((~xs_6) & UINT64_C(0x1fffff))) + (((~dir_y_6) & UINT64_C(1)) ^ ((x_6 >> 5) & UINT64_C(1)))) & UINT64_C(0x1fffff));
+    const uint64_t z_7 = (((z_6 & UINT64_C(0x1ffff)) + (dir_6 ? ((~ATAN_6) & UINT64_C(0x1ffff)) : ATAN_6) + dir_6) & UINT64_C(0x1ffff));
     /* iteration 7: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_7 = (uint64_t)(z_7 < UINT64_C(0x8000));
+    const uint64_t dir_7 = (uint64_t)(z_7 < UINT64_C(0x10000));
+    const uint64_t dir_y_7 = (uint64_t)((z_7 & UINT64_C(0xffff)) < UINT64_C(0x8000));
     const uint64_t xs_7 = ((((x_7 >> 20) ? UINT64_C(0x7f) : UINT64_C(0)) << 14) | (x_7 >> 7)); /* x >>> 7 */
     const uint64_t ys_7 = ((((y_7 >> 20) ? UINT64_C(0x7f) : UINT64_C(0)) << 14) | (y_7 >> 7)); /* y >>> 7 */
     const uint64_t x_8 = ((x_7 + (dir_7 ? ((~ys_7) & UINT64_C(0x1fffff)) : ys_7) + (dir_7 ^ ((y_7 >> 6) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t y_8 = ((y_7 + (dir_7 ? xs_7 : ((~xs_7) & UINT64_C(0x1fffff))) + (((~dir_7) & UINT64_C(1)) ^ ((x_7 >> 6) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t z_8 = (((z_7 & UINT64_C(0x7fff)) + (dir_7 ? ((~ATAN_7) & UINT64_C(0x7fff)) : ATAN_7) + dir_7) & UINT64_C(0x7fff));
+    const uint64_t y_8 = ((y_7 + (dir_y_7 ? xs_7 : ((~xs_7) & UINT64_C(0x1fffff))) + (((~dir_y_7) & UINT64_C(1)) ^ ((x_7 >> 6) & UINT64_C(1)))) & UINT64_C(0x1fffff));
+    const uint64_t z_8 = (((z_7 & UINT64_C(0xffff)) + (dir_7 ? ((~ATAN_7) & UINT64_C(0xffff)) : ATAN_7) + dir_7) & UINT64_C(0xffff));
     /* iteration 8: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_8 = (uint64_t)(z_8 < UINT64_C(0x4000));
+    const uint64_t dir_8 = (uint64_t)(z_8 < UINT64_C(0x8000));
+    const uint64_t dir_y_8 = (uint64_t)((z_8 & UINT64_C(0x7fff)) < UINT64_C(0x4000));
     const uint64_t xs_8 = ((((x_8 >> 20) ? UINT64_C(0xff) : UINT64_C(0)) << 13) | (x_8 >> 8)); /* x >>> 8 */
     const uint64_t ys_8 = ((((y_8 >> 20) ? UINT64_C(0xff) : UINT64_C(0)) << 13) | (y_8 >> 8)); /* y >>> 8 */
     const uint64_t x_9 = ((x_8 + (dir_8 ? ((~ys_8) & UINT64_C(0x1fffff)) : ys_8) + (dir_8 ^ ((y_8 >> 7) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t y_9 = ((y_8 + (dir_8 ? xs_8 : ((~xs_8) & UINT64_C(0x1fffff))) + (((~dir_8) & UINT64_C(1)) ^ ((x_8 >> 7) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t z_9 = (((z_8 & UINT64_C(0x3fff)) + (dir_8 ? ((~ATAN_8) & UINT64_C(0x3fff)) : ATAN_8) + dir_8) & UINT64_C(0x3fff));
+    const uint64_t y_9 = ((y_8 + (dir_y_8 ? xs_8 : ((~xs_8) & UINT64_C(0x1fffff))) + (((~dir_y_8) & UINT64_C(1)) ^ ((x_8 >> 7) & UINT64_C(1)))) & UINT64_C(0x1fffff));
+    const uint64_t z_9 = (((z_8 & UINT64_C(0x7fff)) + (dir_8 ? ((~ATAN_8) & UINT64_C(0x7fff)) : ATAN_8) + dir_8) & UINT64_C(0x7fff));
     /* iteration 9: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_9 = (uint64_t)(z_9 < UINT64_C(0x2000));
+    const uint64_t dir_9 = (uint64_t)(z_9 < UINT64_C(0x4000));
+    const uint64_t dir_y_9 = (uint64_t)((z_9 & UINT64_C(0x3fff)) < UINT64_C(0x2000));
     const uint64_t xs_9 = ((((x_9 >> 20) ? UINT64_C(0x1ff) : UINT64_C(0)) << 12) | (x_9 >> 9)); /* x >>> 9 */
     const uint64_t ys_9 = ((((y_9 >> 20) ? UINT64_C(0x1ff) : UINT64_C(0)) << 12) | (y_9 >> 9)); /* y >>> 9 */
     const uint64_t s1_x = ((x_9 + (dir_9 ? ((~ys_9) & UINT64_C(0x1fffff)) : ys_9) + (dir_9 ^ ((y_9 >> 8) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t s1_y = ((y_9 + (dir_9 ? xs_9 : ((~xs_9) & UINT64_C(0x1fffff))) + (((~dir_9) & UINT64_C(1)) ^ ((x_9 >> 8) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t s1_z = (((z_9 & UINT64_C(0x1fff)) + (dir_9 ? ((~ATAN_9) & UINT64_C(0x1fff)) : ATAN_9) + dir_9) & UINT64_C(0x1fff));
+    const uint64_t s1_y = ((y_9 + (dir_y_9 ? xs_9 : ((~xs_9) & UINT64_C(0x1fffff))) + (((~dir_y_9) & UINT64_C(1)) ^ ((x_9 >> 8) & UINT64_C(1)))) & UINT64_C(0x1fffff));
+    const uint64_t s1_z = (((z_9 & UINT64_C(0x3fff)) + (dir_9 ? ((~ATAN_9) & UINT64_C(0x3fff)) : ATAN_9) + dir_9) & UINT64_C(0x3fff));
 
     const uint64_t s1_valid_reg = s0_valid_reg;  /* register, passed through */
 
@@ -165,40 +172,45 @@ void fft1024_twiddle_model(uint16_t in_angle, int32_t *out_cos, int32_t *out_sin
 
     /* ---- stage 2: iterations 10 to 14 ---- */
     /* iteration 10: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_10 = (uint64_t)(s1_z_reg < UINT64_C(0x1000));
+    const uint64_t dir_10 = (uint64_t)(s1_z_reg < UINT64_C(0x2000));
+    const uint64_t dir_y_10 = (uint64_t)((s1_z_reg & UINT64_C(0x1fff)) < UINT64_C(0x1000));
     const uint64_t xs_10 = ((((s1_x_reg >> 20) ? UINT64_C(0x3ff) : UINT64_C(0)) << 11) | (s1_x_reg >> 10)); /* x >>> 10 */
     const uint64_t ys_10 = ((((s1_y_reg >> 20) ? UINT64_C(0x3ff) : UINT64_C(0)) << 11) | (s1_y_reg >> 10)); /* y >>> 10 */
     const uint64_t x_11 = ((s1_x_reg + (dir_10 ? ((~ys_10) & UINT64_C(0x1fffff)) : ys_10) + (dir_10 ^ ((s1_y_reg >> 9) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t y_11 = ((s1_y_reg + (dir_10 ? xs_10 : ((~xs_10) & UINT64_C(0x1fffff))) + (((~dir_10) & UINT64_C(1)) ^ ((s1_x_reg >> 9) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t z_11 = (((s1_z_reg & UINT64_C(0xfff)) + (dir_10 ? ((~ATAN_10) & UINT64_C(0xfff)) : ATAN_10) + dir_10) & UINT64_C(0xfff));
+    const uint64_t y_11 = ((s1_y_reg + (dir_y_10 ? xs_10 : ((~xs_10) & UINT64_C(0x1fffff))) + (((~dir_y_10) & UINT64_C(1)) ^ ((s1_x_reg >> 9) & UINT64_C(1)))) & UINT64_C(0x1fffff));
+    const uint64_t z_11 = (((s1_z_reg & UINT64_C(0x1fff)) + (dir_10 ? ((~ATAN_10) & UINT64_C(0x1fff)) : ATAN_10) + dir_10) & UINT64_C(0x1fff));
     /* iteration 11: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_11 = (uint64_t)(z_11 < UINT64_C(0x800));
+    const uint64_t dir_11 = (uint64_t)(z_11 < UINT64_C(0x1000));
+    const uint64_t dir_y_11 = (uint64_t)((z_11 & UINT64_C(0xfff)) < UINT64_C(0x800));
     const uint64_t xs_11 = ((((x_11 >> 20) ? UINT64_C(0x7ff) : UINT64_C(0)) << 10) | (x_11 >> 11)); /* x >>> 11 */
     const uint64_t ys_11 = ((((y_11 >> 20) ? UINT64_C(0x7ff) : UINT64_C(0)) << 10) | (y_11 >> 11)); /* y >>> 11 */
     const uint64_t x_12 = ((x_11 + (dir_11 ? ((~ys_11) & UINT64_C(0x1fffff)) : ys_11) + (dir_11 ^ ((y_11 >> 10) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t y_12 = ((y_11 + (dir_11 ? xs_11 : ((~xs_11) & UINT64_C(0x1fffff))) + (((~dir_11) & UINT64_C(1)) ^ ((x_11 >> 10) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t z_12 = (((z_11 & UINT64_C(0x7ff)) + (dir_11 ? ((~ATAN_11) & UINT64_C(0x7ff)) : ATAN_11) + dir_11) & UINT64_C(0x7ff));
+    const uint64_t y_12 = ((y_11 + (dir_y_11 ? xs_11 : ((~xs_11) & UINT64_C(0x1fffff))) + (((~dir_y_11) & UINT64_C(1)) ^ ((x_11 >> 10) & UINT64_C(1)))) & UINT64_C(0x1fffff));
+    const uint64_t z_12 = (((z_11 & UINT64_C(0xfff)) + (dir_11 ? ((~ATAN_11) & UINT64_C(0xfff)) : ATAN_11) + dir_11) & UINT64_C(0xfff));
     /* iteration 12: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_12 = (uint64_t)(z_12 < UINT64_C(0x400));
+    const uint64_t dir_12 = (uint64_t)(z_12 < UINT64_C(0x800));
+    const uint64_t dir_y_12 = (uint64_t)((z_12 & UINT64_C(0x7ff)) < UINT64_C(0x400));
     const uint64_t xs_12 = ((((x_12 >> 20) ? UINT64_C(0xfff) : UINT64_C(0)) << 9) | (x_12 >> 12)); /* x >>> 12 */
     const uint64_t ys_12 = ((((y_12 >> 20) ? UINT64_C(0xfff) : UINT64_C(0)) << 9) | (y_12 >> 12)); /* y >>> 12 */
     const uint64_t x_13 = ((x_12 + (dir_12 ? ((~ys_12) & UINT64_C(0x1fffff)) : ys_12) + (dir_12 ^ ((y_12 >> 11) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t y_13 = ((y_12 + (dir_12 ? xs_12 : ((~xs_12) & UINT64_C(0x1fffff))) + (((~dir_12) & UINT64_C(1)) ^ ((x_12 >> 11) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t z_13 = (((z_12 & UINT64_C(0x3ff)) + (dir_12 ? ((~ATAN_12) & UINT64_C(0x3ff)) : ATAN_12) + dir_12) & UINT64_C(0x3ff));
+    const uint64_t y_13 = ((y_12 + (dir_y_12 ? xs_12 : ((~xs_12) & UINT64_C(0x1fffff))) + (((~dir_y_12) & UINT64_C(1)) ^ ((x_12 >> 11) & UINT64_C(1)))) & UINT64_C(0x1fffff));
+    const uint64_t z_13 = (((z_12 & UINT64_C(0x7ff)) + (dir_12 ? ((~ATAN_12) & UINT64_C(0x7ff)) : ATAN_12) + dir_12) & UINT64_C(0x7ff));
     /* iteration 13: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_13 = (uint64_t)(z_13 < UINT64_C(0x200));
+    const uint64_t dir_13 = (uint64_t)(z_13 < UINT64_C(0x400));
+    const uint64_t dir_y_13 = (uint64_t)((z_13 & UINT64_C(0x3ff)) < UINT64_C(0x200));
     const uint64_t xs_13 = ((((x_13 >> 20) ? UINT64_C(0x1fff) : UINT64_C(0)) << 8) | (x_13 >> 13)); /* x >>> 13 */
     const uint64_t ys_13 = ((((y_13 >> 20) ? UINT64_C(0x1fff) : UINT64_C(0)) << 8) | (y_13 >> 13)); /* y >>> 13 */
     const uint64_t x_14 = ((x_13 + (dir_13 ? ((~ys_13) & UINT64_C(0x1fffff)) : ys_13) + (dir_13 ^ ((y_13 >> 12) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t y_14 = ((y_13 + (dir_13 ? xs_13 : ((~xs_13) & UINT64_C(0x1fffff))) + (((~dir_13) & UINT64_C(1)) ^ ((x_13 >> 12) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t z_14 = (((z_13 & UINT64_C(0x1ff)) + (dir_13 ? ((~ATAN_13) & UINT64_C(0x1ff)) : ATAN_13) + dir_13) & UINT64_C(0x1ff));
+    const uint64_t y_14 = ((y_13 + (dir_y_13 ? xs_13 : ((~xs_13) & UINT64_C(0x1fffff))) + (((~dir_y_13) & UINT64_C(1)) ^ ((x_13 >> 12) & UINT64_C(1)))) & UINT64_C(0x1fffff));
+    const uint64_t z_14 = (((z_13 & UINT64_C(0x3ff)) + (dir_13 ? ((~ATAN_13) & UINT64_C(0x3ff)) : ATAN_13) + dir_13) & UINT64_C(0x3ff));
     /* iteration 14: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_14 = (uint64_t)(z_14 < UINT64_C(0x100));
+    const uint64_t dir_14 = (uint64_t)(z_14 < UINT64_C(0x200));
+    const uint64_t dir_y_14 = (uint64_t)((z_14 & UINT64_C(0x1ff)) < UINT64_C(0x100));
     const uint64_t xs_14 = ((((x_14 >> 20) ? UINT64_C(0x3fff) : UINT64_C(0)) << 7) | (x_14 >> 14)); /* x >>> 14 */
     const uint64_t ys_14 = ((((y_14 >> 20) ? UINT64_C(0x3fff) : UINT64_C(0)) << 7) | (y_14 >> 14)); /* y >>> 14 */
     const uint64_t s2_x = ((x_14 + (dir_14 ? ((~ys_14) & UINT64_C(0x1fffff)) : ys_14) + (dir_14 ^ ((y_14 >> 13) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t s2_y = ((y_14 + (dir_14 ? xs_14 : ((~xs_14) & UINT64_C(0x1fffff))) + (((~dir_14) & UINT64_C(1)) ^ ((x_14 >> 13) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t s2_z = (((z_14 & UINT64_C(0xff)) + (dir_14 ? ((~ATAN_14) & UINT64_C(0xff)) : ATAN_14) + dir_14) & UINT64_C(0xff));
+    const uint64_t s2_y = ((y_14 + (dir_y_14 ? xs_14 : ((~xs_14) & UINT64_C(0x1fffff))) + (((~dir_y_14) & UINT64_C(1)) ^ ((x_14 >> 13) & UINT64_C(1)))) & UINT64_C(0x1fffff));
+    const uint64_t s2_z = (((z_14 & UINT64_C(0x1ff)) + (dir_14 ? ((~ATAN_14) & UINT64_C(0x1ff)) : ATAN_14) + dir_14) & UINT64_C(0x1ff));
 
     const uint64_t s2_valid_reg = s1_valid_reg;  /* register, passed through */
 
@@ -208,39 +220,44 @@ void fft1024_twiddle_model(uint16_t in_angle, int32_t *out_cos, int32_t *out_sin
 
     /* ---- stage 3: iterations 15 to 19 ---- */
     /* iteration 15: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_15 = (uint64_t)(s2_z_reg < UINT64_C(0x80));
+    const uint64_t dir_15 = (uint64_t)(s2_z_reg < UINT64_C(0x100));
+    const uint64_t dir_y_15 = (uint64_t)((s2_z_reg & UINT64_C(0xff)) < UINT64_C(0x80));
     const uint64_t xs_15 = ((((s2_x_reg >> 20) ? UINT64_C(0x7fff) : UINT64_C(0)) << 6) | (s2_x_reg >> 15)); /* x >>> 15 */
     const uint64_t ys_15 = ((((s2_y_reg >> 20) ? UINT64_C(0x7fff) : UINT64_C(0)) << 6) | (s2_y_reg >> 15)); /* y >>> 15 */
     const uint64_t x_16 = ((s2_x_reg + (dir_15 ? ((~ys_15) & UINT64_C(0x1fffff)) : ys_15) + (dir_15 ^ ((s2_y_reg >> 14) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t y_16 = ((s2_y_reg + (dir_15 ? xs_15 : ((~xs_15) & UINT64_C(0x1fffff))) + (((~dir_15) & UINT64_C(1)) ^ ((s2_x_reg >> 14) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t z_16 = (((s2_z_reg & UINT64_C(0x7f)) + (dir_15 ? ((~ATAN_15) & UINT64_C(0x7f)) : ATAN_15) + dir_15) & UINT64_C(0x7f));
+    const uint64_t y_16 = ((s2_y_reg + (dir_y_15 ? xs_15 : ((~xs_15) & UINT64_C(0x1fffff))) + (((~dir_y_15) & UINT64_C(1)) ^ ((s2_x_reg >> 14) & UINT64_C(1)))) & UINT64_C(0x1fffff));
+    const uint64_t z_16 = (((s2_z_reg & UINT64_C(0xff)) + (dir_15 ? ((~ATAN_15) & UINT64_C(0xff)) : ATAN_15) + dir_15) & UINT64_C(0xff));
     /* iteration 16: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_16 = (uint64_t)(z_16 < UINT64_C(0x40));
+    const uint64_t dir_16 = (uint64_t)(z_16 < UINT64_C(0x80));
+    const uint64_t dir_y_16 = (uint64_t)((z_16 & UINT64_C(0x7f)) < UINT64_C(0x40));
     const uint64_t xs_16 = ((((x_16 >> 20) ? UINT64_C(0xffff) : UINT64_C(0)) << 5) | (x_16 >> 16)); /* x >>> 16 */
     const uint64_t ys_16 = ((((y_16 >> 20) ? UINT64_C(0xffff) : UINT64_C(0)) << 5) | (y_16 >> 16)); /* y >>> 16 */
     const uint64_t x_17 = ((x_16 + (dir_16 ? ((~ys_16) & UINT64_C(0x1fffff)) : ys_16) + (dir_16 ^ ((y_16 >> 15) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t y_17 = ((y_16 + (dir_16 ? xs_16 : ((~xs_16) & UINT64_C(0x1fffff))) + (((~dir_16) & UINT64_C(1)) ^ ((x_16 >> 15) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t z_17 = (((z_16 & UINT64_C(0x3f)) + (dir_16 ? ((~ATAN_16) & UINT64_C(0x3f)) : ATAN_16) + dir_16) & UINT64_C(0x3f));
+    const uint64_t y_17 = ((y_16 + (dir_y_16 ? xs_16 : ((~xs_16) & UINT64_C(0x1fffff))) + (((~dir_y_16) & UINT64_C(1)) ^ ((x_16 >> 15) & UINT64_C(1)))) & UINT64_C(0x1fffff));
+    const uint64_t z_17 = (((z_16 & UINT64_C(0x7f)) + (dir_16 ? ((~ATAN_16) & UINT64_C(0x7f)) : ATAN_16) + dir_16) & UINT64_C(0x7f));
     /* iteration 17: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_17 = (uint64_t)(z_17 < UINT64_C(0x20));
+    const uint64_t dir_17 = (uint64_t)(z_17 < UINT64_C(0x40));
+    const uint64_t dir_y_17 = (uint64_t)((z_17 & UINT64_C(0x3f)) < UINT64_C(0x20));
     const uint64_t xs_17 = ((((x_17 >> 20) ? UINT64_C(0x1ffff) : UINT64_C(0)) << 4) | (x_17 >> 17)); /* x >>> 17 */
     const uint64_t ys_17 = ((((y_17 >> 20) ? UINT64_C(0x1ffff) : UINT64_C(0)) << 4) | (y_17 >> 17)); /* y >>> 17 */
     const uint64_t x_18 = ((x_17 + (dir_17 ? ((~ys_17) & UINT64_C(0x1fffff)) : ys_17) + (dir_17 ^ ((y_17 >> 16) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t y_18 = ((y_17 + (dir_17 ? xs_17 : ((~xs_17) & UINT64_C(0x1fffff))) + (((~dir_17) & UINT64_C(1)) ^ ((x_17 >> 16) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t z_18 = (((z_17 & UINT64_C(0x1f)) + (dir_17 ? ((~ATAN_17) & UINT64_C(0x1f)) : ATAN_17) + dir_17) & UINT64_C(0x1f));
+    const uint64_t y_18 = ((y_17 + (dir_y_17 ? xs_17 : ((~xs_17) & UINT64_C(0x1fffff))) + (((~dir_y_17) & UINT64_C(1)) ^ ((x_17 >> 16) & UINT64_C(1)))) & UINT64_C(0x1fffff));
+    const uint64_t z_18 = (((z_17 & UINT64_C(0x3f)) + (dir_17 ? ((~ATAN_17) & UINT64_C(0x3f)) : ATAN_17) + dir_17) & UINT64_C(0x3f));
     /* iteration 18: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_18 = (uint64_t)(z_18 < UINT64_C(0x10));
+    const uint64_t dir_18 = (uint64_t)(z_18 < UINT64_C(0x20));
+    const uint64_t dir_y_18 = (uint64_t)((z_18 & UINT64_C(0x1f)) < UINT64_C(0x10));
     const uint64_t xs_18 = ((((x_18 >> 20) ? UINT64_C(0x3ffff) : UINT64_C(0)) << 3) | (x_18 >> 18)); /* x >>> 18 */
     const uint64_t ys_18 = ((((y_18 >> 20) ? UINT64_C(0x3ffff) : UINT64_C(0)) << 3) | (y_18 >> 18)); /* y >>> 18 */
     const uint64_t x_19 = ((x_18 + (dir_18 ? ((~ys_18) & UINT64_C(0x1fffff)) : ys_18) + (dir_18 ^ ((y_18 >> 17) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t y_19 = ((y_18 + (dir_18 ? xs_18 : ((~xs_18) & UINT64_C(0x1fffff))) + (((~dir_18) & UINT64_C(1)) ^ ((x_18 >> 17) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t z_19 = (((z_18 & UINT64_C(0xf)) + (dir_18 ? ((~ATAN_18) & UINT64_C(0xf)) : ATAN_18) + dir_18) & UINT64_C(0xf));
+    const uint64_t y_19 = ((y_18 + (dir_y_18 ? xs_18 : ((~xs_18) & UINT64_C(0x1fffff))) + (((~dir_y_18) & UINT64_C(1)) ^ ((x_18 >> 17) & UINT64_C(1)))) & UINT64_C(0x1fffff));
+    const uint64_t z_19 = (((z_18 & UINT64_C(0x1f)) + (dir_18 ? ((~ATAN_18) & UINT64_C(0x1f)) : ATAN_18) + dir_18) & UINT64_C(0x1f));
     /* iteration 19: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_19 = (uint64_t)(z_19 < UINT64_C(8));
+    const uint64_t dir_19 = (uint64_t)(z_19 < UINT64_C(0x10));
+    const uint64_t dir_y_19 = (uint64_t)((z_19 & UINT64_C(0xf)) < UINT64_C(8));
     const uint64_t xs_19 = ((((x_19 >> 20) ? UINT64_C(0x7ffff) : UINT64_C(0)) << 2) | (x_19 >> 19)); /* x >>> 19 */
     const uint64_t ys_19 = ((((y_19 >> 20) ? UINT64_C(0x7ffff) : UINT64_C(0)) << 2) | (y_19 >> 19)); /* y >>> 19 */
     const uint64_t s3_x = ((x_19 + (dir_19 ? ((~ys_19) & UINT64_C(0x1fffff)) : ys_19) + (dir_19 ^ ((y_19 >> 18) & UINT64_C(1)))) & UINT64_C(0x1fffff));
-    const uint64_t s3_y = ((y_19 + (dir_19 ? xs_19 : ((~xs_19) & UINT64_C(0x1fffff))) + (((~dir_19) & UINT64_C(1)) ^ ((x_19 >> 18) & UINT64_C(1)))) & UINT64_C(0x1fffff));
+    const uint64_t s3_y = ((y_19 + (dir_y_19 ? xs_19 : ((~xs_19) & UINT64_C(0x1fffff))) + (((~dir_y_19) & UINT64_C(1)) ^ ((x_19 >> 18) & UINT64_C(1)))) & UINT64_C(0x1fffff));
 
     /* ---- output register: the last iteration's values, held so that rounding and */
     /* saturation have a clock of their own ---- */

@@ -62,25 +62,27 @@ module fft1024_twiddle (
     // z narrows stage by stage: after iteration i it is within about +-atan(2^-i), so its top
     // bits are copies of its sign and are not formed (bounds over every input); each angle
     // constant has the width of the z its iteration forms.
+    // Where z feeds x and y adders it keeps one sign copy more: x's and z's direction
+    // reads the top bit, y's (dir_y_*) the one below, so each drives half the loads.
     localparam [20:0] ATAN_0 = 21'h100000;  // atan(2^-0) in turns
     localparam [20:0] ATAN_1 = 21'h097203;  // atan(2^-1) in turns
-    localparam [19:0] ATAN_2 = 20'h4fd9c;  // atan(2^-2) in turns
-    localparam [18:0] ATAN_3 = 19'h28889;  // atan(2^-3) in turns
-    localparam [17:0] ATAN_4 = 18'h14587;  // atan(2^-4) in turns
-    localparam [16:0] ATAN_5 = 17'h0a2ec;  // atan(2^-5) in turns
-    localparam [15:0] ATAN_6 = 16'h517b;  // atan(2^-6) in turns
-    localparam [14:0] ATAN_7 = 15'h28be;  // atan(2^-7) in turns
-    localparam [13:0] ATAN_8 = 14'h145f;  // atan(2^-8) in turns
-    localparam [12:0] ATAN_9 = 13'h0a30;  // atan(2^-9) in turns
-    localparam [11:0] ATAN_10 = 12'h518;  // atan(2^-10) in turns
-    localparam [10:0] ATAN_11 = 11'h28c;  // atan(2^-11) in turns
-    localparam [9:0] ATAN_12 = 10'h146;  // atan(2^-12) in turns
-    localparam [8:0] ATAN_13 = 9'h0a3;  // atan(2^-13) in turns
-    localparam [7:0] ATAN_14 = 8'h51;  // atan(2^-14) in turns
-    localparam [6:0] ATAN_15 = 7'h29;  // atan(2^-15) in turns
-    localparam [5:0] ATAN_16 = 6'h14;  // atan(2^-16) in turns
-    localparam [4:0] ATAN_17 = 5'h0a;  // atan(2^-17) in turns
-    localparam [3:0] ATAN_18 = 4'h5;  // atan(2^-18) in turns
+    localparam [20:0] ATAN_2 = 21'h04fd9c;  // atan(2^-2) in turns
+    localparam [19:0] ATAN_3 = 20'h28889;  // atan(2^-3) in turns
+    localparam [18:0] ATAN_4 = 19'h14587;  // atan(2^-4) in turns
+    localparam [17:0] ATAN_5 = 18'h0a2ec;  // atan(2^-5) in turns
+    localparam [16:0] ATAN_6 = 17'h0517b;  // atan(2^-6) in turns
+    localparam [15:0] ATAN_7 = 16'h28be;  // atan(2^-7) in turns
+    localparam [14:0] ATAN_8 = 15'h145f;  // atan(2^-8) in turns
+    localparam [13:0] ATAN_9 = 14'h0a30;  // atan(2^-9) in turns
+    localparam [12:0] ATAN_10 = 13'h0518;  // atan(2^-10) in turns
+    localparam [11:0] ATAN_11 = 12'h28c;  // atan(2^-11) in turns
+    localparam [10:0] ATAN_12 = 11'h146;  // atan(2^-12) in turns
+    localparam [9:0] ATAN_13 = 10'h0a3;  // atan(2^-13) in turns
+    localparam [8:0] ATAN_14 = 9'h051;  // atan(2^-14) in turns
+    localparam [7:0] ATAN_15 = 8'h29;  // atan(2^-15) in turns
+    localparam [6:0] ATAN_16 = 7'h14;  // atan(2^-16) in turns
+    localparam [5:0] ATAN_17 = 6'h0a;  // atan(2^-17) in turns
+    localparam [4:0] ATAN_18 = 5'h05;  // atan(2^-18) in turns
 
     // The pipeline advances while the output buffer can take a sample.
     wire advance;
@@ -102,31 +104,33 @@ module fft1024_twiddle (
     wire [20:0] z_2 = z_1 + (dir_1 ? ~ATAN_1 : ATAN_1) + {20'h00000, dir_1};
     // iteration 2: turn counter-clockwise when the remaining angle is >= 0
     wire dir_2 = (z_2 < 21'h100000);
-    wire [19:0] z_3 = z_2[19:0] + (dir_2 ? ~ATAN_2 : ATAN_2) + {19'h00000, dir_2};
+    wire [20:0] z_3 = z_2 + (dir_2 ? ~ATAN_2 : ATAN_2) + {20'h00000, dir_2};
     // x and y after iteration 2 depend only on the fold and the directions of iterations
     // 0 to 2 (z alone decides them): read from a table of the 16 cases, computed
     // with the iterations' own arithmetic, instead of adding.
     wire [XY_W-1:0] x_3 = dir_2 ? dir_1 ? dir_0 ? in_fold ? 21'h1ec917 : 21'h0136e9 : in_fold ? 21'h103628 : 21'h0fc9d8 : dir_0 ? in_fold ? 21'h12a3fa : 21'h0d5c06 : in_fold ? 21'h177f9f : 21'h088061 : dir_1 ? dir_0 ? in_fold ? 21'h177f9f : 21'h088061 : in_fold ? 21'h12a3fa : 21'h0d5c06 : dir_0 ? in_fold ? 21'h103628 : 21'h0fc9d8 : in_fold ? 21'h1ec917 : 21'h0136e9;
     wire [XY_W-1:0] y_3 = dir_2 ? dir_1 ? dir_0 ? in_fold ? 21'h103628 : 21'h0fc9d8 : in_fold ? 21'h0136e9 : 21'h1ec917 : dir_0 ? in_fold ? 21'h177f9f : 21'h088061 : in_fold ? 21'h0d5c06 : 21'h12a3fa : dir_1 ? dir_0 ? in_fold ? 21'h12a3fa : 21'h0d5c06 : in_fold ? 21'h088061 : 21'h177f9f : dir_0 ? in_fold ? 21'h1ec917 : 21'h0136e9 : in_fold ? 21'h0fc9d8 : 21'h103628;
     // iteration 3: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_3 = (z_3 < 20'h80000);
+    wire dir_3 = (z_3 < 21'h100000);
+    wire dir_y_3 = (z_3[19:0] < 20'h80000);
     wire [XY_W-1:0] xs_3 = {{3{x_3[20]}}, x_3[20:3]};  // x >>> 3
     wire [XY_W-1:0] ys_3 = {{3{y_3[20]}}, y_3[20:3]};  // y >>> 3
     wire [XY_W-1:0] x_4 = x_3 + (dir_3 ? ~ys_3 : ys_3) + {20'h00000, dir_3 ^ y_3[2]};
-    wire [XY_W-1:0] y_4 = y_3 + (dir_3 ? xs_3 : ~xs_3) + {20'h00000, ~dir_3 ^ x_3[2]};
-    wire [18:0] z_4 = z_3[18:0] + (dir_3 ? ~ATAN_3 : ATAN_3) + {18'h00000, dir_3};
+    wire [XY_W-1:0] y_4 = y_3 + (dir_y_3 ? xs_3 : ~xs_3) + {20'h00000, ~dir_y_3 ^ x_3[2]};
+    wire [19:0] z_4 = z_3[19:0] + (dir_3 ? ~ATAN_3 : ATAN_3) + {19'h00000, dir_3};
     // iteration 4: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_4 = (z_4 < 19'h40000);
+    wire dir_4 = (z_4 < 20'h80000);
+    wire dir_y_4 = (z_4[18:0] < 19'h40000);
     wire [XY_W-1:0] xs_4 = {{4{x_4[20]}}, x_4[20:4]};  // x >>> 4
     wire [XY_W-1:0] ys_4 = {{4{y_4[20]}}, y_4[20:4]};  // y >>> 4
     wire [XY_W-1:0] s0_x = x_4 + (dir_4 ? ~ys_4 : ys_4) + {20'h00000, dir_4 ^ y_4[3]};
-    wire [XY_W-1:0] s0_y = y_4 + (dir_4 ? xs_4 : ~xs_4) + {20'h00000, ~dir_4 ^ x_4[3]};
-    wire [17:0] s0_z = z_4[17:0] + (dir_4 ? ~ATAN_4 : ATAN_4) + {17'h00000, dir_4};
+    wire [XY_W-1:0] s0_y = y_4 + (dir_y_4 ? xs_4 : ~xs_4) + {20'h00000, ~dir_y_4 ^ x_4[3]};
+    wire [18:0] s0_z = z_4[18:0] + (dir_4 ? ~ATAN_4 : ATAN_4) + {18'h00000, dir_4};
 
     reg s0_valid_reg;
     reg [XY_W-1:0] s0_x_reg;
     reg [XY_W-1:0] s0_y_reg;
-    reg [17:0] s0_z_reg;
+    reg [18:0] s0_z_reg;
     reg [8:0] s0_tag_reg;
 
     always @(posedge clk) begin
@@ -148,45 +152,50 @@ module fft1024_twiddle (
 
     // ---- stage 1: iterations 5 to 9 ----
     // iteration 5: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_5 = (s0_z_reg < 18'h20000);
+    wire dir_5 = (s0_z_reg < 19'h40000);
+    wire dir_y_5 = (s0_z_reg[17:0] < 18'h20000);
     wire [XY_W-1:0] xs_5 = {{5{s0_x_reg[20]}}, s0_x_reg[20:5]};  // x >>> 5
     wire [XY_W-1:0] ys_5 = {{5{s0_y_reg[20]}}, s0_y_reg[20:5]};  // y >>> 5
     wire [XY_W-1:0] x_6 = s0_x_reg + (dir_5 ? ~ys_5 : ys_5) + {20'h00000, dir_5 ^ s0_y_reg[4]};
-    wire [XY_W-1:0] y_6 = s0_y_reg + (dir_5 ? xs_5 : ~xs_5) + {20'h00000, ~dir_5 ^ s0_x_reg[4]};
-    wire [16:0] z_6 = s0_z_reg[16:0] + (dir_5 ? ~ATAN_5 : ATAN_5) + {16'h0000, dir_5};
+    wire [XY_W-1:0] y_6 = s0_y_reg + (dir_y_5 ? xs_5 : ~xs_5) + {20'h00000, ~dir_y_5 ^ s0_x_reg[4]};
+    wire [17:0] z_6 = s0_z_reg[17:0] + (dir_5 ? ~ATAN_5 : ATAN_5) + {17'h00000, dir_5};
     // iteration 6: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_6 = (z_6 < 17'h10000);
+    wire dir_6 = (z_6 < 18'h20000);
+    wire dir_y_6 = (z_6[16:0] < 17'h10000);
     wire [XY_W-1:0] xs_6 = {{6{x_6[20]}}, x_6[20:6]};  // x >>> 6
     wire [XY_W-1:0] ys_6 = {{6{y_6[20]}}, y_6[20:6]};  // y >>> 6
     wire [XY_W-1:0] x_7 = x_6 + (dir_6 ? ~ys_6 : ys_6) + {20'h00000, dir_6 ^ y_6[5]};
-    wire [XY_W-1:0] y_7 = y_6 + (dir_6 ? xs_6 : ~xs_6) + {20'h00000, ~dir_6 ^ x_6[5]};
-    wire [15:0] z_7 = z_6[15:0] + (dir_6 ? ~ATAN_6 : ATAN_6) + {15'h0000, dir_6};
+    wire [XY_W-1:0] y_7 = y_6 + (dir_y_6 ? xs_6 : ~xs_6) + {20'h00000, ~dir_y_6 ^ x_6[5]};
+    wire [16:0] z_7 = z_6[16:0] + (dir_6 ? ~ATAN_6 : ATAN_6) + {16'h0000, dir_6};
     // iteration 7: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_7 = (z_7 < 16'h8000);
+    wire dir_7 = (z_7 < 17'h10000);
+    wire dir_y_7 = (z_7[15:0] < 16'h8000);
     wire [XY_W-1:0] xs_7 = {{7{x_7[20]}}, x_7[20:7]};  // x >>> 7
     wire [XY_W-1:0] ys_7 = {{7{y_7[20]}}, y_7[20:7]};  // y >>> 7
     wire [XY_W-1:0] x_8 = x_7 + (dir_7 ? ~ys_7 : ys_7) + {20'h00000, dir_7 ^ y_7[6]};
-    wire [XY_W-1:0] y_8 = y_7 + (dir_7 ? xs_7 : ~xs_7) + {20'h00000, ~dir_7 ^ x_7[6]};
-    wire [14:0] z_8 = z_7[14:0] + (dir_7 ? ~ATAN_7 : ATAN_7) + {14'h0000, dir_7};
+    wire [XY_W-1:0] y_8 = y_7 + (dir_y_7 ? xs_7 : ~xs_7) + {20'h00000, ~dir_y_7 ^ x_7[6]};
+    wire [15:0] z_8 = z_7[15:0] + (dir_7 ? ~ATAN_7 : ATAN_7) + {15'h0000, dir_7};
     // iteration 8: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_8 = (z_8 < 15'h4000);
+    wire dir_8 = (z_8 < 16'h8000);
+    wire dir_y_8 = (z_8[14:0] < 15'h4000);
     wire [XY_W-1:0] xs_8 = {{8{x_8[20]}}, x_8[20:8]};  // x >>> 8
     wire [XY_W-1:0] ys_8 = {{8{y_8[20]}}, y_8[20:8]};  // y >>> 8
     wire [XY_W-1:0] x_9 = x_8 + (dir_8 ? ~ys_8 : ys_8) + {20'h00000, dir_8 ^ y_8[7]};
-    wire [XY_W-1:0] y_9 = y_8 + (dir_8 ? xs_8 : ~xs_8) + {20'h00000, ~dir_8 ^ x_8[7]};
-    wire [13:0] z_9 = z_8[13:0] + (dir_8 ? ~ATAN_8 : ATAN_8) + {13'h0000, dir_8};
+    wire [XY_W-1:0] y_9 = y_8 + (dir_y_8 ? xs_8 : ~xs_8) + {20'h00000, ~dir_y_8 ^ x_8[7]};
+    wire [14:0] z_9 = z_8[14:0] + (dir_8 ? ~ATAN_8 : ATAN_8) + {14'h0000, dir_8};
     // iteration 9: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_9 = (z_9 < 14'h2000);
+    wire dir_9 = (z_9 < 15'h4000);
+    wire dir_y_9 = (z_9[13:0] < 14'h2000);
     wire [XY_W-1:0] xs_9 = {{9{x_9[20]}}, x_9[20:9]};  // x >>> 9
     wire [XY_W-1:0] ys_9 = {{9{y_9[20]}}, y_9[20:9]};  // y >>> 9
     wire [XY_W-1:0] s1_x = x_9 + (dir_9 ? ~ys_9 : ys_9) + {20'h00000, dir_9 ^ y_9[8]};
-    wire [XY_W-1:0] s1_y = y_9 + (dir_9 ? xs_9 : ~xs_9) + {20'h00000, ~dir_9 ^ x_9[8]};
-    wire [12:0] s1_z = z_9[12:0] + (dir_9 ? ~ATAN_9 : ATAN_9) + {12'h000, dir_9};
+    wire [XY_W-1:0] s1_y = y_9 + (dir_y_9 ? xs_9 : ~xs_9) + {20'h00000, ~dir_y_9 ^ x_9[8]};
+    wire [13:0] s1_z = z_9[13:0] + (dir_9 ? ~ATAN_9 : ATAN_9) + {13'h0000, dir_9};
 
     reg s1_valid_reg;
     reg [XY_W-1:0] s1_x_reg;
     reg [XY_W-1:0] s1_y_reg;
-    reg [12:0] s1_z_reg;
+    reg [13:0] s1_z_reg;
     reg [8:0] s1_tag_reg;
 
     always @(posedge clk) begin
@@ -208,45 +217,50 @@ module fft1024_twiddle (
 
     // ---- stage 2: iterations 10 to 14 ----
     // iteration 10: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_10 = (s1_z_reg < 13'h1000);
+    wire dir_10 = (s1_z_reg < 14'h2000);
+    wire dir_y_10 = (s1_z_reg[12:0] < 13'h1000);
     wire [XY_W-1:0] xs_10 = {{10{s1_x_reg[20]}}, s1_x_reg[20:10]};  // x >>> 10
     wire [XY_W-1:0] ys_10 = {{10{s1_y_reg[20]}}, s1_y_reg[20:10]};  // y >>> 10
     wire [XY_W-1:0] x_11 = s1_x_reg + (dir_10 ? ~ys_10 : ys_10) + {20'h00000, dir_10 ^ s1_y_reg[9]};
-    wire [XY_W-1:0] y_11 = s1_y_reg + (dir_10 ? xs_10 : ~xs_10) + {20'h00000, ~dir_10 ^ s1_x_reg[9]};
-    wire [11:0] z_11 = s1_z_reg[11:0] + (dir_10 ? ~ATAN_10 : ATAN_10) + {11'h000, dir_10};
+    wire [XY_W-1:0] y_11 = s1_y_reg + (dir_y_10 ? xs_10 : ~xs_10) + {20'h00000, ~dir_y_10 ^ s1_x_reg[9]};
+    wire [12:0] z_11 = s1_z_reg[12:0] + (dir_10 ? ~ATAN_10 : ATAN_10) + {12'h000, dir_10};
     // iteration 11: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_11 = (z_11 < 12'h800);
+    wire dir_11 = (z_11 < 13'h1000);
+    wire dir_y_11 = (z_11[11:0] < 12'h800);
     wire [XY_W-1:0] xs_11 = {{11{x_11[20]}}, x_11[20:11]};  // x >>> 11
     wire [XY_W-1:0] ys_11 = {{11{y_11[20]}}, y_11[20:11]};  // y >>> 11
     wire [XY_W-1:0] x_12 = x_11 + (dir_11 ? ~ys_11 : ys_11) + {20'h00000, dir_11 ^ y_11[10]};
-    wire [XY_W-1:0] y_12 = y_11 + (dir_11 ? xs_11 : ~xs_11) + {20'h00000, ~dir_11 ^ x_11[10]};
-    wire [10:0] z_12 = z_11[10:0] + (dir_11 ? ~ATAN_11 : ATAN_11) + {10'h000, dir_11};
+    wire [XY_W-1:0] y_12 = y_11 + (dir_y_11 ? xs_11 : ~xs_11) + {20'h00000, ~dir_y_11 ^ x_11[10]};
+    wire [11:0] z_12 = z_11[11:0] + (dir_11 ? ~ATAN_11 : ATAN_11) + {11'h000, dir_11};
     // iteration 12: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_12 = (z_12 < 11'h400);
+    wire dir_12 = (z_12 < 12'h800);
+    wire dir_y_12 = (z_12[10:0] < 11'h400);
     wire [XY_W-1:0] xs_12 = {{12{x_12[20]}}, x_12[20:12]};  // x >>> 12
     wire [XY_W-1:0] ys_12 = {{12{y_12[20]}}, y_12[20:12]};  // y >>> 12
     wire [XY_W-1:0] x_13 = x_12 + (dir_12 ? ~ys_12 : ys_12) + {20'h00000, dir_12 ^ y_12[11]};
-    wire [XY_W-1:0] y_13 = y_12 + (dir_12 ? xs_12 : ~xs_12) + {20'h00000, ~dir_12 ^ x_12[11]};
-    wire [9:0] z_13 = z_12[9:0] + (dir_12 ? ~ATAN_12 : ATAN_12) + {9'h000, dir_12};
+    wire [XY_W-1:0] y_13 = y_12 + (dir_y_12 ? xs_12 : ~xs_12) + {20'h00000, ~dir_y_12 ^ x_12[11]};
+    wire [10:0] z_13 = z_12[10:0] + (dir_12 ? ~ATAN_12 : ATAN_12) + {10'h000, dir_12};
     // iteration 13: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_13 = (z_13 < 10'h200);
+    wire dir_13 = (z_13 < 11'h400);
+    wire dir_y_13 = (z_13[9:0] < 10'h200);
     wire [XY_W-1:0] xs_13 = {{13{x_13[20]}}, x_13[20:13]};  // x >>> 13
     wire [XY_W-1:0] ys_13 = {{13{y_13[20]}}, y_13[20:13]};  // y >>> 13
     wire [XY_W-1:0] x_14 = x_13 + (dir_13 ? ~ys_13 : ys_13) + {20'h00000, dir_13 ^ y_13[12]};
-    wire [XY_W-1:0] y_14 = y_13 + (dir_13 ? xs_13 : ~xs_13) + {20'h00000, ~dir_13 ^ x_13[12]};
-    wire [8:0] z_14 = z_13[8:0] + (dir_13 ? ~ATAN_13 : ATAN_13) + {8'h00, dir_13};
+    wire [XY_W-1:0] y_14 = y_13 + (dir_y_13 ? xs_13 : ~xs_13) + {20'h00000, ~dir_y_13 ^ x_13[12]};
+    wire [9:0] z_14 = z_13[9:0] + (dir_13 ? ~ATAN_13 : ATAN_13) + {9'h000, dir_13};
     // iteration 14: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_14 = (z_14 < 9'h100);
+    wire dir_14 = (z_14 < 10'h200);
+    wire dir_y_14 = (z_14[8:0] < 9'h100);
     wire [XY_W-1:0] xs_14 = {{14{x_14[20]}}, x_14[20:14]};  // x >>> 14
     wire [XY_W-1:0] ys_14 = {{14{y_14[20]}}, y_14[20:14]};  // y >>> 14
     wire [XY_W-1:0] s2_x = x_14 + (dir_14 ? ~ys_14 : ys_14) + {20'h00000, dir_14 ^ y_14[13]};
-    wire [XY_W-1:0] s2_y = y_14 + (dir_14 ? xs_14 : ~xs_14) + {20'h00000, ~dir_14 ^ x_14[13]};
-    wire [7:0] s2_z = z_14[7:0] + (dir_14 ? ~ATAN_14 : ATAN_14) + {7'h00, dir_14};
+    wire [XY_W-1:0] s2_y = y_14 + (dir_y_14 ? xs_14 : ~xs_14) + {20'h00000, ~dir_y_14 ^ x_14[13]};
+    wire [8:0] s2_z = z_14[8:0] + (dir_14 ? ~ATAN_14 : ATAN_14) + {8'h00, dir_14};
 
     reg s2_valid_reg;
     reg [XY_W-1:0] s2_x_reg;
     reg [XY_W-1:0] s2_y_reg;
-    reg [7:0] s2_z_reg;
+    reg [8:0] s2_z_reg;
     reg [8:0] s2_tag_reg;
 
     always @(posedge clk) begin
@@ -268,39 +282,44 @@ module fft1024_twiddle (
 
     // ---- stage 3: iterations 15 to 19 ----
     // iteration 15: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_15 = (s2_z_reg < 8'h80);
+    wire dir_15 = (s2_z_reg < 9'h100);
+    wire dir_y_15 = (s2_z_reg[7:0] < 8'h80);
     wire [XY_W-1:0] xs_15 = {{15{s2_x_reg[20]}}, s2_x_reg[20:15]};  // x >>> 15
     wire [XY_W-1:0] ys_15 = {{15{s2_y_reg[20]}}, s2_y_reg[20:15]};  // y >>> 15
     wire [XY_W-1:0] x_16 = s2_x_reg + (dir_15 ? ~ys_15 : ys_15) + {20'h00000, dir_15 ^ s2_y_reg[14]};
-    wire [XY_W-1:0] y_16 = s2_y_reg + (dir_15 ? xs_15 : ~xs_15) + {20'h00000, ~dir_15 ^ s2_x_reg[14]};
-    wire [6:0] z_16 = s2_z_reg[6:0] + (dir_15 ? ~ATAN_15 : ATAN_15) + {6'h00, dir_15};
+    wire [XY_W-1:0] y_16 = s2_y_reg + (dir_y_15 ? xs_15 : ~xs_15) + {20'h00000, ~dir_y_15 ^ s2_x_reg[14]};
+    wire [7:0] z_16 = s2_z_reg[7:0] + (dir_15 ? ~ATAN_15 : ATAN_15) + {7'h00, dir_15};
     // iteration 16: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_16 = (z_16 < 7'h40);
+    wire dir_16 = (z_16 < 8'h80);
+    wire dir_y_16 = (z_16[6:0] < 7'h40);
     wire [XY_W-1:0] xs_16 = {{16{x_16[20]}}, x_16[20:16]};  // x >>> 16
     wire [XY_W-1:0] ys_16 = {{16{y_16[20]}}, y_16[20:16]};  // y >>> 16
     wire [XY_W-1:0] x_17 = x_16 + (dir_16 ? ~ys_16 : ys_16) + {20'h00000, dir_16 ^ y_16[15]};
-    wire [XY_W-1:0] y_17 = y_16 + (dir_16 ? xs_16 : ~xs_16) + {20'h00000, ~dir_16 ^ x_16[15]};
-    wire [5:0] z_17 = z_16[5:0] + (dir_16 ? ~ATAN_16 : ATAN_16) + {5'h00, dir_16};
+    wire [XY_W-1:0] y_17 = y_16 + (dir_y_16 ? xs_16 : ~xs_16) + {20'h00000, ~dir_y_16 ^ x_16[15]};
+    wire [6:0] z_17 = z_16[6:0] + (dir_16 ? ~ATAN_16 : ATAN_16) + {6'h00, dir_16};
     // iteration 17: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_17 = (z_17 < 6'h20);
+    wire dir_17 = (z_17 < 7'h40);
+    wire dir_y_17 = (z_17[5:0] < 6'h20);
     wire [XY_W-1:0] xs_17 = {{17{x_17[20]}}, x_17[20:17]};  // x >>> 17
     wire [XY_W-1:0] ys_17 = {{17{y_17[20]}}, y_17[20:17]};  // y >>> 17
     wire [XY_W-1:0] x_18 = x_17 + (dir_17 ? ~ys_17 : ys_17) + {20'h00000, dir_17 ^ y_17[16]};
-    wire [XY_W-1:0] y_18 = y_17 + (dir_17 ? xs_17 : ~xs_17) + {20'h00000, ~dir_17 ^ x_17[16]};
-    wire [4:0] z_18 = z_17[4:0] + (dir_17 ? ~ATAN_17 : ATAN_17) + {4'h0, dir_17};
+    wire [XY_W-1:0] y_18 = y_17 + (dir_y_17 ? xs_17 : ~xs_17) + {20'h00000, ~dir_y_17 ^ x_17[16]};
+    wire [5:0] z_18 = z_17[5:0] + (dir_17 ? ~ATAN_17 : ATAN_17) + {5'h00, dir_17};
     // iteration 18: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_18 = (z_18 < 5'h10);
+    wire dir_18 = (z_18 < 6'h20);
+    wire dir_y_18 = (z_18[4:0] < 5'h10);
     wire [XY_W-1:0] xs_18 = {{18{x_18[20]}}, x_18[20:18]};  // x >>> 18
     wire [XY_W-1:0] ys_18 = {{18{y_18[20]}}, y_18[20:18]};  // y >>> 18
     wire [XY_W-1:0] x_19 = x_18 + (dir_18 ? ~ys_18 : ys_18) + {20'h00000, dir_18 ^ y_18[17]};
-    wire [XY_W-1:0] y_19 = y_18 + (dir_18 ? xs_18 : ~xs_18) + {20'h00000, ~dir_18 ^ x_18[17]};
-    wire [3:0] z_19 = z_18[3:0] + (dir_18 ? ~ATAN_18 : ATAN_18) + {3'h0, dir_18};
+    wire [XY_W-1:0] y_19 = y_18 + (dir_y_18 ? xs_18 : ~xs_18) + {20'h00000, ~dir_y_18 ^ x_18[17]};
+    wire [4:0] z_19 = z_18[4:0] + (dir_18 ? ~ATAN_18 : ATAN_18) + {4'h0, dir_18};
     // iteration 19: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_19 = (z_19 < 4'h8);
+    wire dir_19 = (z_19 < 5'h10);
+    wire dir_y_19 = (z_19[3:0] < 4'h8);
     wire [XY_W-1:0] xs_19 = {{19{x_19[20]}}, x_19[20:19]};  // x >>> 19
     wire [XY_W-1:0] ys_19 = {{19{y_19[20]}}, y_19[20:19]};  // y >>> 19
     wire [XY_W-1:0] s3_x = x_19 + (dir_19 ? ~ys_19 : ys_19) + {20'h00000, dir_19 ^ y_19[18]};
-    wire [XY_W-1:0] s3_y = y_19 + (dir_19 ? xs_19 : ~xs_19) + {20'h00000, ~dir_19 ^ x_19[18]};
+    wire [XY_W-1:0] s3_y = y_19 + (dir_y_19 ? xs_19 : ~xs_19) + {20'h00000, ~dir_y_19 ^ x_19[18]};
 
     // ---- output register: the last iteration's values, held so that rounding and
     // saturation have a clock of their own ----

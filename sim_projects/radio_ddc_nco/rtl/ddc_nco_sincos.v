@@ -60,23 +60,25 @@ module ddc_nco_sincos (
     // z narrows stage by stage: after iteration i it is within about +-atan(2^-i), so its top
     // bits are copies of its sign and are not formed (bounds over every input); each angle
     // constant has the width of the z its iteration forms.
+    // Where z feeds x and y adders it keeps one sign copy more: x's and z's direction
+    // reads the top bit, y's (dir_y_*) the one below, so each drives half the loads.
     localparam [19:0] ATAN_0 = 20'h80000;  // atan(2^-0) in turns
     localparam [19:0] ATAN_1 = 20'h4b901;  // atan(2^-1) in turns
-    localparam [18:0] ATAN_2 = 19'h27ece;  // atan(2^-2) in turns
-    localparam [17:0] ATAN_3 = 18'h14444;  // atan(2^-3) in turns
-    localparam [16:0] ATAN_4 = 17'h0a2c3;  // atan(2^-4) in turns
-    localparam [15:0] ATAN_5 = 16'h5176;  // atan(2^-5) in turns
-    localparam [14:0] ATAN_6 = 15'h28be;  // atan(2^-6) in turns
-    localparam [13:0] ATAN_7 = 14'h145f;  // atan(2^-7) in turns
-    localparam [12:0] ATAN_8 = 13'h0a30;  // atan(2^-8) in turns
-    localparam [11:0] ATAN_9 = 12'h518;  // atan(2^-9) in turns
-    localparam [10:0] ATAN_10 = 11'h28c;  // atan(2^-10) in turns
-    localparam [9:0] ATAN_11 = 10'h146;  // atan(2^-11) in turns
-    localparam [8:0] ATAN_12 = 9'h0a3;  // atan(2^-12) in turns
-    localparam [7:0] ATAN_13 = 8'h51;  // atan(2^-13) in turns
-    localparam [6:0] ATAN_14 = 7'h29;  // atan(2^-14) in turns
-    localparam [5:0] ATAN_15 = 6'h14;  // atan(2^-15) in turns
-    localparam [4:0] ATAN_16 = 5'h0a;  // atan(2^-16) in turns
+    localparam [19:0] ATAN_2 = 20'h27ece;  // atan(2^-2) in turns
+    localparam [18:0] ATAN_3 = 19'h14444;  // atan(2^-3) in turns
+    localparam [17:0] ATAN_4 = 18'h0a2c3;  // atan(2^-4) in turns
+    localparam [16:0] ATAN_5 = 17'h05176;  // atan(2^-5) in turns
+    localparam [15:0] ATAN_6 = 16'h28be;  // atan(2^-6) in turns
+    localparam [14:0] ATAN_7 = 15'h145f;  // atan(2^-7) in turns
+    localparam [13:0] ATAN_8 = 14'h0a30;  // atan(2^-8) in turns
+    localparam [12:0] ATAN_9 = 13'h0518;  // atan(2^-9) in turns
+    localparam [11:0] ATAN_10 = 12'h28c;  // atan(2^-10) in turns
+    localparam [10:0] ATAN_11 = 11'h146;  // atan(2^-11) in turns
+    localparam [9:0] ATAN_12 = 10'h0a3;  // atan(2^-12) in turns
+    localparam [8:0] ATAN_13 = 9'h051;  // atan(2^-13) in turns
+    localparam [7:0] ATAN_14 = 8'h29;  // atan(2^-14) in turns
+    localparam [6:0] ATAN_15 = 7'h14;  // atan(2^-15) in turns
+    localparam [5:0] ATAN_16 = 6'h0a;  // atan(2^-16) in turns
 
     // The pipeline advances while the output buffer can take a sample.
     wire advance;
@@ -150,7 +152,7 @@ module ddc_nco_sincos (
     // ---- stage 2: iteration 2 ----
     // iteration 2: turn counter-clockwise when the remaining angle is >= 0
     wire dir_2 = (s1_z_reg < 20'h80000);
-    wire [18:0] s2_z = s1_z_reg[18:0] + (dir_2 ? ~ATAN_2 : ATAN_2) + {18'h00000, dir_2};
+    wire [19:0] s2_z = s1_z_reg + (dir_2 ? ~ATAN_2 : ATAN_2) + {19'h00000, dir_2};
     // x and y after iteration 2 depend only on the fold and the directions of iterations
     // 0 to 2 (z alone decides them): read from a table of the 16 cases, computed
     // with the iterations' own arithmetic, instead of adding.
@@ -160,7 +162,7 @@ module ddc_nco_sincos (
     reg s2_valid_reg;
     reg [XY_W-1:0] s2_x_reg;
     reg [XY_W-1:0] s2_y_reg;
-    reg [18:0] s2_z_reg;
+    reg [19:0] s2_z_reg;
     reg [3:0] s2_tag_reg;
 
     always @(posedge clk) begin
@@ -182,17 +184,18 @@ module ddc_nco_sincos (
 
     // ---- stage 3: iteration 3 ----
     // iteration 3: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_3 = (s2_z_reg < 19'h40000);
+    wire dir_3 = (s2_z_reg < 20'h80000);
+    wire dir_y_3 = (s2_z_reg[18:0] < 19'h40000);
     wire [XY_W-1:0] xs_3 = {{3{s2_x_reg[19]}}, s2_x_reg[19:3]};  // x >>> 3
     wire [XY_W-1:0] ys_3 = {{3{s2_y_reg[19]}}, s2_y_reg[19:3]};  // y >>> 3
     wire [XY_W-1:0] s3_x = s2_x_reg + (dir_3 ? ~ys_3 : ys_3) + {19'h00000, dir_3 ^ s2_y_reg[2]};
-    wire [XY_W-1:0] s3_y = s2_y_reg + (dir_3 ? xs_3 : ~xs_3) + {19'h00000, ~dir_3 ^ s2_x_reg[2]};
-    wire [17:0] s3_z = s2_z_reg[17:0] + (dir_3 ? ~ATAN_3 : ATAN_3) + {17'h00000, dir_3};
+    wire [XY_W-1:0] s3_y = s2_y_reg + (dir_y_3 ? xs_3 : ~xs_3) + {19'h00000, ~dir_y_3 ^ s2_x_reg[2]};
+    wire [18:0] s3_z = s2_z_reg[18:0] + (dir_3 ? ~ATAN_3 : ATAN_3) + {18'h00000, dir_3};
 
     reg s3_valid_reg;
     reg [XY_W-1:0] s3_x_reg;
     reg [XY_W-1:0] s3_y_reg;
-    reg [17:0] s3_z_reg;
+    reg [18:0] s3_z_reg;
     reg [3:0] s3_tag_reg;
 
     always @(posedge clk) begin
@@ -214,17 +217,18 @@ module ddc_nco_sincos (
 
     // ---- stage 4: iteration 4 ----
     // iteration 4: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_4 = (s3_z_reg < 18'h20000);
+    wire dir_4 = (s3_z_reg < 19'h40000);
+    wire dir_y_4 = (s3_z_reg[17:0] < 18'h20000);
     wire [XY_W-1:0] xs_4 = {{4{s3_x_reg[19]}}, s3_x_reg[19:4]};  // x >>> 4
     wire [XY_W-1:0] ys_4 = {{4{s3_y_reg[19]}}, s3_y_reg[19:4]};  // y >>> 4
     wire [XY_W-1:0] s4_x = s3_x_reg + (dir_4 ? ~ys_4 : ys_4) + {19'h00000, dir_4 ^ s3_y_reg[3]};
-    wire [XY_W-1:0] s4_y = s3_y_reg + (dir_4 ? xs_4 : ~xs_4) + {19'h00000, ~dir_4 ^ s3_x_reg[3]};
-    wire [16:0] s4_z = s3_z_reg[16:0] + (dir_4 ? ~ATAN_4 : ATAN_4) + {16'h0000, dir_4};
+    wire [XY_W-1:0] s4_y = s3_y_reg + (dir_y_4 ? xs_4 : ~xs_4) + {19'h00000, ~dir_y_4 ^ s3_x_reg[3]};
+    wire [17:0] s4_z = s3_z_reg[17:0] + (dir_4 ? ~ATAN_4 : ATAN_4) + {17'h00000, dir_4};
 
     reg s4_valid_reg;
     reg [XY_W-1:0] s4_x_reg;
     reg [XY_W-1:0] s4_y_reg;
-    reg [16:0] s4_z_reg;
+    reg [17:0] s4_z_reg;
     reg [3:0] s4_tag_reg;
 
     always @(posedge clk) begin
@@ -246,17 +250,18 @@ module ddc_nco_sincos (
 
     // ---- stage 5: iteration 5 ----
     // iteration 5: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_5 = (s4_z_reg < 17'h10000);
+    wire dir_5 = (s4_z_reg < 18'h20000);
+    wire dir_y_5 = (s4_z_reg[16:0] < 17'h10000);
     wire [XY_W-1:0] xs_5 = {{5{s4_x_reg[19]}}, s4_x_reg[19:5]};  // x >>> 5
     wire [XY_W-1:0] ys_5 = {{5{s4_y_reg[19]}}, s4_y_reg[19:5]};  // y >>> 5
     wire [XY_W-1:0] s5_x = s4_x_reg + (dir_5 ? ~ys_5 : ys_5) + {19'h00000, dir_5 ^ s4_y_reg[4]};
-    wire [XY_W-1:0] s5_y = s4_y_reg + (dir_5 ? xs_5 : ~xs_5) + {19'h00000, ~dir_5 ^ s4_x_reg[4]};
-    wire [15:0] s5_z = s4_z_reg[15:0] + (dir_5 ? ~ATAN_5 : ATAN_5) + {15'h0000, dir_5};
+    wire [XY_W-1:0] s5_y = s4_y_reg + (dir_y_5 ? xs_5 : ~xs_5) + {19'h00000, ~dir_y_5 ^ s4_x_reg[4]};
+    wire [16:0] s5_z = s4_z_reg[16:0] + (dir_5 ? ~ATAN_5 : ATAN_5) + {16'h0000, dir_5};
 
     reg s5_valid_reg;
     reg [XY_W-1:0] s5_x_reg;
     reg [XY_W-1:0] s5_y_reg;
-    reg [15:0] s5_z_reg;
+    reg [16:0] s5_z_reg;
     reg [3:0] s5_tag_reg;
 
     always @(posedge clk) begin
@@ -278,17 +283,18 @@ module ddc_nco_sincos (
 
     // ---- stage 6: iteration 6 ----
     // iteration 6: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_6 = (s5_z_reg < 16'h8000);
+    wire dir_6 = (s5_z_reg < 17'h10000);
+    wire dir_y_6 = (s5_z_reg[15:0] < 16'h8000);
     wire [XY_W-1:0] xs_6 = {{6{s5_x_reg[19]}}, s5_x_reg[19:6]};  // x >>> 6
     wire [XY_W-1:0] ys_6 = {{6{s5_y_reg[19]}}, s5_y_reg[19:6]};  // y >>> 6
     wire [XY_W-1:0] s6_x = s5_x_reg + (dir_6 ? ~ys_6 : ys_6) + {19'h00000, dir_6 ^ s5_y_reg[5]};
-    wire [XY_W-1:0] s6_y = s5_y_reg + (dir_6 ? xs_6 : ~xs_6) + {19'h00000, ~dir_6 ^ s5_x_reg[5]};
-    wire [14:0] s6_z = s5_z_reg[14:0] + (dir_6 ? ~ATAN_6 : ATAN_6) + {14'h0000, dir_6};
+    wire [XY_W-1:0] s6_y = s5_y_reg + (dir_y_6 ? xs_6 : ~xs_6) + {19'h00000, ~dir_y_6 ^ s5_x_reg[5]};
+    wire [15:0] s6_z = s5_z_reg[15:0] + (dir_6 ? ~ATAN_6 : ATAN_6) + {15'h0000, dir_6};
 
     reg s6_valid_reg;
     reg [XY_W-1:0] s6_x_reg;
     reg [XY_W-1:0] s6_y_reg;
-    reg [14:0] s6_z_reg;
+    reg [15:0] s6_z_reg;
     reg [3:0] s6_tag_reg;
 
     always @(posedge clk) begin
@@ -310,17 +316,18 @@ module ddc_nco_sincos (
 
     // ---- stage 7: iteration 7 ----
     // iteration 7: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_7 = (s6_z_reg < 15'h4000);
+    wire dir_7 = (s6_z_reg < 16'h8000);
+    wire dir_y_7 = (s6_z_reg[14:0] < 15'h4000);
     wire [XY_W-1:0] xs_7 = {{7{s6_x_reg[19]}}, s6_x_reg[19:7]};  // x >>> 7
     wire [XY_W-1:0] ys_7 = {{7{s6_y_reg[19]}}, s6_y_reg[19:7]};  // y >>> 7
     wire [XY_W-1:0] s7_x = s6_x_reg + (dir_7 ? ~ys_7 : ys_7) + {19'h00000, dir_7 ^ s6_y_reg[6]};
-    wire [XY_W-1:0] s7_y = s6_y_reg + (dir_7 ? xs_7 : ~xs_7) + {19'h00000, ~dir_7 ^ s6_x_reg[6]};
-    wire [13:0] s7_z = s6_z_reg[13:0] + (dir_7 ? ~ATAN_7 : ATAN_7) + {13'h0000, dir_7};
+    wire [XY_W-1:0] s7_y = s6_y_reg + (dir_y_7 ? xs_7 : ~xs_7) + {19'h00000, ~dir_y_7 ^ s6_x_reg[6]};
+    wire [14:0] s7_z = s6_z_reg[14:0] + (dir_7 ? ~ATAN_7 : ATAN_7) + {14'h0000, dir_7};
 
     reg s7_valid_reg;
     reg [XY_W-1:0] s7_x_reg;
     reg [XY_W-1:0] s7_y_reg;
-    reg [13:0] s7_z_reg;
+    reg [14:0] s7_z_reg;
     reg [3:0] s7_tag_reg;
 
     always @(posedge clk) begin
@@ -342,17 +349,18 @@ module ddc_nco_sincos (
 
     // ---- stage 8: iteration 8 ----
     // iteration 8: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_8 = (s7_z_reg < 14'h2000);
+    wire dir_8 = (s7_z_reg < 15'h4000);
+    wire dir_y_8 = (s7_z_reg[13:0] < 14'h2000);
     wire [XY_W-1:0] xs_8 = {{8{s7_x_reg[19]}}, s7_x_reg[19:8]};  // x >>> 8
     wire [XY_W-1:0] ys_8 = {{8{s7_y_reg[19]}}, s7_y_reg[19:8]};  // y >>> 8
     wire [XY_W-1:0] s8_x = s7_x_reg + (dir_8 ? ~ys_8 : ys_8) + {19'h00000, dir_8 ^ s7_y_reg[7]};
-    wire [XY_W-1:0] s8_y = s7_y_reg + (dir_8 ? xs_8 : ~xs_8) + {19'h00000, ~dir_8 ^ s7_x_reg[7]};
-    wire [12:0] s8_z = s7_z_reg[12:0] + (dir_8 ? ~ATAN_8 : ATAN_8) + {12'h000, dir_8};
+    wire [XY_W-1:0] s8_y = s7_y_reg + (dir_y_8 ? xs_8 : ~xs_8) + {19'h00000, ~dir_y_8 ^ s7_x_reg[7]};
+    wire [13:0] s8_z = s7_z_reg[13:0] + (dir_8 ? ~ATAN_8 : ATAN_8) + {13'h0000, dir_8};
 
     reg s8_valid_reg;
     reg [XY_W-1:0] s8_x_reg;
     reg [XY_W-1:0] s8_y_reg;
-    reg [12:0] s8_z_reg;
+    reg [13:0] s8_z_reg;
     reg [3:0] s8_tag_reg;
 
     always @(posedge clk) begin
@@ -374,17 +382,18 @@ module ddc_nco_sincos (
 
     // ---- stage 9: iteration 9 ----
     // iteration 9: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_9 = (s8_z_reg < 13'h1000);
+    wire dir_9 = (s8_z_reg < 14'h2000);
+    wire dir_y_9 = (s8_z_reg[12:0] < 13'h1000);
     wire [XY_W-1:0] xs_9 = {{9{s8_x_reg[19]}}, s8_x_reg[19:9]};  // x >>> 9
     wire [XY_W-1:0] ys_9 = {{9{s8_y_reg[19]}}, s8_y_reg[19:9]};  // y >>> 9
     wire [XY_W-1:0] s9_x = s8_x_reg + (dir_9 ? ~ys_9 : ys_9) + {19'h00000, dir_9 ^ s8_y_reg[8]};
-    wire [XY_W-1:0] s9_y = s8_y_reg + (dir_9 ? xs_9 : ~xs_9) + {19'h00000, ~dir_9 ^ s8_x_reg[8]};
-    wire [11:0] s9_z = s8_z_reg[11:0] + (dir_9 ? ~ATAN_9 : ATAN_9) + {11'h000, dir_9};
+    wire [XY_W-1:0] s9_y = s8_y_reg + (dir_y_9 ? xs_9 : ~xs_9) + {19'h00000, ~dir_y_9 ^ s8_x_reg[8]};
+    wire [12:0] s9_z = s8_z_reg[12:0] + (dir_9 ? ~ATAN_9 : ATAN_9) + {12'h000, dir_9};
 
     reg s9_valid_reg;
     reg [XY_W-1:0] s9_x_reg;
     reg [XY_W-1:0] s9_y_reg;
-    reg [11:0] s9_z_reg;
+    reg [12:0] s9_z_reg;
     reg [3:0] s9_tag_reg;
 
     always @(posedge clk) begin
@@ -406,17 +415,18 @@ module ddc_nco_sincos (
 
     // ---- stage 10: iteration 10 ----
     // iteration 10: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_10 = (s9_z_reg < 12'h800);
+    wire dir_10 = (s9_z_reg < 13'h1000);
+    wire dir_y_10 = (s9_z_reg[11:0] < 12'h800);
     wire [XY_W-1:0] xs_10 = {{10{s9_x_reg[19]}}, s9_x_reg[19:10]};  // x >>> 10
     wire [XY_W-1:0] ys_10 = {{10{s9_y_reg[19]}}, s9_y_reg[19:10]};  // y >>> 10
     wire [XY_W-1:0] s10_x = s9_x_reg + (dir_10 ? ~ys_10 : ys_10) + {19'h00000, dir_10 ^ s9_y_reg[9]};
-    wire [XY_W-1:0] s10_y = s9_y_reg + (dir_10 ? xs_10 : ~xs_10) + {19'h00000, ~dir_10 ^ s9_x_reg[9]};
-    wire [10:0] s10_z = s9_z_reg[10:0] + (dir_10 ? ~ATAN_10 : ATAN_10) + {10'h000, dir_10};
+    wire [XY_W-1:0] s10_y = s9_y_reg + (dir_y_10 ? xs_10 : ~xs_10) + {19'h00000, ~dir_y_10 ^ s9_x_reg[9]};
+    wire [11:0] s10_z = s9_z_reg[11:0] + (dir_10 ? ~ATAN_10 : ATAN_10) + {11'h000, dir_10};
 
     reg s10_valid_reg;
     reg [XY_W-1:0] s10_x_reg;
     reg [XY_W-1:0] s10_y_reg;
-    reg [10:0] s10_z_reg;
+    reg [11:0] s10_z_reg;
     reg [3:0] s10_tag_reg;
 
     always @(posedge clk) begin
@@ -438,17 +448,18 @@ module ddc_nco_sincos (
 
     // ---- stage 11: iteration 11 ----
     // iteration 11: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_11 = (s10_z_reg < 11'h400);
+    wire dir_11 = (s10_z_reg < 12'h800);
+    wire dir_y_11 = (s10_z_reg[10:0] < 11'h400);
     wire [XY_W-1:0] xs_11 = {{11{s10_x_reg[19]}}, s10_x_reg[19:11]};  // x >>> 11
     wire [XY_W-1:0] ys_11 = {{11{s10_y_reg[19]}}, s10_y_reg[19:11]};  // y >>> 11
     wire [XY_W-1:0] s11_x = s10_x_reg + (dir_11 ? ~ys_11 : ys_11) + {19'h00000, dir_11 ^ s10_y_reg[10]};
-    wire [XY_W-1:0] s11_y = s10_y_reg + (dir_11 ? xs_11 : ~xs_11) + {19'h00000, ~dir_11 ^ s10_x_reg[10]};
-    wire [9:0] s11_z = s10_z_reg[9:0] + (dir_11 ? ~ATAN_11 : ATAN_11) + {9'h000, dir_11};
+    wire [XY_W-1:0] s11_y = s10_y_reg + (dir_y_11 ? xs_11 : ~xs_11) + {19'h00000, ~dir_y_11 ^ s10_x_reg[10]};
+    wire [10:0] s11_z = s10_z_reg[10:0] + (dir_11 ? ~ATAN_11 : ATAN_11) + {10'h000, dir_11};
 
     reg s11_valid_reg;
     reg [XY_W-1:0] s11_x_reg;
     reg [XY_W-1:0] s11_y_reg;
-    reg [9:0] s11_z_reg;
+    reg [10:0] s11_z_reg;
     reg [3:0] s11_tag_reg;
 
     always @(posedge clk) begin
@@ -470,17 +481,18 @@ module ddc_nco_sincos (
 
     // ---- stage 12: iteration 12 ----
     // iteration 12: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_12 = (s11_z_reg < 10'h200);
+    wire dir_12 = (s11_z_reg < 11'h400);
+    wire dir_y_12 = (s11_z_reg[9:0] < 10'h200);
     wire [XY_W-1:0] xs_12 = {{12{s11_x_reg[19]}}, s11_x_reg[19:12]};  // x >>> 12
     wire [XY_W-1:0] ys_12 = {{12{s11_y_reg[19]}}, s11_y_reg[19:12]};  // y >>> 12
     wire [XY_W-1:0] s12_x = s11_x_reg + (dir_12 ? ~ys_12 : ys_12) + {19'h00000, dir_12 ^ s11_y_reg[11]};
-    wire [XY_W-1:0] s12_y = s11_y_reg + (dir_12 ? xs_12 : ~xs_12) + {19'h00000, ~dir_12 ^ s11_x_reg[11]};
-    wire [8:0] s12_z = s11_z_reg[8:0] + (dir_12 ? ~ATAN_12 : ATAN_12) + {8'h00, dir_12};
+    wire [XY_W-1:0] s12_y = s11_y_reg + (dir_y_12 ? xs_12 : ~xs_12) + {19'h00000, ~dir_y_12 ^ s11_x_reg[11]};
+    wire [9:0] s12_z = s11_z_reg[9:0] + (dir_12 ? ~ATAN_12 : ATAN_12) + {9'h000, dir_12};
 
     reg s12_valid_reg;
     reg [XY_W-1:0] s12_x_reg;
     reg [XY_W-1:0] s12_y_reg;
-    reg [8:0] s12_z_reg;
+    reg [9:0] s12_z_reg;
     reg [3:0] s12_tag_reg;
 
     always @(posedge clk) begin
@@ -502,17 +514,18 @@ module ddc_nco_sincos (
 
     // ---- stage 13: iteration 13 ----
     // iteration 13: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_13 = (s12_z_reg < 9'h100);
+    wire dir_13 = (s12_z_reg < 10'h200);
+    wire dir_y_13 = (s12_z_reg[8:0] < 9'h100);
     wire [XY_W-1:0] xs_13 = {{13{s12_x_reg[19]}}, s12_x_reg[19:13]};  // x >>> 13
     wire [XY_W-1:0] ys_13 = {{13{s12_y_reg[19]}}, s12_y_reg[19:13]};  // y >>> 13
     wire [XY_W-1:0] s13_x = s12_x_reg + (dir_13 ? ~ys_13 : ys_13) + {19'h00000, dir_13 ^ s12_y_reg[12]};
-    wire [XY_W-1:0] s13_y = s12_y_reg + (dir_13 ? xs_13 : ~xs_13) + {19'h00000, ~dir_13 ^ s12_x_reg[12]};
-    wire [7:0] s13_z = s12_z_reg[7:0] + (dir_13 ? ~ATAN_13 : ATAN_13) + {7'h00, dir_13};
+    wire [XY_W-1:0] s13_y = s12_y_reg + (dir_y_13 ? xs_13 : ~xs_13) + {19'h00000, ~dir_y_13 ^ s12_x_reg[12]};
+    wire [8:0] s13_z = s12_z_reg[8:0] + (dir_13 ? ~ATAN_13 : ATAN_13) + {8'h00, dir_13};
 
     reg s13_valid_reg;
     reg [XY_W-1:0] s13_x_reg;
     reg [XY_W-1:0] s13_y_reg;
-    reg [7:0] s13_z_reg;
+    reg [8:0] s13_z_reg;
     reg [3:0] s13_tag_reg;
 
     always @(posedge clk) begin
@@ -534,17 +547,18 @@ module ddc_nco_sincos (
 
     // ---- stage 14: iteration 14 ----
     // iteration 14: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_14 = (s13_z_reg < 8'h80);
+    wire dir_14 = (s13_z_reg < 9'h100);
+    wire dir_y_14 = (s13_z_reg[7:0] < 8'h80);
     wire [XY_W-1:0] xs_14 = {{14{s13_x_reg[19]}}, s13_x_reg[19:14]};  // x >>> 14
     wire [XY_W-1:0] ys_14 = {{14{s13_y_reg[19]}}, s13_y_reg[19:14]};  // y >>> 14
     wire [XY_W-1:0] s14_x = s13_x_reg + (dir_14 ? ~ys_14 : ys_14) + {19'h00000, dir_14 ^ s13_y_reg[13]};
-    wire [XY_W-1:0] s14_y = s13_y_reg + (dir_14 ? xs_14 : ~xs_14) + {19'h00000, ~dir_14 ^ s13_x_reg[13]};
-    wire [6:0] s14_z = s13_z_reg[6:0] + (dir_14 ? ~ATAN_14 : ATAN_14) + {6'h00, dir_14};
+    wire [XY_W-1:0] s14_y = s13_y_reg + (dir_y_14 ? xs_14 : ~xs_14) + {19'h00000, ~dir_y_14 ^ s13_x_reg[13]};
+    wire [7:0] s14_z = s13_z_reg[7:0] + (dir_14 ? ~ATAN_14 : ATAN_14) + {7'h00, dir_14};
 
     reg s14_valid_reg;
     reg [XY_W-1:0] s14_x_reg;
     reg [XY_W-1:0] s14_y_reg;
-    reg [6:0] s14_z_reg;
+    reg [7:0] s14_z_reg;
     reg [3:0] s14_tag_reg;
 
     always @(posedge clk) begin
@@ -566,17 +580,18 @@ module ddc_nco_sincos (
 
     // ---- stage 15: iteration 15 ----
     // iteration 15: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_15 = (s14_z_reg < 7'h40);
+    wire dir_15 = (s14_z_reg < 8'h80);
+    wire dir_y_15 = (s14_z_reg[6:0] < 7'h40);
     wire [XY_W-1:0] xs_15 = {{15{s14_x_reg[19]}}, s14_x_reg[19:15]};  // x >>> 15
     wire [XY_W-1:0] ys_15 = {{15{s14_y_reg[19]}}, s14_y_reg[19:15]};  // y >>> 15
     wire [XY_W-1:0] s15_x = s14_x_reg + (dir_15 ? ~ys_15 : ys_15) + {19'h00000, dir_15 ^ s14_y_reg[14]};
-    wire [XY_W-1:0] s15_y = s14_y_reg + (dir_15 ? xs_15 : ~xs_15) + {19'h00000, ~dir_15 ^ s14_x_reg[14]};
-    wire [5:0] s15_z = s14_z_reg[5:0] + (dir_15 ? ~ATAN_15 : ATAN_15) + {5'h00, dir_15};
+    wire [XY_W-1:0] s15_y = s14_y_reg + (dir_y_15 ? xs_15 : ~xs_15) + {19'h00000, ~dir_y_15 ^ s14_x_reg[14]};
+    wire [6:0] s15_z = s14_z_reg[6:0] + (dir_15 ? ~ATAN_15 : ATAN_15) + {6'h00, dir_15};
 
     reg s15_valid_reg;
     reg [XY_W-1:0] s15_x_reg;
     reg [XY_W-1:0] s15_y_reg;
-    reg [5:0] s15_z_reg;
+    reg [6:0] s15_z_reg;
     reg [3:0] s15_tag_reg;
 
     always @(posedge clk) begin
@@ -598,17 +613,18 @@ module ddc_nco_sincos (
 
     // ---- stage 16: iteration 16 ----
     // iteration 16: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_16 = (s15_z_reg < 6'h20);
+    wire dir_16 = (s15_z_reg < 7'h40);
+    wire dir_y_16 = (s15_z_reg[5:0] < 6'h20);
     wire [XY_W-1:0] xs_16 = {{16{s15_x_reg[19]}}, s15_x_reg[19:16]};  // x >>> 16
     wire [XY_W-1:0] ys_16 = {{16{s15_y_reg[19]}}, s15_y_reg[19:16]};  // y >>> 16
     wire [XY_W-1:0] s16_x = s15_x_reg + (dir_16 ? ~ys_16 : ys_16) + {19'h00000, dir_16 ^ s15_y_reg[15]};
-    wire [XY_W-1:0] s16_y = s15_y_reg + (dir_16 ? xs_16 : ~xs_16) + {19'h00000, ~dir_16 ^ s15_x_reg[15]};
-    wire [4:0] s16_z = s15_z_reg[4:0] + (dir_16 ? ~ATAN_16 : ATAN_16) + {4'h0, dir_16};
+    wire [XY_W-1:0] s16_y = s15_y_reg + (dir_y_16 ? xs_16 : ~xs_16) + {19'h00000, ~dir_y_16 ^ s15_x_reg[15]};
+    wire [5:0] s16_z = s15_z_reg[5:0] + (dir_16 ? ~ATAN_16 : ATAN_16) + {5'h00, dir_16};
 
     reg s16_valid_reg;
     reg [XY_W-1:0] s16_x_reg;
     reg [XY_W-1:0] s16_y_reg;
-    reg [4:0] s16_z_reg;
+    reg [5:0] s16_z_reg;
     reg [3:0] s16_tag_reg;
 
     always @(posedge clk) begin
@@ -630,11 +646,12 @@ module ddc_nco_sincos (
 
     // ---- stage 17: iteration 17 ----
     // iteration 17: turn counter-clockwise when the remaining angle is >= 0
-    wire dir_17 = (s16_z_reg < 5'h10);
+    wire dir_17 = (s16_z_reg < 6'h20);
+    wire dir_y_17 = (s16_z_reg[4:0] < 5'h10);
     wire [XY_W-1:0] xs_17 = {{17{s16_x_reg[19]}}, s16_x_reg[19:17]};  // x >>> 17
     wire [XY_W-1:0] ys_17 = {{17{s16_y_reg[19]}}, s16_y_reg[19:17]};  // y >>> 17
     wire [XY_W-1:0] s17_x = s16_x_reg + (dir_17 ? ~ys_17 : ys_17) + {19'h00000, dir_17 ^ s16_y_reg[16]};
-    wire [XY_W-1:0] s17_y = s16_y_reg + (dir_17 ? xs_17 : ~xs_17) + {19'h00000, ~dir_17 ^ s16_x_reg[16]};
+    wire [XY_W-1:0] s17_y = s16_y_reg + (dir_y_17 ? xs_17 : ~xs_17) + {19'h00000, ~dir_y_17 ^ s16_x_reg[16]};
 
     // ---- output register: the last iteration's values, held so that rounding and
     // saturation have a clock of their own ----
