@@ -349,8 +349,15 @@ class _Core:
         # rounding costs no adder.
         x_cin: Expr = Not(d) if hyperbolic else d
         y_cin: Expr = Not(d_y)
-        if dp.rounded_shifts and step.shift:
-            assert step.shift is not None and not x_low, "rounded shifts: fixed shifts of whole values"
+        if dp.rounded_shifts and step.shift is None:
+            # the shifter formed the rounding bits beside the terms (rounded_shifter)
+            assert self.has_y, "rounded shifts: functions that carry y"
+            if ys is not None:
+                x_cin = Xor(x_cin, b.sig(f"yr_{label}"))
+            if xs is not None:
+                y_cin = Xor(y_cin, b.sig(f"xr_{label}"))
+        elif dp.rounded_shifts and step.shift:
+            assert not x_low, "rounded shifts: fixed shifts of whole values"
             assert self.has_y, "rounded shifts: functions that carry y"
             if ys is not None and y_in is not None:
                 x_cin = Xor(x_cin, y_in[step.shift - 1])
@@ -1014,7 +1021,9 @@ class _Core:
                     assert src[1] is not None
                     names.append(("ys", src[1]))
                 for name, value in names:
-                    if by_count:
+                    if dp.rounded_shifts:
+                        self.rounded_shifter(name, value, j, looped[0] + j if by_count else None, amount)
+                    elif by_count:
                         assert amount is not None
                         fixed_part = sign_shift(value, looped[0] + j, W)
                         if not isinstance(fixed_part, Sig):
@@ -1081,6 +1090,35 @@ class _Core:
                 m.add(Assign(ready, Not(b.sig("o_valid_reg"))))
             else:
                 m.add(Assign(ready, b.sig("ready_reg")))
+
+    def rounded_shifter(self, name: str, value: Sig, j: int, base: int | None, amount: Sig | None) -> None:
+        """An iterative core's shifted term with its rounding bit: ``{name}_j{j}`` = value >>> s
+        and ``{name[0]}r_j{j}`` = bit s - 1 of value (0 where s = 0), for the clock's shift s.
+
+        The shifter shifts by s - 1 and a fixed 1 follows, so the bit below the shift is the
+        bit it drops, and no second shifter is needed (:func:`benchgen.model.shifted_term`).
+        ``base``: the fixed part of s where the count adds the rest (``amount``), else None
+        (s from the clock's table, ``shift_j{j}``). A shift that can be 0 shifts the value with
+        a zero below it (one bit wider), which is the same thing."""
+        b, W = self.b, self.b.W
+        if base is not None:
+            assert amount is not None
+            if base >= 1:
+                wide: Expr = sign_shift(value, base - 1, W)
+                if not isinstance(wide, Sig):
+                    wide = b.wire(f"{name[0]}p_j{j}", wide, f"{name[0]} >>> {base - 1}", of="xy")
+            else:
+                wide = Cat((value, Const(0, 1)))
+            by: Expr = amount
+        else:
+            wide, by = Cat((value, Const(0, 1))), b.sig(f"shift_j{j}")
+        w = b.wire(f"{name[0]}w_j{j}", Sra(wide, by), f"{name[0]} >>> (shift - 1)")
+        if w.width == W:
+            term = sign_shift(w, 1, W)
+        else:
+            term = Slice(w, W, 1)
+        b.wire(f"{name}_j{j}", term, f"{name[0]} >>> shift", of="xy")
+        b.wire(f"{name[0]}r_j{j}", w[0], "the bit below the shift: the rounding bit")
 
     def load_head(self, start: Start, head: int) -> Start:
         """The first ``head`` iterations in the clock that loads a sample: z steps by the angle

@@ -103,8 +103,7 @@ def valid_configs(draw: st.DrawFn) -> dict[str, Any]:
     if arch == "iterative" and draw(st.booleans()):
         config["iterations_per_cycle"] = draw(st.sampled_from(VALID["iterations_per_cycle"]))
     if function in ("sincos", "rotate") and draw(st.booleans()):
-        terms = VALID["shifted_terms"] if arch == "pipelined" else ["auto", "floored"]
-        config["shifted_terms"] = draw(st.sampled_from(terms))
+        config["shifted_terms"] = draw(st.sampled_from(VALID["shifted_terms"]))
     for field in ("iterations", "guard_bits", "rounding", "tag_width", "max_error_lsb", "vlnv_vendor", "vlnv_library",
                   "handshake"):
         if draw(st.booleans()):

@@ -88,8 +88,8 @@ def test_large_angle_space_is_sampled_not_exhaustive() -> None:
 
 
 def test_rounded_shifted_terms_follow_rounding_and_buy_a_guard_bit() -> None:
-    """A pipelined sincos or NCO that rounds its outputs rounds its shifted terms; a truncating
-    or iterative one floors them. At the 16-bit core's sized size the rounded terms meet the
+    """A sincos, rotate or NCO that rounds its outputs rounds its shifted terms, pipelined or
+    iterative; a truncating one floors them. At the 16-bit core's sized size the rounded terms meet the
     budget over every angle and floored ones miss it: one guard bit fewer than floored terms need."""
     base = {"name": "c", "function": "sincos", "data_width": 16, "angle_width": 16}
     design = build_design(parse_config(base))
@@ -107,12 +107,13 @@ def test_rounded_shifted_terms_follow_rounding_and_buy_a_guard_bit() -> None:
     for change, rounded in (
         ({"rounding": "truncate", "max_error_lsb": 3.0}, False),
         ({"rounding": "half_up"}, True),
-        ({"architecture": "iterative"}, False),
+        ({"architecture": "iterative"}, True),
+        ({"architecture": "iterative", "rounding": "truncate", "max_error_lsb": 3.0}, False),
     ):
         assert make_datapath(parse_config(base | change), 16, 4).rounded_shifts is rounded, change
     rotate = {"name": "c", "function": "rotate", "data_width": 12, "angle_width": 12}
     assert make_datapath(parse_config(rotate), 14, 4).rounded_shifts
-    assert not make_datapath(parse_config(rotate | {"architecture": "iterative"}), 14, 4).rounded_shifts
+    assert make_datapath(parse_config(rotate | {"architecture": "iterative"}), 14, 4).rounded_shifts
     nco = {"name": "c", "function": "nco", "data_width": 16, "angle_width": 12}
     assert make_datapath(parse_config(nco), 16, 4).rounded_shifts
     assert not make_datapath(parse_config(nco | {"rounding": "truncate", "max_error_lsb": 3.0}), 16, 4).rounded_shifts
@@ -130,10 +131,11 @@ def test_shifted_terms_field_overrides_the_rule_and_sizes_by_it() -> None:
     rounded = make_datapath(parse_config(base | {"shifted_terms": "rounded", "rounding": "truncate"}), 16, 4)
     assert rounded.rounded_shifts  # the field wins over the rounding rule
     assert parse_config(base | {"shifted_terms": "auto"}).shifted_terms is None
-    # refused: rounded terms in an iterative core, and the field where no function reads it
-    with pytest.raises(ConfigError) as exc:
-        parse_config(base | {"architecture": "iterative", "shifted_terms": "rounded"})
-    assert exc.value.field == "shifted_terms" and exc.value.suggestion == {"shifted_terms": "floored"}
+    iterative = {"architecture": "iterative"}
+    assert make_datapath(parse_config(base | iterative | {"shifted_terms": "rounded", "rounding": "truncate"}),
+                         16, 4).rounded_shifts
+    assert not make_datapath(parse_config(base | iterative | {"shifted_terms": "floored"}), 16, 4).rounded_shifts
+    # refused: the field where no function reads it, and a value it does not know
     with pytest.raises(ConfigError) as exc:
         parse_config({"name": "c", "function": "atan2", "shifted_terms": "floored"})
     assert exc.value.field == "shifted_terms"

@@ -26,7 +26,6 @@ from benchgen.algorithm import (
     csd_terms,
     pi_at,
 )
-from benchgen.errors import ConfigError
 from benchgen.functions.base import WIDE_ANGLE_BITS, WIDE_DATA_BITS, Function, below
 from benchgen.hwlib import Builder
 from benchgen.model import INT64_MODEL_BITS, to_signed
@@ -136,22 +135,12 @@ class CircularFunction(Function):
         that rounds its outputs rounds its shifted terms too (half up, through each adder's
         carry-in: one XOR per adder, no adder bits), which reaches 1 LSB at 16 bits with x and
         y one bit narrower (docs/hardware.md step 6); a truncating core, the cheapest by choice,
-        floors both. An iterative core shifts by a count, and the bit below a variable shift is
-        one more shifter: it floors them (:meth:`validate` refuses ``rounded`` there).
-        :meth:`circular_datapath` asks it for the functions that offer ``shifted_terms``."""
+        floors both. An iterative core, whose shift varies by clock, shifts by one less and then
+        by a fixed one, so the bit below the shift is the bit that falls off (docs/hardware.md
+        step 7). :meth:`circular_datapath` asks it for the functions that offer ``shifted_terms``."""
         if spec.shifted_terms is not None:
             return spec.shifted_terms == "rounded"
-        return spec.architecture == "pipelined" and spec.rounding != "truncate"
-
-    def validate(self, spec: CoreSpec) -> None:
-        if spec.shifted_terms == "rounded" and spec.architecture != "pipelined":
-            raise ConfigError(
-                "shifted_terms", spec.shifted_terms,
-                '"floored" in an iterative core (its shifts vary by clock; rounded terms are built '
-                "in pipelines only)",
-                'set shifted_terms = "floored" (or remove it), or architecture = "pipelined"',
-                suggestion={"shifted_terms": "floored"},
-            )  # fmt: skip
+        return spec.rounding != "truncate"
 
     @staticmethod
     def angle_guard(spec: CoreSpec, guard_bits: int) -> int:

@@ -10,7 +10,7 @@
  * Printed from the same description of the core as the RTL. This core iterates one sample over
  * 7 clocks, which one pass cannot print, so the model is printed from the pipelined core
  * of the same data path (the same iterations, constants and rounding: the same function).
- * Arithmetic: circular coordinates, rotation mode, 16 iterations, 4 guard bits (3 for z); x, y 18 bits, z 19 bits.
+ * Arithmetic: circular coordinates, rotation mode, 16 iterations, 4 guard bits (2 for z); x, y 18 bits, z 18 bits.
  * Gain: compensated (K = 0.60725293510313931731, removed by the start value).
  *
  * Ports (formats)
@@ -44,21 +44,21 @@
  */
 #include "park_angle_sincos.h"
 
-static const uint64_t ATAN_0 = UINT64_C(0x10000); /* atan(2^-0) in turns */
-static const uint64_t ATAN_1 = UINT64_C(0x9720); /* atan(2^-1) in turns */
-static const uint64_t ATAN_2 = UINT64_C(0x4fda); /* atan(2^-2) in turns */
-static const uint64_t ATAN_3 = UINT64_C(0x2889); /* atan(2^-3) in turns */
-static const uint64_t ATAN_4 = UINT64_C(0x1458); /* atan(2^-4) in turns */
-static const uint64_t ATAN_5 = UINT64_C(0xa2f); /* atan(2^-5) in turns */
-static const uint64_t ATAN_6 = UINT64_C(0x518); /* atan(2^-6) in turns */
-static const uint64_t ATAN_7 = UINT64_C(0x28c); /* atan(2^-7) in turns */
-static const uint64_t ATAN_8 = UINT64_C(0x146); /* atan(2^-8) in turns */
-static const uint64_t ATAN_9 = UINT64_C(0xa3); /* atan(2^-9) in turns */
-static const uint64_t ATAN_10 = UINT64_C(0x51); /* atan(2^-10) in turns */
-static const uint64_t ATAN_11 = UINT64_C(0x29); /* atan(2^-11) in turns */
-static const uint64_t ATAN_12 = UINT64_C(0x14); /* atan(2^-12) in turns */
-static const uint64_t ATAN_13 = UINT64_C(0xa); /* atan(2^-13) in turns */
-static const uint64_t ATAN_14 = UINT64_C(5); /* atan(2^-14) in turns */
+static const uint64_t ATAN_0 = UINT64_C(0x8000); /* atan(2^-0) in turns */
+static const uint64_t ATAN_1 = UINT64_C(0x4b90); /* atan(2^-1) in turns */
+static const uint64_t ATAN_2 = UINT64_C(0x27ed); /* atan(2^-2) in turns */
+static const uint64_t ATAN_3 = UINT64_C(0x1444); /* atan(2^-3) in turns */
+static const uint64_t ATAN_4 = UINT64_C(0xa2c); /* atan(2^-4) in turns */
+static const uint64_t ATAN_5 = UINT64_C(0x517); /* atan(2^-5) in turns */
+static const uint64_t ATAN_6 = UINT64_C(0x28c); /* atan(2^-6) in turns */
+static const uint64_t ATAN_7 = UINT64_C(0x146); /* atan(2^-7) in turns */
+static const uint64_t ATAN_8 = UINT64_C(0xa3); /* atan(2^-8) in turns */
+static const uint64_t ATAN_9 = UINT64_C(0x51); /* atan(2^-9) in turns */
+static const uint64_t ATAN_10 = UINT64_C(0x29); /* atan(2^-10) in turns */
+static const uint64_t ATAN_11 = UINT64_C(0x14); /* atan(2^-11) in turns */
+static const uint64_t ATAN_12 = UINT64_C(0xa); /* atan(2^-12) in turns */
+static const uint64_t ATAN_13 = UINT64_C(5); /* atan(2^-13) in turns */
+static const uint64_t ATAN_14 = UINT64_C(3); /* atan(2^-14) in turns */
 
 /* The w-bit two's complement code v as a number (no implementation-defined conversion). */
 static int64_t bg_signed(uint64_t v, unsigned w)
@@ -80,12 +80,12 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
     /* negated instead. What remains is within +-1/4 turn, inside the +-99.88 degree */
     /* convergence range. */
     const uint64_t in_fold = ((in_angle_bits >> 11) ^ ((in_angle_bits >> 10) & UINT64_C(1)));
-    const uint64_t z_start = ((((((in_angle_bits >> 10) & UINT64_C(1)) << 11) | (in_angle_bits & UINT64_C(0x7ff))) << 7) | UINT64_C(0));
+    const uint64_t z_start = ((((((in_angle_bits >> 10) & UINT64_C(1)) << 11) | (in_angle_bits & UINT64_C(0x7ff))) << 6) | UINT64_C(0));
 
     /* ---- stage 0: iteration 0 ---- */
     /* iteration 0: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_0 = (uint64_t)(z_start < UINT64_C(0x40000));
-    const uint64_t s0_z = (((z_start & UINT64_C(0x1ffff)) + (dir_0 ? ((~ATAN_0) & UINT64_C(0x1ffff)) : ATAN_0) + dir_0) & UINT64_C(0x1ffff));
+    const uint64_t dir_0 = (uint64_t)(z_start < UINT64_C(0x20000));
+    const uint64_t s0_z = (((z_start & UINT64_C(0xffff)) + (dir_0 ? ((~ATAN_0) & UINT64_C(0xffff)) : ATAN_0) + dir_0) & UINT64_C(0xffff));
 
     const uint64_t s0_valid_reg = in_valid;  /* register, passed through */
 
@@ -95,8 +95,8 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
 
     /* ---- stage 1: iteration 1 ---- */
     /* iteration 1: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_1 = (uint64_t)(s0_z_reg < UINT64_C(0x10000));
-    const uint64_t s1_z = ((s0_z_reg + (dir_1 ? ((~ATAN_1) & UINT64_C(0x1ffff)) : ATAN_1) + dir_1) & UINT64_C(0x1ffff));
+    const uint64_t dir_1 = (uint64_t)(s0_z_reg < UINT64_C(0x8000));
+    const uint64_t s1_z = ((s0_z_reg + (dir_1 ? ((~ATAN_1) & UINT64_C(0xffff)) : ATAN_1) + dir_1) & UINT64_C(0xffff));
 
     const uint64_t s1_valid_reg = s0_valid_reg;  /* register, passed through */
 
@@ -107,8 +107,8 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
 
     /* ---- stage 2: iteration 2 ---- */
     /* iteration 2: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_2 = (uint64_t)(s1_z_reg < UINT64_C(0x10000));
-    const uint64_t s2_z = ((s1_z_reg + (dir_2 ? ((~ATAN_2) & UINT64_C(0x1ffff)) : ATAN_2) + dir_2) & UINT64_C(0x1ffff));
+    const uint64_t dir_2 = (uint64_t)(s1_z_reg < UINT64_C(0x8000));
+    const uint64_t s2_z = ((s1_z_reg + (dir_2 ? ((~ATAN_2) & UINT64_C(0xffff)) : ATAN_2) + dir_2) & UINT64_C(0xffff));
     /* x and y after iteration 2 depend only on the fold and the directions of iterations */
     /* 0 to 2 (z alone decides them): read from a table of the 16 cases, computed */
     /* with the iterations' own arithmetic, instead of adding. */
@@ -123,13 +123,13 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
 
     /* ---- stage 3: iteration 3 ---- */
     /* iteration 3: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_3 = (uint64_t)(s2_z_reg < UINT64_C(0x10000));
-    const uint64_t dir_y_3 = (uint64_t)((s2_z_reg & UINT64_C(0xffff)) < UINT64_C(0x8000));
+    const uint64_t dir_3 = (uint64_t)(s2_z_reg < UINT64_C(0x8000));
+    const uint64_t dir_y_3 = (uint64_t)((s2_z_reg & UINT64_C(0x7fff)) < UINT64_C(0x4000));
     const uint64_t xs_3 = ((((s2_x_reg >> 17) ? UINT64_C(7) : UINT64_C(0)) << 15) | (s2_x_reg >> 3)); /* x >>> 3 */
     const uint64_t ys_3 = ((((s2_y_reg >> 17) ? UINT64_C(7) : UINT64_C(0)) << 15) | (s2_y_reg >> 3)); /* y >>> 3 */
-    const uint64_t s3_x = ((s2_x_reg + (dir_3 ? ((~ys_3) & UINT64_C(0x3ffff)) : ys_3) + dir_3) & UINT64_C(0x3ffff));
-    const uint64_t s3_y = ((s2_y_reg + (dir_y_3 ? xs_3 : ((~xs_3) & UINT64_C(0x3ffff))) + ((~dir_y_3) & UINT64_C(1))) & UINT64_C(0x3ffff));
-    const uint64_t s3_z = (((s2_z_reg & UINT64_C(0xffff)) + (dir_3 ? ((~ATAN_3) & UINT64_C(0xffff)) : ATAN_3) + dir_3) & UINT64_C(0xffff));
+    const uint64_t s3_x = ((s2_x_reg + (dir_3 ? ((~ys_3) & UINT64_C(0x3ffff)) : ys_3) + (dir_3 ^ ((s2_y_reg >> 2) & UINT64_C(1)))) & UINT64_C(0x3ffff));
+    const uint64_t s3_y = ((s2_y_reg + (dir_y_3 ? xs_3 : ((~xs_3) & UINT64_C(0x3ffff))) + (((~dir_y_3) & UINT64_C(1)) ^ ((s2_x_reg >> 2) & UINT64_C(1)))) & UINT64_C(0x3ffff));
+    const uint64_t s3_z = (((s2_z_reg & UINT64_C(0x7fff)) + (dir_3 ? ((~ATAN_3) & UINT64_C(0x7fff)) : ATAN_3) + dir_3) & UINT64_C(0x7fff));
 
     const uint64_t s3_valid_reg = s2_valid_reg;  /* register, passed through */
 
@@ -139,13 +139,13 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
 
     /* ---- stage 4: iteration 4 ---- */
     /* iteration 4: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_4 = (uint64_t)(s3_z_reg < UINT64_C(0x8000));
-    const uint64_t dir_y_4 = (uint64_t)((s3_z_reg & UINT64_C(0x7fff)) < UINT64_C(0x4000));
+    const uint64_t dir_4 = (uint64_t)(s3_z_reg < UINT64_C(0x4000));
+    const uint64_t dir_y_4 = (uint64_t)((s3_z_reg & UINT64_C(0x3fff)) < UINT64_C(0x2000));
     const uint64_t xs_4 = ((((s3_x_reg >> 17) ? UINT64_C(0xf) : UINT64_C(0)) << 14) | (s3_x_reg >> 4)); /* x >>> 4 */
     const uint64_t ys_4 = ((((s3_y_reg >> 17) ? UINT64_C(0xf) : UINT64_C(0)) << 14) | (s3_y_reg >> 4)); /* y >>> 4 */
-    const uint64_t s4_x = ((s3_x_reg + (dir_4 ? ((~ys_4) & UINT64_C(0x3ffff)) : ys_4) + dir_4) & UINT64_C(0x3ffff));
-    const uint64_t s4_y = ((s3_y_reg + (dir_y_4 ? xs_4 : ((~xs_4) & UINT64_C(0x3ffff))) + ((~dir_y_4) & UINT64_C(1))) & UINT64_C(0x3ffff));
-    const uint64_t s4_z = (((s3_z_reg & UINT64_C(0x7fff)) + (dir_4 ? ((~ATAN_4) & UINT64_C(0x7fff)) : ATAN_4) + dir_4) & UINT64_C(0x7fff));
+    const uint64_t s4_x = ((s3_x_reg + (dir_4 ? ((~ys_4) & UINT64_C(0x3ffff)) : ys_4) + (dir_4 ^ ((s3_y_reg >> 3) & UINT64_C(1)))) & UINT64_C(0x3ffff));
+    const uint64_t s4_y = ((s3_y_reg + (dir_y_4 ? xs_4 : ((~xs_4) & UINT64_C(0x3ffff))) + (((~dir_y_4) & UINT64_C(1)) ^ ((s3_x_reg >> 3) & UINT64_C(1)))) & UINT64_C(0x3ffff));
+    const uint64_t s4_z = (((s3_z_reg & UINT64_C(0x3fff)) + (dir_4 ? ((~ATAN_4) & UINT64_C(0x3fff)) : ATAN_4) + dir_4) & UINT64_C(0x3fff));
 
     const uint64_t s4_valid_reg = s3_valid_reg;  /* register, passed through */
 
@@ -155,13 +155,13 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
 
     /* ---- stage 5: iteration 5 ---- */
     /* iteration 5: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_5 = (uint64_t)(s4_z_reg < UINT64_C(0x4000));
-    const uint64_t dir_y_5 = (uint64_t)((s4_z_reg & UINT64_C(0x3fff)) < UINT64_C(0x2000));
+    const uint64_t dir_5 = (uint64_t)(s4_z_reg < UINT64_C(0x2000));
+    const uint64_t dir_y_5 = (uint64_t)((s4_z_reg & UINT64_C(0x1fff)) < UINT64_C(0x1000));
     const uint64_t xs_5 = ((((s4_x_reg >> 17) ? UINT64_C(0x1f) : UINT64_C(0)) << 13) | (s4_x_reg >> 5)); /* x >>> 5 */
     const uint64_t ys_5 = ((((s4_y_reg >> 17) ? UINT64_C(0x1f) : UINT64_C(0)) << 13) | (s4_y_reg >> 5)); /* y >>> 5 */
-    const uint64_t s5_x = ((s4_x_reg + (dir_5 ? ((~ys_5) & UINT64_C(0x3ffff)) : ys_5) + dir_5) & UINT64_C(0x3ffff));
-    const uint64_t s5_y = ((s4_y_reg + (dir_y_5 ? xs_5 : ((~xs_5) & UINT64_C(0x3ffff))) + ((~dir_y_5) & UINT64_C(1))) & UINT64_C(0x3ffff));
-    const uint64_t s5_z = (((s4_z_reg & UINT64_C(0x3fff)) + (dir_5 ? ((~ATAN_5) & UINT64_C(0x3fff)) : ATAN_5) + dir_5) & UINT64_C(0x3fff));
+    const uint64_t s5_x = ((s4_x_reg + (dir_5 ? ((~ys_5) & UINT64_C(0x3ffff)) : ys_5) + (dir_5 ^ ((s4_y_reg >> 4) & UINT64_C(1)))) & UINT64_C(0x3ffff));
+    const uint64_t s5_y = ((s4_y_reg + (dir_y_5 ? xs_5 : ((~xs_5) & UINT64_C(0x3ffff))) + (((~dir_y_5) & UINT64_C(1)) ^ ((s4_x_reg >> 4) & UINT64_C(1)))) & UINT64_C(0x3ffff));
+    const uint64_t s5_z = (((s4_z_reg & UINT64_C(0x1fff)) + (dir_5 ? ((~ATAN_5) & UINT64_C(0x1fff)) : ATAN_5) + dir_5) & UINT64_C(0x1fff));
 
     const uint64_t s5_valid_reg = s4_valid_reg;  /* register, passed through */
 
@@ -171,13 +171,13 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
 
     /* ---- stage 6: iteration 6 ---- */
     /* iteration 6: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_6 = (uint64_t)(s5_z_reg < UINT64_C(0x2000));
-    const uint64_t dir_y_6 = (uint64_t)((s5_z_reg & UINT64_C(0x1fff)) < UINT64_C(0x1000));
+    const uint64_t dir_6 = (uint64_t)(s5_z_reg < UINT64_C(0x1000));
+    const uint64_t dir_y_6 = (uint64_t)((s5_z_reg & UINT64_C(0xfff)) < UINT64_C(0x800));
     const uint64_t xs_6 = ((((s5_x_reg >> 17) ? UINT64_C(0x3f) : UINT64_C(0)) << 12) | (s5_x_reg >> 6)); /* x >>> 6 */
     const uint64_t ys_6 = ((((s5_y_reg >> 17) ? UINT64_C(0x3f) : UINT64_C(0)) << 12) | (s5_y_reg >> 6)); /* y >>> 6 */
-    const uint64_t s6_x = ((s5_x_reg + (dir_6 ? ((~ys_6) & UINT64_C(0x3ffff)) : ys_6) + dir_6) & UINT64_C(0x3ffff));
-    const uint64_t s6_y = ((s5_y_reg + (dir_y_6 ? xs_6 : ((~xs_6) & UINT64_C(0x3ffff))) + ((~dir_y_6) & UINT64_C(1))) & UINT64_C(0x3ffff));
-    const uint64_t s6_z = (((s5_z_reg & UINT64_C(0x1fff)) + (dir_6 ? ((~ATAN_6) & UINT64_C(0x1fff)) : ATAN_6) + dir_6) & UINT64_C(0x1fff));
+    const uint64_t s6_x = ((s5_x_reg + (dir_6 ? ((~ys_6) & UINT64_C(0x3ffff)) : ys_6) + (dir_6 ^ ((s5_y_reg >> 5) & UINT64_C(1)))) & UINT64_C(0x3ffff));
+    const uint64_t s6_y = ((s5_y_reg + (dir_y_6 ? xs_6 : ((~xs_6) & UINT64_C(0x3ffff))) + (((~dir_y_6) & UINT64_C(1)) ^ ((s5_x_reg >> 5) & UINT64_C(1)))) & UINT64_C(0x3ffff));
+    const uint64_t s6_z = (((s5_z_reg & UINT64_C(0xfff)) + (dir_6 ? ((~ATAN_6) & UINT64_C(0xfff)) : ATAN_6) + dir_6) & UINT64_C(0xfff));
 
     const uint64_t s6_valid_reg = s5_valid_reg;  /* register, passed through */
 
@@ -187,13 +187,13 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
 
     /* ---- stage 7: iteration 7 ---- */
     /* iteration 7: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_7 = (uint64_t)(s6_z_reg < UINT64_C(0x1000));
-    const uint64_t dir_y_7 = (uint64_t)((s6_z_reg & UINT64_C(0xfff)) < UINT64_C(0x800));
+    const uint64_t dir_7 = (uint64_t)(s6_z_reg < UINT64_C(0x800));
+    const uint64_t dir_y_7 = (uint64_t)((s6_z_reg & UINT64_C(0x7ff)) < UINT64_C(0x400));
     const uint64_t xs_7 = ((((s6_x_reg >> 17) ? UINT64_C(0x7f) : UINT64_C(0)) << 11) | (s6_x_reg >> 7)); /* x >>> 7 */
     const uint64_t ys_7 = ((((s6_y_reg >> 17) ? UINT64_C(0x7f) : UINT64_C(0)) << 11) | (s6_y_reg >> 7)); /* y >>> 7 */
-    const uint64_t s7_x = ((s6_x_reg + (dir_7 ? ((~ys_7) & UINT64_C(0x3ffff)) : ys_7) + dir_7) & UINT64_C(0x3ffff));
-    const uint64_t s7_y = ((s6_y_reg + (dir_y_7 ? xs_7 : ((~xs_7) & UINT64_C(0x3ffff))) + ((~dir_y_7) & UINT64_C(1))) & UINT64_C(0x3ffff));
-    const uint64_t s7_z = (((s6_z_reg & UINT64_C(0xfff)) + (dir_7 ? ((~ATAN_7) & UINT64_C(0xfff)) : ATAN_7) + dir_7) & UINT64_C(0xfff));
+    const uint64_t s7_x = ((s6_x_reg + (dir_7 ? ((~ys_7) & UINT64_C(0x3ffff)) : ys_7) + (dir_7 ^ ((s6_y_reg >> 6) & UINT64_C(1)))) & UINT64_C(0x3ffff));
+    const uint64_t s7_y = ((s6_y_reg + (dir_y_7 ? xs_7 : ((~xs_7) & UINT64_C(0x3ffff))) + (((~dir_y_7) & UINT64_C(1)) ^ ((s6_x_reg >> 6) & UINT64_C(1)))) & UINT64_C(0x3ffff));
+    const uint64_t s7_z = (((s6_z_reg & UINT64_C(0x7ff)) + (dir_7 ? ((~ATAN_7) & UINT64_C(0x7ff)) : ATAN_7) + dir_7) & UINT64_C(0x7ff));
 
     const uint64_t s7_valid_reg = s6_valid_reg;  /* register, passed through */
 
@@ -203,13 +203,13 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
 
     /* ---- stage 8: iteration 8 ---- */
     /* iteration 8: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_8 = (uint64_t)(s7_z_reg < UINT64_C(0x800));
-    const uint64_t dir_y_8 = (uint64_t)((s7_z_reg & UINT64_C(0x7ff)) < UINT64_C(0x400));
+    const uint64_t dir_8 = (uint64_t)(s7_z_reg < UINT64_C(0x400));
+    const uint64_t dir_y_8 = (uint64_t)((s7_z_reg & UINT64_C(0x3ff)) < UINT64_C(0x200));
     const uint64_t xs_8 = ((((s7_x_reg >> 17) ? UINT64_C(0xff) : UINT64_C(0)) << 10) | (s7_x_reg >> 8)); /* x >>> 8 */
     const uint64_t ys_8 = ((((s7_y_reg >> 17) ? UINT64_C(0xff) : UINT64_C(0)) << 10) | (s7_y_reg >> 8)); /* y >>> 8 */
-    const uint64_t s8_x = ((s7_x_reg + (dir_8 ? ((~ys_8) & UINT64_C(0x3ffff)) : ys_8) + dir_8) & UINT64_C(0x3ffff));
-    const uint64_t s8_y = ((s7_y_reg + (dir_y_8 ? xs_8 : ((~xs_8) & UINT64_C(0x3ffff))) + ((~dir_y_8) & UINT64_C(1))) & UINT64_C(0x3ffff));
-    const uint64_t s8_z = (((s7_z_reg & UINT64_C(0x7ff)) + (dir_8 ? ((~ATAN_8) & UINT64_C(0x7ff)) : ATAN_8) + dir_8) & UINT64_C(0x7ff));
+    const uint64_t s8_x = ((s7_x_reg + (dir_8 ? ((~ys_8) & UINT64_C(0x3ffff)) : ys_8) + (dir_8 ^ ((s7_y_reg >> 7) & UINT64_C(1)))) & UINT64_C(0x3ffff));
+    const uint64_t s8_y = ((s7_y_reg + (dir_y_8 ? xs_8 : ((~xs_8) & UINT64_C(0x3ffff))) + (((~dir_y_8) & UINT64_C(1)) ^ ((s7_x_reg >> 7) & UINT64_C(1)))) & UINT64_C(0x3ffff));
+    const uint64_t s8_z = (((s7_z_reg & UINT64_C(0x3ff)) + (dir_8 ? ((~ATAN_8) & UINT64_C(0x3ff)) : ATAN_8) + dir_8) & UINT64_C(0x3ff));
 
     const uint64_t s8_valid_reg = s7_valid_reg;  /* register, passed through */
 
@@ -219,13 +219,13 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
 
     /* ---- stage 9: iteration 9 ---- */
     /* iteration 9: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_9 = (uint64_t)(s8_z_reg < UINT64_C(0x400));
-    const uint64_t dir_y_9 = (uint64_t)((s8_z_reg & UINT64_C(0x3ff)) < UINT64_C(0x200));
+    const uint64_t dir_9 = (uint64_t)(s8_z_reg < UINT64_C(0x200));
+    const uint64_t dir_y_9 = (uint64_t)((s8_z_reg & UINT64_C(0x1ff)) < UINT64_C(0x100));
     const uint64_t xs_9 = ((((s8_x_reg >> 17) ? UINT64_C(0x1ff) : UINT64_C(0)) << 9) | (s8_x_reg >> 9)); /* x >>> 9 */
     const uint64_t ys_9 = ((((s8_y_reg >> 17) ? UINT64_C(0x1ff) : UINT64_C(0)) << 9) | (s8_y_reg >> 9)); /* y >>> 9 */
-    const uint64_t s9_x = ((s8_x_reg + (dir_9 ? ((~ys_9) & UINT64_C(0x3ffff)) : ys_9) + dir_9) & UINT64_C(0x3ffff));
-    const uint64_t s9_y = ((s8_y_reg + (dir_y_9 ? xs_9 : ((~xs_9) & UINT64_C(0x3ffff))) + ((~dir_y_9) & UINT64_C(1))) & UINT64_C(0x3ffff));
-    const uint64_t s9_z = (((s8_z_reg & UINT64_C(0x3ff)) + (dir_9 ? ((~ATAN_9) & UINT64_C(0x3ff)) : ATAN_9) + dir_9) & UINT64_C(0x3ff));
+    const uint64_t s9_x = ((s8_x_reg + (dir_9 ? ((~ys_9) & UINT64_C(0x3ffff)) : ys_9) + (dir_9 ^ ((s8_y_reg >> 8) & UINT64_C(1)))) & UINT64_C(0x3ffff));
+    const uint64_t s9_y = ((s8_y_reg + (dir_y_9 ? xs_9 : ((~xs_9) & UINT64_C(0x3ffff))) + (((~dir_y_9) & UINT64_C(1)) ^ ((s8_x_reg >> 8) & UINT64_C(1)))) & UINT64_C(0x3ffff));
+    const uint64_t s9_z = (((s8_z_reg & UINT64_C(0x1ff)) + (dir_9 ? ((~ATAN_9) & UINT64_C(0x1ff)) : ATAN_9) + dir_9) & UINT64_C(0x1ff));
 
     const uint64_t s9_valid_reg = s8_valid_reg;  /* register, passed through */
 
@@ -235,13 +235,13 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
 
     /* ---- stage 10: iteration 10 ---- */
     /* iteration 10: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_10 = (uint64_t)(s9_z_reg < UINT64_C(0x200));
-    const uint64_t dir_y_10 = (uint64_t)((s9_z_reg & UINT64_C(0x1ff)) < UINT64_C(0x100));
+    const uint64_t dir_10 = (uint64_t)(s9_z_reg < UINT64_C(0x100));
+    const uint64_t dir_y_10 = (uint64_t)((s9_z_reg & UINT64_C(0xff)) < UINT64_C(0x80));
     const uint64_t xs_10 = ((((s9_x_reg >> 17) ? UINT64_C(0x3ff) : UINT64_C(0)) << 8) | (s9_x_reg >> 10)); /* x >>> 10 */
     const uint64_t ys_10 = ((((s9_y_reg >> 17) ? UINT64_C(0x3ff) : UINT64_C(0)) << 8) | (s9_y_reg >> 10)); /* y >>> 10 */
-    const uint64_t s10_x = ((s9_x_reg + (dir_10 ? ((~ys_10) & UINT64_C(0x3ffff)) : ys_10) + dir_10) & UINT64_C(0x3ffff));
-    const uint64_t s10_y = ((s9_y_reg + (dir_y_10 ? xs_10 : ((~xs_10) & UINT64_C(0x3ffff))) + ((~dir_y_10) & UINT64_C(1))) & UINT64_C(0x3ffff));
-    const uint64_t s10_z = (((s9_z_reg & UINT64_C(0x1ff)) + (dir_10 ? ((~ATAN_10) & UINT64_C(0x1ff)) : ATAN_10) + dir_10) & UINT64_C(0x1ff));
+    const uint64_t s10_x = ((s9_x_reg + (dir_10 ? ((~ys_10) & UINT64_C(0x3ffff)) : ys_10) + (dir_10 ^ ((s9_y_reg >> 9) & UINT64_C(1)))) & UINT64_C(0x3ffff));
+    const uint64_t s10_y = ((s9_y_reg + (dir_y_10 ? xs_10 : ((~xs_10) & UINT64_C(0x3ffff))) + (((~dir_y_10) & UINT64_C(1)) ^ ((s9_x_reg >> 9) & UINT64_C(1)))) & UINT64_C(0x3ffff));
+    const uint64_t s10_z = (((s9_z_reg & UINT64_C(0xff)) + (dir_10 ? ((~ATAN_10) & UINT64_C(0xff)) : ATAN_10) + dir_10) & UINT64_C(0xff));
 
     const uint64_t s10_valid_reg = s9_valid_reg;  /* register, passed through */
 
@@ -251,13 +251,13 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
 
     /* ---- stage 11: iteration 11 ---- */
     /* iteration 11: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_11 = (uint64_t)(s10_z_reg < UINT64_C(0x100));
-    const uint64_t dir_y_11 = (uint64_t)((s10_z_reg & UINT64_C(0xff)) < UINT64_C(0x80));
+    const uint64_t dir_11 = (uint64_t)(s10_z_reg < UINT64_C(0x80));
+    const uint64_t dir_y_11 = (uint64_t)((s10_z_reg & UINT64_C(0x7f)) < UINT64_C(0x40));
     const uint64_t xs_11 = ((((s10_x_reg >> 17) ? UINT64_C(0x7ff) : UINT64_C(0)) << 7) | (s10_x_reg >> 11)); /* x >>> 11 */
     const uint64_t ys_11 = ((((s10_y_reg >> 17) ? UINT64_C(0x7ff) : UINT64_C(0)) << 7) | (s10_y_reg >> 11)); /* y >>> 11 */
-    const uint64_t s11_x = ((s10_x_reg + (dir_11 ? ((~ys_11) & UINT64_C(0x3ffff)) : ys_11) + dir_11) & UINT64_C(0x3ffff));
-    const uint64_t s11_y = ((s10_y_reg + (dir_y_11 ? xs_11 : ((~xs_11) & UINT64_C(0x3ffff))) + ((~dir_y_11) & UINT64_C(1))) & UINT64_C(0x3ffff));
-    const uint64_t s11_z = (((s10_z_reg & UINT64_C(0xff)) + (dir_11 ? ((~ATAN_11) & UINT64_C(0xff)) : ATAN_11) + dir_11) & UINT64_C(0xff));
+    const uint64_t s11_x = ((s10_x_reg + (dir_11 ? ((~ys_11) & UINT64_C(0x3ffff)) : ys_11) + (dir_11 ^ ((s10_y_reg >> 10) & UINT64_C(1)))) & UINT64_C(0x3ffff));
+    const uint64_t s11_y = ((s10_y_reg + (dir_y_11 ? xs_11 : ((~xs_11) & UINT64_C(0x3ffff))) + (((~dir_y_11) & UINT64_C(1)) ^ ((s10_x_reg >> 10) & UINT64_C(1)))) & UINT64_C(0x3ffff));
+    const uint64_t s11_z = (((s10_z_reg & UINT64_C(0x7f)) + (dir_11 ? ((~ATAN_11) & UINT64_C(0x7f)) : ATAN_11) + dir_11) & UINT64_C(0x7f));
 
     const uint64_t s11_valid_reg = s10_valid_reg;  /* register, passed through */
 
@@ -267,13 +267,13 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
 
     /* ---- stage 12: iteration 12 ---- */
     /* iteration 12: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_12 = (uint64_t)(s11_z_reg < UINT64_C(0x80));
-    const uint64_t dir_y_12 = (uint64_t)((s11_z_reg & UINT64_C(0x7f)) < UINT64_C(0x40));
+    const uint64_t dir_12 = (uint64_t)(s11_z_reg < UINT64_C(0x40));
+    const uint64_t dir_y_12 = (uint64_t)((s11_z_reg & UINT64_C(0x3f)) < UINT64_C(0x20));
     const uint64_t xs_12 = ((((s11_x_reg >> 17) ? UINT64_C(0xfff) : UINT64_C(0)) << 6) | (s11_x_reg >> 12)); /* x >>> 12 */
     const uint64_t ys_12 = ((((s11_y_reg >> 17) ? UINT64_C(0xfff) : UINT64_C(0)) << 6) | (s11_y_reg >> 12)); /* y >>> 12 */
-    const uint64_t s12_x = ((s11_x_reg + (dir_12 ? ((~ys_12) & UINT64_C(0x3ffff)) : ys_12) + dir_12) & UINT64_C(0x3ffff));
-    const uint64_t s12_y = ((s11_y_reg + (dir_y_12 ? xs_12 : ((~xs_12) & UINT64_C(0x3ffff))) + ((~dir_y_12) & UINT64_C(1))) & UINT64_C(0x3ffff));
-    const uint64_t s12_z = (((s11_z_reg & UINT64_C(0x7f)) + (dir_12 ? ((~ATAN_12) & UINT64_C(0x7f)) : ATAN_12) + dir_12) & UINT64_C(0x7f));
+    const uint64_t s12_x = ((s11_x_reg + (dir_12 ? ((~ys_12) & UINT64_C(0x3ffff)) : ys_12) + (dir_12 ^ ((s11_y_reg >> 11) & UINT64_C(1)))) & UINT64_C(0x3ffff));
+    const uint64_t s12_y = ((s11_y_reg + (dir_y_12 ? xs_12 : ((~xs_12) & UINT64_C(0x3ffff))) + (((~dir_y_12) & UINT64_C(1)) ^ ((s11_x_reg >> 11) & UINT64_C(1)))) & UINT64_C(0x3ffff));
+    const uint64_t s12_z = (((s11_z_reg & UINT64_C(0x3f)) + (dir_12 ? ((~ATAN_12) & UINT64_C(0x3f)) : ATAN_12) + dir_12) & UINT64_C(0x3f));
 
     const uint64_t s12_valid_reg = s11_valid_reg;  /* register, passed through */
 
@@ -283,13 +283,13 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
 
     /* ---- stage 13: iteration 13 ---- */
     /* iteration 13: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_13 = (uint64_t)(s12_z_reg < UINT64_C(0x40));
-    const uint64_t dir_y_13 = (uint64_t)((s12_z_reg & UINT64_C(0x3f)) < UINT64_C(0x20));
+    const uint64_t dir_13 = (uint64_t)(s12_z_reg < UINT64_C(0x20));
+    const uint64_t dir_y_13 = (uint64_t)((s12_z_reg & UINT64_C(0x1f)) < UINT64_C(0x10));
     const uint64_t xs_13 = ((((s12_x_reg >> 17) ? UINT64_C(0x1fff) : UINT64_C(0)) << 5) | (s12_x_reg >> 13)); /* x >>> 13 */
     const uint64_t ys_13 = ((((s12_y_reg >> 17) ? UINT64_C(0x1fff) : UINT64_C(0)) << 5) | (s12_y_reg >> 13)); /* y >>> 13 */
-    const uint64_t s13_x = ((s12_x_reg + (dir_13 ? ((~ys_13) & UINT64_C(0x3ffff)) : ys_13) + dir_13) & UINT64_C(0x3ffff));
-    const uint64_t s13_y = ((s12_y_reg + (dir_y_13 ? xs_13 : ((~xs_13) & UINT64_C(0x3ffff))) + ((~dir_y_13) & UINT64_C(1))) & UINT64_C(0x3ffff));
-    const uint64_t s13_z = (((s12_z_reg & UINT64_C(0x3f)) + (dir_13 ? ((~ATAN_13) & UINT64_C(0x3f)) : ATAN_13) + dir_13) & UINT64_C(0x3f));
+    const uint64_t s13_x = ((s12_x_reg + (dir_13 ? ((~ys_13) & UINT64_C(0x3ffff)) : ys_13) + (dir_13 ^ ((s12_y_reg >> 12) & UINT64_C(1)))) & UINT64_C(0x3ffff));
+    const uint64_t s13_y = ((s12_y_reg + (dir_y_13 ? xs_13 : ((~xs_13) & UINT64_C(0x3ffff))) + (((~dir_y_13) & UINT64_C(1)) ^ ((s12_x_reg >> 12) & UINT64_C(1)))) & UINT64_C(0x3ffff));
+    const uint64_t s13_z = (((s12_z_reg & UINT64_C(0x1f)) + (dir_13 ? ((~ATAN_13) & UINT64_C(0x1f)) : ATAN_13) + dir_13) & UINT64_C(0x1f));
 
     const uint64_t s13_valid_reg = s12_valid_reg;  /* register, passed through */
 
@@ -299,13 +299,13 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
 
     /* ---- stage 14: iteration 14 ---- */
     /* iteration 14: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_14 = (uint64_t)(s13_z_reg < UINT64_C(0x20));
-    const uint64_t dir_y_14 = (uint64_t)((s13_z_reg & UINT64_C(0x1f)) < UINT64_C(0x10));
+    const uint64_t dir_14 = (uint64_t)(s13_z_reg < UINT64_C(0x10));
+    const uint64_t dir_y_14 = (uint64_t)((s13_z_reg & UINT64_C(0xf)) < UINT64_C(8));
     const uint64_t xs_14 = ((((s13_x_reg >> 17) ? UINT64_C(0x3fff) : UINT64_C(0)) << 4) | (s13_x_reg >> 14)); /* x >>> 14 */
     const uint64_t ys_14 = ((((s13_y_reg >> 17) ? UINT64_C(0x3fff) : UINT64_C(0)) << 4) | (s13_y_reg >> 14)); /* y >>> 14 */
-    const uint64_t s14_x = ((s13_x_reg + (dir_14 ? ((~ys_14) & UINT64_C(0x3ffff)) : ys_14) + dir_14) & UINT64_C(0x3ffff));
-    const uint64_t s14_y = ((s13_y_reg + (dir_y_14 ? xs_14 : ((~xs_14) & UINT64_C(0x3ffff))) + ((~dir_y_14) & UINT64_C(1))) & UINT64_C(0x3ffff));
-    const uint64_t s14_z = (((s13_z_reg & UINT64_C(0x1f)) + (dir_14 ? ((~ATAN_14) & UINT64_C(0x1f)) : ATAN_14) + dir_14) & UINT64_C(0x1f));
+    const uint64_t s14_x = ((s13_x_reg + (dir_14 ? ((~ys_14) & UINT64_C(0x3ffff)) : ys_14) + (dir_14 ^ ((s13_y_reg >> 13) & UINT64_C(1)))) & UINT64_C(0x3ffff));
+    const uint64_t s14_y = ((s13_y_reg + (dir_y_14 ? xs_14 : ((~xs_14) & UINT64_C(0x3ffff))) + (((~dir_y_14) & UINT64_C(1)) ^ ((s13_x_reg >> 13) & UINT64_C(1)))) & UINT64_C(0x3ffff));
+    const uint64_t s14_z = (((s13_z_reg & UINT64_C(0xf)) + (dir_14 ? ((~ATAN_14) & UINT64_C(0xf)) : ATAN_14) + dir_14) & UINT64_C(0xf));
 
     const uint64_t s14_valid_reg = s13_valid_reg;  /* register, passed through */
 
@@ -315,12 +315,12 @@ void park_angle_sincos_model(uint16_t in_angle, int16_t *out_cos, int16_t *out_s
 
     /* ---- stage 15: iteration 15 ---- */
     /* iteration 15: turn counter-clockwise when the remaining angle is >= 0 */
-    const uint64_t dir_15 = (uint64_t)(s14_z_reg < UINT64_C(0x10));
-    const uint64_t dir_y_15 = (uint64_t)((s14_z_reg & UINT64_C(0xf)) < UINT64_C(8));
+    const uint64_t dir_15 = (uint64_t)(s14_z_reg < UINT64_C(8));
+    const uint64_t dir_y_15 = (uint64_t)((s14_z_reg & UINT64_C(7)) < UINT64_C(4));
     const uint64_t xs_15 = ((((s14_x_reg >> 17) ? UINT64_C(0x7fff) : UINT64_C(0)) << 3) | (s14_x_reg >> 15)); /* x >>> 15 */
     const uint64_t ys_15 = ((((s14_y_reg >> 17) ? UINT64_C(0x7fff) : UINT64_C(0)) << 3) | (s14_y_reg >> 15)); /* y >>> 15 */
-    const uint64_t s15_x = ((s14_x_reg + (dir_15 ? ((~ys_15) & UINT64_C(0x3ffff)) : ys_15) + dir_15) & UINT64_C(0x3ffff));
-    const uint64_t s15_y = ((s14_y_reg + (dir_y_15 ? xs_15 : ((~xs_15) & UINT64_C(0x3ffff))) + ((~dir_y_15) & UINT64_C(1))) & UINT64_C(0x3ffff));
+    const uint64_t s15_x = ((s14_x_reg + (dir_15 ? ((~ys_15) & UINT64_C(0x3ffff)) : ys_15) + (dir_15 ^ ((s14_y_reg >> 14) & UINT64_C(1)))) & UINT64_C(0x3ffff));
+    const uint64_t s15_y = ((s14_y_reg + (dir_y_15 ? xs_15 : ((~xs_15) & UINT64_C(0x3ffff))) + (((~dir_y_15) & UINT64_C(1)) ^ ((s14_x_reg >> 14) & UINT64_C(1)))) & UINT64_C(0x3ffff));
 
     /* ---- output register: the last iteration's values, held so that rounding and */
     /* saturation have a clock of their own ---- */

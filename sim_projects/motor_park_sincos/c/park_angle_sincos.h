@@ -10,7 +10,7 @@
  * Printed from the same description of the core as the RTL. This core iterates one sample over
  * 7 clocks, which one pass cannot print, so the model is printed from the pipelined core
  * of the same data path (the same iterations, constants and rounding: the same function).
- * Arithmetic: circular coordinates, rotation mode, 16 iterations, 4 guard bits (3 for z); x, y 18 bits, z 19 bits.
+ * Arithmetic: circular coordinates, rotation mode, 16 iterations, 4 guard bits (2 for z); x, y 18 bits, z 18 bits.
  * Gain: compensated (K = 0.60725293510313931731, removed by the start value).
  *
  * Ports (formats)
