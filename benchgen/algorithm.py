@@ -185,6 +185,8 @@ class Datapath:
             internal width and unbiased, against [0, 1) LSB and a bias of -1/2 when floored
             (a common practice of shift-and-add arithmetic, stated from memory): the same
             accuracy with about one guard bit fewer.
+        table_head: The first iterations a core reads from a table, as the config set it
+            (``None``: the architecture's default; :func:`benchgen.functions.table_head`).
     """
 
     function: str
@@ -213,6 +215,7 @@ class Datapath:
     xy_narrowed: bool = False
     angle_guard_bits: int | None = None
     rounded_shifts: bool = False
+    table_head: int | None = None
 
     def guard_text(self) -> str:
         """The guard bits in words: x and y's, and z's where they are sized apart and differ."""

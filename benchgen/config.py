@@ -23,6 +23,7 @@ from benchgen.spec import (
     DEFAULT_VLNV_VENDOR,
     HANDSHAKES,
     HDLS,
+    MAX_TABLE_HEAD,
     NCO_MODES,
     RESET_POLARITIES,
     RESET_STYLES,
@@ -190,6 +191,7 @@ _FIELDS: tuple[str, ...] = (
     "clock_enable",
     "handshake",
     "shifted_terms",
+    "table_head",
     "acc_width",
     "dither_width",
     "lfsr_width",
@@ -467,6 +469,7 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
     handshake = _choice_field(raw, "handshake", HANDSHAKES) if "handshake" in raw else quiet_handshake
     terms = _choice_field(raw, "shifted_terms", (*SHIFTED_TERMS, "auto")) if "shifted_terms" in raw else "auto"
     shifted_terms = None if terms == "auto" else terms
+    table_head = _int_field(raw, "table_head", 0, MAX_TABLE_HEAD, auto=True) if "table_head" in raw else None
     fn = function_named(function)
     for key, why in refused_fields(fn).items():
         # A field the function does not use: a value set here would mislead.
@@ -622,6 +625,7 @@ def parse_config(raw: Mapping[str, Any]) -> CoreSpec:
         clock_enable=clock_enable,
         handshake=handshake,
         shifted_terms=shifted_terms,
+        table_head=table_head,
         acc_width=acc_width if acc_width is not None else 32,
         dither_width=dither_width if dither_width is not None else 0,
         lfsr_width=lfsr_width,

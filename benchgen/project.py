@@ -37,7 +37,7 @@ from benchgen.config import CoreSpec, load_config, parse_config, spec_to_dict
 from benchgen.design import Design, Proof, build_design
 from benchgen.reference import ErrorStats
 from benchgen.errors import BenchgenError, ConfigError
-from benchgen.functions import core_timing, final_datapath, function_of
+from benchgen.functions import core_timing, final_datapath, function_of, table_head
 from benchgen.cmodel import c_model_files, c_model_paths, model_function_name
 from benchgen.fusesoc import core_file_name, render_core_file, vlnv
 from benchgen.harness import bulk_project_files
@@ -115,6 +115,7 @@ def manifest_for(design: Design) -> dict[str, Any]:
             "coordinates": dp.coordinates,
             "shifts": list(dp.shifts),
             "rounded_shifts": dp.rounded_shifts,
+            "table_head": table_head(dp, timing.architecture),
             "architecture": timing.architecture,
             "pipeline_depth": timing.depth if timing.architecture == "pipelined" else None,
             "iterations_per_cycle": (

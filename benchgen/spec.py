@@ -18,6 +18,7 @@ __all__ = [
     "RESET_POLARITIES",
     "RESET_STYLES",
     "SHIFTED_TERMS",
+    "MAX_TABLE_HEAD",
     "CoreSpec",
 ]
 
@@ -37,6 +38,8 @@ HANDSHAKES = ("ready_valid", "valid_only")
 #: through the adder's carry-in) or ``floored`` (the arithmetic shift alone). Unset, a pipelined
 #: sincos, rotate or NCO rounds them where ``rounding`` rounds the outputs (docs/config.md).
 SHIFTED_TERMS = ("rounded", "floored")
+#: The most first iterations a table may stand for (the table has 2^(h + 1) entries).
+MAX_TABLE_HEAD = 4
 #: How an NCO takes its words: ``streamed`` (one sample per accepted input token, the token
 #: carrying both words) or ``free_running`` (no input stream: one sample per clock from reset,
 #: the words loaded through a ``load`` port; docs/nco.md).
@@ -86,6 +89,10 @@ class CoreSpec:
         handshake: One of :data:`HANDSHAKES`.
         shifted_terms: Where the function offers it (sincos, rotate, nco): one of
             :data:`SHIFTED_TERMS`, or ``None`` to follow ``rounding`` and the architecture.
+        table_head: Where the function offers it (sincos, nco): how many first iterations
+            the core reads from a table of the fold and their directions instead of adding
+            (0 to :data:`MAX_TABLE_HEAD`), or ``None`` for the architecture's default
+            (:func:`benchgen.functions.table_head`).
         acc_width: NCO (function ``nco``): bits of the phase accumulator and its words.
         dither_width: NCO: phase dither bits below the kept phase LSB (0: none).
         lfsr_width: NCO: length of the dither LFSR (``None``: ``max(32, dither_width)``).
@@ -122,6 +129,7 @@ class CoreSpec:
     clock_enable: bool = False
     handshake: str = "ready_valid"
     shifted_terms: str | None = None
+    table_head: int | None = None
     acc_width: int = 32
     dither_width: int = 0
     lfsr_width: int | None = None

@@ -18,6 +18,9 @@ The cores (``--only`` takes these names; a core's reference is added when it is 
   bits, truncate).
 * ``gen_iterative_auto``, ``gen_iterative_hand_size``: the same two, iterative, one iteration
   per clock.
+* ``gen_iterative_hand_structure``: the iterative core at the hand core's size with its
+  structure too: ``table_head = 0`` (no table for the first iterations, as the hand core has
+  none), the area-first choice of that field.
 * ``atan2_compensated``, ``atan2_raw``: atan2 12/12 pipelined at depth 12, with the gain
   compensated and with ``gain = "raw"`` (the reference of the compensated one).
 
@@ -29,7 +32,7 @@ comes from this one run (the yowasp wheels keep only their compiled WebAssembly 
     python benchmarks/hardware.py [--quick] [--only NAME ...] [--seeds N] [--targets ice40,ecp5]
                                   [--clock-mhz F] [--keep DIR] [--output FILE]
 
-``--quick``: one seed, iCE40 only. The full run (8 cores, 2 families, 3 seeds) took 14 minutes
+``--quick``: one seed, iCE40 only. The full run (9 cores, 2 families, 3 seeds) took about 15 minutes
 on a shared 2-core machine; run it under ``nice``. docs/hardware.md has the baseline.
 """
 
@@ -92,6 +95,8 @@ CORES: tuple[CoreDef, ...] = (
             config={**SINCOS, "architecture": "iterative"}),
     CoreDef("gen_iterative_hand_size", "generated at the hand core's size, iterative", "hand_iterative",
             config={**SINCOS, **HAND_SIZE, "architecture": "iterative"}),
+    CoreDef("gen_iterative_hand_structure", "generated at the hand core's size, iterative, table_head = 0",
+            "hand_iterative", config={**SINCOS, **HAND_SIZE, "architecture": "iterative", "table_head": 0}),
     CoreDef("atan2_raw", "atan2 12/12 depth 12, gain raw", None, config={**ATAN2, "gain": "raw"}),
     CoreDef("atan2_compensated", "atan2 12/12 depth 12, gain compensated", "atan2_raw", config=dict(ATAN2)),
 )
@@ -277,6 +282,8 @@ TARGETS: tuple[Target, ...] = (
     Target("gen_iterative_auto", "iCE40 LUT4", 1.1, False),
     Target("gen_iterative_hand_size", "HX8K Msps", 1.0, True),
     Target("gen_iterative_hand_size", "iCE40 LUT4", 1.1, False),
+    Target("gen_iterative_hand_structure", "HX8K Msps", 1.0, True),
+    Target("gen_iterative_hand_structure", "iCE40 LUT4", 1.1, False),
     Target("atan2_compensated", "HX8K MHz", 0.9, True),
     Target("atan2_compensated", "ECP5 MHz", 0.9, True),
 )

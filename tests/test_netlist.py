@@ -38,7 +38,7 @@ VARIANTS = {
     # depths 2 and 5: the table head (the first iterations' x and y read from a table) inside
     # one stage, and crossing stage registers that hold the fold and the directions
     "sincos": [{}, {"gain": "raw"}, {"angle_unit": "radians"}, {"handshake": "valid_only"}, {"pipeline_depth": 2},
-               {"pipeline_depth": 5}],
+               {"pipeline_depth": 5}, {"table_head": 0}, {"table_head": 4, "pipeline_depth": 3}],
     "rotate": [{}, {"gain": "raw", "angle_unit": "radians", "angle_width": 6}],
     "atan2": [{}, {"prenormalise": False}, {"gain": "raw", "angle_unit": "radians"}],
     "sinhcosh": [{}, {"gain": "raw"}],

@@ -160,6 +160,10 @@ EDGE_CASES = {
     # the valid-only handshake: no out_ready (and pipelined, no in_ready), a plain output register
     "valid_only_pipelined": {"function": "sincos", "data_width": 12, "angle_width": 12, "tag_width": 3, "pipeline_depth": 4, "handshake": "valid_only"},
     "valid_only_iterative": {"function": "atan2", "data_width": 10, "architecture": "iterative", "iterations_per_cycle": 4, "handshake": "valid_only"},
+    # the table head set by hand: none (the load clock takes the fold's two start vectors), and
+    # four iterations (a 32-entry table in the load clock)
+    "iterative_no_table_head": {"function": "sincos", "data_width": 10, "angle_width": 10, "architecture": "iterative", "table_head": 0},
+    "iterative_table_head_4": {"function": "sincos", "data_width": 10, "angle_width": 10, "architecture": "iterative", "table_head": 4, "rounding": "truncate", "max_error_lsb": 1.5},
 }
 
 

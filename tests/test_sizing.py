@@ -145,7 +145,7 @@ def test_shifted_terms_field_overrides_the_rule_and_sizes_by_it() -> None:
 
 
 def test_angle_guard_bits_are_sized_on_their_own() -> None:
-    """z's guard bits are a third sized dimension: the iterative 16-bit core keeps 8 guard bits
+    """z's guard bits are a third sized dimension: the iterative 16-bit core keeps 7 guard bits
     in x and y but needs fewer in z, and one fewer in z misses the budget on some input of the
     whole space (its z is then narrower than a z that follows x and y's guard bits)."""
     spec = parse_config(
@@ -174,3 +174,33 @@ def test_angle_guard_bits_apply_only_where_the_angle_is_an_input() -> None:
     for fn in ("sincos", "rotate", "nco"):
         spec = parse_config({"name": "c", "function": fn, "angle_guard_bits": 3})
         assert spec.angle_guard_bits == 3
+
+
+def test_table_head_is_the_users_choice_and_the_timing_follows() -> None:
+    """``table_head`` sets how many first iterations come from the table (0: none); an iterative
+    core then takes that many clocks fewer per sample, the manifest states it, and a function
+    with no start table refuses the field."""
+    from benchgen.functions import table_head
+
+    base = {"name": "c", "function": "sincos", "data_width": 12, "angle_width": 12, "architecture": "iterative",
+            "iterations": 13, "guard_bits": 4}
+    clocks = {}
+    for head in (0, 1, 2, 4):
+        design = build_design(parse_config(base | {"table_head": head}))
+        assert table_head(design.datapath, "iterative") == head
+        clocks[head] = design.timing.cycles_per_sample
+    assert clocks == {0: 13, 1: 12, 2: 11, 4: 9}
+    default = build_design(parse_config(base))
+    assert default.timing.cycles_per_sample == 11  # the iterative default: 2
+    pipelined = build_design(parse_config(base | {"architecture": "pipelined", "table_head": 0}))
+    assert table_head(pipelined.datapath, "pipelined") == 0
+    assert table_head(build_design(parse_config(base | {"architecture": "pipelined"})).datapath, "pipelined") == 3
+    # never more than iterations - 2
+    assert table_head(make_datapath(parse_config(base | {"table_head": 4}), 5, 4), "iterative") == 3
+    for bad, fix in ((5, "auto"), (-1, "auto"), ("two", "auto")):
+        with pytest.raises(ConfigError) as exc:
+            parse_config(base | {"table_head": bad})
+        assert exc.value.field == "table_head" and exc.value.suggestion == {"table_head": fix}
+    with pytest.raises(ConfigError) as exc:
+        parse_config({"name": "c", "function": "rotate", "table_head": 1})
+    assert exc.value.field == "table_head" and "sincos" in exc.value.allowed

@@ -139,10 +139,18 @@ def table_head(dp: Datapath, architecture: str) -> int:
     own arithmetic, so every bit is the same (tests/test_netlist.py evaluates every input of
     small cores). A pipeline puts it in place of h stages' adders; an iterative core forms it in
     the clock that loads a sample, so the sample needs fewer clocks of iteration.
+
+    The config's ``table_head`` sets h (at most iterations - 2); unset, the architecture's
+    default below. The trade is the user's: in an iterative core at the hand-written core's size
+    (16 iterations, 4 guard bits, truncation) the 2-iteration head costs 49 iCE40 LUT4 (379
+    against 330) for 2 clocks fewer per sample (HX8K 6.27 against 5.65 Msps, median of 3 seeds;
+    docs/hardware.md step 7), where the 1-LSB core pays 11 for the same 2 clocks.
     """
     fn = function_of(dp)
     if not (fn.start_table and dp.mode == "rotation" and dp.coordinates == "circular"):
         return 0
+    if dp.table_head is not None:
+        return max(0, min(dp.table_head, dp.iterations - 2))
     if architecture == "iterative" and fn.phase_front(dp) is not None:
         # An iterative NCO's load clock already holds the phase sum's carry chains: the head's z
         # adder after them made it the longest path (16/16, 32-bit accumulator, 3 dither bits,

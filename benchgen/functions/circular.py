@@ -126,6 +126,7 @@ class CircularFunction(Function):
             prenorm_max=b - 2 if prenorm else 0,
             prenorm_width=(b - 2).bit_length() if prenorm else 0,
             rounded_shifts="shifted_terms" in self.options and self.rounds_shifts(spec),
+            table_head=spec.table_head if "table_head" in self.options else None,
         )
 
     def rounds_shifts(self, spec: CoreSpec) -> bool:

@@ -353,7 +353,7 @@ class NcoCore(SinCos):
     synonyms: ClassVar[tuple[str, ...]] = ("dds", "oscillator", "local_oscillator")
     options: ClassVar[tuple[str, ...]] = (
         "acc_width", "dither_width", "lfsr_width", "lfsr_seed", *TARGET_FIELDS, "nco_mode", "angle_guard_bits",
-        "shifted_terms",
+        "shifted_terms", "table_head",
     )  # fmt: skip
     angle_signal: ClassVar[str] = CODE_WIRE
 

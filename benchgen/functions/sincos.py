@@ -76,7 +76,7 @@ class SinCos(CircularFunction):
     synonyms: ClassVar[tuple[str, ...]] = ("sin", "cos", "sine", "cosine")
     start_table: ClassVar[bool] = True
     spectral: ClassVar[bool] = True
-    options: ClassVar[tuple[str, ...]] = ("angle_guard_bits", "shifted_terms")
+    options: ClassVar[tuple[str, ...]] = ("angle_guard_bits", "shifted_terms", "table_head")
 
     def datapath(self, spec: CoreSpec, iterations: int, guard_bits: int) -> CircularDatapath:
         b, g = spec.data_width, guard_bits
