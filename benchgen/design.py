@@ -354,7 +354,10 @@ def adder_bits(dp: Datapath) -> int:
     z counts at the width each iteration forms where the pipeline narrows it (a rotation whose
     function states z's start range: :func:`benchgen.algorithm.rotation_z_ranges`), else at
     full width. The adders are most of a core's logic cells and their carry chains set its
-    clock, so fewer adder bits is a smaller core and a faster one.
+    clock, so fewer adder bits is a smaller core and a faster one. (The spare sign bit of z
+    that splits the directions' fanout, :meth:`benchgen.hardware._Core.split_directions`, is
+    left out: about one bit per iteration, it could only move a choice between sizes whose
+    counts differ by a bit or two.)
     """
     fn = function_of(dp)
     has_y, has_z = fn.carries(dp)

@@ -35,8 +35,8 @@ DEFAULT_HDL = ("verilog",)
 #: and a pipelined core, which then takes a sample every clock, has no ``in_ready`` either).
 HANDSHAKES = ("ready_valid", "valid_only")
 #: How each iteration forms y / 2^i and x / 2^i: ``rounded`` half up (the bit below the shift
-#: through the adder's carry-in) or ``floored`` (the arithmetic shift alone). Unset, a pipelined
-#: sincos, rotate or NCO rounds them where ``rounding`` rounds the outputs (docs/config.md).
+#: through the adder's carry-in) or ``floored`` (the arithmetic shift alone). Unset, a
+#: sincos, rotate or NCO (pipelined or iterative) rounds them where ``rounding`` rounds the outputs (docs/config.md).
 SHIFTED_TERMS = ("rounded", "floored")
 #: The most first iterations a table may stand for (the table has 2^(h + 1) entries).
 MAX_TABLE_HEAD = 4
@@ -88,7 +88,7 @@ class CoreSpec:
             (a clock edge with ``clk_en`` low is no edge for the core).
         handshake: One of :data:`HANDSHAKES`.
         shifted_terms: Where the function offers it (sincos, rotate, nco): one of
-            :data:`SHIFTED_TERMS`, or ``None`` to follow ``rounding`` and the architecture.
+            :data:`SHIFTED_TERMS`, or ``None`` to follow ``rounding``.
         table_head: Where the function offers it (sincos, nco): how many first iterations
             the core reads from a table of the fold and their directions instead of adding
             (0 to :data:`MAX_TABLE_HEAD`), or ``None`` for the architecture's default
