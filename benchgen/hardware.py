@@ -350,7 +350,7 @@ class _Core:
         x_cin: Expr = Not(d) if hyperbolic else d
         y_cin: Expr = Not(d_y)
         if dp.rounded_shifts and step.shift is None:
-            # the shifter formed the rounding bits beside the terms (rounded_shifter)
+            # the shifter formed the rounding bits beside the terms (shifter)
             assert self.has_y, "rounded shifts: functions that carry y"
             if ys is not None:
                 x_cin = Xor(x_cin, b.sig(f"yr_{label}"))
@@ -1021,16 +1021,7 @@ class _Core:
                     assert src[1] is not None
                     names.append(("ys", src[1]))
                 for name, value in names:
-                    if dp.rounded_shifts:
-                        self.rounded_shifter(name, value, j, looped[0] + j if by_count else None, amount)
-                    elif by_count:
-                        assert amount is not None
-                        fixed_part = sign_shift(value, looped[0] + j, W)
-                        if not isinstance(fixed_part, Sig):
-                            fixed_part = b.wire(f"{name[0]}p_j{j}", fixed_part, f"{name[0]} >>> {looped[0] + j}", of="xy")
-                        b.wire(f"{name}_j{j}", Sra(fixed_part, amount), of="xy")
-                    else:
-                        b.wire(f"{name}_j{j}", Sra(value, b.sig(f"shift_j{j}")), of="xy")
+                    self.shifter(name, value, j, looped[0] + j if by_count else None, amount)
             fx, fy, fz, final = self.iteration(
                 step, src, dst,
                 final=fixed and j == per_cycle - 1, x_low=x_low,
@@ -1091,32 +1082,33 @@ class _Core:
             else:
                 m.add(Assign(ready, b.sig("ready_reg")))
 
-    def rounded_shifter(self, name: str, value: Sig, j: int, base: int | None, amount: Sig | None) -> None:
-        """An iterative core's shifted term with its rounding bit: ``{name}_j{j}`` = value >>> s
-        and ``{name[0]}r_j{j}`` = bit s - 1 of value (0 where s = 0), for the clock's shift s.
+    def shifter(self, name: str, value: Sig, j: int, base: int | None, amount: Sig | None) -> None:
+        """An iterative core's shifted term ``{name}_j{j}`` = value >>> s for the clock's shift s,
+        and where the terms are rounded (``dp.rounded_shifts``) its rounding bit
+        ``{name[0]}r_j{j}`` = bit s - 1 of value (0 where s = 0).
 
-        The shifter shifts by s - 1 and a fixed 1 follows, so the bit below the shift is the
-        bit it drops, and no second shifter is needed (:func:`benchgen.model.shifted_term`).
-        ``base``: the fixed part of s where the count adds the rest (``amount``), else None
-        (s from the clock's table, ``shift_j{j}``). A shift that can be 0 shifts the value with
-        a zero below it (one bit wider), which is the same thing."""
+        ``base``: the fixed part of s where the count adds the rest (``amount``), shifted as
+        wiring ahead of the shifter; else None (s from the clock's table, ``shift_j{j}``).
+        Rounded, the shifter shifts by s - 1 and a fixed 1 follows, so the bit below the shift
+        is the bit it drops and no second shifter is needed (:func:`benchgen.model.shifted_term`);
+        a shift that can be 0 shifts the value with a zero below it (one bit wider), which is
+        the same thing."""
         b, W = self.b, self.b.W
-        if base is not None:
-            assert amount is not None
-            if base >= 1:
-                wide: Expr = sign_shift(value, base - 1, W)
-                if not isinstance(wide, Sig):
-                    wide = b.wire(f"{name[0]}p_j{j}", wide, f"{name[0]} >>> {base - 1}", of="xy")
-            else:
-                wide = Cat((value, Const(0, 1)))
-            by: Expr = amount
-        else:
-            wide, by = Cat((value, Const(0, 1))), b.sig(f"shift_j{j}")
+        back = 1 if self.dp.rounded_shifts else 0  # shift by s - back, then by back
+        wide: Expr = value
+        if base is not None and base >= back:
+            wide = sign_shift(value, base - back, W)
+            if not isinstance(wide, Sig):
+                wide = b.wire(f"{name[0]}p_j{j}", wide, f"{name[0]} >>> {base - back}", of="xy")
+        elif back:
+            wide = Cat((value, Const(0, 1)))
+        assert base is None or amount is not None, "a count-added shift needs the count"
+        by: Expr = b.sig(f"shift_j{j}") if base is None else amount  # type: ignore[assignment]
+        if not back:
+            b.wire(f"{name}_j{j}", Sra(wide, by), of="xy")
+            return
         w = b.wire(f"{name[0]}w_j{j}", Sra(wide, by), f"{name[0]} >>> (shift - 1)")
-        if w.width == W:
-            term = sign_shift(w, 1, W)
-        else:
-            term = Slice(w, W, 1)
+        term = sign_shift(w, 1, W) if w.width == W else Slice(w, W, 1)
         b.wire(f"{name}_j{j}", term, f"{name[0]} >>> shift", of="xy")
         b.wire(f"{name[0]}r_j{j}", w[0], "the bit below the shift: the rounding bit")
 
